@@ -1,0 +1,72 @@
+// Package atomicfile writes a file so that it appears at its path only when
+// complete: data goes to a temporary file in the same directory, which
+// Commit renames into place and Abort removes.
+package atomicfile
+
+import (
+	"fmt"
+	"os"
+	"path/filepath"
+)
+
+// File is an output file in progress. It implements io.Writer.
+type File struct {
+	*os.File
+	path string
+	done bool
+}
+
+// Create opens a temporary file beside path. The directory must exist.
+func Create(path string) (*File, error) {
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
+	}
+	f, err := os.CreateTemp(dir, "."+base+".tmp-*")
+	if err != nil {
+		return nil, fmt.Errorf("create %s: %w", path, err)
+	}
+	return &File{File: f, path: path}, nil
+}
+
+// Path returns the final path the file will have after Commit.
+func (f *File) Path() string { return f.path }
+
+// Commit syncs and closes the temporary file and renames it to the final
+// path. After Commit, Abort does nothing.
+func (f *File) Commit() error {
+	if f.done {
+		return nil
+	}
+	f.done = true
+	tmp := f.File.Name()
+	if err := f.File.Sync(); err != nil {
+		f.File.Close()
+		os.Remove(tmp)
+		return fmt.Errorf("write %s: %w", f.path, err)
+	}
+	if err := f.File.Close(); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("write %s: %w", f.path, err)
+	}
+	if err := os.Chmod(tmp, 0o644); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("write %s: %w", f.path, err)
+	}
+	if err := os.Rename(tmp, f.path); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("write %s: %w", f.path, err)
+	}
+	return nil
+}
+
+// Abort closes and removes the temporary file, leaving the final path as
+// it was. It is safe to call after Commit or more than once.
+func (f *File) Abort() {
+	if f.done {
+		return
+	}
+	f.done = true
+	f.File.Close()
+	os.Remove(f.File.Name())
+}

@@ -1,0 +1,220 @@
+// Package tableio opens tables for reading and creates them for writing,
+// choosing CSV, Parquet or Arrow IPC from the file's content (reading) or
+// its extension (writing).
+package tableio
+
+import (
+	"bufio"
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"manyfold/io/arrowio"
+	"manyfold/io/atomicfile"
+	"manyfold/io/csvio"
+	"manyfold/io/pqio"
+	"manyfold/io/table"
+)
+
+// Format is a table file format.
+type Format string
+
+// The formats manyfold reads and writes.
+const (
+	CSV     Format = "csv"
+	Parquet Format = "parquet"
+	Arrow   Format = "arrow"
+)
+
+// ReadOptions configures how a table is read. The CSV options apply to CSV
+// input only.
+type ReadOptions struct {
+	CSV csvio.Options
+}
+
+// Detect reads the first bytes of r and names the format: Parquet for the
+// magic "PAR1", Arrow for "ARROW1" (file) or an IPC stream's continuation
+// marker, CSV otherwise (including gzip or zstd compressed text, which the
+// CSV reader unpacks). An empty input gives table.ErrEmpty.
+func Detect(head []byte) (Format, error) {
+	switch {
+	case len(head) == 0:
+		return "", table.ErrEmpty
+	case bytes.HasPrefix(head, []byte("PAR1")):
+		return Parquet, nil
+	case bytes.HasPrefix(head, []byte("ARROW1")):
+		return Arrow, nil
+	case bytes.HasPrefix(head, []byte{0xff, 0xff, 0xff, 0xff}):
+		return Arrow, nil
+	}
+	if looksBinary(head) {
+		return "", table.ErrUnknownFormat
+	}
+	return CSV, nil
+}
+
+// looksBinary reports whether head holds bytes that text never does: a NUL,
+// or other control bytes, outside gzip and zstd headers.
+func looksBinary(head []byte) bool {
+	if bytes.HasPrefix(head, []byte{0x1f, 0x8b}) || bytes.HasPrefix(head, []byte{0x28, 0xb5, 0x2f, 0xfd}) {
+		return false
+	}
+	n := len(head)
+	if n > 512 {
+		n = 512
+	}
+	for _, c := range head[:n] {
+		if c == 0 || (c < 0x20 && c != '\t' && c != '\n' && c != '\r' && c != '\f') {
+			return true
+		}
+	}
+	return false
+}
+
+// Open opens the table at path ("-" for standard input, read as CSV or an
+// Arrow IPC stream).
+func Open(path string, opts ReadOptions) (table.Reader, error) {
+	name := path
+	if path == "-" {
+		name = "stdin"
+		br := bufio.NewReaderSize(os.Stdin, 1<<16)
+		head, _ := br.Peek(8)
+		f, err := Detect(head)
+		if err != nil {
+			return nil, fmt.Errorf("%s: %w", name, err)
+		}
+		switch f {
+		case CSV:
+			return csvio.NewReader(br, name, opts.CSV)
+		case Arrow:
+			return arrowio.NewReader(br, name)
+		}
+		return nil, fmt.Errorf("%s: Parquet cannot be read from standard input; give a file", name)
+	}
+	fh, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	head := make([]byte, 512)
+	n, err := io.ReadFull(fh, head)
+	if err != nil && !errors.Is(err, io.ErrUnexpectedEOF) && !errors.Is(err, io.EOF) {
+		fh.Close()
+		return nil, fmt.Errorf("read %s: %w", path, err)
+	}
+	format, err := Detect(head[:n])
+	if err != nil {
+		fh.Close()
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	switch format {
+	case Parquet:
+		fh.Close()
+		return pqio.Open(path)
+	case Arrow:
+		fh.Close()
+		return arrowio.Open(path)
+	}
+	if _, err := fh.Seek(0, io.SeekStart); err != nil {
+		fh.Close()
+		return nil, fmt.Errorf("read %s: %w", path, err)
+	}
+	r, err := csvio.NewReader(fh, path, opts.CSV)
+	if err != nil {
+		fh.Close()
+		return nil, err
+	}
+	return &closeBoth{Reader: r, f: fh}, nil
+}
+
+type closeBoth struct {
+	table.Reader
+	f *os.File
+}
+
+func (c *closeBoth) Close() error {
+	err := c.Reader.Close()
+	if err2 := c.f.Close(); err == nil {
+		err = err2
+	}
+	return err
+}
+
+// FormatOf names the output format for a path from its extension: .csv
+// (also .tsv, .txt, optionally followed by nothing else), .parquet or .pq,
+// .arrow, .ipc or .feather. It returns "" for an unknown extension.
+func FormatOf(path string) Format {
+	switch strings.ToLower(filepath.Ext(path)) {
+	case ".csv", ".tsv", ".txt":
+		return CSV
+	case ".parquet", ".pq":
+		return Parquet
+	case ".arrow", ".ipc", ".feather":
+		return Arrow
+	}
+	return ""
+}
+
+// WriteOptions configures an output table.
+type WriteOptions struct {
+	Format  Format // "" picks by extension
+	CSV     csvio.WriterOptions
+	Parquet pqio.WriterOptions
+}
+
+// Output is a table being written to a temporary file beside its final
+// path. Commit closes the writer and renames the file into place; Abort
+// removes it.
+type Output struct {
+	table.Writer
+	file *atomicfile.File
+}
+
+// Create starts writing a table with the given schema at path.
+func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, error) {
+	format := opts.Format
+	if format == "" {
+		format = FormatOf(path)
+		if format == "" {
+			return nil, fmt.Errorf("%s: cannot tell the output format from the extension (use .csv, .parquet or .arrow, or give --format)", path)
+		}
+	}
+	f, err := atomicfile.Create(path)
+	if err != nil {
+		return nil, err
+	}
+	var w table.Writer
+	switch format {
+	case CSV:
+		w, err = csvio.NewWriter(f, schema, opts.CSV)
+	case Parquet:
+		w, err = pqio.NewWriter(f, schema, opts.Parquet)
+	case Arrow:
+		w, err = arrowio.NewWriter(f, schema)
+	default:
+		err = fmt.Errorf("unknown output format %q", format)
+	}
+	if err != nil {
+		f.Abort()
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	return &Output{Writer: w, file: f}, nil
+}
+
+// Commit completes the table and moves it into place.
+func (o *Output) Commit() error {
+	if err := o.Writer.Close(); err != nil {
+		o.file.Abort()
+		return fmt.Errorf("write %s: %w", o.file.Path(), err)
+	}
+	return o.file.Commit()
+}
+
+// Abort discards the output; the final path is left as it was.
+func (o *Output) Abort() {
+	o.Writer.Close()
+	o.file.Abort()
+}

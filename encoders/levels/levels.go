@@ -1,0 +1,176 @@
+// Package levels interns the distinct values (levels) of a categorical
+// column: a compact table that maps millions of distinct byte strings to
+// dense ids 0, 1, 2, ... in the order they were first seen, and back.
+//
+// Layout: the bytes of every level sit end to end in one byte arena; a
+// level's id indexes a table of 64-bit arena offsets (the level ends where
+// the next begins); lookups go through an open-addressing table of 8-byte
+// slots, each holding a 32-bit tag taken from the level's hash and the
+// level's id, probed linearly from the hash's low bits and kept at most 3/4
+// full. The cost is about 19 to 30 bytes per level on top of the level's own
+// bytes (8 for the offset, 8/load for the slots, plus growth slack), against
+// roughly three times that for a map from strings. Offsets are 64-bit, so
+// the arena may grow past 4 GiB of level bytes; the only limit is memory and
+// the id space (MaxLevels).
+package levels
+
+import (
+	"bytes"
+	"math"
+	"unsafe"
+
+	"github.com/cespare/xxhash/v2"
+)
+
+// MaxLevels is the most levels a Table holds: ids are uint32 and NoID is
+// kept back. Reaching it needs well over 100 GiB of memory.
+const MaxLevels = math.MaxUint32
+
+// NoID is the id Intern returns for a new level when the table already
+// holds MaxLevels levels; the level is not added. It is never a valid id.
+const NoID uint32 = math.MaxUint32
+
+// levelLimit is MaxLevels; tests lower it to exercise the full-table path.
+var levelLimit uint64 = MaxLevels
+
+// minSlots is the smallest slot table.
+const minSlots = 8
+
+// Hash returns the XXH64 hash (seed 0) of b, the hash InternHash expects.
+func Hash(b []byte) uint64 { return xxhash.Sum64(b) }
+
+// slot is one entry of the open-addressing table: tag is the high 32 bits
+// of the level's hash, id1 its id plus one (0 marks an empty slot).
+type slot struct{ tag, id1 uint32 }
+
+// Table interns levels. The zero value is an empty table ready to use; New
+// presizes one. A Table is not safe for concurrent use, but its methods that
+// only read (Lookup, Level, Len, MemBytes) may run concurrently with each
+// other.
+type Table struct {
+	arena   []byte
+	offsets []uint64 // offsets[id] is where level id starts; one more entry than levels
+	slots   []slot   // power-of-two length
+	grow    int      // level count at which slots doubles
+}
+
+// New returns an empty Table sized for sizeHint levels without growing its
+// slot or offset tables (the arena still grows as level bytes arrive).
+// sizeHint <= 0 gives a small table.
+func New(sizeHint int) *Table {
+	t := &Table{}
+	t.init(sizeHint)
+	return t
+}
+
+// init allocates the slot and offset tables for sizeHint levels.
+func (t *Table) init(sizeHint int) {
+	if sizeHint < 0 {
+		sizeHint = 0
+	}
+	n := minSlots
+	for n/4*3 < sizeHint {
+		n *= 2
+	}
+	t.slots = make([]slot, n)
+	t.grow = n / 4 * 3
+	t.offsets = make([]uint64, 1, sizeHint+1)
+}
+
+// Len returns the number of levels.
+func (t *Table) Len() int {
+	if len(t.offsets) == 0 {
+		return 0
+	}
+	return len(t.offsets) - 1
+}
+
+// Level returns the bytes of level id, aliasing the arena: the caller must
+// not modify them; appending to the result copies (its capacity ends with
+// the level). An id that is not in the table gives nil.
+func (t *Table) Level(id uint32) []byte {
+	if uint64(id)+1 >= uint64(len(t.offsets)) {
+		return nil
+	}
+	lo, hi := t.offsets[id], t.offsets[id+1]
+	return t.arena[lo:hi:hi]
+}
+
+// Intern returns the id of b, adding b (copied into the arena) with the next
+// id if it is new. b may alias the table's own arena (a Level or part of
+// one). It allocates only when a table grows. If b is new and the table
+// holds MaxLevels levels, Intern returns NoID and adds nothing.
+func (t *Table) Intern(b []byte) uint32 { return t.InternHash(b, Hash(b)) }
+
+// InternHash is Intern with h = Hash(b) computed by the caller, for callers
+// that hash once and reuse the hash. An h that is not Hash(b) does not break
+// the table, but b may then get a second id or be missed.
+func (t *Table) InternHash(b []byte, h uint64) uint32 {
+	if t.slots == nil {
+		t.init(0)
+	}
+	mask := uint64(len(t.slots) - 1)
+	tag := uint32(h >> 32)
+	for i := h & mask; ; i = (i + 1) & mask {
+		s := t.slots[i]
+		if s.id1 == 0 {
+			n := uint64(len(t.offsets) - 1)
+			if n >= levelLimit {
+				return NoID
+			}
+			t.arena = append(t.arena, b...)
+			t.offsets = append(t.offsets, uint64(len(t.arena)))
+			t.slots[i] = slot{tag: tag, id1: uint32(n + 1)}
+			if int(n+1) > t.grow {
+				t.rehash()
+			}
+			return uint32(n)
+		}
+		if s.tag == tag && bytes.Equal(t.Level(s.id1-1), b) {
+			return s.id1 - 1
+		}
+	}
+}
+
+// Lookup returns the id of b and whether b is in the table. It does not
+// allocate.
+func (t *Table) Lookup(b []byte) (uint32, bool) {
+	if len(t.slots) == 0 {
+		return 0, false
+	}
+	h := Hash(b)
+	mask := uint64(len(t.slots) - 1)
+	tag := uint32(h >> 32)
+	for i := h & mask; ; i = (i + 1) & mask {
+		s := t.slots[i]
+		if s.id1 == 0 {
+			return 0, false
+		}
+		if s.tag == tag && bytes.Equal(t.Level(s.id1-1), b) {
+			return s.id1 - 1, true
+		}
+	}
+}
+
+// rehash doubles the slot table and places every level again, hashing its
+// bytes anew from the arena (slots keep only 32 bits of the hash).
+func (t *Table) rehash() {
+	slots := make([]slot, 2*len(t.slots))
+	mask := uint64(len(slots) - 1)
+	for id := 0; id+1 < len(t.offsets); id++ {
+		h := Hash(t.arena[t.offsets[id]:t.offsets[id+1]])
+		i := h & mask
+		for slots[i].id1 != 0 {
+			i = (i + 1) & mask
+		}
+		slots[i] = slot{tag: uint32(h >> 32), id1: uint32(id + 1)}
+	}
+	t.slots = slots
+	t.grow = len(slots) / 4 * 3
+}
+
+// MemBytes returns the bytes the table holds: the arena's, offset table's
+// and slot table's capacity plus the Table itself.
+func (t *Table) MemBytes() int {
+	return int(unsafe.Sizeof(*t)) + cap(t.arena) + 8*cap(t.offsets) + int(unsafe.Sizeof(slot{}))*len(t.slots)
+}

@@ -1,0 +1,326 @@
+package levels
+
+import (
+	"bytes"
+	"math/rand/v2"
+	"runtime"
+	"strconv"
+	"testing"
+	"time"
+)
+
+// TestHashVectors checks Hash against the XXH64 vectors of the xxHash
+// repository (doc/xxhash_spec.md, cli/xsum_sanity_check.c), seed 0.
+func TestHashVectors(t *testing.T) {
+	for _, tc := range []struct {
+		in   string
+		want uint64
+	}{
+		{"", 0xEF46DB3751D8E999},
+		{"a", 0xD24EC4F1A98C6E5B},
+		{"abc", 0x44BC2CF5AD770999},
+		{"The quick brown fox jumps over the lazy dog", 0x0B242D361FDA71BC},
+	} {
+		if got := Hash([]byte(tc.in)); got != tc.want {
+			t.Errorf("Hash(%q) = %#016x, want %#016x", tc.in, got, tc.want)
+		}
+	}
+}
+
+// randomKeys returns n keys with many repeats: random bytes of length 0..24
+// drawn from a small alphabet (so short keys repeat), plus keys that differ
+// only in length (runs of zero bytes and of 'a').
+func randomKeys(n int, seed uint64) [][]byte {
+	r := rand.New(rand.NewPCG(seed, 1))
+	var keys [][]byte
+	for i := 0; i < 40; i++ {
+		keys = append(keys, bytes.Repeat([]byte{0}, i), bytes.Repeat([]byte("a"), i))
+	}
+	keys = append(keys, nil, []byte{}, []byte("PC-40217"), []byte("PC-4021"), []byte("PC-402170"))
+	for len(keys) < n {
+		k := make([]byte, r.IntN(25))
+		for j := range k {
+			k[j] = "ab\x00\xff"[r.IntN(4)]
+		}
+		keys = append(keys, k)
+	}
+	r.Shuffle(len(keys), func(i, j int) { keys[i], keys[j] = keys[j], keys[i] })
+	return keys
+}
+
+// check compares t with the reference map (level -> id) and order (id ->
+// level).
+func check(t *testing.T, tb *Table, ref map[string]uint32, order []string) {
+	t.Helper()
+	if tb.Len() != len(order) {
+		t.Fatalf("Len = %d, want %d", tb.Len(), len(order))
+	}
+	for id, k := range order {
+		if got := tb.Level(uint32(id)); string(got) != k || got == nil {
+			t.Fatalf("Level(%d) = %q, want %q", id, got, k)
+		}
+		if got, ok := tb.Lookup([]byte(k)); !ok || got != ref[k] {
+			t.Fatalf("Lookup(%q) = %d, %v, want %d, true", k, got, ok, ref[k])
+		}
+	}
+}
+
+func TestAgainstMap(t *testing.T) {
+	for _, hint := range []int{0, 10, 100000} {
+		t.Run("hint="+strconv.Itoa(hint), func(t *testing.T) {
+			var tb *Table
+			if hint == 0 {
+				tb = new(Table) // the zero value works too
+			} else {
+				tb = New(hint)
+			}
+			ref := map[string]uint32{}
+			var order []string
+			for i, k := range randomKeys(60000, uint64(hint)) {
+				want, ok := ref[string(k)]
+				if !ok {
+					want = uint32(len(order))
+					ref[string(k)] = want
+					order = append(order, string(k))
+				}
+				if got := tb.Intern(k); got != want {
+					t.Fatalf("key %d: Intern(%q) = %d, want %d", i, k, got, want)
+				}
+			}
+			if len(order) < 10000 {
+				t.Fatalf("only %d distinct keys: test data too repetitive", len(order))
+			}
+			check(t, tb, ref, order)
+			for _, k := range []string{"not-a-level", "\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00\x00"} {
+				if id, ok := tb.Lookup([]byte(k)); ok {
+					t.Fatalf("Lookup(%q) = %d, true for a key never added", k, id)
+				}
+			}
+		})
+	}
+}
+
+func TestEmptyAndLength(t *testing.T) {
+	tb := New(0)
+	steps := []struct {
+		key  []byte
+		want uint32
+	}{
+		{[]byte{}, 0},
+		{nil, 0}, // nil and empty are the same level
+		{[]byte{0}, 1},
+		{[]byte{0, 0}, 2},
+		{[]byte{0}, 1},
+		{[]byte("ab"), 3},
+		{[]byte("a"), 4},
+		{[]byte("abc"), 5},
+		{[]byte(""), 0},
+	}
+	for _, s := range steps {
+		if got := tb.Intern(s.key); got != s.want {
+			t.Fatalf("Intern(%q) = %d, want %d", s.key, got, s.want)
+		}
+	}
+	if got := tb.Level(0); got == nil || len(got) != 0 {
+		t.Fatalf("Level(0) = %#v, want empty non-nil", got)
+	}
+	if tb.Level(6) != nil || tb.Level(NoID) != nil || new(Table).Level(0) != nil {
+		t.Fatal("Level of a missing id is not nil")
+	}
+	if _, ok := new(Table).Lookup(nil); ok || new(Table).Len() != 0 {
+		t.Fatal("zero Table is not empty")
+	}
+}
+
+// TestLevelAliasing: appending to a Level must not overwrite the next level,
+// and interning a part of the arena itself must copy correctly across growth.
+func TestLevelAliasing(t *testing.T) {
+	tb := New(0)
+	tb.Intern([]byte("PC-40217"))
+	tb.Intern([]byte("PC-51000"))
+	l := tb.Level(0)
+	_ = append(l, "XXXX"...)
+	if got := string(tb.Level(1)); got != "PC-51000" {
+		t.Fatalf("append to Level(0) changed Level(1) to %q", got)
+	}
+	// Parent postcode groups (the code without its last digit) interned from
+	// the arena itself: many are new, so the arena reallocates while the
+	// source slice points into it.
+	for i := 0; i < 5000; i++ {
+		tb.Intern([]byte("PC-" + strconv.Itoa(10000+i)))
+	}
+	n := tb.Len()
+	distinct := map[string]bool{}
+	for id := 0; id < n; id++ {
+		lvl := tb.Level(uint32(id))
+		want := string(lvl[:len(lvl)-1])
+		distinct[want] = true
+		if got := tb.Level(tb.Intern(lvl[:len(lvl)-1])); string(got) != want {
+			t.Fatalf("Intern of arena prefix %q gave level %q", want, got)
+		}
+	}
+	if tb.Len() != n+len(distinct) || len(distinct) != 502 {
+		t.Fatalf("Len after interning %d distinct prefixes = %d, want %d", len(distinct), tb.Len(), n+len(distinct))
+	}
+}
+
+func TestInternHash(t *testing.T) {
+	a, b := New(0), New(0)
+	for _, k := range randomKeys(5000, 3) {
+		if x, y := a.Intern(k), b.InternHash(k, Hash(k)); x != y {
+			t.Fatalf("Intern(%q) = %d, InternHash = %d", k, x, y)
+		}
+	}
+}
+
+func TestFull(t *testing.T) {
+	defer func(old uint64) { levelLimit = old }(levelLimit)
+	levelLimit = 3
+	tb := New(0)
+	for i, k := range []string{"a", "b", "c"} {
+		if got := tb.Intern([]byte(k)); got != uint32(i) {
+			t.Fatalf("Intern(%q) = %d, want %d", k, got, i)
+		}
+	}
+	if got := tb.Intern([]byte("d")); got != NoID {
+		t.Fatalf("Intern of a new level in a full table = %d, want NoID", got)
+	}
+	if got := tb.Intern([]byte("b")); got != 1 {
+		t.Fatalf("Intern of a known level in a full table = %d, want 1", got)
+	}
+	if _, ok := tb.Lookup([]byte("d")); ok || tb.Len() != 3 {
+		t.Fatal("full table added a level")
+	}
+}
+
+func TestAllocs(t *testing.T) {
+	const n = 100000
+	keys := make([][]byte, n)
+	for i := range keys {
+		keys[i] = []byte("sender-" + strconv.Itoa(i))
+	}
+	tb := New(n)
+	slots := len(tb.slots)
+	i := 0
+	avg := testing.AllocsPerRun(n-1, func() { tb.Intern(keys[i]); i++ })
+	if avg > 0.001 { // only the arena's amortised growth allocates
+		t.Fatalf("Intern of new levels: %v allocations per call", avg)
+	}
+	if len(tb.slots) != slots {
+		t.Fatalf("slot table grew from %d to %d within sizeHint", slots, len(tb.slots))
+	}
+	i = 0
+	if avg := testing.AllocsPerRun(1000, func() { tb.Intern(keys[i]); tb.Lookup(keys[i]); i++ }); avg != 0 {
+		t.Fatalf("Intern/Lookup of known levels: %v allocations per call", avg)
+	}
+}
+
+// TestMemBytes checks the documented footprint: at most 32 bytes per level
+// beyond 1.25 times the level bytes (Go's slice growth slack), and that
+// MemBytes matches the heap the table really holds.
+func TestMemBytes(t *testing.T) {
+	const n = 300000
+	var before, after runtime.MemStats
+	runtime.GC()
+	runtime.ReadMemStats(&before)
+	tb := New(0)
+	keyBytes := 0
+	buf := []byte("PC-")
+	for i := 0; i < n; i++ {
+		k := strconv.AppendInt(buf[:3], int64(i), 10)
+		keyBytes += len(k)
+		tb.Intern(k)
+	}
+	runtime.GC()
+	runtime.ReadMemStats(&after)
+	mem := tb.MemBytes()
+	if limit := 32*n + keyBytes*5/4; mem > limit {
+		t.Fatalf("MemBytes = %d for %d levels of %d bytes, want <= %d", mem, n, keyBytes, limit)
+	}
+	heap := int(after.HeapAlloc) - int(before.HeapAlloc)
+	if heap < mem*9/10 || heap > mem*11/10+1<<16 {
+		t.Fatalf("heap grew by %d bytes, MemBytes says %d", heap, mem)
+	}
+	runtime.KeepAlive(tb)
+}
+
+// key writes the i-th benchmark level (a sender account code) into buf.
+func key(buf []byte, i int) []byte {
+	return strconv.AppendUint(append(buf[:0], "acct-"...), uint64(i)*2654435761%1_000_000_007, 36)
+}
+
+// heapInUse returns the live heap after a collection.
+func heapInUse() int {
+	runtime.GC()
+	var m runtime.MemStats
+	runtime.ReadMemStats(&m)
+	return int(m.HeapAlloc)
+}
+
+// BenchmarkIntern builds a table of n distinct levels from empty (growth
+// included), then interns every level again in a scattered order (all hits),
+// against a map[string]uint32 doing the same. Metrics: build-ns/level,
+// hit-ns/level, bytes/level (live heap of the finished structure, level
+// bytes included). Run: go test -run '^$' -bench Intern -benchtime 1x.
+func BenchmarkIntern(b *testing.B) {
+	for _, n := range []int{1_000_000, 10_000_000} {
+		name := strconv.Itoa(n/1_000_000) + "M"
+		b.Run("levels="+name+"/table", func(b *testing.B) {
+			buf := make([]byte, 0, 32)
+			var build, hit time.Duration
+			bytesPer := 0.0
+			for it := 0; it < b.N; it++ {
+				base := heapInUse()
+				start := time.Now()
+				tb := New(0)
+				for i := 0; i < n; i++ {
+					tb.Intern(key(buf, i))
+				}
+				build += time.Since(start)
+				bytesPer = float64(heapInUse()-base) / float64(n)
+				start = time.Now()
+				for i := 0; i < n; i++ {
+					tb.Intern(key(buf, i*1_000_003%n))
+				}
+				hit += time.Since(start)
+				if tb.Len() != n {
+					b.Fatalf("Len = %d, want %d", tb.Len(), n)
+				}
+			}
+			b.ReportMetric(float64(build.Nanoseconds())/float64(b.N*n), "build-ns/level")
+			b.ReportMetric(float64(hit.Nanoseconds())/float64(b.N*n), "hit-ns/level")
+			b.ReportMetric(bytesPer, "bytes/level")
+		})
+		b.Run("levels="+name+"/map", func(b *testing.B) {
+			buf := make([]byte, 0, 32)
+			var build, hit time.Duration
+			bytesPer := 0.0
+			for it := 0; it < b.N; it++ {
+				base := heapInUse()
+				start := time.Now()
+				m := make(map[string]uint32)
+				for i := 0; i < n; i++ {
+					k := key(buf, i)
+					if _, ok := m[string(k)]; !ok {
+						m[string(k)] = uint32(len(m))
+					}
+				}
+				build += time.Since(start)
+				bytesPer = float64(heapInUse()-base) / float64(n)
+				start = time.Now()
+				sum := uint32(0)
+				for i := 0; i < n; i++ {
+					sum += m[string(key(buf, i*1_000_003%n))]
+				}
+				hit += time.Since(start)
+				if len(m) != n {
+					b.Fatalf("len = %d, want %d", len(m), n)
+				}
+				runtime.KeepAlive(sum)
+			}
+			b.ReportMetric(float64(build.Nanoseconds())/float64(b.N*n), "build-ns/level")
+			b.ReportMetric(float64(hit.Nanoseconds())/float64(b.N*n), "hit-ns/level")
+			b.ReportMetric(bytesPer, "bytes/level")
+		})
+	}
+}

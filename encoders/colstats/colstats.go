@@ -1,0 +1,397 @@
+// Package colstats gathers the per-level statistics of one categorical
+// column that every manyfold encoder is derived from, split by fold, and
+// turns them into encoded values.
+//
+// For a level c and fold f it holds the number of rows whose target is known
+// and either the count of each target class (classification) or the sum and
+// sum of squares of the target (regression); for each level it also holds
+// the number of rows of any target (frequency, top-k). All of these are sums,
+// so statistics gathered over two shards of a table merge, by addition, into
+// those of the whole table (see Merge).
+//
+// Level 0 is the null level; level i > 0 is id i-1 of the level table.
+package colstats
+
+import (
+	"bytes"
+	"fmt"
+	"math"
+	"sort"
+
+	"manyfold/encoders/levels"
+	"manyfold/encoders/smooth"
+)
+
+// Task is the kind of target a statistic describes.
+type Task uint8
+
+// The tasks.
+const (
+	Binary Task = iota
+	Multiclass
+	Regression
+)
+
+var taskNames = [...]string{Binary: "binary", Multiclass: "multiclass", Regression: "regression"}
+
+// String returns binary, multiclass or regression.
+func (t Task) String() string { return taskNames[t] }
+
+// ParseTask parses a task name.
+func ParseTask(s string) (Task, error) {
+	for i, n := range taskNames {
+		if n == s {
+			return Task(i), nil
+		}
+	}
+	return 0, fmt.Errorf("unknown task %q (want binary, multiclass or regression)", s)
+}
+
+// Stats holds the statistics of one column.
+type Stats struct {
+	Task    Task
+	Folds   int // K >= 1
+	Classes int // classification: number of class slots; regression: 0
+
+	Levels *levels.Table
+
+	// Rows[l]: all rows of level l, whatever their target.
+	Rows []uint64
+	// Cnt[l*K+f]: rows of level l in fold f whose target is known.
+	Cnt []uint32
+	// Cls[(l*K+f)*C+c]: of those, the rows of class c (classification).
+	Cls []uint32
+	// Sum, SumSq[l*K+f]: the sum and sum of squares of their target (regression).
+	Sum, SumSq []float64
+}
+
+// New returns empty statistics for k folds.
+func New(task Task, k, classes int, sizeHint int) *Stats {
+	s := &Stats{Task: task, Folds: k, Levels: levels.New(sizeHint)}
+	if task != Regression {
+		s.Classes = classes
+	}
+	s.grow(1) // the null level
+	return s
+}
+
+// NumLevels returns the number of level slots, the null slot included.
+func (s *Stats) NumLevels() int { return len(s.Rows) }
+
+func (s *Stats) grow(n int) {
+	for len(s.Rows) < n {
+		s.Rows = append(s.Rows, 0)
+		for f := 0; f < s.Folds; f++ {
+			s.Cnt = append(s.Cnt, 0)
+			if s.Task == Regression {
+				s.Sum = append(s.Sum, 0)
+				s.SumSq = append(s.SumSq, 0)
+			} else {
+				for c := 0; c < s.Classes; c++ {
+					s.Cls = append(s.Cls, 0)
+				}
+			}
+		}
+	}
+}
+
+// Level returns the slot of a level's bytes, adding it if new.
+func (s *Stats) Level(b []byte) int {
+	id := int(s.Levels.Intern(b)) + 1
+	if id >= len(s.Rows) {
+		s.grow(id + 1)
+	}
+	return id
+}
+
+// Lookup returns the slot of a level's bytes, or -1 when it was never seen.
+func (s *Stats) Lookup(b []byte) int {
+	id, ok := s.Levels.Lookup(b)
+	if !ok {
+		return -1
+	}
+	return int(id) + 1
+}
+
+// Bytes returns the text of level slot l (nil for the null level).
+func (s *Stats) Bytes(l int) []byte {
+	if l == 0 {
+		return nil
+	}
+	return s.Levels.Level(uint32(l - 1))
+}
+
+// AddClasses widens the class slots to n (n >= Classes), keeping counts.
+func (s *Stats) AddClasses(n int) {
+	if n <= s.Classes || s.Task == Regression {
+		return
+	}
+	old := s.Classes
+	cls := make([]uint32, len(s.Rows)*s.Folds*n)
+	for i := 0; i < len(s.Rows)*s.Folds; i++ {
+		copy(cls[i*n:i*n+old], s.Cls[i*old:(i+1)*old])
+	}
+	s.Cls, s.Classes = cls, n
+}
+
+// AddRow counts a row of level l whose target is unknown.
+func (s *Stats) AddRow(l int) { s.Rows[l]++ }
+
+// AddClass counts a row of level l in fold f with target class c.
+func (s *Stats) AddClass(l, f, c int) {
+	s.Rows[l]++
+	i := l*s.Folds + f
+	s.Cnt[i]++
+	s.Cls[i*s.Classes+c]++
+}
+
+// AddValue counts a row of level l in fold f with numeric target y.
+func (s *Stats) AddValue(l, f int, y float64) {
+	s.Rows[l]++
+	i := l*s.Folds + f
+	s.Cnt[i]++
+	s.Sum[i] += y
+	s.SumSq[i] += y * y
+}
+
+// Agg is the target statistic of a set of rows for one output: n rows and
+// the sum of the target (the count of the class for classification) and of
+// its square.
+type Agg struct{ N, Sum, SumSq float64 }
+
+// Outputs returns the number of target outputs: 1 for binary and
+// regression, the number of classes for multi-class.
+func (s *Stats) Outputs() int {
+	if s.Task == Multiclass {
+		return s.Classes
+	}
+	return 1
+}
+
+// Target returns the statistic of level l for output o over the rows of all
+// folds but exclude (exclude < 0: all folds). For binary the positive class
+// is class slot pos.
+func (s *Stats) Target(l, o, exclude, pos int) Agg {
+	var a Agg
+	base := l * s.Folds
+	for f := 0; f < s.Folds; f++ {
+		if f == exclude {
+			continue
+		}
+		i := base + f
+		a.N += float64(s.Cnt[i])
+		switch s.Task {
+		case Regression:
+			a.Sum += s.Sum[i]
+			a.SumSq += s.SumSq[i]
+		case Binary:
+			a.Sum += float64(s.Cls[i*s.Classes+pos])
+		default:
+			a.Sum += float64(s.Cls[i*s.Classes+o])
+		}
+	}
+	if s.Task != Regression {
+		a.SumSq = a.Sum
+	}
+	return a
+}
+
+// Smoothing names how a level's mean is pulled towards its prior.
+type Smoothing struct {
+	Kind string  // "auto", "m" or "blend"
+	M    float64 // m-estimate weight (Kind "m")
+	K, F float64 // blend midpoint and steepness (Kind "blend")
+}
+
+// Fitted holds, for one output and one set of fitting rows, the prior and
+// the smoothing weight that encode a level's statistic.
+type Fitted struct {
+	Prior float64
+	M     float64 // the m in use: given, or estimated (auto); NaN for blend
+	Sm    Smoothing
+}
+
+// Encode returns the smoothed mean of a level with statistic a: the
+// m-estimate (s + m*p)/(n + m) (Cestnik 1990) for "m" and "auto", the
+// sigmoid blend lambda*s/n + (1-lambda)*p (Micci-Barreca 2001) for "blend".
+// A level with no rows gets the prior. With an infinite m (auto found no
+// between-level variance) every level gets the prior.
+func (ft *Fitted) Encode(a Agg) float64 {
+	if a.N == 0 {
+		return ft.Prior
+	}
+	if ft.Sm.Kind == "blend" {
+		return smooth.Blend(a.Sum, a.N, ft.Sm.K, ft.Sm.F, ft.Prior)
+	}
+	if math.IsInf(ft.M, 1) {
+		return ft.Prior
+	}
+	return smooth.MEstimate(a.Sum, a.N, ft.M, ft.Prior)
+}
+
+// Fit computes the prior (the mean target of the fitting rows) and, for
+// auto smoothing, the empirical-Bayes m over the levels, for output o over
+// all folds but exclude. keep reports which level slots count as seen
+// (nil: all); levels left out still count towards the prior. order gives
+// the slots in the order their statistics are summed (nil: slot order); a
+// canonical order (Sorted) makes the result independent of the order in
+// which levels were first seen.
+func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []int, buf []smooth.LevelStats) (Fitted, []smooth.LevelStats) {
+	var tot Agg
+	buf = buf[:0]
+	n := len(s.Rows)
+	if order != nil {
+		n = len(order)
+	}
+	for i := 0; i < n; i++ {
+		l := i
+		if order != nil {
+			l = order[i]
+		}
+		a := s.Target(l, o, exclude, pos)
+		tot.N += a.N
+		tot.Sum += a.Sum
+		if a.N > 0 && (keep == nil || keep[l]) {
+			buf = append(buf, smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq})
+		}
+	}
+	ft := Fitted{Sm: sm, M: math.NaN()}
+	if tot.N > 0 {
+		ft.Prior = tot.Sum / tot.N
+	} else {
+		ft.Prior = math.NaN()
+	}
+	switch sm.Kind {
+	case "m":
+		ft.M = sm.M
+	case "auto":
+		ft.M, _, _ = smooth.EstimateM(buf)
+	}
+	return ft, buf
+}
+
+// Merge adds the statistics of o into s. Both must have the same task and
+// folds; classes are matched by slot, so both must list classes in the same
+// order (see the mapping package, which merges by class label).
+func (s *Stats) Merge(o *Stats) error {
+	if s.Task != o.Task || s.Folds != o.Folds {
+		return fmt.Errorf("cannot merge %s statistics with %d folds into %s with %d", o.Task, o.Folds, s.Task, s.Folds)
+	}
+	s.AddClasses(o.Classes)
+	for l := 0; l < len(o.Rows); l++ {
+		d := 0
+		if l > 0 {
+			d = s.Level(o.Bytes(l))
+		}
+		s.Rows[d] += o.Rows[l]
+		for f := 0; f < s.Folds; f++ {
+			i, j := d*s.Folds+f, l*o.Folds+f
+			s.Cnt[i] += o.Cnt[j]
+			if s.Task == Regression {
+				s.Sum[i] += o.Sum[j]
+				s.SumSq[i] += o.SumSq[j]
+				continue
+			}
+			for c := 0; c < o.Classes; c++ {
+				s.Cls[i*s.Classes+c] += o.Cls[j*o.Classes+c]
+			}
+		}
+	}
+	return nil
+}
+
+// Sorted returns the level slots in a canonical order: the null level first
+// (if it has rows), then levels by their bytes ascending. Slots with no
+// rows are left out.
+func (s *Stats) Sorted() []int {
+	out := make([]int, 0, len(s.Rows))
+	for l := range s.Rows {
+		if s.Rows[l] > 0 {
+			out = append(out, l)
+		}
+	}
+	sort.Slice(out, func(i, j int) bool {
+		a, b := out[i], out[j]
+		if a == 0 || b == 0 {
+			return a == 0 && b != 0
+		}
+		return bytes.Compare(s.Bytes(a), s.Bytes(b)) < 0
+	})
+	return out
+}
+
+// TopK returns, for every level slot, its top-k code: levels ranked by row
+// count descending, ties by level bytes ascending (the null level, if
+// counted, sorts before every text), get codes 1..k; every other level and
+// every level with fewer than minCount rows gets 0. keep, when not nil,
+// excludes levels from ranking.
+func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
+	idx := make([]int, 0, len(s.Rows))
+	for l := range s.Rows {
+		if s.Rows[l] > 0 && s.Rows[l] >= minCount && (keep == nil || keep[l]) {
+			idx = append(idx, l)
+		}
+	}
+	sort.Slice(idx, func(i, j int) bool {
+		a, b := idx[i], idx[j]
+		if s.Rows[a] != s.Rows[b] {
+			return s.Rows[a] > s.Rows[b]
+		}
+		if a == 0 || b == 0 {
+			return a == 0
+		}
+		return bytes.Compare(s.Bytes(a), s.Bytes(b)) < 0
+	})
+	codes := make([]int32, len(s.Rows))
+	for r, l := range idx {
+		if r >= k {
+			break
+		}
+		codes[l] = int32(r + 1)
+	}
+	return codes
+}
+
+// PermuteClasses renumbers class slots: old slot c becomes slot pos[c].
+func (s *Stats) PermuteClasses(pos []int) {
+	if s.Task == Regression || len(pos) != s.Classes {
+		return
+	}
+	tmp := make([]uint32, s.Classes)
+	for i := 0; i < len(s.Rows)*s.Folds; i++ {
+		row := s.Cls[i*s.Classes : (i+1)*s.Classes]
+		for c, v := range row {
+			tmp[pos[c]] = v
+		}
+		copy(row, tmp)
+	}
+}
+
+// Rollup returns the statistics of parent levels, where the parent of a
+// level's bytes is given by parent (a prefix, say), and the parent slot of
+// every level slot. The null level's parent is the parent null level.
+func (s *Stats) Rollup(parent func([]byte) []byte) (*Stats, []int32) {
+	p := New(s.Task, s.Folds, s.Classes, 0)
+	of := make([]int32, len(s.Rows))
+	for l := range s.Rows {
+		d := 0
+		if l > 0 {
+			d = p.Level(parent(s.Bytes(l)))
+		}
+		of[l] = int32(d)
+		p.Rows[d] += s.Rows[l]
+		for f := 0; f < s.Folds; f++ {
+			i, j := d*s.Folds+f, l*s.Folds+f
+			p.Cnt[i] += s.Cnt[j]
+			if s.Task == Regression {
+				p.Sum[i] += s.Sum[j]
+				p.SumSq[i] += s.SumSq[j]
+				continue
+			}
+			for c := 0; c < s.Classes; c++ {
+				p.Cls[i*s.Classes+c] += s.Cls[j*s.Classes+c]
+			}
+		}
+	}
+	return p, of
+}

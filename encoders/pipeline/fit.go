@@ -1,0 +1,398 @@
+package pipeline
+
+import (
+	"errors"
+	"fmt"
+	"io"
+
+	"manyfold/encoders/colstats"
+	"manyfold/encoders/smooth"
+	"manyfold/io/table"
+)
+
+// Model is a fitted encoding job: the statistics of every column and the
+// values derived from them.
+type Model struct {
+	Spec    Spec
+	Input   []table.Field // the input columns as read at fit time
+	Task    colstats.Task
+	Classes []string // classification: labels in sorted order; the positive class is the last of two
+	Pos     int      // binary: slot of the positive class
+	Rows    int64    // rows fitted
+	Missing int64    // rows whose target was unknown (encoded, not counted)
+	Cols    []*Col
+}
+
+// Col is the fitted state of one encoded column.
+type Col struct {
+	Name  string
+	Kind  table.Kind
+	Index int // position in the input schema
+	St    *colstats.Stats
+	Keep  []bool // per slot: counted as seen (min-level-rows, nulls unseen)
+
+	// Derived from all fitting rows, per slot (and per output for TMean).
+	TMean [][]float64
+	Freq  []float64
+	TopK  []int32
+	Full  []colstats.Fitted // per output
+	// Per fold f and output o, the fit over the rows of the other folds.
+	FoldFit [][]colstats.Fitted
+
+	// Hierarchical prior (PriorPrefix): the parent levels and each slot's parent.
+	Parent   *Col
+	ParentOf []int32
+}
+
+// FitOptions carries what Fit needs beyond the Spec.
+type FitOptions struct {
+	File      string // for error messages
+	TotalRows int64  // rows in the table, when known (needed for --fold-by ordered)
+	Progress  func(rows int64)
+}
+
+// Fit reads every batch of r (the first pass) and gathers the statistics of
+// the spec's columns. It does not close r.
+func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
+	if err := sp.Validate(); err != nil {
+		return nil, err
+	}
+	schema := r.Schema()
+	m := &Model{Spec: sp, Input: append([]table.Field(nil), schema.Fields...)}
+	needTarget := sp.has(MethodTarget) || sp.FoldBy == "stratified"
+	tcol := -1
+	if sp.Target != "" {
+		tcol = schema.Index(sp.Target)
+		if tcol < 0 {
+			return nil, &ColumnError{File: opt.File, Flag: "--target", Name: sp.Target, Have: schema.Names()}
+		}
+	}
+	if !needTarget {
+		tcol = -1
+	}
+	gcol := -1
+	if g := sp.groupColumn(); g != "" {
+		gcol = schema.Index(g)
+		if gcol < 0 {
+			return nil, &ColumnError{File: opt.File, Flag: "--fold-by group", Name: g, Have: schema.Names()}
+		}
+	}
+	for _, name := range sp.Columns {
+		i := schema.Index(name)
+		if i < 0 {
+			return nil, &ColumnError{File: opt.File, Flag: "--columns", Name: name, Have: schema.Names()}
+		}
+		if i == tcol {
+			return nil, usageErr("column %q is the target; it cannot be encoded", name)
+		}
+		m.Cols = append(m.Cols, &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i})
+	}
+	if sp.FoldBy == "ordered" && sp.folds() > 1 && opt.TotalRows <= 0 {
+		return nil, errors.New("--fold-by ordered needs the row count of the input")
+	}
+
+	var tr *targetReader
+	regress := false
+	decided := false
+	if tcol >= 0 {
+		kind := schema.Fields[tcol].Kind
+		tr = &targetReader{file: opt.File, name: sp.Target, col: tcol, labels: map[string]int{},
+			numeric: kind == table.Int64 || kind == table.Float64, fixed: sp.Task != ""}
+		if sp.Task != "" {
+			t, _ := colstats.ParseTask(sp.Task)
+			regress = t == colstats.Regression
+			decided = true
+			if regress && kind == table.String {
+				// Text columns may still hold numbers (CSV); read them as such.
+				tr.numeric = true
+			}
+		}
+	}
+	fa := newFoldAssigner(&sp, gcol, opt.TotalRows)
+	slots := make([]levelSlots, len(m.Cols))
+	for i, c := range m.Cols {
+		slots[i] = levelSlots{col: c.Index, nullSlot: 0}
+	}
+
+	for {
+		b, err := r.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, err
+		}
+		if b.Rows == 0 {
+			continue
+		}
+		if !decided {
+			decided = true
+			if tr != nil {
+				regress = detectRegression(b, tcol, schema.Fields[tcol].Kind)
+			}
+		}
+		if m.Cols[0].St == nil {
+			task := colstats.Binary
+			if regress {
+				task = colstats.Regression
+			}
+			for _, c := range m.Cols {
+				c.St = colstats.New(task, sp.folds(), 0, 1024)
+			}
+		}
+		var cls []int32
+		var vals []float64
+		if tr != nil {
+			tr.regress = regress
+			if err := tr.read(b); err != nil {
+				return nil, err
+			}
+			cls, vals = tr.cls, tr.vals
+			if !regress {
+				if n := len(tr.order); n > m.Cols[0].St.Classes {
+					for _, c := range m.Cols {
+						c.St.AddClasses(n)
+					}
+				}
+			} else {
+				cls = nil
+			}
+		}
+		fold, err := fa.assign(b, cls)
+		if err != nil {
+			return nil, err
+		}
+		for ci, c := range m.Cols {
+			ls := slots[ci].fill(b, c.St, true)
+			st := c.St
+			switch {
+			case tr == nil:
+				for _, l := range ls {
+					st.AddRow(int(l))
+				}
+			case regress:
+				for i, l := range ls {
+					if y := vals[i]; y == y {
+						st.AddValue(int(l), int(fold[i]), y)
+					} else {
+						st.AddRow(int(l))
+					}
+				}
+			default:
+				for i, l := range ls {
+					if k := cls[i]; k >= 0 {
+						st.AddClass(int(l), int(fold[i]), int(k))
+					} else {
+						st.AddRow(int(l))
+					}
+				}
+			}
+		}
+		m.Rows += int64(b.Rows)
+		if opt.Progress != nil {
+			opt.Progress(m.Rows)
+		}
+	}
+	if m.Rows == 0 || m.Cols[0].St == nil {
+		return nil, &table.DataError{File: opt.File, Err: errors.New("the table has no rows")}
+	}
+	if tr != nil {
+		m.Missing = tr.missing
+		if m.Missing == m.Rows {
+			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: errors.New("target is null in every row")}
+		}
+	}
+	if sp.folds() > 1 && m.Rows < int64(sp.folds()) {
+		return nil, usageErr("--folds %d is more than the %d rows of %s", sp.folds(), m.Rows, opt.File)
+	}
+	switch {
+	case tr == nil:
+		m.Task = colstats.Binary // no target: only unsupervised methods
+	case regress:
+		m.Task = colstats.Regression
+	default:
+		labels, pos := sortedClasses(tr.order, tr.numeric)
+		m.Classes = labels
+		if len(labels) < 2 {
+			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: fmt.Errorf("target has a single class %q; there is nothing to learn", labels[0])}
+		}
+		for _, c := range m.Cols {
+			c.St.PermuteClasses(pos)
+		}
+		m.Task = colstats.Binary
+		if len(labels) > 2 {
+			m.Task = colstats.Multiclass
+		}
+		if sp.Task == "binary" && len(labels) > 2 {
+			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: fmt.Errorf("--task binary but the target has %d classes", len(labels))}
+		}
+		m.Pos = len(labels) - 1
+	}
+	for _, c := range m.Cols {
+		c.St.Task = m.Task
+		if sp.PriorPrefix > 0 && tr != nil {
+			n := sp.PriorPrefix
+			ps, of := c.St.Rollup(func(b []byte) []byte {
+				if len(b) > n {
+					return b[:n]
+				}
+				return b
+			})
+			c.Parent = &Col{Name: c.Name + " prefix", St: ps}
+			c.ParentOf = of
+		}
+	}
+	for _, c := range m.Cols {
+		m.derive(c, tr != nil)
+	}
+	return m, nil
+}
+
+// derive computes the seen flags and every value derived from the
+// statistics of c: full-data fits and encodings, per-fold fits, frequency
+// and top-k codes.
+func (m *Model) derive(c *Col, supervised bool) {
+	sp := &m.Spec
+	st := c.St
+	n := st.NumLevels()
+	c.Keep = make([]bool, n)
+	for l := 0; l < n; l++ {
+		c.Keep[l] = st.Rows[l] > 0 && st.Rows[l] >= sp.MinLevelRows
+	}
+	if sp.NullsUnseen {
+		c.Keep[0] = false
+	}
+	order := st.Sorted()
+	c.Freq = make([]float64, n)
+	total := float64(0)
+	for _, l := range order {
+		total += float64(st.Rows[l])
+	}
+	for l := 0; l < n; l++ {
+		if !c.Keep[l] {
+			continue
+		}
+		c.Freq[l] = float64(st.Rows[l])
+		if sp.FreqShare {
+			c.Freq[l] /= total
+		}
+	}
+	c.TopK = st.TopK(sp.TopK, sp.MinCount, c.Keep)
+	if !supervised {
+		return
+	}
+	if c.Parent != nil {
+		m.derive(c.Parent, true)
+	}
+	outs := st.Outputs()
+	var buf []smooth.LevelStats
+	c.Full = make([]colstats.Fitted, outs)
+	c.TMean = make([][]float64, outs)
+	for o := 0; o < outs; o++ {
+		c.Full[o], buf = st.Fit(o, -1, m.Pos, sp.Smoothing, c.Keep, order, buf)
+		c.TMean[o] = make([]float64, n)
+		for l := 0; l < n; l++ {
+			c.TMean[o][l] = m.value(c, l, c.parentOf(l), o, -1, c.Full[o])
+		}
+	}
+	if k := st.Folds; k > 1 {
+		c.FoldFit = make([][]colstats.Fitted, k)
+		for f := 0; f < k; f++ {
+			c.FoldFit[f] = make([]colstats.Fitted, outs)
+			for o := 0; o < outs; o++ {
+				c.FoldFit[f][o], buf = st.Fit(o, f, m.Pos, sp.Smoothing, c.Keep, nil, buf)
+			}
+		}
+	}
+}
+
+// value encodes level slot l (-1: unseen) for output o from the rows of all
+// folds but exclude, with fit ft. pl is the slot of the level's parent (-1:
+// unseen) when the column has a hierarchical prior. An unseen or left-out
+// level gets the prior: the global one, or its parent's value.
+func (m *Model) value(c *Col, l, pl, o, exclude int, ft colstats.Fitted) float64 {
+	if c.Parent != nil {
+		p := c.Parent
+		pft := p.Full[o]
+		if exclude >= 0 {
+			pft = p.FoldFit[exclude][o]
+		}
+		if pl < 0 || !p.Keep[pl] {
+			ft.Prior = pft.Prior
+		} else if exclude < 0 && p.TMean != nil {
+			ft.Prior = p.TMean[o][pl]
+		} else {
+			ft.Prior = pft.Encode(p.St.Target(pl, o, exclude, m.Pos))
+		}
+	}
+	if l < 0 || !c.Keep[l] {
+		return ft.Prior
+	}
+	return ft.Encode(c.St.Target(l, o, exclude, m.Pos))
+}
+
+// OutputNames returns the names of the encoded columns in output order.
+func (m *Model) OutputNames() []string {
+	var out []string
+	for _, c := range m.Cols {
+		for _, meth := range m.Spec.Methods {
+			switch meth {
+			case MethodTarget:
+				if m.Task == colstats.Multiclass {
+					for _, cl := range m.Classes {
+						out = append(out, c.Name+"_tmean_"+cl)
+					}
+				} else {
+					out = append(out, c.Name+"_tmean")
+				}
+			case MethodFreq:
+				out = append(out, c.Name+"_freq")
+			case MethodTopK:
+				out = append(out, c.Name+"_topk")
+			case MethodHash:
+				out = append(out, c.Name+"_hash")
+				if m.Spec.Signed {
+					out = append(out, c.Name+"_hash_sign")
+				}
+			}
+		}
+	}
+	return out
+}
+
+// Levels returns the number of distinct levels of column i seen in the fit,
+// the null level included when it has rows.
+func (m *Model) Levels(i int) int {
+	st := m.Cols[i].St
+	n := st.Levels.Len()
+	if st.Rows[0] > 0 {
+		n++
+	}
+	return n
+}
+
+// ColumnError reports a column named on the command line that the input
+// does not have, with the closest names it does have.
+type ColumnError struct {
+	File string
+	Flag string
+	Name string
+	Have []string
+}
+
+func (e *ColumnError) Error() string {
+	msg := fmt.Sprintf("%s: %s names column %q, which the file does not have", e.File, e.Flag, e.Name)
+	if near := Closest(e.Name, e.Have, 3); len(near) > 0 {
+		msg += "; closest: " + joinQuoted(near)
+	}
+	return msg
+}
+
+
+// parentOf returns the parent slot of slot l, or -1.
+func (c *Col) parentOf(l int) int {
+	if c.ParentOf == nil || l < 0 {
+		return -1
+	}
+	return int(c.ParentOf[l])
+}

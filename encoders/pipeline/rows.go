@@ -1,0 +1,297 @@
+package pipeline
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+	"strconv"
+
+	"manyfold/encoders/colstats"
+	"manyfold/folds"
+	"manyfold/io/table"
+)
+
+// levelSlots maps the rows of one column in a batch to level slots of a
+// Stats, caching the slot of each dictionary entry so that a dictionary
+// column is looked up once per entry, not once per row.
+type levelSlots struct {
+	col      int // position in the batch
+	prefix   int // >0: look up the first prefix bytes of each value
+	nullSlot int // slot of null rows: 0, or -1 when nulls are unseen
+	dictID   uint64
+	dictMap  []int32
+	scratch  []byte
+	slots    []int32
+}
+
+const unmapped = math.MinInt32
+
+// fill computes slots[i] for every row of the batch. With add, new levels
+// are added to st; otherwise an unseen level gets -1.
+func (ls *levelSlots) fill(b *table.Batch, st *colstats.Stats, add bool) []int32 {
+	c := &b.Cols[ls.col]
+	if cap(ls.slots) < b.Rows {
+		ls.slots = make([]int32, b.Rows)
+	}
+	slots := ls.slots[:b.Rows]
+	lookup := func(v []byte) int32 {
+		if ls.prefix > 0 && len(v) > ls.prefix {
+			v = v[:ls.prefix]
+		}
+		if add {
+			return int32(st.Level(v))
+		}
+		return int32(st.Lookup(v))
+	}
+	switch c.Form {
+	case table.FormDict:
+		if c.Dict.ID == 0 || c.Dict.ID != ls.dictID || len(ls.dictMap) != c.Dict.Len() {
+			ls.dictID = c.Dict.ID
+			n := c.Dict.Len()
+			if cap(ls.dictMap) < n {
+				ls.dictMap = make([]int32, n)
+			}
+			ls.dictMap = ls.dictMap[:n]
+			for i := range ls.dictMap {
+				ls.dictMap[i] = unmapped
+			}
+		}
+		for i := 0; i < b.Rows; i++ {
+			if c.IsNull(i) {
+				slots[i] = int32(ls.nullSlot)
+				continue
+			}
+			j := c.Indices[i]
+			s := ls.dictMap[j]
+			if s == unmapped {
+				s = lookup(c.Dict.Entry(int(j)))
+				ls.dictMap[j] = s
+			}
+			slots[i] = s
+		}
+	case table.FormText:
+		for i := 0; i < b.Rows; i++ {
+			if c.IsNull(i) {
+				slots[i] = int32(ls.nullSlot)
+				continue
+			}
+			slots[i] = lookup(c.Data[c.Offsets[i]:c.Offsets[i+1]])
+		}
+	default:
+		for i := 0; i < b.Rows; i++ {
+			if c.IsNull(i) {
+				slots[i] = int32(ls.nullSlot)
+				continue
+			}
+			ls.scratch = c.AppendText(ls.scratch[:0], i)
+			slots[i] = lookup(ls.scratch)
+		}
+	}
+	return slots
+}
+
+// targetReader turns the target column of a batch into class indices
+// (classification) or values (regression); missing targets are -1 or NaN.
+type targetReader struct {
+	file    string
+	name    string
+	col     int
+	numeric bool // the target column's kind is numeric: labels are canonical numbers
+	regress bool
+	labels  map[string]int
+	order   []string // class labels by index, in order of appearance
+	scratch []byte
+	cls     []int32
+	vals    []float64
+	missing int64
+	fixed   bool // task given by the user: do not switch
+}
+
+func (tr *targetReader) dataErr(b *table.Batch, i int, err error) error {
+	e := &table.DataError{File: tr.file, Row: b.FirstRow + int64(i), Column: tr.name, Err: err}
+	if b.Lines != nil {
+		e.Line = b.Lines[i]
+	}
+	return e
+}
+
+// read fills cls or vals for the batch's rows.
+func (tr *targetReader) read(b *table.Batch) error {
+	c := &b.Cols[tr.col]
+	n := b.Rows
+	if tr.regress {
+		if cap(tr.vals) < n {
+			tr.vals = make([]float64, n)
+		}
+		tr.vals = tr.vals[:n]
+		for i := 0; i < n; i++ {
+			v, ok, err := c.Float(i)
+			if err != nil {
+				return tr.dataErr(b, i, fmt.Errorf("target %v; a regression target must be numeric", err))
+			}
+			if !ok {
+				tr.vals[i] = math.NaN()
+				tr.missing++
+				continue
+			}
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return tr.dataErr(b, i, fmt.Errorf("target is %v; NaN and infinite targets are refused (leave the cell empty to mark it unknown)", v))
+			}
+			tr.vals[i] = v
+		}
+		return nil
+	}
+	if cap(tr.cls) < n {
+		tr.cls = make([]int32, n)
+	}
+	tr.cls = tr.cls[:n]
+	for i := 0; i < n; i++ {
+		if c.IsNull(i) {
+			tr.cls[i] = -1
+			tr.missing++
+			continue
+		}
+		var key []byte
+		if tr.numeric {
+			v, _, err := c.Float(i)
+			if err != nil {
+				return tr.dataErr(b, i, err)
+			}
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return tr.dataErr(b, i, fmt.Errorf("target is %v; NaN and infinite targets are refused (leave the cell empty to mark it unknown)", v))
+			}
+			tr.scratch = table.AppendFloat(tr.scratch[:0], v)
+			key = tr.scratch
+		} else {
+			tr.scratch = c.AppendText(tr.scratch[:0], i)
+			key = tr.scratch
+		}
+		k, ok := tr.labels[string(key)]
+		if !ok {
+			if len(tr.order) >= MaxClasses {
+				hint := ""
+				if tr.numeric && !tr.fixed {
+					hint = "; for a numeric target give --task regression"
+				}
+				return tr.dataErr(b, i, fmt.Errorf("target has more than %d classes%s", MaxClasses, hint))
+			}
+			k = len(tr.order)
+			tr.labels[string(key)] = k
+			tr.order = append(tr.order, string(key))
+		}
+		tr.cls[i] = int32(k)
+	}
+	return nil
+}
+
+// detectRegression decides the task from the first batch when the user did
+// not give one: a text target is a classification target; a numeric one is
+// regression unless all its values are integers with at most 10 distinct.
+func detectRegression(b *table.Batch, col int, kind table.Kind) bool {
+	if kind == table.String || kind == table.Bool {
+		return false
+	}
+	c := &b.Cols[col]
+	distinct := map[float64]bool{}
+	for i := 0; i < b.Rows; i++ {
+		v, ok, err := c.Float(i)
+		if err != nil {
+			return false // reported by the reader later
+		}
+		if !ok || math.IsNaN(v) || math.IsInf(v, 0) {
+			continue
+		}
+		if v != math.Trunc(v) {
+			return true
+		}
+		distinct[v] = true
+		if len(distinct) > 10 {
+			return true
+		}
+	}
+	return false
+}
+
+// sortedClasses returns the class labels in sorted order (numerically for
+// numeric targets, by bytes otherwise) and the permutation from appearance
+// index to sorted position.
+func sortedClasses(order []string, numeric bool) ([]string, []int) {
+	idx := make([]int, len(order))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.Slice(idx, func(a, b int) bool {
+		x, y := order[idx[a]], order[idx[b]]
+		if numeric {
+			fx, _ := strconv.ParseFloat(x, 64)
+			fy, _ := strconv.ParseFloat(y, 64)
+			return fx < fy
+		}
+		return bytes.Compare([]byte(x), []byte(y)) < 0
+	})
+	labels := make([]string, len(order))
+	pos := make([]int, len(order))
+	for p, i := range idx {
+		labels[p] = order[i]
+		pos[i] = p
+	}
+	return labels, pos
+}
+
+// foldAssigner gives the fold of each row of a batch.
+type foldAssigner struct {
+	spec     *Spec
+	k        int
+	groupCol int
+	total    int64 // rows in the table, for ordered blocks
+	strat    *folds.Stratifier
+	scratch  []byte
+	out      []int32
+}
+
+func newFoldAssigner(sp *Spec, groupCol int, total int64) *foldAssigner {
+	fa := &foldAssigner{spec: sp, k: sp.folds(), groupCol: groupCol, total: total}
+	if sp.FoldBy == "stratified" && fa.k > 1 {
+		fa.strat = folds.NewStratifier(sp.Seed, fa.k)
+	}
+	return fa
+}
+
+// assign fills the fold of every row. cls holds the class of each row for
+// stratified folds (-1: unknown target, assigned by row number).
+func (fa *foldAssigner) assign(b *table.Batch, cls []int32) ([]int32, error) {
+	if cap(fa.out) < b.Rows {
+		fa.out = make([]int32, b.Rows)
+	}
+	out := fa.out[:b.Rows]
+	if fa.k == 1 {
+		for i := range out {
+			out[i] = 0
+		}
+		return out, nil
+	}
+	for i := 0; i < b.Rows; i++ {
+		row := uint64(b.FirstRow - 1 + int64(i))
+		switch {
+		case fa.groupCol >= 0:
+			c := &b.Cols[fa.groupCol]
+			fa.scratch = c.AppendText(fa.scratch[:0], i)
+			if c.IsNull(i) {
+				fa.scratch = append(fa.scratch[:0], 0xff) // nulls form one group of their own
+			}
+			out[i] = int32(folds.Key(fa.spec.Seed, fa.scratch, fa.k))
+		case fa.strat != nil && cls != nil && cls[i] >= 0:
+			out[i] = int32(fa.strat.Next(int(cls[i])))
+		case fa.spec.FoldBy == "ordered":
+			if fa.total <= 0 {
+				return nil, errors.New("--fold-by ordered needs the row count")
+			}
+			out[i] = int32(folds.Block(row, uint64(fa.total), fa.k))
+		default:
+			out[i] = int32(folds.Row(fa.spec.Seed, row, fa.k))
+		}
+	}
+	return out, nil
+}

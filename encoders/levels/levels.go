@@ -6,8 +6,10 @@
 // level's id indexes a table of 64-bit arena offsets (the level ends where
 // the next begins); lookups go through an open-addressing table of 8-byte
 // slots, each holding a 32-bit tag taken from the level's hash and the
-// level's id, probed linearly from the hash's low bits and kept at most 3/4
-// full. The cost is about 19 to 30 bytes per level on top of the level's own
+// level's id, probed linearly from the hash's top bits and kept at most 3/4
+// full. As the home slot is drawn from the same top bits the tag keeps, the
+// table doubles without rereading the arena or hashing again (up to 2^32
+// slots), writing the new slots almost in order. The cost is about 19 to 30 bytes per level on top of the level's own
 // bytes (8 for the offset, 8/load for the slots, plus growth slack), against
 // roughly three times that for a map from strings. Offsets are 64-bit, so
 // the arena may grow past 4 GiB of level bytes; the only limit is memory and
@@ -33,6 +35,10 @@ const NoID uint32 = math.MaxUint32
 // levelLimit is MaxLevels; tests lower it to exercise the full-table path.
 var levelLimit uint64 = MaxLevels
 
+// tagShiftMin is the smallest shift at which rehash takes home slots from
+// the tags (log2(slots) <= 32); tests raise it to exercise the other path.
+var tagShiftMin uint = 32
+
 // minSlots is the smallest slot table.
 const minSlots = 8
 
@@ -40,7 +46,10 @@ const minSlots = 8
 func Hash(b []byte) uint64 { return xxhash.Sum64(b) }
 
 // slot is one entry of the open-addressing table: tag is the high 32 bits
-// of the level's hash, id1 its id plus one (0 marks an empty slot).
+// of the level's hash, id1 its id plus one (0 marks an empty slot). A
+// level's home slot is the top log2(len(slots)) bits of its hash, so levels
+// sharing a home also share that many tag bits: the tag then tells them apart
+// by its remaining bits (a false match costs one byte comparison, no error).
 type slot struct{ tag, id1 uint32 }
 
 // Table interns levels. The zero value is an empty table ready to use; New
@@ -51,7 +60,8 @@ type Table struct {
 	arena   []byte
 	offsets []uint64 // offsets[id] is where level id starts; one more entry than levels
 	slots   []slot   // power-of-two length
-	grow    int      // level count at which slots doubles
+	shift   uint     // 64 - log2(len(slots)): home slot of hash h is h >> shift
+	grow    int      // level count above which slots doubles
 }
 
 // New returns an empty Table sized for sizeHint levels without growing its
@@ -68,11 +78,13 @@ func (t *Table) init(sizeHint int) {
 	if sizeHint < 0 {
 		sizeHint = 0
 	}
-	n := minSlots
+	n, shift := minSlots, uint(64-3)
 	for n/4*3 < sizeHint {
 		n *= 2
+		shift--
 	}
 	t.slots = make([]slot, n)
+	t.shift = shift
 	t.grow = n / 4 * 3
 	t.offsets = make([]uint64, 1, sizeHint+1)
 }
@@ -111,7 +123,7 @@ func (t *Table) InternHash(b []byte, h uint64) uint32 {
 	}
 	mask := uint64(len(t.slots) - 1)
 	tag := uint32(h >> 32)
-	for i := h & mask; ; i = (i + 1) & mask {
+	for i := h >> t.shift; ; i = (i + 1) & mask {
 		s := t.slots[i]
 		if s.id1 == 0 {
 			n := uint64(len(t.offsets) - 1)
@@ -141,7 +153,7 @@ func (t *Table) Lookup(b []byte) (uint32, bool) {
 	h := Hash(b)
 	mask := uint64(len(t.slots) - 1)
 	tag := uint32(h >> 32)
-	for i := h & mask; ; i = (i + 1) & mask {
+	for i := h >> t.shift; ; i = (i + 1) & mask {
 		s := t.slots[i]
 		if s.id1 == 0 {
 			return 0, false
@@ -152,20 +164,36 @@ func (t *Table) Lookup(b []byte) (uint32, bool) {
 	}
 }
 
-// rehash doubles the slot table and places every level again, hashing its
-// bytes anew from the arena (slots keep only 32 bits of the hash).
+// rehash doubles the slot table and places every level again. Up to 2^32
+// slots a level's new home is the top bits of its tag, so the old slots are
+// moved in order without touching the arena; past that the bits below the
+// tag are needed and each level is hashed again from the arena.
 func (t *Table) rehash() {
 	slots := make([]slot, 2*len(t.slots))
+	shift := t.shift - 1
 	mask := uint64(len(slots) - 1)
-	for id := 0; id+1 < len(t.offsets); id++ {
-		h := Hash(t.arena[t.offsets[id]:t.offsets[id+1]])
-		i := h & mask
-		for slots[i].id1 != 0 {
-			i = (i + 1) & mask
+	if shift >= tagShiftMin {
+		for _, s := range t.slots {
+			if s.id1 == 0 {
+				continue
+			}
+			i := uint64(s.tag) >> (shift - 32)
+			for slots[i].id1 != 0 {
+				i = (i + 1) & mask
+			}
+			slots[i] = s
 		}
-		slots[i] = slot{tag: uint32(h >> 32), id1: uint32(id + 1)}
+	} else {
+		for id := 0; id+1 < len(t.offsets); id++ {
+			h := Hash(t.arena[t.offsets[id]:t.offsets[id+1]])
+			i := h >> shift
+			for slots[i].id1 != 0 {
+				i = (i + 1) & mask
+			}
+			slots[i] = slot{tag: uint32(h >> 32), id1: uint32(id + 1)}
+		}
 	}
-	t.slots = slots
+	t.slots, t.shift = slots, shift
 	t.grow = len(slots) / 4 * 3
 }
 

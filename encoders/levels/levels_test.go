@@ -164,6 +164,26 @@ func TestLevelAliasing(t *testing.T) {
 	}
 }
 
+// TestRehashFromArena runs the growth path that tables past 2^32 slots take
+// (hashing every level again from the arena) on a small table.
+func TestRehashFromArena(t *testing.T) {
+	defer func(old uint) { tagShiftMin = old }(tagShiftMin)
+	tagShiftMin = 64
+	tb := New(0)
+	ref := map[string]uint32{}
+	var order []string
+	for _, k := range randomKeys(20000, 9) {
+		if _, ok := ref[string(k)]; !ok {
+			ref[string(k)] = uint32(len(order))
+			order = append(order, string(k))
+		}
+		if got := tb.Intern(k); got != ref[string(k)] {
+			t.Fatalf("Intern(%q) = %d, want %d", k, got, ref[string(k)])
+		}
+	}
+	check(t, tb, ref, order)
+}
+
 func TestInternHash(t *testing.T) {
 	a, b := New(0), New(0)
 	for _, k := range randomKeys(5000, 3) {

@@ -1,0 +1,193 @@
+package csvio
+
+import (
+	"bufio"
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+
+	"manyfold/io/table"
+)
+
+// WriterOptions controls how NewWriter writes a CSV table.
+type WriterOptions struct {
+	// Delimiter separates fields: ',', ';', '\t' or '|'; 0 means ','.
+	Delimiter byte
+}
+
+// writer writes batches as CSV lines; see NewWriter.
+type writer struct {
+	bw      *bufio.Writer
+	delim   byte
+	ncols   int
+	special [256]bool // bytes that force quoting
+	row     []byte
+	closed  bool
+}
+
+// NewWriter writes the header line of schema to w and returns a writer for
+// the rows. Columns of any form are accepted: text as is, integers in
+// decimal, floats in the shortest form that reads back the same, booleans
+// as true and false; nulls as empty fields. Output is buffered; Close
+// flushes it but does not close w.
+func NewWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (table.Writer, error) {
+	d, err := checkDelimiter(opts.Delimiter)
+	if err != nil {
+		return nil, err
+	}
+	if schema == nil || len(schema.Fields) == 0 {
+		return nil, errors.New("csv output needs at least one column")
+	}
+	cw := &writer{bw: bufio.NewWriterSize(w, 1<<20), delim: d, ncols: len(schema.Fields)}
+	for _, b := range []byte{d, '"', '\r', '\n'} {
+		cw.special[b] = true
+	}
+	for i, f := range schema.Fields {
+		if i > 0 {
+			cw.row = append(cw.row, d)
+		}
+		cw.row = cw.appendField(cw.row, []byte(f.Name))
+	}
+	cw.row = append(cw.row, '\n')
+	if _, err := cw.bw.Write(cw.row); err != nil {
+		return nil, fmt.Errorf("writing csv header: %w", err)
+	}
+	return cw, nil
+}
+
+// needsQuotes reports whether a non-null text value must be quoted.
+func (w *writer) needsQuotes(v []byte) bool {
+	if len(v) == 0 {
+		return true // "" is the empty string; an empty field is null
+	}
+	if c := v[0]; c == ' ' || c == '\t' {
+		return true
+	}
+	if c := v[len(v)-1]; c == ' ' || c == '\t' {
+		return true
+	}
+	for _, c := range v {
+		if w.special[c] {
+			return true
+		}
+	}
+	return false
+}
+
+// appendField appends the text value v, quoted if needed.
+func (w *writer) appendField(dst, v []byte) []byte {
+	if !w.needsQuotes(v) {
+		return append(dst, v...)
+	}
+	dst = append(dst, '"')
+	for {
+		i := bytes.IndexByte(v, '"')
+		if i < 0 {
+			break
+		}
+		dst = append(dst, v[:i+1]...)
+		dst = append(dst, '"')
+		v = v[i+1:]
+	}
+	dst = append(dst, v...)
+	return append(dst, '"')
+}
+
+// Write appends the rows of b, one line each.
+func (w *writer) Write(b *table.Batch) error {
+	if w.closed {
+		return errors.New("csv writer: Write after Close")
+	}
+	if len(b.Cols) != w.ncols {
+		return fmt.Errorf("csv writer: batch has %d columns, the schema %d", len(b.Cols), w.ncols)
+	}
+	for j := range b.Cols {
+		if err := checkColumn(&b.Cols[j], b.Rows); err != nil {
+			return fmt.Errorf("csv writer: column %d: %w", j+1, err)
+		}
+	}
+	for i := 0; i < b.Rows; i++ {
+		row := w.row[:0]
+		for j := range b.Cols {
+			if j > 0 {
+				row = append(row, w.delim)
+			}
+			c := &b.Cols[j]
+			if c.IsNull(i) {
+				continue
+			}
+			switch c.Form {
+			case table.FormText, table.FormDict:
+				row = w.appendField(row, c.Bytes(i))
+			default:
+				row = c.AppendText(row, i)
+			}
+		}
+		row = append(row, '\n')
+		w.row = row
+		if _, err := w.bw.Write(row); err != nil {
+			return fmt.Errorf("writing csv: %w", err)
+		}
+	}
+	return nil
+}
+
+// checkColumn makes sure c holds rows values in its form, so that writing
+// cannot index out of range.
+func checkColumn(c *table.Column, rows int) error {
+	if c.Nulls != nil && len(c.Nulls) < rows {
+		return fmt.Errorf("%d null flags for %d rows", len(c.Nulls), rows)
+	}
+	n := c.Len()
+	switch c.Form {
+	case table.FormText:
+		if n < rows {
+			break
+		}
+		if last := c.Offsets[rows]; last < 0 || int(last) > len(c.Data) {
+			return fmt.Errorf("offset %d beyond %d data bytes", last, len(c.Data))
+		}
+		for i := 0; i < rows; i++ {
+			if c.Offsets[i] > c.Offsets[i+1] || c.Offsets[i] < 0 {
+				return fmt.Errorf("offsets decrease at row %d", i+1)
+			}
+		}
+		return nil
+	case table.FormDict:
+		if n < rows {
+			break
+		}
+		if c.Dict == nil {
+			return errors.New("dictionary form without a dictionary")
+		}
+		size := int32(c.Dict.Len())
+		for i := 0; i < rows; i++ {
+			if x := c.Indices[i]; (x < 0 || x >= size) && !c.IsNull(i) {
+				return fmt.Errorf("row %d: index %d outside a dictionary of %d entries", i+1, x, size)
+			}
+		}
+		return nil
+	case table.FormInt64, table.FormFloat64, table.FormBool:
+		if n < rows {
+			break
+		}
+		return nil
+	default:
+		return fmt.Errorf("unknown form %d", c.Form)
+	}
+	return fmt.Errorf("%d values for %d rows", n, rows)
+}
+
+// Close flushes the buffered output. It does not close the underlying
+// writer. Closing twice is harmless.
+func (w *writer) Close() error {
+	if w.closed {
+		return nil
+	}
+	w.closed = true
+	if err := w.bw.Flush(); err != nil {
+		return fmt.Errorf("writing csv: %w", err)
+	}
+	return nil
+}

@@ -1,0 +1,388 @@
+// Package pqio reads and writes Parquet files as manyfold tables.
+//
+// # Reading
+//
+// Open reads the footer of a Parquet file and exposes its flat columns as a
+// table.Schema. Only top-level primitive columns are read: a column nested
+// in a group, or a repeated column (a list or a map), is left out of the
+// schema, so the rest of the file stays usable. The physical and logical
+// types map to kinds as follows:
+//
+//   - BYTE_ARRAY (strings, enums, JSON, raw bytes) and FIXED_LEN_BYTE_ARRAY
+//     (their raw bytes) give text;
+//   - INT32 and INT64 give int, whatever their logical type: a date is its
+//     day number, a timestamp or time its integer count of units, a decimal
+//     its unscaled integer; an unsigned 32-bit integer keeps its value and an
+//     unsigned 64-bit integer keeps its bit pattern (values above 2^63-1
+//     come out negative);
+//   - the legacy INT96 timestamp gives int, nanoseconds since 1970-01-01;
+//   - FLOAT and DOUBLE give float;
+//   - BOOLEAN gives bool.
+//
+// The reader yields at most batchRows rows per batch, and a batch never
+// spans two row groups, so its memory is bounded by the row group size
+// rather than the file's. A text column whose pages in the batch are all
+// dictionary encoded comes as table.FormDict, with a Dict copied from the
+// column chunk's dictionary once per chunk and a non-zero ID unique to that
+// chunk; otherwise (PLAIN pages, or a chunk that fell back from dictionary
+// to PLAIN part way) the batch's text comes as table.FormText. Other
+// columns come as FormInt64, FormFloat64 or FormBool. Select restricts the
+// reader to some columns: the column chunks of the others are never read.
+//
+// Errors name the file, and the column where one is involved. A file whose
+// structure is broken (a truncated footer, a bad page, a dictionary index
+// out of range) gives an error wrapping table.ErrCorrupt; a panic inside the
+// Parquet decoder is turned into such an error.
+//
+// # Writing
+//
+// NewWriter writes a table in the order of its schema's fields, as optional
+// columns where the field is Nullable: text as dictionary-encoded UTF-8
+// BYTE_ARRAY, int as INT64, float as DOUBLE, bool as BOOLEAN. Row groups
+// hold WriterOptions.RowGroupRows rows; pages are compressed with Snappy by
+// default.
+package pqio
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"strconv"
+	"sync/atomic"
+
+	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/deprecated"
+	"github.com/parquet-go/parquet-go/format"
+
+	"manyfold/io/table"
+)
+
+// batchRows is the largest number of rows in a batch.
+const batchRows = 1 << 16
+
+// dictIDs hands out Dict IDs, unique across every reader in the process.
+var dictIDs atomic.Uint64
+
+// leaf describes one flat column of the file.
+type leaf struct {
+	name    string
+	kind    table.Kind
+	index   int // leaf column index in the file
+	maxDef  byte
+	phys    parquet.Kind
+	size    int  // FIXED_LEN_BYTE_ARRAY length
+	uint32s bool // INT32 holding unsigned values
+}
+
+// Reader reads a Parquet file as a table. It implements table.Reader.
+type Reader struct {
+	path     string
+	file     *os.File // nil when reading from an io.ReaderAt given by a test
+	pf       *parquet.File
+	leaves   []leaf // one per field of the full schema
+	full     table.Schema
+	schema   table.Schema
+	sel      []int
+	cols     []colReader
+	batch    table.Batch
+	started  bool
+	rg       int   // next row group to start
+	rgLeft   int64 // rows left in the current row group
+	nextRow  int64 // 1-based number of the next row
+	err      error // sticky error from Next
+	closed   bool
+	curIndex int // column being read, for panic messages
+}
+
+// Open opens the Parquet file at path and reads its footer.
+func Open(path string) (*Reader, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	st, err := f.Stat()
+	if err != nil {
+		f.Close()
+		return nil, err
+	}
+	r, err := openReaderAt(path, f, st.Size())
+	if err != nil {
+		f.Close()
+		return nil, err
+	}
+	r.file = f
+	return r, nil
+}
+
+// openReaderAt opens a Parquet file of the given size read through ra;
+// name is used in errors.
+func openReaderAt(name string, ra io.ReaderAt, size int64) (r *Reader, err error) {
+	if size == 0 {
+		return nil, fmt.Errorf("%s: %w", name, table.ErrEmpty)
+	}
+	defer func() {
+		if p := recover(); p != nil {
+			r, err = nil, fmt.Errorf("%s: %w: reading the footer: %v", name, table.ErrCorrupt, p)
+		}
+	}()
+	pf, err := parquet.OpenFile(ra, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true))
+	if err != nil {
+		if isIOError(err) {
+			return nil, fmt.Errorf("%s: %w", name, err)
+		}
+		return nil, fmt.Errorf("%s: %w: %w", name, table.ErrCorrupt, err)
+	}
+	r = &Reader{path: name, pf: pf}
+	if err := r.readSchema(); err != nil {
+		return nil, err
+	}
+	for _, rg := range pf.RowGroups() {
+		if n := len(rg.ColumnChunks()); n != len(pf.Schema().Columns()) {
+			return nil, fmt.Errorf("%s: %w: a row group has %d column chunks for %d columns",
+				name, table.ErrCorrupt, n, len(pf.Schema().Columns()))
+		}
+	}
+	all := make([]int, len(r.leaves))
+	for i := range all {
+		all[i] = i
+	}
+	r.setSelection(all)
+	return r, nil
+}
+
+// isIOError reports whether err comes from reading the file rather than
+// from its content.
+func isIOError(err error) bool {
+	var pe *fs.PathError
+	return errors.As(err, &pe)
+}
+
+// readSchema fills r.leaves and r.full from the file's schema.
+func (r *Reader) readSchema() error {
+	s := r.pf.Schema()
+	for _, path := range s.Columns() {
+		if len(path) != 1 {
+			continue // nested in a group
+		}
+		lc, ok := s.Lookup(path...)
+		if !ok || lc.MaxRepetitionLevel > 0 || lc.Node.Repeated() || !lc.Node.Leaf() {
+			continue // repeated (a list, a map)
+		}
+		if lc.MaxDefinitionLevel > 255 || lc.MaxDefinitionLevel < 0 {
+			return fmt.Errorf("%s: %w: column %q has definition level %d", r.path, table.ErrCorrupt, path[0], lc.MaxDefinitionLevel)
+		}
+		t := lc.Node.Type()
+		l := leaf{name: path[0], index: lc.ColumnIndex, maxDef: byte(lc.MaxDefinitionLevel), phys: t.Kind()}
+		switch l.phys {
+		case parquet.ByteArray:
+			l.kind = table.String
+		case parquet.FixedLenByteArray:
+			l.kind = table.String
+			l.size = t.Length()
+		case parquet.Int32:
+			l.kind = table.Int64
+			l.uint32s = isUnsigned(t)
+		case parquet.Int64, parquet.Int96:
+			l.kind = table.Int64
+		case parquet.Float, parquet.Double:
+			l.kind = table.Float64
+		case parquet.Boolean:
+			l.kind = table.Bool
+		default:
+			return fmt.Errorf("%s: column %q: unsupported physical type %v", r.path, path[0], l.phys)
+		}
+		r.leaves = append(r.leaves, l)
+		r.full.Fields = append(r.full.Fields, table.Field{Name: l.name, Kind: l.kind, Nullable: l.maxDef > 0})
+	}
+	if len(r.leaves) == 0 {
+		if n := len(s.Columns()); n > 0 {
+			return fmt.Errorf("%s: none of its %d columns is a flat primitive column (first: %q)",
+				r.path, n, joinPath(s.Columns()[0]))
+		}
+		return fmt.Errorf("%s: the file has no columns", r.path)
+	}
+	return nil
+}
+
+// isUnsigned reports whether an INT32 column holds unsigned integers.
+func isUnsigned(t parquet.Type) bool {
+	if lt := t.LogicalType(); lt != nil {
+		if it, ok := lt.Value.(*format.IntType); ok {
+			return !it.IsSigned
+		}
+	}
+	if ct := t.ConvertedType(); ct != nil {
+		switch *ct {
+		case deprecated.Uint8, deprecated.Uint16, deprecated.Uint32:
+			return true
+		}
+	}
+	return false
+}
+
+func joinPath(p []string) string {
+	s := ""
+	for i, e := range p {
+		if i > 0 {
+			s += "."
+		}
+		s += e
+	}
+	return s
+}
+
+// setSelection makes the columns at positions sel of the full schema the
+// ones read.
+func (r *Reader) setSelection(sel []int) {
+	r.sel = sel
+	r.schema.Fields = make([]table.Field, len(sel))
+	r.cols = make([]colReader, len(sel))
+	for i, c := range sel {
+		r.schema.Fields[i] = r.full.Fields[c]
+		r.cols[i].leaf = &r.leaves[c]
+	}
+	r.batch.Cols = make([]table.Column, len(sel))
+}
+
+// Schema returns the table's columns (after Select, the selected ones).
+func (r *Reader) Schema() *table.Schema { return &r.schema }
+
+// NumRows returns the number of rows that the file's footer records.
+func (r *Reader) NumRows() int64 { return r.pf.NumRows() }
+
+// Select restricts the reader to the columns at the given positions of the
+// full schema, in that order. It must be called before the first Next.
+func (r *Reader) Select(cols []int) error {
+	if r.started {
+		return fmt.Errorf("%s: Select called after Next", r.path)
+	}
+	seen := make(map[int]bool, len(cols))
+	for _, c := range cols {
+		if c < 0 || c >= len(r.full.Fields) {
+			return fmt.Errorf("%s: no column at position %d (the file has %d)", r.path, c, len(r.full.Fields))
+		}
+		if seen[c] {
+			return fmt.Errorf("%s: column %q selected twice", r.path, r.full.Fields[c].Name)
+		}
+		seen[c] = true
+	}
+	r.setSelection(append([]int(nil), cols...))
+	return nil
+}
+
+// Next returns the next batch of rows, or io.EOF after the last one.
+func (r *Reader) Next() (b *table.Batch, err error) {
+	if r.err != nil {
+		return nil, r.err
+	}
+	if r.closed {
+		return nil, fmt.Errorf("%s: reader is closed", r.path)
+	}
+	r.started = true
+	defer func() {
+		if p := recover(); p != nil {
+			name := "?"
+			if r.curIndex < len(r.cols) {
+				name = r.cols[r.curIndex].leaf.name
+			}
+			b, err = nil, fmt.Errorf("%s: column %q: %w: %v", r.path, name, table.ErrCorrupt, p)
+		}
+		if err != nil && err != io.EOF {
+			r.err = err
+			r.closePages()
+		}
+	}()
+	for r.rgLeft == 0 {
+		if err := r.endRowGroup(); err != nil {
+			return nil, err
+		}
+		rgs := r.pf.RowGroups()
+		if r.rg >= len(rgs) {
+			return nil, io.EOF
+		}
+		rg := rgs[r.rg]
+		r.rg++
+		r.rgLeft = rg.NumRows()
+		if r.rgLeft < 0 {
+			return nil, fmt.Errorf("%s: %w: row group %d has %d rows", r.path, table.ErrCorrupt, r.rg, r.rgLeft)
+		}
+		if r.rgLeft == 0 {
+			continue
+		}
+		chunks := rg.ColumnChunks()
+		for i := range r.cols {
+			c := &r.cols[i]
+			c.startChunk(chunks[c.leaf.index].Pages())
+		}
+	}
+	n := int(min(r.rgLeft, batchRows))
+	if len(r.cols) == 0 {
+		// No column selected: rows are still counted.
+		r.rgLeft -= int64(n)
+		r.batch.Rows, r.batch.FirstRow = n, r.nextRow+1
+		r.nextRow += int64(n)
+		return &r.batch, nil
+	}
+	for i := range r.cols {
+		r.curIndex = i
+		c := &r.cols[i]
+		if err := c.fill(n, &r.batch.Cols[i]); err != nil {
+			return nil, r.columnError(c, err)
+		}
+	}
+	r.rgLeft -= int64(n)
+	r.batch.Rows = n
+	r.batch.FirstRow = r.nextRow + 1
+	r.nextRow += int64(n)
+	return &r.batch, nil
+}
+
+// columnError wraps an error met while reading column c.
+func (r *Reader) columnError(c *colReader, err error) error {
+	where := "row group " + strconv.Itoa(r.rg)
+	if errors.Is(err, table.ErrCorrupt) || isIOError(err) {
+		return fmt.Errorf("%s: column %q: %s: %w", r.path, c.leaf.name, where, err)
+	}
+	return fmt.Errorf("%s: column %q: %s: %w: %w", r.path, c.leaf.name, where, table.ErrCorrupt, err)
+}
+
+// endRowGroup checks that the columns of the finished row group hold no
+// more rows than the footer says, and releases their pages.
+func (r *Reader) endRowGroup() error {
+	for i := range r.cols {
+		c := &r.cols[i]
+		if c.pages == nil {
+			continue
+		}
+		extra := c.page != nil && c.pos < c.rows
+		c.closePages()
+		if extra {
+			return fmt.Errorf("%s: column %q: row group %d: %w: more rows than the footer records",
+				r.path, c.leaf.name, r.rg, table.ErrCorrupt)
+		}
+	}
+	return nil
+}
+
+func (r *Reader) closePages() {
+	for i := range r.cols {
+		r.cols[i].closePages()
+	}
+}
+
+// Close releases the reader's pages and closes the file.
+func (r *Reader) Close() error {
+	if r.closed {
+		return nil
+	}
+	r.closed = true
+	r.closePages()
+	if r.file != nil {
+		return r.file.Close()
+	}
+	return nil
+}
+
+var _ table.Reader = (*Reader)(nil)

@@ -316,12 +316,12 @@ func (g *generator) fill(first int64, n int) {
 		tys.Offsets = append(tys.Offsets, int32(len(tys.Data)))
 
 		// Weight, rounded to grams.
-		w := math.Exp(nw.typeMu[t] + pt.logS*gauss4(st.next()))
-		w = math.Max(1, math.Round(w*weightDecis)) / weightDecis
+		lw := nw.typeMu[t] + pt.logS*gauss4(st.next())
+		w := math.Max(1, math.Round(math.Exp(lw)*weightDecis)) / weightDecis
 		weights = append(weights, w)
 
 		// Late delivery.
-		logit := lateIntercept + pcLate + acLate + nw.routeLate[route] + pt.late + lateWeightCoef*math.Log1p(w)
+		logit := lateIntercept + pcLate + acLate + nw.routeLate[route] + pt.late + lateWeightCoef*lw
 		late := int64(0)
 		if unit53(st.next()) < 1/(1+math.Exp(-logit)) {
 			late = 1

@@ -314,7 +314,7 @@ func collect(t *testing.T, cfg Config, keepIDs bool) *stats {
 // formula).
 func expectedDistinct(z *zipf, n int64) float64 {
 	e := 0.0
-	for i := range z.n() {
+	for i := range z.ranks() {
 		e += -math.Expm1(float64(n) * math.Log1p(-z.prob(i)))
 	}
 	return e
@@ -451,7 +451,7 @@ func TestUnseenPoolsDisjoint(t *testing.T) {
 	for _, pcs := range []int{1, 40, 2000, 40000, 60000} {
 		nw := newNetwork(5, pcs, 1000)
 		seen := map[string]bool{}
-		for i := range nw.pcTrain.sampler.n() {
+		for i := range nw.pcTrain.sampler.ranks() {
 			seen[string(nw.pcTrain.codes[5*i:5*i+5])] = true
 		}
 		if len(seen) != pcs {
@@ -497,7 +497,7 @@ func TestLateDependsOnPostcode(t *testing.T) {
 	nw := newNetwork(cfg.Seed, DefaultPostcodes, DefaultAccounts)
 	effect := map[string]float64{}
 	prefixEffect := map[string]float64{}
-	for i := range nw.pcTrain.sampler.n() {
+	for i := range nw.pcTrain.sampler.ranks() {
 		code := string(nw.pcTrain.codes[5*i : 5*i+5])
 		effect[code] = nw.pcTrain.late[i]
 		// The prefix effect is shared by the prefix's postcodes; recover it

@@ -5,51 +5,74 @@ import (
 	"math/bits"
 )
 
-// zipf samples ranks 0..n-1 with probability proportional to (rank+1)^-s
-// by inverse CDF: cum holds the cumulative probabilities as 63-bit
-// thresholds, and a guide table indexed by the top bits of the uniform word
-// gives the first rank whose threshold can exceed it, so a draw costs one
-// guide lookup and on average about one threshold comparison.
+// zipf samples ranks 0..n-1 with probability proportional to (rank+1)^-s.
+//
+// The head, the first min(n, headRanks) ranks, is sampled by inverse CDF:
+// cum holds the cumulative probabilities as 63-bit thresholds and a guide
+// table indexed by the top bits of the uniform word gives the first rank
+// whose threshold can exceed it, so a draw costs one guide lookup and about
+// one comparison, in tables small enough to stay in cache. A word beyond
+// the head's mass selects the tail, sampled by rejection-inversion
+// (Hörmann and Derflinger, "Rejection-inversion to generate variates from
+// monotone discrete distributions", ACM TOMACS 6(3), 1996): a continuous
+// hat whose integral H inverts in closed form, rejecting the part of each
+// unit interval above the point mass. The tail needs no table, so memory
+// does not grow with the number of ranks beyond the O(n) setup pass.
 type zipf struct {
-	cum   []uint64 // cum[i]: P(rank <= i) * 2^63; cum[n-1] = 2^63
-	guide []int32  // guide[t]: the smallest i with cum[i] > t << shift
+	cum   []uint64 // cum[i]: P(rank <= i) * 2^63 for the head ranks
+	guide []int32  // guide[t]: the smallest i with cum[i] > t << shift, or len(cum)
 	shift uint
+	head  uint64 // P(rank < len(cum)) * 2^63; 2^63 when there is no tail
+
+	// Tail: 1-based ranks k0..n drawn with u uniform on [hLo, hHi].
+	s, oneMinusS float64
+	k0, n        int
+	hLo, hHi     float64
+	total        float64 // sum of (rank+1)^-s over all ranks
 }
+
+// headRanks bounds the table part of a sampler.
+const headRanks = 1 << 15
 
 // one63 is 2^63, the scale of the thresholds.
 const one63 = 1 << 63
 
 // newZipf builds the sampler for n ≥ 1 ranks and exponent s ≥ 0.
-func newZipf(n int, s float64) *zipf {
-	w := make([]float64, n)
-	total := 0.0
-	for i := range w {
-		w[i] = math.Pow(float64(i+1), -s)
-		total += w[i]
+func newZipf(n int, s float64) *zipf { return newZipfHead(n, s, headRanks) }
+
+// newZipfHead builds the sampler with at most maxHead ≥ 1 table ranks.
+func newZipfHead(n int, s float64, maxHead int) *zipf {
+	z := &zipf{s: s, oneMinusS: 1 - s, n: n}
+	for i := n - 1; i >= 0; i-- { // smallest terms first
+		z.total += z.weight(i)
 	}
-	z := &zipf{cum: make([]uint64, n)}
+	nh := min(n, maxHead)
+	z.cum = make([]uint64, nh)
 	acc := 0.0
-	for i := range w {
-		acc += w[i]
-		c := uint64(acc / total * one63)
-		if c > one63 || i == n-1 {
-			c = one63
-		}
+	for i := range nh {
+		acc += z.weight(i)
+		c := uint64(min(acc/z.total, 1) * one63)
 		if i > 0 && c < z.cum[i-1] {
 			c = z.cum[i-1]
 		}
 		z.cum[i] = c
 	}
-	// A guide of about n entries (a power of two between 2^8 and 2^20)
-	// keeps the expected scan near one step.
-	gbits := bits.Len(uint(n))
-	gbits = max(8, min(gbits, 20))
+	if nh == n {
+		z.cum[n-1] = one63
+	}
+	z.head = z.cum[nh-1]
+	z.k0 = nh + 1
+	z.hLo, z.hHi = z.bigH(float64(z.k0)-0.5), z.bigH(float64(n)+0.5)
+
+	// A guide of about as many entries as head ranks (a power of two
+	// between 2^8 and 2^16) keeps the expected scan near one step.
+	gbits := max(8, min(bits.Len(uint(nh)), 16))
 	z.shift = uint(63 - gbits)
 	z.guide = make([]int32, 1<<gbits)
 	i := 0
 	for t := range z.guide {
 		lo := uint64(t) << z.shift
-		for z.cum[i] <= lo {
+		for i < nh && z.cum[i] <= lo {
 			i++
 		}
 		z.guide[t] = int32(i)
@@ -57,25 +80,62 @@ func newZipf(n int, s float64) *zipf {
 	return z
 }
 
-// n returns the number of ranks.
-func (z *zipf) n() int { return len(z.cum) }
+// weight returns the unnormalised probability of rank i.
+func (z *zipf) weight(i int) float64 { return math.Pow(float64(i+1), -z.s) }
 
-// prob returns the probability of rank i as the sampler realises it.
-func (z *zipf) prob(i int) float64 {
-	lo := uint64(0)
-	if i > 0 {
-		lo = z.cum[i-1]
+// bigH is the integral of x^-s from 1 to x: (x^(1-s) - 1)/(1-s), or
+// log(x) when s is 1.
+func (z *zipf) bigH(x float64) float64 {
+	lx := math.Log(x)
+	if math.Abs(z.oneMinusS) < 1e-12 {
+		return lx
 	}
-	return float64(z.cum[i]-lo) / one63
+	return math.Expm1(z.oneMinusS*lx) / z.oneMinusS
 }
+
+// bigHInv is the inverse of bigH.
+func (z *zipf) bigHInv(y float64) float64 {
+	if math.Abs(z.oneMinusS) < 1e-12 {
+		return math.Exp(y)
+	}
+	return math.Exp(math.Log1p(z.oneMinusS*y) / z.oneMinusS)
+}
+
+// ranks returns the number of ranks.
+func (z *zipf) ranks() int { return z.n }
+
+// prob returns the probability of rank i.
+func (z *zipf) prob(i int) float64 { return z.weight(i) / z.total }
 
 // sample maps a uniform 64-bit word to a rank.
 func (z *zipf) sample(h uint64) int {
 	u := h >> 1
+	if u >= z.head {
+		return z.sampleTail(h)
+	}
 	i := int(z.guide[u>>z.shift])
 	cum := z.cum
 	for cum[i] <= u {
 		i++
 	}
 	return i
+}
+
+// sampleTail draws a rank of the tail by rejection-inversion, taking its
+// uniforms from a generator seeded with h. For a convex decreasing mass
+// function the hat area of rank k, H(k+1/2) - H(k-1/2), is at least the
+// mass k^-s (the midpoint of a convex function lies below its mean), so
+// accepting u only in the last k^-s of that interval is exact.
+func (z *zipf) sampleTail(h uint64) int {
+	st := stream{h}
+	for {
+		u := z.hLo + unit53(st.next())*(z.hHi-z.hLo)
+		x := z.bigHInv(u)
+		k := int(x + 0.5)
+		k = max(z.k0, min(k, z.n))
+		fk := float64(k)
+		if u >= z.bigH(fk+0.5)-math.Exp(-z.s*math.Log(fk)) {
+			return k - 1
+		}
+	}
 }

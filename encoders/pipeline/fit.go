@@ -388,7 +388,6 @@ func (e *ColumnError) Error() string {
 	return msg
 }
 
-
 // parentOf returns the parent slot of slot l, or -1.
 func (c *Col) parentOf(l int) int {
 	if c.ParentOf == nil || l < 0 {

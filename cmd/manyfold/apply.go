@@ -1,0 +1,96 @@
+package main
+
+import (
+	"fmt"
+	"os"
+	"time"
+
+	"manyfold/encoders/pipeline"
+	"manyfold/io/pqio"
+	"manyfold/io/tableio"
+)
+
+const applyUsage = `Usage: manyfold apply FILE --tables DIR --out OUT [flags]
+
+Encodes FILE with the mapping tables that "manyfold encode" saved in DIR,
+exactly as encode would encode a new row: the target mean fitted on all
+training rows, and for a level the tables do not hold (unseen, or left out
+by --min-level-rows) the prior (or its parent's value with a hierarchical
+prior), the top-k "other" code 0, frequency 0, and its hash bucket.
+All input columns are written back, then the encoded columns.
+`
+
+func runApply(args []string) error {
+	fs := newFlags("apply", applyUsage)
+	var in inputFlags
+	in.add(fs)
+	tables := fs.String("tables", "", "directory of mapping tables written by manyfold encode")
+	out := fs.String("out", "", "encoded table: .parquet, .csv or .arrow")
+	format := fs.String("format", "", "output format, overriding the extension: parquet, csv, arrow")
+	compression := fs.String("compression", "snappy", "Parquet output compression: snappy, zstd, none")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() != 1 {
+		return usagef("apply takes one input file (see manyfold apply --help)")
+	}
+	if *tables == "" || *out == "" {
+		return usagef("apply needs --tables and --out")
+	}
+	file := fs.Arg(0)
+	if file != "-" && sameFile(file, *out) {
+		return usagef("--out %s is the input file; choose another path", *out)
+	}
+	start := time.Now()
+	m, err := pipeline.LoadTables(*tables)
+	if err != nil {
+		return err
+	}
+	ropts, err := in.options()
+	if err != nil {
+		return err
+	}
+	r, err := tableio.Open(file, ropts)
+	if err != nil {
+		return err
+	}
+	defer r.Close()
+	name := file
+	if file == "-" {
+		name = "stdin"
+	}
+	if err := m.CheckInput(name, r.Schema(), *tables); err != nil {
+		return err
+	}
+	schema, _, _, err := m.OutputSchema(r.Schema(), true)
+	if err != nil {
+		return err
+	}
+	w, err := tableio.Create(*out, schema, tableio.WriteOptions{Format: tableio.Format(*format), Parquet: pqio.WriterOptions{Compression: *compression}})
+	if err != nil {
+		return &outputError{err}
+	}
+	pr := newProgress("apply")
+	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Apply: true, Progress: pr.update})
+	pr.done()
+	if err != nil {
+		w.Abort()
+		return err
+	}
+	if err := w.Commit(); err != nil {
+		return &outputError{err}
+	}
+	fmt.Fprintf(os.Stderr, "applied %s to %d rows in %.1fs;", *tables, sum.Rows, time.Since(start).Seconds())
+	for i, c := range m.Cols {
+		share := 0.0
+		if sum.Rows > 0 {
+			share = float64(sum.Unseen[i]) / float64(sum.Rows)
+		}
+		fmt.Fprintf(os.Stderr, " %s %.1f%% unseen", c.Name, 100*share)
+		if i < len(m.Cols)-1 {
+			fmt.Fprint(os.Stderr, ",")
+		}
+	}
+	fmt.Fprintf(os.Stderr, "; wrote %s\n", *out)
+	return nil
+}

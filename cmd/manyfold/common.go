@@ -1,0 +1,169 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"os"
+	"strings"
+	"time"
+
+	"github.com/spf13/pflag"
+
+	"manyfold/encoders/pipeline"
+	"manyfold/io/csvio"
+	"manyfold/io/table"
+	"manyfold/io/tableio"
+)
+
+// newFlags returns a flag set that reports errors instead of exiting and
+// prints the command's usage text for --help.
+func newFlags(name, text string) *pflag.FlagSet {
+	fs := pflag.NewFlagSet(name, pflag.ContinueOnError)
+	fs.SortFlags = false
+	fs.Usage = func() {
+		fmt.Fprint(os.Stdout, text)
+		fmt.Fprintln(os.Stdout, "\nFlags:")
+		fmt.Fprint(os.Stdout, fs.FlagUsages())
+	}
+	fs.SetOutput(io.Discard)
+	return fs
+}
+
+// parseFlags parses args, printing the usage on --help and turning other
+// flag errors into usage errors.
+func parseFlags(fs *pflag.FlagSet, args []string) error {
+	if err := fs.Parse(args); err != nil {
+		if err == pflag.ErrHelp {
+			fs.Usage()
+			return err
+		}
+		return usagef("%v (see manyfold %s --help)", err, fs.Name())
+	}
+	return nil
+}
+
+// inputFlags are the flags that say how to read CSV input.
+type inputFlags struct {
+	delim    string
+	noHeader bool
+	types    []string
+}
+
+func (f *inputFlags) add(fs *pflag.FlagSet) {
+	fs.StringVar(&f.delim, "delimiter", ",", "CSV field delimiter: , ; tab or |")
+	fs.BoolVar(&f.noHeader, "no-header", false, "CSV input has no header row; columns are named col1, col2, ...")
+	fs.StringSliceVar(&f.types, "type", nil, "override an inferred CSV column type, COL=text|int|float|bool (repeatable)")
+}
+
+func (f *inputFlags) options() (tableio.ReadOptions, error) {
+	var o csvio.Options
+	switch f.delim {
+	case ",", "comma":
+		o.Delimiter = ','
+	case ";", "semicolon":
+		o.Delimiter = ';'
+	case "tab", "\\t", "\t":
+		o.Delimiter = '\t'
+	case "|", "pipe":
+		o.Delimiter = '|'
+	default:
+		return tableio.ReadOptions{}, usagef("--delimiter %q: want , ; tab or |", f.delim)
+	}
+	o.NoHeader = f.noHeader
+	for _, t := range f.types {
+		name, kind, ok := strings.Cut(t, "=")
+		if !ok {
+			return tableio.ReadOptions{}, usagef("--type %q: want COL=text|int|float|bool", t)
+		}
+		k, err := table.ParseKind(kind)
+		if err != nil {
+			return tableio.ReadOptions{}, usagef("--type %s: %v", t, err)
+		}
+		if o.Types == nil {
+			o.Types = map[string]table.Kind{}
+		}
+		o.Types[name] = k
+	}
+	return tableio.ReadOptions{CSV: o}, nil
+}
+
+// selectColumns checks that every name exists in the schema and returns
+// their positions; a missing name is a ColumnError listing close names.
+func selectColumns(file, flag string, s *table.Schema, names []string) ([]int, error) {
+	var idx []int
+	for _, n := range names {
+		i := s.Index(n)
+		if i < 0 {
+			return nil, &pipeline.ColumnError{File: file, Flag: flag, Name: n, Have: s.Names()}
+		}
+		idx = append(idx, i)
+	}
+	return idx, nil
+}
+
+// spool copies standard input to a temporary file so that it can be read
+// twice, and returns its path and a function that removes it.
+func spool(path string) (string, func(), error) {
+	if path != "-" {
+		return path, func() {}, nil
+	}
+	f, err := os.CreateTemp("", "manyfold-stdin-*")
+	if err != nil {
+		return "", nil, err
+	}
+	if _, err := io.Copy(f, os.Stdin); err != nil {
+		f.Close()
+		os.Remove(f.Name())
+		return "", nil, fmt.Errorf("stdin: %w", err)
+	}
+	if err := f.Close(); err != nil {
+		os.Remove(f.Name())
+		return "", nil, err
+	}
+	return f.Name(), func() { os.Remove(f.Name()) }, nil
+}
+
+// progress prints a rows-read line on standard error when it is a
+// terminal, at most ten times a second, and nothing otherwise.
+type progress struct {
+	label string
+	on    bool
+	last  time.Time
+	start time.Time
+}
+
+func newProgress(label string) *progress {
+	p := &progress{label: label, start: time.Now()}
+	if fi, err := os.Stderr.Stat(); err == nil && fi.Mode()&os.ModeCharDevice != 0 && os.Getenv("TERM") != "dumb" {
+		p.on = true
+	}
+	return p
+}
+
+func (p *progress) update(rows int64) {
+	if !p.on || time.Since(p.last) < 100*time.Millisecond {
+		return
+	}
+	p.last = time.Now()
+	rate := float64(rows) / time.Since(p.start).Seconds()
+	fmt.Fprintf(os.Stderr, "\r%s: %d rows (%.1f M rows/s)   ", p.label, rows, rate/1e6)
+}
+
+func (p *progress) done() {
+	if p.on && !p.last.IsZero() {
+		fmt.Fprint(os.Stderr, "\r\033[K")
+	}
+}
+
+// sameFile reports whether two paths name the same existing file.
+func sameFile(a, b string) bool {
+	fa, err := os.Stat(a)
+	if err != nil {
+		return false
+	}
+	fb, err := os.Stat(b)
+	if err != nil {
+		return false
+	}
+	return os.SameFile(fa, fb)
+}

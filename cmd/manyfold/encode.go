@@ -1,0 +1,221 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"os"
+	"strconv"
+	"strings"
+	"time"
+
+	"manyfold/encoders/pipeline"
+	"manyfold/io/pqio"
+	"manyfold/io/tableio"
+)
+
+const encodeUsage = `Usage: manyfold encode FILE --columns a,b,c --out OUT --tables DIR [flags]
+
+Fits encodings of the categorical columns in one pass over FILE, then writes
+FILE again in a second pass with the encoded columns appended, and saves the
+fitted mapping tables in DIR so that "manyfold apply" encodes new data the same
+way. Training rows get target statistics out of fold (--scheme kfold): a row
+never sees its own label.
+
+Encoded columns: <col>_tmean (smoothed target mean; <col>_tmean_<class> for a
+multi-class target), <col>_freq, <col>_topk (1..k, 0 = other), <col>_hash
+(and <col>_hash_sign with --signed).
+
+Schemes: kfold (default) uses the statistics of the other folds, prior
+included; loo leaves the row's own label out, which still leaks on binary
+targets (a level's encoded values then separate its positive and negative
+rows by one threshold; Prokhorenkova et al., NeurIPS 2018): prefer kfold;
+ordered uses only the rows before it in file order (for time-ordered files);
+none is in-sample, for tables that only serve apply.
+
+Frequency and top-k are fitted on all rows of FILE (they do not use the
+target). Rows whose target is empty are encoded but not counted.
+`
+
+func runEncode(args []string) error {
+	fs := newFlags("encode", encodeUsage)
+	var in inputFlags
+	in.add(fs)
+	sp := pipeline.DefaultSpec()
+	target := fs.String("target", "", "target column (needed by the target method)")
+	columns := fs.StringSlice("columns", nil, "categorical columns to encode, comma separated")
+	methods := fs.StringSlice("methods", []string{"target"}, "encoders: target, freq, topk, hash")
+	task := fs.String("task", "", "binary, multiclass or regression (default: detected from the target)")
+	fs.IntVar(&sp.Folds, "folds", 5, "folds for out-of-fold statistics")
+	fs.StringVar(&sp.FoldBy, "fold-by", "rows", "fold assignment: rows, stratified, group=COL, ordered (contiguous blocks)")
+	fs.Uint64Var(&sp.Seed, "seed", 0, "seed of the fold assignment")
+	fs.StringVar(&sp.Scheme, "scheme", "kfold", "training rows: kfold, loo, ordered, none")
+	smoothing := fs.String("smoothing", "auto", "auto (empirical Bayes), m=NUM (m-estimate) or blend=K,F (sigmoid blend)")
+	priorBy := fs.String("prior-by", "", "hierarchical prior: prefix=N (the level's first N characters)")
+	fs.StringVar(&sp.Output, "output", "rate", "target mean as rate, or logodds (binary targets)")
+	freq := fs.String("freq", "count", "frequency as count or share of the rows")
+	fs.IntVar(&sp.TopK, "top-k", 100, "top-k: number of levels that get their own code")
+	fs.Uint64Var(&sp.MinCount, "min-count", 1, "top-k: a level needs at least this many rows for a code")
+	fs.Uint64Var(&sp.Buckets, "buckets", 1024, "hash: number of buckets")
+	fs.Uint64Var(&sp.HashSeed, "hash-seed", 0, "hash: XXH64 seed")
+	fs.BoolVar(&sp.Signed, "signed", false, "hash: add the sign column from the hash's top bit")
+	fs.Uint64Var(&sp.MinLevelRows, "min-level-rows", 0, "levels with fewer rows are left out of the tables and treated as unseen")
+	nulls := fs.String("nulls", "level", "nulls as a level of their own (level) or as unseen")
+	keep := fs.String("keep", "all", "input columns written back: all, none, or a comma-separated list")
+	fs.StringVar(&sp.FoldColumn, "fold-column", "", "also write each row's fold under this name")
+	out := fs.String("out", "", "encoded table: .parquet, .csv or .arrow")
+	tables := fs.String("tables", "", "directory for the mapping tables")
+	format := fs.String("format", "", "output format, overriding the extension: parquet, csv, arrow")
+	compression := fs.String("compression", "snappy", "Parquet output compression: snappy, zstd, none")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() != 1 {
+		return usagef("encode takes one input file (see manyfold encode --help)")
+	}
+	file := fs.Arg(0)
+	if *out == "" || *tables == "" {
+		return usagef("encode needs --out and --tables")
+	}
+	sp.Target, sp.Columns, sp.Methods, sp.Task = *target, *columns, *methods, *task
+	var err error
+	if sp.Smoothing, err = pipeline.ParseSmoothing(*smoothing); err != nil {
+		return usagef("%v", err)
+	}
+	if *priorBy != "" {
+		v, ok := strings.CutPrefix(*priorBy, "prefix=")
+		n, perr := strconv.Atoi(v)
+		if !ok || perr != nil || n < 1 {
+			return usagef("--prior-by %q: want prefix=N with N >= 1", *priorBy)
+		}
+		sp.PriorPrefix = n
+		if sp.Scheme != "kfold" && sp.Scheme != "none" {
+			return usagef("--prior-by works with --scheme kfold or none")
+		}
+	}
+	switch *freq {
+	case "count":
+	case "share":
+		sp.FreqShare = true
+	default:
+		return usagef("--freq %q: want count or share", *freq)
+	}
+	switch *nulls {
+	case "level":
+	case "unseen":
+		sp.NullsUnseen = true
+	default:
+		return usagef("--nulls %q: want level or unseen", *nulls)
+	}
+	switch *keep {
+	case "all":
+	case "none":
+		sp.KeepAll = false
+	default:
+		sp.KeepAll = false
+		sp.Keep = strings.Split(*keep, ",")
+	}
+	if file != "-" && sameFile(file, *out) {
+		return usagef("--out %s is the input file; choose another path", *out)
+	}
+	ropts, err := in.options()
+	if err != nil {
+		return err
+	}
+	wopts := tableio.WriteOptions{Format: tableio.Format(*format), Parquet: pqio.WriterOptions{Compression: *compression}}
+	start := time.Now()
+	path, cleanup, err := spool(file)
+	if err != nil {
+		return err
+	}
+	defer cleanup()
+	name := file
+	if file == "-" {
+		name = "stdin"
+	}
+
+	var total int64
+	if sp.FoldBy == "ordered" {
+		if total, err = countRows(path, ropts); err != nil {
+			return err
+		}
+	}
+	r, err := tableio.Open(path, ropts)
+	if err != nil {
+		return err
+	}
+	pr := newProgress("fit")
+	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update})
+	r.Close()
+	pr.done()
+	if err != nil {
+		return err
+	}
+	if sp.Output == "logodds" && m.Task.String() != "binary" {
+		return usagef("--output logodds needs a binary target; %s is %s", sp.Target, m.Task)
+	}
+
+	r, err = tableio.Open(path, ropts)
+	if err != nil {
+		return err
+	}
+	defer r.Close()
+	schema, _, _, err := m.OutputSchema(r.Schema(), false)
+	if err != nil {
+		return err
+	}
+	w, err := tableio.Create(*out, schema, wopts)
+	if err != nil {
+		return &outputError{err}
+	}
+	pr = newProgress("encode")
+	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Progress: pr.update})
+	pr.done()
+	if err != nil {
+		w.Abort()
+		return err
+	}
+	if err := m.SaveTables(*tables); err != nil {
+		w.Abort()
+		return &outputError{err}
+	}
+	if err := w.Commit(); err != nil {
+		return &outputError{err}
+	}
+	fmt.Fprintf(os.Stderr, "encoded %d rows", sum.Rows)
+	if sum.Missing > 0 {
+		fmt.Fprintf(os.Stderr, " (%d with an empty target: encoded, not counted)", sum.Missing)
+	}
+	fmt.Fprintf(os.Stderr, " in %.1fs;", time.Since(start).Seconds())
+	for i, c := range m.Cols {
+		fmt.Fprintf(os.Stderr, " %s %d levels", c.Name, m.Levels(i))
+		if i < len(m.Cols)-1 {
+			fmt.Fprint(os.Stderr, ",")
+		}
+	}
+	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", *out, *tables)
+	return nil
+}
+
+// countRows reads a table once to count its rows (for --fold-by ordered
+// on input whose row count is not in its metadata).
+func countRows(path string, opts tableio.ReadOptions) (int64, error) {
+	r, err := tableio.Open(path, opts)
+	if err != nil {
+		return 0, err
+	}
+	defer r.Close()
+	if err := r.Select([]int{0}); err != nil {
+		return 0, err
+	}
+	var n int64
+	for {
+		b, err := r.Next()
+		if err == io.EOF {
+			return n, nil
+		}
+		if err != nil {
+			return 0, err
+		}
+		n += int64(b.Rows)
+	}
+}

@@ -1,0 +1,146 @@
+// Command manyfold turns categorical columns of large tables into compact
+// numeric encodings for training tables: out-of-fold smoothed target means,
+// frequency counts, top-k codes and hashed buckets, with mapping tables
+// that encode new data identically later.
+//
+// Usage:
+//
+//	manyfold scan FILE [flags]      profile the categorical columns of a table
+//	manyfold encode FILE [flags]    fit encodings and write the encoded table and mapping tables
+//	manyfold apply FILE [flags]     encode new data with saved mapping tables
+//	manyfold merge DIR DIR... [flags] merge mapping tables fitted on shards of one table
+//	manyfold demo [flags]           run the whole job on a generated parcel-network table
+//
+// Exit codes: 0 success; 1 unexpected failure; 2 usage (bad flags, unknown
+// column); 3 input cannot be read as a table (missing, empty, unknown
+// format, corrupt); 4 bad data in the input (ragged row, bad quote, bad
+// target); 5 output cannot be written; 6 mapping tables that cannot serve
+// (wrong version, other columns or types).
+package main
+
+import (
+	"errors"
+	"fmt"
+	"os"
+
+	"github.com/spf13/pflag"
+
+	"manyfold/encoders/pipeline"
+	"manyfold/io/table"
+)
+
+// Exit codes, documented in the README and in the package comment.
+const (
+	exitOK       = 0
+	exitFailure  = 1
+	exitUsage    = 2
+	exitInput    = 3
+	exitData     = 4
+	exitOutput   = 5
+	exitMismatch = 6
+)
+
+const usage = `manyfold: compact numeric encodings of high-cardinality categorical columns
+
+Usage:
+  manyfold scan FILE [flags]         profile the categorical columns of a table
+  manyfold encode FILE [flags]       fit encodings out of fold; write the encoded table and mapping tables
+  manyfold apply FILE [flags]        encode new data with saved mapping tables
+  manyfold merge DIR DIR... [flags]  merge mapping tables fitted on shards of one table
+  manyfold demo [flags]              the whole job on a generated parcel-network table
+  manyfold version
+
+FILE is CSV (optionally gzip or zstd compressed), Parquet or Arrow IPC; "-" reads standard input.
+Run "manyfold COMMAND --help" for a command's flags.
+
+Exit codes: 0 ok, 1 unexpected failure, 2 usage, 3 unreadable input, 4 bad data,
+5 output not written, 6 mapping tables that do not fit the input.
+`
+
+type command struct {
+	name string
+	run  func(args []string) error
+}
+
+var commands []command
+
+func init() {
+	commands = []command{
+		{"scan", runScan},
+		{"encode", runEncode},
+		{"apply", runApply},
+		{"merge", runMerge},
+		{"demo", runDemo},
+	}
+}
+
+func main() {
+	os.Exit(run(os.Args[1:]))
+}
+
+// run executes a command line and returns the exit code.
+func run(args []string) int {
+	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
+		fmt.Fprint(os.Stdout, usage)
+		if len(args) == 0 {
+			return exitUsage
+		}
+		return exitOK
+	}
+	if args[0] == "version" || args[0] == "--version" {
+		fmt.Println("manyfold", pipeline.Version)
+		return exitOK
+	}
+	for _, c := range commands {
+		if c.name == args[0] {
+			err := c.run(args[1:])
+			if err == nil {
+				return exitOK
+			}
+			if errors.Is(err, pflag.ErrHelp) {
+				return exitOK
+			}
+			fmt.Fprintln(os.Stderr, "manyfold "+c.name+": "+err.Error())
+			return exitCode(err)
+		}
+	}
+	fmt.Fprintf(os.Stderr, "manyfold: unknown command %q\n\n%s", args[0], usage)
+	return exitUsage
+}
+
+// usageError is a mistake on the command line.
+type usageError struct{ msg string }
+
+func (e *usageError) Error() string { return e.msg }
+
+func usagef(format string, a ...any) error { return &usageError{fmt.Sprintf(format, a...)} }
+
+// outputError is a failure to write an output.
+type outputError struct{ err error }
+
+func (e *outputError) Error() string { return e.err.Error() }
+func (e *outputError) Unwrap() error { return e.err }
+
+// exitCode maps an error to its documented exit code.
+func exitCode(err error) int {
+	var ue *usageError
+	var pu *pipeline.UsageError
+	var ce *pipeline.ColumnError
+	var de *table.DataError
+	var me *pipeline.ManifestError
+	var oe *outputError
+	switch {
+	case errors.As(err, &ue), errors.As(err, &pu), errors.As(err, &ce):
+		return exitUsage
+	case errors.As(err, &oe):
+		return exitOutput
+	case errors.As(err, &me):
+		return exitMismatch
+	case errors.Is(err, os.ErrNotExist), errors.Is(err, os.ErrPermission),
+		errors.Is(err, table.ErrEmpty), errors.Is(err, table.ErrUnknownFormat), errors.Is(err, table.ErrCorrupt):
+		return exitInput
+	case errors.As(err, &de):
+		return exitData
+	}
+	return exitFailure
+}

@@ -1,0 +1,105 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"os"
+	"strings"
+
+	"manyfold/encoders/pipeline"
+	"manyfold/io/tableio"
+)
+
+const scanUsage = `Usage: manyfold scan FILE [--columns a,b] [--top N] [--json]
+
+Profiles the columns of FILE (all, or those given) as categorical columns:
+type, rows, nulls, exact distinct count, the most frequent levels, the share
+of levels seen once, the share of rows the top 10 / 100 / 1000 levels cover,
+and a suggested encoding with its reason. Memory grows with the number of
+distinct levels, not with the rows.
+`
+
+func runScan(args []string) error {
+	fs := newFlags("scan", scanUsage)
+	var in inputFlags
+	in.add(fs)
+	columns := fs.StringSlice("columns", nil, "columns to profile (default: all)")
+	top := fs.Int("top", 5, "how many of the most frequent levels to list")
+	asJSON := fs.Bool("json", false, "print JSON instead of text")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() != 1 {
+		return usagef("scan takes one input file (see manyfold scan --help)")
+	}
+	file := fs.Arg(0)
+	ropts, err := in.options()
+	if err != nil {
+		return err
+	}
+	r, err := tableio.Open(file, ropts)
+	if err != nil {
+		return err
+	}
+	defer r.Close()
+	s := r.Schema()
+	names := *columns
+	if len(names) == 0 {
+		names = s.Names()
+	}
+	idx, err := selectColumns(file, "--columns", s, names)
+	if err != nil {
+		return err
+	}
+	if err := r.Select(idx); err != nil {
+		return err
+	}
+	sel := make([]int, len(idx))
+	for i := range sel {
+		sel[i] = i
+	}
+	pr := newProgress("scan")
+	profiles, err := pipeline.Scan(r, sel, *top, pr.update)
+	pr.done()
+	if err != nil {
+		return err
+	}
+	if *asJSON {
+		enc := json.NewEncoder(os.Stdout)
+		enc.SetIndent("", "  ")
+		return enc.Encode(map[string]any{"file": file, "columns": profiles})
+	}
+	printProfiles(profiles)
+	return nil
+}
+
+func printProfiles(ps []pipeline.Profile) {
+	var b strings.Builder
+	for i, p := range ps {
+		if i > 0 {
+			b.WriteString("\n")
+		}
+		fmt.Fprintf(&b, "%s  [%s]  %d rows, %d null (%.1f%%), %d distinct, %.1f%% of levels seen once\n",
+			p.Name, p.Type, p.Rows, p.Nulls, pct(p.Nulls, p.Rows), p.Distinct, 100*p.SeenOnce)
+		fmt.Fprintf(&b, "  rows in the top 10 / 100 / 1000 levels: %.1f%% / %.1f%% / %.1f%%\n", 100*p.Cover10, 100*p.Cover100, 100*p.Cover1000)
+		if len(p.Top) > 0 {
+			b.WriteString("  most frequent:")
+			for j, t := range p.Top {
+				if j > 0 {
+					b.WriteString(",")
+				}
+				fmt.Fprintf(&b, " %q %d (%.1f%%)", t.Level, t.Rows, 100*t.Share)
+			}
+			b.WriteString("\n")
+		}
+		fmt.Fprintf(&b, "  suggested: %s (%s)\n", p.Suggest, p.Reason)
+	}
+	os.Stdout.WriteString(b.String())
+}
+
+func pct(a, b int64) float64 {
+	if b == 0 {
+		return 0
+	}
+	return 100 * float64(a) / float64(b)
+}

@@ -1,0 +1,83 @@
+package pipeline
+
+import (
+	"fmt"
+	"slices"
+
+	"manyfold/encoders/colstats"
+)
+
+// Merge combines models loaded from mapping tables fitted with the same
+// parameters on shards of one table into the model of the whole table:
+// per-level statistics add (colstats.Stats.Merge), and every derived value
+// (prior, smoothing weight, frequency, top-k code, hierarchical parents) is
+// computed again from the sums. The result equals the tables fitted on the
+// whole table when the shards kept every level (--min-level-rows 0); target
+// sums of a regression target may differ in the last bits, since floating
+// point addition depends on order. minRows applies --min-level-rows to the
+// merged tables.
+func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
+	base := models[0]
+	out := &Model{Spec: base.Spec, Input: base.Input, Task: base.Task, Classes: base.Classes, Pos: base.Pos}
+	out.Spec.MinLevelRows = minRows
+	for i, m := range models {
+		if err := compatible(base, m); err != nil {
+			return nil, &ManifestError{Dir: names[i], Msg: err.Error() + " than " + names[0] + "; only tables fitted with the same parameters merge"}
+		}
+		if m.Spec.MinLevelRows > 0 {
+			return nil, &ManifestError{Dir: names[i], Msg: fmt.Sprintf("fitted with --min-level-rows %d, so its small levels are missing; merge tables fitted with --min-level-rows 0", m.Spec.MinLevelRows)}
+		}
+		out.Rows += m.Rows
+		out.Missing += m.Missing
+	}
+	supervised := base.Cols[0].Full != nil
+	for ci, bc := range base.Cols {
+		task := base.Task
+		if !supervised {
+			task = colstats.Binary
+		}
+		st := colstats.New(task, 1, len(base.Classes), bc.St.NumLevels())
+		for _, m := range models {
+			if err := st.Merge(m.Cols[ci].St); err != nil {
+				return nil, err
+			}
+		}
+		c := &Col{Name: bc.Name, Kind: bc.Kind, Index: bc.Index, St: st}
+		if base.Spec.PriorPrefix > 0 && supervised {
+			n := base.Spec.PriorPrefix
+			ps, of := st.Rollup(func(b []byte) []byte {
+				if len(b) > n {
+					return b[:n]
+				}
+				return b
+			})
+			c.Parent = &Col{Name: c.Name + " prefix", St: ps}
+			c.ParentOf = of
+		}
+		out.derive(c, supervised)
+		out.Cols = append(out.Cols, c)
+	}
+	return out, nil
+}
+
+// compatible reports how two models' parameters differ, if they do.
+func compatible(a, b *Model) error {
+	x, y := a.Spec, b.Spec
+	switch {
+	case !slices.Equal(x.Columns, y.Columns):
+		return fmt.Errorf("other columns")
+	case x.Target != y.Target || a.Task != b.Task:
+		return fmt.Errorf("another target or task")
+	case !slices.Equal(a.Classes, b.Classes):
+		return fmt.Errorf("other target classes")
+	case x.Smoothing != y.Smoothing || x.PriorPrefix != y.PriorPrefix || x.Output != y.Output:
+		return fmt.Errorf("other smoothing")
+	case x.FreqShare != y.FreqShare || x.TopK != y.TopK || x.MinCount != y.MinCount:
+		return fmt.Errorf("other frequency or top-k parameters")
+	case x.Buckets != y.Buckets || x.HashSeed != y.HashSeed || x.Signed != y.Signed:
+		return fmt.Errorf("other hash parameters")
+	case x.NullsUnseen != y.NullsUnseen || !slices.Equal(x.Methods, y.Methods):
+		return fmt.Errorf("other methods or null handling")
+	}
+	return nil
+}

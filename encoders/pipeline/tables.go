@@ -1,0 +1,493 @@
+package pipeline
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+
+	"manyfold/encoders/colstats"
+	"manyfold/encoders/hashenc"
+	"manyfold/io/atomicfile"
+	"manyfold/io/table"
+	"manyfold/io/tableio"
+)
+
+// FormatVersion is the version of the mapping-table layout. Tables of
+// another version are refused.
+const FormatVersion = 1
+
+// Version is manyfold's version, recorded in every manifest.
+const Version = "0.1.0"
+
+// ManifestName is the manifest's file name in a tables directory.
+const ManifestName = "manifest.json"
+
+// Manifest describes a directory of mapping tables: what was fitted, on
+// what, with which parameters.
+type Manifest struct {
+	Format  int             `json:"format"`
+	Tool    string          `json:"tool"`
+	Input   []ManifestField `json:"input"`
+	Target  string          `json:"target,omitempty"`
+	Task    string          `json:"task,omitempty"`
+	Classes []string        `json:"classes,omitempty"`
+	Rows    int64           `json:"rows"`
+	Missing int64           `json:"target_missing"`
+	Params  Params          `json:"params"`
+	Columns []ManifestCol   `json:"columns"`
+}
+
+// ManifestField is an input column.
+type ManifestField struct {
+	Name string `json:"name"`
+	Type string `json:"type"`
+}
+
+// Params records every parameter of the fit.
+type Params struct {
+	Methods      []string `json:"methods"`
+	Folds        int      `json:"folds"`
+	FoldBy       string   `json:"fold_by"`
+	Seed         uint64   `json:"seed"`
+	Scheme       string   `json:"scheme"`
+	Smoothing    string   `json:"smoothing"`
+	PriorPrefix  int      `json:"prior_prefix,omitempty"`
+	Output       string   `json:"output"`
+	Freq         string   `json:"freq"`
+	TopK         int      `json:"top_k"`
+	MinCount     uint64   `json:"min_count"`
+	Buckets      uint64   `json:"buckets"`
+	HashSeed     uint64   `json:"hash_seed"`
+	Signed       bool     `json:"signed"`
+	MinLevelRows uint64   `json:"min_level_rows"`
+	Nulls        string   `json:"nulls"`
+}
+
+// ManifestCol describes one encoded column's table.
+type ManifestCol struct {
+	Name        string     `json:"name"`
+	Type        string     `json:"type"`
+	Table       string     `json:"table"`
+	ParentTable string     `json:"parent_table,omitempty"`
+	Levels      int        `json:"levels"`
+	Stored      int        `json:"levels_stored"`
+	Prior       []*float64 `json:"prior,omitempty"`
+	M           []*float64 `json:"m,omitempty"`
+	ParentPrior []*float64 `json:"parent_prior,omitempty"`
+	ParentM     []*float64 `json:"parent_m,omitempty"`
+	// Hashing: for the levels seen, the expected number of occupied buckets
+	// B*(1-(1-1/B)^n) and the chance that a level shares its bucket
+	// 1-(1-1/B)^(n-1) (standard occupancy results).
+	HashOccupied float64 `json:"hash_expected_occupied,omitempty"`
+	HashShared   float64 `json:"hash_expected_shared,omitempty"`
+}
+
+// ManifestError reports mapping tables that cannot serve the input.
+type ManifestError struct {
+	Dir string
+	Msg string
+}
+
+func (e *ManifestError) Error() string { return e.Dir + ": " + e.Msg }
+
+func smoothingString(s colstats.Smoothing) string {
+	switch s.Kind {
+	case "m":
+		return "m=" + strconv.FormatFloat(s.M, 'g', -1, 64)
+	case "blend":
+		return "blend=" + strconv.FormatFloat(s.K, 'g', -1, 64) + "," + strconv.FormatFloat(s.F, 'g', -1, 64)
+	}
+	return "auto"
+}
+
+func optFloat(v float64) *float64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return nil
+	}
+	return &v
+}
+
+func fromOpt(p *float64) float64 {
+	if p == nil {
+		return math.Inf(1)
+	}
+	return *p
+}
+
+// tableFile names the table of the i-th column: its position and a form of
+// its name safe in any file system.
+func tableFile(i int, name string) string {
+	var b strings.Builder
+	for _, r := range name {
+		if r < 0x80 && (r == '-' || r == '_' || r == '.' || (r >= '0' && r <= '9') || (r|0x20 >= 'a' && r|0x20 <= 'z')) {
+			b.WriteRune(r)
+		} else {
+			b.WriteByte('_')
+		}
+	}
+	return fmt.Sprintf("%02d-%s.parquet", i+1, b.String())
+}
+
+// Manifest returns the manifest of the fitted model.
+func (m *Model) Manifest() Manifest {
+	sp := &m.Spec
+	mf := Manifest{Format: FormatVersion, Tool: Version, Rows: m.Rows, Missing: m.Missing, Target: sp.Target}
+	for _, f := range m.Input {
+		mf.Input = append(mf.Input, ManifestField{Name: f.Name, Type: f.Kind.String()})
+	}
+	if m.Cols[0].Full != nil {
+		mf.Task = m.Task.String()
+		mf.Classes = m.Classes
+	} else {
+		mf.Target = ""
+	}
+	freq, nulls := "count", "level"
+	if sp.FreqShare {
+		freq = "share"
+	}
+	if sp.NullsUnseen {
+		nulls = "unseen"
+	}
+	mf.Params = Params{Methods: sp.Methods, Folds: sp.Folds, FoldBy: sp.FoldBy, Seed: sp.Seed, Scheme: sp.Scheme,
+		Smoothing: smoothingString(sp.Smoothing), PriorPrefix: sp.PriorPrefix, Output: sp.Output, Freq: freq,
+		TopK: sp.TopK, MinCount: sp.MinCount, Buckets: sp.Buckets, HashSeed: sp.HashSeed, Signed: sp.Signed,
+		MinLevelRows: sp.MinLevelRows, Nulls: nulls}
+	for i, c := range m.Cols {
+		mc := ManifestCol{Name: c.Name, Type: c.Kind.String(), Table: tableFile(i, c.Name), Levels: m.Levels(i)}
+		for l := range c.Keep {
+			if c.Keep[l] {
+				mc.Stored++
+			}
+		}
+		for _, ft := range c.Full {
+			mc.Prior = append(mc.Prior, optFloat(ft.Prior))
+			mc.M = append(mc.M, optFloat(ft.M))
+		}
+		if c.Parent != nil {
+			mc.ParentTable = strings.TrimSuffix(mc.Table, ".parquet") + ".parents.parquet"
+			for _, ft := range c.Parent.Full {
+				mc.ParentPrior = append(mc.ParentPrior, optFloat(ft.Prior))
+				mc.ParentM = append(mc.ParentM, optFloat(ft.M))
+			}
+		}
+		n, b := float64(mc.Levels), float64(sp.Buckets)
+		mc.HashOccupied = hashenc.ExpectedOccupied(n, b)
+		mc.HashShared = hashenc.SharedChance(n, b)
+		mf.Columns = append(mf.Columns, mc)
+	}
+	return mf
+}
+
+// SaveTables writes one Parquet table per column (and per parent level
+// set) and the manifest into dir, creating it if needed. Every file is
+// written to a temporary name and renamed into place when complete.
+func (m *Model) SaveTables(dir string) error {
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return fmt.Errorf("tables: %w", err)
+	}
+	mf := m.Manifest()
+	for i, c := range m.Cols {
+		if err := m.saveCol(filepath.Join(dir, mf.Columns[i].Table), c); err != nil {
+			return err
+		}
+		if c.Parent != nil {
+			if err := m.saveCol(filepath.Join(dir, mf.Columns[i].ParentTable), c.Parent); err != nil {
+				return err
+			}
+		}
+	}
+	data, err := json.MarshalIndent(mf, "", "  ")
+	if err != nil {
+		return err
+	}
+	f, err := atomicfile.Create(filepath.Join(dir, ManifestName))
+	if err != nil {
+		return err
+	}
+	if _, err := f.Write(append(data, '\n')); err != nil {
+		f.Abort()
+		return fmt.Errorf("write %s: %w", f.Path(), err)
+	}
+	return f.Commit()
+}
+
+// tableSchema returns the layout of a column's mapping table.
+func (m *Model) tableSchema(supervised bool) *table.Schema {
+	s := &table.Schema{Fields: []table.Field{{Name: "level", Kind: table.String, Nullable: true}, {Name: "rows", Kind: table.Int64}}}
+	add := func(name string, k table.Kind) { s.Fields = append(s.Fields, table.Field{Name: name, Kind: k}) }
+	if supervised {
+		add("target_rows", table.Int64)
+		if m.Task == colstats.Regression {
+			add("target_sum", table.Float64)
+			add("target_sumsq", table.Float64)
+			add("tmean", table.Float64)
+		} else {
+			for _, cl := range m.Classes {
+				add("count_"+cl, table.Int64)
+			}
+			if m.Task == colstats.Binary {
+				add("tmean", table.Float64)
+			} else {
+				for _, cl := range m.Classes {
+					add("tmean_"+cl, table.Float64)
+				}
+			}
+		}
+	}
+	add("freq", table.Float64)
+	add("topk", table.Int64)
+	add("bucket", table.Int64)
+	return s
+}
+
+func (m *Model) saveCol(path string, c *Col) error {
+	supervised := c.Full != nil
+	schema := m.tableSchema(supervised)
+	out, err := tableio.Create(path, schema, tableio.WriteOptions{Format: tableio.Parquet})
+	if err != nil {
+		return err
+	}
+	st := c.St
+	order := st.Sorted()
+	const chunk = 1 << 16
+	b := &table.Batch{Cols: make([]table.Column, len(schema.Fields))}
+	for start := 0; start < len(order); start += chunk {
+		rows := order[start:min(start+chunk, len(order))]
+		var sel []int
+		for _, l := range rows {
+			// The null level is stored even when nulls are treated as
+			// unseen, so that merged tables keep its rows in the prior.
+			if c.Keep[l] || (l == 0 && m.Spec.NullsUnseen) {
+				sel = append(sel, l)
+			}
+		}
+		n := len(sel)
+		lv := &b.Cols[0]
+		lv.Form, lv.Data, lv.Offsets, lv.Nulls = table.FormText, lv.Data[:0], append(lv.Offsets[:0], 0), nil
+		for i, l := range sel {
+			if l == 0 {
+				if lv.Nulls == nil {
+					lv.Nulls = make([]bool, n)
+				}
+				lv.Nulls[i] = true
+			}
+			lv.Data = append(lv.Data, st.Bytes(l)...)
+			lv.Offsets = append(lv.Offsets, int32(len(lv.Data)))
+		}
+		k := 1
+		col := func() *table.Column { k++; return &b.Cols[k-1] }
+		intCol := func(f func(l int) int64) {
+			x := ints(col(), n)
+			for i, l := range sel {
+				x[i] = f(l)
+			}
+		}
+		floatCol := func(f func(l int) float64) {
+			x := floats(col(), n)
+			for i, l := range sel {
+				x[i] = f(l)
+			}
+		}
+		intCol(func(l int) int64 { return int64(st.Rows[l]) })
+		if supervised {
+			intCol(func(l int) int64 { return int64(st.Target(l, 0, -1, m.Pos).N) })
+			if m.Task == colstats.Regression {
+				floatCol(func(l int) float64 { return st.Target(l, 0, -1, 0).Sum })
+				floatCol(func(l int) float64 { return st.Target(l, 0, -1, 0).SumSq })
+			} else {
+				for cl := range m.Classes {
+					intCol(func(l int) int64 {
+						var s uint32
+						for f := 0; f < st.Folds; f++ {
+							s += st.Cls[(l*st.Folds+f)*st.Classes+cl]
+						}
+						return int64(s)
+					})
+				}
+			}
+			for o := range c.TMean {
+				floatCol(func(l int) float64 { return c.TMean[o][l] })
+			}
+		}
+		floatCol(func(l int) float64 { return c.Freq[l] })
+		intCol(func(l int) int64 { return int64(c.TopK[l]) })
+		intCol(func(l int) int64 { return int64(hashenc.Bucket(hashenc.Sum(st.Bytes(l), m.Spec.HashSeed), m.Spec.Buckets)) })
+		b.Rows = n
+		if n == 0 {
+			continue
+		}
+		if err := out.Write(b); err != nil {
+			out.Abort()
+			return fmt.Errorf("write %s: %w", path, err)
+		}
+	}
+	return out.Commit()
+}
+
+// LoadTables reads a tables directory written by SaveTables into a model
+// that encodes new rows (EncodeOptions.Apply) and merges with others.
+func LoadTables(dir string) (*Model, error) {
+	data, err := os.ReadFile(filepath.Join(dir, ManifestName))
+	if err != nil {
+		if errors.Is(err, os.ErrNotExist) {
+			return nil, &ManifestError{Dir: dir, Msg: "no " + ManifestName + " here; is this a tables directory written by manyfold encode?"}
+		}
+		return nil, err
+	}
+	var mf Manifest
+	if err := json.Unmarshal(data, &mf); err != nil {
+		return nil, &ManifestError{Dir: dir, Msg: "manifest.json is not valid: " + err.Error()}
+	}
+	if mf.Format != FormatVersion {
+		return nil, &ManifestError{Dir: dir, Msg: fmt.Sprintf("mapping tables of format version %d; this manyfold reads version %d: refit them with manyfold encode", mf.Format, FormatVersion)}
+	}
+	if mf.Tool != Version {
+		return nil, &ManifestError{Dir: dir, Msg: fmt.Sprintf("mapping tables written by manyfold %s; this is manyfold %s: refit them with this version", mf.Tool, Version)}
+	}
+	sp, err := specFrom(&mf)
+	if err != nil {
+		return nil, &ManifestError{Dir: dir, Msg: err.Error()}
+	}
+	m := &Model{Spec: sp, Classes: mf.Classes, Rows: mf.Rows, Missing: mf.Missing}
+	for _, f := range mf.Input {
+		k, _ := table.ParseKind(f.Type)
+		m.Input = append(m.Input, table.Field{Name: f.Name, Kind: k})
+	}
+	supervised := mf.Task != ""
+	if supervised {
+		m.Task, _ = colstats.ParseTask(mf.Task)
+		m.Pos = len(m.Classes) - 1
+	}
+	for _, mc := range mf.Columns {
+		k, _ := table.ParseKind(mc.Type)
+		c, err := m.loadCol(filepath.Join(dir, mc.Table), supervised, mc.Prior, mc.M)
+		if err != nil {
+			return nil, err
+		}
+		c.Name, c.Kind = mc.Name, k
+		if mc.ParentTable != "" {
+			p, err := m.loadCol(filepath.Join(dir, mc.ParentTable), supervised, mc.ParentPrior, mc.ParentM)
+			if err != nil {
+				return nil, err
+			}
+			c.Parent = p
+		}
+		m.Cols = append(m.Cols, c)
+	}
+	return m, nil
+}
+
+func specFrom(mf *Manifest) (Spec, error) {
+	p := mf.Params
+	sm, err := ParseSmoothing(p.Smoothing)
+	if err != nil {
+		return Spec{}, err
+	}
+	sp := Spec{Target: mf.Target, Methods: p.Methods, Task: mf.Task, Folds: p.Folds, FoldBy: p.FoldBy, Seed: p.Seed,
+		Scheme: p.Scheme, Smoothing: sm, PriorPrefix: p.PriorPrefix, Output: p.Output, FreqShare: p.Freq == "share",
+		TopK: p.TopK, MinCount: p.MinCount, Buckets: p.Buckets, HashSeed: p.HashSeed, Signed: p.Signed,
+		MinLevelRows: p.MinLevelRows, NullsUnseen: p.Nulls == "unseen", KeepAll: true}
+	for _, c := range mf.Columns {
+		sp.Columns = append(sp.Columns, c.Name)
+	}
+	return sp, nil
+}
+
+// loadCol reads one mapping table into a column whose statistics have a
+// single fold and whose derived values are those stored.
+func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Col, error) {
+	r, err := tableio.Open(path, tableio.ReadOptions{})
+	if err != nil {
+		return nil, err
+	}
+	defer r.Close()
+	want := m.tableSchema(supervised)
+	got := r.Schema()
+	if len(got.Fields) != len(want.Fields) {
+		return nil, &ManifestError{Dir: path, Msg: fmt.Sprintf("table has %d columns, the manifest implies %d", len(got.Fields), len(want.Fields))}
+	}
+	for i, f := range want.Fields {
+		if got.Fields[i].Name != f.Name {
+			return nil, &ManifestError{Dir: path, Msg: fmt.Sprintf("column %d is %q, expected %q", i+1, got.Fields[i].Name, f.Name)}
+		}
+	}
+	task := m.Task
+	if !supervised {
+		task = colstats.Binary
+	}
+	st := colstats.New(task, 1, len(m.Classes), 1024)
+	c := &Col{St: st}
+	outs := 0
+	if supervised {
+		outs = st.Outputs()
+		c.TMean = make([][]float64, outs)
+		for o := 0; o < outs; o++ {
+			c.Full = append(c.Full, colstats.Fitted{Prior: fromOpt(prior[o]), M: fromOpt(ms[o]), Sm: m.Spec.Smoothing})
+			c.TMean[o] = []float64{0}
+		}
+	}
+	c.Freq, c.TopK, c.Keep = []float64{0}, []int32{0}, []bool{false}
+	for {
+		b, err := r.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, err
+		}
+		for i := 0; i < b.Rows; i++ {
+			l := 0
+			if !b.Cols[0].IsNull(i) {
+				l = st.Level(b.Cols[0].Bytes(i))
+			}
+			for len(c.Keep) < st.NumLevels() {
+				c.Keep, c.Freq, c.TopK = append(c.Keep, false), append(c.Freq, 0), append(c.TopK, 0)
+				for o := range c.TMean {
+					c.TMean[o] = append(c.TMean[o], 0)
+				}
+			}
+			c.Keep[l] = l != 0 || !m.Spec.NullsUnseen
+			k := 1
+			next := func() *table.Column { k++; return &b.Cols[k-1] }
+			st.Rows[l] = uint64(next().Ints[i])
+			if supervised {
+				st.Cnt[l] = uint32(next().Ints[i])
+				if task == colstats.Regression {
+					st.Sum[l] = next().Floats[i]
+					st.SumSq[l] = next().Floats[i]
+				} else {
+					for cl := range m.Classes {
+						st.Cls[l*st.Classes+cl] = uint32(next().Ints[i])
+					}
+				}
+				for o := 0; o < outs; o++ {
+					c.TMean[o][l] = next().Floats[i]
+				}
+			}
+			c.Freq[l] = next().Floats[i]
+			c.TopK[l] = int32(next().Ints[i])
+		}
+	}
+	return c, nil
+}
+
+// CheckInput verifies that an input table has every column the model
+// encodes, with the type it had when the model was fitted.
+func (m *Model) CheckInput(file string, s *table.Schema, dir string) error {
+	for _, c := range m.Cols {
+		i := s.Index(c.Name)
+		if i < 0 {
+			return &ColumnError{File: file, Flag: "the mapping tables in " + dir, Name: c.Name, Have: s.Names()}
+		}
+		if got := s.Fields[i].Kind; got != c.Kind {
+			return &ManifestError{Dir: dir, Msg: fmt.Sprintf("column %q of %s is %s, but the tables were fitted on %s (for CSV, force it with --type %s=%s)", c.Name, file, got, c.Kind, c.Name, c.Kind)}
+		}
+	}
+	return nil
+}

@@ -40,7 +40,7 @@ const (
 
 // Effects on the logit of late delivery.
 const (
-	lateIntercept  = -2.05
+	lateIntercept  = -2.17
 	latePrefixSD   = 0.6
 	latePostcodeSD = 0.5
 	lateAccountSD  = 0.6
@@ -87,7 +87,8 @@ type accountPool struct {
 }
 
 // network is everything derived from the seed and the level counts: the
-// levels, their text and their effects. Its size is O(levels).
+// levels, their text and their effects. It holds O(postcodes) values and
+// a fixed amount for accounts, whatever their number.
 type network struct {
 	seed      uint64
 	pcTrain   postcodePool
@@ -191,8 +192,11 @@ func newNetwork(seed uint64, postcodes, accounts int) *network {
 		h := hash2(seed^saltAccountPerm, uint64(k))
 		pool.mul = coprime(h|1, pool.size)
 		pool.add = mix64(h) % pool.size
+		// Centre on the weighted mean over the sampler's head ranks; the
+		// tail adds a mean-zero sum of many tiny terms, left out so that
+		// setting up does not take time in proportion to the accounts.
 		centre := 0.0
-		for r := range accounts {
+		for r := range min(accounts, headRanks) {
 			centre += sampler.prob(r) * nw.accountLateRaw(pool.number(r))
 		}
 		pool.lateCentre = centre

@@ -16,8 +16,9 @@ import (
 // (Hörmann and Derflinger, "Rejection-inversion to generate variates from
 // monotone discrete distributions", ACM TOMACS 6(3), 1996): a continuous
 // hat whose integral H inverts in closed form, rejecting the part of each
-// unit interval above the point mass. The tail needs no table, so memory
-// does not grow with the number of ranks beyond the O(n) setup pass.
+// unit interval above the point mass. The tail needs no table, and the
+// normalising sum is closed-form beyond 2^16 terms, so neither memory nor
+// setup time grows with the number of ranks.
 type zipf struct {
 	cum   []uint64 // cum[i]: P(rank <= i) * 2^63 for the head ranks
 	guide []int32  // guide[t]: the smallest i with cum[i] > t << shift, or len(cum)
@@ -43,9 +44,7 @@ func newZipf(n int, s float64) *zipf { return newZipfHead(n, s, headRanks) }
 // newZipfHead builds the sampler with at most maxHead ≥ 1 table ranks.
 func newZipfHead(n int, s float64, maxHead int) *zipf {
 	z := &zipf{s: s, oneMinusS: 1 - s, n: n}
-	for i := n - 1; i >= 0; i-- { // smallest terms first
-		z.total += z.weight(i)
-	}
+	z.total = z.sumWeights(n)
 	nh := min(n, maxHead)
 	z.cum = make([]uint64, nh)
 	acc := 0.0
@@ -80,8 +79,37 @@ func newZipfHead(n int, s float64, maxHead int) *zipf {
 	return z
 }
 
-// weight returns the unnormalised probability of rank i.
-func (z *zipf) weight(i int) float64 { return math.Pow(float64(i+1), -z.s) }
+// weight returns the unnormalised probability of rank i, (i+1)^-s.
+func (z *zipf) weight(i int) float64 { return math.Exp(-z.s * math.Log(float64(i+1))) }
+
+// exactTerms is the number of leading weights sumWeights adds one by one.
+const exactTerms = 1 << 16
+
+// sumWeights returns the sum of the first n weights: the leading terms
+// added exactly (smallest first) and the rest, k = a..n with a > 2^16, by
+// the Euler-Maclaurin formula
+//
+//	sum f(k) = integral_a^n f + (f(a)+f(n))/2 + (f'(n)-f'(a))/12 - (f'''(n)-f'''(a))/720 + R
+//
+// for f(x) = x^-s (computed from the formula), whose remainder R is of the
+// order of f^(5)(a)/30240, below 1e-24 here.
+func (z *zipf) sumWeights(n int) float64 {
+	m := min(n, exactTerms)
+	head := 0.0
+	for i := m - 1; i >= 0; i-- {
+		head += z.weight(i)
+	}
+	if n == m {
+		return head
+	}
+	a, b := float64(m+1), float64(n)
+	s := z.s
+	f := func(x float64) float64 { return math.Exp(-s * math.Log(x)) }
+	d1 := func(x float64) float64 { return -s * f(x) / x }
+	d3 := func(x float64) float64 { return -s * (s + 1) * (s + 2) * f(x) / (x * x * x) }
+	tail := z.bigH(b) - z.bigH(a) + (f(a)+f(b))/2 + (d1(b)-d1(a))/12 - (d3(b)-d3(a))/720
+	return head + tail
+}
 
 // bigH is the integral of x^-s from 1 to x: (x^(1-s) - 1)/(1-s), or
 // log(x) when s is 1.

@@ -94,3 +94,20 @@ func TestZipfMatchesFormula(t *testing.T) {
 		})
 	}
 }
+
+// TestSumWeights compares the Euler-Maclaurin normalising sum with the
+// plain sum of the terms.
+func TestSumWeights(t *testing.T) {
+	for _, s := range []float64{0, 0.6, 1, 1.05, 1.1} {
+		for _, n := range []int{1, exactTerms, exactTerms + 1, exactTerms + 2, 300_000, 2_000_000} {
+			z := &zipf{s: s, oneMinusS: 1 - s}
+			plain := 0.0
+			for i := n - 1; i >= 0; i-- {
+				plain += z.weight(i)
+			}
+			if got := z.sumWeights(n); math.Abs(got-plain) > 1e-12*plain {
+				t.Errorf("s %v n %d: sum %.17g, plain sum %.17g", s, n, got, plain)
+			}
+		}
+	}
+}

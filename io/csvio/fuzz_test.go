@@ -1,0 +1,136 @@
+package csvio
+
+import (
+	"bytes"
+	"encoding/csv"
+	"errors"
+	"io"
+	"strings"
+	"testing"
+
+	"manyfold/io/table"
+)
+
+// FuzzReader holds the reader against the standard library's encoding/csv
+// (strict quotes, a fixed field count) on the same input. Where the two are
+// meant to differ, the differences are allowed for:
+//   - encoding/csv turns CRLF inside a quoted field into LF; manyfold keeps
+//     the bytes, so manyfold's values are compared with CRLF replaced;
+//   - encoding/csv keeps a byte order mark; it is given the input without;
+//   - encoding/csv skips blank lines always; in a one-column table manyfold
+//     reads them as null rows, which are dropped before comparing;
+//   - manyfold rejects empty input (only white space) and empty or repeated
+//     header names, which encoding/csv accepts.
+//
+// Otherwise both must accept or both reject the input, and accepted input
+// must give the same records, a null being an empty value.
+func FuzzReader(f *testing.F) {
+	seeds := []string{
+		"a,b,c\n1,2,3\n",
+		"aaa,bbb,ccc\r\nzzz,yyy,xxx\r\n",
+		"\"aaa\",\"b\r\nbb\",\"ccc\"\r\nzzz,yyy,xxx",
+		"\"aaa\",\"b\"\"bb\",\"ccc\"",
+		"id,note\n1,\"ring\nthen\"\n2,\"\"\n3,\n",
+		"a\n1\n\n2\n",
+		"a,b\n\n1,2\n\r\n",
+		"a,b\n1,\"x\"y\n",
+		"a,b\n1,x\"y\n",
+		"a,b\n1,\"open\n",
+		"a,b\n1,2,3\n",
+		"\xef\xbb\xbfa;b\n1;2\n",
+		"a\tb\n\"x\ty\"\t2\n",
+		"a|b\n1|2\r",
+		"a,a\n1,2\n",
+		" \n",
+		"a,b\nx\ry,z\r\r\n",
+		"\"a\"\r\n\"b\"\r",
+	}
+	for i, s := range seeds {
+		f.Add([]byte(s), uint8(i))
+	}
+	old := bufSize
+	defer func() { bufSize = old }()
+	f.Fuzz(func(t *testing.T, data []byte, mode uint8) {
+		delim := []byte{',', ';', '\t', '|'}[mode%4]
+		noHeader := mode&4 != 0
+		bufSize = 1 << 20
+		if mode&8 != 0 {
+			bufSize = 8
+		}
+		opts := Options{Delimiter: delim, NoHeader: noHeader, BatchRows: int(mode>>4)%5 + 1, SampleRows: 2}
+
+		cr := csv.NewReader(bytes.NewReader(bytes.TrimPrefix(data, bom)))
+		cr.Comma = rune(delim)
+		var want [][]string
+		var werr error
+		for {
+			rec, err := cr.Read()
+			if err == io.EOF {
+				break
+			}
+			if err != nil {
+				werr = err
+				break
+			}
+			want = append(want, rec)
+		}
+
+		got, gerr := fuzzRead(data, opts)
+		if werr != nil {
+			if gerr == nil {
+				t.Fatalf("encoding/csv rejects the input (%v) but manyfold accepts it: %q", werr, got)
+			}
+			return
+		}
+		if gerr != nil {
+			switch {
+			case errors.Is(gerr, table.ErrEmpty):
+				if hasNonSpace(bytes.TrimPrefix(data, bom)) {
+					t.Fatalf("ErrEmpty for input that is not blank")
+				}
+			case !noHeader && (errors.Is(gerr, errEmptyName) || errors.Is(gerr, errDupName)):
+			default:
+				t.Fatalf("manyfold rejects input that encoding/csv accepts as %q: %v", want, gerr)
+			}
+			return
+		}
+		if len(got) > 0 && len(got[0]) == 1 {
+			kept := got[:1]
+			for _, rec := range got[1:] {
+				if rec[0] != null {
+					kept = append(kept, rec)
+				}
+			}
+			got = kept
+		}
+		if len(got) != len(want) {
+			t.Fatalf("%d records, encoding/csv %d:\n%q\n%q", len(got), len(want), got, want)
+		}
+		for i := range got {
+			if len(got[i]) != len(want[i]) {
+				t.Fatalf("record %d: %d fields, encoding/csv %d", i+1, len(got[i]), len(want[i]))
+			}
+			for j, v := range got[i] {
+				if v == null {
+					v = ""
+				}
+				if v = strings.ReplaceAll(v, "\r\n", "\n"); v != want[i][j] {
+					t.Fatalf("record %d field %d: %q, encoding/csv %q", i+1, j+1, v, want[i][j])
+				}
+			}
+		}
+	})
+}
+
+// fuzzRead returns the header (unless opts.NoHeader) and the records.
+func fuzzRead(data []byte, opts Options) ([][]string, error) {
+	res, err := readAll(data, opts, nil)
+	if err != nil {
+		return nil, err
+	}
+	var out [][]string
+	if !opts.NoHeader {
+		out = append(out, res.names)
+	}
+	return append(out, res.rows...), nil
+}

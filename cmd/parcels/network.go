@@ -90,7 +90,8 @@ type accountPool struct {
 // levels, their text and their effects. It holds O(postcodes) values and
 // a fixed amount for accounts, whatever their number.
 type network struct {
-	seed      uint64
+	kAccLate  uint64 // hash keys of the account effects
+	kAccCost  uint64
 	pcTrain   postcodePool
 	pcUnseen  postcodePool
 	acTrain   accountPool
@@ -121,7 +122,8 @@ func unseenPostcodes(postcodes int) int {
 }
 
 func newNetwork(seed uint64, postcodes, accounts int) *network {
-	nw := &network{seed: seed}
+	nw := &network{kAccLate: keyFor(seed, saltAccountLate), kAccCost: keyFor(seed, saltAccountCost)}
+	h := func(salt, x uint64) uint64 { return hashWith(keyFor(seed, salt), x) }
 
 	// Region prefixes: the first groups entries of a seeded shuffle of
 	// 000..999; suffixes within a prefix: an affine bijection of 0..99.
@@ -130,21 +132,21 @@ func newNetwork(seed uint64, postcodes, accounts int) *network {
 	for i := range perm {
 		perm[i] = i
 	}
-	rs := stream{hash2(seed, saltPrefixPerm)}
+	rs := stream{keyFor(seed, saltPrefixPerm)}
 	for i := len(perm) - 1; i > 0; i-- {
 		j := rs.intn(i + 1)
 		perm[i], perm[j] = perm[j], perm[i]
 	}
 	suffixMul := [...]int{1, 3, 7, 9, 11, 13, 17, 19, 21, 23, 27, 29, 31, 33, 37, 39}
-	mul := suffixMul[hash2(seed, saltSuffix)%uint64(len(suffixMul))]
+	mul := suffixMul[keyFor(seed, saltSuffix)%uint64(len(suffixMul))]
 	prefixLate := make([]float64, groups)
 	prefixCost := make([]float64, groups)
 	prefixRoute := make([]int16, groups)
 	for g := range groups {
 		p := uint64(perm[g])
-		prefixLate[g] = latePrefixSD * gauss4(hash2(seed^saltPrefixLate, p))
-		prefixCost[g] = 1.2 * math.Abs(gauss4(hash2(seed^saltPrefixCost, p)))
-		prefixRoute[g] = int16(hash2(seed^saltRegionRoute, p) % routeCount)
+		prefixLate[g] = latePrefixSD * gauss4(h(saltPrefixLate, p))
+		prefixCost[g] = 1.2 * math.Abs(gauss4(h(saltPrefixCost, p)))
+		prefixRoute[g] = int16(h(saltRegionRoute, p) % routeCount)
 	}
 	// fill lays out a pool: rank i sits in prefix slot i mod groups and
 	// suffix slot firstSlot + i/groups.
@@ -158,7 +160,7 @@ func newNetwork(seed uint64, postcodes, accounts int) *network {
 		for i := range n {
 			g, j := i%groups, firstSlot+i/groups
 			p := perm[g]
-			off := hash2(seed^saltSuffix, uint64(p)) % suffixCount
+			off := h(saltSuffix, uint64(p)) % suffixCount
 			sfx := (mul*j + int(off)) % suffixCount
 			code := uint64(p*suffixCount + sfx)
 			c := pool.codes[5*i : 5*i+5]
@@ -167,8 +169,8 @@ func newNetwork(seed uint64, postcodes, accounts int) *network {
 				c[k] = byte('0' + v%10)
 				v /= 10
 			}
-			pool.late[i] = prefixLate[g] + latePostcodeSD*gauss4(hash2(seed^saltPostcodeLate, code))
-			pool.cost[i] = prefixCost[g] + 0.4*gauss4(hash2(seed^saltPostcodeCost, code))
+			pool.late[i] = prefixLate[g] + latePostcodeSD*gauss4(h(saltPostcodeLate, code))
+			pool.cost[i] = prefixCost[g] + 0.4*gauss4(h(saltPostcodeCost, code))
 			pool.route[i] = prefixRoute[g]
 			centre += pool.sampler.prob(i) * pool.late[i]
 		}
@@ -189,9 +191,9 @@ func newNetwork(seed uint64, postcodes, accounts int) *network {
 		pool.sampler = sampler
 		pool.size = uint64(accounts)
 		pool.base = uint64(k * accounts)
-		h := hash2(seed^saltAccountPerm, uint64(k))
-		pool.mul = coprime(h|1, pool.size)
-		pool.add = mix64(h) % pool.size
+		hp := h(saltAccountPerm, uint64(k))
+		pool.mul = coprime(hp|1, pool.size)
+		pool.add = mix64(hp) % pool.size
 		// Centre on the weighted mean over the sampler's head ranks; the
 		// tail adds a mean-zero sum of many tiny terms, left out so that
 		// setting up does not take time in proportion to the accounts.
@@ -204,8 +206,8 @@ func newNetwork(seed uint64, postcodes, accounts int) *network {
 
 	nw.routes = newZipf(routeCount, routeZipf)
 	for r := range routeCount {
-		nw.routeLate[r] = lateRouteSD * gauss4(hash2(seed^saltRouteLate, uint64(r)))
-		nw.routeCost[r] = 0.5 * gauss4(hash2(seed^saltRouteCost, uint64(r)))
+		nw.routeLate[r] = lateRouteSD * gauss4(h(saltRouteLate, uint64(r)))
+		nw.routeCost[r] = 0.5 * gauss4(h(saltRouteCost, uint64(r)))
 	}
 	acc := 0.0
 	for t, pt := range parcelTypes {
@@ -224,13 +226,13 @@ func (p *accountPool) number(r int) uint64 {
 
 // accountLateRaw is the uncentred late effect of an account number.
 func (nw *network) accountLateRaw(num uint64) float64 {
-	return lateAccountSD * gauss4(hash2(nw.seed^saltAccountLate, num))
+	return lateAccountSD * gauss4(hashWith(nw.kAccLate, num))
 }
 
 // accountCost is the tariff adjustment of an account number: a discount
 // for some accounts.
 func (nw *network) accountCost(num uint64) float64 {
-	return -0.6 * math.Abs(gauss4(hash2(nw.seed^saltAccountCost, num)))
+	return -0.6 * math.Abs(gauss4(hashWith(nw.kAccCost, num)))
 }
 
 // coprime returns the first value at or above a (modulo n) that is coprime

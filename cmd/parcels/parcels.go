@@ -171,12 +171,12 @@ var (
 func newGenerator(cfg Config) *generator {
 	g := &generator{
 		nw:       newNetwork(cfg.Seed, cfg.Postcodes, cfg.Accounts),
-		rowBase:  hash2(cfg.Seed^saltRows, cfg.Stream),
+		rowBase:  hashWith(keyFor(cfg.Seed, saltRows), cfg.Stream),
 		stream:   cfg.Stream,
 		unseen21: uint64(math.Round(cfg.UnseenShare * (1 << coinBits))),
 	}
 	for k := range g.idKeys {
-		g.idKeys[k] = hash2(cfg.Seed^saltShipment, uint64(k))
+		g.idKeys[k] = hashWith(keyFor(cfg.Seed, saltShipment), uint64(k))
 	}
 	n := cfg.BatchRows
 	if int64(n) > cfg.Rows {

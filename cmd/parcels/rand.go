@@ -17,10 +17,11 @@ func mix64(z uint64) uint64 {
 	return z ^ (z >> 31)
 }
 
-// hash2 hashes a key with a salt; distinct salts give unrelated functions.
-func hash2(salt, key uint64) uint64 {
-	return mix64(mix64(salt^gamma) + key*gamma)
-}
+// keyFor derives the key of one hash function from the seed and a salt.
+func keyFor(seed, salt uint64) uint64 { return mix64(mix64(seed+gamma) + salt*gamma) }
+
+// hashWith hashes x with the function of the given key.
+func hashWith(key, x uint64) uint64 { return mix64(key + x*gamma) }
 
 // stream is a splitmix64 generator. Its zero value is a valid (fixed)
 // sequence; it is a value type so a row's generator lives in registers.

@@ -29,6 +29,7 @@ type zipf struct {
 	s, oneMinusS float64
 	k0, n        int
 	hLo, hHi     float64
+	squeeze      float64 // x beyond k-1/2+squeeze is accepted at once
 	total        float64 // sum of (rank+1)^-s over all ranks
 }
 
@@ -62,6 +63,7 @@ func newZipfHead(n int, s float64, maxHead int) *zipf {
 	z.head = z.cum[nh-1]
 	z.k0 = nh + 1
 	z.hLo, z.hHi = z.bigH(float64(z.k0)-0.5), z.bigH(float64(n)+0.5)
+	z.squeeze = squeezeWidth(s, z.k0)
 
 	// A guide of about as many entries as head ranks (a power of two
 	// between 2^8 and 2^16) keeps the expected scan near one step.
@@ -162,8 +164,24 @@ func (z *zipf) sampleTail(h uint64) int {
 		k := int(x + 0.5)
 		k = max(z.k0, min(k, z.n))
 		fk := float64(k)
-		if u >= z.bigH(fk+0.5)-math.Exp(-z.s*math.Log(fk)) {
+		if x-(fk-0.5) > z.squeeze || u >= z.bigH(fk+0.5)-math.Exp(-z.s*math.Log(fk)) {
 			return k - 1
 		}
 	}
+}
+
+// squeezeWidth bounds the rejected part of the unit x-interval of every
+// rank k ≥ k0. That part is at most the hat's relative excess over the
+// mass, (H(k+1/2) - H(k-1/2) - k^-s) / k^-s, as the hat density exceeds
+// k^-s left of k. By Taylor expansion of x^-s about k (computed from the
+// formula) the excess is s(s+1)/(24k²) + s(s+1)(s+2)(s+3)/(1920k⁴) + ...,
+// a series of positive terms falling with k, dominated by its first term
+// once k ≥ 100; the bound takes four times that term. Below 100 there is
+// no squeeze (the width returned is 1) and every draw is checked exactly.
+func squeezeWidth(s float64, k0 int) float64 {
+	if k0 < 100 {
+		return 1
+	}
+	k := float64(k0)
+	return 4 * s * (s + 1) / (24 * k * k)
 }

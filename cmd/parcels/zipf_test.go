@@ -36,6 +36,7 @@ func TestZipfMatchesFormula(t *testing.T) {
 		{1000, 4, 1.1},  // tail from rank 4 on
 		{1000, 4, 1.0},  // exponent 1 uses the logarithmic integral
 		{50000, 64, 1.05},
+		{50000, 100, 1.1}, // tail from rank 100 on, accepted through the squeeze
 		{50000, 50000, 1.1},
 	} {
 		t.Run(fmt.Sprintf("n%d_head%d_s%v", tc.n, tc.head, tc.s), func(t *testing.T) {
@@ -109,5 +110,26 @@ func TestSumWeights(t *testing.T) {
 				t.Errorf("s %v n %d: sum %.17g, plain sum %.17g", s, n, got, plain)
 			}
 		}
+	}
+}
+
+// TestSqueezeIsSafe checks the squeeze bound against the rejected width
+// computed directly, for ranks small enough that the direct computation is
+// accurate.
+func TestSqueezeIsSafe(t *testing.T) {
+	for _, s := range []float64{0.6, 1, 1.05, 1.1, 2} {
+		z := &zipf{s: s, oneMinusS: 1 - s}
+		c := squeezeWidth(s, 100)
+		for k := 100; k < 2000; k++ {
+			fk := float64(k)
+			// The x at which acceptance starts: H^-1(H(k+1/2) - k^-s).
+			start := z.bigHInv(z.bigH(fk+0.5) - math.Pow(fk, -s))
+			if w := start - (fk - 0.5); w > c || w < -1e-9 {
+				t.Fatalf("s %v k %d: rejected width %g, squeeze %g", s, k, w, c)
+			}
+		}
+	}
+	if squeezeWidth(1.1, 99) != 1 {
+		t.Errorf("a squeeze below rank 100")
 	}
 }

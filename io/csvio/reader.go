@@ -35,14 +35,15 @@ type Options struct {
 const (
 	defaultSampleRows = 10000
 	defaultBatchRows  = 65536
-	// maxRecordBytes bounds the bytes one record may span, so that a stray
-	// quote cannot make the reader hold the rest of a large file.
-	maxRecordBytes = 512 << 20
 	// maxSampleBytes bounds the bytes buffered for type inference.
 	maxSampleBytes = 64 << 20
 	// maxBatchBytes ends a batch early so that int32 offsets cannot overflow.
 	maxBatchBytes = 1 << 30
 )
+
+// maxRecordBytes bounds the bytes one record may span, so that a stray
+// quote cannot make the reader hold the rest of a large file. Tests lower it.
+var maxRecordBytes = 512 << 20
 
 // bufSize is the initial size of the read buffer; tests shrink it to
 // exercise records that straddle refills.
@@ -542,12 +543,20 @@ func (r *Reader) more() error {
 	if r.end-r.pos > maxRecordBytes {
 		if r.openQuote >= 0 {
 			return r.dataErr(false, r.openField, r.pos, r.line, r.openQuote,
-				fmt.Sprintf("quote opened here is not closed within %d MiB", maxRecordBytes>>20), false)
+				"quote opened here is not closed within "+sizeText(maxRecordBytes), false)
 		}
 		return &table.DataError{File: r.name, Line: r.line,
-			Err: fmt.Errorf("record longer than %d MiB", maxRecordBytes>>20)}
+			Err: errors.New("record longer than " + sizeText(maxRecordBytes))}
 	}
 	return r.refill()
+}
+
+// sizeText gives n bytes in MiB when that is exact.
+func sizeText(n int) string {
+	if n%(1<<20) == 0 {
+		return strconv.Itoa(n>>20) + " MiB"
+	}
+	return strconv.Itoa(n) + " bytes"
 }
 
 // refill moves the unconsumed bytes to the front of the buffer, grows it
@@ -605,16 +614,13 @@ func (r *Reader) refill() error {
 	return nil
 }
 
-// lineEnd returns the position of the first LF at or after p, the end of
-// the buffer at end of input, or -1 when more input is needed.
-func (r *Reader) lineEnd(buf []byte, p int) int {
+// lineEnd returns the position of the first LF at or after p, or the end
+// of the buffer.
+func lineEnd(buf []byte, p int) int {
 	if i := bytes.IndexByte(buf[p:], '\n'); i >= 0 {
 		return p + i
 	}
-	if r.eof {
-		return len(buf)
-	}
-	return -1
+	return len(buf)
 }
 
 // parse parses the record at r.pos, first consuming blank lines (in a
@@ -661,10 +667,10 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 	}
 	line := r.line
 	rs := p
-	le := r.lineEnd(buf, p)
-	if le < 0 {
-		return stMore, nil
-	}
+	// le is the end of the current line. When the buffer holds no LF and
+	// the input goes on, it is the end of the buffer, and the record is
+	// parsed as far as it goes so that an open quote can be reported.
+	le := lineEnd(buf, p)
 	qp := p + indexOrLen(buf[p:le], '"')
 	extra := 0 // LFs inside quoted fields
 	fi := 0
@@ -709,6 +715,9 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 				c.put(row, len(v) == 0)
 			}
 			if j < 0 {
+				if le == len(buf) && !r.eof {
+					return stMore, nil
+				}
 				next := le
 				if le < len(buf) {
 					next++
@@ -793,9 +802,7 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 		}
 		fi++
 		if p > le {
-			if le = r.lineEnd(buf, p); le < 0 {
-				return stMore, nil
-			}
+			le = lineEnd(buf, p)
 		}
 		qp = p + indexOrLen(buf[p:le], '"')
 	}
@@ -839,7 +846,9 @@ func (r *Reader) dataErr(hdr bool, fi, rs int, line int64, at int, msg string, w
 	switch {
 	case hdr && !r.noHeader:
 		e.Err = fmt.Errorf("header field %d: %s", fi+1, msg)
-	case hdr || fi >= r.ncols:
+	case hdr:
+		e.Column = "col" + strconv.Itoa(fi+1)
+	case fi >= r.ncols:
 		e.Err = fmt.Errorf("field %d: %s", fi+1, msg)
 	default:
 		e.Column = r.fields[fi].Name

@@ -408,6 +408,8 @@ func TestErrors(t *testing.T) {
 		{"too many fields", "a,b\n1,2,3\n", Options{}, "shipments.csv:2: 3 fields, header has 2", 2, "", 0},
 		{"ragged after quoted newline", "a,b\n\"x\ny\",1\n2\n", Options{}, "shipments.csv:4: 1 fields, header has 2", 4, "", 1},
 		{"ragged no header", "1,2\n3\n", Options{NoHeader: true}, "shipments.csv:2: 1 fields, first row has 2", 2, "", 1},
+		{"bad first row, no header", "1,x\"\n", Options{NoHeader: true},
+			`shipments.csv:1: column "col2": byte 4: " inside an unquoted field (quote the whole field and double the ")`, 1, "col2", 0},
 		{"unterminated quote", "id,route\n1,R1\n2,\"R2\n3,R3\n", Options{},
 			`shipments.csv:3: column "route": quote opened here is never closed`, 3, "route", 1},
 		{"unterminated quote after doubled", "id,route\n1,\"R\"\"", Options{},
@@ -457,6 +459,23 @@ func TestErrors(t *testing.T) {
 				t.Errorf("%d rows before the error, want %d", len(res.rows), tc.rows)
 			}
 		})
+	}
+}
+
+func TestRecordLimit(t *testing.T) {
+	old, oldBuf := maxRecordBytes, bufSize
+	maxRecordBytes, bufSize = 64, 16
+	defer func() { maxRecordBytes, bufSize = old, oldBuf }()
+	long := strings.Repeat("x", 1000)
+	tests := []struct{ in, msg string }{
+		{"id,note\n1,ok\n2,\"" + long + "\"\n", `shipments.csv:3: column "note": quote opened here is not closed within 64 bytes`},
+		{"id,note\n1,ok\n2," + long + "\n", "shipments.csv:3: record longer than 64 bytes"},
+	}
+	for _, tc := range tests {
+		res, err := readAll([]byte(tc.in), Options{SampleRows: 1}, nil)
+		if err == nil || err.Error() != tc.msg || len(res.rows) != 1 {
+			t.Errorf("err = %v after %d rows, want %s after 1", err, len(res.rows), tc.msg)
+		}
 	}
 }
 

@@ -23,7 +23,7 @@ import (
 // Config describes the table to generate. The zero value of each optional
 // field selects its default.
 type Config struct {
-	// Rows is the number of shipments.
+	// Rows is the number of shipments (at most 2^40).
 	Rows int64
 	// Seed selects the network: the postcodes, accounts and routes, their
 	// popularity and their effects on the targets, and the rows.
@@ -42,19 +42,25 @@ type Config struct {
 	// UnseenShare is the share of rows whose postcode, and independently
 	// the share whose account, is drawn from a pool disjoint from the
 	// training pool, so a model fitted on a table with UnseenShare 0 meets
-	// levels it never saw. It must be 0 for training data.
+	// levels it never saw. Use 0 for training data.
 	UnseenShare float64
 	// BatchRows is the number of rows per batch passed to the writer; 0
 	// means 65536.
 	BatchRows int
 }
 
-// Defaults and limits of the Config fields.
+// Defaults of the Config fields.
 const (
+	// DefaultPostcodes is the number of postcodes when Config.Postcodes is 0.
 	DefaultPostcodes = 40000
-	DefaultAccounts  = 200000
+	// DefaultAccounts is the number of accounts when Config.Accounts is 0.
+	DefaultAccounts = 200000
+	// DefaultBatchRows is the batch size when Config.BatchRows is 0.
 	DefaultBatchRows = 65536
+)
 
+// Limits of the Config fields.
+const (
 	maxPostcodes = prefixCount * suffixCount
 	maxAccounts  = 50_000_000
 	maxBatchRows = 1 << 22
@@ -117,8 +123,8 @@ func (cfg Config) withDefaults() (Config, error) {
 	case !(cfg.UnseenShare >= 0 && cfg.UnseenShare <= 1):
 		return cfg, fmt.Errorf("parcels: unseen share %v out of range 0..1", cfg.UnseenShare)
 	case cfg.UnseenShare > 0 && unseenPostcodes(cfg.Postcodes) == 0:
-		return cfg, fmt.Errorf("parcels: %d postcodes leave no room for unseen postcodes (at most about %d with an unseen share)",
-			cfg.Postcodes, maxPostcodes/2)
+		return cfg, fmt.Errorf("parcels: %d postcodes leave no room for unseen postcodes (use at most %d with an unseen share)",
+			cfg.Postcodes, maxPostcodes-prefixCount)
 	}
 	return cfg, nil
 }
@@ -158,9 +164,9 @@ const drawsPerRow = 8
 
 // Thresholds of the 21-bit coins.
 const (
-	coinBits    = 21
-	coinMask    = 1<<coinBits - 1
-	weightDecis = 1000 // weights are rounded to grams
+	coinBits   = 21
+	coinMask   = 1<<coinBits - 1
+	gramsPerKg = 1000 // weights are rounded to grams
 )
 
 var (
@@ -317,7 +323,7 @@ func (g *generator) fill(first int64, n int) {
 
 		// Weight, rounded to grams.
 		lw := nw.typeMu[t] + pt.logS*gauss4(st.next())
-		w := math.Max(1, math.Round(math.Exp(lw)*weightDecis)) / weightDecis
+		w := math.Max(1, math.Round(math.Exp(lw)*gramsPerKg)) / gramsPerKg
 		weights = append(weights, w)
 
 		// Late delivery.

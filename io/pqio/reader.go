@@ -19,7 +19,7 @@
 //   - FLOAT and DOUBLE give float;
 //   - BOOLEAN gives bool.
 //
-// The reader yields at most batchRows rows per batch, and a batch never
+// The reader yields at most 65536 rows per batch, and a batch never
 // spans two row groups, so its memory is bounded by the row group size
 // rather than the file's. A text column whose pages in the batch are all
 // dictionary encoded comes as table.FormDict, with a Dict copied from the
@@ -44,6 +44,7 @@
 package pqio
 
 import (
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
@@ -59,8 +60,9 @@ import (
 	"manyfold/io/table"
 )
 
-// batchRows is the largest number of rows in a batch.
-const batchRows = 1 << 16
+// batchRows is the largest number of rows in a batch (a variable so that
+// tests can make batches small).
+var batchRows int64 = 1 << 16
 
 // dictIDs hands out Dict IDs, unique across every reader in the process.
 var dictIDs atomic.Uint64
@@ -127,6 +129,21 @@ func openReaderAt(name string, ra io.ReaderAt, size int64) (r *Reader, err error
 			r, err = nil, fmt.Errorf("%s: %w: reading the footer: %v", name, table.ErrCorrupt, p)
 		}
 	}()
+	// Check the footer's length before the decoder allocates a buffer of
+	// that size: a damaged length would otherwise cost up to 4 GiB.
+	var tail [8]byte
+	if size < 12 {
+		return nil, fmt.Errorf("%s: %w: %d bytes is too short for a Parquet file", name, table.ErrCorrupt, size)
+	}
+	if _, err := ra.ReadAt(tail[:], size-8); err != nil {
+		return nil, fmt.Errorf("%s: reading the footer: %w", name, err)
+	}
+	if string(tail[4:]) != "PAR1" {
+		return nil, fmt.Errorf("%s: %w: no Parquet magic at the end of the file", name, table.ErrCorrupt)
+	}
+	if n := int64(binary.LittleEndian.Uint32(tail[:4])); n+12 > size {
+		return nil, fmt.Errorf("%s: %w: footer of %d bytes in a file of %d", name, table.ErrCorrupt, n, size)
+	}
 	pf, err := parquet.OpenFile(ra, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true))
 	if err != nil {
 		if isIOError(err) {
@@ -191,7 +208,7 @@ func (r *Reader) readSchema() error {
 		case parquet.Boolean:
 			l.kind = table.Bool
 		default:
-			return fmt.Errorf("%s: column %q: unsupported physical type %v", r.path, path[0], l.phys)
+			return fmt.Errorf("%s: %w: column %q has unknown physical type %v", r.path, table.ErrCorrupt, path[0], l.phys)
 		}
 		r.leaves = append(r.leaves, l)
 		r.full.Fields = append(r.full.Fields, table.Field{Name: l.name, Kind: l.kind, Nullable: l.maxDef > 0})

@@ -27,8 +27,10 @@ type WriterOptions struct {
 // defaultRowGroupRows is the row group size when WriterOptions leaves it 0.
 const defaultRowGroupRows = 1 << 20
 
-// chunkRows is how many rows the writer converts and hands on at a time.
-const chunkRows = 4096
+// chunkRows is how many rows the writer converts and hands on at a time;
+// a page ends only between two such hand-overs (a variable so that tests
+// can make pages short).
+var chunkRows = 4096
 
 // dictMaxBytes bounds a text column's dictionary within a row group; past it
 // the column's remaining pages in the row group are written PLAIN.
@@ -231,7 +233,7 @@ func (w *writer) convert(j int, c *table.Column, start, k int, first int64) erro
 					vals[i] = null
 					continue
 				}
-				vals[i] = parquet.ByteArrayValue(c.Bytes(start + i)).Level(0, def, j)
+				vals[i] = parquet.ByteArrayValue(c.Bytes(start+i)).Level(0, def, j)
 			}
 			return nil
 		}

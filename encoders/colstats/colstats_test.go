@@ -1,0 +1,138 @@
+package colstats
+
+import (
+	"math"
+	"testing"
+)
+
+// build returns binary statistics with one fold from (level, class) rows.
+func build(rows [][2]string) *Stats {
+	s := New(Binary, 1, 2, 0)
+	for _, r := range rows {
+		l := s.Level([]byte(r[0]))
+		c := 0
+		if r[1] == "1" {
+			c = 1
+		}
+		s.AddClass(l, 0, c)
+	}
+	return s
+}
+
+func TestTopKAndShares(t *testing.T) {
+	// Reference check (computed; the tie rule is a convention of ours):
+	// counts A=4, B=5, C=1 -> shares 0.4, 0.5, 0.1; top-2 = {B, A}, C -> other.
+	var rows [][2]string
+	for i := 0; i < 4; i++ {
+		rows = append(rows, [2]string{"A", "0"})
+	}
+	for i := 0; i < 5; i++ {
+		rows = append(rows, [2]string{"B", "0"})
+	}
+	rows = append(rows, [2]string{"C", "1"})
+	s := build(rows)
+	codes := s.TopK(2, 1, nil)
+	want := map[string]int32{"A": 2, "B": 1, "C": 0}
+	for lv, code := range want {
+		if got := codes[s.Lookup([]byte(lv))]; got != code {
+			t.Errorf("top-2 code of %s = %d, want %d", lv, got, code)
+		}
+	}
+	shares := map[string]float64{"A": 0.4, "B": 0.5, "C": 0.1}
+	for lv, sh := range shares {
+		if got := float64(s.Rows[s.Lookup([]byte(lv))]) / 10; math.Abs(got-sh) > 1e-15 {
+			t.Errorf("share of %s = %v, want %v", lv, got, sh)
+		}
+	}
+}
+
+func TestTopKTiesByBytes(t *testing.T) {
+	s := build([][2]string{{"b", "0"}, {"a", "0"}, {"c", "0"}, {"c", "0"}})
+	codes := s.TopK(3, 1, nil)
+	for lv, want := range map[string]int32{"c": 1, "a": 2, "b": 3} {
+		if got := codes[s.Lookup([]byte(lv))]; got != want {
+			t.Errorf("code of %s = %d, want %d", lv, got, want)
+		}
+	}
+	if codes := s.TopK(3, 2, nil); codes[s.Lookup([]byte("a"))] != 0 || codes[s.Lookup([]byte("c"))] != 1 {
+		t.Errorf("min count 2: got %v", codes)
+	}
+}
+
+func TestOutOfFoldWorkedExample(t *testing.T) {
+	// Reference check (Pargent et al. 2022 protocol; values computed from the
+	// Cestnik 1990 m-estimate): rows A1 A1 A0 A1 B0 B0 B1 B0 in folds
+	// 0 1 0 1 0 1 0 1, m = 1 with the prior of the fitting rows: fold-0 rows
+	// get A -> 5/6, B -> 1/6; fold-1 rows get A -> 0.5, B -> 0.5.
+	rows := []struct {
+		lv   string
+		y, f int
+	}{{"A", 1, 0}, {"A", 1, 1}, {"A", 0, 0}, {"A", 1, 1}, {"B", 0, 0}, {"B", 0, 1}, {"B", 1, 0}, {"B", 0, 1}}
+	s := New(Binary, 2, 2, 0)
+	for _, r := range rows {
+		s.AddClass(s.Level([]byte(r.lv)), r.f, r.y)
+	}
+	sm := Smoothing{Kind: "m", M: 1}
+	want := map[int]map[string]float64{0: {"A": 5.0 / 6, "B": 1.0 / 6}, 1: {"A": 0.5, "B": 0.5}}
+	for f, lv := range want {
+		ft, _ := s.Fit(0, f, 1, sm, nil, nil, nil)
+		for name, v := range lv {
+			got := ft.Encode(s.Target(s.Lookup([]byte(name)), 0, f, 1))
+			if math.Abs(got-v) > 1e-12 {
+				t.Errorf("fold %d level %s = %v, want %v", f, name, got, v)
+			}
+		}
+	}
+}
+
+func TestMergeEqualsWhole(t *testing.T) {
+	rows := [][2]string{{"x", "1"}, {"y", "0"}, {"x", "0"}, {"z", "1"}, {"y", "1"}, {"x", "1"}}
+	whole := build(rows)
+	a, b := build(rows[:3]), build(rows[3:])
+	if err := a.Merge(b); err != nil {
+		t.Fatal(err)
+	}
+	for _, lv := range []string{"x", "y", "z"} {
+		w, m := whole.Lookup([]byte(lv)), a.Lookup([]byte(lv))
+		if whole.Rows[w] != a.Rows[m] || whole.Target(w, 0, -1, 1) != a.Target(m, 0, -1, 1) {
+			t.Errorf("level %s: merged %v/%v, whole %v/%v", lv, a.Rows[m], a.Target(m, 0, -1, 1), whole.Rows[w], whole.Target(w, 0, -1, 1))
+		}
+	}
+	if err := a.Merge(New(Regression, 1, 0, 0)); err == nil {
+		t.Error("merging regression into binary statistics succeeded")
+	}
+}
+
+func TestAddClassesAndPermute(t *testing.T) {
+	s := New(Multiclass, 2, 1, 0)
+	l := s.Level([]byte("p"))
+	s.AddClass(l, 1, 0)
+	s.AddClasses(3)
+	s.AddClass(l, 1, 2)
+	s.AddClass(l, 0, 1)
+	s.PermuteClasses([]int{2, 0, 1}) // old 0 -> 2, old 1 -> 0, old 2 -> 1
+	for o, want := range []float64{1, 1, 1} {
+		if got := s.Target(l, o, -1, 0).Sum; got != want {
+			t.Errorf("class %d sum = %v, want %v", o, got, want)
+		}
+	}
+	if got := s.Target(l, 2, 0, 0).Sum; got != 1 { // old class 0 was in fold 1
+		t.Errorf("class 2 outside fold 0 = %v, want 1", got)
+	}
+}
+
+func TestEncodeEdgeCases(t *testing.T) {
+	ft := Fitted{Prior: 0.3, M: math.Inf(1), Sm: Smoothing{Kind: "auto"}}
+	if v := ft.Encode(Agg{N: 10, Sum: 10}); v != 0.3 {
+		t.Errorf("infinite m gave %v, want the prior", v)
+	}
+	ft = Fitted{Prior: 0.3, M: 2, Sm: Smoothing{Kind: "m", M: 2}}
+	if v := ft.Encode(Agg{}); v != 0.3 {
+		t.Errorf("empty level gave %v, want the prior", v)
+	}
+	// Cestnik 1990 m-estimate, computed: s=3, n=4, m=2, p=0.5 -> 2/3.
+	ft = Fitted{Prior: 0.5, M: 2, Sm: Smoothing{Kind: "m", M: 2}}
+	if v := ft.Encode(Agg{N: 4, Sum: 3}); math.Abs(v-2.0/3) > 1e-15 {
+		t.Errorf("m-estimate = %v, want 2/3", v)
+	}
+}

@@ -317,7 +317,9 @@ func (m *Model) saveCol(path string, c *Col) error {
 		}
 		floatCol(func(l int) float64 { return c.Freq[l] })
 		intCol(func(l int) int64 { return int64(c.TopK[l]) })
-		intCol(func(l int) int64 { return int64(hashenc.Bucket(hashenc.Sum(st.Bytes(l), m.Spec.HashSeed), m.Spec.Buckets)) })
+		intCol(func(l int) int64 {
+			return int64(hashenc.Bucket(hashenc.Sum(st.Bytes(l), m.Spec.HashSeed), m.Spec.Buckets))
+		})
 		b.Rows = n
 		if n == 0 {
 			continue

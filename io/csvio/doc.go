@@ -29,6 +29,9 @@
 //     set, in which case the columns are named col1, col2, ... Header names
 //     must be non-empty and distinct. Every record must have as many fields
 //     as the header.
+//   - A record may span at most 512 MiB (about: the check is made when
+//     the read buffer is refilled), so that a stray quote cannot make the
+//     reader hold the rest of a large file.
 //   - An input that holds no bytes, or only a byte order mark and white
 //     space, is an error wrapping table.ErrEmpty. A header with no rows is a
 //     valid table of zero rows.

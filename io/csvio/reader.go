@@ -171,6 +171,8 @@ type Reader struct {
 
 	batchRows  int
 	rowCap     int // rows every column has room for
+	hintRows   int   // rows per batch expected, from the sample
+	hintBytes  []int // bytes per batch expected for each file column
 	batchBytes int
 	started    bool
 	err        error // sticky; io.EOF after the last batch
@@ -372,6 +374,7 @@ func (r *Reader) infer(n int, overridden []bool) {
 	r.mark = r.pos
 	markLine := r.line
 	rows := 0
+	atEnd := false
 	for rows < n && r.pos-r.mark < maxSampleBytes {
 		if rows+2 > r.rowCap {
 			r.growRows(rows)
@@ -386,6 +389,7 @@ func (r *Reader) infer(n int, overridden []bool) {
 		if st == stMore && r.more() == nil {
 			continue
 		}
+		atEnd = st == stEOF
 		break
 	}
 	for i := range r.fields {
@@ -394,10 +398,24 @@ func (r *Reader) infer(n int, overridden []bool) {
 		}
 	}
 	r.pos, r.line, r.mark = r.mark, markLine, -1
-	copy(r.schema.Fields, r.fields)
-	for i := range r.cols {
-		r.cols[i].reset()
+	// Size the batch buffers from the sample, so that the first batch
+	// does not grow them step by step.
+	if rows > 0 {
+		r.hintRows = min(r.batchRows, 1<<20)
+		if atEnd {
+			r.hintRows = min(r.hintRows, rows)
+		}
+		r.hintBytes = make([]int, len(r.cols))
+		for i := range r.cols {
+			per := float64(len(r.cols[i].data)) / float64(rows)
+			r.hintBytes[i] = min(int(per*float64(r.hintRows)*1.125)+64, 256<<20)
+		}
 	}
+	all := make([]int, r.ncols)
+	for i := range all {
+		all[i] = i
+	}
+	r.selectCols(all)
 }
 
 // Schema returns the columns, restricted by Select if it was called.
@@ -439,6 +457,11 @@ func (r *Reader) selectCols(cols []int) {
 	for k, c := range cols {
 		r.sel[c] = k
 		r.schema.Fields[k] = r.fields[c]
+		if r.hintBytes != nil {
+			r.cols[k].data = make([]byte, 0, r.hintBytes[c])
+			r.cols[k].grow(r.hintRows)
+			r.rowCap = len(r.cols[k].offs) - 1
+		}
 		r.cols[k].reset()
 	}
 }

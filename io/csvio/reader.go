@@ -170,7 +170,7 @@ type Reader struct {
 	rowsDone int64
 
 	batchRows  int
-	rowCap     int // rows every column has room for
+	rowCap     int   // rows every column has room for
 	hintRows   int   // rows per batch expected, from the sample
 	hintBytes  []int // bytes per batch expected for each file column
 	batchBytes int

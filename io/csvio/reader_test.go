@@ -471,6 +471,10 @@ func TestRecordLimit(t *testing.T) {
 		{"id,note\n1,ok\n2,\"" + long + "\"\n", `shipments.csv:3: column "note": quote opened here is not closed within 64 bytes`},
 		{"id,note\n1,ok\n2," + long + "\n", "shipments.csv:3: record longer than 64 bytes"},
 	}
+	if _, err := readAll([]byte("id,\""+long), Options{}, nil); err == nil ||
+		err.Error() != "shipments.csv:1: field 2: quote opened here is not closed within 64 bytes" {
+		t.Errorf("long header: err = %v", err)
+	}
 	for _, tc := range tests {
 		res, err := readAll([]byte(tc.in), Options{SampleRows: 1}, nil)
 		if err == nil || err.Error() != tc.msg || len(res.rows) != 1 {

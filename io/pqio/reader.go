@@ -176,22 +176,22 @@ func isIOError(err error) bool {
 	return errors.As(err, &pe)
 }
 
-// readSchema fills r.leaves and r.full from the file's schema.
+// readSchema fills r.leaves and r.full from the file's schema. Levels come
+// from the file's column tree, which is what the page decoder uses: the
+// schema's Lookup counts a root marked repeated (as some writers mark it)
+// and would give levels one too high.
 func (r *Reader) readSchema() error {
-	s := r.pf.Schema()
-	for _, path := range s.Columns() {
-		if len(path) != 1 {
-			continue // nested in a group
+	root := r.pf.Root()
+	for _, col := range root.Columns() {
+		if !col.Leaf() || col.Repeated() || col.MaxRepetitionLevel() > 0 {
+			continue // a group, a list or a map
 		}
-		lc, ok := s.Lookup(path...)
-		if !ok || lc.MaxRepetitionLevel > 0 || lc.Node.Repeated() || !lc.Node.Leaf() {
-			continue // repeated (a list, a map)
+		name := col.Name()
+		if d := col.MaxDefinitionLevel(); d > 1 || d < 0 {
+			return fmt.Errorf("%s: %w: column %q has definition level %d", r.path, table.ErrCorrupt, name, d)
 		}
-		if lc.MaxDefinitionLevel > 255 || lc.MaxDefinitionLevel < 0 {
-			return fmt.Errorf("%s: %w: column %q has definition level %d", r.path, table.ErrCorrupt, path[0], lc.MaxDefinitionLevel)
-		}
-		t := lc.Node.Type()
-		l := leaf{name: path[0], index: lc.ColumnIndex, maxDef: byte(lc.MaxDefinitionLevel), phys: t.Kind()}
+		t := col.Type()
+		l := leaf{name: name, index: col.Index(), maxDef: byte(col.MaxDefinitionLevel()), phys: t.Kind()}
 		switch l.phys {
 		case parquet.ByteArray:
 			l.kind = table.String
@@ -208,15 +208,15 @@ func (r *Reader) readSchema() error {
 		case parquet.Boolean:
 			l.kind = table.Bool
 		default:
-			return fmt.Errorf("%s: %w: column %q has unknown physical type %v", r.path, table.ErrCorrupt, path[0], l.phys)
+			return fmt.Errorf("%s: %w: column %q has unknown physical type %v", r.path, table.ErrCorrupt, name, l.phys)
 		}
 		r.leaves = append(r.leaves, l)
 		r.full.Fields = append(r.full.Fields, table.Field{Name: l.name, Kind: l.kind, Nullable: l.maxDef > 0})
 	}
 	if len(r.leaves) == 0 {
-		if n := len(s.Columns()); n > 0 {
+		if cols := root.Columns(); len(cols) > 0 {
 			return fmt.Errorf("%s: none of its %d columns is a flat primitive column (first: %q)",
-				r.path, n, joinPath(s.Columns()[0]))
+				r.path, len(cols), cols[0].Name())
 		}
 		return fmt.Errorf("%s: the file has no columns", r.path)
 	}
@@ -237,17 +237,6 @@ func isUnsigned(t parquet.Type) bool {
 		}
 	}
 	return false
-}
-
-func joinPath(p []string) string {
-	s := ""
-	for i, e := range p {
-		if i > 0 {
-			s += "."
-		}
-		s += e
-	}
-	return s
 }
 
 // setSelection makes the columns at positions sel of the full schema the

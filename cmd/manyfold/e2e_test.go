@@ -1,0 +1,430 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"fmt"
+	"os"
+	"path/filepath"
+	"reflect"
+	"slices"
+	"strings"
+	"testing"
+
+	"manyfold/folds"
+	"manyfold/io/table"
+)
+
+// encodedNames returns the names of the columns encode added to tt (those
+// after the input's columns).
+func encodedNames(tt *textTable, inputCols int) []string { return tt.names[inputCols:] }
+
+// withNullPostcodes blanks the postcode of every 9th row of a shipments CSV.
+func withNullPostcodes(csv string) string {
+	lines := strings.Split(csv, "\n")
+	for i := 1; i < len(lines); i++ {
+		if i%9 == 0 && lines[i] != "" {
+			_, rest, _ := strings.Cut(lines[i], ",")
+			lines[i] = "," + rest
+		}
+	}
+	return strings.Join(lines, "\n")
+}
+
+// TestApplyOnTrainingMatchesSchemeNone: with --scheme none a training row
+// is encoded in-sample, exactly as apply encodes a new row, so applying the
+// tables to the training file gives the encoded table's values.
+func TestApplyOnTrainingMatchesSchemeNone(t *testing.T) {
+	cases := []struct {
+		name, target, columns string
+		flags                 []string
+	}{
+		{"binary", "late", "postcode,sender,route", []string{"--smoothing", "m=2"}},
+		{"binary left-out levels", "late", "postcode,sender,route", []string{"--min-level-rows", "8", "--top-k", "4", "--signed"}},
+		{"nulls unseen", "late", "postcode,sender", []string{"--nulls", "unseen", "--freq", "share"}},
+		{"regression", "cost", "postcode,sender,route", nil},
+		{"multiclass", "parcel_type", "postcode,sender", []string{"--smoothing", "blend=3,1.5"}},
+		{"hierarchical prior", "late", "route", []string{"--prior-by", "prefix=2"}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			dir := t.TempDir()
+			train := writeFile(t, dir, "shipments.csv", withNullPostcodes(shipmentsCSV(300)))
+			enc := filepath.Join(dir, "enc.csv")
+			tables := filepath.Join(dir, "tables")
+			args := append([]string{"encode", train, "--target", c.target, "--columns", c.columns,
+				"--methods", "target,freq,topk,hash", "--scheme", "none", "--out", enc, "--tables", tables}, c.flags...)
+			mustRun(t, args...)
+			app := filepath.Join(dir, "applied.parquet")
+			res := mustRun(t, "apply", train, "--tables", tables, "--out", app)
+			if !strings.Contains(res.stderr, "applied "+tables+" to 300 rows") {
+				t.Errorf("apply summary %q", res.stderr)
+			}
+			e, a := readTable(t, enc), readTable(t, app)
+			if !slices.Equal(e.names, a.names) {
+				t.Fatalf("encode wrote %v, apply %v", e.names, a.names)
+			}
+			names := encodedNames(e, 6)
+			if len(names) < 4 {
+				t.Fatalf("only %v encoded", names)
+			}
+			for _, n := range names {
+				ec, ac := e.col(t, n), a.col(t, n)
+				for i := range ec {
+					if ec[i] != ac[i] {
+						t.Errorf("%s row %d: encode %s, apply %s", n, i+1, ec[i], ac[i])
+						break
+					}
+				}
+			}
+		})
+	}
+}
+
+// shipmentBatches returns the same shipments as two batches: text
+// postcode (with nulls), sender and route, integer late.
+func shipmentBatches() (*table.Schema, []*table.Batch) {
+	s := &table.Schema{Fields: []table.Field{
+		{Name: "postcode", Kind: table.String, Nullable: true},
+		{Name: "sender", Kind: table.String, Nullable: true},
+		{Name: "route", Kind: table.String, Nullable: true},
+		{Name: "late", Kind: table.Int64, Nullable: true},
+	}}
+	var out []*table.Batch
+	first := int64(1)
+	for _, n := range []int{170, 130} {
+		var pc, snd, rt []string
+		var late []int64
+		for j := 0; j < n; j++ {
+			i := int(first) - 1 + j
+			p := fmt.Sprintf("PC%03d", (i*7)%29)
+			if i%11 == 5 {
+				p = nullCell
+			}
+			pc = append(pc, p)
+			snd = append(snd, fmt.Sprintf("ACC-%d", (i*i+3)%13))
+			rt = append(rt, fmt.Sprintf("R%d-%d", i%4, (i/3)%5))
+			late = append(late, int64((i*13+i/5)%3%2))
+		}
+		out = append(out, &table.Batch{Rows: n, FirstRow: first,
+			Cols: []table.Column{textColumn(pc), textColumn(snd), textColumn(rt), intColumn(late)}})
+		first += int64(n)
+	}
+	return s, out
+}
+
+// compareTablesDirs checks that two tables directories hold the same
+// files, the same Parquet tables cell by cell, and manifests equal but for
+// the keys in skip (top-level keys).
+func compareTablesDirs(t *testing.T, a, b string, skip ...string) {
+	t.Helper()
+	ea, eb := dirEntries(t, a), dirEntries(t, b)
+	if !slices.Equal(ea, eb) {
+		t.Fatalf("%s holds %v, %s holds %v", a, ea, b, eb)
+	}
+	for _, name := range ea {
+		if !strings.HasSuffix(name, ".parquet") {
+			continue
+		}
+		ta, tb := readTable(t, filepath.Join(a, name)), readTable(t, filepath.Join(b, name))
+		if !slices.Equal(ta.names, tb.names) {
+			t.Errorf("%s: columns %v and %v", name, ta.names, tb.names)
+			continue
+		}
+		if len(ta.rows) != len(tb.rows) {
+			t.Errorf("%s: %d rows and %d", name, len(ta.rows), len(tb.rows))
+			continue
+		}
+		bad := 0
+		for i := range ta.rows {
+			for j := range ta.rows[i] {
+				if ta.rows[i][j] != tb.rows[i][j] && bad < 5 {
+					bad++
+					t.Errorf("%s row %d column %s: %s and %s", name, i+1, ta.names[j], ta.rows[i][j], tb.rows[i][j])
+				}
+			}
+		}
+	}
+	ma, mb := readManifest(t, a), readManifest(t, b)
+	for _, k := range skip {
+		delete(ma, k)
+		delete(mb, k)
+	}
+	for k := range ma {
+		if !reflect.DeepEqual(ma[k], mb[k]) {
+			ja, _ := json.Marshal(ma[k])
+			jb, _ := json.Marshal(mb[k])
+			t.Errorf("manifest %q differs:\n%s\n%s", k, ja, jb)
+		}
+	}
+	for k := range mb {
+		if _, ok := ma[k]; !ok {
+			t.Errorf("manifest %q only in %s", k, b)
+		}
+	}
+}
+
+func readManifest(t *testing.T, dir string) map[string]any {
+	t.Helper()
+	b, err := os.ReadFile(filepath.Join(dir, "manifest.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var m map[string]any
+	if err := json.Unmarshal(b, &m); err != nil {
+		t.Fatal(err)
+	}
+	return m
+}
+
+// TestCSVAndParquetSameTables: the same rows as CSV and as Parquet give the
+// same mapping tables, manifest and encoded values.
+func TestCSVAndParquetSameTables(t *testing.T) {
+	dir := t.TempDir()
+	s, batches := shipmentBatches()
+	var tables, outs []string
+	for _, ext := range []string{"csv", "parquet"} {
+		in := filepath.Join(dir, "shipments."+ext)
+		writeTable(t, in, s, batches...)
+		out := filepath.Join(dir, "enc-"+ext+".csv")
+		tab := filepath.Join(dir, "tables-"+ext)
+		mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,sender,route",
+			"--methods", "target,freq,topk,hash", "--folds", "3", "--seed", "4", "--top-k", "6",
+			"--fold-column", "fold", "--out", out, "--tables", tab)
+		tables, outs = append(tables, tab), append(outs, out)
+	}
+	// Nothing differs, not even the input's types: the CSV reader infers
+	// text for the postcodes and int for late, as the Parquet file declares.
+	compareTablesDirs(t, tables[0], tables[1])
+	oc, op := readTable(t, outs[0]), readTable(t, outs[1])
+	if !reflect.DeepEqual(oc.rows, op.rows) || !slices.Equal(oc.names, op.names) {
+		t.Errorf("encoded tables differ between CSV and Parquet input")
+	}
+	if len(oc.rows) != 300 {
+		t.Errorf("%d rows encoded, want 300", len(oc.rows))
+	}
+}
+
+// TestShardMerge: tables fitted on the two halves of a file and merged
+// equal the tables fitted on the whole file.
+func TestShardMerge(t *testing.T) {
+	whole := withNullPostcodes(shipmentsCSV(301))
+	lines := strings.SplitAfter(whole, "\n")
+	header, body := lines[0], lines[1:]
+	half := len(body) / 2
+	for _, scheme := range []string{"none", "kfold"} {
+		for _, smoothing := range []string{"auto", "m=3", "blend=2,1"} {
+			t.Run(scheme+" "+smoothing, func(t *testing.T) {
+				dir := t.TempDir()
+				files := map[string]string{
+					"a.csv":     header + strings.Join(body[:half], ""),
+					"b.csv":     header + strings.Join(body[half:], ""),
+					"whole.csv": whole,
+				}
+				for name, text := range files {
+					writeFile(t, dir, name, text)
+					flags := []string{"encode", filepath.Join(dir, name), "--target", "late", "--columns", "postcode,sender,route",
+						"--methods", "target,freq,topk,hash", "--top-k", "5", "--scheme", scheme, "--smoothing", smoothing, "--folds", "3",
+						"--out", filepath.Join(dir, name+".enc.csv"), "--tables", filepath.Join(dir, "tables-"+name)}
+					mustRun(t, flags...)
+				}
+				merged := filepath.Join(dir, "merged")
+				res := mustRun(t, "merge", filepath.Join(dir, "tables-a.csv"), filepath.Join(dir, "tables-b.csv"), "--tables", merged)
+				if !strings.Contains(res.stderr, "merged 2 tables directories (301 rows)") {
+					t.Errorf("merge summary %q", res.stderr)
+				}
+				compareTablesDirs(t, merged, filepath.Join(dir, "tables-whole.csv"))
+			})
+		}
+	}
+}
+
+// TestMergeMismatch: tables fitted with other parameters do not merge.
+func TestMergeMismatch(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "shipments.csv", shipmentsCSV(50))
+	for i, sm := range []string{"m=1", "m=2"} {
+		mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--smoothing", sm,
+			"--out", filepath.Join(dir, fmt.Sprintf("e%d.csv", i)), "--tables", filepath.Join(dir, fmt.Sprintf("t%d", i)))
+	}
+	res := runCLI(t, "merge", filepath.Join(dir, "t0"), filepath.Join(dir, "t1"), "--tables", filepath.Join(dir, "m"))
+	if res.code != exitMismatch || !strings.Contains(res.stderr, "t1") {
+		t.Errorf("exit %d, stderr %q; want %d naming t1", res.code, res.stderr, exitMismatch)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "m")); err == nil {
+		t.Errorf("merge left a tables directory behind")
+	}
+}
+
+// TestDeterministic: the same encode twice gives byte-identical outputs
+// and tables, in every output format.
+func TestDeterministic(t *testing.T) {
+	for _, ext := range []string{"csv", "parquet", "arrow"} {
+		t.Run(ext, func(t *testing.T) {
+			dir := t.TempDir()
+			in := writeFile(t, dir, "shipments.csv", withNullPostcodes(shipmentsCSV(400)))
+			var snaps []map[string][]byte
+			for run := 0; run < 2; run++ {
+				d := filepath.Join(dir, fmt.Sprint(run))
+				if err := os.Mkdir(d, 0o755); err != nil {
+					t.Fatal(err)
+				}
+				mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,sender,route",
+					"--methods", "target,freq,topk,hash", "--fold-column", "fold", "--seed", "11",
+					"--out", filepath.Join(d, "enc."+ext), "--tables", filepath.Join(d, "tables"))
+				mustRun(t, "apply", in, "--tables", filepath.Join(d, "tables"), "--out", filepath.Join(d, "app."+ext))
+				s := map[string][]byte{}
+				for p, b := range snapshot(t, d) {
+					rel, _ := filepath.Rel(d, p)
+					s[rel] = b
+				}
+				snaps = append(snaps, s)
+			}
+			if len(snaps[0]) != len(snaps[1]) || len(snaps[0]) < 5 {
+				t.Fatalf("runs wrote %d and %d files", len(snaps[0]), len(snaps[1]))
+			}
+			for name, b := range snaps[0] {
+				if !bytes.Equal(b, snaps[1][name]) {
+					t.Errorf("%s differs between two identical runs", name)
+				}
+			}
+		})
+	}
+}
+
+// foldKeys returns two group keys that folds.Key puts in fold 0 and fold 1
+// of 2 with seed 0, found by search.
+func foldKeys(t *testing.T) [2]string {
+	var keys [2]string
+	for i := 0; i < 100 && (keys[0] == "" || keys[1] == ""); i++ {
+		k := fmt.Sprintf("ACC-%d", i)
+		if f := folds.Key(0, []byte(k), 2); keys[f] == "" {
+			keys[f] = k
+		}
+	}
+	if keys[0] == "" || keys[1] == "" {
+		t.Fatal("no keys found for both folds")
+	}
+	return keys
+}
+
+// TestOutOfFoldWorkedExample checks k-fold out-of-fold values against the
+// worked example computed from the m-estimate formula (Cestnik, ECAI 1990:
+// (s + m*p)/(n + m)) under the protocol of Pargent et al., Computational
+// Statistics 37(5), 2022 (a training row is encoded with statistics of the
+// other folds, the prior being the mean of those rows). Rows (route, late):
+// A1 A1 A0 A1 B0 B0 B1 B0 in folds 0 1 0 1 0 1 0 1, m=1: fold-0 rows get
+// A -> 5/6, B -> 1/6; fold-1 rows get A -> 0.5, B -> 0.5 (computed from
+// the formula).
+func TestOutOfFoldWorkedExample(t *testing.T) {
+	keys := foldKeys(t)
+	route := []string{"A", "A", "A", "A", "B", "B", "B", "B"}
+	late := []int{1, 1, 0, 1, 0, 0, 1, 0}
+	var b strings.Builder
+	b.WriteString("route,sender,late\n")
+	for i := range route {
+		fmt.Fprintf(&b, "R-%s,%s,%d\n", route[i], keys[i%2], late[i])
+	}
+	dir := t.TempDir()
+	in := writeFile(t, dir, "shipments.csv", b.String())
+	out := filepath.Join(dir, "enc.csv")
+	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--fold-by", "group=sender", "--folds", "2",
+		"--smoothing", "m=1", "--fold-column", "fold", "--out", out, "--tables", filepath.Join(dir, "tables"))
+	tt := readTable(t, out)
+	fold := tt.col(t, "fold")
+	got := tt.col(t, "route_tmean")
+	want := []float64{5.0 / 6, 0.5, 5.0 / 6, 0.5, 1.0 / 6, 0.5, 1.0 / 6, 0.5}
+	for i := range want {
+		if fold[i] != fmt.Sprint(i%2) {
+			t.Errorf("row %d in fold %s, want %d", i+1, fold[i], i%2)
+		}
+		if v := parseF(t, got[i]); !near(v, want[i], 1e-12) {
+			t.Errorf("row %d: route_tmean %.15g, want %.15g", i+1, v, want[i])
+		}
+	}
+}
+
+// TestOrderedScheme checks the ordered target statistic (Prokhorenkova et
+// al., NeurIPS 2018): a row is encoded from the rows before it only,
+// (s_before + a*p)/(n_before + a). One level, y = [1,0,1,1] in file order,
+// a=1. manyfold's prior is the mean of all rows, p = 0.75, so the values
+// are computed from the formula with p = 0.75: [0.75, 1.75/2, 1.75/3,
+// 2.75/4]; the reference check [0.5, 0.75, 0.5, 0.625] uses p = 0.5. A new
+// row of the level (apply) gets (3 + 0.75)/(4 + 1) = 0.75 (computed from
+// the formula).
+func TestOrderedScheme(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "shipments.csv", "route,late\nR1,1\nR1,0\nR1,1\nR1,1\n")
+	out := filepath.Join(dir, "enc.csv")
+	tables := filepath.Join(dir, "tables")
+	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--scheme", "ordered", "--smoothing", "m=1",
+		"--out", out, "--tables", tables)
+	const p = 0.75
+	want := []float64{(0 + p) / 1, (1 + p) / 2, (1 + p) / 3, (2 + p) / 4}
+	got := readTable(t, out).col(t, "route_tmean")
+	for i := range want {
+		if v := parseF(t, got[i]); !near(v, want[i], 1e-12) {
+			t.Errorf("row %d: route_tmean %.15g, want %.15g", i+1, v, want[i])
+		}
+	}
+	app := filepath.Join(dir, "app.csv")
+	mustRun(t, "apply", in, "--tables", tables, "--out", app)
+	for i, s := range readTable(t, app).col(t, "route_tmean") {
+		if v := parseF(t, s); !near(v, (3+p)/5, 1e-12) {
+			t.Errorf("applied row %d: %.15g, want %.15g", i+1, v, (3+p)/5)
+		}
+	}
+}
+
+// TestLeaveOneOutLeaks checks leave-one-out values and their leak
+// (Prokhorenkova et al., NeurIPS 2018): on a constant column of n = 101
+// rows with 50 positives, (n+ - y_i + a*p)/(n - 1 + a) with a = 1 gives
+// positive rows (49 + p)/101 and negative rows (50 + p)/101, p = 50/101
+// the prior of all rows (computed from the formula; the reference check
+// uses p = 0.5: 49.5/101 and 50.5/101). One threshold separates the labels.
+func TestLeaveOneOutLeaks(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("parcel_type,late\n")
+	late := make([]int, 101)
+	for i := range late {
+		if i%2 == 1 || i == 100 {
+			late[i] = 0
+		} else {
+			late[i] = 1
+		}
+	}
+	pos := 0
+	for _, y := range late {
+		pos += y
+		fmt.Fprintf(&b, "bulky,%d\n", y)
+	}
+	if pos != 50 {
+		t.Fatalf("%d positives, want 50", pos)
+	}
+	dir := t.TempDir()
+	in := writeFile(t, dir, "shipments.csv", b.String())
+	out := filepath.Join(dir, "enc.csv")
+	mustRun(t, "encode", in, "--target", "late", "--columns", "parcel_type", "--scheme", "loo", "--smoothing", "m=1",
+		"--out", out, "--tables", filepath.Join(dir, "tables"))
+	const p = 50.0 / 101
+	wantPos, wantNeg := (49+p)/101, (50+p)/101
+	got := readTable(t, out).col(t, "parcel_type_tmean")
+	maxPos, minNeg := 0.0, 1.0
+	for i, s := range got {
+		v := parseF(t, s)
+		want := wantNeg
+		if late[i] == 1 {
+			want = wantPos
+			maxPos = max(maxPos, v)
+		} else {
+			minNeg = min(minNeg, v)
+		}
+		if !near(v, want, 1e-12) {
+			t.Errorf("row %d (late %d): %.15g, want %.15g", i+1, late[i], v, want)
+		}
+	}
+	// The leak: every positive row is encoded below every negative one.
+	if !(maxPos < minNeg) {
+		t.Errorf("no threshold separates the labels: max positive %v, min negative %v", maxPos, minNeg)
+	}
+}

@@ -6,7 +6,6 @@ import (
 	"time"
 
 	"manyfold/encoders/pipeline"
-	"manyfold/io/pqio"
 	"manyfold/io/tableio"
 )
 
@@ -41,6 +40,10 @@ func runApply(args []string) error {
 	if file != "-" && sameFile(file, *out) {
 		return usagef("--out %s is the input file; choose another path", *out)
 	}
+	wopts, err := outputOptions(*out, *format, *compression)
+	if err != nil {
+		return err
+	}
 	start := time.Now()
 	m, err := pipeline.LoadTables(*tables)
 	if err != nil {
@@ -66,7 +69,7 @@ func runApply(args []string) error {
 	if err != nil {
 		return err
 	}
-	w, err := tableio.Create(*out, schema, tableio.WriteOptions{Format: tableio.Format(*format), Parquet: pqio.WriterOptions{Compression: *compression}})
+	w, err := tableio.Create(*out, schema, wopts)
 	if err != nil {
 		return &outputError{err}
 	}

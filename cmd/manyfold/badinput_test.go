@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"reflect"
 	"strings"
 	"testing"
 
@@ -310,6 +311,33 @@ func TestBadEncode(t *testing.T) {
 			in := csvWith(goodCSV)(t, dir)
 			return []string{"encode", in, "--target", "late", "--columns", "postcode", "--out", in, "--tables", filepath.Join(dir, "out", "tables")}
 		}, exitUsage, []string{"--out", "shipments.csv", "is the input file"}},
+		{"unknown output extension", func(t *testing.T, dir string) []string {
+			return []string{"encode", csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode",
+				"--out", filepath.Join(dir, "out", "enc.xlsx"), "--tables", filepath.Join(dir, "out", "tables")}
+		}, exitUsage, []string{"enc.xlsx", "cannot tell the output format"}},
+		{"unknown output format", func(t *testing.T, dir string) []string {
+			return encodeArgs(dir, csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode", "--format", "xls")
+		}, exitUsage, []string{`--format "xls"`}},
+		{"unknown compression", func(t *testing.T, dir string) []string {
+			return encodeArgs(dir, csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode", "--format", "parquet", "--compression", "lz4")
+		}, exitUsage, []string{`--compression "lz4"`}},
+		{"keep names an unknown column", func(t *testing.T, dir string) []string {
+			return encodeArgs(dir, csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode", "--keep", "postcode,sendr")
+		}, exitUsage, []string{"shipments.csv", `--keep names column "sendr"`, `closest: "sender"`}},
+		{"header only", func(t *testing.T, dir string) []string {
+			return encodeArgs(dir, csvWith("postcode,sender,late\n")(t, dir), "--target", "late", "--columns", "postcode")
+		}, exitData, []string{"shipments.csv", "no rows"}},
+		{"output directory missing", func(t *testing.T, dir string) []string {
+			return []string{"encode", csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode", "--folds", "2",
+				"--out", filepath.Join(dir, "out", "missing", "enc.csv"), "--tables", filepath.Join(dir, "out", "tables")}
+		}, exitOutput, []string{filepath.Join("missing", "enc.csv"), "no such file"}},
+		// The tables cannot be saved once the output is written: the
+		// output must be removed and the input (named as --tables) kept.
+		{"tables path is a file", func(t *testing.T, dir string) []string {
+			in := csvWith(goodCSV)(t, dir)
+			return []string{"encode", in, "--target", "late", "--columns", "postcode", "--folds", "2",
+				"--out", filepath.Join(dir, "out", "enc.parquet"), "--tables", in}
+		}, exitOutput, []string{"tables", "shipments.csv", "not a directory"}},
 		{"encode target column", func(t *testing.T, dir string) []string {
 			return encodeArgs(dir, csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode,late")
 		}, exitUsage, []string{`"late" is the target`}},
@@ -345,6 +373,10 @@ func TestBadApply(t *testing.T) {
 			tables := fitTables(t, dir, "postcode,late\n1011,1\n1012,0\n1011,0\n1013,1\n", "--columns", "postcode")
 			return applyArgs(dir, writeFile(t, dir, "new.csv", "postcode\n1011\nNL-1012\n"), tables)
 		}, exitMismatch, []string{"new.csv", `column "postcode"`, "is text", "fitted on int"}},
+		{"unknown output format", func(t *testing.T, dir string) []string {
+			tables := fitTables(t, dir, goodCSV, "--columns", "postcode")
+			return []string{"apply", writeFile(t, dir, "new.csv", fresh), "--tables", tables, "--out", filepath.Join(dir, "out", "new.xls")}
+		}, exitUsage, []string{"new.xls", "cannot tell the output format"}},
 		{"out is the input", func(t *testing.T, dir string) []string {
 			tables := fitTables(t, dir, goodCSV, "--columns", "postcode")
 			in := writeFile(t, dir, "new.csv", fresh)
@@ -385,5 +417,48 @@ func TestSomeTargetsMissing(t *testing.T) {
 		if v := parseF(t, got[i]); !near(v, want[i], 1e-12) {
 			t.Errorf("row %d: postcode_tmean %v, want %v", i+1, v, want[i])
 		}
+	}
+}
+
+// TestStdin: "-" reads standard input; encode spools it to a temporary
+// file, which messages do not name and which is removed afterwards.
+func TestStdin(t *testing.T) {
+	tmp := t.TempDir()
+	t.Setenv("TMPDIR", tmp)
+	dir := t.TempDir()
+	ref := writeFile(t, dir, "shipments.csv", goodCSV)
+	mustRun(t, "encode", ref, "--target", "late", "--columns", "postcode,sender", "--folds", "2",
+		"--out", filepath.Join(dir, "ref.csv"), "--tables", filepath.Join(dir, "ref"))
+	res := runStdin(t, []byte(goodCSV), "encode", "-", "--target", "late", "--columns", "postcode,sender", "--folds", "2",
+		"--out", filepath.Join(dir, "stdin.csv"), "--tables", filepath.Join(dir, "tables"))
+	if res.code != exitOK {
+		t.Fatalf("encode -: exit %d: %s", res.code, res.stderr)
+	}
+	a, b := readTable(t, filepath.Join(dir, "ref.csv")), readTable(t, filepath.Join(dir, "stdin.csv"))
+	if !reflect.DeepEqual(a, b) {
+		t.Errorf("encoding standard input differs from encoding the file")
+	}
+	cases := []struct {
+		args []string
+		want string
+	}{
+		{[]string{"scan", "-"}, "manyfold scan: stdin:3: 2 fields, header has 3"},
+		{[]string{"encode", "-", "--target", "late", "--columns", "postcode", "--out", filepath.Join(dir, "out.csv"), "--tables", filepath.Join(dir, "t2")},
+			"manyfold encode: stdin:3: 2 fields, header has 3"},
+		{[]string{"apply", "-", "--tables", filepath.Join(dir, "tables"), "--out", filepath.Join(dir, "out.csv")},
+			"manyfold apply: stdin:3: 2 fields, header has 3"},
+	}
+	for _, c := range cases {
+		res := runStdin(t, []byte(raggedCSV), c.args...)
+		if res.code != exitData || strings.TrimSpace(res.stderr) != c.want {
+			t.Errorf("%s -: exit %d, stderr %q; want %d, %q", c.args[0], res.code, res.stderr, exitData, c.want)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(dir, "out.csv")); err == nil {
+		t.Errorf("output left behind")
+	}
+	noTempFiles(t, dir)
+	if ents := dirEntries(t, tmp); len(ents) != 0 {
+		t.Errorf("spooled standard input left in the temporary directory: %v", ents)
 	}
 }

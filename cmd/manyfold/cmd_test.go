@@ -30,7 +30,27 @@ type result struct {
 // standard error captured in files, and fails the test if run panics.
 func runCLI(t *testing.T, args ...string) result {
 	t.Helper()
+	return runStdin(t, nil, args...)
+}
+
+// runStdin is runCLI with standard input reading stdin (when not nil).
+func runStdin(t *testing.T, stdin []byte, args ...string) result {
+	t.Helper()
 	dir := t.TempDir()
+	if stdin != nil {
+		p := filepath.Join(dir, "stdin")
+		if err := os.WriteFile(p, stdin, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		in, err := os.Open(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer in.Close()
+		old := os.Stdin
+		os.Stdin = in
+		defer func() { os.Stdin = old }()
+	}
 	outF, err := os.Create(filepath.Join(dir, "stdout"))
 	if err != nil {
 		t.Fatal(err)

@@ -11,6 +11,7 @@ import (
 
 	"manyfold/encoders/pipeline"
 	"manyfold/io/csvio"
+	"manyfold/io/pqio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -86,6 +87,40 @@ func (f *inputFlags) options() (tableio.ReadOptions, error) {
 	}
 	return tableio.ReadOptions{CSV: o}, nil
 }
+
+// outputOptions checks the output's format (from --format or the
+// extension of out) and the Parquet compression before any input is read,
+// so that a mistake in them is a usage error reported at once rather than
+// after a pass over a large input.
+func outputOptions(out, format, compression string) (tableio.WriteOptions, error) {
+	f := tableio.Format(format)
+	switch f {
+	case "":
+		if tableio.FormatOf(out) == "" {
+			return tableio.WriteOptions{}, usagef("--out %s: cannot tell the output format from the extension (use .csv, .parquet or .arrow, or give --format)", out)
+		}
+	case tableio.CSV, tableio.Parquet, tableio.Arrow:
+	default:
+		return tableio.WriteOptions{}, usagef("--format %q: want parquet, csv or arrow", format)
+	}
+	switch compression {
+	case "snappy", "zstd", "none":
+	default:
+		return tableio.WriteOptions{}, usagef("--compression %q: want snappy, zstd or none", compression)
+	}
+	return tableio.WriteOptions{Format: f, Parquet: pqio.WriterOptions{Compression: compression}}, nil
+}
+
+// renamed is an error whose message names an input by the name the user
+// gave (stdin) instead of the temporary file it was read from; it unwraps
+// to the original error, so its exit code is unchanged.
+type renamed struct {
+	err      error
+	from, to string
+}
+
+func (e *renamed) Error() string { return strings.ReplaceAll(e.err.Error(), e.from, e.to) }
+func (e *renamed) Unwrap() error { return e.err }
 
 // selectColumns checks that every name exists in the schema and returns
 // their positions; a missing name is a ColumnError listing close names.

@@ -9,7 +9,6 @@ import (
 	"time"
 
 	"manyfold/encoders/pipeline"
-	"manyfold/io/pqio"
 	"manyfold/io/tableio"
 )
 
@@ -36,7 +35,7 @@ Frequency and top-k are fitted on all rows of FILE (they do not use the
 target). Rows whose target is empty are encoded but not counted.
 `
 
-func runEncode(args []string) error {
+func runEncode(args []string) (err error) {
 	fs := newFlags("encode", encodeUsage)
 	var in inputFlags
 	in.add(fs)
@@ -77,7 +76,6 @@ func runEncode(args []string) error {
 		return usagef("encode needs --out and --tables")
 	}
 	sp.Target, sp.Columns, sp.Methods, sp.Task = *target, *columns, *methods, *task
-	var err error
 	if sp.Smoothing, err = pipeline.ParseSmoothing(*smoothing); err != nil {
 		return usagef("%v", err)
 	}
@@ -121,13 +119,24 @@ func runEncode(args []string) error {
 	if err != nil {
 		return err
 	}
-	wopts := tableio.WriteOptions{Format: tableio.Format(*format), Parquet: pqio.WriterOptions{Compression: *compression}}
+	wopts, err := outputOptions(*out, *format, *compression)
+	if err != nil {
+		return err
+	}
 	start := time.Now()
 	path, cleanup, err := spool(file)
 	if err != nil {
 		return err
 	}
 	defer cleanup()
+	if path != file {
+		// Messages name standard input, not the file it was spooled to.
+		defer func() {
+			if err != nil {
+				err = &renamed{err: err, from: path, to: "stdin"}
+			}
+		}()
+	}
 	name := file
 	if file == "-" {
 		name = "stdin"
@@ -142,6 +151,13 @@ func runEncode(args []string) error {
 	r, err := tableio.Open(path, ropts)
 	if err != nil {
 		return err
+	}
+	if !sp.KeepAll {
+		// Check --keep now, not after the first pass.
+		if _, err := selectColumns(name, "--keep", r.Schema(), sp.Keep); err != nil {
+			r.Close()
+			return err
+		}
 	}
 	pr := newProgress("fit")
 	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update})

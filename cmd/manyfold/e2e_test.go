@@ -177,13 +177,13 @@ func readManifest(t *testing.T, dir string) map[string]any {
 	return m
 }
 
-// TestCSVAndParquetSameTables: the same rows as CSV and as Parquet give the
-// same mapping tables, manifest and encoded values.
+// TestCSVAndParquetSameTables: the same rows as CSV, as Parquet and as
+// Arrow IPC give the same mapping tables, manifest and encoded values.
 func TestCSVAndParquetSameTables(t *testing.T) {
 	dir := t.TempDir()
 	s, batches := shipmentBatches()
 	var tables, outs []string
-	for _, ext := range []string{"csv", "parquet"} {
+	for _, ext := range []string{"csv", "parquet", "arrow"} {
 		in := filepath.Join(dir, "shipments."+ext)
 		writeTable(t, in, s, batches...)
 		out := filepath.Join(dir, "enc-"+ext+".csv")
@@ -195,13 +195,16 @@ func TestCSVAndParquetSameTables(t *testing.T) {
 	}
 	// Nothing differs, not even the input's types: the CSV reader infers
 	// text for the postcodes and int for late, as the Parquet file declares.
-	compareTablesDirs(t, tables[0], tables[1])
-	oc, op := readTable(t, outs[0]), readTable(t, outs[1])
-	if !reflect.DeepEqual(oc.rows, op.rows) || !slices.Equal(oc.names, op.names) {
-		t.Errorf("encoded tables differ between CSV and Parquet input")
+	// Arrow input is held to the same standard.
+	for i := 1; i < len(tables); i++ {
+		compareTablesDirs(t, tables[0], tables[i])
+		oc, op := readTable(t, outs[0]), readTable(t, outs[i])
+		if !reflect.DeepEqual(oc.rows, op.rows) || !slices.Equal(oc.names, op.names) {
+			t.Errorf("encoded tables differ between %s and %s", outs[0], outs[i])
+		}
 	}
-	if len(oc.rows) != 300 {
-		t.Errorf("%d rows encoded, want 300", len(oc.rows))
+	if n := len(readTable(t, outs[0]).rows); n != 300 {
+		t.Errorf("%d rows encoded, want 300", n)
 	}
 }
 
@@ -239,20 +242,36 @@ func TestShardMerge(t *testing.T) {
 	}
 }
 
-// TestMergeMismatch: tables fitted with other parameters do not merge.
+// TestMergeMismatch: tables fitted with other parameters, on other
+// columns, or without their small levels do not merge (exit 6), and no
+// merged tables are left.
 func TestMergeMismatch(t *testing.T) {
-	dir := t.TempDir()
-	in := writeFile(t, dir, "shipments.csv", shipmentsCSV(50))
-	for i, sm := range []string{"m=1", "m=2"} {
-		mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--smoothing", sm,
-			"--out", filepath.Join(dir, fmt.Sprintf("e%d.csv", i)), "--tables", filepath.Join(dir, fmt.Sprintf("t%d", i)))
+	cases := []struct {
+		name   string
+		second []string // flags of the second shard; the first has --columns postcode --smoothing m=1
+		want   string
+	}{
+		{"other smoothing", []string{"--columns", "postcode", "--smoothing", "m=2"}, "same parameters"},
+		{"other columns", []string{"--columns", "sender", "--smoothing", "m=1"}, "same parameters"},
+		{"small levels left out", []string{"--columns", "postcode", "--smoothing", "m=1", "--min-level-rows", "3"}, "--min-level-rows 0"},
 	}
-	res := runCLI(t, "merge", filepath.Join(dir, "t0"), filepath.Join(dir, "t1"), "--tables", filepath.Join(dir, "m"))
-	if res.code != exitMismatch || !strings.Contains(res.stderr, "t1") {
-		t.Errorf("exit %d, stderr %q; want %d naming t1", res.code, res.stderr, exitMismatch)
-	}
-	if _, err := os.Stat(filepath.Join(dir, "m")); err == nil {
-		t.Errorf("merge left a tables directory behind")
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			dir := t.TempDir()
+			in := writeFile(t, dir, "shipments.csv", shipmentsCSV(50))
+			for i, flags := range [][]string{{"--columns", "postcode", "--smoothing", "m=1"}, c.second} {
+				args := append([]string{"encode", in, "--target", "late",
+					"--out", filepath.Join(dir, fmt.Sprintf("e%d.csv", i)), "--tables", filepath.Join(dir, fmt.Sprintf("t%d", i))}, flags...)
+				mustRun(t, args...)
+			}
+			res := runCLI(t, "merge", filepath.Join(dir, "t0"), filepath.Join(dir, "t1"), "--tables", filepath.Join(dir, "m"))
+			if res.code != exitMismatch || !strings.Contains(res.stderr, filepath.Join(dir, "t1")) || !strings.Contains(res.stderr, c.want) {
+				t.Errorf("exit %d, stderr %q; want %d naming t1 and %q", res.code, res.stderr, exitMismatch, c.want)
+			}
+			if _, err := os.Stat(filepath.Join(dir, "m")); err == nil {
+				t.Errorf("merge left a tables directory behind")
+			}
+		})
 	}
 }
 

@@ -116,10 +116,9 @@ func (c *colReader) nextPage() error {
 		if len(defs) != rows {
 			return fmt.Errorf("%w: page has %d definition levels for %d values", table.ErrCorrupt, len(defs), rows)
 		}
-		for _, d := range defs {
-			if d != l.maxDef {
-				nvals--
-			}
+		nvals -= int(p.NumNulls()) // counts the levels below maxDef
+		if nvals < 0 {
+			return fmt.Errorf("%w: page counts more nulls than rows", table.ErrCorrupt)
 		}
 		if nvals < rows {
 			c.defs = defs
@@ -138,11 +137,8 @@ func (c *colReader) nextPage() error {
 			return fmt.Errorf("%w: page holds %d dictionary indices for %d values", table.ErrCorrupt, len(idx), nvals)
 		}
 		idx = idx[:nvals]
-		n := uint32(d.Len())
-		for _, v := range idx {
-			if uint32(v) >= n {
-				return fmt.Errorf("%w: dictionary index %d out of range (dictionary has %d entries)", table.ErrCorrupt, v, n)
-			}
+		if m := maxIndex(idx); len(idx) > 0 && m >= uint32(d.Len()) {
+			return fmt.Errorf("%w: dictionary index %d out of range (dictionary has %d entries)", table.ErrCorrupt, m, d.Len())
 		}
 		switch l.kind {
 		case table.String:
@@ -231,6 +227,23 @@ func (c *colReader) nextPage() error {
 		return fmt.Errorf("%w: page holds %d values where its levels promise %d", table.ErrCorrupt, have, nvals)
 	}
 	return nil
+}
+
+// maxIndex returns the largest of idx as unsigned values (a negative
+// index counts as huge), 0 for none.
+func maxIndex(idx []int32) uint32 {
+	var m0, m1, m2, m3 uint32
+	i := 0
+	for ; i+4 <= len(idx); i += 4 {
+		m0 = max(m0, uint32(idx[i]))
+		m1 = max(m1, uint32(idx[i+1]))
+		m2 = max(m2, uint32(idx[i+2]))
+		m3 = max(m3, uint32(idx[i+3]))
+	}
+	for ; i < len(idx); i++ {
+		m0 = max(m0, uint32(idx[i]))
+	}
+	return max(m0, m1, m2, m3)
 }
 
 // loadDict converts a column chunk's dictionary to the column's kind.

@@ -6,6 +6,7 @@ import (
 	"io"
 	"math"
 	"reflect"
+	"slices"
 	"strconv"
 	"unsafe"
 
@@ -211,115 +212,117 @@ func (w *writer) convert(j int, c *table.Column, start, k int, first int64) erro
 	bad := func(i int, err error) error {
 		return &table.DataError{File: w.name, Row: first + int64(start+i), Column: f.Name, Err: err}
 	}
-	// Nulls, and text that stands for a null in a numeric column.
-	isNull := func(i int) (bool, error) {
-		r := start + i
-		if c.IsNull(r) {
-			if !f.Nullable {
-				return false, bad(i, errors.New("null value in a column declared not null"))
+	var nulls []bool // nulls of the rows converted, nil when none
+	if c.Nulls != nil {
+		nulls = c.Nulls[start : start+k]
+		if !f.Nullable {
+			if i := slices.Index(nulls, true); i >= 0 {
+				return bad(i, errors.New("null value in a column declared not null"))
 			}
-			return true, nil
+			nulls = nil
 		}
-		return false, nil
 	}
 	null := parquet.NullValue().Level(0, 0, j)
-	switch f.Kind {
-	case table.String:
-		if c.Form == table.FormText || c.Form == table.FormDict {
-			for i := range vals {
-				if n, err := isNull(i); err != nil {
-					return err
-				} else if n {
-					vals[i] = null
-					continue
-				}
-				vals[i] = parquet.ByteArrayValue(c.Bytes(start+i)).Level(0, def, j)
-			}
-			return nil
+	// The common cases: the column's form matches the kind.
+	switch {
+	case f.Kind == table.Int64 && c.Form == table.FormInt64:
+		src := c.Ints[start : start+k]
+		for i, v := range src {
+			vals[i] = parquet.Int64Value(v).Level(0, def, j)
 		}
+		setNulls(vals, nulls, null)
+		return nil
+	case f.Kind == table.Float64 && c.Form == table.FormFloat64:
+		src := c.Floats[start : start+k]
+		for i, v := range src {
+			vals[i] = parquet.DoubleValue(v).Level(0, def, j)
+		}
+		setNulls(vals, nulls, null)
+		return nil
+	case f.Kind == table.Bool && c.Form == table.FormBool:
+		src := c.Bools[start : start+k]
+		for i, v := range src {
+			vals[i] = parquet.BooleanValue(v).Level(0, def, j)
+		}
+		setNulls(vals, nulls, null)
+		return nil
+	case f.Kind == table.String && c.Form == table.FormText:
+		offs := c.Offsets[start : start+k+1]
+		for i := range vals {
+			vals[i] = parquet.ByteArrayValue(c.Data[offs[i]:offs[i+1]]).Level(0, def, j)
+		}
+		setNulls(vals, nulls, null)
+		return nil
+	case f.Kind == table.String && c.Form == table.FormDict:
+		for i, x := range c.Indices[start : start+k] {
+			if nulls != nil && nulls[i] {
+				vals[i] = null
+				continue
+			}
+			vals[i] = parquet.ByteArrayValue(c.Dict.Entry(int(x))).Level(0, def, j)
+		}
+		return nil
+	case f.Kind == table.String:
 		// Numbers and booleans are written as their canonical text.
 		buf := w.text[j][:0]
 		w.tends = grow(w.tends, k)
 		for i := range vals {
-			if n, err := isNull(i); err != nil {
-				return err
-			} else if !n {
-				buf = c.AppendText(buf, start+i)
-			}
+			buf = c.AppendText(buf, start+i)
 			w.tends[i] = len(buf)
 		}
 		w.text[j] = buf
 		from := 0
 		for i := range vals {
-			if c.IsNull(start + i) {
-				vals[i] = null
-			} else {
-				vals[i] = parquet.ByteArrayValue(buf[from:w.tends[i]]).Level(0, def, j)
-			}
+			vals[i] = parquet.ByteArrayValue(buf[from:w.tends[i]]).Level(0, def, j)
 			from = w.tends[i]
 		}
+		setNulls(vals, nulls, null)
 		return nil
-	case table.Int64:
-		for i := range vals {
-			n, err := isNull(i)
-			if err != nil {
-				return err
-			}
-			var v int64
-			if !n {
-				v, n, err = intAt(c, start+i, f.Nullable)
-				if err != nil {
-					return bad(i, err)
-				}
-			}
-			if n {
-				vals[i] = null
-			} else {
-				vals[i] = parquet.Int64Value(v).Level(0, def, j)
-			}
+	}
+	// Conversions between kinds: text parsed, numbers converted.
+	for i := range vals {
+		if nulls != nil && nulls[i] {
+			vals[i] = null
+			continue
 		}
-	case table.Float64:
-		for i := range vals {
-			n, err := isNull(i)
-			if err != nil {
-				return err
-			}
-			var v float64
-			if !n {
-				v, n, err = floatAt(c, start+i, f.Nullable)
-				if err != nil {
-					return bad(i, err)
-				}
-			}
-			if n {
-				vals[i] = null
-			} else {
-				vals[i] = parquet.DoubleValue(v).Level(0, def, j)
-			}
+		var v parquet.Value
+		var isNull bool
+		var err error
+		switch f.Kind {
+		case table.Int64:
+			var x int64
+			x, isNull, err = intAt(c, start+i, f.Nullable)
+			v = parquet.Int64Value(x)
+		case table.Float64:
+			var x float64
+			x, isNull, err = floatAt(c, start+i, f.Nullable)
+			v = parquet.DoubleValue(x)
+		case table.Bool:
+			var x bool
+			x, isNull, err = boolAt(c, start+i, f.Nullable)
+			v = parquet.BooleanValue(x)
+		default:
+			return fmt.Errorf("column %q: unknown kind %v", f.Name, f.Kind)
 		}
-	case table.Bool:
-		for i := range vals {
-			n, err := isNull(i)
-			if err != nil {
-				return err
-			}
-			var v bool
-			if !n {
-				v, n, err = boolAt(c, start+i, f.Nullable)
-				if err != nil {
-					return bad(i, err)
-				}
-			}
-			if n {
-				vals[i] = null
-			} else {
-				vals[i] = parquet.BooleanValue(v).Level(0, def, j)
-			}
+		if err != nil {
+			return bad(i, err)
 		}
-	default:
-		return fmt.Errorf("column %q: unknown kind %v", f.Name, f.Kind)
+		if isNull {
+			vals[i] = null
+		} else {
+			vals[i] = v.Level(0, def, j)
+		}
 	}
 	return nil
+}
+
+// setNulls puts the null value at the rows that nulls marks.
+func setNulls(vals []parquet.Value, nulls []bool, null parquet.Value) {
+	for i, n := range nulls {
+		if n {
+			vals[i] = null
+		}
+	}
 }
 
 // bstr views b as a string without copying; the string must not outlive b.

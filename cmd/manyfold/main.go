@@ -22,6 +22,7 @@ import (
 	"errors"
 	"fmt"
 	"os"
+	"runtime/pprof"
 
 	"github.com/spf13/pflag"
 
@@ -75,6 +76,16 @@ func init() {
 }
 
 func main() {
+	if path := os.Getenv("MANYFOLD_CPUPROFILE"); path != "" {
+		// For contributors: a CPU profile of the whole run (see DEVELOPERS.md).
+		if f, err := os.Create(path); err == nil {
+			pprof.StartCPUProfile(f)
+			code := run(os.Args[1:])
+			pprof.StopCPUProfile()
+			f.Close()
+			os.Exit(code)
+		}
+	}
 	os.Exit(run(os.Args[1:]))
 }
 

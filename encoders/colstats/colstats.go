@@ -14,6 +14,8 @@ package colstats
 
 import (
 	"bytes"
+	"cmp"
+	"slices"
 	"fmt"
 	"math"
 	"sort"
@@ -57,7 +59,8 @@ type Stats struct {
 
 	// Rows[l]: all rows of level l, whatever their target.
 	Rows []uint64
-	// Cnt[l*K+f]: rows of level l in fold f whose target is known.
+	// Cnt[l*K+f]: rows of level l in fold f whose target is known
+	// (regression; for classification it is the sum of the class counts).
 	Cnt []uint32
 	// Cls[(l*K+f)*C+c]: of those, the rows of class c (classification).
 	Cls []uint32
@@ -79,20 +82,31 @@ func New(task Task, k, classes int, sizeHint int) *Stats {
 func (s *Stats) NumLevels() int { return len(s.Rows) }
 
 func (s *Stats) grow(n int) {
-	for len(s.Rows) < n {
-		s.Rows = append(s.Rows, 0)
-		for f := 0; f < s.Folds; f++ {
-			s.Cnt = append(s.Cnt, 0)
-			if s.Task == Regression {
-				s.Sum = append(s.Sum, 0)
-				s.SumSq = append(s.SumSq, 0)
-			} else {
-				for c := 0; c < s.Classes; c++ {
-					s.Cls = append(s.Cls, 0)
-				}
-			}
-		}
+	if n <= len(s.Rows) {
+		return
 	}
+	s.Rows = extend(s.Rows, n)
+	if s.Task == Regression {
+		s.Cnt = extend(s.Cnt, n*s.Folds)
+		s.Sum = extend(s.Sum, n*s.Folds)
+		s.SumSq = extend(s.SumSq, n*s.Folds)
+	} else {
+		s.Cls = extend(s.Cls, n*s.Folds*s.Classes)
+	}
+}
+
+// extend returns x grown to length n with zeros, doubling its capacity
+// when it must reallocate.
+func extend[T any](x []T, n int) []T {
+	if n <= cap(x) {
+		old := len(x)
+		x = x[:n]
+		clear(x[old:])
+		return x
+	}
+	y := make([]T, n, max(n, 2*cap(x), 16))
+	copy(y, x)
+	return y
 }
 
 // Level returns the slot of a level's bytes, adding it if new.
@@ -140,9 +154,7 @@ func (s *Stats) AddRow(l int) { s.Rows[l]++ }
 // AddClass counts a row of level l in fold f with target class c.
 func (s *Stats) AddClass(l, f, c int) {
 	s.Rows[l]++
-	i := l*s.Folds + f
-	s.Cnt[i]++
-	s.Cls[i*s.Classes+c]++
+	s.Cls[(l*s.Folds+f)*s.Classes+c]++
 }
 
 // AddValue counts a row of level l in fold f with numeric target y.
@@ -179,14 +191,20 @@ func (s *Stats) Target(l, o, exclude, pos int) Agg {
 			continue
 		}
 		i := base + f
-		a.N += float64(s.Cnt[i])
-		switch s.Task {
-		case Regression:
+		if s.Task == Regression {
+			a.N += float64(s.Cnt[i])
 			a.Sum += s.Sum[i]
 			a.SumSq += s.SumSq[i]
-		case Binary:
+			continue
+		}
+		var n uint32
+		for _, v := range s.Cls[i*s.Classes : (i+1)*s.Classes] {
+			n += v
+		}
+		a.N += float64(n)
+		if s.Task == Binary {
 			a.Sum += float64(s.Cls[i*s.Classes+pos])
-		default:
+		} else {
 			a.Sum += float64(s.Cls[i*s.Classes+o])
 		}
 	}
@@ -236,7 +254,7 @@ func (ft *Fitted) Encode(a Agg) float64 {
 // the slots in the order their statistics are summed (nil: slot order); a
 // canonical order (Sorted) makes the result independent of the order in
 // which levels were first seen.
-func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []int, buf []smooth.LevelStats) (Fitted, []smooth.LevelStats) {
+func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint32, buf []smooth.LevelStats) (Fitted, []smooth.LevelStats) {
 	var tot Agg
 	buf = buf[:0]
 	n := len(s.Rows)
@@ -246,7 +264,7 @@ func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []int,
 	for i := 0; i < n; i++ {
 		l := i
 		if order != nil {
-			l = order[i]
+			l = int(order[i])
 		}
 		a := s.Target(l, o, exclude, pos)
 		tot.N += a.N
@@ -286,8 +304,8 @@ func (s *Stats) Merge(o *Stats) error {
 		s.Rows[d] += o.Rows[l]
 		for f := 0; f < s.Folds; f++ {
 			i, j := d*s.Folds+f, l*o.Folds+f
-			s.Cnt[i] += o.Cnt[j]
 			if s.Task == Regression {
+				s.Cnt[i] += o.Cnt[j]
 				s.Sum[i] += o.Sum[j]
 				s.SumSq[i] += o.SumSq[j]
 				continue
@@ -302,38 +320,58 @@ func (s *Stats) Merge(o *Stats) error {
 
 // Sorted returns the level slots in a canonical order: the null level first
 // (if it has rows), then levels by their bytes ascending. Slots with no
-// rows are left out.
-func (s *Stats) Sorted() []int {
-	out := make([]int, 0, len(s.Rows))
-	for l := range s.Rows {
+// rows are left out. It sorts compact keys (the first 8 bytes of each level
+// and its slot), comparing whole levels only where those tie.
+func (s *Stats) Sorted() []uint32 {
+	type key struct {
+		pre  uint64
+		slot uint32
+	}
+	keys := make([]key, 0, len(s.Rows))
+	var out []uint32
+	if s.Rows[0] > 0 {
+		out = append(out, 0)
+	}
+	for l := 1; l < len(s.Rows); l++ {
 		if s.Rows[l] > 0 {
-			out = append(out, l)
+			keys = append(keys, key{prefix8(s.Bytes(l)), uint32(l)})
 		}
 	}
-	sort.Slice(out, func(i, j int) bool {
-		a, b := out[i], out[j]
-		if a == 0 || b == 0 {
-			return a == 0 && b != 0
+	slices.SortFunc(keys, func(a, b key) int {
+		if a.pre != b.pre {
+			return cmp.Compare(a.pre, b.pre)
 		}
-		return bytes.Compare(s.Bytes(a), s.Bytes(b)) < 0
+		return bytes.Compare(s.Bytes(int(a.slot)), s.Bytes(int(b.slot)))
 	})
+	for _, k := range keys {
+		out = append(out, k.slot)
+	}
 	return out
+}
+
+// prefix8 returns the first 8 bytes of b as a big-endian number, padded
+// with zeros, so that numbers order as the bytes do (a shorter level that
+// is a prefix of a longer one ties here and is resolved by bytes.Compare).
+func prefix8(b []byte) uint64 {
+	var v uint64
+	for i := 0; i < 8; i++ {
+		v <<= 8
+		if i < len(b) {
+			v |= uint64(b[i])
+		}
+	}
+	return v
 }
 
 // TopK returns, for every level slot, its top-k code: levels ranked by row
 // count descending, ties by level bytes ascending (the null level, if
 // counted, sorts before every text), get codes 1..k; every other level and
 // every level with fewer than minCount rows gets 0. keep, when not nil,
-// excludes levels from ranking.
+// excludes levels from ranking. It selects with a heap of k entries, so it
+// takes O(n log k) time.
 func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
-	idx := make([]int, 0, len(s.Rows))
-	for l := range s.Rows {
-		if s.Rows[l] > 0 && s.Rows[l] >= minCount && (keep == nil || keep[l]) {
-			idx = append(idx, l)
-		}
-	}
-	sort.Slice(idx, func(i, j int) bool {
-		a, b := idx[i], idx[j]
+	// before reports whether slot a ranks before slot b.
+	before := func(a, b int) bool {
 		if s.Rows[a] != s.Rows[b] {
 			return s.Rows[a] > s.Rows[b]
 		}
@@ -341,12 +379,49 @@ func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
 			return a == 0
 		}
 		return bytes.Compare(s.Bytes(a), s.Bytes(b)) < 0
-	})
-	codes := make([]int32, len(s.Rows))
-	for r, l := range idx {
-		if r >= k {
-			break
+	}
+	// h is a heap whose root is the worst-ranked of the best k so far.
+	h := make([]int, 0, k)
+	down := func(i int) {
+		for {
+			c := 2*i + 1
+			if c >= len(h) {
+				return
+			}
+			if c+1 < len(h) && before(h[c], h[c+1]) {
+				c++
+			}
+			if !before(h[i], h[c]) {
+				return
+			}
+			h[i], h[c] = h[c], h[i]
+			i = c
 		}
+	}
+	for l := range s.Rows {
+		if s.Rows[l] == 0 || s.Rows[l] < minCount || (keep != nil && !keep[l]) {
+			continue
+		}
+		if len(h) < k {
+			h = append(h, l)
+			for i := len(h) - 1; i > 0; {
+				p := (i - 1) / 2
+				if !before(h[p], h[i]) {
+					break
+				}
+				h[i], h[p] = h[p], h[i]
+				i = p
+			}
+			continue
+		}
+		if before(l, h[0]) {
+			h[0] = l
+			down(0)
+		}
+	}
+	sort.Slice(h, func(i, j int) bool { return before(h[i], h[j]) })
+	codes := make([]int32, len(s.Rows))
+	for r, l := range h {
 		codes[l] = int32(r + 1)
 	}
 	return codes
@@ -382,8 +457,8 @@ func (s *Stats) Rollup(parent func([]byte) []byte) (*Stats, []int32) {
 		p.Rows[d] += s.Rows[l]
 		for f := 0; f < s.Folds; f++ {
 			i, j := d*s.Folds+f, l*s.Folds+f
-			p.Cnt[i] += s.Cnt[j]
 			if s.Task == Regression {
+				p.Cnt[i] += s.Cnt[j]
 				p.Sum[i] += s.Sum[j]
 				p.SumSq[i] += s.SumSq[j]
 				continue

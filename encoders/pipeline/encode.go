@@ -228,7 +228,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 					switch {
 					case !training || sp.Scheme == "none":
 						if l >= 0 && c.Keep[l] {
-							v = c.TMean[oc.output][l]
+							v = m.tmean(c, oc.output, l)
 						} else {
 							v = m.value(c, -1, pl, oc.output, -1, c.Full[oc.output])
 						}
@@ -251,7 +251,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 					for i, l := range ls {
 						fl[i] = 0
 						if l >= 0 {
-							fl[i] = c.Freq[l]
+							fl[i] = m.freq(c, int(l))
 						}
 					}
 				} else {
@@ -259,7 +259,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 					for i, l := range ls {
 						in[i] = 0
 						if l >= 0 {
-							in[i] = int64(c.Freq[l])
+							in[i] = int64(m.freq(c, int(l)))
 						}
 					}
 				}

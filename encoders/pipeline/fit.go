@@ -32,9 +32,14 @@ type Col struct {
 	Keep  []bool // per slot: counted as seen (min-level-rows, nulls unseen)
 
 	// Derived from all fitting rows, per slot (and per output for TMean).
+	// A fitted column leaves TMean and Freq nil and computes them on demand
+	// (tmean, freq), which saves 16 bytes a level; a column loaded from
+	// mapping tables holds the stored values.
 	TMean [][]float64
 	Freq  []float64
 	TopK  []int32
+	Order []uint32 // slots in canonical order (Stats.Sorted)
+	total float64  // rows of all levels, for frequency shares
 	Full  []colstats.Fitted // per output
 	// Per fold f and output o, the fit over the rows of the other folds.
 	FoldFit [][]colstats.Fitted
@@ -263,19 +268,10 @@ func (m *Model) derive(c *Col, supervised bool) {
 		c.Keep[0] = false
 	}
 	order := st.Sorted()
-	c.Freq = make([]float64, n)
-	total := float64(0)
+	c.Order = order
+	c.total = 0
 	for _, l := range order {
-		total += float64(st.Rows[l])
-	}
-	for l := 0; l < n; l++ {
-		if !c.Keep[l] {
-			continue
-		}
-		c.Freq[l] = float64(st.Rows[l])
-		if sp.FreqShare {
-			c.Freq[l] /= total
-		}
+		c.total += float64(st.Rows[l])
 	}
 	c.TopK = st.TopK(sp.TopK, sp.MinCount, c.Keep)
 	if !supervised {
@@ -283,17 +279,20 @@ func (m *Model) derive(c *Col, supervised bool) {
 	}
 	if c.Parent != nil {
 		m.derive(c.Parent, true)
+		p := c.Parent
+		p.TMean = make([][]float64, len(p.Full))
+		for o := range p.Full {
+			p.TMean[o] = make([]float64, p.St.NumLevels())
+			for l := range p.TMean[o] {
+				p.TMean[o][l] = m.value(p, l, -1, o, -1, p.Full[o])
+			}
+		}
 	}
 	outs := st.Outputs()
 	var buf []smooth.LevelStats
 	c.Full = make([]colstats.Fitted, outs)
-	c.TMean = make([][]float64, outs)
 	for o := 0; o < outs; o++ {
 		c.Full[o], buf = st.Fit(o, -1, m.Pos, sp.Smoothing, c.Keep, order, buf)
-		c.TMean[o] = make([]float64, n)
-		for l := 0; l < n; l++ {
-			c.TMean[o][l] = m.value(c, l, c.parentOf(l), o, -1, c.Full[o])
-		}
 	}
 	if k := st.Folds; k > 1 {
 		c.FoldFit = make([][]colstats.Fitted, k)
@@ -394,4 +393,35 @@ func (c *Col) parentOf(l int) int {
 		return -1
 	}
 	return int(c.ParentOf[l])
+}
+
+// tmean returns the full-data encoded value of slot l for output o.
+func (m *Model) tmean(c *Col, o, l int) float64 {
+	if c.TMean != nil {
+		return c.TMean[o][l]
+	}
+	return m.value(c, l, c.parentOf(l), o, -1, c.Full[o])
+}
+
+// freq returns the frequency of slot l: its rows, or their share of all
+// fitting rows; 0 for a level left out.
+func (m *Model) freq(c *Col, l int) float64 {
+	if c.Freq != nil {
+		return c.Freq[l]
+	}
+	if !c.Keep[l] {
+		return 0
+	}
+	if m.Spec.FreqShare {
+		return float64(c.St.Rows[l]) / c.total
+	}
+	return float64(c.St.Rows[l])
+}
+
+// order returns the slots in canonical order.
+func (c *Col) order() []uint32 {
+	if c.Order == nil {
+		c.Order = c.St.Sorted()
+	}
+	return c.Order
 }

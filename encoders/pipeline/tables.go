@@ -254,13 +254,14 @@ func (m *Model) saveCol(path string, c *Col) error {
 		return err
 	}
 	st := c.St
-	order := st.Sorted()
+	order := c.order()
 	const chunk = 1 << 16
 	b := &table.Batch{Cols: make([]table.Column, len(schema.Fields))}
 	for start := 0; start < len(order); start += chunk {
 		rows := order[start:min(start+chunk, len(order))]
 		var sel []int
-		for _, l := range rows {
+		for _, l32 := range rows {
+			l := int(l32)
 			// The null level is stored even when nulls are treated as
 			// unseen, so that merged tables keep its rows in the prior.
 			if c.Keep[l] || (l == 0 && m.Spec.NullsUnseen) {
@@ -311,11 +312,11 @@ func (m *Model) saveCol(path string, c *Col) error {
 					})
 				}
 			}
-			for o := range c.TMean {
-				floatCol(func(l int) float64 { return c.TMean[o][l] })
+			for o := range c.Full {
+				floatCol(func(l int) float64 { return m.tmean(c, o, l) })
 			}
 		}
-		floatCol(func(l int) float64 { return c.Freq[l] })
+		floatCol(func(l int) float64 { return m.freq(c, l) })
 		intCol(func(l int) int64 { return int64(c.TopK[l]) })
 		intCol(func(l int) int64 {
 			return int64(hashenc.Bucket(hashenc.Sum(st.Bytes(l), m.Spec.HashSeed), m.Spec.Buckets))
@@ -459,8 +460,9 @@ func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Co
 			next := func() *table.Column { k++; return &b.Cols[k-1] }
 			st.Rows[l] = uint64(next().Ints[i])
 			if supervised {
-				st.Cnt[l] = uint32(next().Ints[i])
+				tn := uint32(next().Ints[i])
 				if task == colstats.Regression {
+					st.Cnt[l] = tn
 					st.Sum[l] = next().Floats[i]
 					st.SumSq[l] = next().Floats[i]
 				} else {

@@ -353,6 +353,11 @@ func TestNullsAcrossPagesAndBatches(t *testing.T) {
 		cols = append(cols, col(t, kind, ownForm(kind), cells))
 		want = append(want, cells)
 	}
+	// The text column must hold both nulls and empty strings, so that a
+	// null read back as "" (or the reverse) fails the comparison.
+	if !slices.Contains(want[0], cell{null: true}) || !slices.Contains(want[0], cell{text: ""}) {
+		t.Fatal("text column lacks nulls or empty strings")
+	}
 	schema := &table.Schema{Fields: fields}
 	data := writeCols(t, schema, cols, n, 611, WriterOptions{RowGroupRows: 3000}, parquet.PageBufferSize(1024))
 	r := openBytes(t, "long.parquet", data)

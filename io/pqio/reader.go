@@ -187,7 +187,7 @@ func (r *Reader) readSchema() error {
 			continue // a group, a list or a map
 		}
 		name := col.Name()
-		if d := col.MaxDefinitionLevel(); d > 1 || d < 0 {
+		if d := col.MaxDefinitionLevel(); d > 255 || d < 0 {
 			return fmt.Errorf("%s: %w: column %q has definition level %d", r.path, table.ErrCorrupt, name, d)
 		}
 		t := col.Type()

@@ -1,0 +1,105 @@
+package pqio
+
+import (
+	"bytes"
+	"testing"
+
+	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/deprecated"
+
+	"manyfold/io/table"
+)
+
+// typedRow covers the physical and logical types the reader maps, and a
+// list and a nested group, which it leaves out.
+type typedRow struct {
+	Code    [3]byte          `parquet:"code"`           // FIXED_LEN_BYTE_ARRAY(3)
+	U32     uint32           `parquet:"u32"`            // INT32, unsigned
+	I32Dict int32            `parquet:"i32d,dict"`      // INT32, dictionary pages
+	F32     *float32         `parquet:"f32,optional"`   // FLOAT
+	F64Dict float64          `parquet:"f64d,dict"`      // DOUBLE, dictionary pages
+	Day     int32            `parquet:"day,date"`       // INT32 DATE: its day number
+	Micros  int64            `parquet:"ts,timestamp(microsecond)"`
+	Legacy  deprecated.Int96 `parquet:"legacy"`         // INT96 timestamp
+	Tags    []string         `parquet:"tags,list"`      // a list: left out
+	Addr    struct {
+		Zip string `parquet:"zip"`
+	} `parquet:"addr"` // a group: left out
+	Flag  *bool   `parquet:"flag,optional"`
+	Route *string `parquet:"route,optional,dict"`
+}
+
+// TestReadTypes reads a file written by parquet-go's own struct writer
+// with each type the reader maps.
+func TestReadTypes(t *testing.T) {
+	f32 := float32(1.5)
+	tru := true
+	route := "north-7"
+	rows := []typedRow{
+		{Code: [3]byte{'A', 'B', 'C'}, U32: 4_000_000_000, I32Dict: -5, F32: &f32, F64Dict: 0.25, Day: 19000, Micros: 1_700_000_000_000_000,
+			// Julian day 2440589 is 1970-01-02; plus 5 ns of the day.
+			Legacy: deprecated.Int96{5, 0, 2440589}, Tags: []string{"x"}, Flag: &tru, Route: &route},
+		{Code: [3]byte{'x', 'y', 'z'}, U32: 7, I32Dict: -5, F64Dict: 0.25, Day: -1, Micros: -1, Legacy: deprecated.Int96{0, 0, 2440588}},
+	}
+	var buf bytes.Buffer
+	w := parquet.NewGenericWriter[typedRow](&buf)
+	if _, err := w.Write(rows); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	r := openBytes(t, "types.parquet", buf.Bytes())
+	defer r.Close()
+	wantFields := []table.Field{
+		{Name: "code", Kind: table.String},
+		{Name: "u32", Kind: table.Int64},
+		{Name: "i32d", Kind: table.Int64},
+		{Name: "f32", Kind: table.Float64, Nullable: true},
+		{Name: "f64d", Kind: table.Float64},
+		{Name: "day", Kind: table.Int64},
+		{Name: "ts", Kind: table.Int64},
+		{Name: "legacy", Kind: table.Int64},
+		{Name: "flag", Kind: table.Bool, Nullable: true},
+		{Name: "route", Kind: table.String, Nullable: true},
+	}
+	got := r.Schema().Fields
+	if len(got) != len(wantFields) {
+		t.Fatalf("schema %v, want %v", got, wantFields)
+	}
+	for i := range wantFields {
+		if got[i] != wantFields[i] {
+			t.Fatalf("field %d = %+v, want %+v", i, got[i], wantFields[i])
+		}
+	}
+	// The dict tags must really give dictionary pages.
+	for _, name := range []string{"i32d", "f64d", "route"} {
+		i := r.Schema().Index(name)
+		pages := r.pf.RowGroups()[0].ColumnChunks()[r.leaves[i].index].Pages()
+		p, err := pages.ReadPage()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if p.Dictionary() == nil {
+			t.Fatalf("column %s: first page is not dictionary encoded", name)
+		}
+		parquet.Release(p)
+		pages.Close()
+	}
+	res := readAll(t, r)
+	want := [][]cell{
+		{{text: "ABC"}, {text: "xyz"}},
+		{{text: "4000000000"}, {text: "7"}},
+		{{text: "-5"}, {text: "-5"}},
+		{{text: "1.5"}, {null: true}},
+		{{text: "0.25"}, {text: "0.25"}},
+		{{text: "19000"}, {text: "-1"}},
+		{{text: "1700000000000000"}, {text: "-1"}},
+		{{text: "86400000000005"}, {text: "0"}}, // computed from the INT96 layout: 1 day in ns, plus 5
+		{{text: "true"}, {null: true}},
+		{{text: "north-7"}, {null: true}},
+	}
+	for i := range want {
+		compareCells(t, wantFields[i].Name, res.cols[i], want[i])
+	}
+}

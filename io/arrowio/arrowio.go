@@ -162,6 +162,13 @@ func openFile(f *os.File, name string) (r *reader, err error) {
 			r, err = nil, corrupt(name, p)
 		}
 	}()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, fmt.Errorf("read %s: %w", name, err)
+	}
+	if err := checkFooter(f, st.Size()); err != nil {
+		return nil, fmt.Errorf("%s: %w: %w", name, table.ErrCorrupt, err)
+	}
 	fr, err := ipc.NewFileReader(f, ipc.WithAllocator(readAlloc))
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w: %w", name, table.ErrCorrupt, err)
@@ -184,7 +191,7 @@ func openStream(in io.Reader, name string) (r *reader, err error) {
 			r, err = nil, corrupt(name, p)
 		}
 	}()
-	sr, err := ipc.NewReader(in, ipc.WithAllocator(readAlloc))
+	sr, err := ipc.NewReaderFromMessageReader(&msgReader{r: in}, ipc.WithAllocator(readAlloc))
 	if err != nil {
 		if errors.Is(err, io.EOF) {
 			return nil, fmt.Errorf("%s: %w", name, table.ErrEmpty)

@@ -13,15 +13,15 @@ import (
 // typedRow covers the physical and logical types the reader maps, and a
 // list and a nested group, which it leaves out.
 type typedRow struct {
-	Code    [3]byte          `parquet:"code"`           // FIXED_LEN_BYTE_ARRAY(3)
-	U32     uint32           `parquet:"u32"`            // INT32, unsigned
-	I32Dict int32            `parquet:"i32d,dict"`      // INT32, dictionary pages
-	F32     *float32         `parquet:"f32,optional"`   // FLOAT
-	F64Dict float64          `parquet:"f64d,dict"`      // DOUBLE, dictionary pages
-	Day     int32            `parquet:"day,date"`       // INT32 DATE: its day number
+	Code    [3]byte          `parquet:"code"`         // FIXED_LEN_BYTE_ARRAY(3)
+	U32     uint32           `parquet:"u32"`          // INT32, unsigned
+	I32Dict int32            `parquet:"i32d,dict"`    // INT32, dictionary pages
+	F32     *float32         `parquet:"f32,optional"` // FLOAT
+	F64Dict float64          `parquet:"f64d,dict"`    // DOUBLE, dictionary pages
+	Day     int32            `parquet:"day,date"`     // INT32 DATE: its day number
 	Micros  int64            `parquet:"ts,timestamp(microsecond)"`
-	Legacy  deprecated.Int96 `parquet:"legacy"`         // INT96 timestamp
-	Tags    []string         `parquet:"tags,list"`      // a list: left out
+	Legacy  deprecated.Int96 `parquet:"legacy"`    // INT96 timestamp
+	Tags    []string         `parquet:"tags,list"` // a list: left out
 	Addr    struct {
 		Zip string `parquet:"zip"`
 	} `parquet:"addr"` // a group: left out

@@ -311,7 +311,7 @@ func TestReadArrowWrittenTables(t *testing.T) {
 	}, nil)
 	changing := []batchData{
 		{vals: [][]any{{0, 1, nil}}, dicts: map[int][]string{0: {"R-1", "R-2"}}},
-		{vals: [][]any{{1, 1}}, dicts: map[int][]string{0: {"R-1", "R-2"}}},            // same: no new dictionary
+		{vals: [][]any{{1, 1}}, dicts: map[int][]string{0: {"R-1", "R-2"}}},             // same: no new dictionary
 		{vals: [][]any{{2, nil, 0}}, dicts: map[int][]string{0: {"R-1", "R-2", "R-3"}}}, // delta
 		{vals: [][]any{{0, 0}}, dicts: map[int][]string{0: {"R-9"}}},                    // replacement
 	}

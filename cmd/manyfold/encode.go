@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
 
@@ -159,9 +160,20 @@ func runEncode(args []string) (err error) {
 			return err
 		}
 	}
+	// The first pass reads only the columns the fit needs.
+	full := append([]table.Field(nil), r.Schema().Fields...)
+	if need, ok := sp.FitColumns(r.Schema()); ok {
+		if err := r.Select(need); err != nil {
+			r.Close()
+			return err
+		}
+	}
 	pr := newProgress("fit")
 	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update})
 	r.Close()
+	if m != nil {
+		m.Input = full
+	}
 	pr.done()
 	if err != nil {
 		return err

@@ -86,7 +86,15 @@ func main() {
 			os.Exit(code)
 		}
 	}
-	os.Exit(run(os.Args[1:]))
+	code := run(os.Args[1:])
+	if path := os.Getenv("MANYFOLD_MEMPROFILE"); path != "" {
+		// For contributors: the allocations of the whole run.
+		if f, err := os.Create(path); err == nil {
+			pprof.Lookup("allocs").WriteTo(f, 0)
+			f.Close()
+		}
+	}
+	os.Exit(code)
 }
 
 // run executes a command line and returns the exit code.

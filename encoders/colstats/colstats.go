@@ -15,9 +15,9 @@ package colstats
 import (
 	"bytes"
 	"cmp"
-	"slices"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 
 	"manyfold/encoders/levels"
@@ -254,9 +254,9 @@ func (ft *Fitted) Encode(a Agg) float64 {
 // the slots in the order their statistics are summed (nil: slot order); a
 // canonical order (Sorted) makes the result independent of the order in
 // which levels were first seen.
-func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint32, buf []smooth.LevelStats) (Fitted, []smooth.LevelStats) {
+func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint32) Fitted {
 	var tot Agg
-	buf = buf[:0]
+	var mo smooth.Moments
 	n := len(s.Rows)
 	if order != nil {
 		n = len(order)
@@ -270,7 +270,7 @@ func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint
 		tot.N += a.N
 		tot.Sum += a.Sum
 		if a.N > 0 && (keep == nil || keep[l]) {
-			buf = append(buf, smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq})
+			mo.Add(smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq})
 		}
 	}
 	ft := Fitted{Sm: sm, M: math.NaN()}
@@ -283,9 +283,9 @@ func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint
 	case "m":
 		ft.M = sm.M
 	case "auto":
-		ft.M, _, _ = smooth.EstimateM(buf)
+		ft.M, _, _ = mo.Estimate()
 	}
-	return ft, buf
+	return ft
 }
 
 // Merge adds the statistics of o into s. Both must have the same task and

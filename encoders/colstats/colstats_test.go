@@ -75,7 +75,7 @@ func TestOutOfFoldWorkedExample(t *testing.T) {
 	sm := Smoothing{Kind: "m", M: 1}
 	want := map[int]map[string]float64{0: {"A": 5.0 / 6, "B": 1.0 / 6}, 1: {"A": 0.5, "B": 0.5}}
 	for f, lv := range want {
-		ft, _ := s.Fit(0, f, 1, sm, nil, nil, nil)
+		ft := s.Fit(0, f, 1, sm, nil, nil)
 		for name, v := range lv {
 			got := ft.Encode(s.Target(s.Lookup([]byte(name)), 0, f, 1))
 			if math.Abs(got-v) > 1e-12 {

@@ -6,7 +6,6 @@ import (
 	"io"
 
 	"manyfold/encoders/colstats"
-	"manyfold/encoders/smooth"
 	"manyfold/io/table"
 )
 
@@ -38,8 +37,8 @@ type Col struct {
 	TMean [][]float64
 	Freq  []float64
 	TopK  []int32
-	Order []uint32 // slots in canonical order (Stats.Sorted)
-	total float64  // rows of all levels, for frequency shares
+	Order []uint32          // slots in canonical order (Stats.Sorted)
+	total float64           // rows of all levels, for frequency shares
 	Full  []colstats.Fitted // per output
 	// Per fold f and output o, the fit over the rows of the other folds.
 	FoldFit [][]colstats.Fitted
@@ -289,17 +288,16 @@ func (m *Model) derive(c *Col, supervised bool) {
 		}
 	}
 	outs := st.Outputs()
-	var buf []smooth.LevelStats
 	c.Full = make([]colstats.Fitted, outs)
 	for o := 0; o < outs; o++ {
-		c.Full[o], buf = st.Fit(o, -1, m.Pos, sp.Smoothing, c.Keep, order, buf)
+		c.Full[o] = st.Fit(o, -1, m.Pos, sp.Smoothing, c.Keep, order)
 	}
 	if k := st.Folds; k > 1 {
 		c.FoldFit = make([][]colstats.Fitted, k)
 		for f := 0; f < k; f++ {
 			c.FoldFit[f] = make([]colstats.Fitted, outs)
 			for o := 0; o < outs; o++ {
-				c.FoldFit[f][o], buf = st.Fit(o, f, m.Pos, sp.Smoothing, c.Keep, nil, buf)
+				c.FoldFit[f][o] = st.Fit(o, f, m.Pos, sp.Smoothing, c.Keep, nil)
 			}
 		}
 	}

@@ -9,6 +9,7 @@ import (
 	"strings"
 
 	"manyfold/encoders/colstats"
+	"manyfold/io/table"
 )
 
 // The encoding methods.
@@ -185,4 +186,26 @@ func (e *UsageError) Error() string { return e.Msg }
 
 func usageErr(format string, a ...any) error {
 	return &UsageError{Msg: fmt.Sprintf(format, a...)}
+}
+
+// FitColumns returns the positions in s of the columns the fit reads: the
+// encoded columns, the target and the group column, in schema order. ok is
+// false when one of them is missing (Fit then reports it by name).
+func (sp *Spec) FitColumns(s *table.Schema) (cols []int, ok bool) {
+	need := map[string]bool{sp.Target: sp.Target != "", sp.groupColumn(): sp.groupColumn() != ""}
+	for _, c := range sp.Columns {
+		need[c] = true
+	}
+	for i, f := range s.Fields {
+		if need[f.Name] {
+			cols = append(cols, i)
+			delete(need, f.Name)
+		}
+	}
+	for _, v := range need {
+		if v {
+			return nil, false
+		}
+	}
+	return cols, true
 }

@@ -120,25 +120,42 @@ const FallbackM = 1.0
 //     least two rows (then it is that level's variance SSW/(N-1)).
 //   - NaN in Sum or SumSq: sigma2, tau2 and m are NaN.
 func EstimateM(levels []LevelStats) (m, sigma2, tau2 float64) {
-	var (
-		l              int
-		n, sum, sumSqN float64 // rows, sum of targets, sum of n_i^2
-		ssw, sumMeanSq float64 // within SS, sum of Sum_i^2/n_i
-	)
+	var mo Moments
 	for _, s := range levels {
-		if !(s.N > 0) {
-			continue
-		}
-		l++
-		n += s.N
-		sum += s.Sum
-		sumSqN += s.N * s.N
-		between := s.Sum * s.Sum / s.N
-		sumMeanSq += between
-		if w := s.SumSq - between; w > 0 || math.IsNaN(w) {
-			ssw += w
-		}
+		mo.Add(s)
 	}
+	return mo.Estimate()
+}
+
+// Moments accumulates, level by level, the sums EstimateM needs, so that m
+// can be estimated in one pass without holding the levels. Its zero value
+// is empty.
+type Moments struct {
+	l              int
+	n, sum, sumSqN float64 // rows, sum of targets, sum of n_i^2
+	ssw, sumMeanSq float64 // within SS, sum of Sum_i^2/n_i
+}
+
+// Add counts one level; a level with N <= 0 (or NaN N) is ignored.
+func (mo *Moments) Add(s LevelStats) {
+	if !(s.N > 0) {
+		return
+	}
+	mo.l++
+	mo.n += s.N
+	mo.sum += s.Sum
+	mo.sumSqN += s.N * s.N
+	between := s.Sum * s.Sum / s.N
+	mo.sumMeanSq += between
+	if w := s.SumSq - between; w > 0 || math.IsNaN(w) {
+		mo.ssw += w
+	}
+}
+
+// Estimate returns m, sigma2 and tau2 for the levels added, as EstimateM
+// documents.
+func (mo *Moments) Estimate() (m, sigma2, tau2 float64) {
+	l, n, sum, sumSqN, ssw, sumMeanSq := mo.l, mo.n, mo.sum, mo.sumSqN, mo.ssw, mo.sumMeanSq
 	if l < 2 || n <= float64(l) {
 		sigma2, tau2 = math.NaN(), math.NaN()
 		if l == 1 && n > 1 {

@@ -65,7 +65,7 @@ func runApply(args []string) error {
 	if err := m.CheckInput(name, r.Schema(), *tables); err != nil {
 		return err
 	}
-	schema, _, _, err := m.OutputSchema(r.Schema(), true)
+	schema, _, _, err := m.OutputSchema(name, r.Schema(), true)
 	if err != nil {
 		return err
 	}

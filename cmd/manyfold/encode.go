@@ -187,7 +187,7 @@ func runEncode(args []string) (err error) {
 		return err
 	}
 	defer r.Close()
-	schema, _, _, err := m.OutputSchema(r.Schema(), false)
+	schema, _, _, err := m.OutputSchema(name, r.Schema(), false)
 	if err != nil {
 		return err
 	}

@@ -27,6 +27,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/csvio"
 	"manyfold/io/table"
 )
 
@@ -149,7 +150,7 @@ func exitCode(err error) int {
 	var me *pipeline.ManifestError
 	var oe *outputError
 	switch {
-	case errors.As(err, &ue), errors.As(err, &pu), errors.As(err, &ce):
+	case errors.As(err, &ue), errors.As(err, &pu), errors.As(err, &ce), errors.Is(err, csvio.ErrTypeColumn):
 		return exitUsage
 	case errors.As(err, &oe):
 		return exitOutput

@@ -38,7 +38,7 @@ type outCol struct {
 
 // OutputSchema returns the schema of the encoded table: the kept input
 // columns in their order, then the encoded columns, then the fold column.
-func (m *Model) OutputSchema(in *table.Schema, apply bool) (*table.Schema, []int, []outCol, error) {
+func (m *Model) OutputSchema(file string, in *table.Schema, apply bool) (*table.Schema, []int, []outCol, error) {
 	var kept []int
 	switch {
 	case m.Spec.KeepAll:
@@ -49,7 +49,7 @@ func (m *Model) OutputSchema(in *table.Schema, apply bool) (*table.Schema, []int
 		for _, name := range m.Spec.Keep {
 			i := in.Index(name)
 			if i < 0 {
-				return nil, nil, nil, &ColumnError{File: "input", Flag: "--keep", Name: name, Have: in.Names()}
+				return nil, nil, nil, &ColumnError{File: file, Flag: "--keep", Name: name, Have: in.Names()}
 			}
 			kept = append(kept, i)
 		}
@@ -112,7 +112,7 @@ func (m *Model) OutputSchema(in *table.Schema, apply bool) (*table.Schema, []int
 func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summary, error) {
 	schema := r.Schema()
 	sum := Summary{Unseen: make([]int64, len(m.Cols))}
-	_, kept, outs, err := m.OutputSchema(schema, opt.Apply)
+	_, kept, outs, err := m.OutputSchema(opt.File, schema, opt.Apply)
 	if err != nil {
 		return sum, err
 	}

@@ -121,7 +121,7 @@ func Scan(r table.Reader, cols []int, top int, progress func(int64)) ([]Profile,
 }
 
 // suggest applies the rule the README states, first match wins:
-//  1. at most one level: drop (constant);
+//  1. no level or a single one: drop (empty or constant);
 //  2. every non-null row has a level of its own: an identifier; no
 //     per-level statistic reaches new rows, so drop it, or use a
 //     hierarchical prior if its prefixes mean something;
@@ -135,7 +135,9 @@ func Scan(r table.Reader, cols []int, top int, progress func(int64)) ([]Profile,
 func suggest(p *Profile) (string, string) {
 	nonNull := p.Rows - p.Nulls
 	switch {
-	case p.Distinct <= 1:
+	case p.Distinct == 0:
+		return "drop", "the column holds no values"
+	case p.Distinct == 1:
 		return "drop", "a single level carries no information"
 	case int64(p.Distinct) == nonNull:
 		return "drop", "every row has its own level (an identifier): no statistic of a level reaches new rows; if its prefixes form a hierarchy, try target with --prior-by prefix=N"

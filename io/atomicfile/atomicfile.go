@@ -29,6 +29,10 @@ func Create(path string) (*File, error) {
 	return &File{File: f, path: path}, nil
 }
 
+// Name returns the final path, so that writers which name their file in
+// errors name the file the user asked for, not the temporary one.
+func (f *File) Name() string { return f.path }
+
 // Path returns the final path the file will have after Commit.
 func (f *File) Path() string { return f.path }
 

@@ -63,3 +63,9 @@
 // holds the delimiter, a quote, CR or LF, starts or ends with a space or tab,
 // or is a non-null empty string; a null is an empty unquoted field.
 package csvio
+
+import "errors"
+
+// ErrTypeColumn is wrapped by the error NewReader returns when
+// Options.Types names a column the header does not have.
+var ErrTypeColumn = errors.New("a type is given for a column the header lacks")

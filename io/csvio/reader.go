@@ -311,7 +311,7 @@ func (r *Reader) start(opts Options) error {
 		k := opts.Types[name]
 		i := full.Index(name)
 		if i < 0 {
-			return &table.DataError{File: r.name, Column: name, Err: errors.New("a type is given for a column the header lacks")}
+			return &table.DataError{File: r.name, Column: name, Err: ErrTypeColumn}
 		}
 		if k > table.Bool {
 			return &table.DataError{File: r.name, Column: name, Err: fmt.Errorf("unknown kind %v", k)}

@@ -146,6 +146,10 @@ func suggest(p *Profile) (string, string) {
 	case p.Distinct <= 30:
 		return fmt.Sprintf("topk:%d", p.Distinct), fmt.Sprintf("%d levels: one code each (one-hot in a linear model)", p.Distinct)
 	case p.Cover100 >= 0.95:
+		k := min(100, p.Distinct)
+		if k < 100 {
+			return fmt.Sprintf("topk:%d", k), fmt.Sprintf("%d levels: one code each", k)
+		}
 		return "topk:100", fmt.Sprintf("the top 100 levels cover %.1f%% of rows; the rest share the other code", 100*p.Cover100)
 	case p.SeenOnce >= 0.5:
 		return "target+freq", fmt.Sprintf("%.0f%% of levels are seen once: smoothed out-of-fold target mean, with the frequency to tell rare levels from common ones", 100*p.SeenOnce)

@@ -6,9 +6,9 @@
 //
 //   - utf8, large_utf8, binary, large_binary, the view types and
 //     fixed_size_binary: text (FormText);
-//   - a dictionary of one of those: text in dictionary form (FormDict), with a
-//     table.Dict whose ID changes whenever the dictionary does (a delta or a
-//     replacement in a stream);
+//   - a dictionary of utf8, large_utf8, binary or large_binary values: text
+//     in dictionary form (FormDict), with a table.Dict whose ID changes
+//     whenever the dictionary does (a delta or a replacement in a stream);
 //   - int8 to int64 and uint8 to uint64: int (a uint64 above the int64 range
 //     is a data error);
 //   - date32, date64, time32, time64, timestamp and duration: int, holding the

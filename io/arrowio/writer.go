@@ -238,6 +238,14 @@ func (w *writer) text(st *writeCol, col *table.Column, n int, name string) ([]in
 		offs, data := rebase32(&st.offs, col.Offsets[:n+1], col.Data)
 		return offs, data, nil
 	}
+	if col.Form == table.FormDict {
+		size := int32(col.Dict.Len())
+		for i, x := range col.Indices[:n] {
+			if (x < 0 || x >= size) && !col.IsNull(i) {
+				return nil, nil, fmt.Errorf("%s: column %q: dictionary index %d out of range (%d entries)", w.name, name, x, size)
+			}
+		}
+	}
 	st.offs = resize(st.offs, n+1)
 	st.offs[0] = 0
 	data := st.data[:0]

@@ -814,3 +814,18 @@ func TestUint64OutOfRange(t *testing.T) {
 
 // negZero is -0.0 (the literal -0.0 is +0 in Go constant arithmetic).
 var negZero = math.Copysign(0, -1)
+
+func TestWriterBadDictionaryIndex(t *testing.T) {
+	w, err := NewWriter(io.Discard, &table.Schema{Fields: []table.Field{{Name: "route", Kind: table.String, Nullable: true}}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer w.Close()
+	dict := &table.Dict{Data: []byte("R-1"), Offsets: []int32{0, 3}, ID: 1}
+	// Index 5 on a null row is ignored; index 2 on a value row is an error.
+	col := table.Column{Form: table.FormDict, Dict: dict, Indices: []int32{0, 5, 2}, Nulls: []bool{false, true, false}}
+	err = w.Write(&table.Batch{Rows: 3, Cols: []table.Column{col}})
+	if err == nil || !strings.Contains(err.Error(), "index 2 out of range") || !strings.Contains(err.Error(), `"route"`) {
+		t.Fatalf("error %v, want an index out of range naming the column", err)
+	}
+}

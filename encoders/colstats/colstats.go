@@ -59,13 +59,39 @@ type Stats struct {
 
 	// Rows[l]: all rows of level l, whatever their target.
 	Rows []uint64
-	// Cnt[l*K+f]: rows of level l in fold f whose target is known
-	// (regression; for classification it is the sum of the class counts).
-	Cnt []uint32
-	// Cls[(l*K+f)*C+c]: of those, the rows of class c (classification).
-	Cls []uint32
-	// Sum, SumSq[l*K+f]: the sum and sum of squares of their target (regression).
-	Sum, SumSq []float64
+
+	// Per level, in chunks of whole levels, so that growing never copies
+	// and never holds twice the memory:
+	// cls.row(l)[f*C+c]: rows of level l in fold f of class c (classification);
+	// cnt, sum, sumSq.row(l)[f]: rows of level l in fold f whose target is
+	// known, the sum and the sum of squares of their target (regression).
+	cls        perLevel[uint32]
+	cnt        perLevel[uint32]
+	sum, sumSq perLevel[float64]
+}
+
+// chunkBits sets the levels per chunk of a perLevel array (2^14).
+const chunkBits = 14
+
+// perLevel is an array of width values per level, stored in chunks of
+// 2^chunkBits levels.
+type perLevel[T any] struct {
+	width  int
+	chunks [][]T
+}
+
+// row returns the width values of level l.
+func (p *perLevel[T]) row(l int) []T {
+	c := p.chunks[l>>chunkBits]
+	o := (l & (1<<chunkBits - 1)) * p.width
+	return c[o : o+p.width : o+p.width]
+}
+
+// grow makes room for n levels.
+func (p *perLevel[T]) grow(n int) {
+	for len(p.chunks)<<chunkBits < n {
+		p.chunks = append(p.chunks, make([]T, p.width<<chunkBits))
+	}
 }
 
 // New returns empty statistics for k folds.
@@ -87,11 +113,13 @@ func (s *Stats) grow(n int) {
 	}
 	s.Rows = extend(s.Rows, n)
 	if s.Task == Regression {
-		s.Cnt = extend(s.Cnt, n*s.Folds)
-		s.Sum = extend(s.Sum, n*s.Folds)
-		s.SumSq = extend(s.SumSq, n*s.Folds)
+		s.cnt.width, s.sum.width, s.sumSq.width = s.Folds, s.Folds, s.Folds
+		s.cnt.grow(n)
+		s.sum.grow(n)
+		s.sumSq.grow(n)
 	} else {
-		s.Cls = extend(s.Cls, n*s.Folds*s.Classes)
+		s.cls.width = s.Folds * s.Classes
+		s.cls.grow(n)
 	}
 }
 
@@ -140,12 +168,20 @@ func (s *Stats) AddClasses(n int) {
 	if n <= s.Classes || s.Task == Regression {
 		return
 	}
-	old := s.Classes
-	cls := make([]uint32, len(s.Rows)*s.Folds*n)
-	for i := 0; i < len(s.Rows)*s.Folds; i++ {
-		copy(cls[i*n:i*n+old], s.Cls[i*old:(i+1)*old])
+	old := s.cls
+	s.Classes = n
+	s.cls = perLevel[uint32]{width: s.Folds * n}
+	s.cls.grow(len(s.Rows))
+	if old.width == 0 {
+		return
 	}
-	s.Cls, s.Classes = cls, n
+	oc := old.width / s.Folds
+	for l := range s.Rows {
+		src, dst := old.row(l), s.cls.row(l)
+		for f := 0; f < s.Folds; f++ {
+			copy(dst[f*n:f*n+oc], src[f*oc:(f+1)*oc])
+		}
+	}
 }
 
 // AddRow counts a row of level l whose target is unknown.
@@ -154,16 +190,35 @@ func (s *Stats) AddRow(l int) { s.Rows[l]++ }
 // AddClass counts a row of level l in fold f with target class c.
 func (s *Stats) AddClass(l, f, c int) {
 	s.Rows[l]++
-	s.Cls[(l*s.Folds+f)*s.Classes+c]++
+	s.cls.row(l)[f*s.Classes+c]++
 }
 
 // AddValue counts a row of level l in fold f with numeric target y.
 func (s *Stats) AddValue(l, f int, y float64) {
 	s.Rows[l]++
-	i := l*s.Folds + f
-	s.Cnt[i]++
-	s.Sum[i] += y
-	s.SumSq[i] += y * y
+	s.cnt.row(l)[f]++
+	s.sum.row(l)[f] += y
+	s.sumSq.row(l)[f] += y * y
+}
+
+// SetClass sets the count of class c of level l in fold f (for statistics
+// read back from mapping tables).
+func (s *Stats) SetClass(l, f, c int, v uint32) { s.cls.row(l)[f*s.Classes+c] = v }
+
+// SetValue sets the row count, target sum and sum of squares of level l in
+// fold f of a regression target.
+func (s *Stats) SetValue(l, f int, n uint32, sum, sumSq float64) {
+	s.cnt.row(l)[f], s.sum.row(l)[f], s.sumSq.row(l)[f] = n, sum, sumSq
+}
+
+// ClassCount returns the rows of level l of class c over all folds.
+func (s *Stats) ClassCount(l, c int) uint64 {
+	var n uint64
+	row := s.cls.row(l)
+	for f := 0; f < s.Folds; f++ {
+		n += uint64(row[f*s.Classes+c])
+	}
+	return n
 }
 
 // Agg is the target statistic of a set of rows for one output: n rows and
@@ -185,32 +240,32 @@ func (s *Stats) Outputs() int {
 // is class slot pos.
 func (s *Stats) Target(l, o, exclude, pos int) Agg {
 	var a Agg
-	base := l * s.Folds
+	if s.Task == Regression {
+		cnt, sum, sq := s.cnt.row(l), s.sum.row(l), s.sumSq.row(l)
+		for f := 0; f < s.Folds; f++ {
+			if f != exclude {
+				a.N += float64(cnt[f])
+				a.Sum += sum[f]
+				a.SumSq += sq[f]
+			}
+		}
+		return a
+	}
+	if s.Task == Binary {
+		o = pos
+	}
+	row := s.cls.row(l)
+	var n, k uint64
 	for f := 0; f < s.Folds; f++ {
 		if f == exclude {
 			continue
 		}
-		i := base + f
-		if s.Task == Regression {
-			a.N += float64(s.Cnt[i])
-			a.Sum += s.Sum[i]
-			a.SumSq += s.SumSq[i]
-			continue
+		for _, v := range row[f*s.Classes : (f+1)*s.Classes] {
+			n += uint64(v)
 		}
-		var n uint32
-		for _, v := range s.Cls[i*s.Classes : (i+1)*s.Classes] {
-			n += v
-		}
-		a.N += float64(n)
-		if s.Task == Binary {
-			a.Sum += float64(s.Cls[i*s.Classes+pos])
-		} else {
-			a.Sum += float64(s.Cls[i*s.Classes+o])
-		}
+		k += uint64(row[f*s.Classes+o])
 	}
-	if s.Task != Regression {
-		a.SumSq = a.Sum
-	}
+	a.N, a.Sum, a.SumSq = float64(n), float64(k), float64(k)
 	return a
 }
 
@@ -302,18 +357,7 @@ func (s *Stats) Merge(o *Stats) error {
 			d = s.Level(o.Bytes(l))
 		}
 		s.Rows[d] += o.Rows[l]
-		for f := 0; f < s.Folds; f++ {
-			i, j := d*s.Folds+f, l*o.Folds+f
-			if s.Task == Regression {
-				s.Cnt[i] += o.Cnt[j]
-				s.Sum[i] += o.Sum[j]
-				s.SumSq[i] += o.SumSq[j]
-				continue
-			}
-			for c := 0; c < o.Classes; c++ {
-				s.Cls[i*s.Classes+c] += o.Cls[j*o.Classes+c]
-			}
-		}
+		s.addLevel(d, o, l)
 	}
 	return nil
 }
@@ -433,12 +477,15 @@ func (s *Stats) PermuteClasses(pos []int) {
 		return
 	}
 	tmp := make([]uint32, s.Classes)
-	for i := 0; i < len(s.Rows)*s.Folds; i++ {
-		row := s.Cls[i*s.Classes : (i+1)*s.Classes]
-		for c, v := range row {
-			tmp[pos[c]] = v
+	for l := range s.Rows {
+		lr := s.cls.row(l)
+		for f := 0; f < s.Folds; f++ {
+			row := lr[f*s.Classes : (f+1)*s.Classes]
+			for c, v := range row {
+				tmp[pos[c]] = v
+			}
+			copy(row, tmp)
 		}
-		copy(row, tmp)
 	}
 }
 
@@ -455,18 +502,28 @@ func (s *Stats) Rollup(parent func([]byte) []byte) (*Stats, []int32) {
 		}
 		of[l] = int32(d)
 		p.Rows[d] += s.Rows[l]
-		for f := 0; f < s.Folds; f++ {
-			i, j := d*s.Folds+f, l*s.Folds+f
-			if s.Task == Regression {
-				p.Cnt[i] += s.Cnt[j]
-				p.Sum[i] += s.Sum[j]
-				p.SumSq[i] += s.SumSq[j]
-				continue
-			}
-			for c := 0; c < s.Classes; c++ {
-				p.Cls[i*s.Classes+c] += s.Cls[j*s.Classes+c]
-			}
-		}
+		p.addLevel(d, s, l)
 	}
 	return p, of
+}
+
+// addLevel adds the per-fold target statistics of level l of o to level d
+// of s (same task and folds; o's classes are the first of s's).
+func (s *Stats) addLevel(d int, o *Stats, l int) {
+	if s.Task == Regression {
+		dc, ds, dq := s.cnt.row(d), s.sum.row(d), s.sumSq.row(d)
+		oc, os, oq := o.cnt.row(l), o.sum.row(l), o.sumSq.row(l)
+		for f := 0; f < s.Folds; f++ {
+			dc[f] += oc[f]
+			ds[f] += os[f]
+			dq[f] += oq[f]
+		}
+		return
+	}
+	dst, src := s.cls.row(d), o.cls.row(l)
+	for f := 0; f < s.Folds; f++ {
+		for c := 0; c < o.Classes; c++ {
+			dst[f*s.Classes+c] += src[f*o.Classes+c]
+		}
+	}
 }

@@ -303,13 +303,7 @@ func (m *Model) saveCol(path string, c *Col) error {
 				floatCol(func(l int) float64 { return st.Target(l, 0, -1, 0).SumSq })
 			} else {
 				for cl := range m.Classes {
-					intCol(func(l int) int64 {
-						var s uint32
-						for f := 0; f < st.Folds; f++ {
-							s += st.Cls[(l*st.Folds+f)*st.Classes+cl]
-						}
-						return int64(s)
-					})
+					intCol(func(l int) int64 { return int64(st.ClassCount(l, cl)) })
 				}
 			}
 			for o := range c.Full {
@@ -462,12 +456,11 @@ func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Co
 			if supervised {
 				tn := uint32(next().Ints[i])
 				if task == colstats.Regression {
-					st.Cnt[l] = tn
-					st.Sum[l] = next().Floats[i]
-					st.SumSq[l] = next().Floats[i]
+					sum := next().Floats[i]
+					st.SetValue(l, 0, tn, sum, next().Floats[i])
 				} else {
 					for cl := range m.Classes {
-						st.Cls[l*st.Classes+cl] = uint32(next().Ints[i])
+						st.SetClass(l, 0, cl, uint32(next().Ints[i]))
 					}
 				}
 				for o := 0; o < outs; o++ {

@@ -284,6 +284,10 @@ func TestBadEncode(t *testing.T) {
 		{"too many classes", func(t *testing.T, dir string) []string {
 			return encodeArgs(dir, csvWith(manyClasses())(t, dir), "--target", "late", "--columns", "postcode")
 		}, exitData, []string{"shipments.csv" + line(pipeline.MaxClasses+2), `column "late"`, fmt.Sprintf("more than %d classes", pipeline.MaxClasses)}},
+		{"file not sorted by --order-by", func(t *testing.T, dir string) []string {
+			return encodeArgs(dir, csvWith("day,postcode,late\n2026-01-01,PC1,1\n2026-01-02,PC2,0\n2026-01-01,PC1,1\n")(t, dir),
+				"--target", "late", "--columns", "postcode", "--scheme", "ordered", "--order-by", "day")
+		}, exitData, []string{"shipments.csv" + line(4), `column "day"`, "not sorted"}},
 		{"NaN target", func(t *testing.T, dir string) []string {
 			return encodeArgs(dir, csvWith("postcode,late\nPC1,1\nPC2,0\nPC1,NaN\nPC3,1\n")(t, dir), "--target", "late", "--columns", "postcode")
 		}, exitData, []string{"shipments.csv" + line(4), `column "late"`, "NaN"}},

@@ -62,6 +62,7 @@ func runEncode(args []string) (err error) {
 	nulls := fs.String("nulls", "level", "nulls as a level of their own (level) or as unseen")
 	keep := fs.String("keep", "all", "input columns written back: all, none, or a comma-separated list")
 	fs.StringVar(&sp.FoldColumn, "fold-column", "", "also write each row's fold under this name")
+	fs.StringVar(&sp.OrderBy, "order-by", "", "check that the file is sorted by this column (for --scheme ordered or --fold-by ordered)")
 	out := fs.String("out", "", "encoded table: .parquet, .csv or .arrow")
 	tables := fs.String("tables", "", "directory for the mapping tables")
 	format := fs.String("format", "", "output format, overriding the extension: parquet, csv, arrow")

@@ -91,6 +91,15 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		}
 		m.Cols = append(m.Cols, &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i})
 	}
+	var order *orderCheck
+	if sp.OrderBy != "" {
+		i := schema.Index(sp.OrderBy)
+		if i < 0 {
+			return nil, &ColumnError{File: opt.File, Flag: "--order-by", Name: sp.OrderBy, Have: schema.Names()}
+		}
+		k := schema.Fields[i].Kind
+		order = &orderCheck{file: opt.File, name: sp.OrderBy, col: i, numeric: k == table.Int64 || k == table.Float64}
+	}
 	if sp.FoldBy == "ordered" && sp.folds() > 1 && opt.TotalRows <= 0 {
 		return nil, errors.New("--fold-by ordered needs the row count of the input")
 	}
@@ -128,6 +137,11 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		}
 		if b.Rows == 0 {
 			continue
+		}
+		if order != nil {
+			if err := order.check(b); err != nil {
+				return nil, err
+			}
 		}
 		if !decided {
 			decided = true
@@ -422,4 +436,47 @@ func (c *Col) order() []uint32 {
 		c.Order = c.St.Sorted()
 	}
 	return c.Order
+}
+
+// orderCheck verifies that a column never decreases from row to row: by
+// number for a numeric column, by bytes otherwise; nulls are passed over.
+type orderCheck struct {
+	file, name string
+	col        int
+	numeric    bool
+	seen       bool
+	lastNum    float64
+	last, cur  []byte
+}
+
+func (oc *orderCheck) check(b *table.Batch) error {
+	c := &b.Cols[oc.col]
+	for i := 0; i < b.Rows; i++ {
+		if c.IsNull(i) {
+			continue
+		}
+		oc.cur = c.AppendText(oc.cur[:0], i)
+		bad := false
+		if oc.numeric {
+			v, _, err := c.Float(i)
+			if err != nil {
+				return &table.DataError{File: oc.file, Row: b.FirstRow + int64(i), Column: oc.name, Err: err}
+			}
+			bad = oc.seen && v < oc.lastNum
+			oc.lastNum = v
+		} else {
+			bad = oc.seen && string(oc.cur) < string(oc.last)
+		}
+		if bad {
+			e := &table.DataError{File: oc.file, Row: b.FirstRow + int64(i), Column: oc.name,
+				Err: fmt.Errorf("the file is not sorted by this column (--order-by): %q comes after %q", oc.cur, oc.last)}
+			if b.Lines != nil {
+				e.Line = b.Lines[i]
+			}
+			return e
+		}
+		oc.seen = true
+		oc.last, oc.cur = oc.cur, oc.last
+	}
+	return nil
 }

@@ -54,6 +54,7 @@ type Spec struct {
 	Keep         []string
 	KeepAll      bool
 	FoldColumn   string // "" for none
+	OrderBy      string // a column the input must be sorted by (ascending), checked during the fit
 }
 
 // DefaultSpec returns the defaults documented in the command's help.
@@ -192,7 +193,7 @@ func usageErr(format string, a ...any) error {
 // encoded columns, the target and the group column, in schema order. ok is
 // false when one of them is missing (Fit then reports it by name).
 func (sp *Spec) FitColumns(s *table.Schema) (cols []int, ok bool) {
-	need := map[string]bool{sp.Target: sp.Target != "", sp.groupColumn(): sp.groupColumn() != ""}
+	need := map[string]bool{sp.Target: sp.Target != "", sp.groupColumn(): sp.groupColumn() != "", sp.OrderBy: sp.OrderBy != ""}
 	for _, c := range sp.Columns {
 		need[c] = true
 	}

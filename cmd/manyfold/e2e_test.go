@@ -447,3 +447,51 @@ func TestLeaveOneOutLeaks(t *testing.T) {
 		t.Errorf("no threshold separates the labels: max positive %v, min negative %v", maxPos, minNeg)
 	}
 }
+
+// TestReferenceChecksPriorHalf reproduces the reference's own check values,
+// which take the prior p = 0.5: a second level is added so that the prior of
+// all rows is exactly 0.5 (it does not change the first level's values).
+//   - Ordered target statistic (Prokhorenkova et al., NeurIPS 2018; computed
+//     from the formula): one level, y = [1,0,1,1] in order, a = 1, p = 0.5 ->
+//     [0.5, 0.75, 0.5, 0.625]; a new row of that level -> 3.5/5 = 0.7.
+//   - Leave-one-out (same paper; computed): n = 101, n+ = 50, a = 1, p = 0.5:
+//     a positive row gets 49.5/101, a negative row 50.5/101.
+func TestReferenceChecksPriorHalf(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "ordered.csv", "route,late\nR1,1\nR1,0\nR1,1\nR1,1\nR2,0\nR2,0\n")
+	out := filepath.Join(dir, "enc.csv")
+	tables := filepath.Join(dir, "tables")
+	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--scheme", "ordered", "--smoothing", "m=1",
+		"--out", out, "--tables", tables)
+	got := readTable(t, out).col(t, "route_tmean")
+	for i, want := range []float64{0.5, 0.75, 0.5, 0.625} {
+		if v := parseF(t, got[i]); !near(v, want, 1e-12) {
+			t.Errorf("ordered row %d: %.15g, want %.15g", i+1, v, want)
+		}
+	}
+	app := filepath.Join(dir, "app.csv")
+	mustRun(t, "apply", in, "--tables", tables, "--out", app)
+	if v := parseF(t, readTable(t, app).col(t, "route_tmean")[0]); !near(v, 0.7, 1e-12) {
+		t.Errorf("new row of R1: %.15g, want 0.7", v)
+	}
+
+	var b strings.Builder
+	b.WriteString("parcel_type,late\n")
+	for i := 0; i < 101; i++ {
+		fmt.Fprintf(&b, "bulky,%d\n", map[bool]int{true: 1, false: 0}[i < 50])
+	}
+	for i := 0; i < 101; i++ { // 51 positives, 50 negatives: the prior of all rows is 101/202
+		fmt.Fprintf(&b, "flat,%d\n", map[bool]int{true: 1, false: 0}[i < 51])
+	}
+	in = writeFile(t, dir, "loo.csv", b.String())
+	out = filepath.Join(dir, "loo_enc.csv")
+	mustRun(t, "encode", in, "--target", "late", "--columns", "parcel_type", "--scheme", "loo", "--smoothing", "m=1",
+		"--out", out, "--tables", filepath.Join(dir, "loo_tables"))
+	vals := readTable(t, out).col(t, "parcel_type_tmean")
+	if v := parseF(t, vals[0]); !near(v, 49.5/101, 1e-12) {
+		t.Errorf("positive bulky row: %.15g, want 49.5/101", v)
+	}
+	if v := parseF(t, vals[100]); !near(v, 50.5/101, 1e-12) {
+		t.Errorf("negative bulky row: %.15g, want 50.5/101", v)
+	}
+}

@@ -74,7 +74,6 @@ type leaf struct {
 	index   int // leaf column index in the file
 	maxDef  byte
 	phys    parquet.Kind
-	size    int  // FIXED_LEN_BYTE_ARRAY length
 	uint32s bool // INT32 holding unsigned values
 }
 
@@ -197,7 +196,6 @@ func (r *Reader) readSchema() error {
 			l.kind = table.String
 		case parquet.FixedLenByteArray:
 			l.kind = table.String
-			l.size = t.Length()
 		case parquet.Int32:
 			l.kind = table.Int64
 			l.uint32s = isUnsigned(t)

@@ -38,9 +38,19 @@
 //
 // NewWriter writes a table in the order of its schema's fields, as optional
 // columns where the field is Nullable: text as dictionary-encoded UTF-8
-// BYTE_ARRAY, int as INT64, float as DOUBLE, bool as BOOLEAN. Row groups
-// hold WriterOptions.RowGroupRows rows; pages are compressed with Snappy by
-// default.
+// BYTE_ARRAY, int as INT64, float as DOUBLE, bool as BOOLEAN. A text
+// column's dictionary is bounded at 2 MiB per row group, after which its
+// pages are PLAIN. Row groups hold WriterOptions.RowGroupRows rows; pages
+// are compressed with Snappy by default.
+//
+// A batch's columns may come in any form. Text written to an int column
+// must be a decimal integer (or a number with no fractional part), to a
+// float column a number as table.ParseFloat reads it, to a bool column
+// what strconv.ParseBool accepts; empty text is a null in a nullable
+// numeric or bool column. Numbers and booleans written to a text column
+// become their canonical text. A value that does not convert, or a null in
+// a column that is not Nullable, gives a *table.DataError naming the row
+// and the column.
 package pqio
 
 import (

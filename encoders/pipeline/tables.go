@@ -281,40 +281,40 @@ func (m *Model) saveCol(path string, c *Col) error {
 			lv.Data = append(lv.Data, st.Bytes(l)...)
 			lv.Offsets = append(lv.Offsets, int32(len(lv.Data)))
 		}
-		k := 1
-		col := func() *table.Column { k++; return &b.Cols[k-1] }
-		intCol := func(f func(l int) int64) {
-			x := ints(col(), n)
-			for i, l := range sel {
-				x[i] = f(l)
-			}
-		}
-		floatCol := func(f func(l int) float64) {
-			x := floats(col(), n)
-			for i, l := range sel {
-				x[i] = f(l)
-			}
-		}
-		intCol(func(l int) int64 { return int64(st.Rows[l]) })
-		if supervised {
-			intCol(func(l int) int64 { return int64(st.Target(l, 0, -1, m.Pos).N) })
-			if m.Task == colstats.Regression {
-				floatCol(func(l int) float64 { return st.Target(l, 0, -1, 0).Sum })
-				floatCol(func(l int) float64 { return st.Target(l, 0, -1, 0).SumSq })
+		// One pass over the chunk's levels fills every column, so each
+		// level's statistics are fetched from memory once.
+		cols := b.Cols[1:]
+		for j, f := range schema.Fields[1:] {
+			if f.Kind == table.Int64 {
+				ints(&cols[j], n)
 			} else {
-				for cl := range m.Classes {
-					intCol(func(l int) int64 { return int64(st.ClassCount(l, cl)) })
+				floats(&cols[j], n)
+			}
+		}
+		for i, l := range sel {
+			j := 0
+			putI := func(v int64) { cols[j].Ints[i] = v; j++ }
+			putF := func(v float64) { cols[j].Floats[i] = v; j++ }
+			putI(int64(st.Rows[l]))
+			if supervised {
+				a := st.Target(l, 0, -1, m.Pos)
+				putI(int64(a.N))
+				if m.Task == colstats.Regression {
+					putF(a.Sum)
+					putF(a.SumSq)
+				} else {
+					for cl := range m.Classes {
+						putI(int64(st.ClassCount(l, cl)))
+					}
+				}
+				for o := range c.Full {
+					putF(m.tmean(c, o, l))
 				}
 			}
-			for o := range c.Full {
-				floatCol(func(l int) float64 { return m.tmean(c, o, l) })
-			}
+			putF(m.freq(c, l))
+			putI(int64(c.TopK[l]))
+			putI(int64(hashenc.Bucket(hashenc.Sum(st.Bytes(l), m.Spec.HashSeed), m.Spec.Buckets)))
 		}
-		floatCol(func(l int) float64 { return m.freq(c, l) })
-		intCol(func(l int) int64 { return int64(c.TopK[l]) })
-		intCol(func(l int) int64 {
-			return int64(hashenc.Bucket(hashenc.Sum(st.Bytes(l), m.Spec.HashSeed), m.Spec.Buckets))
-		})
 		b.Rows = n
 		if n == 0 {
 			continue

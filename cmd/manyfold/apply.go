@@ -2,6 +2,7 @@ package main
 
 import (
 	"fmt"
+	"runtime"
 	"os"
 	"time"
 
@@ -26,6 +27,7 @@ func runApply(args []string) error {
 	tables := fs.String("tables", "", "directory of mapping tables written by manyfold encode")
 	out := fs.String("out", "", "encoded table: .parquet, .csv or .arrow")
 	format := fs.String("format", "", "output format, overriding the extension: parquet, csv, arrow")
+	threads := fs.Int("threads", runtime.NumCPU(), "columns encoded at once (the output is the same for any number)")
 	compression := fs.String("compression", "snappy", "Parquet output compression: snappy, zstd, none")
 	if err := parseFlags(fs, args); err != nil {
 		return err
@@ -74,7 +76,7 @@ func runApply(args []string) error {
 		return &outputError{err}
 	}
 	pr := newProgress("apply")
-	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Apply: true, Progress: pr.update})
+	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Apply: true, Progress: pr.update, Threads: *threads})
 	pr.done()
 	if err != nil {
 		w.Abort()

@@ -2,6 +2,7 @@ package main
 
 import (
 	"fmt"
+	"runtime"
 	"io"
 	"os"
 	"strconv"
@@ -66,6 +67,7 @@ func runEncode(args []string) (err error) {
 	out := fs.String("out", "", "encoded table: .parquet, .csv or .arrow")
 	tables := fs.String("tables", "", "directory for the mapping tables")
 	format := fs.String("format", "", "output format, overriding the extension: parquet, csv, arrow")
+	threads := fs.Int("threads", runtime.NumCPU(), "columns encoded at once (the output is the same for any number)")
 	compression := fs.String("compression", "snappy", "Parquet output compression: snappy, zstd, none")
 	if err := parseFlags(fs, args); err != nil {
 		return err
@@ -170,7 +172,7 @@ func runEncode(args []string) (err error) {
 		}
 	}
 	pr := newProgress("fit")
-	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update})
+	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: *threads})
 	r.Close()
 	if m != nil {
 		m.Input = full
@@ -197,7 +199,7 @@ func runEncode(args []string) (err error) {
 		return &outputError{err}
 	}
 	pr = newProgress("encode")
-	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Progress: pr.update})
+	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: *threads})
 	pr.done()
 	if err != nil {
 		w.Abort()

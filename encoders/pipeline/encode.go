@@ -19,6 +19,7 @@ type EncodeOptions struct {
 	// out-of-fold values.
 	Apply    bool
 	Progress func(rows int64)
+	Threads  int // columns processed at once; below 2 means one at a time
 }
 
 // Summary describes an encoding pass.
@@ -158,7 +159,6 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		}
 	}
 	batch := &table.Batch{Cols: make([]table.Column, len(kept)+len(outs))}
-	var scratch []byte
 	for {
 		b, err := r.Next()
 		if err == io.EOF {
@@ -195,7 +195,8 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		}
 		colSlots := make([][]int32, len(m.Cols))
 		parSlots := make([][]int32, len(m.Cols))
-		for ci, c := range m.Cols {
+		each(len(m.Cols), opt.Threads, func(ci int) {
+			c := m.Cols[ci]
 			colSlots[ci] = slots[ci].fill(b, c.St, false)
 			if c.Parent != nil {
 				parSlots[ci] = pslots[ci].fill(b, c.Parent.St, false)
@@ -205,8 +206,10 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 					sum.Unseen[ci]++
 				}
 			}
-		}
-		for oi, oc := range outs {
+		})
+		each(len(outs), opt.Threads, func(oi int) {
+			oc := outs[oi]
+			var scratch []byte
 			dst := &batch.Cols[len(kept)+oi]
 			var c *Col
 			var ls, ps []int32
@@ -295,7 +298,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 					in[i] = int64(f)
 				}
 			}
-		}
+		})
 		batch.Rows, batch.FirstRow, batch.Lines = n, b.FirstRow, b.Lines
 		if err := w.Write(batch); err != nil {
 			return sum, err

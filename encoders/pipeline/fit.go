@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"sync"
 
 	"manyfold/encoders/colstats"
 	"manyfold/io/table"
@@ -52,6 +53,7 @@ type Col struct {
 type FitOptions struct {
 	File      string // for error messages
 	TotalRows int64  // rows in the table, when known (needed for --fold-by ordered)
+	Threads   int    // columns processed at once; below 2 means one at a time
 	Progress  func(rows int64)
 }
 
@@ -180,7 +182,8 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if err != nil {
 			return nil, err
 		}
-		for ci, c := range m.Cols {
+		each(len(m.Cols), opt.Threads, func(ci int) {
+			c := m.Cols[ci]
 			ls := slots[ci].fill(b, c.St, true)
 			st := c.St
 			switch {
@@ -205,7 +208,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 					}
 				}
 			}
-		}
+		})
 		m.Rows += int64(b.Rows)
 		if opt.Progress != nil {
 			opt.Progress(m.Rows)
@@ -479,4 +482,27 @@ func (oc *orderCheck) check(b *table.Batch) error {
 		oc.last, oc.cur = oc.cur, oc.last
 	}
 	return nil
+}
+
+// each calls f(0) ... f(n-1), at most threads at a time. Every call works
+// on data of its own (one column), so the result does not depend on the
+// number of threads.
+func each(n, threads int, f func(i int)) {
+	if threads < 2 || n < 2 {
+		for i := 0; i < n; i++ {
+			f(i)
+		}
+		return
+	}
+	var wg sync.WaitGroup
+	sem := make(chan struct{}, threads)
+	for i := 0; i < n; i++ {
+		wg.Add(1)
+		sem <- struct{}{}
+		go func(i int) {
+			defer func() { <-sem; wg.Done() }()
+			f(i)
+		}(i)
+	}
+	wg.Wait()
 }

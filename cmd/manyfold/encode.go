@@ -2,9 +2,9 @@ package main
 
 import (
 	"fmt"
-	"runtime"
 	"io"
 	"os"
+	"runtime"
 	"strconv"
 	"strings"
 	"time"

@@ -6,8 +6,11 @@ import (
 	"io"
 	"math"
 	"reflect"
+	"runtime"
 	"slices"
 	"strconv"
+	"sync"
+	"sync/atomic"
 	"unsafe"
 
 	"github.com/parquet-go/parquet-go"
@@ -177,15 +180,18 @@ func (w *writer) write(b *table.Batch) error {
 		k := min(b.Rows-start, chunkRows, w.rgRows-w.inRG)
 		// Convert every column first, so that a bad value leaves no
 		// column longer than the others.
-		for j := range w.fields {
-			if err := w.convert(j, &b.Cols[j], start, k, first); err != nil {
-				return err
-			}
+		if err := w.columns(func(j int) error { return w.convert(j, &b.Cols[j], start, k, first) }); err != nil {
+			return err
 		}
-		for j := range w.fields {
+		// Each column writer encodes and compresses its own pages, so the
+		// columns are written side by side; the bytes do not depend on it.
+		if err := w.columns(func(j int) error {
 			if _, err := cws[j].WriteRowValues(w.vals[j][:k]); err != nil {
 				return fmt.Errorf("column %q: %w", w.fields[j].Name, err)
 			}
+			return nil
+		}); err != nil {
+			return err
 		}
 		start += k
 		w.inRG += k
@@ -538,3 +544,48 @@ func (f orderedField) Name() string { return f.name }
 // Value returns field i of a struct of the group's GoType; the writer
 // never calls it (it writes columns, not Go values).
 func (f orderedField) Value(base reflect.Value) reflect.Value { return reflect.Value{} }
+
+// columns calls f for every column, on up to GOMAXPROCS goroutines, and
+// returns the error of the lowest-numbered column that failed.
+func (w *writer) columns(f func(j int) error) error {
+	n := len(w.fields)
+	threads := min(runtime.GOMAXPROCS(0), n)
+	if threads < 2 {
+		for j := 0; j < n; j++ {
+			if err := f(j); err != nil {
+				return err
+			}
+		}
+		return nil
+	}
+	errs := make([]error, n)
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for t := 0; t < threads; t++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				j := int(next.Add(1) - 1)
+				if j >= n {
+					return
+				}
+				errs[j] = func() (err error) {
+					defer func() {
+						if p := recover(); p != nil {
+							err = fmt.Errorf("writing Parquet: %v", p)
+						}
+					}()
+					return f(j)
+				}()
+			}
+		}()
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return err
+		}
+	}
+	return nil
+}

@@ -22,6 +22,7 @@ import (
 	"errors"
 	"fmt"
 	"os"
+	"runtime/debug"
 	"runtime/pprof"
 
 	"github.com/spf13/pflag"
@@ -77,6 +78,12 @@ func init() {
 }
 
 func main() {
+	if os.Getenv("GOGC") == "" {
+		// manyfold's large arrays (level bytes, counters) hold no pointers,
+		// so collecting more often costs little and keeps the peak memory
+		// near the live statistics instead of twice them.
+		debug.SetGCPercent(30)
+	}
 	if path := os.Getenv("MANYFOLD_CPUPROFILE"); path != "" {
 		// For contributors: a CPU profile of the whole run (see DEVELOPERS.md).
 		if f, err := os.Create(path); err == nil {

@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"os"
-	"runtime"
 	"time"
 
 	"manyfold/encoders/pipeline"
@@ -25,24 +24,19 @@ func runApply(args []string) error {
 	var in inputFlags
 	in.add(fs)
 	tables := fs.String("tables", "", "directory of mapping tables written by manyfold encode")
-	out := fs.String("out", "", "encoded table: .parquet, .csv or .arrow")
-	format := fs.String("format", "", "output format, overriding the extension: parquet, csv, arrow")
-	threads := fs.Int("threads", runtime.NumCPU(), "columns encoded at once (the output is the same for any number)")
-	compression := fs.String("compression", "snappy", "Parquet output compression: snappy, zstd, none")
+	var of outputFlags
+	of.add(fs)
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	if fs.NArg() != 1 {
 		return usagef("apply takes one input file (see manyfold apply --help)")
 	}
-	if *tables == "" || *out == "" {
+	if *tables == "" || of.out == "" {
 		return usagef("apply needs --tables and --out")
 	}
 	file := fs.Arg(0)
-	if file != "-" && sameFile(file, *out) {
-		return usagef("--out %s is the input file; choose another path", *out)
-	}
-	wopts, err := outputOptions(*out, *format, *compression)
+	wopts, err := of.options(file)
 	if err != nil {
 		return err
 	}
@@ -71,12 +65,12 @@ func runApply(args []string) error {
 	if err != nil {
 		return err
 	}
-	w, err := tableio.Create(*out, schema, wopts)
+	w, err := tableio.Create(of.out, schema, wopts)
 	if err != nil {
 		return &outputError{err}
 	}
 	pr := newProgress("apply")
-	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Apply: true, Progress: pr.update, Threads: *threads})
+	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Apply: true, Progress: pr.update, Threads: of.threads})
 	pr.done()
 	if err != nil {
 		w.Abort()
@@ -96,6 +90,6 @@ func runApply(args []string) error {
 			fmt.Fprint(os.Stderr, ",")
 		}
 	}
-	fmt.Fprintf(os.Stderr, "; wrote %s\n", *out)
+	fmt.Fprintf(os.Stderr, "; wrote %s\n", of.out)
 	return nil
 }

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"runtime"
 	"strings"
 	"time"
 
@@ -88,27 +89,44 @@ func (f *inputFlags) options() (tableio.ReadOptions, error) {
 	return tableio.ReadOptions{CSV: o}, nil
 }
 
-// outputOptions checks the output's format (from --format or the
-// extension of out) and the Parquet compression before any input is read,
-// so that a mistake in them is a usage error reported at once rather than
-// after a pass over a large input.
-func outputOptions(out, format, compression string) (tableio.WriteOptions, error) {
-	f := tableio.Format(format)
-	switch f {
+// outputFlags are the flags of the encoded table that encode and apply
+// write.
+type outputFlags struct {
+	out, format, compression string
+	threads                  int
+}
+
+func (f *outputFlags) add(fs *pflag.FlagSet) {
+	fs.StringVar(&f.out, "out", "", "encoded table: .parquet, .csv or .arrow")
+	fs.StringVar(&f.format, "format", "", "output format, overriding the extension: parquet, csv, arrow")
+	fs.StringVar(&f.compression, "compression", "snappy", "Parquet output compression: snappy, zstd, none")
+	fs.IntVar(&f.threads, "threads", runtime.NumCPU(), "columns encoded at once (the output is the same for any number)")
+}
+
+// options checks the output's path, format (from --format or the
+// extension) and compression before any input is read, so that a mistake
+// in them is a usage error reported at once rather than after a pass over a
+// large input.
+func (f *outputFlags) options(input string) (tableio.WriteOptions, error) {
+	if input != "-" && sameFile(input, f.out) {
+		return tableio.WriteOptions{}, usagef("--out %s is the input file; choose another path", f.out)
+	}
+	format := tableio.Format(f.format)
+	switch format {
 	case "":
-		if tableio.FormatOf(out) == "" {
-			return tableio.WriteOptions{}, usagef("--out %s: cannot tell the output format from the extension (use .csv, .parquet or .arrow, or give --format)", out)
+		if tableio.FormatOf(f.out) == "" {
+			return tableio.WriteOptions{}, usagef("--out %s: cannot tell the output format from the extension (use .csv, .parquet or .arrow, or give --format)", f.out)
 		}
 	case tableio.CSV, tableio.Parquet, tableio.Arrow:
 	default:
-		return tableio.WriteOptions{}, usagef("--format %q: want parquet, csv or arrow", format)
+		return tableio.WriteOptions{}, usagef("--format %q: want parquet, csv or arrow", f.format)
 	}
-	switch compression {
+	switch f.compression {
 	case "snappy", "zstd", "none":
 	default:
-		return tableio.WriteOptions{}, usagef("--compression %q: want snappy, zstd or none", compression)
+		return tableio.WriteOptions{}, usagef("--compression %q: want snappy, zstd or none", f.compression)
 	}
-	return tableio.WriteOptions{Format: f, Parquet: pqio.WriterOptions{Compression: compression}}, nil
+	return tableio.WriteOptions{Format: format, Parquet: pqio.WriterOptions{Compression: f.compression}}, nil
 }
 
 // renamed is an error whose message names an input by the name the user

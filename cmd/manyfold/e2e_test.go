@@ -45,6 +45,7 @@ func TestApplyOnTrainingMatchesSchemeNone(t *testing.T) {
 		{"regression", "cost", "postcode,sender,route", nil},
 		{"multiclass", "parcel_type", "postcode,sender", []string{"--smoothing", "blend=3,1.5"}},
 		{"hierarchical prior", "late", "route", []string{"--prior-by", "prefix=2"}},
+		{"prior by column", "late", "postcode,sender", []string{"--prior-by", "column=route", "--smoothing", "m=3"}},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -216,7 +217,7 @@ func TestShardMerge(t *testing.T) {
 	header, body := lines[0], lines[1:]
 	half := len(body) / 2
 	for _, scheme := range []string{"none", "kfold"} {
-		for _, smoothing := range []string{"auto", "m=3", "blend=2,1"} {
+		for _, smoothing := range []string{"auto", "m=3", "blend=2,1", "auto --prior-by column=route", "m=3 --prior-by prefix=2"} {
 			t.Run(scheme+" "+smoothing, func(t *testing.T) {
 				dir := t.TempDir()
 				files := map[string]string{
@@ -227,9 +228,9 @@ func TestShardMerge(t *testing.T) {
 				for name, text := range files {
 					writeFile(t, dir, name, text)
 					flags := []string{"encode", filepath.Join(dir, name), "--target", "late", "--columns", "postcode,sender,route",
-						"--methods", "target,freq,topk,hash", "--top-k", "5", "--scheme", scheme, "--smoothing", smoothing, "--folds", "3",
+						"--methods", "target,freq,topk,hash", "--top-k", "5", "--scheme", scheme, "--smoothing", strings.Fields(smoothing)[0], "--folds", "3",
 						"--out", filepath.Join(dir, name+".enc.csv"), "--tables", filepath.Join(dir, "tables-"+name)}
-					mustRun(t, flags...)
+					mustRun(t, append(flags, strings.Fields(smoothing)[1:]...)...)
 				}
 				merged := filepath.Join(dir, "merged")
 				res := mustRun(t, "merge", filepath.Join(dir, "tables-a.csv"), filepath.Join(dir, "tables-b.csv"), "--tables", merged)
@@ -495,5 +496,39 @@ func TestReferenceChecksPriorHalf(t *testing.T) {
 	}
 	if v := parseF(t, vals[100]); !near(v, 50.5/101, 1e-12) {
 		t.Errorf("negative bulky row: %.15g, want 50.5/101", v)
+	}
+}
+
+// TestPriorByColumn checks the hierarchical prior from another column
+// (Micci-Barreca 2001: a level's statistic is blended with that of its
+// parent group; values computed from the m-estimate formula). Rows
+// (region, postcode, late), k-fold scheme none, m = 1:
+//
+//	north P1 1, north P1 1, north P2 0, south P3 0, south P3 0, south P4 1
+//
+// global prior p = 3/6; north (2 of 3): (2 + 0.5)/(3 + 1) = 0.625; south
+// (1 of 3): 1.5/4 = 0.375. P1: (2 + 0.625)/(2 + 1) = 0.875; P2: 0.625/2 =
+// 0.3125; P3: 0.375/3 = 0.125; P4: 1.375/2 = 0.6875. A new row of an unseen
+// postcode in the north gets 0.625.
+func TestPriorByColumn(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "shipments.csv", "region,postcode,late\nnorth,P1,1\nnorth,P1,1\nnorth,P2,0\nsouth,P3,0\nsouth,P3,0\nsouth,P4,1\n")
+	out := filepath.Join(dir, "enc.csv")
+	tables := filepath.Join(dir, "tables")
+	mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--scheme", "none", "--smoothing", "m=1",
+		"--prior-by", "column=region", "--out", out, "--tables", tables)
+	want := []float64{0.875, 0.875, 0.3125, 0.125, 0.125, 0.6875}
+	for i, s := range readTable(t, out).col(t, "postcode_tmean") {
+		if v := parseF(t, s); !near(v, want[i], 1e-12) {
+			t.Errorf("row %d: %.15g, want %.15g", i+1, v, want[i])
+		}
+	}
+	fresh := writeFile(t, dir, "new.csv", "region,postcode,late\nnorth,P9,\nsouth,P9,\nwest,P9,\n")
+	app := filepath.Join(dir, "app.csv")
+	mustRun(t, "apply", fresh, "--tables", tables, "--out", app)
+	for i, w := range []float64{0.625, 0.375, 0.5} {
+		if v := parseF(t, readTable(t, app).col(t, "postcode_tmean")[i]); !near(v, w, 1e-12) {
+			t.Errorf("new row %d: %.15g, want %.15g", i+1, v, w)
+		}
 	}
 }

@@ -50,7 +50,7 @@ func runEncode(args []string) (err error) {
 	fs.Uint64Var(&sp.Seed, "seed", 0, "seed of the fold assignment")
 	fs.StringVar(&sp.Scheme, "scheme", "kfold", "training rows: kfold, loo, ordered, none")
 	smoothing := fs.String("smoothing", "auto", "auto (empirical Bayes), m=NUM (m-estimate) or blend=K,F (sigmoid blend)")
-	priorBy := fs.String("prior-by", "", "hierarchical prior: prefix=N (the level's first N characters)")
+	priorBy := fs.String("prior-by", "", "hierarchical prior: prefix=N (the level's first N characters) or column=COL (the row's value of COL, a region say)")
 	fs.StringVar(&sp.Output, "output", "rate", "target mean as rate, or logodds (binary targets)")
 	freq := fs.String("freq", "count", "frequency as count or share of the rows")
 	fs.IntVar(&sp.TopK, "top-k", 100, "top-k: number of levels that get their own code")
@@ -81,12 +81,16 @@ func runEncode(args []string) (err error) {
 		return usagef("%v", err)
 	}
 	if *priorBy != "" {
-		v, ok := strings.CutPrefix(*priorBy, "prefix=")
-		n, perr := strconv.Atoi(v)
-		if !ok || perr != nil || n < 1 {
-			return usagef("--prior-by %q: want prefix=N with N >= 1", *priorBy)
+		if col, ok := strings.CutPrefix(*priorBy, "column="); ok && col != "" {
+			sp.PriorColumn = col
+		} else {
+			v, ok := strings.CutPrefix(*priorBy, "prefix=")
+			n, perr := strconv.Atoi(v)
+			if !ok || perr != nil || n < 1 {
+				return usagef("--prior-by %q: want prefix=N with N >= 1, or column=COL", *priorBy)
+			}
+			sp.PriorPrefix = n
 		}
-		sp.PriorPrefix = n
 		if sp.Scheme != "kfold" && sp.Scheme != "none" {
 			return usagef("--prior-by works with --scheme kfold or none")
 		}

@@ -149,9 +149,18 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 	slots := make([]levelSlots, len(m.Cols))
 	pslots := make([]levelSlots, len(m.Cols))
 	var running []*runningStats
+	pcol := -1
+	if sp.PriorColumn != "" {
+		if pcol = schema.Index(sp.PriorColumn); pcol < 0 {
+			return sum, &ColumnError{File: opt.File, Flag: "--prior-by column", Name: sp.PriorColumn, Have: schema.Names()}
+		}
+	}
 	for i, c := range m.Cols {
 		slots[i] = levelSlots{col: idx[i]}
 		pslots[i] = levelSlots{col: idx[i], prefix: sp.PriorPrefix}
+		if pcol >= 0 {
+			pslots[i] = levelSlots{col: pcol}
+		}
 		if training && sp.Scheme == "ordered" && c.Full != nil {
 			running = append(running, newRunning(c))
 		} else {
@@ -230,7 +239,10 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 					var v float64
 					switch {
 					case !training || sp.Scheme == "none":
-						if l >= 0 && c.Keep[l] {
+						if sp.PriorColumn != "" {
+							// The prior depends on the row, not only the level.
+							v = m.value(c, l, pl, oc.output, -1, c.Full[oc.output])
+						} else if l >= 0 && c.Keep[l] {
 							v = m.tmean(c, oc.output, l)
 						} else {
 							v = m.value(c, -1, pl, oc.output, -1, c.Full[oc.output])

@@ -44,7 +44,9 @@ type Col struct {
 	// Per fold f and output o, the fit over the rows of the other folds.
 	FoldFit [][]colstats.Fitted
 
-	// Hierarchical prior (PriorPrefix): the parent levels and each slot's parent.
+	// Hierarchical prior: the parent levels and, with PriorPrefix, each
+	// slot's parent. With PriorColumn the parent is the row's value of that
+	// column, shared by every encoded column, and ParentOf is nil.
 	Parent   *Col
 	ParentOf []int32
 }
@@ -128,6 +130,26 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	for i, c := range m.Cols {
 		slots[i] = levelSlots{col: c.Index, nullSlot: 0}
 	}
+	// With --prior-by column=COL the parent levels are that column's
+	// values, gathered like an encoded column's and shared by all columns.
+	var parent *Col
+	var pslots levelSlots
+	if sp.PriorColumn != "" && tcol >= 0 {
+		i := schema.Index(sp.PriorColumn)
+		if i < 0 {
+			return nil, &ColumnError{File: opt.File, Flag: "--prior-by column", Name: sp.PriorColumn, Have: schema.Names()}
+		}
+		if i == tcol {
+			return nil, usageErr("--prior-by column=%s is the target", sp.PriorColumn)
+		}
+		parent = &Col{Name: sp.PriorColumn, Kind: schema.Fields[i].Kind, Index: i}
+		pslots = levelSlots{col: i}
+	}
+	all := m.Cols
+	if parent != nil {
+		all = append(append([]*Col(nil), m.Cols...), parent)
+		slots = append(slots, pslots)
+	}
 
 	for {
 		b, err := r.Next()
@@ -156,7 +178,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			if regress {
 				task = colstats.Regression
 			}
-			for _, c := range m.Cols {
+			for _, c := range all {
 				c.St = colstats.New(task, sp.folds(), 0, 1024)
 			}
 		}
@@ -170,7 +192,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			cls, vals = tr.cls, tr.vals
 			if !regress {
 				if n := len(tr.order); n > m.Cols[0].St.Classes {
-					for _, c := range m.Cols {
+					for _, c := range all {
 						c.St.AddClasses(n)
 					}
 				}
@@ -182,8 +204,8 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if err != nil {
 			return nil, err
 		}
-		each(len(m.Cols), opt.Threads, func(ci int) {
-			c := m.Cols[ci]
+		each(len(all), opt.Threads, func(ci int) {
+			c := all[ci]
 			ls := slots[ci].fill(b, c.St, true)
 			st := c.St
 			switch {
@@ -237,7 +259,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if len(labels) < 2 {
 			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: fmt.Errorf("target has a single class %q; there is nothing to learn", labels[0])}
 		}
-		for _, c := range m.Cols {
+		for _, c := range all {
 			c.St.PermuteClasses(pos)
 		}
 		m.Task = colstats.Binary
@@ -248,6 +270,12 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: fmt.Errorf("--task binary but the target has %d classes", len(labels))}
 		}
 		m.Pos = len(labels) - 1
+	}
+	if parent != nil {
+		parent.St.Task = m.Task
+		for _, c := range m.Cols {
+			c.Parent = parent
+		}
 	}
 	for _, c := range m.Cols {
 		c.St.Task = m.Task
@@ -293,7 +321,7 @@ func (m *Model) derive(c *Col, supervised bool) {
 	if !supervised {
 		return
 	}
-	if c.Parent != nil {
+	if c.Parent != nil && c.Parent.Full == nil {
 		m.derive(c.Parent, true)
 		p := c.Parent
 		p.TMean = make([][]float64, len(p.Full))

@@ -54,6 +54,15 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 			c.Parent = &Col{Name: c.Name + " prefix", St: ps}
 			c.ParentOf = of
 		}
+		if base.Spec.PriorColumn != "" && supervised {
+			ps := colstats.New(task, 1, len(base.Classes), 0)
+			for _, m := range models {
+				if err := ps.Merge(m.Cols[ci].Parent.St); err != nil {
+					return nil, err
+				}
+			}
+			c.Parent = &Col{Name: base.Spec.PriorColumn, St: ps}
+		}
 		out.derive(c, supervised)
 		out.Cols = append(out.Cols, c)
 	}
@@ -70,7 +79,7 @@ func compatible(a, b *Model) error {
 		return fmt.Errorf("another target or task")
 	case !slices.Equal(a.Classes, b.Classes):
 		return fmt.Errorf("other target classes")
-	case x.Smoothing != y.Smoothing || x.PriorPrefix != y.PriorPrefix || x.Output != y.Output:
+	case x.Smoothing != y.Smoothing || x.PriorPrefix != y.PriorPrefix || x.PriorColumn != y.PriorColumn || x.Output != y.Output:
 		return fmt.Errorf("other smoothing")
 	case x.FreqShare != y.FreqShare || x.TopK != y.TopK || x.MinCount != y.MinCount:
 		return fmt.Errorf("other frequency or top-k parameters")

@@ -39,6 +39,7 @@ type Spec struct {
 
 	Smoothing   colstats.Smoothing
 	PriorPrefix int    // >0: prior of a level is the smoothed mean of its first PriorPrefix bytes
+	PriorColumn string // prior of a row's level is the smoothed mean of the row's value of this column
 	Output      string // rate or logodds
 
 	FreqShare bool   // frequency as a share of the fitting rows instead of a count
@@ -155,6 +156,9 @@ func (sp *Spec) Validate() error {
 	if sp.Buckets < 1 {
 		return usageErr("--buckets must be at least 1")
 	}
+	if sp.PriorPrefix > 0 && sp.PriorColumn != "" {
+		return usageErr("--prior-by takes a prefix or a column, not both")
+	}
 	if sp.Task != "" {
 		if _, err := colstats.ParseTask(sp.Task); err != nil {
 			return usageErr("--task: %v", err)
@@ -193,7 +197,7 @@ func usageErr(format string, a ...any) error {
 // encoded columns, the target and the group column, in schema order. ok is
 // false when one of them is missing (Fit then reports it by name).
 func (sp *Spec) FitColumns(s *table.Schema) (cols []int, ok bool) {
-	need := map[string]bool{sp.Target: sp.Target != "", sp.groupColumn(): sp.groupColumn() != "", sp.OrderBy: sp.OrderBy != ""}
+	need := map[string]bool{sp.Target: sp.Target != "", sp.groupColumn(): sp.groupColumn() != "", sp.OrderBy: sp.OrderBy != "", sp.PriorColumn: sp.PriorColumn != ""}
 	for _, c := range sp.Columns {
 		need[c] = true
 	}

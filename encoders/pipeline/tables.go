@@ -58,6 +58,7 @@ type Params struct {
 	Scheme       string   `json:"scheme"`
 	Smoothing    string   `json:"smoothing"`
 	PriorPrefix  int      `json:"prior_prefix,omitempty"`
+	PriorColumn  string   `json:"prior_column,omitempty"`
 	Output       string   `json:"output"`
 	Freq         string   `json:"freq"`
 	TopK         int      `json:"top_k"`
@@ -155,7 +156,7 @@ func (m *Model) Manifest() Manifest {
 		nulls = "unseen"
 	}
 	mf.Params = Params{Methods: sp.Methods, Folds: sp.Folds, FoldBy: sp.FoldBy, Seed: sp.Seed, Scheme: sp.Scheme,
-		Smoothing: smoothingString(sp.Smoothing), PriorPrefix: sp.PriorPrefix, Output: sp.Output, Freq: freq,
+		Smoothing: smoothingString(sp.Smoothing), PriorPrefix: sp.PriorPrefix, PriorColumn: sp.PriorColumn, Output: sp.Output, Freq: freq,
 		TopK: sp.TopK, MinCount: sp.MinCount, Buckets: sp.Buckets, HashSeed: sp.HashSeed, Signed: sp.Signed,
 		MinLevelRows: sp.MinLevelRows, Nulls: nulls}
 	for i, c := range m.Cols {
@@ -387,7 +388,7 @@ func specFrom(mf *Manifest) (Spec, error) {
 		return Spec{}, err
 	}
 	sp := Spec{Target: mf.Target, Methods: p.Methods, Task: mf.Task, Folds: p.Folds, FoldBy: p.FoldBy, Seed: p.Seed,
-		Scheme: p.Scheme, Smoothing: sm, PriorPrefix: p.PriorPrefix, Output: p.Output, FreqShare: p.Freq == "share",
+		Scheme: p.Scheme, Smoothing: sm, PriorPrefix: p.PriorPrefix, PriorColumn: p.PriorColumn, Output: p.Output, FreqShare: p.Freq == "share",
 		TopK: p.TopK, MinCount: p.MinCount, Buckets: p.Buckets, HashSeed: p.HashSeed, Signed: p.Signed,
 		MinLevelRows: p.MinLevelRows, NullsUnseen: p.Nulls == "unseen", KeepAll: true}
 	for _, c := range mf.Columns {
@@ -477,6 +478,9 @@ func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Co
 // CheckInput verifies that an input table has every column the model
 // encodes, with the type it had when the model was fitted.
 func (m *Model) CheckInput(file string, s *table.Schema, dir string) error {
+	if pc := m.Spec.PriorColumn; pc != "" && s.Index(pc) < 0 {
+		return &ColumnError{File: file, Flag: "the mapping tables in " + dir + " (--prior-by column)", Name: pc, Have: s.Names()}
+	}
 	for _, c := range m.Cols {
 		i := s.Index(c.Name)
 		if i < 0 {

@@ -366,11 +366,18 @@ func (r *reader) offsets32(d arrow.ArrayData, n int, name string) ([]int32, []by
 	if n == 0 {
 		return zeroOffset[:], nil, nil
 	}
+	return checkedOffsets(r, d, n, name, arrow.Int32Traits.CastFromBytes)
+}
+
+// checkedOffsets returns the n+1 offsets (n > 0) of a binary-like array and
+// its value bytes, after checking that the offsets are there, start at or
+// above zero, never decrease and stay within the values.
+func checkedOffsets[T int32 | int64](r *reader, d arrow.ArrayData, n int, name string, cast func([]byte) []T) ([]T, []byte, error) {
 	bufs := d.Buffers()
 	if len(bufs) < 3 || bufs[1] == nil {
 		return nil, nil, r.badBuffers(name, "missing offsets")
 	}
-	all := arrow.Int32Traits.CastFromBytes(bufs[1].Bytes())
+	all := cast(bufs[1].Bytes())
 	off := d.Offset()
 	if len(all) < off+n+1 {
 		return nil, nil, r.badBuffers(name, "offsets shorter than the column")
@@ -390,7 +397,7 @@ func (r *reader) offsets32(d arrow.ArrayData, n int, name string) ([]int32, []by
 		}
 		prev = o
 	}
-	if int(prev) > len(vals) {
+	if int64(prev) > int64(len(vals)) {
 		return nil, nil, r.badBuffers(name, "offsets point past the values")
 	}
 	return offs, vals, nil
@@ -425,39 +432,23 @@ func (r *reader) text64(st *colState, col *table.Column, n int, d arrow.ArrayDat
 	return nil
 }
 
+// offsets64 returns the offsets of an array with int64 offsets converted to
+// int32 offsets starting at zero (in *scratch), and the bytes they index.
 func (r *reader) offsets64(scratch *[]int32, d arrow.ArrayData, n int, name string) ([]int32, []byte, error) {
 	if n == 0 {
 		return zeroOffset[:], nil, nil
 	}
-	bufs := d.Buffers()
-	if len(bufs) < 3 || bufs[1] == nil {
-		return nil, nil, r.badBuffers(name, "missing offsets")
-	}
-	all := arrow.Int64Traits.CastFromBytes(bufs[1].Bytes())
-	off := d.Offset()
-	if len(all) < off+n+1 {
-		return nil, nil, r.badBuffers(name, "offsets shorter than the column")
-	}
-	offs := all[off : off+n+1]
-	var vals []byte
-	if bufs[2] != nil {
-		vals = bufs[2].Bytes()
+	offs, vals, err := checkedOffsets(r, d, n, name, arrow.Int64Traits.CastFromBytes)
+	if err != nil {
+		return nil, nil, err
 	}
 	base, last := offs[0], offs[n]
-	if base < 0 || last < base || last > int64(len(vals)) {
-		return nil, nil, r.badBuffers(name, "offsets out of range")
-	}
 	if last-base > math.MaxInt32 {
 		return nil, nil, fmt.Errorf("%s: column %q: a record batch holds more than 2 GiB of text", r.name, name)
 	}
 	*scratch = resize(*scratch, n+1)
 	out := *scratch
-	prev := base
 	for i, o := range offs {
-		if o < prev {
-			return nil, nil, r.badBuffers(name, "offsets decrease")
-		}
-		prev = o
 		out[i] = int32(o - base)
 	}
 	return out, vals[base:last], nil

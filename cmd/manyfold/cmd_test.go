@@ -279,6 +279,9 @@ func TestTopLevel(t *testing.T) {
 			if !strings.Contains(res.stderr, c.stderr) {
 				t.Errorf("stderr %q does not contain %q", res.stderr, c.stderr)
 			}
+			if n := strings.Count(res.stdout, "Usage:"); n > 1 {
+				t.Errorf("the usage is printed %d times", n)
+			}
 		})
 	}
 }

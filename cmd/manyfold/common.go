@@ -36,8 +36,7 @@ func newFlags(name, text string) *pflag.FlagSet {
 func parseFlags(fs *pflag.FlagSet, args []string) error {
 	if err := fs.Parse(args); err != nil {
 		if err == pflag.ErrHelp {
-			fs.Usage()
-			return err
+			return err // pflag has printed the usage
 		}
 		return usagef("%v (see manyfold %s --help)", err, fs.Name())
 	}

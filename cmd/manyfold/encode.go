@@ -161,6 +161,10 @@ func runEncode(args []string) (err error) {
 			return err
 		}
 	}
+	if err := sp.CheckOutputNames(name, r.Schema()); err != nil {
+		r.Close()
+		return err
+	}
 	// The first pass reads only the columns the fit needs.
 	full := append([]table.Field(nil), r.Schema().Fields...)
 	if need, ok := sp.FitColumns(r.Schema()); ok {

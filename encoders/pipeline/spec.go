@@ -6,6 +6,7 @@ package pipeline
 
 import (
 	"fmt"
+	"slices"
 	"strings"
 
 	"manyfold/encoders/colstats"
@@ -213,4 +214,41 @@ func (sp *Spec) FitColumns(s *table.Schema) (cols []int, ok bool) {
 		}
 	}
 	return cols, true
+}
+
+// CheckOutputNames reports, before any row is read, an encoded column
+// whose name a kept input column already has (multi-class names, which
+// depend on the classes found, are checked after the fit).
+func (sp *Spec) CheckOutputNames(file string, s *table.Schema) error {
+	kept := map[string]bool{}
+	for _, f := range s.Fields {
+		if sp.KeepAll || slices.Contains(sp.Keep, f.Name) {
+			kept[f.Name] = true
+		}
+	}
+	names := []string{}
+	if sp.FoldColumn != "" {
+		names = append(names, sp.FoldColumn)
+	}
+	for _, c := range sp.Columns {
+		for _, m := range sp.Methods {
+			switch m {
+			case MethodTarget:
+				names = append(names, c+"_tmean")
+			case MethodHash:
+				names = append(names, c+"_hash")
+				if sp.Signed {
+					names = append(names, c+"_hash_sign")
+				}
+			default:
+				names = append(names, c+"_"+m)
+			}
+		}
+	}
+	for _, n := range names {
+		if kept[n] {
+			return usageErr("%s: output column %q would appear twice: the input has it; drop it with --keep or rename it", file, n)
+		}
+	}
+	return nil
 }

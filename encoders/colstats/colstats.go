@@ -269,6 +269,66 @@ func (s *Stats) Target(l, o, exclude, pos int) Agg {
 	return a
 }
 
+// TargetMask returns the statistic of level l for output o over the rows
+// of the folds f with use[f] (len(use) == Folds). It is Target for an
+// arbitrary set of folds: compare keeps outer and inner folds as the cells
+// of one Stats and sums the cells a fit may see. For binary the positive
+// class is class slot pos.
+func (s *Stats) TargetMask(l, o, pos int, use []bool) Agg {
+	var a Agg
+	if s.Task == Regression {
+		cnt, sum, sq := s.cnt.row(l), s.sum.row(l), s.sumSq.row(l)
+		for f := 0; f < s.Folds; f++ {
+			if use[f] {
+				a.N += float64(cnt[f])
+				a.Sum += sum[f]
+				a.SumSq += sq[f]
+			}
+		}
+		return a
+	}
+	if s.Task == Binary {
+		o = pos
+	}
+	row := s.cls.row(l)
+	var n, k uint64
+	for f := 0; f < s.Folds; f++ {
+		if !use[f] {
+			continue
+		}
+		for _, v := range row[f*s.Classes : (f+1)*s.Classes] {
+			n += uint64(v)
+		}
+		k += uint64(row[f*s.Classes+o])
+	}
+	a.N, a.Sum, a.SumSq = float64(n), float64(k), float64(k)
+	return a
+}
+
+// FitMask is Fit over the rows of the folds f with use[f] instead of all
+// folds but one.
+func (s *Stats) FitMask(o, pos int, sm Smoothing, use, keep []bool, order []uint32) Fitted {
+	var tot Agg
+	var mo smooth.Moments
+	n := len(s.Rows)
+	if order != nil {
+		n = len(order)
+	}
+	for i := 0; i < n; i++ {
+		l := i
+		if order != nil {
+			l = int(order[i])
+		}
+		a := s.TargetMask(l, o, pos, use)
+		tot.N += a.N
+		tot.Sum += a.Sum
+		if a.N > 0 && (keep == nil || keep[l]) {
+			mo.Add(smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq})
+		}
+	}
+	return fitted(tot, &mo, sm)
+}
+
 // Smoothing names how a level's mean is pulled towards its prior.
 type Smoothing struct {
 	Kind string  // "auto", "m" or "blend"
@@ -328,6 +388,12 @@ func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint
 			mo.Add(smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq})
 		}
 	}
+	return fitted(tot, &mo, sm)
+}
+
+// fitted returns the fit of the fitting rows' total tot and level moments
+// mo.
+func fitted(tot Agg, mo *smooth.Moments, sm Smoothing) Fitted {
 	ft := Fitted{Sm: sm, M: math.NaN()}
 	if tot.N > 0 {
 		ft.Prior = tot.Sum / tot.N
@@ -414,10 +480,17 @@ func prefix8(b []byte) uint64 {
 // excludes levels from ranking. It selects with a heap of k entries, so it
 // takes O(n log k) time.
 func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
+	return s.TopKBy(k, minCount, s.Rows, keep)
+}
+
+// TopKBy is TopK with the row count of each level slot taken from rows
+// (len(rows) == NumLevels()) instead of Rows: the counts of a subset of
+// the folds, say. A slot with a zero count gets no code.
+func (s *Stats) TopKBy(k int, minCount uint64, rows []uint64, keep []bool) []int32 {
 	// before reports whether slot a ranks before slot b.
 	before := func(a, b int) bool {
-		if s.Rows[a] != s.Rows[b] {
-			return s.Rows[a] > s.Rows[b]
+		if rows[a] != rows[b] {
+			return rows[a] > rows[b]
 		}
 		if a == 0 || b == 0 {
 			return a == 0
@@ -442,8 +515,8 @@ func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
 			i = c
 		}
 	}
-	for l := range s.Rows {
-		if s.Rows[l] == 0 || s.Rows[l] < minCount || (keep != nil && !keep[l]) {
+	for l := range rows {
+		if rows[l] == 0 || rows[l] < minCount || (keep != nil && !keep[l]) {
 			continue
 		}
 		if len(h) < k {
@@ -464,7 +537,7 @@ func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
 		}
 	}
 	sort.Slice(h, func(i, j int) bool { return before(h[i], h[j]) })
-	codes := make([]int32, len(s.Rows))
+	codes := make([]int32, len(rows))
 	for r, l := range h {
 		codes[l] = int32(r + 1)
 	}

@@ -136,3 +136,75 @@ func TestEncodeEdgeCases(t *testing.T) {
 		t.Errorf("m-estimate = %v, want 2/3", v)
 	}
 }
+
+// TestTargetMask checks TargetMask and FitMask against Target and Fit for
+// every "all folds but f" mask, and a mask of two cells against the worked
+// out-of-fold example of the team's reference (computed from the formula:
+// rows A1 A1 A0 A1 B0 B0 B1 B0 in folds 0 1 0 1 0 1 0 1; the fold-1 cells
+// alone hold A 2/2 and B 0/2).
+func TestTargetMask(t *testing.T) {
+	for _, task := range []Task{Binary, Regression} {
+		s := New(task, 2, 2, 0)
+		rows := []struct {
+			lv   string
+			y, f int
+		}{{"A", 1, 0}, {"A", 1, 1}, {"A", 0, 0}, {"A", 1, 1}, {"B", 0, 0}, {"B", 0, 1}, {"B", 1, 0}, {"B", 0, 1}}
+		for _, r := range rows {
+			l := s.Level([]byte(r.lv))
+			if task == Regression {
+				s.AddValue(l, r.f, float64(r.y))
+			} else {
+				s.AddClass(l, r.f, r.y)
+			}
+		}
+		for ex := -1; ex < 2; ex++ {
+			use := []bool{ex != 0, ex != 1}
+			for l := 0; l < s.NumLevels(); l++ {
+				if got, want := s.TargetMask(l, 0, 1, use), s.Target(l, 0, ex, 1); got != want {
+					t.Errorf("%s: TargetMask(%d, use %v) = %+v, want Target(exclude %d) = %+v", task, l, use, got, ex, want)
+				}
+			}
+			for _, sm := range []Smoothing{{Kind: "auto"}, {Kind: "m", M: 1}} {
+				got, want := s.FitMask(0, 1, sm, use, nil, nil), s.Fit(0, ex, 1, sm, nil, nil)
+				if !(got.Prior == want.Prior && (got.M == want.M || math.IsNaN(got.M) && math.IsNaN(want.M) || math.IsInf(got.M, 1) && math.IsInf(want.M, 1))) {
+					t.Errorf("%s %s: FitMask(use %v) = %+v, want %+v", task, sm.Kind, use, got, want)
+				}
+			}
+		}
+		a := s.TargetMask(s.Lookup([]byte("A")), 0, 1, []bool{false, true})
+		b := s.TargetMask(s.Lookup([]byte("B")), 0, 1, []bool{false, true})
+		if a.N != 2 || a.Sum != 2 || b.N != 2 || b.Sum != 0 {
+			t.Errorf("%s: fold-1 cells: A %+v, B %+v; want A n=2 sum=2, B n=2 sum=0", task, a, b)
+		}
+		if got := s.TargetMask(s.Lookup([]byte("A")), 0, 1, []bool{false, false}); got != (Agg{}) {
+			t.Errorf("%s: empty mask gives %+v, want zero", task, got)
+		}
+	}
+}
+
+// TestTopKBy ranks by the given counts, not by Rows.
+func TestTopKBy(t *testing.T) {
+	s := build([][2]string{{"A", "0"}, {"A", "0"}, {"A", "0"}, {"B", "0"}, {"C", "0"}, {"C", "0"}})
+	a, b, c := s.Lookup([]byte("A")), s.Lookup([]byte("B")), s.Lookup([]byte("C"))
+	rows := make([]uint64, s.NumLevels())
+	rows[a], rows[b], rows[c] = 0, 5, 2 // A absent from this subset
+	codes := s.TopKBy(2, 1, rows, nil)
+	if codes[b] != 1 || codes[c] != 2 || codes[a] != 0 {
+		t.Errorf("TopKBy codes A=%d B=%d C=%d, want 0 1 2", codes[a], codes[b], codes[c])
+	}
+	if got, want := s.TopKBy(2, 1, s.Rows, nil), s.TopK(2, 1, nil); !equalCodes(got, want) {
+		t.Errorf("TopKBy(Rows) = %v, TopK = %v", got, want)
+	}
+}
+
+func equalCodes(a, b []int32) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
+}

@@ -1,0 +1,80 @@
+package pipeline
+
+import (
+	"manyfold/encoders/colstats"
+	"manyfold/io/table"
+)
+
+// LevelSlots maps the rows of one column of each batch to level slots of a
+// colstats.Stats, as the fit does: a dictionary column is looked up once per
+// dictionary entry; null rows get slot 0.
+type LevelSlots struct{ ls levelSlots }
+
+// NewLevelSlots returns a LevelSlots for the column at position col of the
+// batches.
+func NewLevelSlots(col int) *LevelSlots { return &LevelSlots{ls: levelSlots{col: col}} }
+
+// Fill returns the slot of every row of b, adding new levels to st. The
+// slice is reused by the next call.
+func (l *LevelSlots) Fill(b *table.Batch, st *colstats.Stats) []int32 {
+	return l.ls.fill(b, st, true)
+}
+
+// Targets reads the target column of each batch as the fit does: the task
+// is decided on the first batch unless given (a numeric target with at most
+// 10 distinct integer values is a classification target), and class labels
+// are numbered in order of appearance.
+type Targets struct {
+	tr      targetReader
+	kind    table.Kind
+	decided bool
+}
+
+// NewTargets returns a reader of the target column name at position col of
+// kind kind; task is "" (detect), binary, multiclass or regression. file
+// names the input in errors.
+func NewTargets(file, name string, col int, kind table.Kind, task string) *Targets {
+	t := &Targets{kind: kind}
+	t.tr = targetReader{file: file, name: name, col: col, labels: map[string]int{},
+		numeric: kind == table.Int64 || kind == table.Float64, fixed: task != ""}
+	if task != "" {
+		t.decided = true
+		t.tr.regress = task == "regression"
+		if t.tr.regress && kind == table.String {
+			t.tr.numeric = true
+		}
+	}
+	return t
+}
+
+// Read returns the class index of every row of b (classification; -1 for an
+// empty target) or its value (regression; NaN for an empty target). Only
+// one of the two slices is set; both are reused by the next call.
+func (t *Targets) Read(b *table.Batch) (cls []int32, vals []float64, err error) {
+	if !t.decided {
+		t.decided = true
+		t.tr.regress = detectRegression(b, t.tr.col, t.kind)
+	}
+	if err := t.tr.read(b); err != nil {
+		return nil, nil, err
+	}
+	if t.tr.regress {
+		return nil, t.tr.vals, nil
+	}
+	return t.tr.cls, nil, nil
+}
+
+// Regression reports whether the target is read as numeric.
+func (t *Targets) Regression() bool { return t.tr.regress }
+
+// NumClasses returns the number of class labels seen so far.
+func (t *Targets) NumClasses() int { return len(t.tr.order) }
+
+// Missing returns the number of rows read whose target was empty.
+func (t *Targets) Missing() int64 { return t.tr.missing }
+
+// Classes returns the class labels in sorted order (numerically for a
+// numeric target) and, for each appearance index, its sorted position.
+func (t *Targets) Classes() (labels []string, pos []int) {
+	return sortedClasses(t.tr.order, t.tr.numeric)
+}

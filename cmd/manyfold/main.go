@@ -9,6 +9,7 @@
 //	manyfold encode FILE [flags]    fit encodings and write the encoded table and mapping tables
 //	manyfold apply FILE [flags]     encode new data with saved mapping tables
 //	manyfold merge DIR DIR... [flags] merge mapping tables fitted on shards of one table
+//	manyfold compare FILE [flags]   rank encodings of each column by nested cross-validation
 //	manyfold demo [flags]           run the whole job on a generated parcel-network table
 //
 // Exit codes: 0 success; 1 unexpected failure; 2 usage (bad flags, unknown
@@ -50,6 +51,7 @@ Usage:
   manyfold encode FILE [flags]       fit encodings out of fold; write the encoded table and mapping tables
   manyfold apply FILE [flags]        encode new data with saved mapping tables
   manyfold merge DIR DIR... [flags]  merge mapping tables fitted on shards of one table
+  manyfold compare FILE [flags]      rank encodings of each column by nested cross-validation
   manyfold demo [flags]              the whole job on a generated parcel-network table
   manyfold version
 
@@ -73,6 +75,7 @@ func init() {
 		{"encode", runEncode},
 		{"apply", runApply},
 		{"merge", runMerge},
+		{"compare", runCompare},
 		{"demo", runDemo},
 	}
 }

@@ -14,9 +14,12 @@ type Result struct {
 	Folds        int            `json:"folds"`
 	InnerFolds   int            `json:"inner_folds"`
 	Seed         uint64         `json:"seed"`
-	Rows         int64          `json:"rows"`       // rows whose statistics were gathered
-	ModelRows    int64          `json:"model_rows"` // rows the models were fitted and scored on (--sample)
-	With         []string       `json:"with"`       // numeric columns added to every model
+	Rows         int64          `json:"rows"`              // rows whose statistics were gathered
+	ModelRows    int64          `json:"model_rows"`        // rows the models were fitted and scored on (--sample)
+	DroppedRows  int64          `json:"dropped_rows"`      // rows whose target was empty: left out of statistics and models
+	Classes      []string       `json:"classes,omitempty"` // classification: labels in sorted order; binary: the last is positive
+	Lambda       float64        `json:"lambda"`            // L2 weight of the models
+	With         []string       `json:"with"`              // numeric columns added to every model
 	Columns      []ColumnResult `json:"columns"`
 }
 

@@ -1,0 +1,158 @@
+package main
+
+import (
+	"bytes"
+	"fmt"
+	"os"
+	"runtime"
+
+	"manyfold/encoders/compare"
+	"manyfold/io/atomicfile"
+	"manyfold/io/tableio"
+)
+
+const compareUsage = `Usage: manyfold compare FILE --target COL --columns a,b [flags]
+
+Measures which encoding of each categorical column serves the target best,
+by nested cross-validation: for each outer fold every candidate is fitted on
+the outer training rows only (frequency and top-k included), the training
+rows' target statistics come from the inner folds (out of fold), the
+held-out rows are encoded with the tables of all outer training rows, and a
+linear model (L2 logistic for a binary target, multinomial for several
+classes, ridge for a number) is fitted on the training rows and scored on
+the held-out rows. Every candidate sees the same folds, fixed by --seed.
+
+Candidates (--candidates, comma separated): prior (baseline: no information
+from the column), target:insample (baseline: the raw level mean fitted on
+the training rows themselves; it leaks, and is shown so the gap is seen),
+target[:auto|:m=NUM|:blend=K,F][:prior=prefixN], freq, topk:K, hash:BUCKETS.
+Target means and frequencies enter the models as standardised features,
+top-k and hashed codes as one indicator column per code.
+
+The statistics always stream over every row; --sample bounds the rows the
+models are fitted and scored on (a deterministic hash sample of about that
+many rows), so compare runs on files larger than memory. Rows whose target is
+empty are left out. Output: a table on stdout, best first, the winner marked,
+with a one-line reading per column; --json and --report write the result as
+JSON and as a self-contained HTML page.
+`
+
+func runCompare(args []string) (err error) {
+	fs := newFlags("compare", compareUsage)
+	var in inputFlags
+	in.add(fs)
+	target := fs.String("target", "", "target column")
+	columns := fs.StringSlice("columns", nil, "categorical columns to compare, comma separated")
+	cands := fs.String("candidates", compare.DefaultCandidates, "candidates, comma separated")
+	task := fs.String("task", "", "binary, multiclass or regression (default: detected from the target)")
+	folds := fs.Int("folds", 5, "outer folds")
+	inner := fs.Int("inner-folds", 5, "inner folds for the training rows' target statistics")
+	seed := fs.Uint64("seed", 0, "seed of the outer, inner and sample assignments")
+	with := fs.StringSlice("with", nil, "numeric columns added to every model, comma separated")
+	sample := fs.Int64("sample", 200000, "rows the models are fitted and scored on (about; 0: all)")
+	lambda := fs.Float64("lambda", compare.DefaultLambda, "L2 weight of the models")
+	jsonOut := fs.String("json", "", "write the result as JSON to this file")
+	report := fs.String("report", "", "write an HTML report to this file")
+	noTimes := fs.Bool("no-timings", false, "leave the fit times out (0 in JSON), so that reruns give identical output")
+	threads := fs.Int("threads", runtime.NumCPU(), "models fitted at once (the result is the same for any number)")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() != 1 {
+		return usagef("compare takes one input file (see manyfold compare --help)")
+	}
+	file := fs.Arg(0)
+	if *target == "" || len(*columns) == 0 {
+		return usagef("compare needs --target and --columns")
+	}
+	if !(*lambda > 0) {
+		return usagef("--lambda %v: want a number > 0", *lambda)
+	}
+	list, err := compare.ParseCandidates(*cands)
+	if err != nil {
+		return err
+	}
+	for _, p := range []string{*jsonOut, *report} {
+		if p != "" && file != "-" && sameFile(file, p) {
+			return usagef("%s is the input file; choose another path", p)
+		}
+	}
+	ropts, err := in.options()
+	if err != nil {
+		return err
+	}
+	path, cleanup, err := spool(file)
+	if err != nil {
+		return err
+	}
+	defer cleanup()
+	if path != file {
+		defer func() {
+			if err != nil {
+				err = &renamed{err: err, from: path, to: "stdin"}
+			}
+		}()
+	}
+	name := file
+	if file == "-" {
+		name = "stdin"
+	}
+	r, err := tableio.Open(path, ropts)
+	if err != nil {
+		return err
+	}
+	// Parquet knows its row count; for other input a cheap first pass
+	// counts the rows so that --sample can be turned into a share.
+	var total int64
+	if _, ok := r.(interface{ NumRows() int64 }); !ok && *sample > 0 {
+		r.Close()
+		if total, err = countRows(path, ropts); err != nil {
+			return err
+		}
+		if r, err = tableio.Open(path, ropts); err != nil {
+			return err
+		}
+	}
+	defer r.Close()
+	pr := newProgress("compare")
+	res, err := compare.Run(r, compare.Options{
+		File: name, Target: *target, Task: *task, Columns: *columns, Candidates: list,
+		Folds: *folds, InnerFolds: *inner, Seed: *seed, With: *with, Sample: *sample, TotalRows: total,
+		Lambda: *lambda, Threads: *threads, NoTimings: *noTimes, Progress: pr.update,
+	})
+	pr.done()
+	if err != nil {
+		return err
+	}
+	if *jsonOut != "" {
+		var buf bytes.Buffer
+		if err := compare.WriteJSON(&buf, res); err != nil {
+			return err
+		}
+		if err := writeAtomic(*jsonOut, buf.Bytes()); err != nil {
+			return &outputError{fmt.Errorf("write %s: %w", *jsonOut, err)}
+		}
+	}
+	if *report != "" {
+		if err := compare.WriteReport(*report, res); err != nil {
+			return &outputError{err}
+		}
+	}
+	if err := compare.WriteText(os.Stdout, res); err != nil {
+		return &outputError{err}
+	}
+	return nil
+}
+
+// writeAtomic writes b to path, which appears only when complete.
+func writeAtomic(path string, b []byte) error {
+	f, err := atomicfile.Create(path)
+	if err != nil {
+		return err
+	}
+	if _, err := f.Write(b); err != nil {
+		f.Abort()
+		return err
+	}
+	return f.Commit()
+}

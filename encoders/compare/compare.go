@@ -1,0 +1,695 @@
+package compare
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"slices"
+	"sort"
+	"sync"
+	"time"
+
+	"manyfold/encoders/colstats"
+	"manyfold/encoders/hashenc"
+	"manyfold/encoders/pipeline"
+	"manyfold/folds"
+	"manyfold/io/table"
+)
+
+// Options configures a comparison.
+type Options struct {
+	File       string      // the input's name, for messages and the result
+	Target     string      // target column
+	Task       string      // "" detects; binary, multiclass or regression
+	Columns    []string    // categorical columns, each compared on its own
+	Candidates []Candidate // nil: DefaultCandidates
+	Folds      int         // outer folds (>= 2)
+	InnerFolds int         // inner folds for the training rows' target statistics (>= 2)
+	Seed       uint64      // fixes the outer, inner and sample assignments
+	With       []string    // numeric columns added to every model (also to the prior baseline)
+	// Sample bounds the rows the models are fitted and scored on: each row
+	// is kept when a hash of its number and the seed falls below
+	// Sample/TotalRows, so about Sample rows are kept. 0 or less keeps
+	// every row. The statistics always use every row.
+	Sample int64
+	// TotalRows is the number of rows of the table; 0 takes it from a
+	// reader with a NumRows method (Parquet) and otherwise keeps every
+	// row for the models.
+	TotalRows int64
+	Lambda    float64 // L2 weight of the models; 0 means DefaultLambda
+	Threads   int     // models fitted at once; the result does not depend on it
+	NoTimings bool    // leave FitSeconds at 0, for byte-identical output
+	Progress  func(rows int64)
+}
+
+// DefaultLambda is the L2 weight of every model: small enough not to
+// flatten real level effects on a few hundred thousand rows, large enough
+// to keep the weights of separable indicators finite.
+const DefaultLambda = 1e-4
+
+// Salts of the inner-fold and sample hashes: each is XORed into the seed so
+// that the three assignments are independent.
+const (
+	innerSalt  uint64 = 0x9e3779b97f4a7c15
+	sampleSalt uint64 = 0xc2b2ae3d27d4eb4f
+)
+
+// sampleSpan is the range of the sample hash: folds.Row(…, sampleSpan) is
+// a uniform 62-bit number.
+const sampleSpan = 1 << 62
+
+// sample holds, for the rows the models use, what the models need: memory
+// in proportion to the sample, not to the table.
+type sample struct {
+	cell  []uint16  // outer*Ki + inner
+	cls   []int32   // classification: class slot (sorted order after the pass)
+	val   []float64 // regression: target
+	slot  [][]int32 // per column: level slot
+	with  [][]float64
+	count int
+}
+
+// Run reads every batch of r once, gathering the statistics of each column
+// split into outer x inner fold cells and keeping the sampled rows, then
+// scores every candidate on every column with nested cross-validation. It
+// does not close r.
+//
+// Rows whose target is empty are dropped: they enter neither the statistics
+// (frequency and top-k included) nor the models.
+func Run(r table.Reader, opt Options) (*Result, error) {
+	if opt.Folds < 2 || opt.Folds > 50 {
+		return nil, usage("--folds %d: want 2 to 50", opt.Folds)
+	}
+	if opt.InnerFolds < 2 || opt.InnerFolds > 50 {
+		return nil, usage("--inner-folds %d: want 2 to 50", opt.InnerFolds)
+	}
+	if opt.Target == "" {
+		return nil, usage("compare needs --target")
+	}
+	if len(opt.Columns) == 0 {
+		return nil, usage("compare needs --columns")
+	}
+	switch opt.Task {
+	case "", "binary", "multiclass", "regression":
+	default:
+		return nil, usage("--task %q: want binary, multiclass or regression", opt.Task)
+	}
+	if opt.Candidates == nil {
+		opt.Candidates, _ = ParseCandidates(DefaultCandidates)
+	}
+	if opt.Lambda == 0 {
+		opt.Lambda = DefaultLambda
+	}
+	schema := r.Schema()
+	find := func(flag, name string) (int, error) {
+		i := schema.Index(name)
+		if i < 0 {
+			return 0, &pipeline.ColumnError{File: opt.File, Flag: flag, Name: name, Have: schema.Names()}
+		}
+		return i, nil
+	}
+	tcol, err := find("--target", opt.Target)
+	if err != nil {
+		return nil, err
+	}
+	// need lists the positions read, in the order of the selected batches:
+	// the target, the columns, the numeric columns.
+	need := []int{tcol}
+	seen := map[string]bool{}
+	for _, c := range opt.Columns {
+		i, err := find("--columns", c)
+		if err != nil {
+			return nil, err
+		}
+		if i == tcol {
+			return nil, usage("column %q is the target; it cannot be compared", c)
+		}
+		if seen[c] {
+			return nil, usage("column %q is named twice in --columns", c)
+		}
+		seen[c] = true
+		need = append(need, i)
+	}
+	for _, c := range opt.With {
+		i, err := find("--with", c)
+		if err != nil {
+			return nil, err
+		}
+		if i == tcol {
+			return nil, usage("--with %q is the target", c)
+		}
+		if k := schema.Fields[i].Kind; k != table.Int64 && k != table.Float64 && k != table.Bool && k != table.String {
+			return nil, usage("--with %q is not numeric", c)
+		}
+		need = append(need, i)
+	}
+	tkind := schema.Fields[tcol].Kind
+	// Select wants distinct positions; map each use to its place.
+	pos := map[int]int{}
+	var sel []int
+	at := make([]int, len(need))
+	for j, i := range need {
+		p, ok := pos[i]
+		if !ok {
+			p = len(sel)
+			pos[i] = p
+			sel = append(sel, i)
+		}
+		at[j] = p
+	}
+	if err := r.Select(sel); err != nil {
+		return nil, err
+	}
+	total := opt.TotalRows
+	if total <= 0 {
+		if nr, ok := r.(interface{ NumRows() int64 }); ok {
+			total = nr.NumRows()
+		}
+	}
+	var threshold uint64 = sampleSpan // keep all
+	if opt.Sample > 0 && total > opt.Sample {
+		threshold = uint64(float64(opt.Sample) / float64(total) * sampleSpan)
+	}
+
+	ko, ki := opt.Folds, opt.InnerFolds
+	nc := len(opt.Columns)
+	targets := pipeline.NewTargets(opt.File, opt.Target, at[0], tkind, opt.Task)
+	slots := make([]*pipeline.LevelSlots, nc)
+	for i := range slots {
+		slots[i] = pipeline.NewLevelSlots(at[1+i])
+	}
+	withAt := at[1+nc:]
+	sts := make([]*colstats.Stats, nc)
+	smp := &sample{slot: make([][]int32, nc), with: make([][]float64, len(opt.With))}
+	var rows, dropped int64
+	var cellBuf []uint16
+	var keepBuf []bool
+	for {
+		b, err := r.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, err
+		}
+		if b.Rows == 0 {
+			continue
+		}
+		cls, vals, err := targets.Read(b)
+		if err != nil {
+			return nil, err
+		}
+		regress := targets.Regression()
+		if sts[0] == nil {
+			task := colstats.Binary
+			if regress {
+				task = colstats.Regression
+			}
+			for i := range sts {
+				sts[i] = colstats.New(task, ko*ki, 0, 1024)
+			}
+		}
+		if !regress {
+			if n := targets.NumClasses(); n > sts[0].Classes {
+				for _, st := range sts {
+					st.AddClasses(n)
+				}
+			}
+		}
+		if cap(cellBuf) < b.Rows {
+			cellBuf = make([]uint16, b.Rows)
+			keepBuf = make([]bool, b.Rows)
+		}
+		cell, keep := cellBuf[:b.Rows], keepBuf[:b.Rows]
+		for i := 0; i < b.Rows; i++ {
+			row := uint64(b.FirstRow - 1 + int64(i))
+			known := (regress && vals[i] == vals[i]) || (!regress && cls[i] >= 0)
+			if !known {
+				cell[i] = math.MaxUint16
+				keep[i] = false
+				dropped++
+				continue
+			}
+			rows++
+			o := folds.Row(opt.Seed, row, ko)
+			in := folds.Row(opt.Seed^innerSalt, row, ki)
+			cell[i] = uint16(o*ki + in)
+			keep[i] = threshold == sampleSpan || uint64(folds.Row(opt.Seed^sampleSalt, row, sampleSpan)) < threshold
+			if keep[i] {
+				smp.cell = append(smp.cell, cell[i])
+				if regress {
+					smp.val = append(smp.val, vals[i])
+				} else {
+					smp.cls = append(smp.cls, cls[i])
+				}
+				smp.count++
+			}
+		}
+		for ci, st := range sts {
+			ls := slots[ci].Fill(b, st)
+			for i, l := range ls {
+				if cell[i] == math.MaxUint16 {
+					continue
+				}
+				if regress {
+					st.AddValue(int(l), int(cell[i]), vals[i])
+				} else {
+					st.AddClass(int(l), int(cell[i]), int(cls[i]))
+				}
+				if keep[i] {
+					smp.slot[ci] = append(smp.slot[ci], l)
+				}
+			}
+		}
+		for wi, p := range withAt {
+			c := &b.Cols[p]
+			for i := 0; i < b.Rows; i++ {
+				if !keep[i] {
+					continue
+				}
+				v, ok, err := c.Float(i)
+				if err != nil {
+					e := &table.DataError{File: opt.File, Row: b.FirstRow + int64(i), Column: opt.With[wi], Err: fmt.Errorf("--with column: %w", err)}
+					if b.Lines != nil {
+						e.Line = b.Lines[i]
+					}
+					return nil, e
+				}
+				if !ok || math.IsInf(v, 0) {
+					v = math.NaN() // imputed with the training mean
+				}
+				smp.with[wi] = append(smp.with[wi], v)
+			}
+		}
+		if opt.Progress != nil {
+			opt.Progress(rows + dropped)
+		}
+	}
+	if rows+dropped == 0 {
+		return nil, &table.DataError{File: opt.File, Err: errors.New("the table has no rows")}
+	}
+	if rows == 0 {
+		return nil, &table.DataError{File: opt.File, Column: opt.Target, Err: errors.New("target is null in every row")}
+	}
+	res := &Result{File: opt.File, Target: opt.Target, Folds: ko, InnerFolds: ki, Seed: opt.Seed,
+		Rows: rows, DroppedRows: dropped, ModelRows: int64(smp.count), With: append([]string{}, opt.With...), Lambda: opt.Lambda}
+	ev := &evaluator{opt: opt, smp: smp, ko: ko, ki: ki}
+	if targets.Regression() {
+		ev.task = colstats.Regression
+	} else {
+		labels, perm := targets.Classes()
+		if len(labels) < 2 {
+			return nil, &table.DataError{File: opt.File, Column: opt.Target, Err: fmt.Errorf("target has a single class %q; there is nothing to learn", labels[0])}
+		}
+		for _, st := range sts {
+			st.PermuteClasses(perm)
+		}
+		for i, c := range smp.cls {
+			smp.cls[i] = int32(perm[c])
+		}
+		ev.task = colstats.Binary
+		if len(labels) > 2 {
+			ev.task = colstats.Multiclass
+		}
+		if opt.Task == "binary" && len(labels) > 2 {
+			return nil, &table.DataError{File: opt.File, Column: opt.Target, Err: fmt.Errorf("--task binary but the target has %d classes", len(labels))}
+		}
+		ev.classes = len(labels)
+		ev.pos = len(labels) - 1
+		res.Classes = labels
+	}
+	for _, st := range sts {
+		st.Task = ev.task
+	}
+	res.Task = ev.task.String()
+	res.Metric, res.HigherBetter = primaryOf(ev.task)
+	if err := ev.prepare(); err != nil {
+		return nil, err
+	}
+	for ci, name := range opt.Columns {
+		cr, err := ev.column(ci, name, sts[ci])
+		if err != nil {
+			return nil, err
+		}
+		res.Columns = append(res.Columns, cr)
+	}
+	return res, nil
+}
+
+func usage(format string, a ...any) error {
+	return &pipeline.UsageError{Msg: fmt.Sprintf(format, a...)}
+}
+
+// primaryOf names the metric candidates are ranked by.
+func primaryOf(t colstats.Task) (string, bool) {
+	switch t {
+	case colstats.Regression:
+		return "rmse", false
+	case colstats.Multiclass:
+		return "log_loss", false
+	}
+	return "auc", true
+}
+
+// metricNames lists the metrics of a task, the primary first.
+func metricNames(t colstats.Task) []string {
+	switch t {
+	case colstats.Regression:
+		return []string{"rmse", "mae", "r2"}
+	case colstats.Multiclass:
+		return []string{"log_loss", "accuracy", "mean_ovr_auc"}
+	}
+	return []string{"auc", "log_loss", "brier"}
+}
+
+// higherBetter reports whether a larger value of the metric is better.
+func higherBetter(name string) bool {
+	switch name {
+	case "auc", "accuracy", "mean_ovr_auc", "r2":
+		return true
+	}
+	return false
+}
+
+// evaluator scores the candidates of every column on the sample.
+type evaluator struct {
+	opt     Options
+	smp     *sample
+	task    colstats.Task
+	classes int
+	pos     int
+	ko, ki  int
+	// useOut[f]: the cells of the outer training rows of fold f;
+	// useIn[f][g]: those whose inner fold is not g either.
+	useOut [][]bool
+	useIn  [][][]bool
+	train  [][]int // per outer fold: the sample rows it trains on
+	test   [][]int // per outer fold: its held-out sample rows
+}
+
+func (ev *evaluator) prepare() error {
+	cells := ev.ko * ev.ki
+	ev.useOut = make([][]bool, ev.ko)
+	ev.useIn = make([][][]bool, ev.ko)
+	for f := 0; f < ev.ko; f++ {
+		ev.useOut[f] = make([]bool, cells)
+		ev.useIn[f] = make([][]bool, ev.ki)
+		for g := 0; g < ev.ki; g++ {
+			ev.useIn[f][g] = make([]bool, cells)
+		}
+		for c := 0; c < cells; c++ {
+			o, in := c/ev.ki, c%ev.ki
+			ev.useOut[f][c] = o != f
+			for g := 0; g < ev.ki; g++ {
+				ev.useIn[f][g][c] = o != f && in != g
+			}
+		}
+	}
+	ev.train = make([][]int, ev.ko)
+	ev.test = make([][]int, ev.ko)
+	for i, c := range ev.smp.cell {
+		o := int(c) / ev.ki
+		ev.test[o] = append(ev.test[o], i)
+		for f := 0; f < ev.ko; f++ {
+			if f != o {
+				ev.train[f] = append(ev.train[f], i)
+			}
+		}
+	}
+	for f := 0; f < ev.ko; f++ {
+		if len(ev.train[f]) < 2 || len(ev.test[f]) < 1 {
+			return usage("too few rows for %d folds: outer fold %d has %d training and %d held-out rows of the %d the models use (lower --folds or raise --sample)",
+				ev.ko, f+1, len(ev.train[f]), len(ev.test[f]), ev.smp.count)
+		}
+	}
+	return nil
+}
+
+// colState is what every candidate of one column shares.
+type colState struct {
+	st    *colstats.Stats
+	order []uint32
+	slot  []int32
+	// foldRows[f][l]: rows of level l among the outer training rows of f.
+	foldRows [][]uint64
+	// parents by prefix length: statistics and each slot's parent.
+	mu      sync.Mutex
+	parents map[int]*parentStats
+	buckets map[uint64][]int32
+}
+
+type parentStats struct {
+	st    *colstats.Stats
+	of    []int32
+	order []uint32
+}
+
+func (cs *colState) parent(n int) *parentStats {
+	cs.mu.Lock()
+	defer cs.mu.Unlock()
+	if p := cs.parents[n]; p != nil {
+		return p
+	}
+	st, of := cs.st.Rollup(func(b []byte) []byte {
+		if len(b) > n {
+			return b[:n]
+		}
+		return b
+	})
+	p := &parentStats{st: st, of: of, order: st.Sorted()}
+	cs.parents[n] = p
+	return p
+}
+
+// bucketsOf returns the hash bucket of every level slot.
+func (cs *colState) bucketsOf(n uint64) []int32 {
+	cs.mu.Lock()
+	defer cs.mu.Unlock()
+	if b := cs.buckets[n]; b != nil {
+		return b
+	}
+	b := make([]int32, cs.st.NumLevels())
+	for l := range b {
+		b[l] = int32(hashenc.Bucket(hashenc.Sum(cs.st.Bytes(l), 0), n))
+	}
+	cs.buckets[n] = b
+	return b
+}
+
+// job is one (candidate, outer fold) fit.
+type job struct {
+	cand, fold int
+}
+
+// foldScore is what one job measures.
+type foldScore struct {
+	test, train []float64 // metrics in metricNames order
+	seconds     float64
+	outCols     int
+	unseen      float64
+	err         error
+}
+
+func (ev *evaluator) column(ci int, name string, st *colstats.Stats) (ColumnResult, error) {
+	cs := &colState{st: st, order: st.Sorted(), slot: ev.smp.slot[ci],
+		parents: map[int]*parentStats{}, buckets: map[uint64][]int32{}}
+	n := st.NumLevels()
+	cs.foldRows = make([][]uint64, ev.ko)
+	for f := range cs.foldRows {
+		cs.foldRows[f] = make([]uint64, n)
+	}
+	for l := 0; l < n; l++ {
+		for f := 0; f < ev.ko; f++ {
+			cs.foldRows[f][l] = uint64(st.TargetMask(l, 0, ev.pos, ev.useOut[f]).N)
+		}
+	}
+	cands := ev.opt.Candidates
+	scores := make([][]foldScore, len(cands))
+	var jobs []job
+	for c := range cands {
+		scores[c] = make([]foldScore, ev.ko)
+		for f := 0; f < ev.ko; f++ {
+			jobs = append(jobs, job{c, f})
+		}
+	}
+	parallel(len(jobs), ev.opt.Threads, func(i int) {
+		j := jobs[i]
+		scores[j.cand][j.fold] = ev.run(cs, cands[j.cand], j.fold)
+	})
+	cr := ColumnResult{Column: name, Levels: st.Levels.Len()}
+	if st.Rows[0] > 0 {
+		cr.Levels++
+	}
+	names := metricNames(ev.task)
+	for c, cand := range cands {
+		r := CandidateResult{Name: cand.Name, Baseline: cand.Baseline()}
+		per := make([][]float64, len(names))
+		var train []float64
+		for f, s := range scores[c] {
+			if s.err != nil {
+				return cr, fmt.Errorf("column %s, candidate %s, outer fold %d: %w", name, cand.Name, f+1, s.err)
+			}
+			for m := range names {
+				per[m] = append(per[m], s.test[m])
+			}
+			train = append(train, s.train[0])
+			r.FitSeconds += s.seconds
+			r.OutputColumns = max(r.OutputColumns, s.outCols)
+			r.UnseenShare += s.unseen / float64(ev.ko)
+		}
+		for m, nm := range names {
+			mean, std := foldMeanStd(per[m])
+			r.Metrics = append(r.Metrics, Metric{Name: nm, Stat: Stat{mean, std}})
+		}
+		r.Primary = r.Metrics[0].Stat
+		r.PerFold = per[0]
+		r.TrainPrimary.Mean, r.TrainPrimary.Std = foldMeanStd(train)
+		if ev.opt.NoTimings {
+			r.FitSeconds = 0
+		}
+		cr.Candidates = append(cr.Candidates, r)
+	}
+	rank(cr.Candidates, higherBetter(names[0]))
+	cr.Reading = reading(cr.Candidates, names[0], higherBetter(names[0]))
+	cr.RankFreq = rankFrequency(st)
+	if ev.task != colstats.Multiclass {
+		cr.Shrinkage = ev.shrinkage(cs)
+	}
+	return cr, nil
+}
+
+// parallel calls f(0..n-1), at most threads at a time; each call writes
+// only its own results, so the outcome does not depend on threads.
+func parallel(n, threads int, f func(i int)) {
+	if threads < 2 {
+		for i := 0; i < n; i++ {
+			f(i)
+		}
+		return
+	}
+	var wg sync.WaitGroup
+	next := make(chan int)
+	for w := 0; w < threads; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range next {
+				f(i)
+			}
+		}()
+	}
+	for i := 0; i < n; i++ {
+		next <- i
+	}
+	close(next)
+	wg.Wait()
+}
+
+// foldMeanStd is the mean and sample standard deviation of the finite values
+// of xs; NaN when none is finite.
+func foldMeanStd(xs []float64) (float64, float64) {
+	var ok []float64
+	for _, x := range xs {
+		if !math.IsNaN(x) && !math.IsInf(x, 0) {
+			ok = append(ok, x)
+		}
+	}
+	if len(ok) == 0 {
+		return math.NaN(), math.NaN()
+	}
+	var mean float64
+	for _, x := range ok {
+		mean += x
+	}
+	mean /= float64(len(ok))
+	if len(ok) == 1 {
+		return mean, 0
+	}
+	var ss float64
+	for _, x := range ok {
+		ss += (x - mean) * (x - mean)
+	}
+	return mean, math.Sqrt(ss / float64(len(ok)-1))
+}
+
+// rank sorts candidates best first by the primary mean (NaN last, ties in
+// the given order) and marks the best candidate that is not a baseline.
+func rank(cs []CandidateResult, higher bool) {
+	better := func(a, b float64) bool {
+		if math.IsNaN(b) {
+			return !math.IsNaN(a)
+		}
+		if math.IsNaN(a) {
+			return false
+		}
+		if higher {
+			return a > b
+		}
+		return a < b
+	}
+	sort.SliceStable(cs, func(i, j int) bool { return better(cs[i].Primary.Mean, cs[j].Primary.Mean) })
+	for i := range cs {
+		if !cs[i].Baseline && !math.IsNaN(cs[i].Primary.Mean) {
+			cs[i].Winner = true
+			break
+		}
+	}
+}
+
+// rankFrequency returns the rank-frequency curve of the levels, thinned
+// to at most about 300 ranks spread evenly on a log scale.
+func rankFrequency(st *colstats.Stats) []RankPoint {
+	var counts []uint64
+	for _, n := range st.Rows {
+		if n > 0 {
+			counts = append(counts, n)
+		}
+	}
+	slices.SortFunc(counts, func(a, b uint64) int {
+		switch {
+		case a > b:
+			return -1
+		case a < b:
+			return 1
+		}
+		return 0
+	})
+	const points = 300
+	var out []RankPoint
+	last := 0
+	for j := 0; j < points && len(counts) > 0; j++ {
+		r := int(math.Round(math.Exp(float64(j) * math.Log(float64(len(counts))) / (points - 1))))
+		r = max(1, min(r, len(counts)))
+		if r > last {
+			out = append(out, RankPoint{Rank: r, Rows: counts[r-1]})
+			last = r
+		}
+	}
+	return out
+}
+
+// shrinkage returns the raw and target:auto smoothed means, fitted on all
+// rows, of up to 400 levels taken evenly from the canonical order.
+func (ev *evaluator) shrinkage(cs *colState) []ShrinkPoint {
+	all := make([]bool, ev.ko*ev.ki)
+	for i := range all {
+		all[i] = true
+	}
+	ft := cs.st.FitMask(0, ev.pos, colstats.Smoothing{Kind: "auto"}, all, nil, cs.order)
+	const points = 400
+	step := max(1, len(cs.order)/points)
+	var out []ShrinkPoint
+	for i := 0; i < len(cs.order) && len(out) < points; i += step {
+		l := int(cs.order[i])
+		a := cs.st.TargetMask(l, 0, ev.pos, all)
+		if a.N == 0 {
+			continue
+		}
+		out = append(out, ShrinkPoint{Rows: uint64(a.N), Raw: a.Sum / a.N, Smoothed: ft.Encode(a)})
+	}
+	return out
+}
+
+// measure returns the time since start, for FitSeconds.
+func measure(start time.Time) float64 { return time.Since(start).Seconds() }

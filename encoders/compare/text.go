@@ -64,14 +64,16 @@ func WriteText(w io.Writer, r *Result) error {
 		for _, k := range c.Candidates {
 			nameW = max(nameW, len(k.Name)+len(" (baseline)"))
 		}
+		primW := max(17, len(metricLabel(r.Metric)+" mean ± sd")-1) // ± is two bytes, one column
+		trainW := max(9, len("train "+metricLabel(r.Metric)))
 		var head strings.Builder
-		fmt.Fprintf(&head, " rank  %-*s  %-17s", nameW, "candidate", metricLabel(r.Metric)+" mean ± sd")
+		fmt.Fprintf(&head, " rank  %-*s  %-*s", nameW, "candidate", primW, metricLabel(r.Metric)+" mean ± sd")
 		if len(c.Candidates) > 0 {
 			for _, m := range c.Candidates[0].Metrics[1:] {
 				fmt.Fprintf(&head, "  %9s", metricLabel(m.Name))
 			}
 		}
-		fmt.Fprintf(&head, "  %9s  %6s  %6s  %6s", "train "+metricLabel(r.Metric), "secs", "cols", "unseen")
+		fmt.Fprintf(&head, "  %*s  %6s  %6s  %6s", trainW, "train "+metricLabel(r.Metric), "secs", "cols", "unseen")
 		fmt.Fprintln(bw, strings.TrimRight(head.String(), " "))
 		for i, k := range c.Candidates {
 			name := k.Name
@@ -79,7 +81,7 @@ func WriteText(w io.Writer, r *Result) error {
 				name += " (baseline)"
 			}
 			var line strings.Builder
-			fmt.Fprintf(&line, " %4d  %-*s  %-17s", i+1, nameW, name, num(k.Primary.Mean)+" ± "+num(k.Primary.Std))
+			fmt.Fprintf(&line, " %4d  %-*s  %-*s", i+1, nameW, name, primW, num(k.Primary.Mean)+" ± "+num(k.Primary.Std))
 			for _, m := range k.Metrics[1:] {
 				fmt.Fprintf(&line, "  %9s", num(m.Mean))
 			}
@@ -87,7 +89,7 @@ func WriteText(w io.Writer, r *Result) error {
 			if k.FitSeconds > 0 {
 				secs = fmt.Sprintf("%.2f", k.FitSeconds)
 			}
-			fmt.Fprintf(&line, "  %9s  %6s  %6d  %5.1f%%", num(k.TrainPrimary.Mean), secs, k.OutputColumns, 100*k.UnseenShare)
+			fmt.Fprintf(&line, "  %*s  %6s  %6d  %5.1f%%", trainW, num(k.TrainPrimary.Mean), secs, k.OutputColumns, 100*k.UnseenShare)
 			if k.Winner {
 				line.WriteString("  <- winner")
 			}

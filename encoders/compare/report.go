@@ -268,23 +268,34 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 	n := len(c.Candidates)
 	const (
 		width  = 760
-		left   = 70.0
 		right  = 16.0
 		top    = 24.0
 		plotH  = 250.0
 		charW  = 6.4 // average width of an 11px label character
 		legend = 28.0
 	)
-	plotW := width - left - right
-	slot := plotW / math.Max(float64(n), 1)
-	barW := math.Min(slot*0.62, 72)
-
 	// Labels are rotated when the longest name does not fit its slot.
-	maxLen := 0
-	for _, cand := range c.Candidates {
-		maxLen = max(maxLen, utf8.RuneCountInString(displayName(cand.Name)))
+	maxLen, firstLen := 0, 0
+	for j, cand := range c.Candidates {
+		l := utf8.RuneCountInString(displayName(cand.Name))
+		maxLen = max(maxLen, l)
+		if j == 0 {
+			firstLen = l + 7 // the winner's label also says "(best)"
+		}
 	}
+	left := 70.0
+	slot := (width - left - right) / math.Max(float64(n), 1)
 	rotate := float64(maxLen)*charW > slot-6
+	if rotate {
+		// A label rotated by 35 degrees reaches cos(35°) of its length to
+		// the left of its bar's centre: widen the margin so the first one
+		// is not cut off.
+		if need := float64(firstLen)*charW*1.1*math.Cos(35*math.Pi/180) - slot/2 + 8; need > left {
+			left = math.Min(need, 220)
+			slot = (width - left - right) / math.Max(float64(n), 1)
+		}
+	}
+	barW := math.Min(slot*0.62, 72)
 	labelH := 34.0
 	if rotate {
 		labelH = 22 + math.Min(float64(maxLen)*charW*0.6, 170)
@@ -397,7 +408,7 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 		{b.HatchURL, "#6b6b6b", "baselines"},
 		{"", "", "● outer folds   ┃ ±1 standard deviation"},
 	}
-	x := left
+	x := 70.0 // the legend keeps the narrow margin, so it fits however wide the left one grew
 	ly := float64(height) - legend/2 - 4
 	for _, it := range items {
 		li := legendItem{X: px(x), Y: px(ly - 6), TextX: px(x + 18), TextY: px(ly + 4), Fill: it.fill, Stroke: it.stroke, Label: it.label}

@@ -200,14 +200,32 @@ func runEncode(args []string) (err error) {
 	if err != nil {
 		return &outputError{err}
 	}
+	// The mapping tables depend on the fit alone: they are written on a
+	// core of their own while the second pass runs.
+	type staged struct {
+		st  *pipeline.StagedTables
+		err error
+	}
+	tablesDone := make(chan staged, 1)
+	go func() {
+		st, err := m.StageTables(*tables)
+		tablesDone <- staged{st, err}
+	}()
 	pr = newProgress("encode")
 	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads})
 	pr.done()
-	if err != nil {
+	saved := <-tablesDone
+	if err != nil || saved.err != nil {
 		w.Abort()
-		return err
+		if saved.st != nil {
+			saved.st.Abort()
+		}
+		if err != nil {
+			return err
+		}
+		return &outputError{saved.err}
 	}
-	if err := m.SaveTables(*tables); err != nil {
+	if err := saved.st.Commit(); err != nil {
 		w.Abort()
 		return &outputError{err}
 	}

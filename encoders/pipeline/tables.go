@@ -13,7 +13,6 @@ import (
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/hashenc"
-	"manyfold/io/atomicfile"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -189,16 +188,70 @@ func (m *Model) Manifest() Manifest {
 // set) and the manifest into dir, creating it if needed. Every file is
 // written to a temporary name and renamed into place when complete.
 func (m *Model) SaveTables(dir string) error {
-	if err := os.MkdirAll(dir, 0o755); err != nil {
+	st, err := m.StageTables(dir)
+	if err != nil {
+		return err
+	}
+	return st.Commit()
+}
+
+// StagedTables are mapping tables written to a temporary directory beside
+// their final one, so that a failure leaves the final directory as it was.
+type StagedTables struct {
+	dir, tmp string
+	files    []string // in the order they are moved; the manifest last
+}
+
+// StageTables writes the mapping tables into a temporary directory beside
+// dir; Commit moves them into dir, Abort removes them. It only reads the
+// model, so it may run while Encode runs.
+func (m *Model) StageTables(dir string) (*StagedTables, error) {
+	parent := filepath.Dir(filepath.Clean(dir))
+	if err := os.MkdirAll(parent, 0o755); err != nil {
+		return nil, fmt.Errorf("tables: %w", err)
+	}
+	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-*")
+	if err != nil {
+		return nil, fmt.Errorf("tables: %w", err)
+	}
+	st := &StagedTables{dir: dir, tmp: tmp}
+	if err := m.writeTables(st); err != nil {
+		st.Abort()
+		return nil, err
+	}
+	return st, nil
+}
+
+// Commit moves the staged tables into their directory, creating it if
+// needed, the manifest last.
+func (st *StagedTables) Commit() error {
+	defer os.RemoveAll(st.tmp)
+	if err := os.MkdirAll(st.dir, 0o755); err != nil {
 		return fmt.Errorf("tables: %w", err)
 	}
+	for _, f := range st.files {
+		if err := os.Rename(filepath.Join(st.tmp, f), filepath.Join(st.dir, f)); err != nil {
+			return fmt.Errorf("tables: %w", err)
+		}
+	}
+	return nil
+}
+
+// Abort removes the staged tables.
+func (st *StagedTables) Abort() { os.RemoveAll(st.tmp) }
+
+func (m *Model) writeTables(st *StagedTables) error {
 	mf := m.Manifest()
+	save := func(name string, c *Col) error {
+		st.files = append(st.files, name)
+		return m.saveCol(filepath.Join(st.tmp, name), c)
+	}
 	for i, c := range m.Cols {
-		if err := m.saveCol(filepath.Join(dir, mf.Columns[i].Table), c); err != nil {
+		if err := save(mf.Columns[i].Table, c); err != nil {
 			return err
 		}
 		if c.Parent != nil {
-			if err := m.saveCol(filepath.Join(dir, mf.Columns[i].ParentTable), c.Parent); err != nil {
+			if err := save(mf.Columns[i].ParentTable, c.Parent); err != nil {
 				return err
 			}
 		}
@@ -207,15 +260,8 @@ func (m *Model) SaveTables(dir string) error {
 	if err != nil {
 		return err
 	}
-	f, err := atomicfile.Create(filepath.Join(dir, ManifestName))
-	if err != nil {
-		return err
-	}
-	if _, err := f.Write(append(data, '\n')); err != nil {
-		f.Abort()
-		return fmt.Errorf("write %s: %w", f.Path(), err)
-	}
-	return f.Commit()
+	st.files = append(st.files, ManifestName)
+	return os.WriteFile(filepath.Join(st.tmp, ManifestName), append(data, '\n'), 0o644)
 }
 
 // tableSchema returns the layout of a column's mapping table.

@@ -139,6 +139,30 @@ type renamed struct {
 func (e *renamed) Error() string { return strings.ReplaceAll(e.err.Error(), e.from, e.to) }
 func (e *renamed) Unwrap() error { return e.err }
 
+// spoolInput prepares an input that is read more than once: standard input
+// ("-") is spooled to a temporary file. It returns the path to read, the
+// name to use in messages, and done, which the command calls with its error
+// on return: done removes the spool file and makes the error name stdin
+// instead of it.
+func spoolInput(file string) (path, name string, done func(error) error, err error) {
+	path, cleanup, err := spool(file)
+	if err != nil {
+		return "", "", nil, err
+	}
+	name = file
+	if file == "-" {
+		name = "stdin"
+	}
+	done = func(err error) error {
+		cleanup()
+		if err != nil && path != file {
+			return &renamed{err: err, from: path, to: "stdin"}
+		}
+		return err
+	}
+	return path, name, done, nil
+}
+
 // selectColumns checks that every name exists in the schema and returns
 // their positions; a missing name is a ColumnError listing close names.
 func selectColumns(file, flag string, s *table.Schema, names []string) ([]int, error) {

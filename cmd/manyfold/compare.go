@@ -81,22 +81,11 @@ func runCompare(args []string) (err error) {
 	if err != nil {
 		return err
 	}
-	path, cleanup, err := spool(file)
+	path, name, done, err := spoolInput(file)
 	if err != nil {
 		return err
 	}
-	defer cleanup()
-	if path != file {
-		defer func() {
-			if err != nil {
-				err = &renamed{err: err, from: path, to: "stdin"}
-			}
-		}()
-	}
-	name := file
-	if file == "-" {
-		name = "stdin"
-	}
+	defer func() { err = done(err) }()
 	r, err := tableio.Open(path, ropts)
 	if err != nil {
 		return err

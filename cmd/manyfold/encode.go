@@ -126,23 +126,11 @@ func runEncode(args []string) (err error) {
 		return err
 	}
 	start := time.Now()
-	path, cleanup, err := spool(file)
+	path, name, done, err := spoolInput(file)
 	if err != nil {
 		return err
 	}
-	defer cleanup()
-	if path != file {
-		// Messages name standard input, not the file it was spooled to.
-		defer func() {
-			if err != nil {
-				err = &renamed{err: err, from: path, to: "stdin"}
-			}
-		}()
-	}
-	name := file
-	if file == "-" {
-		name = "stdin"
-	}
+	defer func() { err = done(err) }()
 
 	var total int64
 	if sp.FoldBy == "ordered" {

@@ -370,25 +370,11 @@ func (ft *Fitted) Encode(a Agg) float64 {
 // canonical order (Sorted) makes the result independent of the order in
 // which levels were first seen.
 func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint32) Fitted {
-	var tot Agg
-	var mo smooth.Moments
-	n := len(s.Rows)
-	if order != nil {
-		n = len(order)
+	use := make([]bool, s.Folds)
+	for f := range use {
+		use[f] = f != exclude
 	}
-	for i := 0; i < n; i++ {
-		l := i
-		if order != nil {
-			l = int(order[i])
-		}
-		a := s.Target(l, o, exclude, pos)
-		tot.N += a.N
-		tot.Sum += a.Sum
-		if a.N > 0 && (keep == nil || keep[l]) {
-			mo.Add(smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq})
-		}
-	}
-	return fitted(tot, &mo, sm)
+	return s.FitMask(o, pos, sm, use, keep, order)
 }
 
 // fitted returns the fit of the fitting rows' total tot and level moments

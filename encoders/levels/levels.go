@@ -2,9 +2,11 @@
 // column: a compact table that maps millions of distinct byte strings to
 // dense ids 0, 1, 2, ... in the order they were first seen, and back.
 //
-// Layout: the bytes of every level sit end to end in one byte arena; a
-// level's id indexes a table of 64-bit arena offsets (the level ends where
-// the next begins); lookups go through an open-addressing table of 8-byte
+// Layout: the bytes of the levels sit end to end in an arena of 1 MiB
+// chunks (a level never spans two; a level of 1 MiB or more gets a chunk of
+// its own), so the arena grows without copying what it holds; a level's id
+// indexes a table, in blocks, of 64-bit locations (chunk, offset, length);
+// lookups go through an open-addressing table of 8-byte
 // slots, each holding a 32-bit tag taken from the level's hash and the
 // level's id, probed linearly from the hash's top bits and kept at most 3/4
 // full. As the home slot is drawn from the same top bits the tag keeps, the
@@ -12,11 +14,11 @@
 // slots), writing the new slots almost in order.
 //
 // Memory: about 19 to 30 bytes per level on top of the level's own bytes (8
-// for the offset, 8/load for the slots, plus slice growth slack of up to a
-// quarter on the arena and offsets), about half of what a map[string]uint32
-// holding the same levels takes. Offsets are 64-bit, so the arena may grow
-// past 4 GiB of level bytes; the only limits are memory and the id space
-// (MaxLevels).
+// for the location, 8/load for the slots, plus the unused end of the last
+// chunk and block), about half of what a map[string]uint32 holding the same
+// levels takes, and never twice that while growing, as nothing but the slot
+// table is ever reallocated. The arena may grow past 4 GiB of level bytes;
+// the only limits are memory and the id space (MaxLevels).
 package levels
 
 import (
@@ -60,12 +62,29 @@ type slot struct{ tag, id1 uint32 }
 // only read (Lookup, Level, Len, MemBytes) may run concurrently with each
 // other.
 type Table struct {
-	arena   []byte
-	offsets []uint64 // offsets[id] is where level id starts; one more entry than levels
-	slots   []slot   // power-of-two length
-	shift   uint     // 64 - log2(len(slots)): home slot of hash h is h >> shift
-	grow    int      // level count above which slots doubles
+	chunks [][]byte   // the arena; chunks[cur] is the one being filled
+	cur    int        // index of the chunk being filled, -1 before the first
+	locs   [][]uint64 // locs[id>>blockBits][id&blockMask]: see loc
+	n      int        // levels
+	slots  []slot     // power-of-two length
+	shift  uint       // 64 - log2(len(slots)): home slot of hash h is h >> shift
+	grow   int        // level count above which slots doubles
 }
+
+// Arena and location table geometry. A location packs a level's chunk (24
+// bits), its offset in the chunk (20 bits) and its length (20 bits); a level
+// of lenMask bytes or more fills a chunk of its own and records the length
+// lenMask, its true length being the chunk's.
+const (
+	chunkSize = 1 << 20
+	lenBits   = 20
+	lenMask   = 1<<lenBits - 1
+	offBits   = 20
+	blockBits = 16
+	blockMask = 1<<blockBits - 1
+)
+
+func (t *Table) loc(id uint32) uint64 { return t.locs[id>>blockBits][id&blockMask] }
 
 // New returns an empty Table sized for sizeHint levels without growing its
 // slot or offset tables (the arena still grows as level bytes arrive).
@@ -89,26 +108,51 @@ func (t *Table) init(sizeHint int) {
 	t.slots = make([]slot, n)
 	t.shift = shift
 	t.grow = n / 4 * 3
-	t.offsets = make([]uint64, 1, sizeHint+1)
+	t.cur = -1
 }
 
 // Len returns the number of levels.
-func (t *Table) Len() int {
-	if len(t.offsets) == 0 {
-		return 0
-	}
-	return len(t.offsets) - 1
-}
+func (t *Table) Len() int { return t.n }
 
 // Level returns the bytes of level id, aliasing the arena: the caller must
 // not modify them; appending to the result copies (its capacity ends with
 // the level). An id that is not in the table gives nil.
 func (t *Table) Level(id uint32) []byte {
-	if uint64(id)+1 >= uint64(len(t.offsets)) {
+	if uint64(id) >= uint64(t.n) {
 		return nil
 	}
-	lo, hi := t.offsets[id], t.offsets[id+1]
-	return t.arena[lo:hi:hi]
+	l := t.loc(id)
+	c := t.chunks[l>>(offBits+lenBits)]
+	n := l & lenMask
+	if n == lenMask {
+		return c[:len(c):len(c)]
+	}
+	lo := (l >> lenBits) & (1<<offBits - 1)
+	return c[lo : lo+n : lo+n]
+}
+
+// add copies b into the arena as level id t.n and records its location.
+func (t *Table) add(b []byte) {
+	var l uint64
+	if len(b) >= lenMask {
+		t.chunks = append(t.chunks, append([]byte(nil), b...))
+		l = uint64(len(t.chunks)-1)<<(offBits+lenBits) | lenMask
+	} else {
+		if t.cur < 0 || len(t.chunks[t.cur])+len(b) >= chunkSize {
+			t.chunks = append(t.chunks, make([]byte, 0, chunkSize))
+			t.cur = len(t.chunks) - 1
+		}
+		c := t.chunks[t.cur]
+		l = uint64(t.cur)<<(offBits+lenBits) | uint64(len(c))<<lenBits | uint64(len(b))
+		// b may alias an earlier level of this chunk; append copies it to
+		// bytes past len(c), which it cannot overlap.
+		t.chunks[t.cur] = append(c, b...)
+	}
+	if t.n>>blockBits == len(t.locs) {
+		t.locs = append(t.locs, make([]uint64, 1<<blockBits))
+	}
+	t.locs[t.n>>blockBits][t.n&blockMask] = l
+	t.n++
 }
 
 // Intern returns the id of b, adding b (copied into the arena) with the next
@@ -129,12 +173,11 @@ func (t *Table) InternHash(b []byte, h uint64) uint32 {
 	for i := h >> t.shift; ; i = (i + 1) & mask {
 		s := t.slots[i]
 		if s.id1 == 0 {
-			n := uint64(len(t.offsets) - 1)
+			n := uint64(t.n)
 			if n >= levelLimit {
 				return NoID
 			}
-			t.arena = append(t.arena, b...)
-			t.offsets = append(t.offsets, uint64(len(t.arena)))
+			t.add(b)
 			t.slots[i] = slot{tag: tag, id1: uint32(n + 1)}
 			if int(n+1) > t.grow {
 				t.rehash()
@@ -187,8 +230,8 @@ func (t *Table) rehash() {
 			slots[i] = s
 		}
 	} else {
-		for id := 0; id+1 < len(t.offsets); id++ {
-			h := Hash(t.arena[t.offsets[id]:t.offsets[id+1]])
+		for id := 0; id < t.n; id++ {
+			h := Hash(t.Level(uint32(id)))
 			i := h >> shift
 			for slots[i].id1 != 0 {
 				i = (i + 1) & mask
@@ -203,5 +246,9 @@ func (t *Table) rehash() {
 // MemBytes returns the bytes the table holds: the arena's, offset table's
 // and slot table's capacity plus the Table itself.
 func (t *Table) MemBytes() int {
-	return int(unsafe.Sizeof(*t)) + cap(t.arena) + 8*cap(t.offsets) + int(unsafe.Sizeof(slot{}))*len(t.slots)
+	n := int(unsafe.Sizeof(*t)) + int(unsafe.Sizeof(slot{}))*len(t.slots) + 8<<blockBits*len(t.locs)
+	for _, c := range t.chunks {
+		n += cap(c)
+	}
+	return n
 }

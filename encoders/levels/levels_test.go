@@ -344,3 +344,36 @@ func BenchmarkIntern(b *testing.B) {
 		})
 	}
 }
+
+// TestChunkBoundaries fills arena chunks to their edges: empty levels at a
+// full chunk, levels that just fit or just miss, and levels long enough to
+// take a chunk of their own; every level must read back as interned.
+func TestChunkBoundaries(t *testing.T) {
+	tb := New(0)
+	var want [][]byte
+	add := func(b []byte) {
+		id := tb.Intern(b)
+		if int(id) != len(want) {
+			t.Fatalf("level %d got id %d", len(want), id)
+		}
+		want = append(want, append([]byte(nil), b...))
+	}
+	for i, n := range []int{chunkSize - 10, 9, 0, 0, 1, lenMask, 5, lenMask + 3, chunkSize - 1, 0, 2 * chunkSize} {
+		b := bytes.Repeat([]byte{byte('a' + i)}, n)
+		if n > 0 {
+			b[n-1] = byte(i) // distinct levels of equal length
+		}
+		if n == 0 && i > 2 {
+			continue // the empty level once is enough
+		}
+		add(b)
+	}
+	for id, w := range want {
+		if got := tb.Level(uint32(id)); !bytes.Equal(got, w) {
+			t.Errorf("level %d: %d bytes, want %d", id, len(got), len(w))
+		}
+		if got, ok := tb.Lookup(w); !ok || int(got) != id {
+			t.Errorf("Lookup of level %d = %d, %v", id, got, ok)
+		}
+	}
+}

@@ -68,6 +68,11 @@ type Stats struct {
 	cls        perLevel[uint32]
 	cnt        perLevel[uint32]
 	sum, sumSq perLevel[float64]
+
+	// allBut[e+1] marks every fold but e (allBut[0]: all folds), the fold
+	// sets Target sums; built once so that Target allocates nothing and may
+	// run on several goroutines.
+	allBut [][]bool
 }
 
 // chunkBits sets the levels per chunk of a perLevel array (2^14).
@@ -97,6 +102,13 @@ func (p *perLevel[T]) grow(n int) {
 // New returns empty statistics for k folds.
 func New(task Task, k, classes int, sizeHint int) *Stats {
 	s := &Stats{Task: task, Folds: k, Levels: levels.New(sizeHint)}
+	s.allBut = make([][]bool, k+1)
+	for e := range s.allBut {
+		s.allBut[e] = make([]bool, k)
+		for f := range s.allBut[e] {
+			s.allBut[e][f] = f != e-1
+		}
+	}
 	if task != Regression {
 		s.Classes = classes
 	}
@@ -239,34 +251,7 @@ func (s *Stats) Outputs() int {
 // folds but exclude (exclude < 0: all folds). For binary the positive class
 // is class slot pos.
 func (s *Stats) Target(l, o, exclude, pos int) Agg {
-	var a Agg
-	if s.Task == Regression {
-		cnt, sum, sq := s.cnt.row(l), s.sum.row(l), s.sumSq.row(l)
-		for f := 0; f < s.Folds; f++ {
-			if f != exclude {
-				a.N += float64(cnt[f])
-				a.Sum += sum[f]
-				a.SumSq += sq[f]
-			}
-		}
-		return a
-	}
-	if s.Task == Binary {
-		o = pos
-	}
-	row := s.cls.row(l)
-	var n, k uint64
-	for f := 0; f < s.Folds; f++ {
-		if f == exclude {
-			continue
-		}
-		for _, v := range row[f*s.Classes : (f+1)*s.Classes] {
-			n += uint64(v)
-		}
-		k += uint64(row[f*s.Classes+o])
-	}
-	a.N, a.Sum, a.SumSq = float64(n), float64(k), float64(k)
-	return a
+	return s.TargetMask(l, o, pos, s.allBut[exclude+1])
 }
 
 // TargetMask returns the statistic of level l for output o over the rows
@@ -370,11 +355,7 @@ func (ft *Fitted) Encode(a Agg) float64 {
 // canonical order (Sorted) makes the result independent of the order in
 // which levels were first seen.
 func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint32) Fitted {
-	use := make([]bool, s.Folds)
-	for f := range use {
-		use[f] = f != exclude
-	}
-	return s.FitMask(o, pos, sm, use, keep, order)
+	return s.FitMask(o, pos, sm, s.allBut[exclude+1], keep, order)
 }
 
 // fitted returns the fit of the fitting rows' total tot and level moments

@@ -53,7 +53,7 @@ func runCompare(args []string) (err error) {
 	lambda := fs.Float64("lambda", compare.DefaultLambda, "L2 weight of the models")
 	jsonOut := fs.String("json", "", "write the result as JSON to this file")
 	report := fs.String("report", "", "write an HTML report to this file")
-	noTimes := fs.Bool("no-timings", false, "leave the fit times out (0 in JSON), so that reruns give identical output")
+	timings := fs.Bool("timings", false, "record each candidate's fit and encode seconds (they vary from run to run; without them the same seed gives byte-identical output)")
 	threads := fs.Int("threads", runtime.NumCPU(), "models fitted at once (the result is the same for any number)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
@@ -107,7 +107,7 @@ func runCompare(args []string) (err error) {
 	res, err := compare.Run(r, compare.Options{
 		File: name, Target: *target, Task: *task, Columns: *columns, Candidates: list,
 		Folds: *folds, InnerFolds: *inner, Seed: *seed, With: *with, Sample: *sample, TotalRows: total,
-		Lambda: *lambda, Threads: *threads, NoTimings: *noTimes, Progress: pr.update,
+		Lambda: *lambda, Threads: *threads, NoTimings: !*timings, Progress: pr.update,
 	})
 	pr.done()
 	if err != nil {

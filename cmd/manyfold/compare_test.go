@@ -11,7 +11,7 @@ import (
 )
 
 // TestCompareSameSeed: the same seed gives a byte-identical table on
-// stdout and byte-identical JSON (fit times left out with --no-timings).
+// stdout and byte-identical JSON (fit times are recorded only with --timings).
 func TestCompareSameSeed(t *testing.T) {
 	dir := t.TempDir()
 	file := filepath.Join(dir, "shipments.parquet")
@@ -20,7 +20,7 @@ func TestCompareSameSeed(t *testing.T) {
 	}
 	args := func(out string) []string {
 		return []string{"compare", file, "--target", "late", "--columns", "dest_postcode,sender_account",
-			"--folds", "3", "--inner-folds", "3", "--seed", "8", "--no-timings", "--json", out}
+			"--folds", "3", "--inner-folds", "3", "--seed", "8", "--json", out}
 	}
 	a := mustRun(t, args(filepath.Join(dir, "a.json"))...)
 	b := mustRun(t, append(args(filepath.Join(dir, "b.json")), "--threads", "1")...)
@@ -77,7 +77,7 @@ func TestCompareCSVAndReport(t *testing.T) {
 		t.Errorf("report: %v", err)
 	}
 	in, _ := os.ReadFile(csv)
-	st := runStdin(t, in, "compare", "-", "--target", "late", "--columns", "postcode", "--folds", "2", "--inner-folds", "2", "--no-timings")
+	st := runStdin(t, in, "compare", "-", "--target", "late", "--columns", "postcode", "--folds", "2", "--inner-folds", "2")
 	if st.code != exitOK || !strings.Contains(st.stdout, "stdin") {
 		t.Errorf("stdin: exit %d\n%s%s", st.code, st.stdout, st.stderr)
 	}

@@ -240,21 +240,7 @@ func (pr *problem) finish(loss float64, theta, grad []float64, nw int) float64 {
 
 // logistic is the binary logistic objective over theta = [w_dense, w_ind, b].
 func (pr *problem) logistic(theta, grad []float64) float64 {
-	d := pr.d
-	nd, p := d.NDense, d.NDense+d.NInd
-	wd, wi, b := theta[:nd], theta[nd:p], theta[p]
-	gdn, gi := grad[:nd], grad[nd:p]
-	clear(grad)
-	var loss, gb float64
-	for r := range d.Rows {
-		x, cols := d.dense(r), d.ind(r)
-		z := b
-		for j, v := range x {
-			z += wd[j] * v
-		}
-		for _, c := range cols {
-			z += wi[c]
-		}
+	return pr.single(theta, grad, func(z, y float64) (float64, float64) {
 		// log(1+e^z) = max(z,0) + log1p(e^-|z|) and σ(z) from the same
 		// exponential, stable for any z.
 		e := math.Exp(-math.Abs(z))
@@ -266,23 +252,23 @@ func (pr *problem) logistic(theta, grad []float64) float64 {
 		} else {
 			s = e / (1 + e)
 		}
-		yi := pr.y[r]
-		loss += l - yi*z
-		res := s - yi
-		for j, v := range x {
-			gdn[j] += res * v
-		}
-		for _, c := range cols {
-			gi[c] += res
-		}
-		gb += res
-	}
-	grad[p] = gb
-	return pr.finish(loss, theta, grad, p)
+		return l - y*z, s - y
+	})
 }
 
 // ridge is the half-mean-squared-error objective over theta = [w, b].
 func (pr *problem) ridge(theta, grad []float64) float64 {
+	return pr.single(theta, grad, func(z, y float64) (float64, float64) {
+		res := z - y
+		return 0.5 * res * res, res
+	})
+}
+
+// single is the objective of a model with one linear predictor
+// z = b + w_dense·x + sum of the row's indicator weights over theta =
+// [w_dense, w_ind, b]: point gives each row's loss and its derivative in z,
+// from which the gradient is accumulated.
+func (pr *problem) single(theta, grad []float64, point func(z, y float64) (loss, dz float64)) float64 {
 	d := pr.d
 	nd, p := d.NDense, d.NDense+d.NInd
 	wd, wi, b := theta[:nd], theta[nd:p], theta[p]
@@ -298,8 +284,8 @@ func (pr *problem) ridge(theta, grad []float64) float64 {
 		for _, c := range cols {
 			z += wi[c]
 		}
-		res := z - pr.y[r]
-		loss += 0.5 * res * res
+		l, res := point(z, pr.y[r])
+		loss += l
 		for j, v := range x {
 			gdn[j] += res * v
 		}

@@ -2,7 +2,6 @@ package main
 
 import (
 	"fmt"
-	"io"
 	"os"
 	"strconv"
 	"strings"
@@ -247,14 +246,6 @@ func countRows(path string, opts tableio.ReadOptions) (int64, error) {
 		return 0, err
 	}
 	var n int64
-	for {
-		b, err := r.Next()
-		if err == io.EOF {
-			return n, nil
-		}
-		if err != nil {
-			return 0, err
-		}
-		n += int64(b.Rows)
-	}
+	err = table.ForEach(r, func(b *table.Batch) error { n += int64(b.Rows); return nil })
+	return n, err
 }

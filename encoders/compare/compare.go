@@ -3,7 +3,6 @@ package compare
 import (
 	"errors"
 	"fmt"
-	"io"
 	"math"
 	"slices"
 	"sort"
@@ -185,20 +184,10 @@ func Run(r table.Reader, opt Options) (*Result, error) {
 	var rows, dropped int64
 	var cellBuf []uint16
 	var keepBuf []bool
-	for {
-		b, err := r.Next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, err
-		}
-		if b.Rows == 0 {
-			continue
-		}
+	if err := table.ForEach(r, func(b *table.Batch) error {
 		cls, vals, err := targets.Read(b)
 		if err != nil {
-			return nil, err
+			return err
 		}
 		regress := targets.Regression()
 		if sts[0] == nil {
@@ -274,7 +263,7 @@ func Run(r table.Reader, opt Options) (*Result, error) {
 					if b.Lines != nil {
 						e.Line = b.Lines[i]
 					}
-					return nil, e
+					return e
 				}
 				if !ok || math.IsInf(v, 0) {
 					v = math.NaN() // imputed with the training mean
@@ -285,6 +274,9 @@ func Run(r table.Reader, opt Options) (*Result, error) {
 		if opt.Progress != nil {
 			opt.Progress(rows + dropped)
 		}
+		return nil
+	}); err != nil {
+		return nil, err
 	}
 	if rows+dropped == 0 {
 		return nil, &table.DataError{File: opt.File, Err: errors.New("the table has no rows")}

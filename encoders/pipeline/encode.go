@@ -2,7 +2,6 @@ package pipeline
 
 import (
 	"fmt"
-	"io"
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/hashenc"
@@ -168,17 +167,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		}
 	}
 	batch := &table.Batch{Cols: make([]table.Column, len(kept)+len(outs))}
-	for {
-		b, err := r.Next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return sum, err
-		}
-		if b.Rows == 0 {
-			continue
-		}
+	if err := table.ForEach(r, func(b *table.Batch) error {
 		n := b.Rows
 		var cls []int32
 		var vals []float64
@@ -186,7 +175,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		if training {
 			if tr != nil {
 				if err := tr.read(b); err != nil {
-					return sum, err
+					return err
 				}
 				if tr.regress {
 					vals = tr.vals
@@ -196,7 +185,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 			}
 			fold, err = fa.assign(b, cls)
 			if err != nil {
-				return sum, err
+				return err
 			}
 		}
 		for i, k := range kept {
@@ -313,12 +302,15 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		})
 		batch.Rows, batch.FirstRow, batch.Lines = n, b.FirstRow, b.Lines
 		if err := w.Write(batch); err != nil {
-			return sum, err
+			return err
 		}
 		sum.Rows += int64(n)
 		if opt.Progress != nil {
 			opt.Progress(sum.Rows)
 		}
+		return nil
+	}); err != nil {
+		return sum, err
 	}
 	if tr != nil {
 		sum.Missing = tr.missing

@@ -3,7 +3,6 @@ package pipeline
 import (
 	"errors"
 	"fmt"
-	"io"
 	"sync"
 
 	"manyfold/encoders/colstats"
@@ -151,20 +150,10 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		slots = append(slots, pslots)
 	}
 
-	for {
-		b, err := r.Next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, err
-		}
-		if b.Rows == 0 {
-			continue
-		}
+	if err := table.ForEach(r, func(b *table.Batch) error {
 		if order != nil {
 			if err := order.check(b); err != nil {
-				return nil, err
+				return err
 			}
 		}
 		if !decided {
@@ -187,7 +176,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if tr != nil {
 			tr.regress = regress
 			if err := tr.read(b); err != nil {
-				return nil, err
+				return err
 			}
 			cls, vals = tr.cls, tr.vals
 			if !regress {
@@ -202,7 +191,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		}
 		fold, err := fa.assign(b, cls)
 		if err != nil {
-			return nil, err
+			return err
 		}
 		each(len(all), opt.Threads, func(ci int) {
 			c := all[ci]
@@ -235,6 +224,9 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if opt.Progress != nil {
 			opt.Progress(m.Rows)
 		}
+		return nil
+	}); err != nil {
+		return nil, err
 	}
 	if m.Rows == 0 || m.Cols[0].St == nil {
 		return nil, &table.DataError{File: opt.File, Err: errors.New("the table has no rows")}

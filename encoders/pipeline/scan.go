@@ -2,7 +2,6 @@ package pipeline
 
 import (
 	"fmt"
-	"io"
 	"sort"
 
 	"manyfold/encoders/colstats"
@@ -46,14 +45,7 @@ func Scan(r table.Reader, cols []int, top int, progress func(int64)) ([]Profile,
 		slots[i] = levelSlots{col: c}
 	}
 	var rows int64
-	for {
-		b, err := r.Next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, err
-		}
+	if err := table.ForEach(r, func(b *table.Batch) error {
 		for i := range cols {
 			for _, l := range slots[i].fill(b, sts[i], true) {
 				sts[i].Rows[l]++
@@ -63,6 +55,9 @@ func Scan(r table.Reader, cols []int, top int, progress func(int64)) ([]Profile,
 		if progress != nil {
 			progress(rows)
 		}
+		return nil
+	}); err != nil {
+		return nil, err
 	}
 	out := make([]Profile, len(cols))
 	for i, c := range cols {

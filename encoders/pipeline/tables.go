@@ -4,7 +4,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -477,14 +476,7 @@ func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Co
 		}
 	}
 	c.Freq, c.TopK, c.Keep = []float64{0}, []int32{0}, []bool{false}
-	for {
-		b, err := r.Next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, err
-		}
+	if err := table.ForEach(r, func(b *table.Batch) error {
 		for i := 0; i < b.Rows; i++ {
 			l := 0
 			if !b.Cols[0].IsNull(i) {
@@ -517,6 +509,9 @@ func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Co
 			c.Freq[l] = next().Floats[i]
 			c.TopK[l] = int32(next().Ints[i])
 		}
+		return nil
+	}); err != nil {
+		return nil, err
 	}
 	return c, nil
 }

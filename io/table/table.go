@@ -15,6 +15,7 @@ package table
 
 import (
 	"fmt"
+	"io"
 	"math"
 	"strconv"
 )
@@ -294,4 +295,24 @@ type Writer interface {
 	Write(b *Batch) error
 	// Close flushes and completes the output.
 	Close() error
+}
+
+// ForEach calls f with every batch of r that holds rows, in order, and
+// returns the first error of r or f. It does not close r.
+func ForEach(r Reader, f func(b *Batch) error) error {
+	for {
+		b, err := r.Next()
+		if err == io.EOF {
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+		if b.Rows == 0 {
+			continue
+		}
+		if err := f(b); err != nil {
+			return err
+		}
+	}
 }

@@ -29,12 +29,11 @@ type reader struct {
 	closed  bool
 	err     error // sticky error from Next
 
-	rec     arrow.Record // current record, owned
-	batch   table.Batch
-	cols    []colState // per selected column
-	rows    int64      // rows returned so far
-	lastID  uint64     // last dictionary ID handed out
-	scratch []byte
+	rec    arrow.Record // current record, owned
+	batch  table.Batch
+	cols   []colState // per selected column
+	rows   int64      // rows returned so far
+	lastID uint64     // last dictionary ID handed out
 }
 
 // field is one column of the file as manyfold sees it.
@@ -59,7 +58,6 @@ type colState struct {
 	dict      table.Dict
 	dictNulls []bool // null entries of dict, nil when none
 	dictOffs  []int32
-	dictBytes []byte
 }
 
 func newReader(name string, s *arrow.Schema) (*reader, error) {

@@ -2,10 +2,8 @@ package pqio
 
 import (
 	"bytes"
-	"encoding/binary"
 	"errors"
 	"fmt"
-	"hash/crc32"
 	"io"
 	"math"
 	"slices"
@@ -192,10 +190,10 @@ func slice(c table.Column, i, j int) table.Column {
 
 // writeCols writes columns of rows rows in batches of batch rows and
 // returns the file.
-func writeCols(t testing.TB, schema *table.Schema, cols []table.Column, rows, batch int, opts WriterOptions, extra ...parquet.WriterOption) []byte {
+func writeCols(t testing.TB, schema *table.Schema, cols []table.Column, rows, batch int, opts WriterOptions) []byte {
 	t.Helper()
 	var buf bytes.Buffer
-	w, err := newWriter(&buf, schema, opts, extra...)
+	w, err := newWriter(&buf, schema, opts)
 	if err != nil {
 		t.Fatalf("newWriter: %v", err)
 	}
@@ -304,7 +302,7 @@ func TestNullsAtEveryPosition(t *testing.T) {
 	defer func(old int) { chunkRows = old }(chunkRows)
 	chunkRows = 4
 	const n = 29
-	small := []parquet.WriterOption{parquet.PageBufferSize(8)}
+	withGeometry(t, 8, 8, dictMaxBytes)
 	for _, kind := range kinds {
 		for _, lone := range []bool{false, true} {
 			for p := 0; p < n; p++ {
@@ -315,7 +313,7 @@ func TestNullsAtEveryPosition(t *testing.T) {
 					}
 				}
 				schema := &table.Schema{Fields: []table.Field{{Name: "v", Kind: kind, Nullable: true}}}
-				data := writeCols(t, schema, []table.Column{col(t, kind, ownForm(kind), cells)}, n, n, WriterOptions{}, small...)
+				data := writeCols(t, schema, []table.Column{col(t, kind, ownForm(kind), cells)}, n, n, WriterOptions{})
 				r := openBytes(t, "nulls.parquet", data)
 				if p == 0 && !lone {
 					if pc := pageCounts(t, r, 0); pc[0] < 3 {
@@ -359,7 +357,8 @@ func TestNullsAcrossPagesAndBatches(t *testing.T) {
 		t.Fatal("text column lacks nulls or empty strings")
 	}
 	schema := &table.Schema{Fields: fields}
-	data := writeCols(t, schema, cols, n, 611, WriterOptions{RowGroupRows: 3000}, parquet.PageBufferSize(1024))
+	withGeometry(t, 1024, 1<<17, dictMaxBytes)
+	data := writeCols(t, schema, cols, n, 611, WriterOptions{RowGroupRows: 3000})
 	r := openBytes(t, "long.parquet", data)
 	defer r.Close()
 	if pc := pageCounts(t, r, 0); len(pc) != 3 || pc[0] < 4 {
@@ -642,7 +641,7 @@ func TestEmptyTable(t *testing.T) {
 
 // dictFile writes a text column of n rows over levels levels, in row
 // groups of rg rows.
-func dictFile(t testing.TB, n, levels, rg int, extra ...parquet.WriterOption) ([]byte, []cell) {
+func dictFile(t testing.TB, n, levels, rg int) ([]byte, []cell) {
 	cells := make([]cell, n)
 	for i := range cells {
 		cells[i] = cell{text: "postcode-" + strconv.Itoa((i*7919)%levels)}
@@ -651,7 +650,7 @@ func dictFile(t testing.TB, n, levels, rg int, extra ...parquet.WriterOption) ([
 		}
 	}
 	schema := &table.Schema{Fields: []table.Field{{Name: "postcode", Kind: table.String, Nullable: true}}}
-	data := writeCols(t, schema, []table.Column{col(t, table.String, table.FormText, cells)}, n, 4096, WriterOptions{RowGroupRows: rg}, extra...)
+	data := writeCols(t, schema, []table.Column{col(t, table.String, table.FormText, cells)}, n, 4096, WriterOptions{RowGroupRows: rg})
 	return data, cells
 }
 
@@ -707,7 +706,8 @@ func TestDictionaryFallback(t *testing.T) {
 	defer func(old int64) { batchRows = old }(batchRows)
 	defer func(old int) { chunkRows = old }(chunkRows)
 	chunkRows = 100
-	data, cells := dictFile(t, 5000, 5000, 5000, parquet.DictionaryMaxBytes(4000), parquet.PageBufferSize(2000))
+	withGeometry(t, 2000, 1<<17, 4000)
+	data, cells := dictFile(t, 5000, 5000, 5000)
 	r := openBytes(t, "fallback.parquet", data)
 	// Check that the file really mixes the two kinds of page.
 	pages := r.pf.RowGroups()[0].ColumnChunks()[0].Pages()
@@ -881,49 +881,39 @@ func TestCorruptFiles(t *testing.T) {
 }
 
 // TestDictionaryIndexOutOfRange hand-damages a dictionary index so that it
-// points past the dictionary, fixing the page's CRC so that only the index
-// check can catch it.
+// points past the dictionary while staying within the page's bit width, so
+// that only the index check can catch it (the writer puts no CRC in page
+// headers).
 func TestDictionaryIndexOutOfRange(t *testing.T) {
-	cells := []cell{{text: "a"}, {text: "b"}, {text: "a"}, {text: "b"}}
+	var cells []cell
+	for _, v := range []string{"a", "b", "c", "a", "b", "c", "a", "b"} {
+		cells = append(cells, cell{text: v})
+	}
 	schema := &table.Schema{Fields: []table.Field{{Name: "s", Kind: table.String}}}
-	data := writeCols(t, schema, []table.Column{col(t, table.String, table.FormText, cells)}, 4, 4, WriterOptions{Compression: "none"}, parquet.DataPageVersion(1))
+	data := writeCols(t, schema, []table.Column{col(t, table.String, table.FormText, cells)}, 8, 8, WriterOptions{Compression: "none"})
 	// The data page (v1, no levels for a required column) holds the indices
-	// 0 1 0 1 as bit width 1 and four RLE runs of length 1 (header 0x02,
-	// then one value byte); layout from the Parquet format's RLE/bit-packed
-	// hybrid encoding. Its header is compact thrift: type, sizes (9 bytes),
-	// then field 4, the CRC, as a zigzag varint, then the data page header.
-	body := []byte{0x01, 0x02, 0x00, 0x02, 0x01, 0x02, 0x00, 0x02, 0x01}
+	// 0 1 2 0 1 2 0 1 at bit width 2 as one bit-packed run: header 0x03 (one
+	// group of 8, low bit set), then the values packed from the least
+	// significant bit up, 0x24 0x49 (layout from the Parquet format's
+	// RLE/bit-packing hybrid encoding, Encodings.md; bytes computed by hand).
+	body := []byte{0x02, 0x03, 0x24, 0x49}
 	at := bytes.Index(data, body)
-	hdr := bytes.LastIndex(data[:at], []byte{0x15, 0x00, 0x15, 0x12, 0x15, 0x12, 0x15})
-	if at < 0 || hdr < 0 {
+	if at < 0 {
 		t.Fatal("data page layout not found")
 	}
-	crcAt := hdr + 7
-	crcLen := 0
-	for data[crcAt+crcLen]&0x80 != 0 {
-		crcLen++
+	bad := slices.Clone(data)
+	bad[at+2] = 0xE4 // the fourth index becomes 3; the dictionary has 3 entries
+	r := openBytes(t, "index.parquet", bad)
+	_, err := r.Next()
+	r.Close()
+	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), `"s"`) || !strings.Contains(err.Error(), "dictionary index") {
+		t.Fatalf("Next: %v, want ErrCorrupt naming column s and the bad index", err)
 	}
-	crcLen++
-	for v := byte(2); v < 255; v++ {
-		bad := slices.Clone(data)
-		// Bit width 8, and the third index becomes v (the dictionary has 2).
-		copy(bad[at:], []byte{0x08, 0x02, 0x00, 0x02, 0x01, 0x02, v, 0x02, 0x01})
-		crc := int32(crc32.ChecksumIEEE(bad[at : at+len(body)]))
-		enc := binary.AppendUvarint(nil, uint64(uint32((crc<<1)^(crc>>31))))
-		if len(enc) != crcLen {
-			continue // keep the header's length
-		}
-		copy(bad[crcAt:], enc)
-		r := openBytes(t, "index.parquet", bad)
-		_, err := r.Next()
-		r.Close()
-		if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), `"s"`) || !strings.Contains(err.Error(), "dictionary index") {
-			t.Fatalf("Next: %v, want ErrCorrupt naming column s and the bad index", err)
-		}
-		t.Log(err)
-		return
-	}
-	t.Fatal("no damaged index kept the header's length")
+	// The undamaged file reads back.
+	r = openBytes(t, "index.parquet", data)
+	res := readAll(t, r)
+	r.Close()
+	compareCells(t, "undamaged", res.cols[0], cells)
 }
 
 func TestOpenMissingFile(t *testing.T) {
@@ -963,4 +953,13 @@ func TestWriteAllocations(t *testing.T) {
 		t.Fatalf("%.0f allocations for %d rows (%.3f per row)", allocs, n, perRow)
 	}
 	t.Logf("%.0f allocations per Write of %d rows", allocs, n)
+}
+
+// withGeometry makes the writer's pages end at pageBytes bytes or
+// pageVals values and its dictionaries at dictMax bytes until the test
+// ends.
+func withGeometry(t testing.TB, pageB, pageVals, dictMax int) {
+	oldB, oldV, oldD := pageBytes, pageValues, dictMaxBytes
+	pageBytes, pageValues, dictMaxBytes = pageB, pageVals, dictMax
+	t.Cleanup(func() { pageBytes, pageValues, dictMaxBytes = oldB, oldV, oldD })
 }

@@ -1,11 +1,11 @@
 package pqio
 
 import (
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
 	"math"
-	"reflect"
 	"runtime"
 	"slices"
 	"strconv"
@@ -13,7 +13,9 @@ import (
 	"sync/atomic"
 	"unsafe"
 
-	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/deprecated"
+	"github.com/parquet-go/parquet-go/encoding/thrift"
+	"github.com/parquet-go/parquet-go/format"
 
 	"manyfold/io/table"
 )
@@ -24,34 +26,50 @@ type WriterOptions struct {
 	// empty), "zstd" or "none".
 	Compression string
 	// RowGroupRows is the number of rows in each row group but the last;
-	// 0 means 1<<20.
+	// 0 means 1<<20. It is ignored when Source is set.
 	RowGroupRows int
+	// Source, when set, holds the same rows as the output, in the same
+	// order, and the columns that Copy marks are copied from its column
+	// chunks of the same name instead of being encoded from the batches
+	// (whose columns at those positions are then ignored and may be
+	// empty). The output's row groups have the Source's row group sizes.
+	// The caller checks each copied column with Source.CanCopy first.
+	Source *Source
+	// Copy marks, by position in the schema, the columns copied from
+	// Source.
+	Copy []bool
 }
 
 // defaultRowGroupRows is the row group size when WriterOptions leaves it 0.
 const defaultRowGroupRows = 1 << 20
 
-// chunkRows is how many rows the writer converts and hands on at a time;
-// a page ends only between two such hand-overs (a variable so that tests
-// can make pages short).
+// chunkRows is how many rows of a batch the writer converts and hands to
+// its column encoders at a time (a variable so that tests can change it).
 var chunkRows = 4096
-
-// dictMaxBytes bounds a text column's dictionary within a row group; past it
-// the column's remaining pages in the row group are written PLAIN.
-const dictMaxBytes = 2 << 20
 
 // writer writes batches as a Parquet file. It implements table.Writer.
 type writer struct {
 	name   string // the output's name, for errors
+	out    io.Writer
+	off    int64 // bytes written
 	fields []table.Field
-	pw     *parquet.Writer
-	rgRows int
+	codec  codec
+	chunks []*chunk // per column; nil for a copied column
+	src    *Source
+	rgRows int   // row group size without a Source
+	rg     int   // index of the open row group
 	inRG   int   // rows in the open row group
 	rows   int64 // rows written so far
-	vals   [][]parquet.Value
-	text   [][]byte // per column: text of values converted to text
-	tends  []int    // ends of the values in text
-	err    error    // sticky: the first failure
+	groups []format.RowGroup
+	elems  []format.SchemaElement // the leaves
+	// Per column: conversion scratch.
+	ints   [][]int64
+	floats [][]float64
+	bools  [][]bool
+	nulls  [][]bool
+	text   [][]byte
+	tends  [][]int
+	err    error // sticky: the first failure
 	closed bool
 }
 
@@ -62,9 +80,7 @@ func NewWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (table.Wri
 	return newWriter(w, schema, opts)
 }
 
-// newWriter is NewWriter with extra parquet-go options, which tests use to
-// force small pages or dictionary fallback.
-func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions, extra ...parquet.WriterOption) (*writer, error) {
+func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, error) {
 	name := "parquet output"
 	if n, ok := w.(interface{ Name() string }); ok {
 		name = n.Name()
@@ -72,15 +88,8 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions, extra ...p
 	if schema == nil || len(schema.Fields) == 0 {
 		return nil, fmt.Errorf("%s: the schema has no columns", name)
 	}
-	var codec parquet.WriterOption
-	switch opts.Compression {
-	case "", "snappy":
-		codec = parquet.Compression(&parquet.Snappy)
-	case "zstd":
-		codec = parquet.Compression(&parquet.Zstd)
-	case "none", "uncompressed":
-		codec = parquet.Compression(&parquet.Uncompressed)
-	default:
+	cd, ok := codecs[opts.Compression]
+	if !ok {
 		return nil, fmt.Errorf("%s: unknown Parquet compression %q (want snappy, zstd or none)", name, opts.Compression)
 	}
 	rg := opts.RowGroupRows
@@ -90,53 +99,73 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions, extra ...p
 	if rg < 0 {
 		return nil, fmt.Errorf("%s: row group size %d is negative", name, rg)
 	}
-	root, err := schemaNode(schema)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %w", name, err)
+	n := len(schema.Fields)
+	if opts.Copy != nil && (len(opts.Copy) != n || opts.Source == nil) {
+		return nil, fmt.Errorf("%s: Copy marks %d columns of %d, or has no Source", name, len(opts.Copy), n)
 	}
-	options := append([]parquet.WriterOption{
-		parquet.NewSchema("manyfold", root),
-		codec,
-		parquet.MaxRowsPerRowGroup(int64(rg)),
-		parquet.DictionaryMaxBytes(dictMaxBytes),
-	}, extra...)
 	wr := &writer{
-		name:   name,
-		fields: append([]table.Field(nil), schema.Fields...),
-		rgRows: rg,
-		vals:   make([][]parquet.Value, len(schema.Fields)),
-		text:   make([][]byte, len(schema.Fields)),
+		name: name, out: w, fields: append([]table.Field(nil), schema.Fields...), codec: cd,
+		chunks: make([]*chunk, n), src: opts.Source, rgRows: rg,
+		ints: make([][]int64, n), floats: make([][]float64, n), bools: make([][]bool, n),
+		nulls: make([][]bool, n), text: make([][]byte, n), tends: make([][]int, n),
 	}
-	if err := wr.guard(func() error {
-		wr.pw = parquet.NewWriter(w, options...)
-		if n := len(wr.pw.ColumnWriters()); n != len(schema.Fields) {
-			return fmt.Errorf("the Parquet schema has %d columns for %d fields", n, len(schema.Fields))
+	seen := make(map[string]bool, n)
+	for i, f := range schema.Fields {
+		if f.Name == "" {
+			return nil, fmt.Errorf("%s: column %d has no name", name, i+1)
 		}
-		return nil
-	}); err != nil {
-		return nil, err
+		if seen[f.Name] {
+			return nil, fmt.Errorf("%s: column %q appears twice", name, f.Name)
+		}
+		seen[f.Name] = true
+		if opts.Copy != nil && opts.Copy[i] {
+			e, ok := opts.Source.elems[f.Name]
+			if !ok {
+				return nil, fmt.Errorf("%s: column %q is not a flat column of %s", name, f.Name, opts.Source.name)
+			}
+			wr.elems = append(wr.elems, e)
+			continue
+		}
+		if f.Kind > table.Bool {
+			return nil, fmt.Errorf("%s: column %q: unknown kind %v", name, f.Name, f.Kind)
+		}
+		rep := format.Required
+		if f.Nullable {
+			rep = format.Optional
+		}
+		e := format.SchemaElement{Type: thrift.New(physical(f.Kind)), RepetitionType: thrift.New(rep), Name: f.Name}
+		if f.Kind == table.String {
+			e.ConvertedType = thrift.New(deprecated.UTF8)
+			e.LogicalType = format.LogicalType{Value: &format.StringType{}}
+		}
+		wr.elems = append(wr.elems, e)
+		wr.chunks[i] = newChunk(f, cd)
 	}
-	for i := range wr.vals {
-		wr.vals[i] = make([]parquet.Value, chunkRows)
+	if err := wr.emit([]byte("PAR1")); err != nil {
+		return nil, err
 	}
 	return wr, nil
 }
 
-// guard runs f, turning a panic into an error naming the output.
-func (w *writer) guard(f func() error) (err error) {
-	defer func() {
-		if p := recover(); p != nil {
-			err = fmt.Errorf("%s: writing Parquet: %v", w.name, p)
-		}
-	}()
-	if err := f(); err != nil {
-		var de *table.DataError
-		if errors.As(err, &de) {
-			return err
-		}
+// emit writes b to the output.
+func (w *writer) emit(b []byte) error {
+	n, err := w.out.Write(b)
+	w.off += int64(n)
+	if err != nil {
 		return fmt.Errorf("%s: writing Parquet: %w", w.name, err)
 	}
 	return nil
+}
+
+// target returns the size of the open row group.
+func (w *writer) target() (int, error) {
+	if w.src == nil {
+		return w.rgRows, nil
+	}
+	if w.rg >= len(w.src.meta.RowGroups) {
+		return 0, fmt.Errorf("%s: more rows than %s holds (%d)", w.name, w.src.name, w.src.meta.NumRows)
+	}
+	return int(w.src.meta.RowGroups[w.rg].NumRows), nil
 }
 
 // Write appends the rows of b.
@@ -150,7 +179,7 @@ func (w *writer) Write(b *table.Batch) error {
 	if err := w.check(b); err != nil {
 		return err
 	}
-	w.err = w.guard(func() error { return w.write(b) })
+	w.err = w.write(b)
 	return w.err
 }
 
@@ -160,6 +189,9 @@ func (w *writer) check(b *table.Batch) error {
 		return fmt.Errorf("%s: batch has %d columns, the schema %d", w.name, len(b.Cols), len(w.fields))
 	}
 	for i := range b.Cols {
+		if w.chunks[i] == nil {
+			continue
+		}
 		if n := b.Cols[i].Len(); n != b.Rows {
 			return fmt.Errorf("%s: column %q holds %d rows in a batch of %d", w.name, w.fields[i].Name, n, b.Rows)
 		}
@@ -175,46 +207,45 @@ func (w *writer) write(b *table.Batch) error {
 	if first <= 0 {
 		first = w.rows + 1
 	}
-	cws := w.pw.ColumnWriters()
 	for start := 0; start < b.Rows; {
-		k := min(b.Rows-start, chunkRows, w.rgRows-w.inRG)
-		// Convert every column first, so that a bad value leaves no
-		// column longer than the others.
-		if err := w.columns(func(j int) error { return w.convert(j, &b.Cols[j], start, k, first) }); err != nil {
+		t, err := w.target()
+		if err != nil {
 			return err
 		}
-		// Each column writer encodes and compresses its own pages, so the
+		if w.inRG == t {
+			if err := w.flushRowGroup(); err != nil {
+				return err
+			}
+			continue
+		}
+		k := min(b.Rows-start, chunkRows, t-w.inRG)
+		// Each column encodes and compresses its own pages, so the
 		// columns are written side by side; the bytes do not depend on it.
 		if err := w.columns(func(j int) error {
-			if _, err := cws[j].WriteRowValues(w.vals[j][:k]); err != nil {
-				return fmt.Errorf("column %q: %w", w.fields[j].Name, err)
+			if w.chunks[j] == nil {
+				return nil
 			}
-			return nil
+			return w.add(j, &b.Cols[j], start, k, first)
 		}); err != nil {
 			return err
 		}
 		start += k
 		w.inRG += k
 		w.rows += int64(k)
-		if w.inRG == w.rgRows {
-			if err := w.pw.Flush(); err != nil {
+		if w.inRG == t {
+			if err := w.flushRowGroup(); err != nil {
 				return err
 			}
-			w.inRG = 0
 		}
 	}
 	return nil
 }
 
-// convert fills w.vals[j][:k] with rows start..start+k of c, converted to
+// add hands rows start..start+k of c to column j's encoder, converted to
 // field j's kind.
-func (w *writer) convert(j int, c *table.Column, start, k int, first int64) error {
+func (w *writer) add(j int, c *table.Column, start, k int, first int64) error {
 	f := &w.fields[j]
-	vals := w.vals[j][:k]
-	def := 0
-	if f.Nullable {
-		def = 1
-	}
+	ch := w.chunks[j]
 	bad := func(i int, err error) error {
 		return &table.DataError{File: w.name, Row: first + int64(start+i), Column: f.Name, Err: err}
 	}
@@ -228,107 +259,239 @@ func (w *writer) convert(j int, c *table.Column, start, k int, first int64) erro
 			nulls = nil
 		}
 	}
-	null := parquet.NullValue().Level(0, 0, j)
+	wrap := func(err error) error {
+		if err != nil {
+			return fmt.Errorf("%s: column %q: %w", w.name, f.Name, err)
+		}
+		return nil
+	}
 	// The common cases: the column's form matches the kind.
 	switch {
 	case f.Kind == table.Int64 && c.Form == table.FormInt64:
-		src := c.Ints[start : start+k]
-		for i, v := range src {
-			vals[i] = parquet.Int64Value(v).Level(0, def, j)
-		}
-		setNulls(vals, nulls, null)
-		return nil
+		return wrap(ch.appendInts(c.Ints[start:start+k], nulls))
 	case f.Kind == table.Float64 && c.Form == table.FormFloat64:
-		src := c.Floats[start : start+k]
-		for i, v := range src {
-			vals[i] = parquet.DoubleValue(v).Level(0, def, j)
-		}
-		setNulls(vals, nulls, null)
-		return nil
+		return wrap(ch.appendFloats(c.Floats[start:start+k], nulls))
 	case f.Kind == table.Bool && c.Form == table.FormBool:
-		src := c.Bools[start : start+k]
-		for i, v := range src {
-			vals[i] = parquet.BooleanValue(v).Level(0, def, j)
-		}
-		setNulls(vals, nulls, null)
-		return nil
-	case f.Kind == table.String && c.Form == table.FormText:
-		offs := c.Offsets[start : start+k+1]
-		for i := range vals {
-			vals[i] = parquet.ByteArrayValue(c.Data[offs[i]:offs[i+1]]).Level(0, def, j)
-		}
-		setNulls(vals, nulls, null)
-		return nil
+		return wrap(ch.appendBools(c.Bools[start:start+k], nulls))
 	case f.Kind == table.String && c.Form == table.FormDict:
-		for i, x := range c.Indices[start : start+k] {
-			if nulls != nil && nulls[i] {
-				vals[i] = null
-				continue
-			}
-			vals[i] = parquet.ByteArrayValue(c.Dict.Entry(int(x))).Level(0, def, j)
-		}
-		return nil
+		return wrap(ch.appendDict(c.Dict, c.Indices[start:start+k], nulls))
 	case f.Kind == table.String:
 		// Numbers and booleans are written as their canonical text.
-		buf := w.text[j][:0]
-		w.tends = grow(w.tends, k)
-		for i := range vals {
-			buf = c.AppendText(buf, start+i)
-			w.tends[i] = len(buf)
+		for i := 0; i < k; i++ {
+			if nulls != nil && nulls[i] {
+				if err := ch.null(); err != nil {
+					return wrap(err)
+				}
+				continue
+			}
+			var v []byte
+			if c.Form == table.FormText {
+				v = c.Data[c.Offsets[start+i]:c.Offsets[start+i+1]]
+			} else {
+				w.text[j] = c.AppendText(w.text[j][:0], start+i)
+				v = w.text[j]
+			}
+			if err := ch.appendText(v); err != nil {
+				return wrap(err)
+			}
 		}
-		w.text[j] = buf
-		from := 0
-		for i := range vals {
-			vals[i] = parquet.ByteArrayValue(buf[from:w.tends[i]]).Level(0, def, j)
-			from = w.tends[i]
-		}
-		setNulls(vals, nulls, null)
 		return nil
 	}
 	// Conversions between kinds: text parsed, numbers converted.
-	for i := range vals {
-		if nulls != nil && nulls[i] {
-			vals[i] = null
-			continue
+	nl := grow(w.nulls[j], k)
+	w.nulls[j] = nl
+	anyNull := false
+	for i := 0; i < k; i++ {
+		nl[i] = nulls != nil && nulls[i]
+		anyNull = anyNull || nl[i]
+	}
+	var err error
+	isNull := false
+	switch f.Kind {
+	case table.Int64:
+		vals := grow(w.ints[j], k)
+		w.ints[j] = vals
+		for i := range vals {
+			if !nl[i] {
+				if vals[i], isNull, err = intAt(c, start+i, f.Nullable); err != nil {
+					return bad(i, err)
+				}
+				nl[i], anyNull = isNull, anyNull || isNull
+			}
 		}
-		var v parquet.Value
-		var isNull bool
-		var err error
-		switch f.Kind {
-		case table.Int64:
-			var x int64
-			x, isNull, err = intAt(c, start+i, f.Nullable)
-			v = parquet.Int64Value(x)
-		case table.Float64:
-			var x float64
-			x, isNull, err = floatAt(c, start+i, f.Nullable)
-			v = parquet.DoubleValue(x)
-		case table.Bool:
-			var x bool
-			x, isNull, err = boolAt(c, start+i, f.Nullable)
-			v = parquet.BooleanValue(x)
-		default:
-			return fmt.Errorf("column %q: unknown kind %v", f.Name, f.Kind)
+		return wrap(ch.appendInts(vals, nullsOrNil(nl, anyNull)))
+	case table.Float64:
+		vals := grow(w.floats[j], k)
+		w.floats[j] = vals
+		for i := range vals {
+			if !nl[i] {
+				if vals[i], isNull, err = floatAt(c, start+i, f.Nullable); err != nil {
+					return bad(i, err)
+				}
+				nl[i], anyNull = isNull, anyNull || isNull
+			}
 		}
-		if err != nil {
-			return bad(i, err)
+		return wrap(ch.appendFloats(vals, nullsOrNil(nl, anyNull)))
+	case table.Bool:
+		vals := grow(w.bools[j], k)
+		w.bools[j] = vals
+		for i := range vals {
+			if !nl[i] {
+				if vals[i], isNull, err = boolAt(c, start+i, f.Nullable); err != nil {
+					return bad(i, err)
+				}
+				nl[i], anyNull = isNull, anyNull || isNull
+			}
 		}
-		if isNull {
-			vals[i] = null
-		} else {
-			vals[i] = v.Level(0, def, j)
-		}
+		return wrap(ch.appendBools(vals, nullsOrNil(nl, anyNull)))
+	}
+	return fmt.Errorf("%s: column %q: unknown kind %v", w.name, f.Name, f.Kind)
+}
+
+func nullsOrNil(nl []bool, any bool) []bool {
+	if any {
+		return nl
 	}
 	return nil
 }
 
-// setNulls puts the null value at the rows that nulls marks.
-func setNulls(vals []parquet.Value, nulls []bool, null parquet.Value) {
-	for i, n := range nulls {
-		if n {
-			vals[i] = null
+// flushRowGroup writes the open row group: copied chunks from the Source,
+// the others from their encoders, in schema order.
+func (w *writer) flushRowGroup() error {
+	n := len(w.fields)
+	dicts := make([][]byte, n)
+	dictSizes := make([]int64, n)
+	if err := w.columns(func(j int) error {
+		if w.chunks[j] == nil {
+			return nil
+		}
+		var err error
+		dicts[j], dictSizes[j], err = w.chunks[j].finish()
+		if err != nil {
+			return fmt.Errorf("%s: column %q: %w", w.name, w.fields[j].Name, err)
+		}
+		return nil
+	}); err != nil {
+		return err
+	}
+	rg := format.RowGroup{NumRows: int64(w.inRG), Columns: make([]format.ColumnChunk, n)}
+	for j, ch := range w.chunks {
+		start := w.off
+		if ch == nil {
+			cc, _, err := w.src.copyChunk(countWriter{w}, w.off, w.fields[j].Name, w.rg, w.codec)
+			if err != nil {
+				return fmt.Errorf("%s: copying: %w", w.name, err)
+			}
+			if len(w.src.meta.ColumnOrders) == 0 {
+				// Without the source's column orders its min_value and
+				// max_value have no defined meaning; the output declares
+				// type-defined orders, so they are dropped.
+				cc.MetaData.Statistics.MinValue, cc.MetaData.Statistics.MaxValue = nil, nil
+			}
+			rg.Columns[j] = cc
+			rg.TotalByteSize += cc.MetaData.TotalUncompressedSize
+			continue
+		}
+		md := format.ColumnMetaData{
+			Type:         physical(ch.kind),
+			PathInSchema: []string{w.fields[j].Name},
+			Codec:        w.codec.id,
+			NumValues:    ch.numValues,
+			Statistics:   ch.stats(),
+		}
+		encs := []format.Encoding{format.Plain, format.RLE}
+		if dicts[j] != nil {
+			encs = append(encs, format.RLEDictionary)
+			md.DictionaryPageOffset = w.off
+			md.EncodingStats = append(md.EncodingStats, format.PageEncodingStats{PageType: format.DictionaryPage, Encoding: format.Plain, Count: 1})
+			if err := w.emit(dicts[j]); err != nil {
+				return err
+			}
+		}
+		if ch.dictPages > 0 {
+			md.EncodingStats = append(md.EncodingStats, format.PageEncodingStats{PageType: format.DataPage, Encoding: format.RLEDictionary, Count: ch.dictPages})
+		}
+		if ch.plainPages > 0 {
+			md.EncodingStats = append(md.EncodingStats, format.PageEncodingStats{PageType: format.DataPage, Encoding: format.Plain, Count: ch.plainPages})
+		}
+		md.Encoding = encs
+		md.DataPageOffset = w.off
+		if err := w.emit(ch.pages); err != nil {
+			return err
+		}
+		md.TotalCompressedSize = w.off - start
+		md.TotalUncompressedSize = ch.uncomp + dictSizes[j]
+		rg.Columns[j] = format.ColumnChunk{FileOffset: start, MetaData: md}
+		rg.TotalByteSize += md.TotalUncompressedSize
+		ch.reset(ch.plainRG)
+	}
+	w.groups = append(w.groups, rg)
+	w.rg++
+	w.inRG = 0
+	return nil
+}
+
+// countWriter counts the bytes a copy writes into the writer's offset.
+type countWriter struct{ w *writer }
+
+func (c countWriter) Write(b []byte) (int, error) {
+	n, err := c.w.out.Write(b)
+	c.w.off += int64(n)
+	return n, err
+}
+
+// Close writes the last row group and the footer. It does not close the
+// underlying writer. After a failed Write it writes nothing more and
+// returns that failure.
+func (w *writer) Close() error {
+	if w.closed {
+		return nil
+	}
+	w.closed = true
+	if w.err != nil {
+		return w.err
+	}
+	w.err = w.close()
+	return w.err
+}
+
+func (w *writer) close() error {
+	if w.src != nil {
+		if w.rows != w.src.meta.NumRows {
+			return fmt.Errorf("%s: %d rows written, %s holds %d", w.name, w.rows, w.src.name, w.src.meta.NumRows)
+		}
+		// The open row group, and any empty ones after it.
+		for w.rg < len(w.src.meta.RowGroups) {
+			if err := w.flushRowGroup(); err != nil {
+				return err
+			}
+		}
+	} else if w.inRG > 0 {
+		if err := w.flushRowGroup(); err != nil {
+			return err
 		}
 	}
+	root := format.SchemaElement{Name: "manyfold", NumChildren: thrift.New(int32(len(w.elems)))}
+	meta := format.FileMetaData{
+		Version:   1,
+		Schema:    append([]format.SchemaElement{root}, w.elems...),
+		NumRows:   w.rows,
+		RowGroups: w.groups,
+		CreatedBy: "manyfold",
+	}
+	if meta.RowGroups == nil {
+		meta.RowGroups = []format.RowGroup{}
+	}
+	for range w.elems {
+		meta.ColumnOrders = append(meta.ColumnOrders, format.ColumnOrder{Value: &format.TypeDefinedOrder{}})
+	}
+	b, err := thrift.Marshal(&compact, &meta)
+	if err != nil {
+		return fmt.Errorf("%s: encoding the footer: %w", w.name, err)
+	}
+	b = binary.LittleEndian.AppendUint32(b, uint32(len(b)))
+	b = append(b, "PAR1"...)
+	return w.emit(b)
 }
 
 // bstr views b as a string without copying; the string must not outlive b.
@@ -460,90 +623,6 @@ func boolAt(c *table.Column, r int, nullable bool) (bool, bool, error) {
 	}
 	return v, false, nil
 }
-
-// Close writes the last row group and the footer. It does not close the
-// underlying writer. After a failed Write it writes nothing more and
-// returns that failure.
-func (w *writer) Close() error {
-	if w.closed {
-		return nil
-	}
-	w.closed = true
-	if w.err != nil {
-		return w.err
-	}
-	return w.guard(w.pw.Close)
-}
-
-// schemaNode builds the Parquet root node for schema, keeping its order.
-func schemaNode(schema *table.Schema) (parquet.Node, error) {
-	fields := make([]parquet.Field, len(schema.Fields))
-	seen := make(map[string]bool, len(schema.Fields))
-	for i, f := range schema.Fields {
-		if f.Name == "" {
-			return nil, fmt.Errorf("column %d has no name", i+1)
-		}
-		if seen[f.Name] {
-			return nil, fmt.Errorf("column %q appears twice", f.Name)
-		}
-		seen[f.Name] = true
-		var n parquet.Node
-		switch f.Kind {
-		case table.String:
-			n = parquet.Encoded(parquet.String(), &parquet.RLEDictionary)
-		case table.Int64:
-			n = parquet.Leaf(parquet.Int64Type)
-		case table.Float64:
-			n = parquet.Leaf(parquet.DoubleType)
-		case table.Bool:
-			n = parquet.Leaf(parquet.BooleanType)
-		default:
-			return nil, fmt.Errorf("column %q: unknown kind %v", f.Name, f.Kind)
-		}
-		if f.Nullable {
-			n = parquet.Optional(n)
-		} else {
-			n = parquet.Required(n)
-		}
-		fields[i] = orderedField{Node: n, name: f.Name}
-	}
-	return orderedGroup{fields: fields}, nil
-}
-
-// orderedGroup is a Parquet group whose fields keep the order they were
-// given in (parquet.Group, a map, sorts them by name).
-type orderedGroup struct {
-	parquet.Group // for Type, Optional, Encoding and the other defaults
-	fields        []parquet.Field
-}
-
-// Fields returns the group's fields in order.
-func (g orderedGroup) Fields() []parquet.Field { return g.fields }
-
-// String describes the group as a Parquet message.
-func (g orderedGroup) String() string { return parquet.NewSchema("manyfold", g).String() }
-
-// GoType returns the struct type that matches the group's fields.
-func (g orderedGroup) GoType() reflect.Type {
-	sf := make([]reflect.StructField, len(g.fields))
-	for i, f := range g.fields {
-		sf[i] = reflect.StructField{Name: "F" + strconv.Itoa(i), Type: f.GoType(), Tag: reflect.StructTag(`parquet:"` + f.Name() + `"`)}
-	}
-	return reflect.StructOf(sf)
-}
-
-// orderedField names one field of an orderedGroup.
-type orderedField struct {
-	parquet.Node
-	name string
-}
-
-// Name returns the field's name.
-func (f orderedField) Name() string { return f.name }
-
-// Value returns field i of a struct of the group's GoType; the writer
-// never calls it (it writes columns, not Go values).
-func (f orderedField) Value(base reflect.Value) reflect.Value { return reflect.Value{} }
 
 // columns calls f for every column, on up to GOMAXPROCS goroutines, and
 // returns the error of the lowest-numbered column that failed.

@@ -1,0 +1,496 @@
+package pqio
+
+import (
+	"bytes"
+	"encoding/binary"
+	"fmt"
+	"math"
+
+	"github.com/klauspost/compress/s2"
+	"github.com/parquet-go/parquet-go/compress/zstd"
+	"github.com/parquet-go/parquet-go/encoding/thrift"
+	"github.com/parquet-go/parquet-go/format"
+
+	"manyfold/io/table"
+)
+
+// Page and dictionary geometry of the columns the writer encodes
+// (variables so that tests can make pages and dictionaries small).
+var (
+	// pageBytes ends a data page once its encoded values reach it.
+	pageBytes = 1 << 20
+	// pageValues ends a data page once it holds this many values.
+	pageValues = 1 << 17
+	// dictMaxBytes bounds a text column's dictionary within a row group;
+	// past it the column's remaining pages in the row group are PLAIN, and
+	// its next row group starts PLAIN too.
+	dictMaxBytes = 1 << 20
+)
+
+// codec compresses pages.
+type codec struct {
+	id  format.CompressionCodec
+	enc func(dst, src []byte) ([]byte, error)
+}
+
+var zstdCodec zstd.Codec
+
+// codecs maps the names WriterOptions.Compression takes to codecs. Snappy
+// pages come from the Snappy-compatible block encoder of
+// github.com/klauspost/compress/s2 (its fast mode); zstd from that module's
+// zstd encoder at its default level.
+var codecs = map[string]codec{
+	"":             {format.Snappy, func(dst, src []byte) ([]byte, error) { return s2.EncodeSnappy(dst[:cap(dst)], src), nil }},
+	"snappy":       {format.Snappy, func(dst, src []byte) ([]byte, error) { return s2.EncodeSnappy(dst[:cap(dst)], src), nil }},
+	"zstd":         {format.Zstd, zstdCodec.Encode},
+	"none":         {format.Uncompressed, func(dst, src []byte) ([]byte, error) { return append(dst[:0], src...), nil }},
+	"uncompressed": {format.Uncompressed, func(dst, src []byte) ([]byte, error) { return append(dst[:0], src...), nil }},
+}
+
+// chunk encodes the values of one column for one row group as Parquet data
+// pages (format version 1 pages: definition levels, when the column is
+// optional, in the RLE / bit-packing hybrid with a 4-byte length prefix,
+// then the values), compressed page by page. Text is dictionary encoded
+// (RLE_DICTIONARY indices, the dictionary PLAIN in a dictionary page ahead
+// of the data pages) until the dictionary outgrows dictMaxBytes; everything
+// else, and text past that point, is PLAIN. A chunk records the statistics
+// the column chunk's metadata carries: null count and, for numbers and
+// text, the minimum and maximum.
+type chunk struct {
+	kind     table.Kind
+	nullable bool
+	codec    codec
+
+	// The page being filled.
+	defs     []uint32 // definition level of each value (optional columns)
+	vals     []byte   // PLAIN-encoded values, not for bool or dictionary pages
+	bools    []uint32 // bool values as 0 or 1
+	idx      []uint32 // dictionary indices
+	pageN    int      // values (nulls included) in the page
+	pageDict bool     // the page holds dictionary indices
+
+	// The dictionary of the row group.
+	useDict  bool             // text values still go to the dictionary
+	plainRG  bool             // the dictionary overflowed in this row group
+	dict     map[string]int32 // entry -> index
+	dictVals []byte           // PLAIN-encoded entries
+	dictN    int
+	srcID    uint64  // Dict.ID the cache below belongs to
+	srcMap   []int32 // input dictionary entry -> our index, -1 unknown
+
+	// The encoded chunk.
+	pages      []byte // compressed data pages with their headers
+	uncomp     int64  // uncompressed size of the pages, headers included
+	numValues  int64
+	nulls      int64
+	plainPages int32
+	dictPages  int32 // data pages of dictionary indices
+	hasMin     bool
+	minI, maxI int64
+	minF, maxF float64
+	minB, maxB []byte
+	body, cbuf []byte // scratch
+}
+
+func newChunk(f table.Field, c codec) *chunk {
+	ch := &chunk{kind: f.Kind, nullable: f.Nullable, codec: c}
+	ch.reset(false)
+	return ch
+}
+
+// reset empties the chunk for the next row group; plain starts it without a
+// dictionary (the last row group's overflowed).
+func (c *chunk) reset(plain bool) {
+	c.defs, c.vals, c.bools, c.idx = c.defs[:0], c.vals[:0], c.bools[:0], c.idx[:0]
+	c.pageN = 0
+	c.useDict = c.kind == table.String && !plain
+	c.pageDict = c.useDict
+	c.plainRG = false
+	if c.useDict {
+		if c.dict == nil || len(c.dict) > 0 {
+			c.dict = make(map[string]int32)
+		}
+	}
+	c.dictVals, c.dictN = c.dictVals[:0], 0
+	c.srcID, c.srcMap = 0, c.srcMap[:0]
+	c.pages, c.uncomp = c.pages[:0], 0
+	c.numValues, c.nulls, c.plainPages, c.dictPages = 0, 0, 0, 0
+	c.hasMin = false
+}
+
+// full reports whether the page has reached its size: pageValues values,
+// or pageBytes bytes of values (dictionary indices counted at 4 bytes,
+// booleans at 1 bit).
+func (c *chunk) full() bool {
+	return c.pageN >= pageValues || len(c.vals)+4*len(c.idx)+len(c.bools)/8 >= pageBytes
+}
+
+// null appends a null.
+func (c *chunk) null() error {
+	c.defs = append(c.defs, 0)
+	c.pageN++
+	c.nulls++
+	if c.full() {
+		return c.flushPage()
+	}
+	return nil
+}
+
+// present marks one more present value.
+func (c *chunk) present() {
+	if c.nullable {
+		c.defs = append(c.defs, 1)
+	}
+	c.pageN++
+}
+
+// appendInts appends vals; nulls, when not nil, marks rows to write as nulls
+// (their slots in vals are ignored).
+func (c *chunk) appendInts(vals []int64, nulls []bool) error {
+	for i, v := range vals {
+		if nulls != nil && nulls[i] {
+			if err := c.null(); err != nil {
+				return err
+			}
+			continue
+		}
+		c.vals = binary.LittleEndian.AppendUint64(c.vals, uint64(v))
+		c.present()
+		if !c.hasMin {
+			c.minI, c.maxI, c.hasMin = v, v, true
+		} else if v < c.minI {
+			c.minI = v
+		} else if v > c.maxI {
+			c.maxI = v
+		}
+		if c.full() {
+			if err := c.flushPage(); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// appendFloats is appendInts for float64 values. NaN takes no part in the
+// minimum and maximum (Parquet format, statistics of floating-point
+// columns); a zero minimum is written as -0 and a zero maximum as +0.
+func (c *chunk) appendFloats(vals []float64, nulls []bool) error {
+	for i, v := range vals {
+		if nulls != nil && nulls[i] {
+			if err := c.null(); err != nil {
+				return err
+			}
+			continue
+		}
+		c.vals = binary.LittleEndian.AppendUint64(c.vals, math.Float64bits(v))
+		c.present()
+		if v == v {
+			if !c.hasMin {
+				c.minF, c.maxF, c.hasMin = v, v, true
+			} else if v < c.minF {
+				c.minF = v
+			} else if v > c.maxF {
+				c.maxF = v
+			}
+		}
+		if c.full() {
+			if err := c.flushPage(); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// appendBools is appendInts for booleans.
+func (c *chunk) appendBools(vals []bool, nulls []bool) error {
+	for i, v := range vals {
+		if nulls != nil && nulls[i] {
+			if err := c.null(); err != nil {
+				return err
+			}
+			continue
+		}
+		var b uint32
+		if v {
+			b = 1
+		}
+		c.bools = append(c.bools, b)
+		c.present()
+		if c.full() {
+			if err := c.flushPage(); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// appendText appends one text value.
+func (c *chunk) appendText(v []byte) error {
+	if c.useDict {
+		x, ok, err := c.index(v)
+		if err != nil {
+			return err
+		}
+		if ok {
+			return c.appendIndex(x)
+		}
+	}
+	return c.appendPlain(v)
+}
+
+// index returns the dictionary index of v, adding v if it is new; ok is
+// false when the dictionary is full, in which case the chunk has fallen
+// back to PLAIN for the rest of the row group.
+func (c *chunk) index(v []byte) (x int32, ok bool, err error) {
+	if x, ok := c.dict[bstr(v)]; ok {
+		return x, true, nil
+	}
+	if len(c.dictVals)+4+len(v) > dictMaxBytes {
+		return 0, false, c.fallBack()
+	}
+	x = int32(c.dictN)
+	c.dict[string(v)] = x
+	c.dictVals = binary.LittleEndian.AppendUint32(c.dictVals, uint32(len(v)))
+	c.dictVals = append(c.dictVals, v...)
+	c.dictN++
+	// Every value of a dictionary page is an entry, so the entries' bounds
+	// are the values' bounds.
+	c.textStats(v)
+	return x, true, nil
+}
+
+// appendIndex appends a value by its dictionary index.
+func (c *chunk) appendIndex(x int32) error {
+	c.idx = append(c.idx, uint32(x))
+	c.present()
+	if c.full() {
+		return c.flushPage()
+	}
+	return nil
+}
+
+// appendDict appends the rows of a dictionary-form column, translating each
+// input dictionary entry to our index once per input dictionary rather than
+// once per row.
+func (c *chunk) appendDict(d *table.Dict, idx []int32, nulls []bool) error {
+	for i, e := range idx {
+		if nulls != nil && nulls[i] {
+			if err := c.null(); err != nil {
+				return err
+			}
+			continue
+		}
+		if e < 0 || int(e) >= d.Len() {
+			return fmt.Errorf("dictionary index %d out of range [0, %d)", e, d.Len())
+		}
+		v := d.Entry(int(e))
+		if !c.useDict {
+			if err := c.appendPlain(v); err != nil {
+				return err
+			}
+			continue
+		}
+		if d.ID == 0 || d.ID != c.srcID || len(c.srcMap) != d.Len() {
+			c.srcID = d.ID
+			c.srcMap = c.srcMap[:0]
+			for range d.Len() {
+				c.srcMap = append(c.srcMap, -1)
+			}
+		}
+		x := c.srcMap[e]
+		if x < 0 {
+			var ok bool
+			var err error
+			if x, ok, err = c.index(v); err != nil {
+				return err
+			}
+			if !ok {
+				if err := c.appendPlain(v); err != nil {
+					return err
+				}
+				continue
+			}
+			c.srcMap[e] = x
+		}
+		if err := c.appendIndex(x); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// appendPlain appends a text value PLAIN.
+func (c *chunk) appendPlain(v []byte) error {
+	c.textStats(v)
+	c.vals = binary.LittleEndian.AppendUint32(c.vals, uint32(len(v)))
+	c.vals = append(c.vals, v...)
+	c.present()
+	if c.full() {
+		return c.flushPage()
+	}
+	return nil
+}
+
+// fallBack ends dictionary encoding for the rest of the row group.
+func (c *chunk) fallBack() error {
+	if err := c.flushPage(); err != nil {
+		return err
+	}
+	c.useDict, c.pageDict, c.plainRG = false, false, true
+	return nil
+}
+
+// textStats folds v into the minimum and maximum (unsigned byte order).
+func (c *chunk) textStats(v []byte) {
+	switch {
+	case !c.hasMin:
+		c.minB = append(c.minB[:0], v...)
+		c.maxB = append(c.maxB[:0], v...)
+		c.hasMin = true
+	case bytes.Compare(v, c.minB) < 0:
+		c.minB = append(c.minB[:0], v...)
+	case bytes.Compare(v, c.maxB) > 0:
+		c.maxB = append(c.maxB[:0], v...)
+	}
+}
+
+var compact thrift.CompactProtocol
+
+// flushPage encodes, compresses and appends the page being filled.
+func (c *chunk) flushPage() error {
+	if c.pageN == 0 {
+		return nil
+	}
+	body, own := c.body[:0], true
+	if c.nullable {
+		body = append(body, 0, 0, 0, 0)
+		body = appendHybrid(body, c.defs, 1)
+		binary.LittleEndian.PutUint32(body, uint32(len(body)-4))
+	}
+	enc := format.Plain
+	switch {
+	case c.pageDict:
+		enc = format.RLEDictionary
+		var top uint32
+		for _, x := range c.idx {
+			top = max(top, x)
+		}
+		w := bitWidth(top)
+		body = append(body, byte(w))
+		body = appendHybrid(body, c.idx, w)
+		c.dictPages++
+	case c.kind == table.Bool:
+		body = packBits(body, c.bools, len(c.bools), 1)
+		c.plainPages++
+	default:
+		if c.nullable {
+			body = append(body, c.vals...)
+		} else {
+			body, own = c.vals, false
+		}
+		c.plainPages++
+	}
+	comp, err := c.codec.enc(c.cbuf[:0], body)
+	if err != nil {
+		return fmt.Errorf("compressing a page: %w", err)
+	}
+	h := format.PageHeader{
+		Type:                 format.DataPage,
+		UncompressedPageSize: int32(len(body)),
+		CompressedPageSize:   int32(len(comp)),
+		DataPageHeader: thrift.New(format.DataPageHeader{
+			NumValues:               int32(c.pageN),
+			Encoding:                enc,
+			DefinitionLevelEncoding: format.RLE,
+			RepetitionLevelEncoding: format.RLE,
+		}),
+	}
+	hb, err := thrift.Marshal(&compact, &h)
+	if err != nil {
+		return fmt.Errorf("encoding a page header: %w", err)
+	}
+	c.pages = append(c.pages, hb...)
+	c.pages = append(c.pages, comp...)
+	c.uncomp += int64(len(hb) + len(body))
+	c.numValues += int64(c.pageN)
+	if own {
+		c.body = body
+	}
+	c.cbuf = comp
+	c.defs, c.vals, c.bools, c.idx = c.defs[:0], c.vals[:0], c.bools[:0], c.idx[:0]
+	c.pageN = 0
+	c.pageDict = c.useDict
+	return nil
+}
+
+// finish completes the chunk: it flushes the last page and returns the
+// dictionary page (header and compressed entries; nil without one).
+func (c *chunk) finish() ([]byte, int64, error) {
+	if err := c.flushPage(); err != nil {
+		return nil, 0, err
+	}
+	if c.dictN == 0 {
+		return nil, 0, nil
+	}
+	comp, err := c.codec.enc(nil, c.dictVals)
+	if err != nil {
+		return nil, 0, fmt.Errorf("compressing a dictionary page: %w", err)
+	}
+	h := format.PageHeader{
+		Type:                 format.DictionaryPage,
+		UncompressedPageSize: int32(len(c.dictVals)),
+		CompressedPageSize:   int32(len(comp)),
+		DictionaryPageHeader: thrift.New(format.DictionaryPageHeader{
+			NumValues: int32(c.dictN),
+			Encoding:  format.Plain,
+		}),
+	}
+	hb, err := thrift.Marshal(&compact, &h)
+	if err != nil {
+		return nil, 0, fmt.Errorf("encoding a page header: %w", err)
+	}
+	return append(hb, comp...), int64(len(hb) + len(c.dictVals)), nil
+}
+
+// physical returns the Parquet physical type of a kind.
+func physical(k table.Kind) format.Type {
+	switch k {
+	case table.Int64:
+		return format.Int64
+	case table.Float64:
+		return format.Double
+	case table.Bool:
+		return format.Boolean
+	}
+	return format.ByteArray
+}
+
+// stats returns the chunk's statistics.
+func (c *chunk) stats() format.Statistics {
+	s := format.Statistics{NullCount: c.nulls}
+	if !c.hasMin {
+		return s
+	}
+	switch c.kind {
+	case table.Int64:
+		s.MinValue = binary.LittleEndian.AppendUint64(nil, uint64(c.minI))
+		s.MaxValue = binary.LittleEndian.AppendUint64(nil, uint64(c.maxI))
+	case table.Float64:
+		lo, hi := c.minF, c.maxF
+		if lo == 0 {
+			lo = math.Copysign(0, -1)
+		}
+		if hi == 0 {
+			hi = math.Copysign(0, 1)
+		}
+		s.MinValue = binary.LittleEndian.AppendUint64(nil, math.Float64bits(lo))
+		s.MaxValue = binary.LittleEndian.AppendUint64(nil, math.Float64bits(hi))
+	case table.String:
+		s.MinValue = append([]byte(nil), c.minB...)
+		s.MaxValue = append([]byte(nil), c.maxB...)
+	}
+	return s
+}

@@ -1,0 +1,272 @@
+package pqio
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+
+	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/encoding/thrift"
+	"github.com/parquet-go/parquet-go/format"
+
+	"manyfold/io/table"
+)
+
+// Source is a Parquet file whose column chunks a writer copies into its
+// output as they are, still encoded and compressed, instead of decoding and
+// encoding their values again. A writer given a Source writes row groups of
+// the Source's row group sizes, so that every copied chunk lands in a row
+// group of the same rows. Pages are copied byte for byte when their codec
+// is the output's, and otherwise decompressed and compressed again with the
+// output's codec, page by page, their values untouched.
+type Source struct {
+	name   string
+	f      *os.File
+	meta   *format.FileMetaData
+	leaves map[string]int // name of a top-level primitive column -> its column index
+	elems  map[string]format.SchemaElement
+	nested bool // the schema has groups: only the flat leaves before the first group are copyable
+}
+
+// OpenSource opens the Parquet file at path as a Source.
+func OpenSource(path string) (*Source, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	st, err := f.Stat()
+	if err != nil {
+		f.Close()
+		return nil, err
+	}
+	pf, err := parquet.OpenFile(f, st.Size(), parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true), parquet.ReadBufferSize(4096))
+	if err != nil {
+		f.Close()
+		return nil, fmt.Errorf("%s: %w: %v", path, table.ErrCorrupt, err)
+	}
+	s := &Source{name: path, f: f, meta: pf.Metadata(), leaves: map[string]int{}, elems: map[string]format.SchemaElement{}}
+	// A flat schema is the root followed by its leaves. Leaves of nested
+	// groups are not copied (the output is flat).
+	sch := s.meta.Schema
+	if len(sch) == 0 {
+		f.Close()
+		return nil, fmt.Errorf("%s: %w: no schema", path, table.ErrCorrupt)
+	}
+	col := 0
+	for i := 1; i < len(sch); i++ {
+		e := sch[i]
+		if n, ok := e.NumChildren.Get(); ok && n > 0 {
+			s.nested = true
+			break
+		}
+		if rep, ok := e.RepetitionType.Get(); ok && rep == format.Repeated {
+			s.nested = true
+			break
+		}
+		s.leaves[e.Name] = col
+		s.elems[e.Name] = e
+		col++
+	}
+	return s, nil
+}
+
+// Close closes the file.
+func (s *Source) Close() error { return s.f.Close() }
+
+// Name returns the file's path.
+func (s *Source) Name() string { return s.name }
+
+// NumRows returns the file's row count.
+func (s *Source) NumRows() int64 { return s.meta.NumRows }
+
+// CanCopy reports whether the column of that name can be copied: a
+// top-level primitive column whose chunks are all whole and unencrypted.
+// It reads the page headers of every chunk of the column and checks that
+// they fill the chunk and hold its values.
+func (s *Source) CanCopy(name string) error {
+	col, ok := s.leaves[name]
+	if !ok {
+		return fmt.Errorf("%s: column %q is not a top-level primitive column", s.name, name)
+	}
+	for g := range s.meta.RowGroups {
+		rg := &s.meta.RowGroups[g]
+		if col >= len(rg.Columns) {
+			return fmt.Errorf("%s: row group %d has %d columns", s.name, g, len(rg.Columns))
+		}
+		cc := &rg.Columns[col]
+		if cc.FilePath != "" || cc.CryptoMetadata.Value != nil || len(cc.EncryptedColumnMetadata) > 0 {
+			return fmt.Errorf("%s: column %q: chunks in other files or encrypted are not copied", s.name, name)
+		}
+		start, size := chunkRange(&cc.MetaData)
+		var values int64
+		err := s.walk(start, size, func(h *format.PageHeader, hlen int, pos int64) error {
+			if dp, ok := h.DataPageHeader.Get(); ok {
+				values += int64(dp.NumValues)
+			} else if dp, ok := h.DataPageHeaderV2.Get(); ok {
+				values += int64(dp.NumValues)
+			}
+			return nil
+		})
+		if err != nil {
+			return fmt.Errorf("%s: column %q, row group %d: %w", s.name, name, g, err)
+		}
+		if values != cc.MetaData.NumValues {
+			return fmt.Errorf("%s: column %q, row group %d: pages hold %d values, the metadata says %d", s.name, name, g, values, cc.MetaData.NumValues)
+		}
+	}
+	return nil
+}
+
+// chunkRange returns where a column chunk's pages start (its dictionary
+// page, if it has one) and how many bytes they take.
+func chunkRange(md *format.ColumnMetaData) (int64, int64) {
+	start := md.DataPageOffset
+	if md.DictionaryPageOffset > 0 && md.DictionaryPageOffset < start {
+		start = md.DictionaryPageOffset
+	}
+	return start, md.TotalCompressedSize
+}
+
+// maxHeader bounds a page header's size (statistics included).
+const maxHeader = 16 << 20
+
+// walk calls f with each page header of the byte range [start,
+// start+size), its encoded length and position, and checks that the pages
+// fill the range exactly.
+func (s *Source) walk(start, size int64, f func(h *format.PageHeader, hlen int, pos int64) error) error {
+	end := start + size
+	buf := make([]byte, 256)
+	for pos := start; pos < end; {
+		h, hlen, err := s.header(pos, end, &buf)
+		if err != nil {
+			return err
+		}
+		if h.CompressedPageSize < 0 {
+			return fmt.Errorf("page at byte %d: negative size", pos)
+		}
+		if err := f(h, hlen, pos); err != nil {
+			return err
+		}
+		pos += int64(hlen) + int64(h.CompressedPageSize)
+		if pos > end {
+			return fmt.Errorf("page at byte %d runs past the chunk's end", pos)
+		}
+	}
+	return nil
+}
+
+// header decodes the page header at pos (before end), growing *buf as
+// needed.
+func (s *Source) header(pos, end int64, buf *[]byte) (*format.PageHeader, int, error) {
+	for {
+		n := min(int64(len(*buf)), end-pos)
+		b := (*buf)[:n]
+		if _, err := s.f.ReadAt(b, pos); err != nil && !errors.Is(err, io.EOF) {
+			return nil, 0, err
+		}
+		r := bytes.NewReader(b)
+		h := new(format.PageHeader)
+		err := thrift.NewDecoder(compact.NewReader(r)).Decode(h)
+		if err == nil {
+			return h, int(n) - r.Len(), nil
+		}
+		if n == end-pos || len(*buf) >= maxHeader {
+			return nil, 0, fmt.Errorf("page header at byte %d: %w: %v", pos, table.ErrCorrupt, err)
+		}
+		*buf = make([]byte, 4*len(*buf))
+	}
+}
+
+// copyChunk writes the chunk of column name in row group g to w at offset
+// off, with codec out, and returns its metadata for the output's footer.
+func (s *Source) copyChunk(w io.Writer, off int64, name string, g int, out codec) (format.ColumnChunk, int64, error) {
+	col := s.leaves[name]
+	cc := s.meta.RowGroups[g].Columns[col]
+	md := cc.MetaData
+	start, size := chunkRange(&md)
+	res := format.ColumnChunk{FileOffset: off, MetaData: md}
+	rmd := &res.MetaData
+	rmd.IndexPageOffset, rmd.BloomFilterOffset, rmd.BloomFilterLength = 0, 0, 0
+	rmd.PathInSchema = []string{name}
+	if md.Codec == out.id {
+		if _, err := io.Copy(w, io.NewSectionReader(s.f, start, size)); err != nil {
+			return res, 0, err
+		}
+		shift := off - start
+		rmd.DataPageOffset += shift
+		if md.DictionaryPageOffset > 0 {
+			rmd.DictionaryPageOffset += shift
+		}
+		return res, size, nil
+	}
+	// Transcode: page by page, decompress and compress again.
+	dec := parquet.LookupCompressionCodec(md.Codec)
+	if dec == nil {
+		return res, 0, fmt.Errorf("%s: column %q: unknown codec %v", s.name, name, md.Codec)
+	}
+	var raw, plain, comp []byte
+	written := int64(0)
+	var uncomp int64
+	dataOff, dictOff := int64(-1), int64(0)
+	err := s.walk(start, size, func(h *format.PageHeader, hlen int, pos int64) error {
+		raw = grow(raw, int(h.CompressedPageSize))
+		if _, err := s.f.ReadAt(raw, pos+int64(hlen)); err != nil {
+			return err
+		}
+		keep := 0 // leading bytes that are not compressed (v2 levels)
+		compressed := true
+		if v2, ok := h.DataPageHeaderV2.Get(); ok {
+			keep = int(v2.DefinitionLevelsByteLength + v2.RepetitionLevelsByteLength)
+			if keep > len(raw) || keep < 0 {
+				return fmt.Errorf("page at byte %d: %w: level lengths past the page", pos, table.ErrCorrupt)
+			}
+			if c, ok := v2.IsCompressed.Get(); ok && !c {
+				compressed = false
+			}
+		}
+		var err error
+		body := raw[keep:]
+		if compressed && md.Codec != format.Uncompressed {
+			if plain, err = dec.Decode(plain[:0], body); err != nil {
+				return fmt.Errorf("page at byte %d: %w: %v", pos, table.ErrCorrupt, err)
+			}
+			body = plain
+		}
+		if compressed {
+			if comp, err = out.enc(comp[:0], body); err != nil {
+				return err
+			}
+			body = comp
+		}
+		nh := *h
+		nh.CRC = 0
+		nh.CompressedPageSize = int32(keep + len(body))
+		hb, err := thrift.Marshal(&compact, &nh)
+		if err != nil {
+			return err
+		}
+		switch {
+		case h.Type == format.DictionaryPage:
+			dictOff = off + written
+		case dataOff < 0:
+			dataOff = off + written
+		}
+		for _, part := range [][]byte{hb, raw[:keep], body} {
+			if _, err := w.Write(part); err != nil {
+				return err
+			}
+			written += int64(len(part))
+		}
+		uncomp += int64(len(hb)) + int64(h.UncompressedPageSize)
+		return nil
+	})
+	if err != nil {
+		return res, 0, fmt.Errorf("%s: column %q, row group %d: %w", s.name, name, g, err)
+	}
+	rmd.Codec = out.id
+	rmd.TotalCompressedSize, rmd.TotalUncompressedSize = written, uncomp
+	rmd.DataPageOffset, rmd.DictionaryPageOffset = dataOff, dictOff
+	return res, written, nil
+}

@@ -6,7 +6,7 @@ import (
 	"time"
 
 	"manyfold/encoders/pipeline"
-	"manyfold/io/tableio"
+	"manyfold/io/table"
 )
 
 const applyUsage = `Usage: manyfold apply FILE --tables DIR --out OUT [flags]
@@ -49,28 +49,20 @@ func runApply(args []string) error {
 	if err != nil {
 		return err
 	}
-	r, err := tableio.Open(file, ropts)
-	if err != nil {
-		return err
-	}
-	defer r.Close()
 	name := file
 	if file == "-" {
 		name = "stdin"
 	}
-	if err := m.CheckInput(name, r.Schema(), *tables); err != nil {
-		return err
-	}
-	schema, _, _, err := m.OutputSchema(name, r.Schema(), true)
+	o, err := openOutput(file, name, of.out, ropts, wopts, m, true, func(s *table.Schema) error {
+		return m.CheckInput(name, s, *tables)
+	})
 	if err != nil {
 		return err
 	}
-	w, err := tableio.Create(of.out, schema, wopts)
-	if err != nil {
-		return &outputError{err}
-	}
+	defer o.close()
+	w := o.w
 	pr := newProgress("apply")
-	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Apply: true, Progress: pr.update, Threads: of.threads})
+	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Apply: true, Progress: pr.update, Threads: of.threads, Input: o.full})
 	pr.done()
 	if err != nil {
 		w.Abort()

@@ -174,19 +174,12 @@ func runEncode(args []string) (err error) {
 		return usagef("--output logodds needs a binary target; %s is %s", sp.Target, m.Task)
 	}
 
-	r, err = tableio.Open(path, ropts)
+	o, err := openOutput(path, name, of.out, ropts, wopts, m, false, nil)
 	if err != nil {
 		return err
 	}
-	defer r.Close()
-	schema, _, _, err := m.OutputSchema(name, r.Schema(), false)
-	if err != nil {
-		return err
-	}
-	w, err := tableio.Create(of.out, schema, wopts)
-	if err != nil {
-		return &outputError{err}
-	}
+	defer o.close()
+	w := o.w
 	// The mapping tables depend on the fit alone: they are written on a
 	// core of their own while the second pass runs.
 	type staged struct {
@@ -199,7 +192,7 @@ func runEncode(args []string) (err error) {
 		tablesDone <- staged{st, err}
 	}()
 	pr = newProgress("encode")
-	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads})
+	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads, Input: o.full})
 	pr.done()
 	saved := <-tablesDone
 	if err != nil || saved.err != nil {

@@ -19,6 +19,11 @@ type EncodeOptions struct {
 	Apply    bool
 	Progress func(rows int64)
 	Threads  int // columns processed at once; below 2 means one at a time
+	// Input, when not nil, is the input's full schema, of which r yields
+	// only some columns (see Reader.Select): the kept columns that r does
+	// not yield are written as empty columns, for a writer that copies
+	// them from the input itself.
+	Input *table.Schema
 }
 
 // Summary describes an encoding pass.
@@ -112,9 +117,19 @@ func (m *Model) OutputSchema(file string, in *table.Schema, apply bool) (*table.
 func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summary, error) {
 	schema := r.Schema()
 	sum := Summary{Unseen: make([]int64, len(m.Cols))}
-	_, kept, outs, err := m.OutputSchema(opt.File, schema, opt.Apply)
+	full := schema
+	if opt.Input != nil {
+		full = opt.Input
+	}
+	_, kept, outs, err := m.OutputSchema(opt.File, full, opt.Apply)
 	if err != nil {
 		return sum, err
+	}
+	// kept[i] indexes the full schema; keptAt[i] the batches, or -1 for
+	// a column the batches do not hold.
+	keptAt := make([]int, len(kept))
+	for i, k := range kept {
+		keptAt[i] = schema.Index(full.Fields[k].Name)
 	}
 	sp := &m.Spec
 	idx := make([]int, len(m.Cols))
@@ -188,7 +203,11 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 				return err
 			}
 		}
-		for i, k := range kept {
+		for i, k := range keptAt {
+			if k < 0 {
+				batch.Cols[i] = table.Column{}
+				continue
+			}
 			batch.Cols[i] = b.Cols[k]
 		}
 		colSlots := make([][]int32, len(m.Cols))
@@ -426,3 +445,7 @@ func ints(c *table.Column, n int) []int64 {
 	c.Ints = c.Ints[:n]
 	return c.Ints
 }
+
+// GroupColumn returns the column whose values make the folds (--fold-by
+// group=COL), or "".
+func (sp *Spec) GroupColumn() string { return sp.groupColumn() }

@@ -1,0 +1,101 @@
+package main
+
+import (
+	"manyfold/encoders/pipeline"
+	"manyfold/io/pqio"
+	"manyfold/io/table"
+	"manyfold/io/tableio"
+)
+
+// output is the pass that writes the encoded table: its reader, the
+// writer, and what Encode needs to know of the columns the writer copies.
+type output struct {
+	r    table.Reader
+	w    *tableio.Output
+	full *table.Schema // the input's schema before any Select
+	src  *pqio.Source  // nil when nothing is copied
+}
+
+// openOutput opens the input at path for the writing pass and creates the
+// output. When both are Parquet, the kept input columns are copied into the
+// output chunk by chunk as they are, still encoded and compressed (see
+// pqio.Source), and the reader is restricted to the columns the encodings
+// need; a kept column that cannot be copied (nested, or its pages do not
+// check out) is read and written again as before. check, when not nil,
+// vets the input's schema first. The caller calls close and commits or
+// aborts w.
+func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio.WriteOptions, m *pipeline.Model, apply bool, check func(*table.Schema) error) (*output, error) {
+	r, err := tableio.Open(path, ropts)
+	if err != nil {
+		return nil, err
+	}
+	o := &output{r: r, full: &table.Schema{Fields: append([]table.Field(nil), r.Schema().Fields...)}}
+	fail := func(err error) (*output, error) {
+		o.close()
+		return nil, err
+	}
+	if check != nil {
+		if err := check(o.full); err != nil {
+			return fail(err)
+		}
+	}
+	schema, kept, _, err := m.OutputSchema(name, o.full, apply)
+	if err != nil {
+		return fail(err)
+	}
+	format := wopts.Format
+	if format == "" {
+		format = tableio.FormatOf(out)
+	}
+	if _, isParquet := r.(*pqio.Reader); isParquet && format == tableio.Parquet && len(kept) > 0 {
+		if o.src, err = pqio.OpenSource(path); err != nil {
+			return fail(err)
+		}
+		copied := make([]bool, len(schema.Fields))
+		any := false
+		read := map[string]bool{}
+		for _, c := range m.Spec.Columns {
+			read[c] = true
+		}
+		for _, c := range []string{m.Spec.Target, m.Spec.PriorColumn, m.Spec.GroupColumn()} {
+			if c != "" {
+				read[c] = true
+			}
+		}
+		for i, k := range kept {
+			f := o.full.Fields[k]
+			if o.src.CanCopy(f.Name) == nil {
+				copied[i], any = true, true
+			} else {
+				read[f.Name] = true
+			}
+		}
+		if any {
+			var sel []int
+			for i, f := range o.full.Fields {
+				if read[f.Name] {
+					sel = append(sel, i)
+				}
+			}
+			if err := r.Select(sel); err != nil {
+				return fail(err)
+			}
+			wopts.Parquet.Source, wopts.Parquet.Copy = o.src, copied
+		} else {
+			o.src.Close()
+			o.src = nil
+		}
+	}
+	if o.w, err = tableio.Create(out, schema, wopts); err != nil {
+		return fail(&outputError{err})
+	}
+	return o, nil
+}
+
+// close closes the reader and the source (not the output).
+func (o *output) close() {
+	o.r.Close()
+	if o.src != nil {
+		o.src.Close()
+	}
+}

@@ -127,10 +127,9 @@ func TestArrowReadsOurFiles(t *testing.T) {
 	}
 }
 
-// TestReadArrowFiles reads files that Arrow's writer made (data pages v1
-// and v2, dictionary and plain, with nulls) and compares with the values
-// written.
-func TestReadArrowFiles(t *testing.T) {
+// arrowTable builds, with Arrow's builders, the table of 9000 rows that
+// arrowFile writes, and returns it with its cells.
+func arrowTable(t testing.TB) (arrow.Table, [][]cell) {
 	const n = 9000
 	mem := memory.DefaultAllocator
 	schema := arrow.NewSchema([]arrow.Field{
@@ -188,23 +187,38 @@ func TestReadArrowFiles(t *testing.T) {
 	}
 	rec := b.NewRecord()
 	defer rec.Release()
-	tbl := array.NewTableFromRecords(schema, []arrow.Record{rec})
+	return array.NewTableFromRecords(schema, []arrow.Record{rec}), want
+}
+
+// arrowFile writes the table of arrowTable with Arrow's writer: data pages
+// of version v, codec c, small pages and dictionaries, row groups of 4000
+// rows.
+func arrowFile(t testing.TB, v parquet.DataPageVersion, c compress.Compression) ([]byte, [][]cell) {
+	tbl, want := arrowTable(t)
 	defer tbl.Release()
+	props := parquet.NewWriterProperties(
+		parquet.WithDictionaryDefault(true),
+		parquet.WithDictionaryPageSizeLimit(16<<10),
+		parquet.WithDataPageSize(4<<10),
+		parquet.WithMaxRowGroupLength(4000),
+		parquet.WithDataPageVersion(v),
+		parquet.WithCompression(c),
+	)
+	var buf bytes.Buffer
+	if err := pqarrow.WriteTable(tbl, &buf, 4000, props, pqarrow.DefaultWriterProps()); err != nil {
+		t.Fatal(err)
+	}
+	return buf.Bytes(), want
+}
+
+// TestReadArrowFiles reads files that Arrow's writer made (data pages v1
+// and v2, dictionary and plain, with nulls) and compares with the values
+// written.
+func TestReadArrowFiles(t *testing.T) {
 	for _, v := range []parquet.DataPageVersion{parquet.DataPageV1, parquet.DataPageV2} {
 		t.Run(fmt.Sprint("v", v), func(t *testing.T) {
-			props := parquet.NewWriterProperties(
-				parquet.WithDictionaryDefault(true),
-				parquet.WithDictionaryPageSizeLimit(16<<10),
-				parquet.WithDataPageSize(4<<10),
-				parquet.WithMaxRowGroupLength(4000),
-				parquet.WithDataPageVersion(v),
-				parquet.WithCompression(compress.Codecs.Snappy),
-			)
-			var buf bytes.Buffer
-			if err := pqarrow.WriteTable(tbl, &buf, 4000, props, pqarrow.DefaultWriterProps()); err != nil {
-				t.Fatal(err)
-			}
-			r := openBytes(t, "arrow-written.parquet", buf.Bytes())
+			data, want := arrowFile(t, v, compress.Codecs.Snappy)
+			r := openBytes(t, "arrow-written.parquet", data)
 			defer r.Close()
 			wantFields := []table.Field{
 				{Name: "postcode", Kind: table.String, Nullable: true},

@@ -11,8 +11,13 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/format"
+
 	"manyfold/folds"
+	"manyfold/io/pqio"
 	"manyfold/io/table"
+	"manyfold/io/tableio"
 )
 
 // encodedNames returns the names of the columns encode added to tt (those
@@ -531,4 +536,77 @@ func TestPriorByColumn(t *testing.T) {
 			t.Errorf("new row %d: %.15g, want %.15g", i+1, v, w)
 		}
 	}
+}
+
+// TestParquetCopiesKeptColumns: with Parquet in and out, encode and apply
+// copy the kept columns' chunks as they are, in the input's row groups,
+// and the output reads back cell for cell as the output from CSV input.
+func TestParquetCopiesKeptColumns(t *testing.T) {
+	dir := t.TempDir()
+	s, batches := shipmentBatches()
+	csvIn := filepath.Join(dir, "shipments.csv")
+	writeTable(t, csvIn, s, batches...)
+	pqIn := filepath.Join(dir, "shipments.parquet")
+	w, err := tableio.Create(pqIn, s, tableio.WriteOptions{Parquet: pqio.WriterOptions{RowGroupRows: 70}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, b := range batches {
+		if err := w.Write(b); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := w.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	args := []string{"--target", "late", "--columns", "postcode,sender", "--methods", "target,freq,hash",
+		"--folds", "3", "--seed", "4", "--fold-column", "fold"}
+	for _, comp := range []string{"snappy", "zstd"} {
+		outs := map[string]string{}
+		for _, in := range []string{csvIn, pqIn} {
+			base := filepath.Join(dir, comp+"-"+filepath.Ext(in)[1:])
+			mustRun(t, append([]string{"encode", in, "--out", base + ".parquet", "--tables", base + "-tables", "--compression", comp}, args...)...)
+			mustRun(t, "apply", in, "--tables", base+"-tables", "--out", base+"-applied.parquet", "--compression", comp)
+			outs[in] = base
+		}
+		for _, suffix := range []string{".parquet", "-applied.parquet"} {
+			a, b := readTable(t, outs[csvIn]+suffix), readTable(t, outs[pqIn]+suffix)
+			if !slices.Equal(a.names, b.names) || !reflect.DeepEqual(a.rows, b.rows) {
+				t.Fatalf("%s%s: Parquet input gives another table than CSV input", comp, suffix)
+			}
+			// The output of Parquet input has the input's row groups,
+			// and its route chunks (snappy in, snappy out) are the
+			// input's bytes.
+			inMeta, outMeta := footer(t, pqIn), footer(t, outs[pqIn]+suffix)
+			if len(outMeta.RowGroups) != len(inMeta.RowGroups) || len(inMeta.RowGroups) != 5 {
+				t.Fatalf("%s%s: %d row groups, the input %d (want 5)", comp, suffix, len(outMeta.RowGroups), len(inMeta.RowGroups))
+			}
+			route := slices.Index(s.Names(), "route")
+			for g := range inMeta.RowGroups {
+				in, out := inMeta.RowGroups[g].Columns[route].MetaData, outMeta.RowGroups[g].Columns[route].MetaData
+				if comp == "snappy" && in.TotalCompressedSize != out.TotalCompressedSize {
+					t.Fatalf("row group %d: route chunk of %d bytes, the input's %d", g, out.TotalCompressedSize, in.TotalCompressedSize)
+				}
+				if out.Codec.String() != strings.ToUpper(comp) {
+					t.Fatalf("row group %d: route chunk codec %v, want %s", g, out.Codec, comp)
+				}
+			}
+		}
+	}
+}
+
+// footer reads the metadata of a Parquet file.
+func footer(t *testing.T, path string) *format.FileMetaData {
+	t.Helper()
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	st, _ := f.Stat()
+	pf, err := parquet.OpenFile(f, st.Size())
+	if err != nil {
+		t.Fatal(err)
+	}
+	return pf.Metadata()
 }

@@ -6,6 +6,8 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"runtime"
+	"sync"
 
 	"manyfold/io/table"
 )
@@ -22,7 +24,8 @@ type writer struct {
 	delim   byte
 	ncols   int
 	special [256]bool // bytes that force quoting
-	row     []byte
+	row     []byte   // the header line
+	bufs    [][]byte // formatted parts of a batch
 	closed  bool
 }
 
@@ -107,11 +110,56 @@ func (w *writer) Write(b *table.Batch) error {
 			return fmt.Errorf("csv writer: column %d: %w", j+1, err)
 		}
 	}
-	for i := 0; i < b.Rows; i++ {
-		row := w.row[:0]
+	// The rows are formatted in parts side by side, each into a buffer
+	// of its own, and the buffers written in order: the bytes do not
+	// depend on the number of parts.
+	parts := 1
+	if b.Rows >= 2*minPartRows {
+		parts = min(runtime.GOMAXPROCS(0), b.Rows/minPartRows, maxParts)
+	}
+	for len(w.bufs) < parts {
+		w.bufs = append(w.bufs, nil)
+	}
+	if parts == 1 {
+		w.bufs[0] = w.format(w.bufs[0][:0], b, 0, b.Rows)
+	} else {
+		w.formatParts(b, parts)
+	}
+	for _, buf := range w.bufs[:parts] {
+		if _, err := w.bw.Write(buf); err != nil {
+			return fmt.Errorf("writing csv: %w", err)
+		}
+	}
+	return nil
+}
+
+// Batches of fewer than 2*minPartRows rows are formatted in one part, and
+// no batch in more than maxParts.
+const (
+	minPartRows = 2048
+	maxParts    = 8
+)
+
+// formatParts formats the rows of b in parts on goroutines of their own.
+func (w *writer) formatParts(b *table.Batch, parts int) {
+	var wg sync.WaitGroup
+	for p := 0; p < parts; p++ {
+		lo, hi := b.Rows*p/parts, b.Rows*(p+1)/parts
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			w.bufs[p] = w.format(w.bufs[p][:0], b, lo, hi)
+		}()
+	}
+	wg.Wait()
+}
+
+// format appends rows lo..hi of b as CSV lines to dst.
+func (w *writer) format(dst []byte, b *table.Batch, lo, hi int) []byte {
+	for i := lo; i < hi; i++ {
 		for j := range b.Cols {
 			if j > 0 {
-				row = append(row, w.delim)
+				dst = append(dst, w.delim)
 			}
 			c := &b.Cols[j]
 			if c.IsNull(i) {
@@ -119,18 +167,14 @@ func (w *writer) Write(b *table.Batch) error {
 			}
 			switch c.Form {
 			case table.FormText, table.FormDict:
-				row = w.appendField(row, c.Bytes(i))
+				dst = w.appendField(dst, c.Bytes(i))
 			default:
-				row = c.AppendText(row, i)
+				dst = c.AppendText(dst, i)
 			}
 		}
-		row = append(row, '\n')
-		w.row = row
-		if _, err := w.bw.Write(row); err != nil {
-			return fmt.Errorf("writing csv: %w", err)
-		}
+		dst = append(dst, '\n')
 	}
-	return nil
+	return dst
 }
 
 // checkColumn makes sure c holds rows values in its form, so that writing

@@ -3,8 +3,10 @@ package csvio
 import (
 	"bytes"
 	"errors"
+	"fmt"
 	"math"
 	"reflect"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -264,5 +266,44 @@ func TestWriterNoAlloc(t *testing.T) {
 	})
 	if allocs > 0 {
 		t.Errorf("%.1f allocations per batch", allocs)
+	}
+}
+
+// A batch large enough to be formatted in parts gives the same bytes
+// whatever the number of parts, and the same as row-sized batches.
+func TestWriterPartsSameBytes(t *testing.T) {
+	const n = 5*minPartRows + 17
+	var cells []string
+	floats := make([]float64, n)
+	for i := 0; i < n; i++ {
+		cells = append(cells, fmt.Sprintf("PC %d,\"%d\"", i%97, i))
+		floats[i] = float64(i) / 7
+	}
+	big := &table.Batch{Rows: n, Cols: []table.Column{textCol(cells...), {Form: table.FormFloat64, Floats: floats}}}
+	write := func(procs int, rowsPerBatch int) string {
+		defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
+		var buf bytes.Buffer
+		w, _ := NewWriter(&buf, schemaOf("a", "b"), WriterOptions{})
+		for lo := 0; lo < n; lo += rowsPerBatch {
+			hi := min(lo+rowsPerBatch, n)
+			b := &table.Batch{Rows: hi - lo, Cols: []table.Column{textCol(cells[lo:hi]...), {Form: table.FormFloat64, Floats: floats[lo:hi]}}}
+			if rowsPerBatch == n {
+				b = big
+			}
+			if err := w.Write(b); err != nil {
+				t.Fatal(err)
+			}
+		}
+		w.Close()
+		return buf.String()
+	}
+	one := write(1, n)
+	for _, c := range []struct{ procs, batch int }{{2, n}, {3, n}, {8, n}, {2, 1}, {4, 3000}} {
+		if got := write(c.procs, c.batch); got != one {
+			t.Fatalf("%d procs, batches of %d rows: output differs", c.procs, c.batch)
+		}
+	}
+	if strings.Count(one, "\n") != n+1 {
+		t.Fatalf("%d lines, want %d", strings.Count(one, "\n"), n+1)
 	}
 }

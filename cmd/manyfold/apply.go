@@ -69,7 +69,7 @@ func runApply(args []string) error {
 		return err
 	}
 	if err := w.Commit(); err != nil {
-		return &outputError{err}
+		return commitError(err)
 	}
 	fmt.Fprintf(os.Stderr, "applied %s to %d rows in %.1fs;", *tables, sum.Rows, time.Since(start).Seconds())
 	for i, c := range m.Cols {

@@ -161,6 +161,7 @@ func runEncode(args []string) (err error) {
 		}
 	}
 	pr := newProgress("fit")
+	r = table.ReadAhead(r)
 	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: of.threads})
 	r.Close()
 	if m != nil {
@@ -193,6 +194,13 @@ func runEncode(args []string) (err error) {
 	}()
 	pr = newProgress("encode")
 	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads, Input: o.full})
+	if err == nil {
+		// Finish the output (the writer runs behind the encoding) before
+		// anything is committed, so that a failure leaves neither.
+		if cerr := w.Writer.Close(); cerr != nil {
+			err = commitError(cerr)
+		}
+	}
 	pr.done()
 	saved := <-tablesDone
 	if err != nil || saved.err != nil {
@@ -210,7 +218,7 @@ func runEncode(args []string) (err error) {
 		return &outputError{err}
 	}
 	if err := w.Commit(); err != nil {
-		return &outputError{err}
+		return commitError(err)
 	}
 	fmt.Fprintf(os.Stderr, "encoded %d rows", sum.Rows)
 	if sum.Missing > 0 {

@@ -174,3 +174,14 @@ func exitCode(err error) int {
 	}
 	return exitFailure
 }
+
+// commitError classes an error of committing the output: bad data that
+// the writer found while converting (written behind the encoding, so it
+// can surface only now) is a data error; anything else an output error.
+func commitError(err error) error {
+	var de *table.DataError
+	if errors.As(err, &de) {
+		return de
+	}
+	return &outputError{err}
+}

@@ -89,6 +89,10 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 	if o.w, err = tableio.Create(out, schema, wopts); err != nil {
 		return fail(&outputError{err})
 	}
+	// Reading, encoding and writing overlap: the next batch is decoded
+	// and the last one written while the current one is encoded.
+	o.r = table.ReadAhead(o.r)
+	o.w.Writer = table.WriteBehind(o.w.Writer)
 	return o, nil
 }
 

@@ -348,7 +348,13 @@ func TestBadEncode(t *testing.T) {
 		{"forced type the values contradict", func(t *testing.T, dir string) []string {
 			return []string{"encode", csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode", "--folds", "2",
 				"--type", "postcode=int", "--out", filepath.Join(dir, "out", "enc.parquet"), "--tables", filepath.Join(dir, "out", "tables")}
-		}, exitData, []string{"row 1", `column "postcode"`, `"PC1" is not an integer`}},
+		}, exitData, []string{"shipments.csv:2:", `column "postcode"`, `"PC1" is not an integer`}},
+		// The same with CSV output: the reader checks the values, so the
+		// output format makes no difference.
+		{"forced type contradicted, CSV out", func(t *testing.T, dir string) []string {
+			return []string{"encode", csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode", "--folds", "2",
+				"--type", "postcode=int", "--out", filepath.Join(dir, "out", "enc.csv"), "--tables", filepath.Join(dir, "out", "tables")}
+		}, exitData, []string{"shipments.csv:2:", `column "postcode"`, `"PC1" is not an integer`}},
 		{"encode target column", func(t *testing.T, dir string) []string {
 			return encodeArgs(dir, csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcode,late")
 		}, exitUsage, []string{`"late" is the target`}},

@@ -51,7 +51,12 @@
 //
 // A value with a leading zero such as "00501" makes its column text, so that
 // codes keep their zeros. Options.Types overrides the inferred kinds. Kinds
-// are logical only: the data stays text.
+// are logical only: the data stays text. But every value of an int, float
+// or bool column, inferred or forced, past the sample too, must read as its
+// kind the way the writers parse it (an int may then also be written with
+// leading zeros, or as a number without a fraction such as 3.0; a bool as
+// strconv.ParseBool accepts), so that a value that does not is reported by
+// the reader, whatever the output format.
 //
 // Bad data is reported as a *table.DataError naming the file, the line and,
 // where known, the column.

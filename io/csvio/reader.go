@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"sort"
 	"strconv"
 	"strings"
@@ -510,6 +511,13 @@ func (r *Reader) Next() (*table.Batch, error) {
 	if rows == 0 {
 		return nil, r.err
 	}
+	if bad, err := r.check(rows); err != nil {
+		// Deliver the rows before the bad value; the error comes next.
+		r.err = err
+		if rows = bad; rows == 0 {
+			return nil, r.err
+		}
+	}
 	b := &r.batch
 	b.Rows = rows
 	b.FirstRow = r.rowsDone + 1
@@ -526,6 +534,66 @@ func (r *Reader) Next() (*table.Batch, error) {
 	}
 	b.Cols = r.bcols
 	return b, nil
+}
+
+// check verifies that every value of the batch's int, float and bool
+// columns reads as its kind, as the writers will parse it (an int may be
+// written with leading zeros or as a number with no fraction, a float as
+// table.ParseFloat reads it, a bool as strconv.ParseBool does), so that a
+// value that does not is reported here, whatever the output format. It
+// returns the first bad row's index and its error.
+func (r *Reader) check(rows int) (int, error) {
+	bad := rows
+	var first error
+	for k := range r.cols {
+		kind := r.schema.Fields[k].Kind
+		if kind == table.String {
+			continue
+		}
+		c := &r.cols[k]
+		for i := 0; i < bad; i++ {
+			if c.nulls[i] {
+				continue
+			}
+			v := c.value(i)
+			if err := checkValue(kind, v); err != nil {
+				bad = i
+				first = &table.DataError{File: r.name, Line: r.lines[i], Row: r.rowsDone + int64(i) + 1, Column: r.schema.Fields[k].Name, Err: err}
+				break
+			}
+		}
+	}
+	return bad, first
+}
+
+// checkValue reports whether v reads as a value of kind: the quick forms
+// of inference first, then the parsers the writers use.
+func checkValue(kind table.Kind, v []byte) error {
+	switch kind {
+	case table.Int64:
+		if intText(v) {
+			return nil
+		}
+		if _, err := strconv.ParseInt(string(v), 10, 64); err == nil {
+			return nil
+		}
+		if f, err := strconv.ParseFloat(string(v), 64); err == nil && f == math.Trunc(f) && f >= -(1<<63) && f < 1<<63 {
+			return nil
+		}
+		return fmt.Errorf("%q is not an integer", v)
+	case table.Float64:
+		if floatText(v) {
+			return nil
+		}
+		if _, err := table.ParseFloat(v); err != nil {
+			return err
+		}
+	case table.Bool:
+		if _, err := strconv.ParseBool(string(v)); err != nil {
+			return fmt.Errorf("%q is not a boolean", v)
+		}
+	}
+	return nil
 }
 
 // Close releases the decompressor, if any. It does not close the

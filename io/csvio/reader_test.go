@@ -583,3 +583,52 @@ func TestNoAllocPerBatch(t *testing.T) {
 		t.Errorf("%.1f allocations per batch of 1000 rows", allocs)
 	}
 }
+
+// TestValuesCheckedAgainstKind: every value of an int, float or bool
+// column must read as that kind, forced or inferred, past the inference
+// sample too; the rows before a bad value are delivered first.
+func TestValuesCheckedAgainstKind(t *testing.T) {
+	cases := []struct {
+		name   string
+		text   string
+		opts   Options
+		rows   int    // rows delivered before the error
+		line   int64  // line of the error, 0 for none
+		column string // column of the error
+	}{
+		{"forced int", "pc,late\n1,0\n007,1\n3.0,0\nPC1,1\n2,0\n", Options{Types: map[string]table.Kind{"pc": table.Int64}}, 3, 5, "pc"},
+		{"forced float", "cost\n1.5\n-2e3\nNaN\n1;5\n", Options{Types: map[string]table.Kind{"cost": table.Float64}}, 3, 5, "cost"},
+		{"forced bool", "late\ntrue\n0\nT\nmaybe\n", Options{Types: map[string]table.Kind{"late": table.Bool}}, 3, 5, "late"},
+		{"inferred, bad past the sample", "w,id\n" + strings.Repeat("1,a\n", 50) + "heavy,b\n", Options{SampleRows: 10}, 50, 52, "w"},
+		{"all good", "w\n1\n\n2\n", Options{Types: map[string]table.Kind{"w": table.Int64}}, 3, 0, ""},
+	}
+	for _, c := range cases {
+		r, err := NewReader(strings.NewReader(c.text), "s.csv", c.opts)
+		if err != nil {
+			t.Fatalf("%s: %v", c.name, err)
+		}
+		rows := 0
+		var last error
+		for {
+			b, err := r.Next()
+			if err != nil {
+				last = err
+				break
+			}
+			rows += b.Rows
+		}
+		if rows != c.rows {
+			t.Errorf("%s: %d rows before the error, want %d", c.name, rows, c.rows)
+		}
+		var de *table.DataError
+		if c.line == 0 {
+			if last != io.EOF {
+				t.Errorf("%s: %v, want EOF", c.name, last)
+			}
+			continue
+		}
+		if !errors.As(last, &de) || de.Line != c.line || de.Column != c.column || de.File != "s.csv" {
+			t.Errorf("%s: %v, want a data error at line %d, column %s", c.name, last, c.line, c.column)
+		}
+	}
+}

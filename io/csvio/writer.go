@@ -24,8 +24,8 @@ type writer struct {
 	delim   byte
 	ncols   int
 	special [256]bool // bytes that force quoting
-	row     []byte   // the header line
-	bufs    [][]byte // formatted parts of a batch
+	row     []byte    // the header line
+	bufs    [][]byte  // formatted parts of a batch
 	closed  bool
 }
 

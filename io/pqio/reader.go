@@ -37,11 +37,25 @@
 // # Writing
 //
 // NewWriter writes a table in the order of its schema's fields, as optional
-// columns where the field is Nullable: text as dictionary-encoded UTF-8
-// BYTE_ARRAY, int as INT64, float as DOUBLE, bool as BOOLEAN. A text
-// column's dictionary is bounded at 2 MiB per row group, after which its
-// pages are PLAIN. Row groups hold WriterOptions.RowGroupRows rows; pages
-// are compressed with Snappy by default.
+// columns where the field is Nullable: text as UTF-8 BYTE_ARRAY, int as
+// INT64, float as DOUBLE, bool as BOOLEAN. The pages are encoded here, not
+// by a Parquet library: format version 1 data pages whose definition
+// levels, for an optional column, and dictionary indices use the RLE /
+// bit-packing hybrid; values PLAIN, but text dictionary encoded while its
+// dictionary stays within 1 MiB per row group (a column that outgrows it
+// finishes the row group PLAIN and starts the next one PLAIN, as a nearly
+// unique column would only pay for a dictionary it never reuses). Pages
+// hold up to 1 MiB of values and are compressed with Snappy by default.
+// Each column chunk records its null count and, for numbers and text, its
+// minimum and maximum (type-defined order). The columns of a batch are
+// encoded side by side, one goroutine per column; the bytes do not depend
+// on it. Row groups hold WriterOptions.RowGroupRows rows.
+//
+// With WriterOptions.Source, columns of an existing Parquet file of the same
+// rows are copied into the output chunk by chunk, still encoded and
+// compressed, and the output takes the Source's row groups: this is how
+// manyfold writes the input's columns back beside the encoded ones without
+// decoding them (see Source).
 //
 // A batch's columns may come in any form. Text written to an int column
 // must be a decimal integer (or a number with no fractional part), to a

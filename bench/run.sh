@@ -7,8 +7,10 @@
 #
 # Environment: REPS (default 3), WORK (data and outputs, default
 # /tmp/manyfold-bench), GROWTH_ROWS (row counts of the RSS check without
-# shipment_id, default "10000000 30000000"; "" skips it), PEERS (default
-# "duckdb pandas").
+# shipment_id, default "10000000 30000000"; "" skips it), MF_ONLY_ROWS (row
+# counts at which only manyfold runs the job, Parquet to Parquet with 2
+# threads, for the growth of its wall time; default "30000000", "" skips
+# it), PEERS (default "duckdb pandas").
 set -euo pipefail
 
 here=$(cd "$(dirname "$0")" && pwd)
@@ -17,6 +19,7 @@ REPS=${REPS:-3}
 WORK=${WORK:-/tmp/manyfold-bench}
 GROWTH_ROWS=${GROWTH_ROWS-10000000 30000000}
 PEERS=${PEERS:-duckdb pandas}
+MF_ONLY_ROWS=${MF_ONLY_ROWS-30000000}
 if [ $# -gt 0 ]; then ROWS=("$@"); else ROWS=(1000000 10000000); fi
 PY=/usr/bin/python3 # Debian's interpreter, where python3-pandas installs
 bin=$WORK/bin
@@ -114,6 +117,22 @@ for n in "${ROWS[@]}"; do
 		"$bin/check" --a "$o/mf-csv-2t.csv" --b "$o/pandas.csv" --tol 1e-9 >>"$checks"
 	fi
 	rm -f "$o"/*.csv "$o"/*.parquet # keep the disk free for the next size
+done
+
+# The whole job at larger sizes, manyfold alone: its wall time should grow
+# linearly with the rows.
+for n in $MF_ONLY_ROWS; do
+	d=$WORK/$n
+	mkdir -p "$d/out"
+	if [ ! -s "$d/shipments.parquet" ]; then
+		log "generating $n rows (Parquet only)"
+		"$bin/gen" --rows "$n" --dir "$d" --formats parquet --no-folds-file
+	fi
+	for rep in $(seq "$REPS"); do
+		log "$n rows (manyfold only): round $rep of $REPS"
+		mf "$n" parquet parquet 2
+	done
+	rm -f "$d"/out/*.parquet
 done
 
 # Peak RSS without the nearly unique column: the statistics of 40k

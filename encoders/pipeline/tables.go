@@ -327,39 +327,57 @@ func (m *Model) saveCol(path string, c *Col) error {
 			lv.Data = append(lv.Data, st.Bytes(l)...)
 			lv.Offsets = append(lv.Offsets, int32(len(lv.Data)))
 		}
-		// One pass over the chunk's levels fills every column, so each
-		// level's statistics are fetched from memory once.
+		// Each column is filled by a loop of its own over the chunk's
+		// levels: the levels come in canonical order, not in memory
+		// order, so nearly every load misses the cache, and loads that
+		// do not depend on each other let the processor overlap the
+		// misses.
 		cols := b.Cols[1:]
-		for j, f := range schema.Fields[1:] {
-			if f.Kind == table.Int64 {
-				ints(&cols[j], n)
-			} else {
-				floats(&cols[j], n)
-			}
-		}
+		j := 0
+		nextInts := func() []int64 { j++; return ints(&cols[j-1], n) }
+		nextFloats := func() []float64 { j++; return floats(&cols[j-1], n) }
+		rowsOut := nextInts()
 		for i, l := range sel {
-			j := 0
-			putI := func(v int64) { cols[j].Ints[i] = v; j++ }
-			putF := func(v float64) { cols[j].Floats[i] = v; j++ }
-			putI(int64(st.Rows[l]))
-			if supervised {
-				a := st.Target(l, 0, -1, m.Pos)
-				putI(int64(a.N))
-				if m.Task == colstats.Regression {
-					putF(a.Sum)
-					putF(a.SumSq)
-				} else {
-					for cl := range m.Classes {
-						putI(int64(st.ClassCount(l, cl)))
+			rowsOut[i] = int64(st.Rows[l])
+		}
+		if supervised {
+			tr := nextInts()
+			if m.Task == colstats.Regression {
+				sum, sq := nextFloats(), nextFloats()
+				for i, l := range sel {
+					a := st.Target(l, 0, -1, m.Pos)
+					tr[i], sum[i], sq[i] = int64(a.N), a.Sum, a.SumSq
+				}
+			} else {
+				for i, l := range sel {
+					tr[i] = int64(st.Target(l, 0, -1, m.Pos).N)
+				}
+				for cl := range m.Classes {
+					cnt := nextInts()
+					for i, l := range sel {
+						cnt[i] = int64(st.ClassCount(l, cl))
 					}
 				}
-				for o := range c.Full {
-					putF(m.tmean(c, o, l))
+			}
+			for o := range c.Full {
+				tm := nextFloats()
+				for i, l := range sel {
+					tm[i] = m.tmean(c, o, l)
 				}
 			}
-			putF(m.freq(c, l))
-			putI(int64(c.TopK[l]))
-			putI(int64(hashenc.Bucket(hashenc.Sum(st.Bytes(l), m.Spec.HashSeed), m.Spec.Buckets)))
+		}
+		fr := nextFloats()
+		for i, l := range sel {
+			fr[i] = m.freq(c, l)
+		}
+		tk := nextInts()
+		for i, l := range sel {
+			tk[i] = int64(c.TopK[l])
+		}
+		// The bucket hashes the level's bytes, already copied above.
+		bu := nextInts()
+		for i := range sel {
+			bu[i] = int64(hashenc.Bucket(hashenc.Sum(lv.Data[lv.Offsets[i]:lv.Offsets[i+1]], m.Spec.HashSeed), m.Spec.Buckets))
 		}
 		b.Rows = n
 		if n == 0 {

@@ -349,14 +349,19 @@ func (m *Model) saveCol(path string, c *Col) error {
 					tr[i], sum[i], sq[i] = int64(a.N), a.Sum, a.SumSq
 				}
 			} else {
-				for i, l := range sel {
-					tr[i] = int64(st.Target(l, 0, -1, m.Pos).N)
+				// One loop: a level's counts share a cache line.
+				cnt := make([][]int64, len(m.Classes))
+				for cl := range cnt {
+					cnt[cl] = nextInts()
 				}
-				for cl := range m.Classes {
-					cnt := nextInts()
-					for i, l := range sel {
-						cnt[i] = int64(st.ClassCount(l, cl))
+				for i, l := range sel {
+					var n int64
+					for cl := range cnt {
+						k := int64(st.ClassCount(l, cl))
+						cnt[cl][i] = k
+						n += k
 					}
+					tr[i] = n
 				}
 			}
 			for o := range c.Full {

@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"slices"
 
 	"github.com/klauspost/compress/s2"
 	"github.com/parquet-go/parquet-go/compress/zstd"
@@ -147,15 +148,7 @@ func (c *chunk) present() {
 // appendInts appends vals; nulls, when not nil, marks rows to write as nulls
 // (their slots in vals are ignored).
 func (c *chunk) appendInts(vals []int64, nulls []bool) error {
-	for i, v := range vals {
-		if nulls != nil && nulls[i] {
-			if err := c.null(); err != nil {
-				return err
-			}
-			continue
-		}
-		c.vals = binary.LittleEndian.AppendUint64(c.vals, uint64(v))
-		c.present()
+	return appendFixed(c, vals, nulls, func(v int64) uint64 { return uint64(v) }, func(v int64) {
 		if !c.hasMin {
 			c.minI, c.maxI, c.hasMin = v, v, true
 		} else if v < c.minI {
@@ -163,37 +156,58 @@ func (c *chunk) appendInts(vals []int64, nulls []bool) error {
 		} else if v > c.maxI {
 			c.maxI = v
 		}
-		if c.full() {
-			if err := c.flushPage(); err != nil {
-				return err
-			}
-		}
-	}
-	return nil
+	})
 }
 
 // appendFloats is appendInts for float64 values. NaN takes no part in the
 // minimum and maximum (Parquet format, statistics of floating-point
 // columns); a zero minimum is written as -0 and a zero maximum as +0.
 func (c *chunk) appendFloats(vals []float64, nulls []bool) error {
-	for i, v := range vals {
+	return appendFixed(c, vals, nulls, math.Float64bits, func(v float64) {
+		if v != v {
+			return
+		}
+		if !c.hasMin {
+			c.minF, c.maxF, c.hasMin = v, v, true
+		} else if v < c.minF {
+			c.minF = v
+		} else if v > c.maxF {
+			c.maxF = v
+		}
+	})
+}
+
+// appendFixed appends 8-byte values PLAIN: runs of present values are
+// copied a page's room at a time.
+func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, bits func(T) uint64, stat func(T)) error {
+	for i := 0; i < len(vals); {
 		if nulls != nil && nulls[i] {
 			if err := c.null(); err != nil {
 				return err
 			}
+			i++
 			continue
 		}
-		c.vals = binary.LittleEndian.AppendUint64(c.vals, math.Float64bits(v))
-		c.present()
-		if v == v {
-			if !c.hasMin {
-				c.minF, c.maxF, c.hasMin = v, v, true
-			} else if v < c.minF {
-				c.minF = v
-			} else if v > c.maxF {
-				c.maxF = v
+		// The run of present values from i, as far as the page has room.
+		room := max(1, min(pageValues-c.pageN, (pageBytes-len(c.vals)+7)/8))
+		j := i + 1
+		for j < len(vals) && j-i < room && (nulls == nil || !nulls[j]) {
+			j++
+		}
+		off := len(c.vals)
+		c.vals = slices.Grow(c.vals, 8*(j-i))[:off+8*(j-i)]
+		dst := c.vals[off:]
+		for k, v := range vals[i:j] {
+			binary.LittleEndian.PutUint64(dst[8*k:], bits(v))
+			stat(v)
+		}
+		if c.nullable {
+			for range j - i {
+				c.defs = append(c.defs, 1)
 			}
 		}
+		c.pageN += j - i
+		i = j
 		if c.full() {
 			if err := c.flushPage(); err != nil {
 				return err

@@ -80,7 +80,8 @@ type chunk struct {
 	srcMap   []int32 // input dictionary entry -> our index, -1 unknown
 
 	// The encoded chunk.
-	pages      []byte // compressed data pages with their headers
+	pages      [][]byte // compressed data pages, each with its header
+	spare      [][]byte // page buffers of earlier row groups, for reuse
 	uncomp     int64  // uncompressed size of the pages, headers included
 	numValues  int64
 	nulls      int64
@@ -114,6 +115,7 @@ func (c *chunk) reset(plain bool) {
 	}
 	c.dictVals, c.dictN = c.dictVals[:0], 0
 	c.srcID, c.srcMap = 0, c.srcMap[:0]
+	c.spare = append(c.spare, c.pages...)
 	c.pages, c.uncomp = c.pages[:0], 0
 	c.numValues, c.nulls, c.plainPages, c.dictPages = 0, 0, 0, 0
 	c.hasMin = false
@@ -426,8 +428,15 @@ func (c *chunk) flushPage() error {
 	if err != nil {
 		return fmt.Errorf("encoding a page header: %w", err)
 	}
-	c.pages = append(c.pages, hb...)
-	c.pages = append(c.pages, comp...)
+	// Each page gets a buffer of its own, so that the chunk never copies
+	// its earlier pages to grow.
+	var pb []byte
+	if n := len(c.spare); n > 0 {
+		pb, c.spare = c.spare[n-1][:0], c.spare[:n-1]
+	}
+	pb = append(pb, hb...)
+	pb = append(pb, comp...)
+	c.pages = append(c.pages, pb)
 	c.uncomp += int64(len(hb) + len(body))
 	c.numValues += int64(c.pageN)
 	if own {

@@ -416,8 +416,10 @@ func (w *writer) flushRowGroup() error {
 		}
 		md.Encoding = encs
 		md.DataPageOffset = w.off
-		if err := w.emit(ch.pages); err != nil {
-			return err
+		for _, pg := range ch.pages {
+			if err := w.emit(pg); err != nil {
+				return err
+			}
 		}
 		md.TotalCompressedSize = w.off - start
 		md.TotalUncompressedSize = ch.uncomp + dictSizes[j]

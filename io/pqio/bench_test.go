@@ -228,18 +228,7 @@ func BenchmarkWrite(b *testing.B) {
 		b.Run(comp, func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
-				w, err := NewWriter(io.Discard, schema, WriterOptions{Compression: comp})
-				if err != nil {
-					b.Fatal(err)
-				}
-				for _, bt := range batches {
-					if err := w.Write(bt); err != nil {
-						b.Fatal(err)
-					}
-				}
-				if err := w.Close(); err != nil {
-					b.Fatal(err)
-				}
+				writeAll(b, io.Discard, schema, WriterOptions{Compression: comp}, batches)
 			}
 			b.ReportMetric(float64(rows)*float64(b.N)/b.Elapsed().Seconds(), "rows/s")
 		})
@@ -257,18 +246,7 @@ func BenchmarkCopy(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	w, err := NewWriter(f, schema, WriterOptions{RowGroupRows: 1 << 18})
-	if err != nil {
-		b.Fatal(err)
-	}
-	for _, bt := range batches {
-		if err := w.Write(bt); err != nil {
-			b.Fatal(err)
-		}
-	}
-	if err := w.Close(); err != nil {
-		b.Fatal(err)
-	}
+	writeAll(b, f, schema, WriterOptions{RowGroupRows: 1 << 18}, batches)
 	f.Close()
 	out := &table.Schema{Fields: append(append([]table.Field(nil), schema.Fields...), table.Field{Name: "fold", Kind: table.Int64})}
 	copied := []bool{true, true, true, true, false}
@@ -301,6 +279,22 @@ func BenchmarkCopy(b *testing.B) {
 			}
 			b.ReportMetric(float64(rows)*float64(b.N)/b.Elapsed().Seconds(), "rows/s")
 		})
+	}
+}
+
+// writeAll writes the batches as a Parquet table to out.
+func writeAll(b *testing.B, out io.Writer, schema *table.Schema, opts WriterOptions, batches []*table.Batch) {
+	w, err := NewWriter(out, schema, opts)
+	if err != nil {
+		b.Fatal(err)
+	}
+	for _, bt := range batches {
+		if err := w.Write(bt); err != nil {
+			b.Fatal(err)
+		}
+	}
+	if err := w.Close(); err != nil {
+		b.Fatal(err)
 	}
 }
 

@@ -121,18 +121,27 @@ type Reader struct {
 	curIndex int // column being read, for panic messages
 }
 
-// Open opens the Parquet file at path and reads its footer.
-func Open(path string) (*Reader, error) {
+// openSized opens the file at path and returns its size.
+func openSized(path string) (*os.File, int64, error) {
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, err
+		return nil, 0, err
 	}
 	st, err := f.Stat()
 	if err != nil {
 		f.Close()
+		return nil, 0, err
+	}
+	return f, st.Size(), nil
+}
+
+// Open opens the Parquet file at path and reads its footer.
+func Open(path string) (*Reader, error) {
+	f, size, err := openSized(path)
+	if err != nil {
 		return nil, err
 	}
-	r, err := openReaderAt(path, f, st.Size())
+	r, err := openReaderAt(path, f, size)
 	if err != nil {
 		f.Close()
 		return nil, err

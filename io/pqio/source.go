@@ -27,21 +27,15 @@ type Source struct {
 	meta   *format.FileMetaData
 	leaves map[string]int // name of a top-level primitive column -> its column index
 	elems  map[string]format.SchemaElement
-	nested bool // the schema has groups: only the flat leaves before the first group are copyable
 }
 
 // OpenSource opens the Parquet file at path as a Source.
 func OpenSource(path string) (*Source, error) {
-	f, err := os.Open(path)
+	f, size, err := openSized(path)
 	if err != nil {
 		return nil, err
 	}
-	st, err := f.Stat()
-	if err != nil {
-		f.Close()
-		return nil, err
-	}
-	pf, err := parquet.OpenFile(f, st.Size(), parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true), parquet.ReadBufferSize(4096))
+	pf, err := parquet.OpenFile(f, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true), parquet.ReadBufferSize(4096))
 	if err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w: %v", path, table.ErrCorrupt, err)
@@ -58,11 +52,9 @@ func OpenSource(path string) (*Source, error) {
 	for i := 1; i < len(sch); i++ {
 		e := sch[i]
 		if n, ok := e.NumChildren.Get(); ok && n > 0 {
-			s.nested = true
-			break
+			break // a group: only the flat leaves before it are copied
 		}
 		if rep, ok := e.RepetitionType.Get(); ok && rep == format.Repeated {
-			s.nested = true
 			break
 		}
 		s.leaves[e.Name] = col

@@ -159,6 +159,33 @@ func (s *Stats) Level(b []byte) int {
 	return id
 }
 
+// LevelBatch sets slots[i] to Level(keys[i]) for every i, adding new
+// levels in the order of keys, as calls of Level one by one would; ids is
+// scratch of at least len(keys). It interns by levels.Table.InternBatch,
+// which overlaps the cache misses of groups of keys.
+func (s *Stats) LevelBatch(keys [][]byte, ids []uint32, slots []int32) {
+	ids = ids[:len(keys)]
+	s.Levels.InternBatch(keys, ids)
+	s.grow(s.Levels.Len() + 1)
+	for i, id := range ids {
+		slots[i] = int32(id + 1)
+	}
+}
+
+// LookupBatch sets slots[i] to Lookup(keys[i]) for every i; ids is scratch
+// of at least len(keys). It looks up by levels.Table.LookupBatch.
+func (s *Stats) LookupBatch(keys [][]byte, ids []uint32, slots []int32) {
+	ids = ids[:len(keys)]
+	s.Levels.LookupBatch(keys, ids)
+	for i, id := range ids {
+		if id == levels.NoID {
+			slots[i] = -1
+		} else {
+			slots[i] = int32(id + 1)
+		}
+	}
+}
+
 // Lookup returns the slot of a level's bytes, or -1 when it was never seen.
 func (s *Stats) Lookup(b []byte) int {
 	id, ok := s.Levels.Lookup(b)

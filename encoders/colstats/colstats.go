@@ -261,6 +261,18 @@ func (s *Stats) ClassCount(l, c int) uint64 {
 	return n
 }
 
+// ClassTotals2 returns the rows of level l of class 0 and of class 1 over
+// all folds, for statistics with two classes: ClassCount(l, 0) and
+// ClassCount(l, 1) from one read of the level's counts.
+func (s *Stats) ClassTotals2(l int) (n0, n1 uint64) {
+	row := s.cls.row(l)
+	for f := 0; f+1 < len(row); f += 2 {
+		n0 += uint64(row[f])
+		n1 += uint64(row[f+1])
+	}
+	return n0, n1
+}
+
 // Agg is the target statistic of a set of rows for one output: n rows and
 // the sum of the target (the count of the class for classification) and of
 // its square.

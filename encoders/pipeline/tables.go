@@ -327,8 +327,10 @@ func (m *Model) saveCol(path string, c *Col) error {
 			lv.Data = append(lv.Data, st.Bytes(l)...)
 			lv.Offsets = append(lv.Offsets, int32(len(lv.Data)))
 		}
-		// One pass over the chunk's levels fills every column, so each
-		// level's statistics are fetched from memory once.
+		// The columns are filled one at a time, each by a loop that does
+		// little more than fetch one value per level: in canonical order the
+		// levels' statistics are scattered over memory, and loops this small
+		// let the processor wait for many of them at once.
 		cols := b.Cols[1:]
 		for j, f := range schema.Fields[1:] {
 			if f.Kind == table.Int64 {
@@ -337,29 +339,59 @@ func (m *Model) saveCol(path string, c *Col) error {
 				floats(&cols[j], n)
 			}
 		}
+		j := 0
+		rowsCol := cols[j].Ints
+		j++
 		for i, l := range sel {
-			j := 0
-			putI := func(v int64) { cols[j].Ints[i] = v; j++ }
-			putF := func(v float64) { cols[j].Floats[i] = v; j++ }
-			putI(int64(st.Rows[l]))
-			if supervised {
-				a := st.Target(l, 0, -1, m.Pos)
-				putI(int64(a.N))
-				if m.Task == colstats.Regression {
-					putF(a.Sum)
-					putF(a.SumSq)
-				} else {
-					for cl := range m.Classes {
-						putI(int64(st.ClassCount(l, cl)))
+			rowsCol[i] = int64(st.Rows[l])
+		}
+		if supervised {
+			if m.fastTableValues(c) {
+				m.binaryTableValues(c, sel, cols[j].Ints, cols[j+1].Ints, cols[j+2].Ints, cols[j+3].Floats)
+				j += 4
+			} else {
+				for i, l := range sel {
+					k := j
+					putI := func(v int64) { cols[k].Ints[i] = v; k++ }
+					putF := func(v float64) { cols[k].Floats[i] = v; k++ }
+					a := st.Target(l, 0, -1, m.Pos)
+					putI(int64(a.N))
+					if m.Task == colstats.Regression {
+						putF(a.Sum)
+						putF(a.SumSq)
+					} else {
+						for cl := range m.Classes {
+							putI(int64(st.ClassCount(l, cl)))
+						}
+					}
+					for o := range c.Full {
+						putF(m.tmean(c, o, l))
 					}
 				}
-				for o := range c.Full {
-					putF(m.tmean(c, o, l))
+				j++ // target_rows
+				if m.Task == colstats.Regression {
+					j += 2
+				} else {
+					j += len(m.Classes)
 				}
+				j += len(c.Full)
 			}
-			putF(m.freq(c, l))
-			putI(int64(c.TopK[l]))
-			putI(int64(hashenc.Bucket(hashenc.Sum(st.Bytes(l), m.Spec.HashSeed), m.Spec.Buckets)))
+		}
+		freqCol := cols[j].Floats
+		j++
+		for i, l := range sel {
+			freqCol[i] = m.freq(c, l)
+		}
+		topCol := cols[j].Ints
+		j++
+		for i, l := range sel {
+			topCol[i] = int64(c.TopK[l])
+		}
+		// The level bytes were copied above, in order: hash them there.
+		bucketCol := cols[j].Ints
+		for i := range sel {
+			v := lv.Data[lv.Offsets[i]:lv.Offsets[i+1]]
+			bucketCol[i] = int64(hashenc.Bucket(hashenc.Sum(v, m.Spec.HashSeed), m.Spec.Buckets))
 		}
 		b.Rows = n
 		if n == 0 {
@@ -371,6 +403,39 @@ func (m *Model) saveCol(path string, c *Col) error {
 		}
 	}
 	return out.Commit()
+}
+
+// fastTableValues reports whether binaryTableValues computes the
+// supervised table columns of c: a binary target, no hierarchical prior,
+// and values computed from the statistics (not loaded).
+func (m *Model) fastTableValues(c *Col) bool {
+	return m.Task == colstats.Binary && len(m.Classes) == 2 && c.St.Classes == 2 && c.Parent == nil && c.TMean == nil && len(c.Full) == 1
+}
+
+// binaryTableValues fills, for the slots sel of a binary-target column,
+// target_rows, count_<class> of the two classes and tmean, from one read
+// of each level's per-fold counts: n_c = sum over folds of the count of
+// class c, target_rows = n_0 + n_1, tmean = Full.Encode(n_0+n_1, n_pos) for
+// a kept level and the prior otherwise (what Target, ClassCount and tmean
+// give, with the same integer sums).
+func (m *Model) binaryTableValues(c *Col, sel []int, rows, c0, c1 []int64, tmean []float64) {
+	st := c.St
+	for i, l := range sel {
+		n0, n1 := st.ClassTotals2(l)
+		rows[i], c0[i], c1[i] = int64(n0+n1), int64(n0), int64(n1)
+	}
+	ft := &c.Full[0]
+	for i, l := range sel {
+		if !c.Keep[l] {
+			tmean[i] = ft.Prior
+			continue
+		}
+		k := c0[i]
+		if m.Pos == 1 {
+			k = c1[i]
+		}
+		tmean[i] = ft.Encode(colstats.Agg{N: float64(rows[i]), Sum: float64(k), SumSq: float64(k)})
+	}
 }
 
 // LoadTables reads a tables directory written by SaveTables into a model

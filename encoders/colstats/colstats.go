@@ -290,7 +290,23 @@ func (s *Stats) Outputs() int {
 // Target returns the statistic of level l for output o over the rows of all
 // folds but exclude (exclude < 0: all folds). For binary the positive class
 // is class slot pos.
+//
+// For a binary target with two class slots it sums the level's counts in
+// one loop over the folds without a fold mask: n = sum over folds f !=
+// exclude of count(f,0)+count(f,1), k = the same sum of count(f,pos),
+// giving Agg{n, k, k} as TargetMask does.
 func (s *Stats) Target(l, o, exclude, pos int) Agg {
+	if s.Task == Binary && s.Classes == 2 && uint(pos) < 2 {
+		row := s.cls.row(l)
+		var n, k uint64
+		for f := 0; f+1 < len(row); f += 2 {
+			if f != 2*exclude {
+				n += uint64(row[f]) + uint64(row[f+1])
+				k += uint64(row[f+pos])
+			}
+		}
+		return Agg{N: float64(n), Sum: float64(k), SumSq: float64(k)}
+	}
 	return s.TargetMask(l, o, pos, s.allBut[exclude+1])
 }
 

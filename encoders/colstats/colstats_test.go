@@ -343,3 +343,57 @@ func benchStats() *Stats {
 	}
 	return s
 }
+
+// BenchmarkTarget computes the out-of-fold statistic of 1M binary levels
+// with 5 folds, the fold excluded cycling: by Target (the binary fast
+// path) and by TargetMask with the equivalent fold mask. Run:
+// go test -run '^$' -bench Target ./encoders/colstats
+func BenchmarkTarget(b *testing.B) {
+	const n, k = 1 << 20, 5
+	s := New(Binary, k, 2, n)
+	rng := rand.New(rand.NewPCG(4, 4))
+	for i := 0; i < 4*n; i++ {
+		s.AddClass(s.Level(fmt.Appendf(nil, "L%d", i%n)), rng.IntN(k), rng.IntN(2))
+	}
+	for _, mask := range []bool{false, true} {
+		name := "Target"
+		if mask {
+			name = "TargetMask"
+		}
+		b.Run(name, func(b *testing.B) {
+			var sum float64
+			for i := 0; i < b.N; i++ {
+				l, e := 1+i%n, i%k
+				var a Agg
+				if mask {
+					a = s.TargetMask(l, 0, 1, s.allBut[e+1])
+				} else {
+					a = s.Target(l, 0, e, 1)
+				}
+				sum += a.Sum
+			}
+			if sum < 0 {
+				b.Fatal(sum)
+			}
+		})
+	}
+}
+
+func TestTargetMatchesMask(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 1))
+	for _, k := range []int{1, 2, 5} {
+		s := New(Binary, k, 2, 0)
+		for i := 0; i < 5000; i++ {
+			s.AddClass(s.Level(fmt.Appendf(nil, "R-%03d", rng.IntN(300))), rng.IntN(k), rng.IntN(2))
+		}
+		for l := 0; l < s.NumLevels(); l++ {
+			for e := -1; e < k; e++ {
+				for pos := 0; pos < 2; pos++ {
+					if got, want := s.Target(l, 0, e, pos), s.TargetMask(l, 0, pos, s.allBut[e+1]); got != want {
+						t.Fatalf("k=%d level %d exclude %d pos %d: Target %+v, TargetMask %+v", k, l, e, pos, got, want)
+					}
+				}
+			}
+		}
+	}
+}

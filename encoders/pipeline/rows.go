@@ -172,6 +172,9 @@ type targetReader struct {
 	vals    []float64
 	missing int64
 	fixed   bool // task given by the user: do not switch
+	// Integer targets: the values met so far and their classes.
+	ints   []int64
+	intCls []int32
 }
 
 func (tr *targetReader) dataErr(b *table.Batch, i int, err error) error {
@@ -218,6 +221,16 @@ func (tr *targetReader) read(b *table.Batch) error {
 			tr.missing++
 			continue
 		}
+		if c.Form == table.FormInt64 && tr.numeric {
+			// An integer target has few distinct values: find the class of
+			// this one among those already met before formatting it as a
+			// label and looking that up.
+			v := c.Ints[i]
+			if k, ok := tr.intClass(v); ok {
+				tr.cls[i] = k
+				continue
+			}
+		}
 		var key []byte
 		if tr.numeric {
 			v, _, err := c.Float(i)
@@ -247,8 +260,23 @@ func (tr *targetReader) read(b *table.Batch) error {
 			tr.order = append(tr.order, string(key))
 		}
 		tr.cls[i] = int32(k)
+		if c.Form == table.FormInt64 && tr.numeric && len(tr.ints) < 2*MaxClasses {
+			tr.ints = append(tr.ints, c.Ints[i])
+			tr.intCls = append(tr.intCls, int32(k))
+		}
 	}
 	return nil
+}
+
+// intClass returns the class of integer target value v if v was met
+// before: a linear search of at most MaxClasses values, most often two.
+func (tr *targetReader) intClass(v int64) (int32, bool) {
+	for j, w := range tr.ints {
+		if w == v {
+			return tr.intCls[j], true
+		}
+	}
+	return 0, false
 }
 
 // detectRegression decides the task from the first batch when the user did

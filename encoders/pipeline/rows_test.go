@@ -1,7 +1,9 @@
 package pipeline
 
 import (
+	"slices"
 	"strconv"
+	"strings"
 	"testing"
 
 	"manyfold/encoders/colstats"
@@ -103,5 +105,32 @@ func TestFillMatchesRowByRow(t *testing.T) {
 				t.Errorf("an unseen level got slot %d, want -1", s[0])
 			}
 		})
+	}
+}
+
+// TestTargetReaderInts reads an integer target over two batches: classes
+// are numbered in order of appearance, nulls are -1, and values met again
+// (served from the integer cache) keep their class.
+func TestTargetReaderInts(t *testing.T) {
+	tr := &targetReader{labels: map[string]int{}, numeric: true}
+	batches := []table.Column{
+		{Form: table.FormInt64, Ints: []int64{1, 0, 0, 7, 1, 3}, Nulls: []bool{false, false, false, true, false, false}},
+		{Form: table.FormInt64, Ints: []int64{3, 0, 1, -2}},
+	}
+	want := [][]int32{{0, 1, 1, -1, 0, 2}, {2, 1, 0, 3}}
+	for bi, col := range batches {
+		b := &table.Batch{Cols: []table.Column{col}, Rows: len(col.Ints)}
+		if err := tr.read(b); err != nil {
+			t.Fatal(err)
+		}
+		if !slices.Equal(tr.cls, want[bi]) {
+			t.Errorf("batch %d: classes %v, want %v", bi, tr.cls, want[bi])
+		}
+	}
+	if got := strings.Join(tr.order, ","); got != "1,0,3,-2" {
+		t.Errorf("labels in order of appearance %q, want 1,0,3,-2", got)
+	}
+	if tr.missing != 1 {
+		t.Errorf("missing = %d, want 1", tr.missing)
 	}
 }

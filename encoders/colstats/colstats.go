@@ -15,6 +15,7 @@ package colstats
 import (
 	"bytes"
 	"cmp"
+	"encoding/binary"
 	"fmt"
 	"math"
 	"slices"
@@ -158,6 +159,33 @@ func (s *Stats) Level(b []byte) int {
 	return id
 }
 
+// LevelBatch sets slots[i] to Level(keys[i]) for every i, adding new
+// levels in the order of keys, as calls of Level one by one would; ids is
+// scratch of at least len(keys). It interns by levels.Table.InternBatch,
+// which overlaps the cache misses of groups of keys.
+func (s *Stats) LevelBatch(keys [][]byte, ids []uint32, slots []int32) {
+	ids = ids[:len(keys)]
+	s.Levels.InternBatch(keys, ids)
+	s.grow(s.Levels.Len() + 1)
+	for i, id := range ids {
+		slots[i] = int32(id + 1)
+	}
+}
+
+// LookupBatch sets slots[i] to Lookup(keys[i]) for every i; ids is scratch
+// of at least len(keys). It looks up by levels.Table.LookupBatch.
+func (s *Stats) LookupBatch(keys [][]byte, ids []uint32, slots []int32) {
+	ids = ids[:len(keys)]
+	s.Levels.LookupBatch(keys, ids)
+	for i, id := range ids {
+		if id == levels.NoID {
+			slots[i] = -1
+		} else {
+			slots[i] = int32(id + 1)
+		}
+	}
+}
+
 // Lookup returns the slot of a level's bytes, or -1 when it was never seen.
 func (s *Stats) Lookup(b []byte) int {
 	id, ok := s.Levels.Lookup(b)
@@ -233,6 +261,18 @@ func (s *Stats) ClassCount(l, c int) uint64 {
 	return n
 }
 
+// ClassTotals2 returns the rows of level l of class 0 and of class 1 over
+// all folds, for statistics with two classes: ClassCount(l, 0) and
+// ClassCount(l, 1) from one read of the level's counts.
+func (s *Stats) ClassTotals2(l int) (n0, n1 uint64) {
+	row := s.cls.row(l)
+	for f := 0; f+1 < len(row); f += 2 {
+		n0 += uint64(row[f])
+		n1 += uint64(row[f+1])
+	}
+	return n0, n1
+}
+
 // Agg is the target statistic of a set of rows for one output: n rows and
 // the sum of the target (the count of the class for classification) and of
 // its square.
@@ -250,7 +290,23 @@ func (s *Stats) Outputs() int {
 // Target returns the statistic of level l for output o over the rows of all
 // folds but exclude (exclude < 0: all folds). For binary the positive class
 // is class slot pos.
+//
+// For a binary target with two class slots it sums the level's counts in
+// one loop over the folds without a fold mask: n = sum over folds f !=
+// exclude of count(f,0)+count(f,1), k = the same sum of count(f,pos),
+// giving Agg{n, k, k} as TargetMask does.
 func (s *Stats) Target(l, o, exclude, pos int) Agg {
+	if s.Task == Binary && s.Classes == 2 && uint(pos) < 2 {
+		row := s.cls.row(l)
+		var n, k uint64
+		for f := 0; f+1 < len(row); f += 2 {
+			if f != 2*exclude {
+				n += uint64(row[f]) + uint64(row[f+1])
+				k += uint64(row[f+pos])
+			}
+		}
+		return Agg{N: float64(n), Sum: float64(k), SumSq: float64(k)}
+	}
 	return s.TargetMask(l, o, pos, s.allBut[exclude+1])
 }
 
@@ -347,6 +403,85 @@ func (ft *Fitted) Encode(a Agg) float64 {
 	return smooth.MEstimate(a.Sum, a.N, ft.M, ft.Prior)
 }
 
+// FitFolds returns the fits of every output o that derive-style callers
+// need: full[o] is Fit(o, -1, pos, sm, keep, order) and byFold[e][o] is
+// Fit(o, e, pos, sm, keep, nil) for every fold e (byFold is nil with one
+// fold). For classification with "m" or "blend" smoothing a fit depends
+// only on the per-fold totals of the counts, which are integers and sum
+// exactly in any order: FitFolds then takes one sequential pass over the
+// count cells (CellTotals, O(levels*Folds*Classes), no random access)
+// instead of Outputs*(Folds+1) passes over the levels, with bit-identical
+// results. "auto" and regression sum float moments in a fixed order and
+// take the Fit path.
+func (s *Stats) FitFolds(pos int, sm Smoothing, keep []bool, order []uint32) (full []Fitted, byFold [][]Fitted) {
+	k, outs := s.Folds, s.Outputs()
+	full = make([]Fitted, outs)
+	if k > 1 {
+		byFold = make([][]Fitted, k)
+		for e := range byFold {
+			byFold[e] = make([]Fitted, outs)
+		}
+	}
+	if s.Task == Regression || sm.Kind == "auto" {
+		for o := 0; o < outs; o++ {
+			full[o] = s.Fit(o, -1, pos, sm, keep, order)
+		}
+		for e := range byFold {
+			for o := 0; o < outs; o++ {
+				byFold[e][o] = s.Fit(o, e, pos, sm, keep, nil)
+			}
+		}
+		return full, byFold
+	}
+	tot := s.CellTotals()
+	C := s.Classes
+	var mo smooth.Moments // unused by m and blend
+	fit := func(o, exclude int) Fitted {
+		if s.Task == Binary {
+			o = pos
+		}
+		var n, kk uint64
+		for f := 0; f < k; f++ {
+			if f == exclude {
+				continue
+			}
+			for c := 0; c < C; c++ {
+				n += tot[f*C+c]
+			}
+			kk += tot[f*C+o]
+		}
+		return fitted(Agg{N: float64(n), Sum: float64(kk), SumSq: float64(kk)}, &mo, sm)
+	}
+	for o := 0; o < outs; o++ {
+		full[o] = fit(o, -1)
+		for e := range byFold {
+			byFold[e][o] = fit(o, e)
+		}
+	}
+	return full, byFold
+}
+
+// CellTotals returns, for classification, the rows of every fold f and
+// class c over all levels at index f*Classes+c: one sequential pass over
+// the count cells.
+func (s *Stats) CellTotals() []uint64 {
+	w := s.cls.width
+	tot := make([]uint64, w)
+	if w == 0 {
+		return tot
+	}
+	for _, ch := range s.cls.chunks {
+		// Cells of levels not yet added are zero and add nothing.
+		for i := 0; i+w <= len(ch); i += w {
+			row := ch[i : i+w : i+w]
+			for j, v := range row {
+				tot[j] += uint64(v)
+			}
+		}
+	}
+	return tot
+}
+
 // Fit computes the prior (the mean target of the fitting rows) and, for
 // auto smoothing, the empirical-Bayes m over the levels, for output o over
 // all folds but exclude. keep reports which level slots count as seen
@@ -398,38 +533,108 @@ func (s *Stats) Merge(o *Stats) error {
 // Sorted returns the level slots in a canonical order: the null level first
 // (if it has rows), then levels by their bytes ascending. Slots with no
 // rows are left out. It sorts compact keys (the first 8 bytes of each level
-// and its slot), comparing whole levels only where those tie.
+// as a big-endian number, and its slot) in place by a most-significant-byte
+// radix sort (sortKeys), comparing whole levels only among keys whose 8
+// bytes tie: O(n) passes over the keys for the prefix bytes, no extra
+// memory beyond the 16-byte keys.
 func (s *Stats) Sorted() []uint32 {
-	type key struct {
-		pre  uint64
-		slot uint32
+	keys := make([]sortKey, 0, len(s.Rows))
+	for l := 1; l < len(s.Rows); l++ {
+		if s.Rows[l] > 0 {
+			keys = append(keys, sortKey{prefix8(s.Bytes(l)), uint32(l)})
+		}
 	}
-	keys := make([]key, 0, len(s.Rows))
-	var out []uint32
+	s.sortKeys(keys, 56)
+	n := len(keys)
+	if s.Rows[0] > 0 {
+		n++
+	}
+	out := make([]uint32, 0, n)
 	if s.Rows[0] > 0 {
 		out = append(out, 0)
 	}
-	for l := 1; l < len(s.Rows); l++ {
-		if s.Rows[l] > 0 {
-			keys = append(keys, key{prefix8(s.Bytes(l)), uint32(l)})
-		}
-	}
-	slices.SortFunc(keys, func(a, b key) int {
-		if a.pre != b.pre {
-			return cmp.Compare(a.pre, b.pre)
-		}
-		return bytes.Compare(s.Bytes(int(a.slot)), s.Bytes(int(b.slot)))
-	})
 	for _, k := range keys {
 		out = append(out, k.slot)
 	}
 	return out
 }
 
+// sortKey is a level's sort key: the first 8 bytes of its text and its slot.
+type sortKey struct {
+	pre  uint64
+	slot uint32
+}
+
+// radixMin is the bucket size below which sortKeys compares keys instead of
+// distributing them.
+const radixMin = 48
+
+// sortKeys sorts keys by (pre, level bytes), all keys agreeing on the
+// prefix bits above shift+8: an in-place distribution on the byte at shift
+// (American flag sort), then each bucket on the next byte. A bucket that
+// is small, or whose 8 prefix bytes all tie, is finished by comparison.
+func (s *Stats) sortKeys(keys []sortKey, shift int) {
+	for {
+		if len(keys) < radixMin || shift < 0 {
+			s.sortCompare(keys)
+			return
+		}
+		var count [256]int
+		for _, k := range keys {
+			count[byte(k.pre>>uint(shift))]++
+		}
+		if count[byte(keys[0].pre>>uint(shift))] == len(keys) {
+			shift -= 8 // one bucket: go to the next byte without moving
+			continue
+		}
+		var start, end [256]int
+		o := 0
+		for b := range count {
+			start[b] = o
+			o += count[b]
+			end[b] = o
+		}
+		next := start
+		for b := 0; b < 256; b++ {
+			for next[b] < end[b] {
+				k := keys[next[b]]
+				d := int(byte(k.pre >> uint(shift)))
+				for d != b {
+					// Place k in its bucket and carry the key it displaces.
+					keys[next[d]], k = k, keys[next[d]]
+					next[d]++
+					d = int(byte(k.pre >> uint(shift)))
+				}
+				keys[next[b]] = k
+				next[b]++
+			}
+		}
+		for b := 0; b < 256; b++ {
+			if end[b]-start[b] > 1 {
+				s.sortKeys(keys[start[b]:end[b]], shift-8)
+			}
+		}
+		return
+	}
+}
+
+// sortCompare sorts keys by (pre, level bytes) by comparison.
+func (s *Stats) sortCompare(keys []sortKey) {
+	slices.SortFunc(keys, func(a, b sortKey) int {
+		if a.pre != b.pre {
+			return cmp.Compare(a.pre, b.pre)
+		}
+		return bytes.Compare(s.Bytes(int(a.slot)), s.Bytes(int(b.slot)))
+	})
+}
+
 // prefix8 returns the first 8 bytes of b as a big-endian number, padded
 // with zeros, so that numbers order as the bytes do (a shorter level that
 // is a prefix of a longer one ties here and is resolved by bytes.Compare).
 func prefix8(b []byte) uint64 {
+	if len(b) >= 8 {
+		return binary.BigEndian.Uint64(b)
+	}
 	var v uint64
 	for i := 0; i < 8; i++ {
 		v <<= 8

@@ -1,7 +1,12 @@
 package colstats
 
 import (
+	"bytes"
+	"fmt"
 	"math"
+	"math/rand/v2"
+	"slices"
+	"sort"
 	"testing"
 )
 
@@ -207,4 +212,188 @@ func equalCodes(a, b []int32) bool {
 		}
 	}
 	return true
+}
+
+// sortedRef is the canonical order by its definition: the null slot first
+// when it has rows, then the slots with rows by their bytes.
+func sortedRef(s *Stats) []uint32 {
+	var out, rest []uint32
+	if s.Rows[0] > 0 {
+		out = append(out, 0)
+	}
+	for l := 1; l < len(s.Rows); l++ {
+		if s.Rows[l] > 0 {
+			rest = append(rest, uint32(l))
+		}
+	}
+	sort.Slice(rest, func(i, j int) bool { return bytes.Compare(s.Bytes(int(rest[i])), s.Bytes(int(rest[j]))) < 0 })
+	return append(out, rest...)
+}
+
+func TestSortedMatchesDefinition(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 11))
+	cases := []struct {
+		name string
+		n    int
+		gen  func(i int) []byte
+	}{
+		{"shipment ids", 20000, func(int) []byte {
+			b := []byte("S")
+			for j := 0; j < 10; j++ {
+				b = append(b, "0123456789ABCDEFGHIJKLMNOPQRSTUVWXYZ"[rng.IntN(36)])
+			}
+			return b
+		}},
+		// Long shared prefixes: every key ties on its first 8 bytes with
+		// many others, so buckets end by comparing whole levels.
+		{"shared prefix", 5000, func(i int) []byte { return fmt.Appendf(nil, "acct-0000%d", rng.IntN(100000)) }},
+		// Short levels, empty level, zero bytes: "ab" and "ab\x00" tie on
+		// the padded prefix and must still order by bytes.
+		{"short and zeros", 3000, func(i int) []byte {
+			b := make([]byte, rng.IntN(10))
+			for j := range b {
+				b[j] = []byte{0, 1, 'a', 'b', 0xff}[rng.IntN(5)]
+			}
+			return b
+		}},
+		{"few", 5, func(i int) []byte { return []byte{byte('e' - i)} }},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			s := New(Binary, 1, 2, 0)
+			s.AddRow(0)
+			for i := 0; i < tc.n; i++ {
+				l := s.Level(tc.gen(i))
+				if i%7 != 3 { // some levels keep no rows and are left out
+					s.AddRow(l)
+				}
+			}
+			got, want := s.Sorted(), sortedRef(s)
+			if !slices.Equal(got, want) {
+				t.Fatalf("Sorted differs from the byte order (%d vs %d slots)", len(got), len(want))
+			}
+		})
+	}
+}
+
+func TestFitFoldsMatchesFit(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 5))
+	for _, task := range []Task{Binary, Multiclass, Regression} {
+		for _, sm := range []Smoothing{{Kind: "m", M: 20}, {Kind: "blend", K: 5, F: 2}, {Kind: "auto"}} {
+			const k = 4
+			classes := 2
+			if task == Multiclass {
+				classes = 3
+			}
+			s := New(task, k, classes, 0)
+			for i := 0; i < 30000; i++ {
+				l := s.Level(fmt.Appendf(nil, "P%d", rng.IntN(3000)))
+				if task == Regression {
+					s.AddValue(l, rng.IntN(k), rng.Float64()*10)
+				} else {
+					s.AddClass(l, rng.IntN(k), rng.IntN(classes))
+				}
+			}
+			keep := make([]bool, s.NumLevels())
+			for l := range keep {
+				keep[l] = l%5 != 0
+			}
+			order := s.Sorted()
+			full, byFold := s.FitFolds(1, sm, keep, order)
+			same := func(a, b Fitted) bool {
+				return math.Float64bits(a.Prior) == math.Float64bits(b.Prior) && (a.M == b.M || math.IsNaN(a.M) && math.IsNaN(b.M))
+			}
+			for o := 0; o < s.Outputs(); o++ {
+				if w := s.Fit(o, -1, 1, sm, keep, order); !same(full[o], w) {
+					t.Errorf("%s %s full[%d] = %+v, Fit gives %+v", task, sm.Kind, o, full[o], w)
+				}
+				for e := 0; e < k; e++ {
+					if w := s.Fit(o, e, 1, sm, keep, nil); !same(byFold[e][o], w) {
+						t.Errorf("%s %s fold %d output %d = %+v, Fit gives %+v", task, sm.Kind, e, o, byFold[e][o], w)
+					}
+				}
+			}
+		}
+	}
+}
+
+// BenchmarkSorted orders 2M random shipment-id-like levels (11 bytes, a
+// constant first byte). Run: go test -run '^$' -bench Sorted ./encoders/colstats
+func BenchmarkSorted(b *testing.B) {
+	s := benchStats()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		s.Sorted()
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/2e6, "ns/level")
+}
+
+// benchStats holds 2M random shipment-id-like levels (11 bytes, a constant
+// first byte), one row each.
+func benchStats() *Stats {
+	rng := rand.New(rand.NewPCG(1, 2))
+	s := New(Binary, 1, 2, 2_000_000)
+	buf := make([]byte, 11)
+	for i := 0; i < 2_000_000; i++ {
+		buf[0] = 'S'
+		for j := 1; j < len(buf); j++ {
+			buf[j] = "0123456789ABCDEFGHIJKLMNOPQRSTUVWXYZ"[rng.IntN(36)]
+		}
+		s.AddRow(s.Level(buf))
+	}
+	return s
+}
+
+// BenchmarkTarget computes the out-of-fold statistic of 1M binary levels
+// with 5 folds, the fold excluded cycling: by Target (the binary fast
+// path) and by TargetMask with the equivalent fold mask. Run:
+// go test -run '^$' -bench Target ./encoders/colstats
+func BenchmarkTarget(b *testing.B) {
+	const n, k = 1 << 20, 5
+	s := New(Binary, k, 2, n)
+	rng := rand.New(rand.NewPCG(4, 4))
+	for i := 0; i < 4*n; i++ {
+		s.AddClass(s.Level(fmt.Appendf(nil, "L%d", i%n)), rng.IntN(k), rng.IntN(2))
+	}
+	for _, mask := range []bool{false, true} {
+		name := "Target"
+		if mask {
+			name = "TargetMask"
+		}
+		b.Run(name, func(b *testing.B) {
+			var sum float64
+			for i := 0; i < b.N; i++ {
+				l, e := 1+i%n, i%k
+				var a Agg
+				if mask {
+					a = s.TargetMask(l, 0, 1, s.allBut[e+1])
+				} else {
+					a = s.Target(l, 0, e, 1)
+				}
+				sum += a.Sum
+			}
+			if sum < 0 {
+				b.Fatal(sum)
+			}
+		})
+	}
+}
+
+func TestTargetMatchesMask(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 1))
+	for _, k := range []int{1, 2, 5} {
+		s := New(Binary, k, 2, 0)
+		for i := 0; i < 5000; i++ {
+			s.AddClass(s.Level(fmt.Appendf(nil, "R-%03d", rng.IntN(300))), rng.IntN(k), rng.IntN(2))
+		}
+		for l := 0; l < s.NumLevels(); l++ {
+			for e := -1; e < k; e++ {
+				for pos := 0; pos < 2; pos++ {
+					if got, want := s.Target(l, 0, e, pos), s.TargetMask(l, 0, pos, s.allBut[e+1]); got != want {
+						t.Fatalf("k=%d level %d exclude %d pos %d: Target %+v, TargetMask %+v", k, l, e, pos, got, want)
+					}
+				}
+			}
+		}
+	}
 }

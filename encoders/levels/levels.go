@@ -69,6 +69,8 @@ type Table struct {
 	slots  []slot     // power-of-two length
 	shift  uint       // 64 - log2(len(slots)): home slot of hash h is h >> shift
 	grow   int        // level count above which slots doubles
+
+	touched uint32 // sum of the slots InternBatch loads ahead, kept so the loads stay
 }
 
 // Arena and location table geometry. A location packs a level's chunk (24
@@ -121,7 +123,11 @@ func (t *Table) Level(id uint32) []byte {
 	if uint64(id) >= uint64(t.n) {
 		return nil
 	}
-	l := t.loc(id)
+	return t.at(t.loc(id))
+}
+
+// at returns the bytes at location l (see Level).
+func (t *Table) at(l uint64) []byte {
 	c := t.chunks[l>>(offBits+lenBits)]
 	n := l & lenMask
 	if n == lenMask {
@@ -206,6 +212,87 @@ func (t *Table) Lookup(b []byte) (uint32, bool) {
 		}
 		if s.tag == tag && bytes.Equal(t.Level(s.id1-1), b) {
 			return s.id1 - 1, true
+		}
+	}
+}
+
+// batchGroup is the number of keys InternBatch and LookupBatch hash and
+// fetch the home slots of before probing any of them.
+const batchGroup = 32
+
+// InternBatch sets ids[i] to Intern(keys[i]) for every i, in order, so that
+// new levels get the same ids as interning them one by one would give
+// (len(ids) >= len(keys)). It hashes a group of keys and loads their home
+// slots before probing any of them: the slot table of a table of millions
+// of levels is far larger than the caches, and the loads of a group, being
+// independent, wait for memory together instead of one after another.
+func (t *Table) InternBatch(keys [][]byte, ids []uint32) {
+	if t.slots == nil {
+		t.init(0)
+	}
+	ids = ids[:len(keys)]
+	var hs [batchGroup]uint64
+	var touch uint32
+	for start := 0; start < len(keys); start += batchGroup {
+		group := keys[start:min(start+batchGroup, len(keys))]
+		for j, k := range group {
+			h := Hash(k)
+			hs[j] = h
+			touch += t.slots[h>>t.shift].id1
+		}
+		for j, k := range group {
+			ids[start+j] = t.InternHash(k, hs[j])
+		}
+	}
+	t.touched += touch
+}
+
+// LookupBatch sets ids[i] to the id of keys[i], or NoID when keys[i] is not
+// in the table (len(ids) >= len(keys)). Like InternBatch it hashes a group
+// of keys and loads their home slots, and then the locations of the levels
+// those slots point to, before comparing any bytes. It does not allocate.
+func (t *Table) LookupBatch(keys [][]byte, ids []uint32) {
+	ids = ids[:len(keys)]
+	if len(t.slots) == 0 {
+		for i := range ids {
+			ids[i] = NoID
+		}
+		return
+	}
+	var hs [batchGroup]uint64
+	var home [batchGroup]slot
+	var locs [batchGroup]uint64
+	mask := uint64(len(t.slots) - 1)
+	for start := 0; start < len(keys); start += batchGroup {
+		group := keys[start:min(start+batchGroup, len(keys))]
+		for j, k := range group {
+			h := Hash(k)
+			hs[j] = h
+			home[j] = t.slots[h>>t.shift]
+		}
+		for j := range group {
+			if s := home[j]; s.id1 != 0 && s.tag == uint32(hs[j]>>32) {
+				locs[j] = t.loc(s.id1 - 1)
+			}
+		}
+		for j, k := range group {
+			h := hs[j]
+			tag := uint32(h >> 32)
+			s := home[j]
+			if s.id1 != 0 && s.tag == tag && bytes.Equal(t.at(locs[j]), k) {
+				ids[start+j] = s.id1 - 1
+				continue
+			}
+			id := NoID
+			for i := h >> t.shift; s.id1 != 0; {
+				i = (i + 1) & mask
+				s = t.slots[i]
+				if s.id1 != 0 && s.tag == tag && bytes.Equal(t.Level(s.id1-1), k) {
+					id = s.id1 - 1
+					break
+				}
+			}
+			ids[start+j] = id
 		}
 	}
 }

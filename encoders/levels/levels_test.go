@@ -377,3 +377,130 @@ func TestChunkBoundaries(t *testing.T) {
 		}
 	}
 }
+
+// shipmentKeys returns n random shipment-id-like keys (an S and 10 base-36
+// characters, as the benchmark tables hold), aliasing one buffer.
+func shipmentKeys(n int) [][]byte {
+	const digits = "0123456789ABCDEFGHIJKLMNOPQRSTUVWXYZ"
+	buf := make([]byte, 0, 11*n)
+	keys := make([][]byte, n)
+	x := uint64(88172645463325252)
+	for i := range keys {
+		at := len(buf)
+		buf = append(buf, 'S')
+		for j := 0; j < 10; j++ {
+			x ^= x << 13
+			x ^= x >> 7
+			x ^= x << 17
+			buf = append(buf, digits[x%36])
+		}
+		keys[i] = buf[at:len(buf):len(buf)]
+	}
+	return keys
+}
+
+// BenchmarkBatch interns n nearly unique keys into an empty table, one by
+// one (Intern) or a batch of 4096 at a time (InternBatch), then looks every
+// key up again in the same order, one by one (Lookup) or by batch
+// (LookupBatch): the two passes over a column of shipment ids. Metrics in
+// ns per key. Run: go test -run '^$' -bench Batch -benchtime 1x ./encoders/levels
+func BenchmarkBatch(b *testing.B) {
+	const n = 10_000_000
+	keys := shipmentKeys(n)
+	ids := make([]uint32, 4096)
+	for _, batch := range []bool{false, true} {
+		name := "one"
+		if batch {
+			name = "batch"
+		}
+		b.Run(name, func(b *testing.B) {
+			var build, look time.Duration
+			for it := 0; it < b.N; it++ {
+				tb := New(0)
+				start := time.Now()
+				for i := 0; i < n; i += len(ids) {
+					ks := keys[i:min(i+len(ids), n)]
+					if batch {
+						tb.InternBatch(ks, ids)
+					} else {
+						for j, k := range ks {
+							ids[j] = tb.Intern(k)
+						}
+					}
+				}
+				build += time.Since(start)
+				start = time.Now()
+				miss := 0
+				for i := 0; i < n; i += len(ids) {
+					ks := keys[i:min(i+len(ids), n)]
+					if batch {
+						tb.LookupBatch(ks, ids)
+					} else {
+						for j, k := range ks {
+							id, _ := tb.Lookup(k)
+							ids[j] = id
+						}
+					}
+					for j := range ks {
+						if ids[j] == NoID {
+							miss++
+						}
+					}
+				}
+				look += time.Since(start)
+				if miss != 0 {
+					b.Fatalf("%d keys not found", miss)
+				}
+			}
+			b.ReportMetric(float64(build.Nanoseconds())/float64(b.N*n), "intern-ns/key")
+			b.ReportMetric(float64(look.Nanoseconds())/float64(b.N*n), "lookup-ns/key")
+		})
+	}
+}
+
+// TestBatchMatchesOneByOne interns and looks up batches holding repeats,
+// keys seen in earlier batches and (for lookups) keys never added, across
+// slot table growth, and checks every id against Intern and Lookup called
+// one key at a time on a second table.
+func TestBatchMatchesOneByOne(t *testing.T) {
+	keys := randomKeys(20000, 9)
+	for _, size := range []int{1, 7, batchGroup, batchGroup + 1, 1000} {
+		bt, ref := New(0), New(0)
+		ids := make([]uint32, size)
+		for start := 0; start < 3*len(keys)/2; start += size {
+			batch := make([][]byte, 0, size)
+			for i := start; i < start+size; i++ {
+				batch = append(batch, keys[(i*7)%len(keys)%(i/3+1)])
+			}
+			bt.InternBatch(batch, ids)
+			for j, k := range batch {
+				if want := ref.Intern(k); ids[j] != want {
+					t.Fatalf("size %d: InternBatch id %d, Intern gives %d", size, ids[j], want)
+				}
+			}
+		}
+		if bt.Len() != ref.Len() {
+			t.Fatalf("size %d: %d levels, want %d", size, bt.Len(), ref.Len())
+		}
+		probe := append(randomKeys(500, 10), keys[:500]...)
+		for start := 0; start < len(probe); start += size {
+			batch := probe[start:min(start+size, len(probe))]
+			bt.LookupBatch(batch, ids)
+			for j, k := range batch {
+				want, ok := ref.Lookup(k)
+				if !ok {
+					want = NoID
+				}
+				if ids[j] != want {
+					t.Fatalf("size %d: LookupBatch(%q) = %d, Lookup gives %d", size, k, ids[j], want)
+				}
+			}
+		}
+	}
+	var empty Table
+	ids := []uint32{7}
+	empty.LookupBatch([][]byte{[]byte("x")}, ids)
+	if ids[0] != NoID {
+		t.Errorf("LookupBatch on an empty table = %d, want NoID", ids[0])
+	}
+}

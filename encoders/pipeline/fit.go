@@ -283,10 +283,21 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			c.ParentOf = of
 		}
 	}
-	for _, c := range m.Cols {
-		m.derive(c, tr != nil)
-	}
+	m.deriveAll(tr != nil, opt.Threads)
 	return m, nil
+}
+
+// deriveAll derives every column, threads at a time: a parent shared by
+// several columns (--prior-by column) is derived first, then the columns,
+// each of which writes only its own Col, so the result does not depend on
+// the number of threads.
+func (m *Model) deriveAll(supervised bool, threads int) {
+	if supervised {
+		for _, c := range m.Cols {
+			m.deriveParent(c)
+		}
+	}
+	each(len(m.Cols), threads, func(i int) { m.derive(m.Cols[i], supervised) })
 }
 
 // derive computes the seen flags and every value derived from the
@@ -313,29 +324,23 @@ func (m *Model) derive(c *Col, supervised bool) {
 	if !supervised {
 		return
 	}
-	if c.Parent != nil && c.Parent.Full == nil {
-		m.derive(c.Parent, true)
-		p := c.Parent
-		p.TMean = make([][]float64, len(p.Full))
-		for o := range p.Full {
-			p.TMean[o] = make([]float64, p.St.NumLevels())
-			for l := range p.TMean[o] {
-				p.TMean[o][l] = m.value(p, l, -1, o, -1, p.Full[o])
-			}
-		}
+	m.deriveParent(c)
+	c.Full, c.FoldFit = st.FitFolds(m.Pos, sp.Smoothing, c.Keep, order)
+}
+
+// deriveParent derives the parent levels of c, if it has some not yet
+// derived, and their full-data encoded values.
+func (m *Model) deriveParent(c *Col) {
+	if c.Parent == nil || c.Parent.Full != nil {
+		return
 	}
-	outs := st.Outputs()
-	c.Full = make([]colstats.Fitted, outs)
-	for o := 0; o < outs; o++ {
-		c.Full[o] = st.Fit(o, -1, m.Pos, sp.Smoothing, c.Keep, order)
-	}
-	if k := st.Folds; k > 1 {
-		c.FoldFit = make([][]colstats.Fitted, k)
-		for f := 0; f < k; f++ {
-			c.FoldFit[f] = make([]colstats.Fitted, outs)
-			for o := 0; o < outs; o++ {
-				c.FoldFit[f][o] = st.Fit(o, f, m.Pos, sp.Smoothing, c.Keep, nil)
-			}
+	m.derive(c.Parent, true)
+	p := c.Parent
+	p.TMean = make([][]float64, len(p.Full))
+	for o := range p.Full {
+		p.TMean[o] = make([]float64, p.St.NumLevels())
+		for l := range p.TMean[o] {
+			p.TMean[o][l] = m.value(p, l, -1, o, -1, p.Full[o])
 		}
 	}
 }

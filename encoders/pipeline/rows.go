@@ -15,7 +15,8 @@ import (
 
 // levelSlots maps the rows of one column in a batch to level slots of a
 // Stats, caching the slot of each dictionary entry so that a dictionary
-// column is looked up once per entry, not once per row.
+// column is looked up once per entry (per column chunk: the cache holds
+// across the batches of one dictionary), not once per row.
 type levelSlots struct {
 	col      int // position in the batch
 	prefix   int // >0: look up the first prefix bytes of each value
@@ -24,26 +25,36 @@ type levelSlots struct {
 	dictMap  []int32
 	scratch  []byte
 	slots    []int32
+
+	// Per batch: the values to look up, in order of first use.
+	keys  [][]byte
+	ents  []int32 // dictionary: the entry of each key
+	ends  []int   // other forms: end of each key in scratch
+	ids   []uint32
+	found []int32
 }
 
-const unmapped = math.MinInt32
+const (
+	unmapped = math.MinInt32
+	pending  = math.MinInt32 + 1 // dictionary entry queued for lookup in this batch
+)
 
 // fill computes slots[i] for every row of the batch. With add, new levels
-// are added to st; otherwise an unseen level gets -1.
+// are added to st, in order of first appearance; otherwise an unseen level
+// gets -1. The values are gathered first and looked up in one batch
+// (Stats.LevelBatch, Stats.LookupBatch).
 func (ls *levelSlots) fill(b *table.Batch, st *colstats.Stats, add bool) []int32 {
 	c := &b.Cols[ls.col]
 	if cap(ls.slots) < b.Rows {
 		ls.slots = make([]int32, b.Rows)
 	}
 	slots := ls.slots[:b.Rows]
-	lookup := func(v []byte) int32 {
+	keys := ls.keys[:0]
+	cut := func(v []byte) []byte {
 		if ls.prefix > 0 && len(v) > ls.prefix {
 			v = v[:ls.prefix]
 		}
-		if add {
-			return int32(st.Level(v))
-		}
-		return int32(st.Lookup(v))
+		return v
 	}
 	switch c.Form {
 	case table.FormDict:
@@ -58,38 +69,92 @@ func (ls *levelSlots) fill(b *table.Batch, st *colstats.Stats, add bool) []int32
 				ls.dictMap[i] = unmapped
 			}
 		}
+		ents := ls.ents[:0]
 		for i := 0; i < b.Rows; i++ {
 			if c.IsNull(i) {
-				slots[i] = int32(ls.nullSlot)
 				continue
 			}
 			j := c.Indices[i]
-			s := ls.dictMap[j]
-			if s == unmapped {
-				s = lookup(c.Dict.Entry(int(j)))
-				ls.dictMap[j] = s
+			if ls.dictMap[j] == unmapped {
+				ls.dictMap[j] = pending
+				ents = append(ents, j)
+				keys = append(keys, cut(c.Dict.Entry(int(j))))
 			}
-			slots[i] = s
+		}
+		found := ls.lookup(st, keys, add)
+		for k, j := range ents {
+			ls.dictMap[j] = found[k]
+		}
+		ls.ents = ents
+		for i := 0; i < b.Rows; i++ {
+			if c.IsNull(i) {
+				slots[i] = int32(ls.nullSlot)
+				continue
+			}
+			slots[i] = ls.dictMap[c.Indices[i]]
 		}
 	case table.FormText:
 		for i := 0; i < b.Rows; i++ {
-			if c.IsNull(i) {
-				slots[i] = int32(ls.nullSlot)
-				continue
+			if !c.IsNull(i) {
+				keys = append(keys, cut(c.Data[c.Offsets[i]:c.Offsets[i+1]]))
 			}
-			slots[i] = lookup(c.Data[c.Offsets[i]:c.Offsets[i+1]])
 		}
+		ls.scatter(c, slots, ls.lookup(st, keys, add))
 	default:
+		ends := ls.ends[:0]
+		buf := ls.scratch[:0]
 		for i := 0; i < b.Rows; i++ {
-			if c.IsNull(i) {
-				slots[i] = int32(ls.nullSlot)
-				continue
+			if !c.IsNull(i) {
+				at := len(buf)
+				buf = c.AppendText(buf, i)
+				if ls.prefix > 0 && len(buf)-at > ls.prefix {
+					buf = buf[:at+ls.prefix]
+				}
+				ends = append(ends, len(buf))
 			}
-			ls.scratch = c.AppendText(ls.scratch[:0], i)
-			slots[i] = lookup(ls.scratch)
 		}
+		// Slice the keys only now: buf may have moved while it grew.
+		at := 0
+		for _, e := range ends {
+			keys = append(keys, buf[at:e:e])
+			at = e
+		}
+		ls.scratch, ls.ends = buf, ends
+		ls.scatter(c, slots, ls.lookup(st, keys, add))
 	}
+	clear(keys) // drop references to the batch's buffers
+	ls.keys = keys[:0]
 	return slots
+}
+
+// lookup returns the slots of keys, adding new levels with add.
+func (ls *levelSlots) lookup(st *colstats.Stats, keys [][]byte, add bool) []int32 {
+	n := len(keys)
+	if cap(ls.ids) < n {
+		ls.ids = make([]uint32, n)
+		ls.found = make([]int32, n)
+	}
+	found := ls.found[:n]
+	if add {
+		st.LevelBatch(keys, ls.ids, found)
+	} else {
+		st.LookupBatch(keys, ls.ids, found)
+	}
+	return found
+}
+
+// scatter writes the slots found for the non-null rows of c, in order, and
+// the null slot for the null rows.
+func (ls *levelSlots) scatter(c *table.Column, slots, found []int32) {
+	k := 0
+	for i := range slots {
+		if c.IsNull(i) {
+			slots[i] = int32(ls.nullSlot)
+			continue
+		}
+		slots[i] = found[k]
+		k++
+	}
 }
 
 // targetReader turns the target column of a batch into class indices
@@ -107,6 +172,9 @@ type targetReader struct {
 	vals    []float64
 	missing int64
 	fixed   bool // task given by the user: do not switch
+	// Integer targets: the values met so far and their classes.
+	ints   []int64
+	intCls []int32
 }
 
 func (tr *targetReader) dataErr(b *table.Batch, i int, err error) error {
@@ -153,6 +221,16 @@ func (tr *targetReader) read(b *table.Batch) error {
 			tr.missing++
 			continue
 		}
+		if c.Form == table.FormInt64 && tr.numeric {
+			// An integer target has few distinct values: find the class of
+			// this one among those already met before formatting it as a
+			// label and looking that up.
+			v := c.Ints[i]
+			if k, ok := tr.intClass(v); ok {
+				tr.cls[i] = k
+				continue
+			}
+		}
 		var key []byte
 		if tr.numeric {
 			v, _, err := c.Float(i)
@@ -182,8 +260,23 @@ func (tr *targetReader) read(b *table.Batch) error {
 			tr.order = append(tr.order, string(key))
 		}
 		tr.cls[i] = int32(k)
+		if c.Form == table.FormInt64 && tr.numeric && len(tr.ints) < 2*MaxClasses {
+			tr.ints = append(tr.ints, c.Ints[i])
+			tr.intCls = append(tr.intCls, int32(k))
+		}
 	}
 	return nil
+}
+
+// intClass returns the class of integer target value v if v was met
+// before: a linear search of at most MaxClasses values, most often two.
+func (tr *targetReader) intClass(v int64) (int32, bool) {
+	for j, w := range tr.ints {
+		if w == v {
+			return tr.intCls[j], true
+		}
+	}
+	return 0, false
 }
 
 // detectRegression decides the task from the first batch when the user did

@@ -327,62 +327,71 @@ func (m *Model) saveCol(path string, c *Col) error {
 			lv.Data = append(lv.Data, st.Bytes(l)...)
 			lv.Offsets = append(lv.Offsets, int32(len(lv.Data)))
 		}
-		// Each column is filled by a loop of its own over the chunk's
-		// levels: the levels come in canonical order, not in memory
-		// order, so nearly every load misses the cache, and loads that
-		// do not depend on each other let the processor overlap the
-		// misses.
+		// The columns are filled one at a time, each by a loop that does
+		// little more than fetch one value per level: in canonical order the
+		// levels' statistics are scattered over memory, and loops this small
+		// let the processor wait for many of them at once.
 		cols := b.Cols[1:]
+		for j, f := range schema.Fields[1:] {
+			if f.Kind == table.Int64 {
+				ints(&cols[j], n)
+			} else {
+				floats(&cols[j], n)
+			}
+		}
 		j := 0
-		nextInts := func() []int64 { j++; return ints(&cols[j-1], n) }
-		nextFloats := func() []float64 { j++; return floats(&cols[j-1], n) }
-		rowsOut := nextInts()
+		rowsCol := cols[j].Ints
+		j++
 		for i, l := range sel {
-			rowsOut[i] = int64(st.Rows[l])
+			rowsCol[i] = int64(st.Rows[l])
 		}
 		if supervised {
-			tr := nextInts()
-			if m.Task == colstats.Regression {
-				sum, sq := nextFloats(), nextFloats()
-				for i, l := range sel {
-					a := st.Target(l, 0, -1, m.Pos)
-					tr[i], sum[i], sq[i] = int64(a.N), a.Sum, a.SumSq
-				}
+			if m.fastTableValues(c) {
+				m.binaryTableValues(c, sel, cols[j].Ints, cols[j+1].Ints, cols[j+2].Ints, cols[j+3].Floats)
+				j += 4
 			} else {
-				// One loop: a level's counts share a cache line.
-				cnt := make([][]int64, len(m.Classes))
-				for cl := range cnt {
-					cnt[cl] = nextInts()
-				}
 				for i, l := range sel {
-					var n int64
-					for cl := range cnt {
-						k := int64(st.ClassCount(l, cl))
-						cnt[cl][i] = k
-						n += k
+					k := j
+					putI := func(v int64) { cols[k].Ints[i] = v; k++ }
+					putF := func(v float64) { cols[k].Floats[i] = v; k++ }
+					a := st.Target(l, 0, -1, m.Pos)
+					putI(int64(a.N))
+					if m.Task == colstats.Regression {
+						putF(a.Sum)
+						putF(a.SumSq)
+					} else {
+						for cl := range m.Classes {
+							putI(int64(st.ClassCount(l, cl)))
+						}
 					}
-					tr[i] = n
+					for o := range c.Full {
+						putF(m.tmean(c, o, l))
+					}
 				}
-			}
-			for o := range c.Full {
-				tm := nextFloats()
-				for i, l := range sel {
-					tm[i] = m.tmean(c, o, l)
+				j++ // target_rows
+				if m.Task == colstats.Regression {
+					j += 2
+				} else {
+					j += len(m.Classes)
 				}
+				j += len(c.Full)
 			}
 		}
-		fr := nextFloats()
+		freqCol := cols[j].Floats
+		j++
 		for i, l := range sel {
-			fr[i] = m.freq(c, l)
+			freqCol[i] = m.freq(c, l)
 		}
-		tk := nextInts()
+		topCol := cols[j].Ints
+		j++
 		for i, l := range sel {
-			tk[i] = int64(c.TopK[l])
+			topCol[i] = int64(c.TopK[l])
 		}
-		// The bucket hashes the level's bytes, already copied above.
-		bu := nextInts()
+		// The level bytes were copied above, in order: hash them there.
+		bucketCol := cols[j].Ints
 		for i := range sel {
-			bu[i] = int64(hashenc.Bucket(hashenc.Sum(lv.Data[lv.Offsets[i]:lv.Offsets[i+1]], m.Spec.HashSeed), m.Spec.Buckets))
+			v := lv.Data[lv.Offsets[i]:lv.Offsets[i+1]]
+			bucketCol[i] = int64(hashenc.Bucket(hashenc.Sum(v, m.Spec.HashSeed), m.Spec.Buckets))
 		}
 		b.Rows = n
 		if n == 0 {
@@ -394,6 +403,39 @@ func (m *Model) saveCol(path string, c *Col) error {
 		}
 	}
 	return out.Commit()
+}
+
+// fastTableValues reports whether binaryTableValues computes the
+// supervised table columns of c: a binary target, no hierarchical prior,
+// and values computed from the statistics (not loaded).
+func (m *Model) fastTableValues(c *Col) bool {
+	return m.Task == colstats.Binary && len(m.Classes) == 2 && c.St.Classes == 2 && c.Parent == nil && c.TMean == nil && len(c.Full) == 1
+}
+
+// binaryTableValues fills, for the slots sel of a binary-target column,
+// target_rows, count_<class> of the two classes and tmean, from one read
+// of each level's per-fold counts: n_c = sum over folds of the count of
+// class c, target_rows = n_0 + n_1, tmean = Full.Encode(n_0+n_1, n_pos) for
+// a kept level and the prior otherwise (what Target, ClassCount and tmean
+// give, with the same integer sums).
+func (m *Model) binaryTableValues(c *Col, sel []int, rows, c0, c1 []int64, tmean []float64) {
+	st := c.St
+	for i, l := range sel {
+		n0, n1 := st.ClassTotals2(l)
+		rows[i], c0[i], c1[i] = int64(n0+n1), int64(n0), int64(n1)
+	}
+	ft := &c.Full[0]
+	for i, l := range sel {
+		if !c.Keep[l] {
+			tmean[i] = ft.Prior
+			continue
+		}
+		k := c0[i]
+		if m.Pos == 1 {
+			k = c1[i]
+		}
+		tmean[i] = ft.Encode(colstats.Agg{N: float64(rows[i]), Sum: float64(k), SumSq: float64(k)})
+	}
 }
 
 // LoadTables reads a tables directory written by SaveTables into a model

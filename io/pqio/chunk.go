@@ -82,7 +82,7 @@ type chunk struct {
 	// The encoded chunk.
 	pages      [][]byte // compressed data pages, each with its header
 	spare      [][]byte // page buffers of earlier row groups, for reuse
-	uncomp     int64  // uncompressed size of the pages, headers included
+	uncomp     int64    // uncompressed size of the pages, headers included
 	numValues  int64
 	nulls      int64
 	plainPages int32

@@ -297,13 +297,35 @@ func (t *Table) LookupBatch(keys [][]byte, ids []uint32) {
 	}
 }
 
-// rehash doubles the slot table and places every level again. Up to 2^32
-// slots a level's new home is the top bits of its tag, so the old slots are
-// moved in order without touching the arena; past that the bits below the
-// tag are needed and each level is hashed again from the arena.
-func (t *Table) rehash() {
-	slots := make([]slot, 2*len(t.slots))
-	shift := t.shift - 1
+// rehash doubles the slot table and places every level again.
+func (t *Table) rehash() { t.resize(1) }
+
+// Reserve makes room for n levels in all, so that the slot table does not
+// grow again before the table holds n: one rehash now instead of several
+// doublings later. A caller that knows a column is nearly unique reserves
+// its row count. Reserve never shrinks the table.
+func (t *Table) Reserve(n int) {
+	if t.slots == nil {
+		t.init(n)
+		return
+	}
+	k := uint(0)
+	for (len(t.slots)<<k)/4*3 < n {
+		k++
+	}
+	if k > 0 {
+		t.resize(k)
+	}
+}
+
+// resize makes the slot table 2^k times larger and places every level
+// again. Up to 2^32 slots a level's new home is the top bits of its tag, so
+// the old slots are moved in order without touching the arena; past that
+// the bits below the tag are needed and each level is hashed again from
+// the arena.
+func (t *Table) resize(k uint) {
+	slots := make([]slot, len(t.slots)<<k)
+	shift := t.shift - k
 	mask := uint64(len(slots) - 1)
 	if shift >= tagShiftMin {
 		for _, s := range t.slots {

@@ -504,3 +504,51 @@ func TestBatchMatchesOneByOne(t *testing.T) {
 		t.Errorf("LookupBatch on an empty table = %d, want NoID", ids[0])
 	}
 }
+
+// TestReserve: reserving room part way through (by the tags, and from the
+// arena) keeps every id, and the slot table then holds the reserved levels
+// without growing again.
+func TestReserve(t *testing.T) {
+	for _, fromArena := range []bool{false, true} {
+		func() {
+			if fromArena {
+				defer func(old uint) { tagShiftMin = old }(tagShiftMin)
+				tagShiftMin = 64
+			}
+			tb := New(0)
+			ref := map[string]uint32{}
+			var order []string
+			keys := randomKeys(30000, 4)
+			for i, k := range keys {
+				if i == 1000 {
+					tb.Reserve(40000)
+					if len(tb.slots)/4*3 < 40000 {
+						t.Fatalf("Reserve(40000): %d slots", len(tb.slots))
+					}
+				}
+				if _, ok := ref[string(k)]; !ok {
+					ref[string(k)] = uint32(len(order))
+					order = append(order, string(k))
+				}
+				before := len(tb.slots)
+				if got := tb.Intern(k); got != ref[string(k)] {
+					t.Fatalf("arena %v: Intern(%q) = %d, want %d", fromArena, k, got, ref[string(k)])
+				}
+				if i > 1000 && len(tb.slots) != before {
+					t.Fatalf("arena %v: the slot table grew after Reserve", fromArena)
+				}
+			}
+			check(t, tb, ref, order)
+			n := len(tb.slots)
+			tb.Reserve(10) // never shrinks
+			if len(tb.slots) != n {
+				t.Fatal("Reserve shrank the table")
+			}
+		}()
+	}
+	empty := &Table{}
+	empty.Reserve(100)
+	if empty.Intern([]byte("PC-1")) != 0 || len(empty.slots)/4*3 < 100 {
+		t.Fatal("Reserve on the zero Table")
+	}
+}

@@ -58,6 +58,10 @@ type FitOptions struct {
 	Progress  func(rows int64)
 }
 
+// presizeRows is how many rows Fit reads before it decides whether a
+// column is nearly unique (see Levels.Reserve).
+const presizeRows = 50000
+
 // Fit reads every batch of r (the first pass) and gathers the statistics of
 // the spec's columns. It does not close r.
 func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
@@ -150,6 +154,12 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		slots = append(slots, pslots)
 	}
 
+	// The row count, when the reader knows it before reading (Parquet).
+	total := opt.TotalRows
+	if rc, ok := r.(table.RowCounter); ok && total <= 0 {
+		total = rc.NumRows()
+	}
+	sized := make([]bool, len(all))
 	if err := table.ForEach(r, func(b *table.Batch) error {
 		if order != nil {
 			if err := order.check(b); err != nil {
@@ -193,10 +203,20 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if err != nil {
 			return err
 		}
+		seen := m.Rows + int64(b.Rows)
 		each(len(all), opt.Threads, func(ci int) {
 			c := all[ci]
 			ls := slots[ci].fill(b, c.St, true)
 			st := c.St
+			if !sized[ci] && total > 0 && (seen >= presizeRows || seen == total) {
+				// A column whose levels are nearly all distinct so far
+				// (an id) gets its level table sized for every row now,
+				// rather than doubled again and again.
+				sized[ci] = true
+				if float64(st.NumLevels()) >= 0.9*float64(seen) {
+					st.Levels.Reserve(int(total) + 1)
+				}
+			}
 			switch {
 			case tr == nil:
 				for _, l := range ls {

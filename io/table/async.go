@@ -57,7 +57,27 @@ func copyOf[T any](dst, src []T) []T {
 // batch stays valid until the following Next, as Reader requires. Select
 // works as on r, before the first Next. Close stops the goroutine and
 // closes r.
-func ReadAhead(r Reader) Reader { return &readAhead{r: r} }
+func ReadAhead(r Reader) Reader {
+	if rc, ok := r.(RowCounter); ok {
+		return &countedAhead{readAhead{r: r}, rc}
+	}
+	return &readAhead{r: r}
+}
+
+// RowCounter is implemented by readers that know the table's row count
+// before reading it, from the file's metadata (Parquet).
+type RowCounter interface {
+	NumRows() int64
+}
+
+// countedAhead is a readAhead over a RowCounter.
+type countedAhead struct {
+	readAhead
+	rc RowCounter
+}
+
+// NumRows returns the row count of the reader read ahead.
+func (c *countedAhead) NumRows() int64 { return c.rc.NumRows() }
 
 type readAhead struct {
 	r       Reader

@@ -12,6 +12,7 @@ import (
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/hashenc"
+	"manyfold/io/pqio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -292,10 +293,15 @@ func (m *Model) tableSchema(supervised bool) *table.Schema {
 	return s
 }
 
+// tableRowGroup is the number of levels in a row group of a mapping table.
+const tableRowGroup = 1 << 17
+
 func (m *Model) saveCol(path string, c *Col) error {
 	supervised := c.Full != nil
 	schema := m.tableSchema(supervised)
-	out, err := tableio.Create(path, schema, tableio.WriteOptions{Format: tableio.Parquet})
+	// Row groups of tableRowGroup levels: the writer holds a row group's
+	// pages until it is complete, and a table may have millions of levels.
+	out, err := tableio.Create(path, schema, tableio.WriteOptions{Format: tableio.Parquet, Parquet: pqio.WriterOptions{RowGroupRows: tableRowGroup}})
 	if err != nil {
 		return err
 	}

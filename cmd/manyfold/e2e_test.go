@@ -610,3 +610,29 @@ func footer(t *testing.T, path string) *format.FileMetaData {
 	}
 	return pf.Metadata()
 }
+
+// TestTopKCodesInTablesWithoutTopK: the mapping table records each level's
+// top-k code whether or not the encoding asked for top-k codes.
+func TestTopKCodesInTablesWithoutTopK(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "shipments.csv", shipmentsCSV(400))
+	var tops [][]string
+	for i, methods := range []string{"target", "target,topk"} {
+		tab := filepath.Join(dir, fmt.Sprint("tables", i))
+		mustRun(t, "encode", in, "--target", "late", "--columns", "sender", "--methods", methods, "--top-k", "3",
+			"--out", filepath.Join(dir, fmt.Sprint("enc", i, ".csv")), "--tables", tab)
+		tops = append(tops, readTable(t, filepath.Join(tab, "01-sender.parquet")).col(t, "topk"))
+	}
+	if !slices.Equal(tops[0], tops[1]) {
+		t.Fatalf("top-k codes %v without the method, %v with it", tops[0], tops[1])
+	}
+	coded := 0
+	for _, c := range tops[0] {
+		if c != "0" {
+			coded++
+		}
+	}
+	if coded != 3 {
+		t.Fatalf("%d levels coded, want 3: %v", coded, tops[0])
+	}
+}

@@ -36,10 +36,14 @@ type Col struct {
 	// mapping tables holds the stored values.
 	TMean [][]float64
 	Freq  []float64
-	TopK  []int32
-	Order []uint32          // slots in canonical order (Stats.Sorted)
-	total float64           // rows of all levels, for frequency shares
-	Full  []colstats.Fitted // per output
+	// TopK[l] is the top-k code of slot l (0: other). When the encoding
+	// does not ask for top-k codes, only the mapping table needs them:
+	// TopK is then nil and topCodes holds the k coded slots.
+	TopK     []int32
+	topCodes map[int32]int32
+	Order    []uint32          // slots in canonical order (Stats.Sorted)
+	total    float64           // rows of all levels, for frequency shares
+	Full     []colstats.Fitted // per output
 	// Per fold f and output o, the fit over the rows of the other folds.
 	FoldFit [][]colstats.Fitted
 
@@ -341,6 +345,16 @@ func (m *Model) derive(c *Col, supervised bool) {
 		c.total += float64(st.Rows[l])
 	}
 	c.TopK = st.TopK(sp.TopK, sp.MinCount, c.Keep)
+	if !sp.has(MethodTopK) {
+		// Keep the k coded slots, not a code for every level.
+		c.topCodes = map[int32]int32{}
+		for l, k := range c.TopK {
+			if k != 0 {
+				c.topCodes[int32(l)] = k
+			}
+		}
+		c.TopK = nil
+	}
 	if !supervised {
 		return
 	}
@@ -461,6 +475,14 @@ func (m *Model) tmean(c *Col, o, l int) float64 {
 		return c.TMean[o][l]
 	}
 	return m.value(c, l, c.parentOf(l), o, -1, c.Full[o])
+}
+
+// topCode returns the top-k code of slot l (0: other).
+func (c *Col) topCode(l int) int32 {
+	if c.TopK != nil {
+		return c.TopK[l]
+	}
+	return c.topCodes[int32(l)]
 }
 
 // freq returns the frequency of slot l: its rows, or their share of all

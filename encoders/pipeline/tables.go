@@ -391,7 +391,7 @@ func (m *Model) saveCol(path string, c *Col) error {
 		topCol := cols[j].Ints
 		j++
 		for i, l := range sel {
-			topCol[i] = int64(c.TopK[l])
+			topCol[i] = int64(c.topCode(l))
 		}
 		// The level bytes were copied above, in order: hash them there.
 		bucketCol := cols[j].Ints

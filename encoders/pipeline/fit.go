@@ -338,11 +338,19 @@ func (m *Model) derive(c *Col, supervised bool) {
 	if sp.NullsUnseen {
 		c.Keep[0] = false
 	}
-	order := st.Sorted()
-	c.Order = order
+	// Row counts are integers: their float sum is exact (below 2^53)
+	// whatever the order, so it is taken in slot order.
 	c.total = 0
-	for _, l := range order {
+	for l := 0; l < n; l++ {
 		c.total += float64(st.Rows[l])
+	}
+	// The canonical order is needed here only where float sums over the
+	// levels depend on their order (empirical-Bayes moments, regression
+	// sums); otherwise it is sorted when the mapping tables are written,
+	// beside the second pass.
+	var order []uint32
+	if supervised && (st.Task == colstats.Regression || sp.Smoothing.Kind == "auto") {
+		order = c.order()
 	}
 	c.TopK = st.TopK(sp.TopK, sp.MinCount, c.Keep)
 	if !sp.has(MethodTopK) {

@@ -163,6 +163,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	if rc, ok := r.(table.RowCounter); ok && total <= 0 {
 		total = rc.NumRows()
 	}
+	estimate, _ := r.(table.RowEstimator)
 	sized := make([]bool, len(all))
 	if err := table.ForEach(r, func(b *table.Batch) error {
 		if order != nil {
@@ -212,13 +213,17 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			c := all[ci]
 			ls := slots[ci].fill(b, c.St, true)
 			st := c.St
-			if !sized[ci] && total > 0 && (seen >= presizeRows || seen == total) {
+			if !sized[ci] && (seen >= presizeRows || seen == total) {
 				// A column whose levels are nearly all distinct so far
 				// (an id) gets its level table sized for every row now,
 				// rather than doubled again and again.
 				sized[ci] = true
-				if float64(st.NumLevels()) >= 0.9*float64(seen) {
-					st.Levels.Reserve(int(total) + 1)
+				want := total
+				if want <= 0 && estimate != nil {
+					want = estimate.EstimateRows() * 21 / 20
+				}
+				if want > 0 && float64(st.NumLevels()) >= 0.9*float64(seen) {
+					st.Levels.Reserve(int(want) + 1)
 				}
 			}
 			switch {

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"os"
 	"sort"
 	"strconv"
 	"strings"
@@ -169,6 +170,10 @@ type Reader struct {
 	batch    table.Batch
 	bcols    []table.Column
 	rowsDone int64
+	// For EstimateRows: the input's size when it is an uncompressed file
+	// (0 otherwise) and the bytes of the rows delivered so far.
+	size      int64
+	bytesDone int64
 
 	batchRows  int
 	rowCap     int   // rows every column has room for
@@ -243,6 +248,11 @@ func (r *Reader) open(src io.Reader) error {
 		r.src, r.closer, r.codec = zr, zr.IOReadCloser(), "zstd"
 	default:
 		r.src = in
+		if f, ok := src.(*os.File); ok {
+			if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {
+				r.size = st.Size()
+			}
+		}
 	}
 	size := bufSize
 	if size < 8 {
@@ -522,6 +532,7 @@ func (r *Reader) Next() (*table.Batch, error) {
 	b.Rows = rows
 	b.FirstRow = r.rowsDone + 1
 	r.rowsDone += int64(rows)
+	r.bytesDone += int64(r.batchBytes)
 	b.Lines = r.lines
 	r.bcols = r.bcols[:0]
 	for i := range r.cols {
@@ -594,6 +605,17 @@ func checkValue(kind table.Kind, v []byte) error {
 		}
 	}
 	return nil
+}
+
+// EstimateRows estimates the table's rows from the input's size and the
+// bytes per row so far, or returns 0 when it cannot (compressed input,
+// standard input, no row read yet). It is an estimate: callers may size
+// tables by it, never rely on it.
+func (r *Reader) EstimateRows() int64 {
+	if r.size <= 0 || r.rowsDone == 0 || r.bytesDone == 0 {
+		return 0
+	}
+	return int64(float64(r.size) * float64(r.rowsDone) / float64(r.bytesDone))
 }
 
 // Close releases the decompressor, if any. It does not close the

@@ -3,7 +3,10 @@ package csvio
 import (
 	"bytes"
 	"errors"
+	"fmt"
 	"io"
+	"os"
+	"path/filepath"
 	"reflect"
 	"strings"
 	"testing"
@@ -630,5 +633,46 @@ func TestValuesCheckedAgainstKind(t *testing.T) {
 		if !errors.As(last, &de) || de.Line != c.line || de.Column != c.column || de.File != "s.csv" {
 			t.Errorf("%s: %v, want a data error at line %d, column %s", c.name, last, c.line, c.column)
 		}
+	}
+}
+
+// TestEstimateRows: an uncompressed file's rows are estimated from its size
+// once rows have been read; other inputs give 0.
+func TestEstimateRows(t *testing.T) {
+	var sb strings.Builder
+	sb.WriteString("shipment_id,dest_postcode\n")
+	for i := 0; i < 20000; i++ {
+		fmt.Fprintf(&sb, "S%07d,PC%d\n", i, i%97)
+	}
+	path := filepath.Join(t.TempDir(), "s.csv")
+	if err := os.WriteFile(path, []byte(sb.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	r, err := NewReader(f, path, Options{BatchRows: 1000})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n := r.EstimateRows(); n != 0 {
+		t.Errorf("estimate before any row: %d, want 0", n)
+	}
+	if _, err := r.Next(); err != nil {
+		t.Fatal(err)
+	}
+	// Rows of nearly equal length: within 2% of the truth.
+	if n := r.EstimateRows(); n < 19600 || n > 20400 {
+		t.Errorf("estimate %d, want about 20000", n)
+	}
+	sr, err := NewReader(strings.NewReader(sb.String()), "stdin", Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sr.Next()
+	if n := sr.EstimateRows(); n != 0 {
+		t.Errorf("estimate of a stream: %d, want 0", n)
 	}
 }

@@ -57,27 +57,37 @@ func copyOf[T any](dst, src []T) []T {
 // batch stays valid until the following Next, as Reader requires. Select
 // works as on r, before the first Next. Close stops the goroutine and
 // closes r.
-func ReadAhead(r Reader) Reader {
-	if rc, ok := r.(RowCounter); ok {
-		return &countedAhead{readAhead{r: r}, rc}
-	}
-	return &readAhead{r: r}
-}
+func ReadAhead(r Reader) Reader { return &readAhead{r: r} }
 
 // RowCounter is implemented by readers that know the table's row count
-// before reading it, from the file's metadata (Parquet).
+// before reading it, from the file's metadata (Parquet); NumRows returns
+// -1 when it is not known.
 type RowCounter interface {
 	NumRows() int64
 }
 
-// countedAhead is a readAhead over a RowCounter.
-type countedAhead struct {
-	readAhead
-	rc RowCounter
+// RowEstimator is implemented by readers that can estimate the table's row
+// count part way through (an uncompressed CSV file, from its size and the
+// bytes per row so far); EstimateRows returns 0 when they cannot.
+type RowEstimator interface {
+	EstimateRows() int64
 }
 
-// NumRows returns the row count of the reader read ahead.
-func (c *countedAhead) NumRows() int64 { return c.rc.NumRows() }
+// NumRows returns the row count of the reader read ahead, or -1.
+func (a *readAhead) NumRows() int64 {
+	if rc, ok := a.r.(RowCounter); ok {
+		return rc.NumRows()
+	}
+	return -1
+}
+
+// EstimateRows returns the estimate of the reader read ahead, or 0.
+func (a *readAhead) EstimateRows() int64 {
+	if re, ok := a.r.(RowEstimator); ok {
+		return re.EstimateRows()
+	}
+	return 0
+}
 
 type readAhead struct {
 	r       Reader

@@ -309,7 +309,7 @@ func (m *Model) derive(c *Col, supervised bool) {
 	n := st.NumLevels()
 	c.Keep = make([]bool, n)
 	for l := 0; l < n; l++ {
-		c.Keep[l] = st.Rows[l] > 0 && st.Rows[l] >= sp.MinLevelRows
+		c.Keep[l] = st.RowCount(l) > 0 && st.RowCount(l) >= sp.MinLevelRows
 	}
 	if sp.NullsUnseen {
 		c.Keep[0] = false
@@ -318,7 +318,7 @@ func (m *Model) derive(c *Col, supervised bool) {
 	c.Order = order
 	c.total = 0
 	for _, l := range order {
-		c.total += float64(st.Rows[l])
+		c.total += float64(st.RowCount(int(l)))
 	}
 	c.TopK = st.TopK(sp.TopK, sp.MinCount, c.Keep)
 	if !supervised {
@@ -404,7 +404,7 @@ func (m *Model) OutputNames() []string {
 func (m *Model) Levels(i int) int {
 	st := m.Cols[i].St
 	n := st.Levels.Len()
-	if st.Rows[0] > 0 {
+	if st.RowCount(0) > 0 {
 		n++
 	}
 	return n
@@ -453,9 +453,9 @@ func (m *Model) freq(c *Col, l int) float64 {
 		return 0
 	}
 	if m.Spec.FreqShare {
-		return float64(c.St.Rows[l]) / c.total
+		return float64(c.St.RowCount(l)) / c.total
 	}
-	return float64(c.St.Rows[l])
+	return float64(c.St.RowCount(l))
 }
 
 // order returns the slots in canonical order.

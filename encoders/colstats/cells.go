@@ -45,31 +45,32 @@ func (p *perLevel[T]) grow(n int) {
 }
 
 // narrowCell is the type of a narrow class-count cell.
-type narrowCell interface{ ~uint8 | ~uint16 }
+type narrowCell interface{ uint8 | uint16 }
 
 // classCells holds, for every level l, width = Folds*Classes class counts
 // (cell f*Classes+c: rows of level l in fold f of class c).
 //
 // Layout: every level has a narrow row of nw = max(width, 1+idxCells) cells
-// of type N (uint8 in Stats: nw bytes per level, max(width, 5); with uint16,
-// 2*max(width, 3) bytes). A narrow cell holds a count up to max(N)-1. When a
-// count would pass that, the level is promoted: its counts move to a wide row
-// of width uint32 cells (4*width bytes) in wide, a chunked array of
-// 2^wideChunkBits rows per chunk, and its narrow row then holds the marker
-// max(N) in cell 0 and the wide row's index, little-endian, in cells
-// 1..idxCells. A level's memory is thus nw*sizeof(N) bytes, plus 4*width
-// bytes once promoted: for a binary target with 5 folds, 10 bytes for a
-// level with fewer than 255 rows in each fold and class (a unique id), 50
-// bytes for a level with more (a postcode of a large table), against 40
-// bytes for uint32 cells throughout.
+// of type N (uint8 in Stats: nw = max(width, 5) bytes per level; with
+// uint16, 2*max(width, 3) bytes). A narrow cell holds a count up to
+// max(N)-1. When a count would pass that, the level is promoted: its counts
+// move to a wide row of width uint64 cells (8*width bytes) in wide, a
+// chunked array of 2^wideChunkBits rows per chunk, and its narrow row then
+// holds the marker max(N) in cell 0 and the wide row's index, little-endian,
+// in cells 1..idxCells. A level's memory is thus nw*sizeof(N) bytes, plus
+// 8*width bytes once promoted: for a binary target with 5 folds, 10 bytes
+// for a level with fewer than 255 rows in each fold and class (a unique id),
+// 90 bytes for a level with more (a postcode of a large table), against 40
+// bytes for uint32 cells throughout. A level is promoted only once it has
+// at least 255 rows, so the wide rows take at most 8*width/255 bytes per row
+// of the table; being uint64, they never wrap.
 //
 // A level is promoted only by a count passing max(N)-1, so cell 0 of an
-// unpromoted row never holds the marker. Counts in wide cells wrap past
-// 2^32-1, as uint32 cells always did.
+// unpromoted row never holds the marker.
 type classCells[N narrowCell] struct {
 	width  int // cells per level: Folds*Classes
 	narrow perLevel[N]
-	wide   perLevel[uint32]
+	wide   perLevel[uint64]
 	nwide  int // wide rows in use
 }
 
@@ -102,7 +103,7 @@ func newClassCells[N narrowCell](width int) classCells[N] {
 	return classCells[N]{
 		width:  width,
 		narrow: perLevel[N]{width: nw},
-		wide:   perLevel[uint32]{width: width, bits: wideChunkBits},
+		wide:   perLevel[uint64]{width: width, bits: wideChunkBits},
 	}
 }
 
@@ -116,7 +117,7 @@ func (k *classCells[N]) grow(n int) {
 // cells returns the counts of level l: the narrow cells (narrow[:width]),
 // or, for a promoted level, the wide ones; the other is nil. With width 0
 // both are empty.
-func (k *classCells[N]) cells(l int) (narrow []N, wide []uint32) {
+func (k *classCells[N]) cells(l int) (narrow []N, wide []uint64) {
 	if k.width == 0 {
 		return nil, nil
 	}
@@ -128,7 +129,7 @@ func (k *classCells[N]) cells(l int) (narrow []N, wide []uint32) {
 }
 
 // wideOf returns the wide row a promoted narrow row points to.
-func (k *classCells[N]) wideOf(row []N) []uint32 {
+func (k *classCells[N]) wideOf(row []N) []uint64 {
 	var idx uint32
 	b := cellBits[N]()
 	for i := idxCells[N](); i >= 1; i-- {
@@ -137,10 +138,11 @@ func (k *classCells[N]) wideOf(row []N) []uint32 {
 	return k.wide.row(int(idx))
 }
 
-// promote moves the counts of level l, whose narrow row is row, to a new
+// promote moves the counts of the level whose narrow row is row to a new
 // wide row and returns it.
-func (k *classCells[N]) promote(row []N) []uint32 {
+func (k *classCells[N]) promote(row []N) []uint64 {
 	if k.nwide == math.MaxUint32 {
+		// Unreachable: it would take 255 * 2^32 rows.
 		panic(fmt.Sprintf("colstats: more than %d levels with large class counts", uint32(math.MaxUint32)))
 	}
 	idx := k.nwide
@@ -148,7 +150,7 @@ func (k *classCells[N]) promote(row []N) []uint32 {
 	k.wide.grow(k.nwide)
 	w := k.wide.row(idx)
 	for i := range w {
-		w[i] = uint32(row[i])
+		w[i] = uint64(row[i])
 	}
 	clear(row)
 	row[0] = k.marker()
@@ -175,7 +177,7 @@ func (k *classCells[N]) inc(l, i int) {
 }
 
 // add adds v to cell i of level l.
-func (k *classCells[N]) add(l, i int, v uint32) {
+func (k *classCells[N]) add(l, i int, v uint64) {
 	if v == 0 {
 		return
 	}
@@ -184,7 +186,7 @@ func (k *classCells[N]) add(l, i int, v uint32) {
 	switch {
 	case row[0] == m:
 		k.wideOf(row)[i] += v
-	case uint64(row[i])+uint64(v) > uint64(m-1):
+	case v > uint64(m-1-row[i]):
 		k.promote(row)[i] += v
 	default:
 		row[i] += N(v)
@@ -192,13 +194,13 @@ func (k *classCells[N]) add(l, i int, v uint32) {
 }
 
 // set sets cell i of level l to v.
-func (k *classCells[N]) set(l, i int, v uint32) {
+func (k *classCells[N]) set(l, i int, v uint64) {
 	row := k.narrow.row(l)
 	m := k.marker()
 	switch {
 	case row[0] == m:
 		k.wideOf(row)[i] = v
-	case uint64(v) > uint64(m-1):
+	case v > uint64(m-1):
 		k.promote(row)[i] = v
 	default:
 		row[i] = N(v)
@@ -206,12 +208,30 @@ func (k *classCells[N]) set(l, i int, v uint32) {
 }
 
 // get returns cell i of level l.
-func (k *classCells[N]) get(l, i int) uint32 {
+func (k *classCells[N]) get(l, i int) uint64 {
 	nr, wr := k.cells(l)
 	if wr != nil {
 		return wr[i]
 	}
-	return uint32(nr[i])
+	return uint64(nr[i])
+}
+
+// sum returns the sum of the cells of level l.
+func (k *classCells[N]) sum(l int) uint64 {
+	nr, wr := k.cells(l)
+	if wr != nil {
+		return sumCells(wr)
+	}
+	return sumCells(nr)
+}
+
+// sumCells returns the sum of row.
+func sumCells[T uint8 | uint16 | uint64](row []T) uint64 {
+	var n uint64
+	for _, v := range row {
+		n += uint64(v)
+	}
+	return n
 }
 
 // totals adds the counts of every level to tot (len width): one
@@ -234,15 +254,16 @@ func (k *classCells[N]) totals(tot []uint64) {
 	}
 	for r := 0; r < k.nwide; r++ {
 		for j, v := range k.wide.row(r) {
-			tot[j] += uint64(v)
+			tot[j] += v
 		}
 	}
 }
 
-// rowCounts holds the rows of every level as uint32 counts in chunks of
-// 2^chunkBits levels (4 bytes per level; growing never copies). A level
-// passing 2^32-1 rows keeps its higher 32 bits in hi, a map that is nil
-// until some level needs it.
+// rowCounts holds a count per level, modulo 2^64: uint32 counts in chunks
+// of 2^chunkBits levels, a chunk allocated only once some level in it has
+// a count (4 bytes per level of such chunks, none otherwise; growing never
+// copies). A count passing 2^32-1 keeps its higher 32 bits in hi, a map
+// that is nil until some level needs it.
 type rowCounts struct {
 	chunks [][]uint32
 	hi     map[int]uint32
@@ -251,34 +272,47 @@ type rowCounts struct {
 // grow makes room for n levels.
 func (r *rowCounts) grow(n int) {
 	for len(r.chunks)<<chunkBits < n {
-		r.chunks = append(r.chunks, make([]uint32, 1<<chunkBits))
+		r.chunks = append(r.chunks, nil)
 	}
 }
 
-// inc adds one row to level l.
+// at returns the low 32 bits of level l, allocating its chunk.
+func (r *rowCounts) at(l int) *uint32 {
+	c := &r.chunks[l>>chunkBits]
+	if *c == nil {
+		*c = make([]uint32, 1<<chunkBits)
+	}
+	return &(*c)[l&(1<<chunkBits-1)]
+}
+
+// inc adds one to level l.
 func (r *rowCounts) inc(l int) {
-	p := &r.chunks[l>>chunkBits][l&(1<<chunkBits-1)]
+	p := r.at(l)
 	*p++
 	if *p == 0 {
 		r.carry(l, 1)
 	}
 }
 
-// carry adds c to the higher 32 bits of level l.
+// carry adds c to the higher 32 bits of level l, modulo 2^32.
 func (r *rowCounts) carry(l int, c uint64) {
 	if r.hi == nil {
 		r.hi = make(map[int]uint32)
 	}
-	h := uint64(r.hi[l]) + c
-	if h > math.MaxUint32 {
-		panic(fmt.Sprintf("colstats: level %d has more than 2^64-1 rows", l))
+	h := r.hi[l] + uint32(c)
+	if h == 0 {
+		delete(r.hi, l)
+	} else {
+		r.hi[l] = h
 	}
-	r.hi[l] = uint32(h)
 }
 
-// add adds n rows to level l.
+// add adds n to level l, modulo 2^64.
 func (r *rowCounts) add(l int, n uint64) {
-	p := &r.chunks[l>>chunkBits][l&(1<<chunkBits-1)]
+	if n == 0 {
+		return
+	}
+	p := r.at(l)
 	lo := uint64(*p) + n&math.MaxUint32
 	*p = uint32(lo)
 	if c := n>>32 + lo>>32; c != 0 {
@@ -286,18 +320,25 @@ func (r *rowCounts) add(l int, n uint64) {
 	}
 }
 
-// get returns the rows of level l.
+// get returns the count of level l.
 func (r *rowCounts) get(l int) uint64 {
-	v := uint64(r.chunks[l>>chunkBits][l&(1<<chunkBits-1)])
+	c := r.chunks[l>>chunkBits]
+	if c == nil {
+		return 0
+	}
+	v := uint64(c[l&(1<<chunkBits-1)])
 	if r.hi != nil {
 		v |= uint64(r.hi[l]) << 32
 	}
 	return v
 }
 
-// set sets the rows of level l to n.
+// set sets the count of level l to n.
 func (r *rowCounts) set(l int, n uint64) {
-	r.chunks[l>>chunkBits][l&(1<<chunkBits-1)] = uint32(n)
+	if n == 0 && r.chunks[l>>chunkBits] == nil {
+		return
+	}
+	*r.at(l) = uint32(n)
 	switch {
 	case n>>32 != 0:
 		if r.hi == nil {

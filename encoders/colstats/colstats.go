@@ -60,8 +60,10 @@ type Stats struct {
 	// n is the number of level slots, the null slot included.
 	n int
 
-	// rows: all rows of each level, whatever their target (RowCount); 4
-	// bytes per level.
+	// rows: per level, the rows not in the class counts (classification:
+	// rows whose target is unknown, none in a table whose every target is
+	// known, so that rows takes no memory; see rowCounts) or all rows
+	// (regression). RowCount adds the class counts to it.
 	rows rowCounts
 
 	// Per level, in chunks of whole levels, so that growing never copies
@@ -103,11 +105,21 @@ func New(task Task, k, classes int, sizeHint int) *Stats {
 func (s *Stats) NumLevels() int { return s.n }
 
 // RowCount returns the rows of level slot l, whatever their target.
-func (s *Stats) RowCount(l int) uint64 { return s.rows.get(l) }
+func (s *Stats) RowCount(l int) uint64 {
+	if s.Task == Regression {
+		return s.rows.get(l)
+	}
+	return s.cls.sum(l) + s.rows.get(l)
+}
 
 // SetRows sets the rows of level slot l (for statistics read back from
-// mapping tables).
-func (s *Stats) SetRows(l int, n uint64) { s.rows.set(l, n) }
+// mapping tables), before or after its class counts are set.
+func (s *Stats) SetRows(l int, n uint64) {
+	if s.Task != Regression {
+		n -= s.cls.sum(l) // modulo 2^64 until the class counts are set
+	}
+	s.rows.set(l, n)
+}
 
 func (s *Stats) grow(n int) {
 	if n <= s.n {
@@ -208,7 +220,6 @@ func (s *Stats) AddRow(l int) { s.rows.inc(l) }
 
 // AddClass counts a row of level l in fold f with target class c.
 func (s *Stats) AddClass(l, f, c int) {
-	s.rows.inc(l)
 	s.cls.inc(l, f*s.Classes+c)
 }
 
@@ -221,8 +232,12 @@ func (s *Stats) AddValue(l, f int, y float64) {
 }
 
 // SetClass sets the count of class c of level l in fold f (for statistics
-// read back from mapping tables).
-func (s *Stats) SetClass(l, f, c int, v uint32) { s.cls.set(l, f*s.Classes+c, v) }
+// read back from mapping tables), leaving RowCount(l) as it was.
+func (s *Stats) SetClass(l, f, c int, v uint32) {
+	i := f*s.Classes + c
+	s.rows.add(l, s.cls.get(l, i)-uint64(v)) // modulo 2^64
+	s.cls.set(l, i, uint64(v))
+}
 
 // SetValue sets the row count, target sum and sum of squares of level l in
 // fold f of a regression target.
@@ -240,7 +255,7 @@ func (s *Stats) ClassCount(l, c int) uint64 {
 }
 
 // classCount returns the sum of row[f*classes+c] over the folds f.
-func classCount[T uint8 | uint32](row []T, classes, c int) uint64 {
+func classCount[T uint8 | uint64](row []T, classes, c int) uint64 {
 	var n uint64
 	for i := c; i < len(row); i += classes {
 		n += uint64(row[i])
@@ -260,7 +275,7 @@ func (s *Stats) ClassTotals2(l int) (n0, n1 uint64) {
 }
 
 // totals2 returns the sums of the even and of the odd cells of row.
-func totals2[T uint8 | uint32](row []T) (n0, n1 uint64) {
+func totals2[T uint8 | uint64](row []T) (n0, n1 uint64) {
 	for f := 0; f+1 < len(row); f += 2 {
 		n0 += uint64(row[f])
 		n1 += uint64(row[f+1])
@@ -305,7 +320,7 @@ func (s *Stats) Target(l, o, exclude, pos int) Agg {
 
 // binaryCounts returns, for the cells of a level with two classes, the
 // rows n and the rows k of class pos over all folds but exclude.
-func binaryCounts[T uint8 | uint32](row []T, exclude, pos int) (n, k uint64) {
+func binaryCounts[T uint8 | uint64](row []T, exclude, pos int) (n, k uint64) {
 	for f := 0; f+1 < len(row); f += 2 {
 		if f != 2*exclude {
 			n += uint64(row[f]) + uint64(row[f+1])
@@ -348,7 +363,7 @@ func (s *Stats) TargetMask(l, o, pos int, use []bool) Agg {
 
 // maskCounts returns, for the cells of a level, the rows n and the rows k
 // of class o over the folds f with use[f].
-func maskCounts[T uint8 | uint32](row []T, classes, o int, use []bool) (n, k uint64) {
+func maskCounts[T uint8 | uint64](row []T, classes, o int, use []bool) (n, k uint64) {
 	for f := range use {
 		if !use[f] {
 			continue
@@ -542,9 +557,9 @@ func (s *Stats) Merge(o *Stats) error {
 // prefix bytes. The slots are sorted in the returned array itself, so the
 // memory beyond the result is 8 bytes per level, for the prefixes.
 func (s *Stats) Sorted() []uint32 {
-	n, null := 0, s.rows.get(0) > 0
+	n, null := 0, s.RowCount(0) > 0
 	for l := 1; l < s.n; l++ {
-		if s.rows.get(l) > 0 {
+		if s.RowCount(l) > 0 {
 			n++
 		}
 	}
@@ -555,7 +570,7 @@ func (s *Stats) Sorted() []uint32 {
 	start := len(out)
 	pre := make([]uint64, 0, n)
 	for l := 1; l < s.n; l++ {
-		if s.rows.get(l) > 0 {
+		if s.RowCount(l) > 0 {
 			out = append(out, uint32(l))
 			pre = append(pre, prefix8(s.Bytes(l)))
 		}
@@ -670,7 +685,7 @@ func prefix8(b []byte) uint64 {
 // excludes levels from ranking. It selects with a heap of k entries, so it
 // takes O(n log k) time.
 func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
-	return s.topK(k, minCount, s.n, s.rows.get, keep)
+	return s.topK(k, minCount, s.n, s.RowCount, keep)
 }
 
 // TopKBy is TopK with the row count of each level slot taken from rows
@@ -744,7 +759,7 @@ func (s *Stats) PermuteClasses(pos []int) {
 	if s.Task == Regression || len(pos) != s.Classes {
 		return
 	}
-	tmp := make([]uint32, s.Classes)
+	tmp := make([]uint64, s.Classes)
 	tmp8 := make([]uint8, s.Classes)
 	for l := 0; l < s.n; l++ {
 		if nr, wr := s.cls.cells(l); wr != nil {
@@ -757,7 +772,7 @@ func (s *Stats) PermuteClasses(pos []int) {
 
 // permute moves, in every fold's cells of row, cell c to cell pos[c]; tmp
 // is scratch of len(pos).
-func permute[T uint8 | uint32](row []T, pos []int, tmp []T) {
+func permute[T uint8 | uint64](row []T, pos []int, tmp []T) {
 	C := len(pos)
 	for f := 0; f+C <= len(row); f += C {
 		cells := row[f : f+C]

@@ -369,8 +369,9 @@ func TestRowCounts(t *testing.T) {
 }
 
 // addClassStreams returns the level slots of a unique-id-like stream (every
-// row a new level) and of a postcode-like one (40k levels, each seen about
-// n/40k times), n rows each, with their folds and classes.
+// row a new level), of a postcode-like one (40k levels, each seen about
+// n/40k times) and of one of 500 levels seen n/500 times (every level
+// promoted), n rows each.
 func addClassStreams(n int) map[string][]int {
 	rng := rand.New(rand.NewPCG(5, 5))
 	id, pc := make([]int, n), make([]int, n)
@@ -378,13 +379,17 @@ func addClassStreams(n int) map[string][]int {
 		id[i] = 1 + i
 		pc[i] = 1 + rng.IntN(40_000)
 	}
-	return map[string][]int{"unique-id": id, "postcode": pc}
+	hot := make([]int, n)
+	for i := range hot {
+		hot[i] = 1 + rng.IntN(500)
+	}
+	return map[string][]int{"unique-id": id, "postcode": pc, "hot-500": hot}
 }
 
 // BenchmarkAddClass counts 2M rows with a binary target and 5 folds into
 // one-byte cells (Stats.AddClass), into two-byte cells (the same layout
 // with uint16) and, for reference, into plain uint32 cells, for a
-// unique-id-like and a postcode-like stream. Run:
+// unique-id-like, a postcode-like and a 500-level stream. Run:
 // go test -run '^$' -bench AddClass -benchmem ./encoders/colstats
 func BenchmarkAddClass(b *testing.B) {
 	const n, K, C = 2_000_000, 5, 2
@@ -395,7 +400,7 @@ func BenchmarkAddClass(b *testing.B) {
 	for i := range fold {
 		fold[i], class[i] = uint8(rng.IntN(K)), uint8(rng.IntN(7)/6)
 	}
-	for _, name := range []string{"unique-id", "postcode"} {
+	for _, name := range []string{"unique-id", "postcode", "hot-500"} {
 		slots := streams[name]
 		levels := distinct(slots)
 		b.Run(name+"/uint8", func(b *testing.B) {

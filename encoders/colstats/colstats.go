@@ -14,7 +14,6 @@ package colstats
 
 import (
 	"bytes"
-	"cmp"
 	"encoding/binary"
 	"fmt"
 	"math"
@@ -58,15 +57,24 @@ type Stats struct {
 
 	Levels *levels.Table
 
-	// Rows[l]: all rows of level l, whatever their target.
-	Rows []uint64
+	// n is the number of level slots, the null slot included.
+	n int
+
+	// rows: per level, the rows not in the class counts (classification:
+	// rows whose target is unknown, none in a table whose every target is
+	// known, so that rows takes no memory; see rowCounts) or all rows
+	// (regression). RowCount adds the class counts to it.
+	rows rowCounts
 
 	// Per level, in chunks of whole levels, so that growing never copies
 	// and never holds twice the memory:
-	// cls.row(l)[f*C+c]: rows of level l in fold f of class c (classification);
+	// cls: rows of level l in fold f of class c at cell f*C+c
+	// (classification), one byte per cell until a count passes 254 (see
+	// classCells);
 	// cnt, sum, sumSq.row(l)[f]: rows of level l in fold f whose target is
-	// known, the sum and the sum of squares of their target (regression).
-	cls        perLevel[uint32]
+	// known, the sum and the sum of squares of their target (regression),
+	// 20 bytes per level and fold.
+	cls        classCells[uint8]
 	cnt        perLevel[uint32]
 	sum, sumSq perLevel[float64]
 
@@ -74,30 +82,6 @@ type Stats struct {
 	// sets Target sums; built once so that Target allocates nothing and may
 	// run on several goroutines.
 	allBut [][]bool
-}
-
-// chunkBits sets the levels per chunk of a perLevel array (2^14).
-const chunkBits = 14
-
-// perLevel is an array of width values per level, stored in chunks of
-// 2^chunkBits levels.
-type perLevel[T any] struct {
-	width  int
-	chunks [][]T
-}
-
-// row returns the width values of level l.
-func (p *perLevel[T]) row(l int) []T {
-	c := p.chunks[l>>chunkBits]
-	o := (l & (1<<chunkBits - 1)) * p.width
-	return c[o : o+p.width : o+p.width]
-}
-
-// grow makes room for n levels.
-func (p *perLevel[T]) grow(n int) {
-	for len(p.chunks)<<chunkBits < n {
-		p.chunks = append(p.chunks, make([]T, p.width<<chunkBits))
-	}
 }
 
 // New returns empty statistics for k folds.
@@ -118,42 +102,48 @@ func New(task Task, k, classes int, sizeHint int) *Stats {
 }
 
 // NumLevels returns the number of level slots, the null slot included.
-func (s *Stats) NumLevels() int { return len(s.Rows) }
+func (s *Stats) NumLevels() int { return s.n }
+
+// RowCount returns the rows of level slot l, whatever their target.
+func (s *Stats) RowCount(l int) uint64 {
+	if s.Task == Regression {
+		return s.rows.get(l)
+	}
+	return s.cls.sum(l) + s.rows.get(l)
+}
+
+// SetRows sets the rows of level slot l (for statistics read back from
+// mapping tables), before or after its class counts are set.
+func (s *Stats) SetRows(l int, n uint64) {
+	if s.Task != Regression {
+		n -= s.cls.sum(l) // modulo 2^64 until the class counts are set
+	}
+	s.rows.set(l, n)
+}
 
 func (s *Stats) grow(n int) {
-	if n <= len(s.Rows) {
+	if n <= s.n {
 		return
 	}
-	s.Rows = extend(s.Rows, n)
+	s.n = n
+	s.rows.grow(n)
 	if s.Task == Regression {
 		s.cnt.width, s.sum.width, s.sumSq.width = s.Folds, s.Folds, s.Folds
 		s.cnt.grow(n)
 		s.sum.grow(n)
 		s.sumSq.grow(n)
 	} else {
-		s.cls.width = s.Folds * s.Classes
+		if s.cls.width != s.Folds*s.Classes {
+			s.cls = newClassCells[uint8](s.Folds * s.Classes)
+		}
 		s.cls.grow(n)
 	}
-}
-
-// extend returns x grown to length n with zeros, doubling its capacity
-// when it must reallocate.
-func extend[T any](x []T, n int) []T {
-	if n <= cap(x) {
-		old := len(x)
-		x = x[:n]
-		clear(x[old:])
-		return x
-	}
-	y := make([]T, n, max(n, 2*cap(x), 16))
-	copy(y, x)
-	return y
 }
 
 // Level returns the slot of a level's bytes, adding it if new.
 func (s *Stats) Level(b []byte) int {
 	id := int(s.Levels.Intern(b)) + 1
-	if id >= len(s.Rows) {
+	if id >= s.n {
 		s.grow(id + 1)
 	}
 	return id
@@ -210,40 +200,44 @@ func (s *Stats) AddClasses(n int) {
 	}
 	old := s.cls
 	s.Classes = n
-	s.cls = perLevel[uint32]{width: s.Folds * n}
-	s.cls.grow(len(s.Rows))
+	s.cls = newClassCells[uint8](s.Folds * n)
+	s.cls.grow(s.n)
 	if old.width == 0 {
 		return
 	}
 	oc := old.width / s.Folds
-	for l := range s.Rows {
-		src, dst := old.row(l), s.cls.row(l)
+	for l := 0; l < s.n; l++ {
 		for f := 0; f < s.Folds; f++ {
-			copy(dst[f*n:f*n+oc], src[f*oc:(f+1)*oc])
+			for c := 0; c < oc; c++ {
+				s.cls.add(l, f*n+c, old.get(l, f*oc+c))
+			}
 		}
 	}
 }
 
 // AddRow counts a row of level l whose target is unknown.
-func (s *Stats) AddRow(l int) { s.Rows[l]++ }
+func (s *Stats) AddRow(l int) { s.rows.inc(l) }
 
 // AddClass counts a row of level l in fold f with target class c.
 func (s *Stats) AddClass(l, f, c int) {
-	s.Rows[l]++
-	s.cls.row(l)[f*s.Classes+c]++
+	s.cls.inc(l, f*s.Classes+c)
 }
 
 // AddValue counts a row of level l in fold f with numeric target y.
 func (s *Stats) AddValue(l, f int, y float64) {
-	s.Rows[l]++
+	s.rows.inc(l)
 	s.cnt.row(l)[f]++
 	s.sum.row(l)[f] += y
 	s.sumSq.row(l)[f] += y * y
 }
 
 // SetClass sets the count of class c of level l in fold f (for statistics
-// read back from mapping tables).
-func (s *Stats) SetClass(l, f, c int, v uint32) { s.cls.row(l)[f*s.Classes+c] = v }
+// read back from mapping tables), leaving RowCount(l) as it was.
+func (s *Stats) SetClass(l, f, c int, v uint32) {
+	i := f*s.Classes + c
+	s.rows.add(l, s.cls.get(l, i)-uint64(v)) // modulo 2^64
+	s.cls.set(l, i, uint64(v))
+}
 
 // SetValue sets the row count, target sum and sum of squares of level l in
 // fold f of a regression target.
@@ -253,10 +247,18 @@ func (s *Stats) SetValue(l, f int, n uint32, sum, sumSq float64) {
 
 // ClassCount returns the rows of level l of class c over all folds.
 func (s *Stats) ClassCount(l, c int) uint64 {
+	nr, wr := s.cls.cells(l)
+	if wr != nil {
+		return classCount(wr, s.Classes, c)
+	}
+	return classCount(nr, s.Classes, c)
+}
+
+// classCount returns the sum of row[f*classes+c] over the folds f.
+func classCount[T uint8 | uint64](row []T, classes, c int) uint64 {
 	var n uint64
-	row := s.cls.row(l)
-	for f := 0; f < s.Folds; f++ {
-		n += uint64(row[f*s.Classes+c])
+	for i := c; i < len(row); i += classes {
+		n += uint64(row[i])
 	}
 	return n
 }
@@ -265,7 +267,15 @@ func (s *Stats) ClassCount(l, c int) uint64 {
 // all folds, for statistics with two classes: ClassCount(l, 0) and
 // ClassCount(l, 1) from one read of the level's counts.
 func (s *Stats) ClassTotals2(l int) (n0, n1 uint64) {
-	row := s.cls.row(l)
+	nr, wr := s.cls.cells(l)
+	if wr != nil {
+		return totals2(wr)
+	}
+	return totals2(nr)
+}
+
+// totals2 returns the sums of the even and of the odd cells of row.
+func totals2[T uint8 | uint64](row []T) (n0, n1 uint64) {
 	for f := 0; f+1 < len(row); f += 2 {
 		n0 += uint64(row[f])
 		n1 += uint64(row[f+1])
@@ -297,17 +307,27 @@ func (s *Stats) Outputs() int {
 // giving Agg{n, k, k} as TargetMask does.
 func (s *Stats) Target(l, o, exclude, pos int) Agg {
 	if s.Task == Binary && s.Classes == 2 && uint(pos) < 2 {
-		row := s.cls.row(l)
 		var n, k uint64
-		for f := 0; f+1 < len(row); f += 2 {
-			if f != 2*exclude {
-				n += uint64(row[f]) + uint64(row[f+1])
-				k += uint64(row[f+pos])
-			}
+		if nr, wr := s.cls.cells(l); wr != nil {
+			n, k = binaryCounts(wr, exclude, pos)
+		} else {
+			n, k = binaryCounts(nr, exclude, pos)
 		}
 		return Agg{N: float64(n), Sum: float64(k), SumSq: float64(k)}
 	}
 	return s.TargetMask(l, o, pos, s.allBut[exclude+1])
+}
+
+// binaryCounts returns, for the cells of a level with two classes, the
+// rows n and the rows k of class pos over all folds but exclude.
+func binaryCounts[T uint8 | uint64](row []T, exclude, pos int) (n, k uint64) {
+	for f := 0; f+1 < len(row); f += 2 {
+		if f != 2*exclude {
+			n += uint64(row[f]) + uint64(row[f+1])
+			k += uint64(row[f+pos])
+		}
+	}
+	return n, k
 }
 
 // TargetMask returns the statistic of level l for output o over the rows
@@ -331,19 +351,29 @@ func (s *Stats) TargetMask(l, o, pos int, use []bool) Agg {
 	if s.Task == Binary {
 		o = pos
 	}
-	row := s.cls.row(l)
 	var n, k uint64
-	for f := 0; f < s.Folds; f++ {
-		if !use[f] {
-			continue
-		}
-		for _, v := range row[f*s.Classes : (f+1)*s.Classes] {
-			n += uint64(v)
-		}
-		k += uint64(row[f*s.Classes+o])
+	if nr, wr := s.cls.cells(l); wr != nil {
+		n, k = maskCounts(wr, s.Classes, o, use)
+	} else {
+		n, k = maskCounts(nr, s.Classes, o, use)
 	}
 	a.N, a.Sum, a.SumSq = float64(n), float64(k), float64(k)
 	return a
+}
+
+// maskCounts returns, for the cells of a level, the rows n and the rows k
+// of class o over the folds f with use[f].
+func maskCounts[T uint8 | uint64](row []T, classes, o int, use []bool) (n, k uint64) {
+	for f := range use {
+		if !use[f] {
+			continue
+		}
+		for _, v := range row[f*classes : (f+1)*classes] {
+			n += uint64(v)
+		}
+		k += uint64(row[f*classes+o])
+	}
+	return n, k
 }
 
 // FitMask is Fit over the rows of the folds f with use[f] instead of all
@@ -351,7 +381,7 @@ func (s *Stats) TargetMask(l, o, pos int, use []bool) Agg {
 func (s *Stats) FitMask(o, pos int, sm Smoothing, use, keep []bool, order []uint32) Fitted {
 	var tot Agg
 	var mo smooth.Moments
-	n := len(s.Rows)
+	n := s.n
 	if order != nil {
 		n = len(order)
 	}
@@ -465,20 +495,8 @@ func (s *Stats) FitFolds(pos int, sm Smoothing, keep []bool, order []uint32) (fu
 // class c over all levels at index f*Classes+c: one sequential pass over
 // the count cells.
 func (s *Stats) CellTotals() []uint64 {
-	w := s.cls.width
-	tot := make([]uint64, w)
-	if w == 0 {
-		return tot
-	}
-	for _, ch := range s.cls.chunks {
-		// Cells of levels not yet added are zero and add nothing.
-		for i := 0; i+w <= len(ch); i += w {
-			row := ch[i : i+w : i+w]
-			for j, v := range row {
-				tot[j] += uint64(v)
-			}
-		}
-	}
+	tot := make([]uint64, s.cls.width)
+	s.cls.totals(tot)
 	return tot
 }
 
@@ -519,12 +537,12 @@ func (s *Stats) Merge(o *Stats) error {
 		return fmt.Errorf("cannot merge %s statistics with %d folds into %s with %d", o.Task, o.Folds, s.Task, s.Folds)
 	}
 	s.AddClasses(o.Classes)
-	for l := 0; l < len(o.Rows); l++ {
+	for l := 0; l < o.n; l++ {
 		d := 0
 		if l > 0 {
 			d = s.Level(o.Bytes(l))
 		}
-		s.Rows[d] += o.Rows[l]
+		s.rows.add(d, o.rows.get(l))
 		s.addLevel(d, o, l)
 	}
 	return nil
@@ -533,57 +551,54 @@ func (s *Stats) Merge(o *Stats) error {
 // Sorted returns the level slots in a canonical order: the null level first
 // (if it has rows), then levels by their bytes ascending. Slots with no
 // rows are left out. It sorts compact keys (the first 8 bytes of each level
-// as a big-endian number, and its slot) in place by a most-significant-byte
-// radix sort (sortKeys), comparing whole levels only among keys whose 8
-// bytes tie: O(n) passes over the keys for the prefix bytes, no extra
-// memory beyond the 16-byte keys.
+// as a big-endian number beside its slot, in two parallel arrays) in place
+// by a most-significant-byte radix sort (sortKeys), comparing whole levels
+// only among keys whose 8 bytes tie: O(n) passes over the keys for the
+// prefix bytes. The slots are sorted in the returned array itself, so the
+// memory beyond the result is 8 bytes per level, for the prefixes.
 func (s *Stats) Sorted() []uint32 {
-	keys := make([]sortKey, 0, len(s.Rows))
-	for l := 1; l < len(s.Rows); l++ {
-		if s.Rows[l] > 0 {
-			keys = append(keys, sortKey{prefix8(s.Bytes(l)), uint32(l)})
+	n, null := 0, s.RowCount(0) > 0
+	for l := 1; l < s.n; l++ {
+		if s.RowCount(l) > 0 {
+			n++
 		}
 	}
-	s.sortKeys(keys, 56)
-	n := len(keys)
-	if s.Rows[0] > 0 {
-		n++
-	}
-	out := make([]uint32, 0, n)
-	if s.Rows[0] > 0 {
+	out := make([]uint32, 0, n+1)
+	if null {
 		out = append(out, 0)
 	}
-	for _, k := range keys {
-		out = append(out, k.slot)
+	start := len(out)
+	pre := make([]uint64, 0, n)
+	for l := 1; l < s.n; l++ {
+		if s.RowCount(l) > 0 {
+			out = append(out, uint32(l))
+			pre = append(pre, prefix8(s.Bytes(l)))
+		}
 	}
+	s.sortKeys(pre, out[start:], 56)
 	return out
-}
-
-// sortKey is a level's sort key: the first 8 bytes of its text and its slot.
-type sortKey struct {
-	pre  uint64
-	slot uint32
 }
 
 // radixMin is the bucket size below which sortKeys compares keys instead of
 // distributing them.
 const radixMin = 48
 
-// sortKeys sorts keys by (pre, level bytes), all keys agreeing on the
-// prefix bits above shift+8: an in-place distribution on the byte at shift
-// (American flag sort), then each bucket on the next byte. A bucket that
-// is small, or whose 8 prefix bytes all tie, is finished by comparison.
-func (s *Stats) sortKeys(keys []sortKey, shift int) {
+// sortKeys sorts the keys (pre[i], slot[i]) by (pre, level bytes), all
+// keys agreeing on the prefix bits above shift+8: an in-place distribution
+// on the byte at shift (American flag sort), then each bucket on the next
+// byte. A bucket that is small, or whose 8 prefix bytes all tie, is
+// finished by comparison.
+func (s *Stats) sortKeys(pre []uint64, slot []uint32, shift int) {
 	for {
-		if len(keys) < radixMin || shift < 0 {
-			s.sortCompare(keys)
+		if len(pre) < radixMin || shift < 0 {
+			s.sortCompare(pre, slot, shift < 0)
 			return
 		}
 		var count [256]int
-		for _, k := range keys {
-			count[byte(k.pre>>uint(shift))]++
+		for _, p := range pre {
+			count[byte(p>>uint(shift))]++
 		}
-		if count[byte(keys[0].pre>>uint(shift))] == len(keys) {
+		if count[byte(pre[0]>>uint(shift))] == len(pre) {
 			shift -= 8 // one bucket: go to the next byte without moving
 			continue
 		}
@@ -597,35 +612,53 @@ func (s *Stats) sortKeys(keys []sortKey, shift int) {
 		next := start
 		for b := 0; b < 256; b++ {
 			for next[b] < end[b] {
-				k := keys[next[b]]
-				d := int(byte(k.pre >> uint(shift)))
+				p, sl := pre[next[b]], slot[next[b]]
+				d := int(byte(p >> uint(shift)))
 				for d != b {
-					// Place k in its bucket and carry the key it displaces.
-					keys[next[d]], k = k, keys[next[d]]
+					// Place the key in its bucket and carry the key it
+					// displaces.
+					j := next[d]
+					pre[j], p = p, pre[j]
+					slot[j], sl = sl, slot[j]
 					next[d]++
-					d = int(byte(k.pre >> uint(shift)))
+					d = int(byte(p >> uint(shift)))
 				}
-				keys[next[b]] = k
+				pre[next[b]], slot[next[b]] = p, sl
 				next[b]++
 			}
 		}
 		for b := 0; b < 256; b++ {
 			if end[b]-start[b] > 1 {
-				s.sortKeys(keys[start[b]:end[b]], shift-8)
+				s.sortKeys(pre[start[b]:end[b]], slot[start[b]:end[b]], shift-8)
 			}
 		}
 		return
 	}
 }
 
-// sortCompare sorts keys by (pre, level bytes) by comparison.
-func (s *Stats) sortCompare(keys []sortKey) {
-	slices.SortFunc(keys, func(a, b sortKey) int {
-		if a.pre != b.pre {
-			return cmp.Compare(a.pre, b.pre)
+// sortCompare sorts the keys (pre[i], slot[i]) by (pre, level bytes) by
+// comparison; tied says that every pre is the same, so that only the slots
+// need moving.
+func (s *Stats) sortCompare(pre []uint64, slot []uint32, tied bool) {
+	if tied {
+		slices.SortFunc(slot, func(a, b uint32) int {
+			return bytes.Compare(s.Bytes(int(a)), s.Bytes(int(b)))
+		})
+		return
+	}
+	// Insertion sort: the keys are fewer than radixMin.
+	for i := 1; i < len(pre); i++ {
+		p, sl := pre[i], slot[i]
+		j := i
+		for ; j > 0; j-- {
+			q := pre[j-1]
+			if q < p || q == p && bytes.Compare(s.Bytes(int(slot[j-1])), s.Bytes(int(sl))) < 0 {
+				break
+			}
+			pre[j], slot[j] = q, slot[j-1]
 		}
-		return bytes.Compare(s.Bytes(int(a.slot)), s.Bytes(int(b.slot)))
-	})
+		pre[j], slot[j] = p, sl
+	}
 }
 
 // prefix8 returns the first 8 bytes of b as a big-endian number, padded
@@ -652,17 +685,22 @@ func prefix8(b []byte) uint64 {
 // excludes levels from ranking. It selects with a heap of k entries, so it
 // takes O(n log k) time.
 func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
-	return s.TopKBy(k, minCount, s.Rows, keep)
+	return s.topK(k, minCount, s.n, s.RowCount, keep)
 }
 
 // TopKBy is TopK with the row count of each level slot taken from rows
-// (len(rows) == NumLevels()) instead of Rows: the counts of a subset of
-// the folds, say. A slot with a zero count gets no code.
+// (len(rows) == NumLevels()) instead of RowCount: the counts of a subset
+// of the folds, say. A slot with a zero count gets no code.
 func (s *Stats) TopKBy(k int, minCount uint64, rows []uint64, keep []bool) []int32 {
+	return s.topK(k, minCount, len(rows), func(l int) uint64 { return rows[l] }, keep)
+}
+
+// topK is TopKBy with the row count of slot l < n given by rows(l).
+func (s *Stats) topK(k int, minCount uint64, n int, rows func(int) uint64, keep []bool) []int32 {
 	// before reports whether slot a ranks before slot b.
 	before := func(a, b int) bool {
-		if rows[a] != rows[b] {
-			return rows[a] > rows[b]
+		if ra, rb := rows(a), rows(b); ra != rb {
+			return ra > rb
 		}
 		if a == 0 || b == 0 {
 			return a == 0
@@ -687,8 +725,8 @@ func (s *Stats) TopKBy(k int, minCount uint64, rows []uint64, keep []bool) []int
 			i = c
 		}
 	}
-	for l := range rows {
-		if rows[l] == 0 || rows[l] < minCount || (keep != nil && !keep[l]) {
+	for l := 0; l < n; l++ {
+		if r := rows(l); r == 0 || r < minCount || (keep != nil && !keep[l]) {
 			continue
 		}
 		if len(h) < k {
@@ -709,7 +747,7 @@ func (s *Stats) TopKBy(k int, minCount uint64, rows []uint64, keep []bool) []int
 		}
 	}
 	sort.Slice(h, func(i, j int) bool { return before(h[i], h[j]) })
-	codes := make([]int32, len(rows))
+	codes := make([]int32, n)
 	for r, l := range h {
 		codes[l] = int32(r + 1)
 	}
@@ -721,16 +759,27 @@ func (s *Stats) PermuteClasses(pos []int) {
 	if s.Task == Regression || len(pos) != s.Classes {
 		return
 	}
-	tmp := make([]uint32, s.Classes)
-	for l := range s.Rows {
-		lr := s.cls.row(l)
-		for f := 0; f < s.Folds; f++ {
-			row := lr[f*s.Classes : (f+1)*s.Classes]
-			for c, v := range row {
-				tmp[pos[c]] = v
-			}
-			copy(row, tmp)
+	tmp := make([]uint64, s.Classes)
+	tmp8 := make([]uint8, s.Classes)
+	for l := 0; l < s.n; l++ {
+		if nr, wr := s.cls.cells(l); wr != nil {
+			permute(wr, pos, tmp)
+		} else {
+			permute(nr, pos, tmp8)
 		}
+	}
+}
+
+// permute moves, in every fold's cells of row, cell c to cell pos[c]; tmp
+// is scratch of len(pos).
+func permute[T uint8 | uint64](row []T, pos []int, tmp []T) {
+	C := len(pos)
+	for f := 0; f+C <= len(row); f += C {
+		cells := row[f : f+C]
+		for c, v := range cells {
+			tmp[pos[c]] = v
+		}
+		copy(cells, tmp)
 	}
 }
 
@@ -739,14 +788,14 @@ func (s *Stats) PermuteClasses(pos []int) {
 // every level slot. The null level's parent is the parent null level.
 func (s *Stats) Rollup(parent func([]byte) []byte) (*Stats, []int32) {
 	p := New(s.Task, s.Folds, s.Classes, 0)
-	of := make([]int32, len(s.Rows))
-	for l := range s.Rows {
+	of := make([]int32, s.n)
+	for l := 0; l < s.n; l++ {
 		d := 0
 		if l > 0 {
 			d = p.Level(parent(s.Bytes(l)))
 		}
 		of[l] = int32(d)
-		p.Rows[d] += s.Rows[l]
+		p.rows.add(d, s.rows.get(l))
 		p.addLevel(d, s, l)
 	}
 	return p, of
@@ -765,10 +814,9 @@ func (s *Stats) addLevel(d int, o *Stats, l int) {
 		}
 		return
 	}
-	dst, src := s.cls.row(d), o.cls.row(l)
 	for f := 0; f < s.Folds; f++ {
 		for c := 0; c < o.Classes; c++ {
-			dst[f*s.Classes+c] += src[f*o.Classes+c]
+			s.cls.add(d, f*s.Classes+c, o.cls.get(l, f*o.Classes+c))
 		}
 	}
 }

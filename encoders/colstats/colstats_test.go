@@ -45,7 +45,7 @@ func TestTopKAndShares(t *testing.T) {
 	}
 	shares := map[string]float64{"A": 0.4, "B": 0.5, "C": 0.1}
 	for lv, sh := range shares {
-		if got := float64(s.Rows[s.Lookup([]byte(lv))]) / 10; math.Abs(got-sh) > 1e-15 {
+		if got := float64(s.RowCount(s.Lookup([]byte(lv)))) / 10; math.Abs(got-sh) > 1e-15 {
 			t.Errorf("share of %s = %v, want %v", lv, got, sh)
 		}
 	}
@@ -99,8 +99,8 @@ func TestMergeEqualsWhole(t *testing.T) {
 	}
 	for _, lv := range []string{"x", "y", "z"} {
 		w, m := whole.Lookup([]byte(lv)), a.Lookup([]byte(lv))
-		if whole.Rows[w] != a.Rows[m] || whole.Target(w, 0, -1, 1) != a.Target(m, 0, -1, 1) {
-			t.Errorf("level %s: merged %v/%v, whole %v/%v", lv, a.Rows[m], a.Target(m, 0, -1, 1), whole.Rows[w], whole.Target(w, 0, -1, 1))
+		if whole.RowCount(w) != a.RowCount(m) || whole.Target(w, 0, -1, 1) != a.Target(m, 0, -1, 1) {
+			t.Errorf("level %s: merged %v/%v, whole %v/%v", lv, a.RowCount(m), a.Target(m, 0, -1, 1), whole.RowCount(w), whole.Target(w, 0, -1, 1))
 		}
 	}
 	if err := a.Merge(New(Regression, 1, 0, 0)); err == nil {
@@ -187,7 +187,7 @@ func TestTargetMask(t *testing.T) {
 	}
 }
 
-// TestTopKBy ranks by the given counts, not by Rows.
+// TestTopKBy ranks by the given counts, not by RowCount.
 func TestTopKBy(t *testing.T) {
 	s := build([][2]string{{"A", "0"}, {"A", "0"}, {"A", "0"}, {"B", "0"}, {"C", "0"}, {"C", "0"}})
 	a, b, c := s.Lookup([]byte("A")), s.Lookup([]byte("B")), s.Lookup([]byte("C"))
@@ -197,7 +197,11 @@ func TestTopKBy(t *testing.T) {
 	if codes[b] != 1 || codes[c] != 2 || codes[a] != 0 {
 		t.Errorf("TopKBy codes A=%d B=%d C=%d, want 0 1 2", codes[a], codes[b], codes[c])
 	}
-	if got, want := s.TopKBy(2, 1, s.Rows, nil), s.TopK(2, 1, nil); !equalCodes(got, want) {
+	all := make([]uint64, s.NumLevels())
+	for l := range all {
+		all[l] = s.RowCount(l)
+	}
+	if got, want := s.TopKBy(2, 1, all, nil), s.TopK(2, 1, nil); !equalCodes(got, want) {
 		t.Errorf("TopKBy(Rows) = %v, TopK = %v", got, want)
 	}
 }
@@ -218,11 +222,11 @@ func equalCodes(a, b []int32) bool {
 // when it has rows, then the slots with rows by their bytes.
 func sortedRef(s *Stats) []uint32 {
 	var out, rest []uint32
-	if s.Rows[0] > 0 {
+	if s.RowCount(0) > 0 {
 		out = append(out, 0)
 	}
-	for l := 1; l < len(s.Rows); l++ {
-		if s.Rows[l] > 0 {
+	for l := 1; l < s.NumLevels(); l++ {
+		if s.RowCount(l) > 0 {
 			rest = append(rest, uint32(l))
 		}
 	}

@@ -510,7 +510,7 @@ func (ev *evaluator) column(ci int, name string, st *colstats.Stats) (ColumnResu
 		scores[j.cand][j.fold] = ev.run(cs, cands[j.cand], j.fold)
 	})
 	cr := ColumnResult{Column: name, Levels: st.Levels.Len()}
-	if st.Rows[0] > 0 {
+	if st.RowCount(0) > 0 {
 		cr.Levels++
 	}
 	names := metricNames(ev.task)
@@ -633,8 +633,8 @@ func rank(cs []CandidateResult, higher bool) {
 // to at most about 300 ranks spread evenly on a log scale.
 func rankFrequency(st *colstats.Stats) []RankPoint {
 	var counts []uint64
-	for _, n := range st.Rows {
-		if n > 0 {
+	for l := 0; l < st.NumLevels(); l++ {
+		if n := st.RowCount(l); n > 0 {
 			counts = append(counts, n)
 		}
 	}

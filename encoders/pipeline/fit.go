@@ -338,7 +338,7 @@ func (m *Model) derive(c *Col, supervised bool) {
 	n := st.NumLevels()
 	c.Keep = make([]bool, n)
 	for l := 0; l < n; l++ {
-		c.Keep[l] = st.Rows[l] > 0 && st.Rows[l] >= sp.MinLevelRows
+		c.Keep[l] = st.RowCount(l) > 0 && st.RowCount(l) >= sp.MinLevelRows
 	}
 	if sp.NullsUnseen {
 		c.Keep[0] = false
@@ -347,7 +347,7 @@ func (m *Model) derive(c *Col, supervised bool) {
 	// whatever the order, so it is taken in slot order.
 	c.total = 0
 	for l := 0; l < n; l++ {
-		c.total += float64(st.Rows[l])
+		c.total += float64(st.RowCount(l))
 	}
 	// The canonical order is needed here only where float sums over the
 	// levels depend on their order (empirical-Bayes moments, regression
@@ -451,7 +451,7 @@ func (m *Model) OutputNames() []string {
 func (m *Model) Levels(i int) int {
 	st := m.Cols[i].St
 	n := st.Levels.Len()
-	if st.Rows[0] > 0 {
+	if st.RowCount(0) > 0 {
 		n++
 	}
 	return n
@@ -508,9 +508,9 @@ func (m *Model) freq(c *Col, l int) float64 {
 		return 0
 	}
 	if m.Spec.FreqShare {
-		return float64(c.St.Rows[l]) / c.total
+		return float64(c.St.RowCount(l)) / c.total
 	}
-	return float64(c.St.Rows[l])
+	return float64(c.St.RowCount(l))
 }
 
 // order returns the slots in canonical order.

@@ -48,7 +48,7 @@ func Scan(r table.Reader, cols []int, top int, progress func(int64)) ([]Profile,
 	if err := table.ForEach(r, func(b *table.Batch) error {
 		for i := range cols {
 			for _, l := range slots[i].fill(b, sts[i], true) {
-				sts[i].Rows[l]++
+				sts[i].AddRow(int(l))
 			}
 		}
 		rows += int64(b.Rows)
@@ -62,28 +62,28 @@ func Scan(r table.Reader, cols []int, top int, progress func(int64)) ([]Profile,
 	out := make([]Profile, len(cols))
 	for i, c := range cols {
 		st := sts[i]
-		p := Profile{Name: schema.Fields[c].Name, Type: schema.Fields[c].Kind.String(), Rows: rows, Nulls: int64(st.Rows[0]), Distinct: st.Levels.Len()}
+		p := Profile{Name: schema.Fields[c].Name, Type: schema.Fields[c].Kind.String(), Rows: rows, Nulls: int64(st.RowCount(0)), Distinct: st.Levels.Len()}
 		counts := make([]int, 0, p.Distinct)
 		once := 0
 		for l := 1; l < st.NumLevels(); l++ {
 			counts = append(counts, l)
-			if st.Rows[l] == 1 {
+			if st.RowCount(l) == 1 {
 				once++
 			}
 		}
 		sort.Slice(counts, func(a, b int) bool {
 			x, y := counts[a], counts[b]
-			if st.Rows[x] != st.Rows[y] {
-				return st.Rows[x] > st.Rows[y]
+			if st.RowCount(x) != st.RowCount(y) {
+				return st.RowCount(x) > st.RowCount(y)
 			}
 			return string(st.Bytes(x)) < string(st.Bytes(y))
 		})
 		nonNull := float64(rows - p.Nulls)
 		var cum uint64
 		for r, l := range counts {
-			cum += st.Rows[l]
+			cum += st.RowCount(l)
 			if r < top {
-				p.Top = append(p.Top, LevelCount{Level: string(st.Bytes(l)), Rows: st.Rows[l], Share: float64(st.Rows[l]) / float64(rows)})
+				p.Top = append(p.Top, LevelCount{Level: string(st.Bytes(l)), Rows: st.RowCount(l), Share: float64(st.RowCount(l)) / float64(rows)})
 			}
 			switch r + 1 {
 			case 10:

@@ -349,7 +349,7 @@ func (m *Model) saveCol(path string, c *Col) error {
 		rowsCol := cols[j].Ints
 		j++
 		for i, l := range sel {
-			rowsCol[i] = int64(st.Rows[l])
+			rowsCol[i] = int64(st.RowCount(l))
 		}
 		if supervised {
 			if m.fastTableValues(c) {
@@ -562,7 +562,7 @@ func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Co
 			c.Keep[l] = l != 0 || !m.Spec.NullsUnseen
 			k := 1
 			next := func() *table.Column { k++; return &b.Cols[k-1] }
-			st.Rows[l] = uint64(next().Ints[i])
+			st.SetRows(l, uint64(next().Ints[i]))
 			if supervised {
 				tn := uint32(next().Ints[i])
 				if task == colstats.Regression {

@@ -507,10 +507,15 @@ func (m *Model) freq(c *Col, l int) float64 {
 	if !c.Keep[l] {
 		return 0
 	}
+	return m.freqOf(c, c.St.RowCount(l))
+}
+
+// freqOf returns the frequency of a kept level of c with rows rows.
+func (m *Model) freqOf(c *Col, rows uint64) float64 {
 	if m.Spec.FreqShare {
-		return float64(c.St.RowCount(l)) / c.total
+		return float64(rows) / c.total
 	}
-	return float64(c.St.RowCount(l))
+	return float64(rows)
 }
 
 // order returns the slots in canonical order.

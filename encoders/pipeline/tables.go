@@ -386,7 +386,15 @@ func (m *Model) saveCol(path string, c *Col) error {
 		freqCol := cols[j].Floats
 		j++
 		for i, l := range sel {
-			freqCol[i] = m.freq(c, l)
+			switch {
+			case c.Freq != nil:
+				freqCol[i] = c.Freq[l]
+			case !c.Keep[l]:
+				freqCol[i] = 0
+			default:
+				// The rows were fetched above.
+				freqCol[i] = m.freqOf(c, uint64(rowsCol[i]))
+			}
 		}
 		topCol := cols[j].Ints
 		j++

@@ -84,8 +84,10 @@ func main() {
 	if os.Getenv("GOGC") == "" {
 		// manyfold's large arrays (level bytes, counters) hold no pointers,
 		// so collecting more often costs little and keeps the peak memory
-		// near the live statistics instead of twice them.
-		debug.SetGCPercent(30)
+		// near the live statistics instead of twice them. At 10M levels
+		// 15% gave 0.79-0.81 GB peak RSS against 0.90 GB with 30%, in
+		// the same time within noise.
+		debug.SetGCPercent(15)
 	}
 	if path := os.Getenv("MANYFOLD_CPUPROFILE"); path != "" {
 		// For contributors: a CPU profile of the whole run (see DEVELOPERS.md).

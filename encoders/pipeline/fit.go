@@ -20,6 +20,8 @@ type Model struct {
 	Rows    int64    // rows fitted
 	Missing int64    // rows whose target was unknown (encoded, not counted)
 	Cols    []*Col
+
+	threads int // FitOptions.Threads: mapping tables written at once
 }
 
 // Col is the fitted state of one encoded column.
@@ -73,7 +75,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		return nil, err
 	}
 	schema := r.Schema()
-	m := &Model{Spec: sp, Input: append([]table.Field(nil), schema.Fields...)}
+	m := &Model{Spec: sp, Input: append([]table.Field(nil), schema.Fields...), threads: opt.Threads}
 	needTarget := sp.has(MethodTarget) || sp.FoldBy == "stratified"
 	tcol := -1
 	if sp.Target != "" {

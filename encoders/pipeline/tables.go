@@ -242,16 +242,25 @@ func (st *StagedTables) Abort() { os.RemoveAll(st.tmp) }
 
 func (m *Model) writeTables(st *StagedTables) error {
 	mf := m.Manifest()
-	save := func(name string, c *Col) error {
-		st.files = append(st.files, name)
-		return m.saveCol(filepath.Join(st.tmp, name), c)
-	}
 	for i, c := range m.Cols {
-		if err := save(mf.Columns[i].Table, c); err != nil {
-			return err
+		st.files = append(st.files, mf.Columns[i].Table)
+		if c.Parent != nil {
+			st.files = append(st.files, mf.Columns[i].ParentTable)
+		}
+	}
+	// The columns' own tables side by side (each file is the same
+	// whatever the number of threads), then the parents, which columns
+	// may share, one after another.
+	errs := make([]error, len(m.Cols))
+	each(len(m.Cols), m.threads, func(i int) {
+		errs[i] = m.saveCol(filepath.Join(st.tmp, mf.Columns[i].Table), m.Cols[i])
+	})
+	for i, c := range m.Cols {
+		if errs[i] != nil {
+			return errs[i]
 		}
 		if c.Parent != nil {
-			if err := save(mf.Columns[i].ParentTable, c.Parent); err != nil {
+			if err := m.saveCol(filepath.Join(st.tmp, mf.Columns[i].ParentTable), c.Parent); err != nil {
 				return err
 			}
 		}
@@ -305,6 +314,8 @@ func (m *Model) saveCol(path string, c *Col) error {
 	if err != nil {
 		return err
 	}
+	// The writer encodes a chunk of levels while the next is gathered.
+	out.Writer = table.WriteBehind(out.Writer)
 	st := c.St
 	order := c.order()
 	const chunk = 1 << 16

@@ -135,6 +135,14 @@ type closeBoth struct {
 	f *os.File
 }
 
+// EstimateRows passes on the CSV reader's estimate of the rows.
+func (c *closeBoth) EstimateRows() int64 {
+	if re, ok := c.Reader.(table.RowEstimator); ok {
+		return re.EstimateRows()
+	}
+	return 0
+}
+
 func (c *closeBoth) Close() error {
 	err := c.Reader.Close()
 	if err2 := c.f.Close(); err == nil {

@@ -330,3 +330,53 @@ func TestOpenErrors(t *testing.T) {
 		t.Errorf("missing file: %v, want os.ErrNotExist", err)
 	}
 }
+
+// TestRowCounts: a Parquet reader knows its rows, a CSV file's reader
+// estimates them once it has read some, through Open's wrappers too.
+func TestRowCounts(t *testing.T) {
+	dir := t.TempDir()
+	var sb strings.Builder
+	sb.WriteString("route,late\n")
+	for i := 0; i < 5000; i++ {
+		fmt.Fprintf(&sb, "R%03d,%d\n", i%500, i%2)
+	}
+	csvPath := filepath.Join(dir, "s.csv")
+	if err := os.WriteFile(csvPath, []byte(sb.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	r, err := Open(csvPath, ReadOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	if _, err := r.Next(); err != nil {
+		t.Fatal(err)
+	}
+	re, ok := r.(table.RowEstimator)
+	if !ok {
+		t.Fatal("the CSV reader hides its estimate")
+	}
+	if n := re.EstimateRows(); n < 4900 || n > 5100 {
+		t.Errorf("estimate %d, want about 5000", n)
+	}
+	pqPath := filepath.Join(dir, "s.parquet")
+	w, err := Create(pqPath, &table.Schema{Fields: []table.Field{{Name: "x", Kind: table.Int64}}}, WriteOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Write(&table.Batch{Rows: 3, Cols: []table.Column{{Form: table.FormInt64, Ints: []int64{1, 2, 3}}}}); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	p, err := Open(pqPath, ReadOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Close()
+	rc, ok := table.ReadAhead(p).(table.RowCounter)
+	if !ok || rc.NumRows() != 3 {
+		t.Fatalf("Parquet rows through ReadAhead: %v", ok)
+	}
+}

@@ -359,12 +359,15 @@ func (m *Model) saveCol(path string, c *Col) error {
 		j := 0
 		rowsCol := cols[j].Ints
 		j++
-		for i, l := range sel {
-			rowsCol[i] = int64(st.RowCount(l))
+		fast := supervised && m.fastTableValues(c)
+		if !fast {
+			for i, l := range sel {
+				rowsCol[i] = int64(st.RowCount(l))
+			}
 		}
 		if supervised {
-			if m.fastTableValues(c) {
-				m.binaryTableValues(c, sel, cols[j].Ints, cols[j+1].Ints, cols[j+2].Ints, cols[j+3].Floats)
+			if fast {
+				m.binaryTableValues(c, sel, rowsCol, cols[j].Ints, cols[j+1].Ints, cols[j+2].Ints, cols[j+3].Floats)
 				j += 4
 			} else {
 				for i, l := range sel {
@@ -438,16 +441,18 @@ func (m *Model) fastTableValues(c *Col) bool {
 }
 
 // binaryTableValues fills, for the slots sel of a binary-target column,
-// target_rows, count_<class> of the two classes and tmean, from one read
-// of each level's per-fold counts: n_c = sum over folds of the count of
+// rows (all, whatever the target), target_rows, count_<class> of the two
+// classes and tmean, from one read of each level's per-fold counts: n_c = sum over folds of the count of
 // class c, target_rows = n_0 + n_1, tmean = Full.Encode(n_0+n_1, n_pos) for
 // a kept level and the prior otherwise (what Target, ClassCount and tmean
 // give, with the same integer sums).
-func (m *Model) binaryTableValues(c *Col, sel []int, rows, c0, c1 []int64, tmean []float64) {
+func (m *Model) binaryTableValues(c *Col, sel []int, all, rows, c0, c1 []int64, tmean []float64) {
 	st := c.St
 	for i, l := range sel {
 		n0, n1 := st.ClassTotals2(l)
 		rows[i], c0[i], c1[i] = int64(n0+n1), int64(n0), int64(n1)
+		// The level's counts are in the cache now.
+		all[i] = int64(st.RowCount(l))
 	}
 	ft := &c.Full[0]
 	for i, l := range sel {

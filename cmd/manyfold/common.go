@@ -99,7 +99,7 @@ func (f *outputFlags) add(fs *pflag.FlagSet) {
 	fs.StringVar(&f.out, "out", "", "encoded table: .parquet, .csv or .arrow")
 	fs.StringVar(&f.format, "format", "", "output format, overriding the extension: parquet, csv, arrow")
 	fs.StringVar(&f.compression, "compression", "snappy", "Parquet output compression: snappy, zstd, none")
-	fs.IntVar(&f.threads, "threads", runtime.NumCPU(), "columns encoded at once (the output is the same for any number)")
+	fs.IntVar(&f.threads, "threads", runtime.NumCPU(), "cores to use: columns encoded at once, and reading, encoding and writing side by side (the output is the same for any number)")
 }
 
 // options checks the output's path, format (from --format or the
@@ -125,6 +125,12 @@ func (f *outputFlags) options(input string) (tableio.WriteOptions, error) {
 	default:
 		return tableio.WriteOptions{}, usagef("--compression %q: want snappy, zstd or none", f.compression)
 	}
+	if f.threads < 1 {
+		return tableio.WriteOptions{}, usagef("--threads %d: want at least 1", f.threads)
+	}
+	// The reader ahead, the writer behind and the column encoders all run
+	// on goroutines: --threads bounds the cores they share.
+	runtime.GOMAXPROCS(f.threads)
 	return tableio.WriteOptions{Format: format, Parquet: pqio.WriterOptions{Compression: f.compression}}, nil
 }
 

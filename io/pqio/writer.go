@@ -305,47 +305,49 @@ func (w *writer) add(j int, c *table.Column, start, k int, first int64) error {
 		nl[i] = nulls != nil && nulls[i]
 		anyNull = anyNull || nl[i]
 	}
-	var err error
-	isNull := false
 	switch f.Kind {
 	case table.Int64:
-		vals := grow(w.ints[j], k)
-		w.ints[j] = vals
-		for i := range vals {
-			if !nl[i] {
-				if vals[i], isNull, err = intAt(c, start+i, f.Nullable); err != nil {
-					return bad(i, err)
-				}
-				nl[i], anyNull = isNull, anyNull || isNull
-			}
+		vals, nl, i, err := convertRows(&w.ints[j], nl, anyNull, c, start, f.Nullable, intAt)
+		if err != nil {
+			return bad(i, err)
 		}
-		return wrap(ch.appendInts(vals, nullsOrNil(nl, anyNull)))
+		return wrap(ch.appendInts(vals, nl))
 	case table.Float64:
-		vals := grow(w.floats[j], k)
-		w.floats[j] = vals
-		for i := range vals {
-			if !nl[i] {
-				if vals[i], isNull, err = floatAt(c, start+i, f.Nullable); err != nil {
-					return bad(i, err)
-				}
-				nl[i], anyNull = isNull, anyNull || isNull
-			}
+		vals, nl, i, err := convertRows(&w.floats[j], nl, anyNull, c, start, f.Nullable, floatAt)
+		if err != nil {
+			return bad(i, err)
 		}
-		return wrap(ch.appendFloats(vals, nullsOrNil(nl, anyNull)))
+		return wrap(ch.appendFloats(vals, nl))
 	case table.Bool:
-		vals := grow(w.bools[j], k)
-		w.bools[j] = vals
-		for i := range vals {
-			if !nl[i] {
-				if vals[i], isNull, err = boolAt(c, start+i, f.Nullable); err != nil {
-					return bad(i, err)
-				}
-				nl[i], anyNull = isNull, anyNull || isNull
-			}
+		vals, nl, i, err := convertRows(&w.bools[j], nl, anyNull, c, start, f.Nullable, boolAt)
+		if err != nil {
+			return bad(i, err)
 		}
-		return wrap(ch.appendBools(vals, nullsOrNil(nl, anyNull)))
+		return wrap(ch.appendBools(vals, nl))
 	}
 	return fmt.Errorf("%s: column %q: unknown kind %v", w.name, f.Name, f.Kind)
+}
+
+// convertRows converts rows start..start+len(nl) of c with at into *buf,
+// marking in nl the rows that turn out null (nl marks the null rows of c on
+// entry, anyNull whether there is one). It returns the values, nl or nil
+// when no row is null, and on failure the failing row's index.
+func convertRows[T any](buf *[]T, nl []bool, anyNull bool, c *table.Column, start int, nullable bool,
+	at func(*table.Column, int, bool) (T, bool, error)) ([]T, []bool, int, error) {
+	vals := grow(*buf, len(nl))
+	*buf = vals
+	for i := range vals {
+		if nl[i] {
+			continue
+		}
+		v, isNull, err := at(c, start+i, nullable)
+		if err != nil {
+			return nil, nil, i, err
+		}
+		vals[i], nl[i] = v, isNull
+		anyNull = anyNull || isNull
+	}
+	return vals, nullsOrNil(nl, anyNull), 0, nil
 }
 
 func nullsOrNil(nl []bool, any bool) []bool {

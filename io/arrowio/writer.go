@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"strconv"
 
 	"github.com/apache/arrow/go/v17/arrow"
 	"github.com/apache/arrow/go/v17/arrow/array"
@@ -273,15 +272,16 @@ func (w *writer) ints(st *writeCol, col *table.Column, n int, name string, first
 		}
 		switch col.Form {
 		case table.FormFloat64:
-			f := col.Floats[i]
-			if f != math.Trunc(f) || f < -(1<<63) || f >= 1<<63 {
-				return nil, w.dataErr(first, i, name, fmt.Errorf("%s is not an integer", table.AppendFloat(nil, f)))
+			v, err := table.FloatToInt(col.Floats[i])
+			if err != nil {
+				return nil, w.dataErr(first, i, name, err)
 			}
-			st.ints[i] = int64(f)
+			st.ints[i] = v
 		case table.FormBool:
 			st.ints[i] = b2i(col.Bools[i])
 		default:
-			v, ok := parseInt(col.Bytes(i))
+			v, perr := table.ParseInt(col.Bytes(i))
+			ok := perr == nil
 			if !ok {
 				return nil, w.dataErr(first, i, name, fmt.Errorf("%q is not an integer", col.Bytes(i)))
 			}
@@ -349,42 +349,6 @@ func b2i(b bool) int64 {
 		return 1
 	}
 	return 0
-}
-
-// parseInt parses an optionally signed decimal integer; an integral number
-// written with a fraction or exponent ("12.0", "1e3") is accepted too.
-func parseInt(b []byte) (int64, bool) {
-	s := b
-	neg := false
-	if len(s) > 0 && (s[0] == '-' || s[0] == '+') {
-		neg = s[0] == '-'
-		s = s[1:]
-	}
-	if len(s) > 0 && len(s) <= 18 {
-		var v int64
-		ok := true
-		for _, c := range s {
-			if c < '0' || c > '9' {
-				ok = false
-				break
-			}
-			v = v*10 + int64(c-'0')
-		}
-		if ok {
-			if neg {
-				v = -v
-			}
-			return v, true
-		}
-	}
-	if v, err := strconv.ParseInt(string(b), 10, 64); err == nil {
-		return v, true
-	}
-	f, err := strconv.ParseFloat(string(b), 64)
-	if err != nil || f != math.Trunc(f) || f < -(1<<63) || f >= 1<<63 {
-		return 0, false
-	}
-	return int64(f), true
 }
 
 // parseBool accepts true/false in lower, upper or title case, and 1/0.

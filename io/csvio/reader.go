@@ -6,7 +6,6 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"math"
 	"os"
 	"sort"
 	"strconv"
@@ -585,13 +584,8 @@ func checkValue(kind table.Kind, v []byte) error {
 		if intText(v) {
 			return nil
 		}
-		if _, err := strconv.ParseInt(string(v), 10, 64); err == nil {
-			return nil
-		}
-		if f, err := strconv.ParseFloat(string(v), 64); err == nil && f == math.Trunc(f) && f >= -(1<<63) && f < 1<<63 {
-			return nil
-		}
-		return fmt.Errorf("%q is not an integer", v)
+		_, err := table.ParseInt(v)
+		return err
 	case table.Float64:
 		if floatText(v) {
 			return nil

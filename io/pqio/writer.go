@@ -5,7 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"math"
 	"runtime"
 	"slices"
 	"strconv"
@@ -519,7 +518,7 @@ func intAt(c *table.Column, r int, nullable bool) (int64, bool, error) {
 	case table.FormInt64:
 		return c.Ints[r], false, nil
 	case table.FormFloat64:
-		v, err := floatToInt(c.Floats[r])
+		v, err := table.FloatToInt(c.Floats[r])
 		return v, false, err
 	case table.FormBool:
 		if c.Bools[r] {
@@ -534,27 +533,8 @@ func intAt(c *table.Column, r int, nullable bool) (int64, bool, error) {
 	if len(b) == 0 {
 		return 0, false, errEmpty
 	}
-	if v, err := strconv.ParseInt(bstr(b), 10, 64); err == nil {
-		return v, false, nil
-	}
-	f, err := strconv.ParseFloat(bstr(b), 64)
-	if err != nil {
-		return 0, false, fmt.Errorf("%q is not an integer", b)
-	}
-	v, err := floatToInt(f)
-	if err != nil {
-		return 0, false, fmt.Errorf("%q is not an integer", b)
-	}
-	return v, false, nil
-}
-
-// floatToInt converts f to an integer when it has no fractional part and
-// fits in an int64.
-func floatToInt(f float64) (int64, error) {
-	if f != math.Trunc(f) || f < -(1<<63) || f >= 1<<63 {
-		return 0, fmt.Errorf("%s is not an integer", table.AppendFloat(nil, f))
-	}
-	return int64(f), nil
+	v, err := table.ParseInt(b)
+	return v, false, err
 }
 
 // floatAt returns row r of c as a float. Text is parsed as table.ParseFloat

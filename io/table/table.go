@@ -228,6 +228,58 @@ func (c *Column) Float(i int) (v float64, ok bool, err error) {
 	return v, true, nil
 }
 
+// ParseInt parses an integer the way every manyfold writer reads text into
+// an int column: an optionally signed decimal integer (leading zeros
+// allowed), or a number with no fractional part ("12.0", "1e3") that fits
+// in an int64.
+func ParseInt(b []byte) (int64, error) {
+	s := b
+	neg := false
+	if len(s) > 0 && (s[0] == '-' || s[0] == '+') {
+		neg = s[0] == '-'
+		s = s[1:]
+	}
+	if len(s) > 0 && len(s) <= 18 {
+		// The common case without strconv: at most 18 digits cannot wrap.
+		var v int64
+		ok := true
+		for _, c := range s {
+			if c < '0' || c > '9' {
+				ok = false
+				break
+			}
+			v = v*10 + int64(c-'0')
+		}
+		if ok {
+			if neg {
+				v = -v
+			}
+			return v, nil
+		}
+	}
+	if v, err := strconv.ParseInt(string(b), 10, 64); err == nil {
+		return v, nil
+	}
+	f, err := strconv.ParseFloat(string(b), 64)
+	if err != nil {
+		return 0, fmt.Errorf("%q is not an integer", b)
+	}
+	v, err := FloatToInt(f)
+	if err != nil {
+		return 0, fmt.Errorf("%q is not an integer", b)
+	}
+	return v, nil
+}
+
+// FloatToInt converts f to an integer when it has no fractional part and
+// fits in an int64.
+func FloatToInt(f float64) (int64, error) {
+	if f != math.Trunc(f) || f < -(1<<63) || f >= 1<<63 {
+		return 0, fmt.Errorf("%s is not an integer", AppendFloat(nil, f))
+	}
+	return int64(f), nil
+}
+
 // ParseFloat parses a decimal or scientific number. It accepts what
 // strconv.ParseFloat accepts, including NaN and Inf, and the booleans
 // true and false as 1 and 0.

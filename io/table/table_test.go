@@ -80,3 +80,26 @@ func TestParseKind(t *testing.T) {
 		t.Error("colour parsed as a kind")
 	}
 }
+
+// TestParseInt: what every writer accepts as an int. The limits are
+// int64's (computed from the type: 2^63-1 and -2^63).
+func TestParseInt(t *testing.T) {
+	cases := []struct {
+		in   string
+		want int64
+		ok   bool
+	}{
+		{"501", 501, true}, {"-7", -7, true}, {"+3", 3, true}, {"007", 7, true},
+		{"3.0", 3, true}, {"1e3", 1000, true}, {"-0", 0, true},
+		{"9223372036854775807", 9223372036854775807, true},
+		{"-9223372036854775808", -9223372036854775808, true},
+		{"9223372036854775808", 0, false}, {"3.5", 0, false}, {"", 0, false},
+		{"PC1", 0, false}, {"1e300", 0, false}, {"NaN", 0, false}, {"-", 0, false},
+	}
+	for _, c := range cases {
+		got, err := ParseInt([]byte(c.in))
+		if (err == nil) != c.ok || (c.ok && got != c.want) {
+			t.Errorf("ParseInt(%q) = %d, %v; want %d, ok %v", c.in, got, err, c.want, c.ok)
+		}
+	}
+}

@@ -96,6 +96,10 @@ type chunk struct {
 
 func newChunk(f table.Field, c codec) *chunk {
 	ch := &chunk{kind: f.Kind, nullable: f.Nullable, codec: c}
+	if f.Kind == table.Int64 || f.Kind == table.Float64 {
+		// A page's values in one allocation, not grown by doubling.
+		ch.vals = make([]byte, 0, min(pageBytes, 8*pageValues))
+	}
 	ch.reset(false)
 	return ch
 }

@@ -500,11 +500,16 @@ func (w *writer) close() error {
 // bstr views b as a string without copying; the string must not outlive b.
 func bstr(b []byte) string { return unsafe.String(unsafe.SliceData(b), len(b)) }
 
-// textAt returns the text of row r of a text or dictionary column, and
-// whether it is empty text that stands for a null (only when nullable).
-func textAt(c *table.Column, r int, nullable bool) ([]byte, bool) {
-	b := c.Bytes(r)
-	return b, len(b) == 0 && nullable
+// textValue returns the text of row r for parsing into a number or a
+// bool: null is true for empty text in a nullable column; empty text in
+// a column that is not nullable is an error.
+func textValue(c *table.Column, r int, nullable bool) (b []byte, null bool, err error) {
+	b = c.Bytes(r)
+	null = len(b) == 0 && nullable
+	if !null && len(b) == 0 {
+		return nil, false, errEmpty
+	}
+	return b, null, nil
 }
 
 var (
@@ -526,12 +531,9 @@ func intAt(c *table.Column, r int, nullable bool) (int64, bool, error) {
 		}
 		return 0, false, nil
 	}
-	b, null := textAt(c, r, nullable)
-	if null {
-		return 0, true, nil
-	}
-	if len(b) == 0 {
-		return 0, false, errEmpty
+	b, null, err := textValue(c, r, nullable)
+	if err != nil || null {
+		return 0, null, err
 	}
 	v, err := table.ParseInt(b)
 	return v, false, err
@@ -551,24 +553,12 @@ func floatAt(c *table.Column, r int, nullable bool) (float64, bool, error) {
 		}
 		return 0, false, nil
 	}
-	b, null := textAt(c, r, nullable)
-	if null {
-		return 0, true, nil
+	b, null, err := textValue(c, r, nullable)
+	if err != nil || null {
+		return 0, null, err
 	}
-	if len(b) == 0 {
-		return 0, false, errEmpty
-	}
-	switch bstr(b) {
-	case "true", "TRUE", "True":
-		return 1, false, nil
-	case "false", "FALSE", "False":
-		return 0, false, nil
-	}
-	v, err := strconv.ParseFloat(bstr(b), 64)
-	if err != nil {
-		return 0, false, fmt.Errorf("%q is not a number", b)
-	}
-	return v, false, nil
+	v, err := table.ParseFloat(b)
+	return v, false, err
 }
 
 // boolAt returns row r of c as a boolean: numbers must be 0 or 1; text is
@@ -594,12 +584,9 @@ func boolAt(c *table.Column, r int, nullable bool) (bool, bool, error) {
 		}
 		return false, false, fmt.Errorf("%s is not a boolean (want 0 or 1)", table.AppendFloat(nil, c.Floats[r]))
 	}
-	b, null := textAt(c, r, nullable)
-	if null {
-		return false, true, nil
-	}
-	if len(b) == 0 {
-		return false, false, errEmpty
+	b, null, err := textValue(c, r, nullable)
+	if err != nil || null {
+		return false, null, err
 	}
 	v, err := strconv.ParseBool(bstr(b))
 	if err != nil {

@@ -291,49 +291,23 @@ func (c *colReader) loadDict(d parquet.Dictionary) error {
 		c.dictInts = grow(c.dictInts, n)
 		switch c.leaf.phys {
 		case parquet.Int32:
-			v := data.Int32()
-			if len(v) < n {
-				return errShortDict(n, len(v))
+			conv := func(v int32) int64 { return int64(v) }
+			if c.leaf.uint32s {
+				conv = func(v int32) int64 { return int64(uint32(v)) }
 			}
-			for i := range c.dictInts {
-				if c.leaf.uint32s {
-					c.dictInts[i] = int64(uint32(v[i]))
-				} else {
-					c.dictInts[i] = int64(v[i])
-				}
-			}
+			return dictValues(c.dictInts, data.Int32(), conv)
 		case parquet.Int64:
-			v := data.Int64()
-			if len(v) < n {
-				return errShortDict(n, len(v))
-			}
-			copy(c.dictInts, v)
+			return dictValues(c.dictInts, data.Int64(), func(v int64) int64 { return v })
 		case parquet.Int96:
-			v := data.Int96()
-			if len(v) < n {
-				return errShortDict(n, len(v))
-			}
-			for i := range c.dictInts {
-				c.dictInts[i] = int96Nanos(v[i])
-			}
+			return dictValues(c.dictInts, data.Int96(), int96Nanos)
 		}
 	case table.Float64:
 		c.dictFloats = grow(c.dictFloats, n)
 		switch c.leaf.phys {
 		case parquet.Float:
-			v := data.Float()
-			if len(v) < n {
-				return errShortDict(n, len(v))
-			}
-			for i := range c.dictFloats {
-				c.dictFloats[i] = float64(v[i])
-			}
+			return dictValues(c.dictFloats, data.Float(), func(v float32) float64 { return float64(v) })
 		case parquet.Double:
-			v := data.Double()
-			if len(v) < n {
-				return errShortDict(n, len(v))
-			}
-			copy(c.dictFloats, v)
+			return dictValues(c.dictFloats, data.Double(), func(v float64) float64 { return v })
 		}
 	case table.Bool:
 		bits := data.Boolean()
@@ -344,6 +318,18 @@ func (c *colReader) loadDict(d parquet.Dictionary) error {
 		for i := range c.dictBools {
 			c.dictBools[i] = bits[i>>3]>>(i&7)&1 != 0
 		}
+	}
+	return nil
+}
+
+// dictValues fills dst with the first len(dst) dictionary values of src,
+// converted.
+func dictValues[S, D any](dst []D, src []S, conv func(S) D) error {
+	if len(src) < len(dst) {
+		return errShortDict(len(dst), len(src))
+	}
+	for i := range dst {
+		dst[i] = conv(src[i])
 	}
 	return nil
 }

@@ -1,8 +1,10 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"os"
+	"runtime/trace"
 	"strconv"
 	"strings"
 	"time"
@@ -162,7 +164,9 @@ func runEncode(args []string) (err error) {
 	}
 	pr := newProgress("fit")
 	r = table.ReadAhead(r)
+	region := trace.StartRegion(context.Background(), "fit")
 	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: of.threads})
+	region.End()
 	r.Close()
 	if m != nil {
 		m.Input = full
@@ -193,7 +197,9 @@ func runEncode(args []string) (err error) {
 		tablesDone <- staged{st, err}
 	}()
 	pr = newProgress("encode")
+	region = trace.StartRegion(context.Background(), "encode")
 	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads, Input: o.full})
+	region.End()
 	if err == nil {
 		// Finish the output (the writer runs behind the encoding) before
 		// anything is committed, so that a failure leaves neither.

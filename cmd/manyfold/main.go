@@ -25,6 +25,7 @@ import (
 	"os"
 	"runtime/debug"
 	"runtime/pprof"
+	"runtime/trace"
 
 	"github.com/spf13/pflag"
 
@@ -88,6 +89,17 @@ func main() {
 		// 15% gave 0.79-0.81 GB peak RSS against 0.90 GB with 30%, in
 		// the same time within noise.
 		debug.SetGCPercent(15)
+	}
+	if path := os.Getenv("MANYFOLD_TRACE"); path != "" {
+		// For contributors: an execution trace of the whole run, for
+		// "go tool trace" (see DEVELOPERS.md).
+		if f, err := os.Create(path); err == nil {
+			trace.Start(f)
+			code := run(os.Args[1:])
+			trace.Stop()
+			f.Close()
+			os.Exit(code)
+		}
 	}
 	if path := os.Getenv("MANYFOLD_CPUPROFILE"); path != "" {
 		// For contributors: a CPU profile of the whole run (see DEVELOPERS.md).

@@ -54,13 +54,8 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 		copied := make([]bool, len(schema.Fields))
 		any := false
 		read := map[string]bool{}
-		for _, c := range m.Spec.Columns {
+		for _, c := range m.EncodeReads(apply) {
 			read[c] = true
-		}
-		for _, c := range []string{m.Spec.Target, m.Spec.PriorColumn, m.Spec.GroupColumn()} {
-			if c != "" {
-				read[c] = true
-			}
 		}
 		for i, k := range kept {
 			f := o.full.Fields[k]

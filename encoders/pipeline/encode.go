@@ -132,14 +132,14 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		keptAt[i] = schema.Index(full.Fields[k].Name)
 	}
 	sp := &m.Spec
+	training := !opt.Apply
 	idx := make([]int, len(m.Cols))
 	for i, c := range m.Cols {
 		idx[i] = schema.Index(c.Name)
-		if idx[i] < 0 {
+		if idx[i] < 0 && !(training && m.replays(c)) {
 			return sum, &ColumnError{File: opt.File, Flag: "the mapping tables", Name: c.Name, Have: schema.Names()}
 		}
 	}
-	training := !opt.Apply
 	var tr *targetReader
 	var fa *foldAssigner
 	if training {
@@ -171,6 +171,9 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 	}
 	for i, c := range m.Cols {
 		slots[i] = levelSlots{col: idx[i]}
+		if training && m.replays(c) {
+			slots[i].replay = c.replay.start()
+		}
 		pslots[i] = levelSlots{col: idx[i], prefix: sp.PriorPrefix}
 		if pcol >= 0 {
 			pslots[i] = levelSlots{col: pcol}
@@ -209,6 +212,11 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 				continue
 			}
 			batch.Cols[i] = b.Cols[k]
+		}
+		for ci := range m.Cols {
+			if slots[ci].col < 0 && !slots[ci].replay.has(n) {
+				return &table.DataError{File: opt.File, Row: b.FirstRow, Err: fmt.Errorf("the second pass read more rows than the first, %d; the file changed while it was read", m.Rows)}
+			}
 		}
 		colSlots := make([][]int32, len(m.Cols))
 		parSlots := make([][]int32, len(m.Cols))
@@ -338,6 +346,32 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		return sum, fmt.Errorf("%s: the second pass read %d rows, the first %d; the file changed while it was read", opt.File, sum.Rows, m.Rows)
 	}
 	return sum, nil
+}
+
+// replays says whether the training pass takes column c's level slots
+// from the fit's record rather than from its values.
+func (m *Model) replays(c *Col) bool { return c.replay != nil && c.replay.rows == m.Rows }
+
+// EncodeReads returns the names of the input columns that Encode reads
+// from its batches, besides the kept ones: the encoded columns, the target
+// and the prior and group columns. In the training pass (apply false) an
+// encoded column whose level slots the fit recorded is left out, unless its
+// values are hashed or cut to a prefix prior: a reader restricted to these
+// columns (Select) does not decode it a second time.
+func (m *Model) EncodeReads(apply bool) []string {
+	sp := &m.Spec
+	var names []string
+	for _, c := range m.Cols {
+		if apply || !m.replays(c) || sp.has(MethodHash) || sp.PriorPrefix > 0 {
+			names = append(names, c.Name)
+		}
+	}
+	for _, n := range []string{sp.Target, sp.PriorColumn, sp.GroupColumn()} {
+		if n != "" {
+			names = append(names, n)
+		}
+	}
+	return names
 }
 
 // yOf returns the target of row i as a class index or value; ok is false

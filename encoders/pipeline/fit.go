@@ -54,6 +54,10 @@ type Col struct {
 	// column, shared by every encoded column, and ParentOf is nil.
 	Parent   *Col
 	ParentOf []int32
+
+	// replay holds the slots of the fit's rows for the encode pass over
+	// the same table, for a column whose levels are nearly all distinct.
+	replay *replay
 }
 
 // FitOptions carries what Fit needs beyond the Spec.
@@ -213,8 +217,14 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		seen := m.Rows + int64(b.Rows)
 		each(len(all), opt.Threads, func(ci int) {
 			c := all[ci]
-			ls := slots[ci].fill(b, c.St, true)
 			st := c.St
+			if m.Rows == 0 && ci < len(m.Cols) {
+				c.replay = newReplay(st.NumLevels())
+			}
+			ls := slots[ci].fill(b, st, true)
+			if c.replay != nil && !c.replay.record(ls) {
+				c.replay = nil
+			}
 			if !sized[ci] && (seen >= presizeRows || seen == total) {
 				// A column whose levels are nearly all distinct so far
 				// (an id) gets its level table sized for every row now,

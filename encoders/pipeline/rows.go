@@ -25,6 +25,7 @@ type levelSlots struct {
 	dictMap  []int32
 	scratch  []byte
 	slots    []int32
+	replay   *cursor // the fit's slots of these rows, when recorded
 
 	// Per batch: the values to look up, in order of first use.
 	keys  [][]byte
@@ -44,11 +45,18 @@ const (
 // gets -1. The values are gathered first and looked up in one batch
 // (Stats.LevelBatch, Stats.LookupBatch).
 func (ls *levelSlots) fill(b *table.Batch, st *colstats.Stats, add bool) []int32 {
-	c := &b.Cols[ls.col]
 	if cap(ls.slots) < b.Rows {
 		ls.slots = make([]int32, b.Rows)
 	}
 	slots := ls.slots[:b.Rows]
+	if ls.replay != nil {
+		if ls.replay.fill(slots) {
+			return slots
+		}
+		// More rows than the fit read: look the rest up.
+		ls.replay = nil
+	}
+	c := &b.Cols[ls.col]
 	keys := ls.keys[:0]
 	cut := func(v []byte) []byte {
 		if ls.prefix > 0 && len(v) > ls.prefix {

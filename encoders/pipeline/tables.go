@@ -1,12 +1,14 @@
 package pipeline
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
 	"os"
 	"path/filepath"
+	"runtime/trace"
 	"strconv"
 	"strings"
 
@@ -306,6 +308,7 @@ func (m *Model) tableSchema(supervised bool) *table.Schema {
 const tableRowGroup = 1 << 17
 
 func (m *Model) saveCol(path string, c *Col) error {
+	defer trace.StartRegion(context.Background(), "table "+c.Name).End()
 	supervised := c.Full != nil
 	schema := m.tableSchema(supervised)
 	// Row groups of tableRowGroup levels: the writer holds a row group's

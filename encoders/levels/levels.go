@@ -126,6 +126,42 @@ func (t *Table) Level(id uint32) []byte {
 	return t.at(t.loc(id))
 }
 
+// AppendLevels appends the bytes of the levels ids[i] to data and, after
+// each, the length of data to ends, and returns both: the levels of a
+// column of text (table.Column's Data and Offsets, when ends starts with
+// the offset 0). An id not in the table appends no bytes. It gives the
+// same bytes as appending Level(id) for each id in turn, faster when the
+// ids are scattered over a table larger than the cache: the locations
+// are loaded first by a loop that does nothing else, so their cache
+// misses overlap, and only then are the bytes copied.
+func (t *Table) AppendLevels(data []byte, ends []int32, ids []uint32) ([]byte, []int32) {
+	const batch = 256
+	var locs [batch]uint64
+	for len(ids) > 0 {
+		n := min(len(ids), batch)
+		for i, id := range ids[:n] {
+			if uint64(id) < uint64(t.n) {
+				locs[i] = t.locs[id>>blockBits][id&blockMask]
+			} else {
+				locs[i] = noLoc
+			}
+		}
+		for _, l := range locs[:n] {
+			if l != noLoc {
+				data = append(data, t.at(l)...)
+			}
+			ends = append(ends, int32(len(data)))
+		}
+		ids = ids[n:]
+	}
+	return data, ends
+}
+
+// noLoc marks the location of an id not in the table in AppendLevels. No
+// level has it: its offset (2^20-1) and length (2^20-2) would pass the end
+// of the level's chunk.
+const noLoc = math.MaxUint64 - 1
+
 // at returns the bytes at location l (see Level).
 func (t *Table) at(l uint64) []byte {
 	c := t.chunks[l>>(offBits+lenBits)]

@@ -337,16 +337,11 @@ func (m *Model) saveCol(path string, c *Col) error {
 		n := len(sel)
 		lv := &b.Cols[0]
 		lv.Form, lv.Data, lv.Offsets, lv.Nulls = table.FormText, lv.Data[:0], append(lv.Offsets[:0], 0), nil
-		for i, l := range sel {
-			if l == 0 {
-				if lv.Nulls == nil {
-					lv.Nulls = make([]bool, n)
-				}
-				lv.Nulls[i] = true
-			}
-			lv.Data = append(lv.Data, st.Bytes(l)...)
-			lv.Offsets = append(lv.Offsets, int32(len(lv.Data)))
+		if len(sel) > 0 && sel[0] == 0 { // the null level sorts first
+			lv.Nulls = make([]bool, n)
+			lv.Nulls[0] = true
 		}
+		lv.Data, lv.Offsets = st.AppendBytes(lv.Data, lv.Offsets, sel)
 		// The columns are filled one at a time, each by a loop that does
 		// little more than fetch one value per level: in canonical order the
 		// levels' statistics are scattered over memory, and loops this small
@@ -451,11 +446,9 @@ func (m *Model) fastTableValues(c *Col) bool {
 // give, with the same integer sums).
 func (m *Model) binaryTableValues(c *Col, sel []int, all, rows, c0, c1 []int64, tmean []float64) {
 	st := c.St
-	for i, l := range sel {
-		n0, n1 := st.ClassTotals2(l)
-		rows[i], c0[i], c1[i] = int64(n0+n1), int64(n0), int64(n1)
-		// The level's counts are in the cache now.
-		all[i] = int64(st.RowCount(l))
+	st.ClassTotals2s(sel, c0, c1, all)
+	for i := range sel {
+		rows[i] = c0[i] + c1[i]
 	}
 	ft := &c.Full[0]
 	for i, l := range sel {

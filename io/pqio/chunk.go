@@ -28,6 +28,14 @@ var (
 	dictMaxBytes = 1 << 20
 )
 
+// dictProbe is the number of values after which a row group's
+// dictionary is given up when nearly every value so far (9 in 10) was
+// a new entry: a column of nearly unique values (an id) would only
+// fill the dictionary to dictMaxBytes and fall back then, having
+// hashed each of those values for nothing. Giving up early on such
+// columns is common practice among columnar writers.
+const dictProbe = 1 << 14
+
 // codec compresses pages.
 type codec struct {
 	id  format.CompressionCodec
@@ -76,6 +84,7 @@ type chunk struct {
 	dict     map[string]int32 // entry -> index
 	dictVals []byte           // PLAIN-encoded entries
 	dictN    int
+	dictSeen int // values looked up in the dictionary
 	srcID    uint64  // Dict.ID the cache below belongs to
 	srcMap   []int32 // input dictionary entry -> our index, -1 unknown
 
@@ -117,7 +126,7 @@ func (c *chunk) reset(plain bool) {
 			c.dict = make(map[string]int32)
 		}
 	}
-	c.dictVals, c.dictN = c.dictVals[:0], 0
+	c.dictVals, c.dictN, c.dictSeen = c.dictVals[:0], 0, 0
 	c.srcID, c.srcMap = 0, c.srcMap[:0]
 	c.spare = append(c.spare, c.pages...)
 	c.pages, c.uncomp = c.pages[:0], 0
@@ -265,10 +274,11 @@ func (c *chunk) appendText(v []byte) error {
 // false when the dictionary is full, in which case the chunk has fallen
 // back to PLAIN for the rest of the row group.
 func (c *chunk) index(v []byte) (x int32, ok bool, err error) {
+	c.dictSeen++
 	if x, ok := c.dict[bstr(v)]; ok {
 		return x, true, nil
 	}
-	if len(c.dictVals)+4+len(v) > dictMaxBytes {
+	if len(c.dictVals)+4+len(v) > dictMaxBytes || (c.dictSeen == dictProbe && c.dictN*10 >= dictProbe*9) {
 		return 0, false, c.fallBack()
 	}
 	x = int32(c.dictN)

@@ -743,6 +743,51 @@ func TestDictionaryFallback(t *testing.T) {
 	}
 }
 
+// TestDictionaryProbe checks that a row group of nearly unique text gives
+// up its dictionary after dictProbe values, and that one of few levels
+// keeps it to the end; both read back unchanged.
+func TestDictionaryProbe(t *testing.T) {
+	const n = 3 * (1 << 14)
+	cases := []struct {
+		name           string
+		levels         int
+		dictLo, dictHi int64 // values in dictionary-encoded pages
+	}{
+		// The dictProbe-th value falls back; the nulls among the first
+		// ones (one in 1000) come with them.
+		{"unique", n, dictProbe - 1, dictProbe + dictProbe/1000},
+		{"2000 levels", 2000, n, n},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			data, cells := dictFile(t, n, tc.levels, n)
+			r := openBytes(t, "probe.parquet", data)
+			pages := r.pf.RowGroups()[0].ColumnChunks()[0].Pages()
+			var inDict int64
+			for {
+				p, err := pages.ReadPage()
+				if err == io.EOF {
+					break
+				}
+				if err != nil {
+					t.Fatal(err)
+				}
+				if p.Dictionary() != nil {
+					inDict += p.NumValues()
+				}
+				parquet.Release(p)
+			}
+			pages.Close()
+			res := readAll(t, r)
+			r.Close()
+			if inDict < tc.dictLo || inDict > tc.dictHi {
+				t.Errorf("%d values in dictionary pages, want %d to %d", inDict, tc.dictLo, tc.dictHi)
+			}
+			compareCells(t, tc.name, res.cols[0], cells)
+		})
+	}
+}
+
 // countingReaderAt records the byte ranges read.
 type countingReaderAt struct {
 	r     io.ReaderAt

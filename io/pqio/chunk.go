@@ -84,7 +84,7 @@ type chunk struct {
 	dict     map[string]int32 // entry -> index
 	dictVals []byte           // PLAIN-encoded entries
 	dictN    int
-	dictSeen int // values looked up in the dictionary
+	dictSeen int     // values looked up in the dictionary
 	srcID    uint64  // Dict.ID the cache below belongs to
 	srcMap   []int32 // input dictionary entry -> our index, -1 unknown
 

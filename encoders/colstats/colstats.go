@@ -154,13 +154,26 @@ func (s *Stats) Level(b []byte) int {
 // scratch of at least len(keys). It interns by levels.Table.InternBatch,
 // which overlaps the cache misses of groups of keys.
 func (s *Stats) LevelBatch(keys [][]byte, ids []uint32, slots []int32) {
+	s.InternBatch(keys, ids, slots)
+	s.Settle(s.Levels.Len())
+}
+
+// InternBatch is LevelBatch without making room for the new levels in the
+// counters: it touches only Levels, so it may run while another goroutine
+// counts rows of levels interned earlier. Settle must be called before
+// the new slots are counted.
+func (s *Stats) InternBatch(keys [][]byte, ids []uint32, slots []int32) {
 	ids = ids[:len(keys)]
 	s.Levels.InternBatch(keys, ids)
-	s.grow(s.Levels.Len() + 1)
 	for i, id := range ids {
 		slots[i] = int32(id + 1)
 	}
 }
+
+// Settle makes room in the counters for the first n levels of Levels (see
+// InternBatch): n is Levels.Len() after the interning of the slots to be
+// counted. NumLevels then counts them.
+func (s *Stats) Settle(n int) { s.grow(n + 1) }
 
 // LookupBatch sets slots[i] to Lookup(keys[i]) for every i; ids is scratch
 // of at least len(keys). It looks up by levels.Table.LookupBatch.

@@ -3,6 +3,7 @@ package pipeline
 import (
 	"errors"
 	"fmt"
+	"slices"
 	"sync"
 
 	"manyfold/encoders/colstats"
@@ -141,7 +142,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	fa := newFoldAssigner(&sp, gcol, opt.TotalRows)
 	slots := make([]levelSlots, len(m.Cols))
 	for i, c := range m.Cols {
-		slots[i] = levelSlots{col: c.Index, nullSlot: 0}
+		slots[i] = levelSlots{col: c.Index, nullSlot: 0, settle: true}
 	}
 	// With --prior-by column=COL the parent levels are that column's
 	// values, gathered like an encoded column's and shared by all columns.
@@ -156,7 +157,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			return nil, usageErr("--prior-by column=%s is the target", sp.PriorColumn)
 		}
 		parent = &Col{Name: sp.PriorColumn, Kind: schema.Fields[i].Kind, Index: i}
-		pslots = levelSlots{col: i}
+		pslots = levelSlots{col: i, settle: true}
 	}
 	all := m.Cols
 	if parent != nil {
@@ -171,6 +172,10 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	}
 	estimate, _ := r.(table.RowEstimator)
 	sized := make([]bool, len(all))
+	spare := make([][]int32, len(all)) // second slot buffers, see below
+	counts := [2]batchCounts{newBatchCounts(len(all)), newBatchCounts(len(all))}
+	var pending *batchCounts // the batch whose rows are still to be counted
+	step := 0
 	if err := table.ForEach(r, func(b *table.Batch) error {
 		if order != nil {
 			if err := order.check(b); err != nil {
@@ -190,6 +195,9 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			}
 			for _, c := range all {
 				c.St = colstats.New(task, sp.folds(), 0, 1024)
+			}
+			for _, c := range m.Cols {
+				c.replay = newReplay(c.St.NumLevels())
 			}
 		}
 		var cls []int32
@@ -215,52 +223,46 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			return err
 		}
 		seen := m.Rows + int64(b.Rows)
-		each(len(all), opt.Threads, func(ci int) {
-			c := all[ci]
-			st := c.St
-			if m.Rows == 0 && ci < len(m.Cols) {
-				c.replay = newReplay(st.NumLevels())
-			}
-			ls := slots[ci].fill(b, st, true)
-			if c.replay != nil && !c.replay.record(ls) {
-				c.replay = nil
-			}
-			if !sized[ci] && (seen >= presizeRows || seen == total) {
-				// A column whose levels are nearly all distinct so far
-				// (an id) gets its level table sized for every row now,
-				// rather than doubled again and again.
-				sized[ci] = true
-				want := total
-				if want <= 0 && estimate != nil {
-					want = estimate.EstimateRows() * 21 / 20
-				}
-				if want > 0 && float64(st.NumLevels()) >= 0.9*float64(seen) {
-					st.Levels.Reserve(int(want) + 1)
-				}
-			}
-			switch {
-			case tr == nil:
-				for _, l := range ls {
-					st.AddRow(int(l))
-				}
-			case regress:
-				for i, l := range ls {
-					if y := vals[i]; y == y {
-						st.AddValue(int(l), int(fold[i]), y)
-					} else {
-						st.AddRow(int(l))
+		// Stage 1 of this batch (interning its levels) runs beside stage 2
+		// of the last one (counting its rows), column by column: the two
+		// touch different parts of a column's statistics (Stats.InternBatch),
+		// so that an id column's interning, the longest task, need not
+		// wait for anything else. Every column still sees its batches in
+		// file order, so the result does not depend on the threads.
+		next := &counts[step%2]
+		step++
+		next.take(b.Rows, cls, vals, fold)
+		tasks := make([]func(), 0, 2*len(all))
+		for _, ci := range byLevels(all) {
+			tasks = append(tasks, func() {
+				st := all[ci].St
+				next.slots[ci] = slots[ci].fill(b, st, true)
+				next.levels[ci] = st.Levels.Len()
+				// The next fill writes other memory.
+				slots[ci].slots, spare[ci] = spare[ci], next.slots[ci][:cap(next.slots[ci])]
+				if !sized[ci] && (seen >= presizeRows || seen == total) {
+					// A column whose levels are nearly all distinct so far
+					// (an id) gets its level table sized for every row now,
+					// rather than doubled again and again.
+					sized[ci] = true
+					want := total
+					if want <= 0 && estimate != nil {
+						want = estimate.EstimateRows() * 21 / 20
+					}
+					if want > 0 && float64(st.Levels.Len()) >= 0.9*float64(seen) {
+						st.Levels.Reserve(int(want) + 1)
 					}
 				}
-			default:
-				for i, l := range ls {
-					if k := cls[i]; k >= 0 {
-						st.AddClass(int(l), int(fold[i]), int(k))
-					} else {
-						st.AddRow(int(l))
-					}
-				}
+			})
+		}
+		if pending != nil {
+			last := pending
+			for ci := range all {
+				tasks = append(tasks, func() { m.count(all[ci], last, ci, tr != nil, regress) })
 			}
-		})
+		}
+		each(len(tasks), opt.Threads, func(i int) { tasks[i]() })
+		pending = next
 		m.Rows += int64(b.Rows)
 		if opt.Progress != nil {
 			opt.Progress(m.Rows)
@@ -268,6 +270,9 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		return nil
 	}); err != nil {
 		return nil, err
+	}
+	if pending != nil {
+		each(len(all), opt.Threads, func(ci int) { m.count(all[ci], pending, ci, tr != nil, regress) })
 	}
 	if m.Rows == 0 || m.Cols[0].St == nil {
 		return nil, &table.DataError{File: opt.File, Err: errors.New("the table has no rows")}
@@ -326,6 +331,83 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	}
 	m.deriveAll(tr != nil, opt.Threads)
 	return m, nil
+}
+
+// batchCounts is what counting a batch's rows needs once the batch itself
+// is gone: each column's level slots and the rows' classes or target
+// values and folds.
+type batchCounts struct {
+	rows   int
+	slots  [][]int32 // per column
+	levels []int     // per column: its levels once the batch was interned
+	cls    []int32
+	vals   []float64
+	fold   []int32
+}
+
+func newBatchCounts(cols int) batchCounts {
+	return batchCounts{slots: make([][]int32, cols), levels: make([]int, cols)}
+}
+
+// take copies a batch's classes, values and folds (nil stays nil).
+func (bc *batchCounts) take(rows int, cls []int32, vals []float64, fold []int32) {
+	bc.rows = rows
+	keep := func(dst, src []int32) []int32 {
+		if src == nil {
+			return nil
+		}
+		return append(dst[:0], src...)
+	}
+	bc.cls, bc.fold = keep(bc.cls, cls), keep(bc.fold, fold)
+	bc.vals = nil
+	if vals != nil {
+		bc.vals = append(bc.vals[:0], vals...)
+	}
+}
+
+// count adds the rows of a batch to column c's statistics: stage 2 of the
+// fit (see Fit), after its levels were interned.
+func (m *Model) count(c *Col, bc *batchCounts, ci int, supervised, regress bool) {
+	st := c.St
+	st.Settle(bc.levels[ci])
+	ls := bc.slots[ci]
+	if c.replay != nil && !c.replay.record(ls) {
+		c.replay = nil
+	}
+	switch {
+	case !supervised:
+		for _, l := range ls {
+			st.AddRow(int(l))
+		}
+	case regress:
+		for i, l := range ls {
+			if y := bc.vals[i]; y == y {
+				st.AddValue(int(l), int(bc.fold[i]), y)
+			} else {
+				st.AddRow(int(l))
+			}
+		}
+	default:
+		for i, l := range ls {
+			if k := bc.cls[i]; k >= 0 {
+				st.AddClass(int(l), int(bc.fold[i]), int(k))
+			} else {
+				st.AddRow(int(l))
+			}
+		}
+	}
+}
+
+// byLevels returns the positions of cols, the columns with the most levels
+// first: the order in which their interning is started, so that the
+// longest runs from the start.
+func byLevels(cols []*Col) []int {
+	idx := make([]int, len(cols))
+	for i := range idx {
+		idx[i] = i
+	}
+	slices.SortStableFunc(idx, func(a, b int) int { return cols[b].St.Levels.Len() - cols[a].St.Levels.Len() })
+	return idx
 }
 
 // deriveAll derives every column, threads at a time: a parent shared by

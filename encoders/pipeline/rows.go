@@ -26,6 +26,7 @@ type levelSlots struct {
 	scratch  []byte
 	slots    []int32
 	replay   *cursor // the fit's slots of these rows, when recorded
+	settle   bool    // adding: leave making room for new levels to Stats.Settle
 
 	// Per batch: the values to look up, in order of first use.
 	keys  [][]byte
@@ -143,7 +144,9 @@ func (ls *levelSlots) lookup(st *colstats.Stats, keys [][]byte, add bool) []int3
 		ls.found = make([]int32, n)
 	}
 	found := ls.found[:n]
-	if add {
+	if add && ls.settle {
+		st.InternBatch(keys, ls.ids, found)
+	} else if add {
 		st.LevelBatch(keys, ls.ids, found)
 	} else {
 		st.LookupBatch(keys, ls.ids, found)

@@ -22,6 +22,7 @@ package main
 import (
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"runtime/debug"
 	"runtime/pprof"
@@ -90,27 +91,10 @@ func main() {
 		// the same time within noise.
 		debug.SetGCPercent(15)
 	}
-	if path := os.Getenv("MANYFOLD_TRACE"); path != "" {
-		// For contributors: an execution trace of the whole run, for
-		// "go tool trace" (see DEVELOPERS.md).
-		if f, err := os.Create(path); err == nil {
-			trace.Start(f)
-			code := run(os.Args[1:])
-			trace.Stop()
-			f.Close()
-			os.Exit(code)
-		}
-	}
-	if path := os.Getenv("MANYFOLD_CPUPROFILE"); path != "" {
-		// For contributors: a CPU profile of the whole run (see DEVELOPERS.md).
-		if f, err := os.Create(path); err == nil {
-			pprof.StartCPUProfile(f)
-			code := run(os.Args[1:])
-			pprof.StopCPUProfile()
-			f.Close()
-			os.Exit(code)
-		}
-	}
+	// For contributors (see DEVELOPERS.md): an execution trace for "go
+	// tool trace", or a CPU profile, of the whole run.
+	recordRun("MANYFOLD_TRACE", trace.Start, trace.Stop)
+	recordRun("MANYFOLD_CPUPROFILE", pprof.StartCPUProfile, pprof.StopCPUProfile)
 	code := run(os.Args[1:])
 	if path := os.Getenv("MANYFOLD_MEMPROFILE"); path != "" {
 		// For contributors: the allocations of the whole run.
@@ -119,6 +103,25 @@ func main() {
 			f.Close()
 		}
 	}
+	os.Exit(code)
+}
+
+// recordRun runs the command line with start and stop around it, writing
+// to the file the environment variable env names, and exits; it returns
+// without running anything when env is unset or the file cannot be made.
+func recordRun(env string, start func(io.Writer) error, stop func()) {
+	path := os.Getenv(env)
+	if path == "" {
+		return
+	}
+	f, err := os.Create(path)
+	if err != nil {
+		return
+	}
+	start(f)
+	code := run(os.Args[1:])
+	stop()
+	f.Close()
 	os.Exit(code)
 }
 

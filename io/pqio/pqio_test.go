@@ -270,25 +270,31 @@ func compareCells(t testing.TB, what string, got, want []cell) {
 	}
 }
 
+// eachPage calls f with every page of column c in row group g, in order.
+func eachPage(t testing.TB, r *Reader, g, c int, f func(parquet.Page)) {
+	t.Helper()
+	pages := r.pf.RowGroups()[g].ColumnChunks()[c].Pages()
+	defer pages.Close()
+	for {
+		p, err := pages.ReadPage()
+		if err == io.EOF {
+			return
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		f(p)
+		parquet.Release(p)
+	}
+}
+
 // pageCounts counts the data pages of column c in each row group.
 func pageCounts(t testing.TB, r *Reader, c int) []int {
 	t.Helper()
 	var out []int
-	for _, rg := range r.pf.RowGroups() {
-		pages := rg.ColumnChunks()[c].Pages()
+	for g := range r.pf.RowGroups() {
 		n := 0
-		for {
-			p, err := pages.ReadPage()
-			if err == io.EOF {
-				break
-			}
-			if err != nil {
-				t.Fatal(err)
-			}
-			n++
-			parquet.Release(p)
-		}
-		pages.Close()
+		eachPage(t, r, g, c, func(parquet.Page) { n++ })
 		out = append(out, n)
 	}
 	return out
@@ -710,20 +716,8 @@ func TestDictionaryFallback(t *testing.T) {
 	data, cells := dictFile(t, 5000, 5000, 5000)
 	r := openBytes(t, "fallback.parquet", data)
 	// Check that the file really mixes the two kinds of page.
-	pages := r.pf.RowGroups()[0].ColumnChunks()[0].Pages()
 	var kinds []bool
-	for {
-		p, err := pages.ReadPage()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			t.Fatal(err)
-		}
-		kinds = append(kinds, p.Dictionary() != nil)
-		parquet.Release(p)
-	}
-	pages.Close()
+	eachPage(t, r, 0, 0, func(p parquet.Page) { kinds = append(kinds, p.Dictionary() != nil) })
 	r.Close()
 	if len(kinds) < 3 || !kinds[0] || kinds[len(kinds)-1] {
 		t.Fatalf("pages dictionary-encoded: %v, want dictionary pages first and PLAIN ones last", kinds)
@@ -762,22 +756,12 @@ func TestDictionaryProbe(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			data, cells := dictFile(t, n, tc.levels, n)
 			r := openBytes(t, "probe.parquet", data)
-			pages := r.pf.RowGroups()[0].ColumnChunks()[0].Pages()
 			var inDict int64
-			for {
-				p, err := pages.ReadPage()
-				if err == io.EOF {
-					break
-				}
-				if err != nil {
-					t.Fatal(err)
-				}
+			eachPage(t, r, 0, 0, func(p parquet.Page) {
 				if p.Dictionary() != nil {
 					inDict += p.NumValues()
 				}
-				parquet.Release(p)
-			}
-			pages.Close()
+			})
 			res := readAll(t, r)
 			r.Close()
 			if inDict < tc.dictLo || inDict > tc.dictHi {

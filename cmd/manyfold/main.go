@@ -108,7 +108,8 @@ func main() {
 
 // recordRun runs the command line with start and stop around it, writing
 // to the file the environment variable env names, and exits; it returns
-// without running anything when env is unset or the file cannot be made.
+// without running anything when env is unset, and says so on stderr when
+// the file cannot be made or the recording cannot start.
 func recordRun(env string, start func(io.Writer) error, stop func()) {
 	path := os.Getenv(env)
 	if path == "" {
@@ -116,9 +117,14 @@ func recordRun(env string, start func(io.Writer) error, stop func()) {
 	}
 	f, err := os.Create(path)
 	if err != nil {
+		fmt.Fprintf(os.Stderr, "manyfold: %s: %v; running without it\n", env, err)
 		return
 	}
-	start(f)
+	if err := start(f); err != nil {
+		fmt.Fprintf(os.Stderr, "manyfold: %s: %v; running without it\n", env, err)
+		f.Close()
+		return
+	}
 	code := run(os.Args[1:])
 	stop()
 	f.Close()

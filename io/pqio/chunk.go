@@ -5,7 +5,9 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"math/bits"
 	"slices"
+	"unsafe"
 
 	"github.com/klauspost/compress/s2"
 	"github.com/parquet-go/parquet-go/compress/zstd"
@@ -29,11 +31,13 @@ var (
 )
 
 // dictProbe is the number of values after which a row group's
-// dictionary is given up when nearly every value so far (9 in 10) was
-// a new entry: a column of nearly unique values (an id) would only
-// fill the dictionary to dictMaxBytes and fall back then, having
-// hashed each of those values for nothing. Giving up early on such
-// columns is common practice among columnar writers.
+// dictionary is given up when nearly every value so far (9 in 10 for
+// text, 1 in 4 for numbers) was a new entry: a column of nearly unique
+// values (an id, a measurement) would only fill the dictionary to
+// dictMaxBytes and fall back then, having hashed each of those values for
+// nothing. Giving up early on such columns is common practice among
+// columnar writers. Numbers give up sooner, as an 8-byte entry saves
+// less than a text one.
 const dictProbe = 1 << 14
 
 // codec compresses pages.
@@ -59,10 +63,13 @@ var codecs = map[string]codec{
 // chunk encodes the values of one column for one row group as Parquet data
 // pages (format version 1 pages: definition levels, when the column is
 // optional, in the RLE / bit-packing hybrid with a 4-byte length prefix,
-// then the values), compressed page by page. Text is dictionary encoded
-// (RLE_DICTIONARY indices, the dictionary PLAIN in a dictionary page ahead
-// of the data pages) until the dictionary outgrows dictMaxBytes; everything
-// else, and text past that point, is PLAIN. A chunk records the statistics
+// then the values), compressed page by page. Text, int64 and float64 are
+// dictionary encoded (RLE_DICTIONARY indices, the dictionary PLAIN in a
+// dictionary page ahead of the data pages) until the dictionary outgrows
+// dictMaxBytes or the probe (dictProbe) finds the values nearly all
+// distinct; booleans, and values past that point, are PLAIN. Numbers are
+// entered by their bit patterns, so -0 and 0, and NaNs of different
+// payloads, stay distinct, as PLAIN keeps them. A chunk records the statistics
 // the column chunk's metadata carries: null count and, for numbers and
 // text, the minimum and maximum.
 type chunk struct {
@@ -79,14 +86,15 @@ type chunk struct {
 	pageDict bool     // the page holds dictionary indices
 
 	// The dictionary of the row group.
-	useDict  bool             // text values still go to the dictionary
+	useDict  bool             // values still go to the dictionary
 	plainRG  bool             // the dictionary overflowed in this row group
 	dict     map[string]int32 // entry -> index
 	dictVals []byte           // PLAIN-encoded entries
 	dictN    int
-	dictSeen int     // values looked up in the dictionary
-	srcID    uint64  // Dict.ID the cache below belongs to
-	srcMap   []int32 // input dictionary entry -> our index, -1 unknown
+	dictSeen int       // values looked up in the dictionary
+	srcID    uint64    // Dict.ID the cache below belongs to
+	srcMap   []int32   // input dictionary entry -> our index, -1 unknown
+	fixed    fixedDict // int64 and float64 entries
 
 	// The encoded chunk.
 	pages      [][]byte // compressed data pages, each with its header
@@ -118,14 +126,15 @@ func newChunk(f table.Field, c codec) *chunk {
 func (c *chunk) reset(plain bool) {
 	c.defs, c.vals, c.bools, c.idx = c.defs[:0], c.vals[:0], c.bools[:0], c.idx[:0]
 	c.pageN = 0
-	c.useDict = c.kind == table.String && !plain
+	c.useDict = c.kind != table.Bool && !plain
 	c.pageDict = c.useDict
 	c.plainRG = false
-	if c.useDict {
+	if c.useDict && c.kind == table.String {
 		if c.dict == nil || len(c.dict) > 0 {
 			c.dict = make(map[string]int32)
 		}
 	}
+	c.fixed.reset()
 	c.dictVals, c.dictN, c.dictSeen = c.dictVals[:0], 0, 0
 	c.srcID, c.srcMap = 0, c.srcMap[:0]
 	c.spare = append(c.spare, c.pages...)
@@ -192,8 +201,10 @@ func (c *chunk) appendFloats(vals []float64, nulls []bool) error {
 	})
 }
 
-// appendFixed appends 8-byte values PLAIN: runs of present values are
-// copied a page's room at a time.
+// appendFixed appends 8-byte values: runs of present values are entered in
+// the dictionary, or copied PLAIN, a page's room at a time. stat folds a
+// value into the chunk's minimum and maximum; with the dictionary it sees
+// each entry once, as the entries are the values.
 func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, bits func(T) uint64, stat func(T)) error {
 	for i := 0; i < len(vals); {
 		if nulls != nil && nulls[i] {
@@ -204,17 +215,29 @@ func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, bits func(
 			continue
 		}
 		// The run of present values from i, as far as the page has room.
-		room := max(1, min(pageValues-c.pageN, (pageBytes-len(c.vals)+7)/8))
+		var room int
+		if c.useDict {
+			room = max(1, min(pageValues-c.pageN, (pageBytes-4*len(c.idx)+3)/4))
+		} else {
+			room = max(1, min(pageValues-c.pageN, (pageBytes-len(c.vals)+7)/8))
+		}
 		j := i + 1
 		for j < len(vals) && j-i < room && (nulls == nil || !nulls[j]) {
 			j++
 		}
-		off := len(c.vals)
-		c.vals = slices.Grow(c.vals, 8*(j-i))[:off+8*(j-i)]
-		dst := c.vals[off:]
-		for k, v := range vals[i:j] {
-			binary.LittleEndian.PutUint64(dst[8*k:], bits(v))
-			stat(v)
+		giveUp := false
+		if c.useDict {
+			var k int
+			k, giveUp = enterFixed(c, vals[i:j], stat)
+			j = i + k
+		} else {
+			off := len(c.vals)
+			c.vals = slices.Grow(c.vals, 8*(j-i))[:off+8*(j-i)]
+			dst := c.vals[off:]
+			for k, v := range vals[i:j] {
+				binary.LittleEndian.PutUint64(dst[8*k:], bits(v))
+				stat(v)
+			}
 		}
 		if c.nullable {
 			for range j - i {
@@ -223,6 +246,12 @@ func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, bits func(
 		}
 		c.pageN += j - i
 		i = j
+		if giveUp {
+			if err := c.fallBack(); err != nil {
+				return err
+			}
+			continue
+		}
 		if c.full() {
 			if err := c.flushPage(); err != nil {
 				return err
@@ -230,6 +259,114 @@ func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, bits func(
 		}
 	}
 	return nil
+}
+
+// enterFixed appends the dictionary indices of vals, adding new entries,
+// and returns how many it appended. giveUp says that the dictionary is to
+// be given up after those: it is full (dictMaxBytes), or the probe found
+// more than one value in four new.
+func enterFixed[T int64 | float64](c *chunk, vals []T, stat func(T)) (n int, giveUp bool) {
+	// The values' bit patterns, which are what PLAIN would write.
+	keys := unsafe.Slice((*uint64)(unsafe.Pointer(unsafe.SliceData(vals))), len(vals))
+	d := &c.fixed
+	off := len(c.idx)
+	c.idx = slices.Grow(c.idx, len(keys))[:off+len(keys)]
+	idx := c.idx[off:]
+	for k, b := range keys {
+		// Runs of one value (a constant column, sorted data) skip the
+		// table.
+		if d.n == 0 || b != d.last {
+			x, ok := d.find(b)
+			if !ok {
+				if len(c.dictVals)+8 > dictMaxBytes {
+					c.idx = c.idx[:off+k]
+					c.dictSeen += k
+					return k, true
+				}
+				x = d.add(b)
+				c.dictVals = binary.LittleEndian.AppendUint64(c.dictVals, b)
+				c.dictN++
+				stat(vals[k])
+			}
+			d.last, d.lastX = b, x
+		}
+		idx[k] = d.lastX
+	}
+	before := c.dictSeen
+	c.dictSeen += len(keys)
+	probed := before < dictProbe && c.dictSeen >= dictProbe
+	return len(keys), probed && c.dictN*4 > c.dictSeen
+}
+
+// fixedDict maps the bit patterns of a row group's int64 or float64
+// entries to their indices: open addressing, linear probing from the top
+// bits of the pattern times 2^64/phi (Fibonacci hashing, Knuth, TAOCP vol.
+// 3, 6.4), at most 3/4 full.
+type fixedDict struct {
+	keys  []uint64
+	ids   []uint32 // entry index + 1; 0 marks an empty slot
+	shift uint     // 64 - log2(len(ids))
+	n     int
+	last  uint64 // the last value entered and its index
+	lastX uint32
+}
+
+const fibonacci = 0x9E3779B97F4A7C15
+
+// reset empties the dictionary, keeping its table.
+func (d *fixedDict) reset() {
+	clear(d.ids)
+	d.n = 0
+}
+
+// find returns the index of the entry b.
+func (d *fixedDict) find(b uint64) (uint32, bool) {
+	if len(d.ids) == 0 {
+		return 0, false
+	}
+	mask := len(d.ids) - 1
+	for i := int((b * fibonacci) >> d.shift); ; i = (i + 1) & mask {
+		id := d.ids[i]
+		if id == 0 {
+			return 0, false
+		}
+		if d.keys[i] == b {
+			return id - 1, true
+		}
+	}
+}
+
+// add enters b, which find did not find, and returns its index.
+func (d *fixedDict) add(b uint64) uint32 {
+	if (d.n+1)*4 > len(d.ids)*3 {
+		d.grow()
+	}
+	d.place(b, uint32(d.n+1))
+	d.n++
+	return uint32(d.n - 1)
+}
+
+// place puts entry b with id (index + 1) in its slot.
+func (d *fixedDict) place(b uint64, id uint32) {
+	mask := len(d.ids) - 1
+	i := int((b * fibonacci) >> d.shift)
+	for d.ids[i] != 0 {
+		i = (i + 1) & mask
+	}
+	d.keys[i], d.ids[i] = b, id
+}
+
+// grow doubles the table (64 slots at first) and places the entries again.
+func (d *fixedDict) grow() {
+	keys, ids := d.keys, d.ids
+	n := max(64, 2*len(ids))
+	d.keys, d.ids = make([]uint64, n), make([]uint32, n)
+	d.shift = uint(64 - bits.TrailingZeros(uint(n)))
+	for i, id := range ids {
+		if id != 0 {
+			d.place(keys[i], id)
+		}
+	}
 }
 
 // appendBools is appendInts for booleans.

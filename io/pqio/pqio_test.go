@@ -2,6 +2,7 @@ package pqio
 
 import (
 	"bytes"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
@@ -991,4 +992,99 @@ func withGeometry(t testing.TB, pageB, pageVals, dictMax int) {
 	oldB, oldV, oldD := pageBytes, pageValues, dictMaxBytes
 	pageBytes, pageValues, dictMaxBytes = pageB, pageVals, dictMax
 	t.Cleanup(func() { pageBytes, pageValues, dictMaxBytes = oldB, oldV, oldD })
+}
+
+// TestNumberDictionary checks the dictionary of int64 and float64 columns:
+// few distinct values stay in dictionary pages to the end of the row
+// group, nearly unique ones give up after dictProbe values, and either way
+// every value reads back with its exact bit pattern (-0 stays -0, a NaN
+// keeps its payload) and the chunk's minimum and maximum are those of the
+// values (NaN left out; Parquet format, statistics of floating-point
+// columns).
+func TestNumberDictionary(t *testing.T) {
+	const n = 3 * (1 << 14)
+	const batch = 4096
+	nan := math.Float64frombits(0x7ff8000000000123)
+	five := []float64{-1.5, 0, math.Copysign(0, -1), nan, 2.5}
+	cases := []struct {
+		name           string
+		kind           table.Kind
+		value          func(i int) uint64 // bit pattern of row i
+		dictLo, dictHi int64              // values (nulls included) in dictionary pages
+		min, max       uint64
+	}{
+		{"constant int", table.Int64, func(int) uint64 { return 42 }, n, n, 42, 42},
+		{"2000 ints", table.Int64, func(i int) uint64 { return uint64((i * 7919) % 2000) }, n, n, 0, 1999},
+		{"five floats", table.Float64, func(i int) uint64 { return math.Float64bits(five[i%5]) }, n, n,
+			math.Float64bits(-1.5), math.Float64bits(2.5)},
+		// The probe ends the dictionary at the end of the batch that
+		// reaches dictProbe values.
+		{"unique floats", table.Float64, func(i int) uint64 { return math.Float64bits(float64(i) * 1.1) }, dictProbe, dictProbe + batch,
+			// A zero minimum is written as -0 (the format's rule for
+			// float statistics).
+			math.Float64bits(math.Copysign(0, -1)), math.Float64bits(float64(n-1) * 1.1)},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			c := table.Column{Form: table.FormInt64, Nulls: make([]bool, n)}
+			if tc.kind == table.Float64 {
+				c.Form = table.FormFloat64
+			}
+			for i := 0; i < n; i++ {
+				b := tc.value(i)
+				if tc.kind == table.Int64 {
+					c.Ints = append(c.Ints, int64(b))
+				} else {
+					c.Floats = append(c.Floats, math.Float64frombits(b))
+				}
+				c.Nulls[i] = i%1000 == 999
+			}
+			schema := &table.Schema{Fields: []table.Field{{Name: "x", Kind: tc.kind, Nullable: true}}}
+			data := writeCols(t, schema, []table.Column{c}, n, batch, WriterOptions{RowGroupRows: n})
+			r := openBytes(t, "numbers.parquet", data)
+			defer r.Close()
+			var inDict int64
+			eachPage(t, r, 0, 0, func(p parquet.Page) {
+				if p.Dictionary() != nil {
+					inDict += p.NumValues()
+				}
+			})
+			if inDict < tc.dictLo || inDict > tc.dictHi {
+				t.Errorf("%d values in dictionary pages, want %d to %d", inDict, tc.dictLo, tc.dictHi)
+			}
+			st := r.pf.Metadata().RowGroups[0].Columns[0].MetaData.Statistics
+			if got := binary.LittleEndian.Uint64(st.MinValue); got != tc.min {
+				t.Errorf("min_value %#x, want %#x", got, tc.min)
+			}
+			if got := binary.LittleEndian.Uint64(st.MaxValue); got != tc.max {
+				t.Errorf("max_value %#x, want %#x", got, tc.max)
+			}
+			row := 0
+			for {
+				b, err := r.Next()
+				if err == io.EOF {
+					break
+				}
+				if err != nil {
+					t.Fatal(err)
+				}
+				col := &b.Cols[0]
+				for i := 0; i < b.Rows; i++ {
+					want := tc.value(row)
+					switch {
+					case col.IsNull(i) != (row%1000 == 999):
+						t.Fatalf("row %d: null %v", row, col.IsNull(i))
+					case col.IsNull(i):
+					case tc.kind == table.Int64 && uint64(col.Ints[i]) != want,
+						tc.kind == table.Float64 && math.Float64bits(col.Floats[i]) != want:
+						t.Fatalf("row %d reads back as %v, want bits %#x", row, col, want)
+					}
+					row++
+				}
+			}
+			if row != n {
+				t.Fatalf("read %d rows, wrote %d", row, n)
+			}
+		})
+	}
 }

@@ -3,6 +3,8 @@ package colstats
 import (
 	"fmt"
 	"math"
+
+	"manyfold/encoders/internal/hugemem"
 )
 
 // chunkBits sets the levels per chunk of a perLevel array (2^14).
@@ -20,6 +22,7 @@ type perLevel[T any] struct {
 	width  int
 	bits   uint
 	chunks [][]T
+	slab   hugemem.Slab[T] // where the chunks come from (huge pages once large)
 }
 
 // row returns the width values of index l.
@@ -40,7 +43,7 @@ func (p *perLevel[T]) shift() uint {
 // grow makes room for n indexes.
 func (p *perLevel[T]) grow(n int) {
 	for len(p.chunks)<<p.shift() < n {
-		p.chunks = append(p.chunks, make([]T, p.width<<p.shift()))
+		p.chunks = append(p.chunks, p.slab.Take(p.width<<p.shift()))
 	}
 }
 
@@ -267,6 +270,7 @@ func (k *classCells[N]) totals(tot []uint64) {
 type rowCounts struct {
 	chunks [][]uint32
 	hi     map[int]uint32
+	slab   hugemem.Slab[uint32]
 }
 
 // grow makes room for n levels.
@@ -280,7 +284,7 @@ func (r *rowCounts) grow(n int) {
 func (r *rowCounts) at(l int) *uint32 {
 	c := &r.chunks[l>>chunkBits]
 	if *c == nil {
-		*c = make([]uint32, 1<<chunkBits)
+		*c = r.slab.Take(1 << chunkBits)
 	}
 	return &(*c)[l&(1<<chunkBits-1)]
 }

@@ -20,6 +20,7 @@ import (
 	"slices"
 	"sort"
 
+	"manyfold/encoders/internal/hugemem"
 	"manyfold/encoders/levels"
 	"manyfold/encoders/smooth"
 )
@@ -618,11 +619,14 @@ func (s *Stats) Merge(o *Stats) error {
 // Sorted returns the level slots in a canonical order: the null level first
 // (if it has rows), then levels by their bytes ascending. Slots with no
 // rows are left out. It sorts compact keys (the first 8 bytes of each level
-// as a big-endian number beside its slot, in two parallel arrays) in place
-// by a most-significant-byte radix sort (sortKeys), comparing whole levels
-// only among keys whose 8 bytes tie: O(n) passes over the keys for the
-// prefix bytes. The slots are sorted in the returned array itself, so the
-// memory beyond the result is 8 bytes per level, for the prefixes.
+// as a big-endian number beside its slot, in two parallel arrays) by radix
+// sort (sortKeys: in place, most significant byte first, down to buckets
+// of at most lsdMax keys, which are finished least significant byte first
+// through a scratch buffer of that size while they sit in the cache),
+// comparing whole levels only among keys whose 8 bytes tie: O(n) passes
+// over the keys for the prefix bytes. The slots are sorted in the returned
+// array itself, so the memory beyond the result is 8 bytes per level, for
+// the prefixes, plus the scratch buffer.
 func (s *Stats) Sorted() []uint32 {
 	n, null := 0, s.RowCount(0) > 0
 	for l := 1; l < s.n; l++ {
@@ -630,19 +634,20 @@ func (s *Stats) Sorted() []uint32 {
 			n++
 		}
 	}
-	out := make([]uint32, 0, n+1)
+	out := hugemem.Make[uint32](n + 1)[:0]
 	if null {
 		out = append(out, 0)
 	}
 	start := len(out)
-	pre := make([]uint64, 0, n)
+	pre := hugemem.Make[uint64](n)[:0]
 	for l := 1; l < s.n; l++ {
 		if s.RowCount(l) > 0 {
 			out = append(out, uint32(l))
 			pre = append(pre, prefix8(s.Bytes(l)))
 		}
 	}
-	s.sortKeys(pre, out[start:], 56)
+	sc := &sortScratch{pre: make([]uint64, min(n, lsdMax)), slot: make([]uint32, min(n, lsdMax))}
+	s.sortKeys(pre, out[start:], 56, sc)
 	return out
 }
 
@@ -650,15 +655,31 @@ func (s *Stats) Sorted() []uint32 {
 // distributing them.
 const radixMin = 48
 
+// lsdMax is the largest bucket sortKeys finishes least significant byte
+// first: 12 bytes a key, so that a bucket and its scratch (768 KiB) stay
+// in a core's L2 cache through the passes. A variable so that tests
+// exercise both sorts.
+var lsdMax = 1 << 15
+
+// sortScratch is the buffer of sortLSD.
+type sortScratch struct {
+	pre  []uint64
+	slot []uint32
+}
+
 // sortKeys sorts the keys (pre[i], slot[i]) by (pre, level bytes), all
 // keys agreeing on the prefix bits above shift+8: an in-place distribution
 // on the byte at shift (American flag sort), then each bucket on the next
 // byte. A bucket that is small, or whose 8 prefix bytes all tie, is
 // finished by comparison.
-func (s *Stats) sortKeys(pre []uint64, slot []uint32, shift int) {
+func (s *Stats) sortKeys(pre []uint64, slot []uint32, shift int, sc *sortScratch) {
 	for {
 		if len(pre) < radixMin || shift < 0 {
 			s.sortCompare(pre, slot, shift < 0)
+			return
+		}
+		if len(pre) <= lsdMax {
+			s.sortLSD(pre, slot, shift, sc)
 			return
 		}
 		var count [256]int
@@ -696,10 +717,64 @@ func (s *Stats) sortKeys(pre []uint64, slot []uint32, shift int) {
 		}
 		for b := 0; b < 256; b++ {
 			if end[b]-start[b] > 1 {
-				s.sortKeys(pre[start[b]:end[b]], slot[start[b]:end[b]], shift-8)
+				s.sortKeys(pre[start[b]:end[b]], slot[start[b]:end[b]], shift-8, sc)
 			}
 		}
 		return
+	}
+}
+
+// sortLSD sorts the keys (pre[i], slot[i]) by (pre, level bytes), all
+// keys agreeing on the prefix bits above shift+8 (len(pre) <= lsdMax): one
+// pass counts every byte from shift down, then a stable distribution per
+// byte, least significant first, between the keys and the scratch (a byte
+// that all keys share is skipped); last, each run of keys whose 8 bytes tie
+// is ordered by comparison.
+func (s *Stats) sortLSD(pre []uint64, slot []uint32, shift int, sc *sortScratch) {
+	n := len(pre)
+	nb := shift/8 + 1
+	var hist [8][256]int32
+	for _, p := range pre {
+		for b := 0; b < nb; b++ {
+			hist[b][byte(p>>(8*uint(b)))]++
+		}
+	}
+	src, ssrc := pre, slot
+	dst, sdst := sc.pre[:n], sc.slot[:n]
+	for b := 0; b < nb; b++ {
+		h := &hist[b]
+		sh := 8 * uint(b)
+		if int(h[byte(src[0]>>sh)]) == n {
+			continue
+		}
+		var off [256]int32
+		var sum int32
+		for i, c := range h {
+			off[i] = sum
+			sum += c
+		}
+		for i, p := range src {
+			d := byte(p >> sh)
+			j := off[d]
+			off[d] = j + 1
+			dst[j], sdst[j] = p, ssrc[i]
+		}
+		src, dst = dst, src
+		ssrc, sdst = sdst, ssrc
+	}
+	if &src[0] != &pre[0] {
+		copy(pre, src)
+		copy(slot, ssrc)
+	}
+	for i := 0; i < n; {
+		j := i + 1
+		for j < n && pre[j] == pre[i] {
+			j++
+		}
+		if j-i > 1 {
+			s.sortCompare(pre[i:j], slot[i:j], true)
+		}
+		i = j
 	}
 }
 
@@ -814,7 +889,7 @@ func (s *Stats) topK(k int, minCount uint64, n int, rows func(int) uint64, keep 
 		}
 	}
 	sort.Slice(h, func(i, j int) bool { return before(h[i], h[j]) })
-	codes := make([]int32, n)
+	codes := hugemem.Make[int32](n)
 	for r, l := range h {
 		codes[l] = int32(r + 1)
 	}

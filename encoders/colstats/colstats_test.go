@@ -262,21 +262,35 @@ func TestSortedMatchesDefinition(t *testing.T) {
 		}},
 		{"few", 5, func(i int) []byte { return []byte{byte('e' - i)} }},
 	}
-	for _, tc := range cases {
-		t.Run(tc.name, func(t *testing.T) {
-			s := New(Binary, 1, 2, 0)
-			s.AddRow(0)
-			for i := 0; i < tc.n; i++ {
-				l := s.Level(tc.gen(i))
-				if i%7 != 3 { // some levels keep no rows and are left out
-					s.AddRow(l)
-				}
-			}
-			got, want := s.Sorted(), sortedRef(s)
-			if !slices.Equal(got, want) {
-				t.Fatalf("Sorted differs from the byte order (%d vs %d slots)", len(got), len(want))
-			}
-		})
+	// With lsdMax lowered, buckets larger than it are distributed in place
+	// first, as those of millions of levels are.
+	for _, lsd := range []int{lsdMax, 100} {
+		old := lsdMax
+		lsdMax = lsd
+		t.Cleanup(func() { lsdMax = old })
+		for _, tc := range cases {
+			t.Run(fmt.Sprint(tc.name, "/lsdMax=", lsd), func(t *testing.T) {
+				testSorted(t, tc.n, tc.gen)
+			})
+		}
+		lsdMax = old
+	}
+}
+
+// testSorted checks Sorted against sortedRef on n levels from gen, every
+// seventh keeping no rows.
+func testSorted(t *testing.T, n int, gen func(i int) []byte) {
+	s := New(Binary, 1, 2, 0)
+	s.AddRow(0)
+	for i := 0; i < n; i++ {
+		l := s.Level(gen(i))
+		if i%7 != 3 { // some levels keep no rows and are left out
+			s.AddRow(l)
+		}
+	}
+	got, want := s.Sorted(), sortedRef(s)
+	if !slices.Equal(got, want) {
+		t.Fatalf("Sorted differs from the byte order (%d vs %d slots)", len(got), len(want))
 	}
 }
 

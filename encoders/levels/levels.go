@@ -18,7 +18,9 @@
 // chunk and block), about half of what a map[string]uint32 holding the same
 // levels takes, and never twice that while growing, as nothing but the slot
 // table is ever reallocated. The arena may grow past 4 GiB of level bytes;
-// the only limits are memory and the id space (MaxLevels).
+// the only limits are memory and the id space (MaxLevels). A large table's
+// slots, chunks and blocks sit in huge pages where the system allows
+// (encoders/internal/hugemem), as its lookups land at random.
 package levels
 
 import (
@@ -27,6 +29,8 @@ import (
 	"unsafe"
 
 	"github.com/cespare/xxhash/v2"
+
+	"manyfold/encoders/internal/hugemem"
 )
 
 // MaxLevels is the most levels a Table holds: ids are uint32 and NoID is
@@ -71,6 +75,11 @@ type Table struct {
 	grow   int        // level count above which slots doubles
 
 	touched uint32 // sum of the slots InternBatch loads ahead, kept so the loads stay
+
+	// Where the arena's chunks and the location blocks come from: huge
+	// pages once the table is large (see hugemem).
+	arena  hugemem.Slab[byte]
+	blocks hugemem.Slab[uint64]
 }
 
 // Arena and location table geometry. A location packs a level's chunk (24
@@ -107,7 +116,7 @@ func (t *Table) init(sizeHint int) {
 		n *= 2
 		shift--
 	}
-	t.slots = make([]slot, n)
+	t.slots = hugemem.Make[slot](n)
 	t.shift = shift
 	t.grow = n / 4 * 3
 	t.cur = -1
@@ -181,7 +190,7 @@ func (t *Table) add(b []byte) {
 		l = uint64(len(t.chunks)-1)<<(offBits+lenBits) | lenMask
 	} else {
 		if t.cur < 0 || len(t.chunks[t.cur])+len(b) >= chunkSize {
-			t.chunks = append(t.chunks, make([]byte, 0, chunkSize))
+			t.chunks = append(t.chunks, t.arena.Take(chunkSize)[:0])
 			t.cur = len(t.chunks) - 1
 		}
 		c := t.chunks[t.cur]
@@ -191,7 +200,7 @@ func (t *Table) add(b []byte) {
 		t.chunks[t.cur] = append(c, b...)
 	}
 	if t.n>>blockBits == len(t.locs) {
-		t.locs = append(t.locs, make([]uint64, 1<<blockBits))
+		t.locs = append(t.locs, t.blocks.Take(1<<blockBits))
 	}
 	t.locs[t.n>>blockBits][t.n&blockMask] = l
 	t.n++
@@ -272,9 +281,14 @@ func (t *Table) InternBatch(keys [][]byte, ids []uint32) {
 	for start := 0; start < len(keys); start += batchGroup {
 		group := keys[start:min(start+batchGroup, len(keys))]
 		for j, k := range group {
-			h := Hash(k)
-			hs[j] = h
-			touch += t.slots[h>>t.shift].id1
+			hs[j] = Hash(k)
+		}
+		// The loads in a loop of their own: between two hashes the
+		// processor's window holds only a few loads, in a loop this small
+		// the whole group's.
+		slots, shift := t.slots, t.shift
+		for _, h := range hs[:len(group)] {
+			touch += slots[h>>shift].id1
 		}
 		for j, k := range group {
 			ids[start+j] = t.InternHash(k, hs[j])
@@ -302,9 +316,11 @@ func (t *Table) LookupBatch(keys [][]byte, ids []uint32) {
 	for start := 0; start < len(keys); start += batchGroup {
 		group := keys[start:min(start+batchGroup, len(keys))]
 		for j, k := range group {
-			h := Hash(k)
-			hs[j] = h
-			home[j] = t.slots[h>>t.shift]
+			hs[j] = Hash(k)
+		}
+		slots, shift := t.slots, t.shift
+		for j, h := range hs[:len(group)] {
+			home[j] = slots[h>>shift]
 		}
 		for j := range group {
 			if s := home[j]; s.id1 != 0 && s.tag == uint32(hs[j]>>32) {
@@ -360,7 +376,7 @@ func (t *Table) Reserve(n int) {
 // the bits below the tag are needed and each level is hashed again from
 // the arena.
 func (t *Table) resize(k uint) {
-	slots := make([]slot, len(t.slots)<<k)
+	slots := hugemem.Make[slot](len(t.slots) << k)
 	shift := t.shift - k
 	mask := uint64(len(slots) - 1)
 	if shift >= tagShiftMin {
@@ -388,10 +404,13 @@ func (t *Table) resize(k uint) {
 	t.grow = len(slots) / 4 * 3
 }
 
-// MemBytes returns the bytes the table holds: the arena's, offset table's
-// and slot table's capacity plus the Table itself.
+// MemBytes returns the heap bytes the table holds: the arena's, offset
+// table's and slot table's capacity, the slack and unused slab ends of its
+// huge-page allocations (heap the garbage collector counts, though never
+// touched and so not resident), plus the Table itself.
 func (t *Table) MemBytes() int {
-	n := int(unsafe.Sizeof(*t)) + int(unsafe.Sizeof(slot{}))*len(t.slots) + 8<<blockBits*len(t.locs)
+	n := int(unsafe.Sizeof(*t)) + hugemem.Footprint(len(t.slots), int(unsafe.Sizeof(slot{}))) + 8<<blockBits*len(t.locs)
+	n += t.arena.Spare() + t.blocks.Spare()
 	for _, c := range t.chunks {
 		n += cap(c)
 	}

@@ -7,6 +7,7 @@ import (
 	"sync"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/internal/hugemem"
 	"manyfold/io/table"
 )
 
@@ -430,7 +431,7 @@ func (m *Model) derive(c *Col, supervised bool) {
 	sp := &m.Spec
 	st := c.St
 	n := st.NumLevels()
-	c.Keep = make([]bool, n)
+	c.Keep = hugemem.Make[bool](n)
 	for l := 0; l < n; l++ {
 		c.Keep[l] = st.RowCount(l) > 0 && st.RowCount(l) >= sp.MinLevelRows
 	}

@@ -165,7 +165,7 @@ func runEncode(args []string) (err error) {
 	pr := newProgress("fit")
 	r = table.ReadAhead(r)
 	region := trace.StartRegion(context.Background(), "fit")
-	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: of.threads})
+	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: of.threads, Tables: true})
 	region.End()
 	r.Close()
 	if m != nil {

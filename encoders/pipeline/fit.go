@@ -45,7 +45,8 @@ type Col struct {
 	// TopK is then nil and topCodes holds the k coded slots.
 	TopK     []int32
 	topCodes map[int32]int32
-	Order    []uint32          // slots in canonical order (Stats.Sorted)
+	Order    []uint32          // slots in canonical order (Stats.Sorted), once order has run
+	ordered  sync.Once         // guards Order
 	total    float64           // rows of all levels, for frequency shares
 	Full     []colstats.Fitted // per output
 	// Per fold f and output o, the fit over the rows of the other folds.
@@ -68,6 +69,12 @@ type FitOptions struct {
 	TotalRows int64  // rows in the table, when known (needed for --fold-by ordered)
 	Threads   int    // columns processed at once; below 2 means one at a time
 	Progress  func(rows int64)
+	// Tables says that the caller writes the mapping tables, which list
+	// each column's levels in canonical order: with two threads or more,
+	// Fit starts sorting them while it derives the columns' values, on
+	// the core the derivation leaves idle (most of its time goes to the
+	// column with the most levels, on one core).
+	Tables bool
 }
 
 // presizeRows is how many rows Fit reads before it decides whether a
@@ -329,6 +336,15 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			c.Parent = &Col{Name: c.Name + " prefix", St: ps}
 			c.ParentOf = of
 		}
+	}
+	if opt.Tables && opt.Threads >= 2 {
+		// order is safe beside derive: both only read the statistics,
+		// and the first call of order sorts while later ones wait.
+		go func() {
+			for _, i := range byLevels(m.Cols) {
+				m.Cols[i].order()
+			}
+		}()
 	}
 	m.deriveAll(tr != nil, opt.Threads)
 	return m, nil
@@ -615,9 +631,11 @@ func (m *Model) freqOf(c *Col, rows uint64) float64 {
 
 // order returns the slots in canonical order.
 func (c *Col) order() []uint32 {
-	if c.Order == nil {
-		c.Order = c.St.Sorted()
-	}
+	c.ordered.Do(func() {
+		if c.Order == nil {
+			c.Order = c.St.Sorted()
+		}
+	})
 	return c.Order
 }
 

@@ -269,6 +269,10 @@ func enterFixed[T int64 | float64](c *chunk, vals []T, stat func(T)) (n int, giv
 	// The values' bit patterns, which are what PLAIN would write.
 	keys := unsafe.Slice((*uint64)(unsafe.Pointer(unsafe.SliceData(vals))), len(vals))
 	d := &c.fixed
+	if cap(c.idx) == 0 {
+		// A page's indices in one allocation, not grown by doubling.
+		c.idx = make([]uint32, 0, pageValues)
+	}
 	off := len(c.idx)
 	c.idx = slices.Grow(c.idx, len(keys))[:off+len(keys)]
 	idx := c.idx[off:]

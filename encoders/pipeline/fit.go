@@ -448,17 +448,16 @@ func (m *Model) derive(c *Col, supervised bool) {
 	st := c.St
 	n := st.NumLevels()
 	c.Keep = hugemem.Make[bool](n)
-	for l := 0; l < n; l++ {
-		c.Keep[l] = st.RowCount(l) > 0 && st.RowCount(l) >= sp.MinLevelRows
-	}
-	if sp.NullsUnseen {
-		c.Keep[0] = false
-	}
 	// Row counts are integers: their float sum is exact (below 2^53)
 	// whatever the order, so it is taken in slot order.
 	c.total = 0
 	for l := 0; l < n; l++ {
-		c.total += float64(st.RowCount(l))
+		rc := st.RowCount(l)
+		c.Keep[l] = rc > 0 && rc >= sp.MinLevelRows
+		c.total += float64(rc)
+	}
+	if sp.NullsUnseen {
+		c.Keep[0] = false
 	}
 	// The canonical order is needed here only where float sums over the
 	// levels depend on their order (empirical-Bayes moments, regression

@@ -8,9 +8,11 @@
 // on a virtual machine each such miss walks two page tables. With 2 MiB
 // pages one TLB entry covers 512 times the memory, and the first touch of
 // the memory takes one page fault per 2 MiB instead of one per 4 KiB.
-// Measured on the 2-core benchmark machine (a random gather of 20M values
-// from a 400 MB array, and filling it): about 2.8x faster gathers and 5x
-// faster first touch with the advice than without (see DEVELOPERS.md).
+// Measured with a probe on the 2-core benchmark machine (filling a 400 MB
+// array, then a random gather of 20M values from it): the first touch 2 to
+// 5 times faster and the gather about 2.8 times faster with the advice
+// than without; on the whole benchmark job the gain is a few per cent (see
+// DEVELOPERS.md).
 //
 // How: where the kernel's transparent_hugepage setting is "madvise" (a
 // common default), memory gets huge pages only where the program asks for

@@ -8,6 +8,7 @@ import (
 	"slices"
 	"sort"
 	"testing"
+	"time"
 )
 
 // build returns binary statistics with one fold from (level, class) rows.
@@ -414,4 +415,45 @@ func TestTargetMatchesMask(t *testing.T) {
 			}
 		}
 	}
+}
+
+// BenchmarkTableGathers fetches the class totals and the bytes of 4M
+// binary levels in a random order, as the mapping table of an id column
+// does (canonical order is random in memory): ClassTotals2s and
+// AppendBytes over chunks of 65,536 levels. Metrics in ns per level. Run:
+// go test -run '^$' -bench TableGathers -benchtime 3x ./encoders/colstats
+func BenchmarkTableGathers(b *testing.B) {
+	const n = 4 << 20
+	s := New(Binary, 5, 2, n)
+	rng := rand.New(rand.NewPCG(9, 9))
+	var buf []byte
+	for i := 0; i < n; i++ {
+		buf = fmt.Appendf(buf[:0], "S%010d", rng.Uint64()%1e10)
+		s.AddClass(s.Level(buf), i%5, i%2)
+	}
+	order := make([]int, s.NumLevels()-1)
+	for i := range order {
+		order[i] = i + 1
+	}
+	rng.Shuffle(len(order), func(i, j int) { order[i], order[j] = order[j], order[i] })
+	const chunk = 1 << 16
+	n0, n1, rows := make([]int64, chunk), make([]int64, chunk), make([]int64, chunk)
+	var data []byte
+	var ends []int32
+	var counts, text time.Duration
+	b.ResetTimer()
+	for it := 0; it < b.N; it++ {
+		for start := 0; start < len(order); start += chunk {
+			sel := order[start:min(start+chunk, len(order))]
+			t0 := time.Now()
+			s.ClassTotals2s(sel, n0, n1, rows)
+			t1 := time.Now()
+			data, ends = s.AppendBytes(data[:0], append(ends[:0], 0), sel)
+			counts += t1.Sub(t0)
+			text += time.Since(t1)
+		}
+	}
+	per := float64(b.N * len(order))
+	b.ReportMetric(float64(counts.Nanoseconds())/per, "counts-ns/level")
+	b.ReportMetric(float64(text.Nanoseconds())/per, "bytes-ns/level")
 }

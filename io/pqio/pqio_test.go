@@ -1060,27 +1060,24 @@ func TestNumberDictionary(t *testing.T) {
 				t.Errorf("max_value %#x, want %#x", got, tc.max)
 			}
 			row := 0
-			for {
-				b, err := r.Next()
-				if err == io.EOF {
-					break
-				}
-				if err != nil {
-					t.Fatal(err)
-				}
+			if err := table.ForEach(r, func(b *table.Batch) error {
 				col := &b.Cols[0]
 				for i := 0; i < b.Rows; i++ {
 					want := tc.value(row)
 					switch {
 					case col.IsNull(i) != (row%1000 == 999):
-						t.Fatalf("row %d: null %v", row, col.IsNull(i))
+						return fmt.Errorf("row %d: null %v", row, col.IsNull(i))
 					case col.IsNull(i):
-					case tc.kind == table.Int64 && uint64(col.Ints[i]) != want,
-						tc.kind == table.Float64 && math.Float64bits(col.Floats[i]) != want:
-						t.Fatalf("row %d reads back as %v, want bits %#x", row, col, want)
+					case tc.kind == table.Int64 && uint64(col.Ints[i]) != want:
+						return fmt.Errorf("row %d reads back as %d, want %d", row, col.Ints[i], int64(want))
+					case tc.kind == table.Float64 && math.Float64bits(col.Floats[i]) != want:
+						return fmt.Errorf("row %d reads back as bits %#x, want %#x", row, math.Float64bits(col.Floats[i]), want)
 					}
 					row++
 				}
+				return nil
+			}); err != nil {
+				t.Fatal(err)
 			}
 			if row != n {
 				t.Fatalf("read %d rows, wrote %d", row, n)

@@ -172,7 +172,7 @@ func (c *chunk) present() {
 // appendInts appends vals; nulls, when not nil, marks rows to write as nulls
 // (their slots in vals are ignored).
 func (c *chunk) appendInts(vals []int64, nulls []bool) error {
-	return appendFixed(c, vals, nulls, func(v int64) uint64 { return uint64(v) }, func(v int64) {
+	return appendFixed(c, vals, nulls, func(v int64) {
 		if !c.hasMin {
 			c.minI, c.maxI, c.hasMin = v, v, true
 		} else if v < c.minI {
@@ -187,7 +187,7 @@ func (c *chunk) appendInts(vals []int64, nulls []bool) error {
 // minimum and maximum (Parquet format, statistics of floating-point
 // columns); a zero minimum is written as -0 and a zero maximum as +0.
 func (c *chunk) appendFloats(vals []float64, nulls []bool) error {
-	return appendFixed(c, vals, nulls, math.Float64bits, func(v float64) {
+	return appendFixed(c, vals, nulls, func(v float64) {
 		if v != v {
 			return
 		}
@@ -205,7 +205,7 @@ func (c *chunk) appendFloats(vals []float64, nulls []bool) error {
 // the dictionary, or copied PLAIN, a page's room at a time. stat folds a
 // value into the chunk's minimum and maximum; with the dictionary it sees
 // each entry once, as the entries are the values.
-func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, bits func(T) uint64, stat func(T)) error {
+func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, stat func(T)) error {
 	for i := 0; i < len(vals); {
 		if nulls != nil && nulls[i] {
 			if err := c.null(); err != nil {
@@ -234,9 +234,9 @@ func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, bits func(
 			off := len(c.vals)
 			c.vals = slices.Grow(c.vals, 8*(j-i))[:off+8*(j-i)]
 			dst := c.vals[off:]
-			for k, v := range vals[i:j] {
-				binary.LittleEndian.PutUint64(dst[8*k:], bits(v))
-				stat(v)
+			for k, b := range bitPatterns(vals[i:j]) {
+				binary.LittleEndian.PutUint64(dst[8*k:], b)
+				stat(vals[i+k])
 			}
 		}
 		if c.nullable {
@@ -266,8 +266,7 @@ func appendFixed[T int64 | float64](c *chunk, vals []T, nulls []bool, bits func(
 // be given up after those: it is full (dictMaxBytes), or the probe found
 // more than one value in four new.
 func enterFixed[T int64 | float64](c *chunk, vals []T, stat func(T)) (n int, giveUp bool) {
-	// The values' bit patterns, which are what PLAIN would write.
-	keys := unsafe.Slice((*uint64)(unsafe.Pointer(unsafe.SliceData(vals))), len(vals))
+	keys := bitPatterns(vals)
 	d := &c.fixed
 	if cap(c.idx) == 0 {
 		// A page's indices in one allocation, not grown by doubling.
@@ -300,6 +299,13 @@ func enterFixed[T int64 | float64](c *chunk, vals []T, stat func(T)) (n int, giv
 	c.dictSeen += len(keys)
 	probed := before < dictProbe && c.dictSeen >= dictProbe
 	return len(keys), probed && c.dictN*4 > c.dictSeen
+}
+
+// bitPatterns returns the IEEE 754 or two's-complement bit patterns of
+// vals, which PLAIN writes and the dictionary keys on, as a view of the
+// same memory.
+func bitPatterns[T int64 | float64](vals []T) []uint64 {
+	return unsafe.Slice((*uint64)(unsafe.Pointer(unsafe.SliceData(vals))), len(vals))
 }
 
 // fixedDict maps the bit patterns of a row group's int64 or float64

@@ -74,7 +74,7 @@ func thpSetting(s string) bool {
 func Make[T any](n int) []T {
 	var zero T
 	es := int(unsafe.Sizeof(zero))
-	if es == 0 || n*es < MinBytes || !Enabled() {
+	if !advised(n, es) {
 		return make([]T, n)
 	}
 	extra := PageSize / es
@@ -98,11 +98,14 @@ func Make[T any](n int) []T {
 // Footprint returns the heap bytes Make(n) holds for a T of size es
 // bytes: n*es, plus the huge page of slack of an advised slice.
 func Footprint(n, es int) int {
-	if es == 0 || n*es < MinBytes || !Enabled() {
+	if !advised(n, es) {
 		return n * es
 	}
 	return n*es + PageSize
 }
+
+// advised reports whether Make advises an array of n values of es bytes.
+func advised(n, es int) bool { return es > 0 && n*es >= MinBytes && Enabled() }
 
 func alignUp(p uintptr) uintptr   { return (p + PageSize - 1) &^ (PageSize - 1) }
 func alignDown(p uintptr) uintptr { return p &^ (PageSize - 1) }
@@ -122,17 +125,12 @@ const slabBytes = 16 << 20
 type Slab[T any] struct {
 	rest  []T
 	taken int // bytes handed out
+	spare int // heap bytes of the slabs not handed out: unused ends and slack
 }
 
-// Spare returns the heap bytes of the slab that Take has not handed out
-// (its unused end and its slack), which the Slab holds.
-func (s *Slab[T]) Spare() int {
-	var zero T
-	if len(s.rest) == 0 {
-		return 0
-	}
-	return Footprint(slabBytes/int(unsafe.Sizeof(zero)), int(unsafe.Sizeof(zero))) - (slabBytes - len(s.rest)*int(unsafe.Sizeof(zero)))
-}
+// Spare returns the heap bytes the Slab holds that Take has not handed
+// out: the unused ends of its slabs and their slack.
+func (s *Slab[T]) Spare() int { return s.spare }
 
 // Take returns a piece of n zero values with capacity n. Pieces never
 // overlap; each keeps its slab alive.
@@ -146,8 +144,10 @@ func (s *Slab[T]) Take(n int) []T {
 	}
 	if n > len(s.rest) {
 		s.rest = Make[T](slabBytes / es)
+		s.spare += Footprint(slabBytes/es, es)
 	}
 	p := s.rest[:n:n]
 	s.rest = s.rest[n:]
+	s.spare -= n * es
 	return p
 }

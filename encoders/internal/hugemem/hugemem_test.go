@@ -85,7 +85,10 @@ func testMake[T any](t *testing.T, n int, set func(*T, int), get func(T) int) {
 	}
 	if runtime.GOOS == "linux" {
 		mid := p + uintptr(n*es/2)
-		if ok, found := eligible(t, mid); found && !ok {
+		switch ok, found := eligible(t, mid); {
+		case !found:
+			t.Errorf("Make(%d): no THPeligible line in /proc/self/smaps for the mapping at %#x", n, mid)
+		case !ok:
 			t.Errorf("Make(%d): the mapping at %#x is not eligible for huge pages after the advice", n, mid)
 		}
 	}
@@ -131,7 +134,17 @@ func TestSlab(t *testing.T) {
 		}
 	}
 	if !Enabled() {
+		if s.Spare() != 0 {
+			t.Errorf("Spare() = %d without slabs", s.Spare())
+		}
 		return
+	}
+	// The slabs made so far, less what was handed out of them: each slab
+	// is slabBytes plus a huge page of slack.
+	fromSlabs := (len(pieces) - SlabStart/(4*piece)) * 4 * piece
+	slabs := (fromSlabs + slabBytes - 1) / slabBytes
+	if want := slabs*(slabBytes+PageSize) - fromSlabs; s.Spare() != want {
+		t.Errorf("Spare() = %d, want %d (%d slabs, %d bytes handed out of them)", s.Spare(), want, slabs, fromSlabs)
 	}
 	// Past SlabStart, the pieces come from slabs of slabBytes: nearly
 	// every piece follows the one before it in memory.

@@ -1,6 +1,7 @@
 package atomicfile
 
 import (
+	"bytes"
 	"os"
 	"path/filepath"
 	"testing"
@@ -50,5 +51,41 @@ func TestCommitAndAbort(t *testing.T) {
 func TestCreateInMissingDirectory(t *testing.T) {
 	if _, err := Create(filepath.Join(t.TempDir(), "missing", "out.csv")); err == nil {
 		t.Error("Create in a missing directory succeeded")
+	}
+}
+
+// TestLargeWrite writes past several write-back requests in pieces of
+// uneven size and reads the committed file back whole.
+func TestLargeWrite(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "out.bin")
+	f, err := Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var want []byte
+	piece := make([]byte, 1<<20+7)
+	for i := 0; len(want) < 3*writebackEvery+123; i++ {
+		for j := range piece {
+			piece[j] = byte(i*31 + j)
+		}
+		p := piece[:len(piece)-i%5]
+		n, err := f.Write(p)
+		if err != nil || n != len(p) {
+			t.Fatalf("Write of %d bytes: %d, %v", len(p), n, err)
+		}
+		want = append(want, p...)
+	}
+	if f.flushed == 0 || f.flushed > f.written {
+		t.Errorf("after %d bytes, %d handed to write-back", f.written, f.flushed)
+	}
+	if err := f.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	got, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(got, want) {
+		t.Errorf("the committed file has %d bytes, not the %d written", len(got), len(want))
 	}
 }

@@ -341,6 +341,68 @@ func (s *Stats) ClassTotals2s(ls []int, n0, n1, rows []int64) {
 	}
 }
 
+// OutOfFold2s sets, for every row i of a table with two classes, n[i]
+// and k[i] to the rows of level ls[i] outside fold fold[i] and those of
+// them of class slot pos (what Target(ls[i], 0, fold[i], pos) gives as N
+// and Sum), and rows[i] to RowCount(ls[i]): one read of each row's counts
+// serves both its out-of-fold target statistic and its frequency. A
+// negative ls[i] (a level not seen) gives zeros. As in ClassTotals2s, the
+// counts of a group of rows are loaded by a loop of their own, so that
+// their cache misses overlap.
+func (s *Stats) OutOfFold2s(ls, fold []int32, pos int, n, k, rows []uint64) {
+	c := &s.cls
+	nw, sh := c.narrow.width, c.narrow.shift()
+	mask, w, marker := 1<<sh-1, c.width, c.marker()
+	chunks := c.narrow.chunks
+	const group = 32
+	var head [group]uint8
+	for g := 0; g < len(ls); g += group {
+		grp := ls[g:min(g+group, len(ls))]
+		if w > 0 {
+			for j, l := range grp {
+				if l >= 0 {
+					head[j] = chunks[int(l)>>sh][(int(l)&mask)*nw]
+				}
+			}
+		}
+		for j, l32 := range grp {
+			i := g + j
+			if l32 < 0 {
+				n[i], k[i], rows[i] = 0, 0, 0
+				continue
+			}
+			l := int(l32)
+			var all, in, kAll, kIn uint64
+			if w > 0 {
+				if head[j] == marker {
+					_, wr := c.cells(l)
+					all, in, kAll, kIn = foldCounts2(wr, int(fold[i]), pos)
+				} else {
+					o := (l & mask) * nw
+					all, in, kAll, kIn = foldCounts2(chunks[l>>sh][o:o+w:o+w], int(fold[i]), pos)
+				}
+			}
+			n[i], k[i] = all-in, kAll-kIn
+			rows[i] = all + s.rows.get(l)
+		}
+	}
+}
+
+// foldCounts2 returns, for the cells of a level with two classes, its rows
+// of all folds and of fold f, and those of class pos of all folds and of
+// fold f (f outside the folds counts no rows as in it).
+func foldCounts2[T uint8 | uint64](row []T, f, pos int) (all, in, kAll, kIn uint64) {
+	for i := 0; i+1 < len(row); i += 2 {
+		all += uint64(row[i]) + uint64(row[i+1])
+		kAll += uint64(row[i+pos])
+	}
+	if i := 2 * f; f >= 0 && i+1 < len(row) {
+		in = uint64(row[i]) + uint64(row[i+1])
+		kIn = uint64(row[i+pos])
+	}
+	return all, in, kAll, kIn
+}
+
 // AppendBytes appends Bytes(l) for every l of ls to data and, after each,
 // the length of data to ends (see levels.Table.AppendLevels).
 func (s *Stats) AppendBytes(data []byte, ends []int32, ls []int) ([]byte, []int32) {

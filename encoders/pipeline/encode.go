@@ -184,6 +184,25 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 			running = append(running, nil)
 		}
 	}
+	// In the training pass with k folds, a binary target's out-of-fold
+	// mean is computed from one read of each row's counts (encodeFolds),
+	// which also gives the row's frequency: fused[oi] is the frequency
+	// output that target output oi fills, and byOther marks it.
+	fused := make([]int, len(outs))
+	byOther := make([]bool, len(outs))
+	fast := make([]bool, len(outs))
+	for oi, oc := range outs {
+		fused[oi] = -1
+		if !training || sp.Scheme != "kfold" || oc.method != MethodTarget || !m.fastFolds(m.Cols[oc.col]) {
+			continue
+		}
+		fast[oi] = true
+		for oj, od := range outs {
+			if od.method == MethodFreq && od.col == oc.col {
+				fused[oi], byOther[oj] = oj, true
+			}
+		}
+	}
 	batch := &table.Batch{Cols: make([]table.Column, len(kept)+len(outs))}
 	if err := table.ForEach(r, func(b *table.Batch) error {
 		n := b.Rows
@@ -234,6 +253,9 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		})
 		each(len(outs), opt.Threads, func(oi int) {
 			oc := outs[oi]
+			if byOther[oi] {
+				return
+			}
 			var scratch []byte
 			dst := &batch.Cols[len(kept)+oi]
 			var c *Col
@@ -245,6 +267,14 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 			switch oc.method {
 			case MethodTarget:
 				fl := floats(dst, n)
+				if fast[oi] {
+					var freq *table.Column
+					if oj := fused[oi]; oj >= 0 {
+						freq = &batch.Cols[len(kept)+oj]
+					}
+					m.encodeFolds(c, ls, fold, fl, freq)
+					break
+				}
 				rs := running[oc.col]
 				for i := 0; i < n; i++ {
 					l := int(ls[i])
@@ -346,6 +376,62 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 		return sum, fmt.Errorf("%s: the second pass read %d rows, the first %d; the file changed while it was read", opt.File, sum.Rows, m.Rows)
 	}
 	return sum, nil
+}
+
+// fastFolds reports whether encodeFolds encodes column c: a binary
+// target, no hierarchical prior, values computed from the statistics.
+func (m *Model) fastFolds(c *Col) bool {
+	return m.fastTableValues(c) && c.Freq == nil && m.Spec.PriorColumn == ""
+}
+
+// encodeFolds sets tm[i] to the out-of-fold target mean of row i, whose
+// level slot is ls[i] and fold fold[i] (what value gives with the fold's
+// fit), and, when freq is not nil, fills freq with each row's frequency
+// (what freq gives), from one read of the row's counts
+// (Stats.OutOfFold2s).
+func (m *Model) encodeFolds(c *Col, ls, fold []int32, tm []float64, freq *table.Column) {
+	const part = 512
+	var nb, kb, rb [part]uint64
+	var fi []int64
+	var ff []float64
+	if freq != nil {
+		if m.Spec.FreqShare {
+			ff = floats(freq, len(ls))
+		} else {
+			fi = ints(freq, len(ls))
+		}
+	}
+	logodds := m.Spec.Output == "logodds"
+	for start := 0; start < len(ls); start += part {
+		end := min(start+part, len(ls))
+		ps, pf := ls[start:end], fold[start:end]
+		c.St.OutOfFold2s(ps, pf, m.Pos, nb[:], kb[:], rb[:])
+		for j, l := range ps {
+			i := start + j
+			ft := &c.FoldFit[pf[j]][0]
+			kept := l >= 0 && c.Keep[l]
+			v := ft.Prior
+			if kept {
+				v = ft.Encode(colstats.Agg{N: float64(nb[j]), Sum: float64(kb[j]), SumSq: float64(kb[j])})
+			}
+			if logodds {
+				v = smooth.LogOdds(v)
+			}
+			tm[i] = v
+			if freq == nil {
+				continue
+			}
+			f := 0.0
+			if kept {
+				f = m.freqOf(c, rb[j])
+			}
+			if ff != nil {
+				ff[i] = f
+			} else {
+				fi[i] = int64(f)
+			}
+		}
+	}
 }
 
 // replays says whether the training pass takes column c's level slots

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"os"
+	"runtime/pprof"
 	"runtime/trace"
 	"strconv"
 	"strings"
@@ -165,7 +166,10 @@ func runEncode(args []string) (err error) {
 	pr := newProgress("fit")
 	r = table.ReadAhead(r)
 	region := trace.StartRegion(context.Background(), "fit")
-	m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: of.threads, Tables: true})
+	var m *pipeline.Model
+	phase("fit", func() {
+		m, err = pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: of.threads, Tables: true})
+	})
 	region.End()
 	r.Close()
 	if m != nil {
@@ -192,13 +196,16 @@ func runEncode(args []string) (err error) {
 		err error
 	}
 	tablesDone := make(chan staged, 1)
-	go func() {
+	go phase("tables", func() {
 		st, err := m.StageTables(*tables)
 		tablesDone <- staged{st, err}
-	}()
+	})
 	pr = newProgress("encode")
 	region = trace.StartRegion(context.Background(), "encode")
-	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads, Input: o.full})
+	var sum pipeline.Summary
+	phase("encode", func() {
+		sum, err = m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads, Input: o.full})
+	})
 	region.End()
 	if err == nil {
 		// Finish the output (the writer runs behind the encoding) before
@@ -255,4 +262,11 @@ func countRows(path string, opts tableio.ReadOptions) (int64, error) {
 	var n int64
 	err = table.ForEach(r, func(b *table.Batch) error { n += int64(b.Rows); return nil })
 	return n, err
+}
+
+// phase runs f with the profiler label phase=name, which the goroutines f
+// starts inherit: "go tool pprof -tagfocus phase=tables" then shows the
+// time of one phase of a run recorded with MANYFOLD_CPUPROFILE.
+func phase(name string, f func()) {
+	pprof.Do(context.Background(), pprof.Labels("phase", name), func(context.Context) { f() })
 }

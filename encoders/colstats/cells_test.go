@@ -88,6 +88,58 @@ func checkAgainst(t *testing.T, s *Stats, ref *refStats) {
 			t.Errorf("CellTotals[%d] = %d, want %d", i, got[i], tot[i])
 		}
 	}
+	// The batch reads: RowCounts from the start and from an odd slot,
+	// OutOfFold2s for every level in every fold (and in none).
+	want := func(l int) (rows, n [][2]uint64) {
+		var all uint64
+		for _, v := range ref.cells[l] {
+			all += v
+		}
+		for e := -1; e < K; e++ {
+			var nn, kk uint64
+			for f := 0; f < K; f++ {
+				if f != e {
+					nn += ref.cells[l][f*C] + ref.cells[l][f*C+1]
+					kk += ref.cells[l][f*C+1]
+				}
+			}
+			n = append(n, [2]uint64{nn, kk})
+		}
+		return [][2]uint64{{all + ref.unknown[l], 0}}, n
+	}
+	for _, from := range []int{0, 1} {
+		rc := make([]uint64, len(ref.cells)-from)
+		s.RowCounts(from, rc)
+		for i, got := range rc {
+			if rows, _ := want(from + i); got != rows[0][0] {
+				t.Errorf("RowCounts from %d: level %d has %d rows, want %d", from, from+i, got, rows[0][0])
+			}
+		}
+	}
+	if C != 2 || s.Task != Binary {
+		return
+	}
+	var ls, fold []int32
+	for l := range ref.cells {
+		for e := -1; e < K; e++ {
+			ls, fold = append(ls, int32(l)), append(fold, int32(e))
+		}
+	}
+	ls, fold = append(ls, -1), append(fold, 0)
+	n, k, rows := make([]uint64, len(ls)), make([]uint64, len(ls)), make([]uint64, len(ls))
+	s.OutOfFold2s(ls, fold, 1, n, k, rows)
+	for i, l := range ls {
+		if l < 0 {
+			if n[i] != 0 || k[i] != 0 || rows[i] != 0 {
+				t.Errorf("OutOfFold2s of an unseen level: %d %d %d", n[i], k[i], rows[i])
+			}
+			continue
+		}
+		r, nk := want(int(l))
+		if w := nk[fold[i]+1]; n[i] != w[0] || k[i] != w[1] || rows[i] != r[0][0] {
+			t.Errorf("OutOfFold2s level %d, fold %d: %d %d %d rows, want %d %d %d", l, fold[i], n[i], k[i], rows[i], w[0], w[1], r[0][0])
+		}
+	}
 }
 
 // shapes are the (task, folds, classes) layouts the tests run on: a row

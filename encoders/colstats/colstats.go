@@ -903,30 +903,54 @@ func prefix8(b []byte) uint64 {
 // excludes levels from ranking. It selects with a heap of k entries, so it
 // takes O(n log k) time.
 func (s *Stats) TopK(k int, minCount uint64, keep []bool) []int32 {
-	return s.topK(k, minCount, s.n, s.RowCount, keep)
+	return s.codes(s.TopKSlots(k, minCount, keep))
+}
+
+// TopKSlots returns the slots that TopK gives codes, best first: slot
+// TopKSlots(...)[i] has code i+1. It reads the row counts in one pass over
+// the statistics (RowCounts) and allocates nothing per level.
+func (s *Stats) TopKSlots(k int, minCount uint64, keep []bool) []int {
+	return s.topK(k, minCount, s.n, s.RowCounts, keep)
 }
 
 // TopKBy is TopK with the row count of each level slot taken from rows
 // (len(rows) == NumLevels()) instead of RowCount: the counts of a subset
 // of the folds, say. A slot with a zero count gets no code.
 func (s *Stats) TopKBy(k int, minCount uint64, rows []uint64, keep []bool) []int32 {
-	return s.topK(k, minCount, len(rows), func(l int) uint64 { return rows[l] }, keep)
+	return s.codes(s.topK(k, minCount, len(rows), func(from int, dst []uint64) { copy(dst, rows[from:]) }, keep))
 }
 
-// topK is TopKBy with the row count of slot l < n given by rows(l).
-func (s *Stats) topK(k int, minCount uint64, n int, rows func(int) uint64, keep []bool) []int32 {
-	// before reports whether slot a ranks before slot b.
-	before := func(a, b int) bool {
-		if ra, rb := rows(a), rows(b); ra != rb {
-			return ra > rb
+// codes returns the top-k code of every slot given the ranked slots.
+func (s *Stats) codes(ranked []int) []int32 {
+	codes := hugemem.Make[int32](s.n)
+	for r, l := range ranked {
+		codes[l] = int32(r + 1)
+	}
+	return codes
+}
+
+// topK returns the best k of slots 0..n-1, best first, rows(from, dst)
+// setting dst[i] to the row count of slot from+i.
+func (s *Stats) topK(k int, minCount uint64, n int, rows func(from int, dst []uint64), keep []bool) []int {
+	if k <= 0 {
+		return nil
+	}
+	type entry struct {
+		l    int
+		rows uint64
+	}
+	// before reports whether a ranks before b.
+	before := func(a, b entry) bool {
+		if a.rows != b.rows {
+			return a.rows > b.rows
 		}
-		if a == 0 || b == 0 {
-			return a == 0
+		if a.l == 0 || b.l == 0 {
+			return a.l == 0
 		}
-		return bytes.Compare(s.Bytes(a), s.Bytes(b)) < 0
+		return bytes.Compare(s.Bytes(a.l), s.Bytes(b.l)) < 0
 	}
 	// h is a heap whose root is the worst-ranked of the best k so far.
-	h := make([]int, 0, k)
+	h := make([]entry, 0, k)
 	down := func(i int) {
 		for {
 			c := 2*i + 1
@@ -943,33 +967,80 @@ func (s *Stats) topK(k int, minCount uint64, n int, rows func(int) uint64, keep 
 			i = c
 		}
 	}
-	for l := 0; l < n; l++ {
-		if r := rows(l); r == 0 || r < minCount || (keep != nil && !keep[l]) {
-			continue
-		}
-		if len(h) < k {
-			h = append(h, l)
-			for i := len(h) - 1; i > 0; {
-				p := (i - 1) / 2
-				if !before(h[p], h[i]) {
-					break
-				}
-				h[i], h[p] = h[p], h[i]
-				i = p
+	var buf [4096]uint64
+	for from := 0; from < n; from += len(buf) {
+		rc := buf[:min(len(buf), n-from)]
+		rows(from, rc)
+		for i, r := range rc {
+			l := from + i
+			if r == 0 || r < minCount || (keep != nil && !keep[l]) {
+				continue
 			}
-			continue
-		}
-		if before(l, h[0]) {
-			h[0] = l
-			down(0)
+			e := entry{l, r}
+			if len(h) < k {
+				h = append(h, e)
+				for i := len(h) - 1; i > 0; {
+					p := (i - 1) / 2
+					if !before(h[p], h[i]) {
+						break
+					}
+					h[i], h[p] = h[p], h[i]
+					i = p
+				}
+				continue
+			}
+			// Fewer rows than the root's: out, without comparing bytes.
+			if r >= h[0].rows && before(e, h[0]) {
+				h[0] = e
+				down(0)
+			}
 		}
 	}
 	sort.Slice(h, func(i, j int) bool { return before(h[i], h[j]) })
-	codes := hugemem.Make[int32](n)
-	for r, l := range h {
-		codes[l] = int32(r + 1)
+	out := make([]int, len(h))
+	for i, e := range h {
+		out[i] = e.l
 	}
-	return codes
+	return out
+}
+
+// RowCounts sets dst[i] to RowCount(from+i) for every i
+// (from+len(dst) <= NumLevels()): the counts of consecutive slots, read
+// in one sequential pass over their cells.
+func (s *Stats) RowCounts(from int, dst []uint64) {
+	if s.Task == Regression || s.cls.width == 0 {
+		for i := range dst {
+			dst[i] = s.rows.get(from + i)
+		}
+		return
+	}
+	k := &s.cls
+	w, nw, sh, marker := k.width, k.narrow.width, k.narrow.shift(), k.marker()
+	mask := 1<<sh - 1
+	for i := range dst {
+		l := from + i
+		o := (l & mask) * nw
+		row := k.narrow.chunks[l>>sh][o : o+nw : o+nw]
+		if row[0] == marker {
+			dst[i] = sumCells(k.wideOf(row))
+		} else {
+			dst[i] = sumCells(row[:w])
+		}
+	}
+	// Rows outside the class counts (an unknown target): most tables
+	// have none, and their chunks are not allocated.
+	rs := &s.rows
+	for i := 0; i < len(dst); {
+		l := from + i
+		c := rs.chunks[l>>chunkBits]
+		end := min(len(dst), i+(1<<chunkBits)-(l&(1<<chunkBits-1)))
+		if c != nil {
+			for ; i < end; i++ {
+				dst[i] += rs.get(from + i)
+			}
+		}
+		i = end
+	}
 }
 
 // PermuteClasses renumbers class slots: old slot c becomes slot pos[c].

@@ -451,10 +451,15 @@ func (m *Model) derive(c *Col, supervised bool) {
 	// Row counts are integers: their float sum is exact (below 2^53)
 	// whatever the order, so it is taken in slot order.
 	c.total = 0
-	for l := 0; l < n; l++ {
-		rc := st.RowCount(l)
-		c.Keep[l] = rc > 0 && rc >= sp.MinLevelRows
-		c.total += float64(rc)
+	var buf [4096]uint64
+	for from := 0; from < n; from += len(buf) {
+		rows := buf[:min(len(buf), n-from)]
+		st.RowCounts(from, rows)
+		keep := c.Keep[from : from+len(rows)]
+		for i, rc := range rows {
+			keep[i] = rc > 0 && rc >= sp.MinLevelRows
+			c.total += float64(rc)
+		}
 	}
 	if sp.NullsUnseen {
 		c.Keep[0] = false
@@ -467,16 +472,14 @@ func (m *Model) derive(c *Col, supervised bool) {
 	if supervised && (st.Task == colstats.Regression || sp.Smoothing.Kind == "auto") {
 		order = c.order()
 	}
-	c.TopK = st.TopK(sp.TopK, sp.MinCount, c.Keep)
-	if !sp.has(MethodTopK) {
+	if sp.has(MethodTopK) {
+		c.TopK = st.TopK(sp.TopK, sp.MinCount, c.Keep)
+	} else {
 		// Keep the k coded slots, not a code for every level.
 		c.topCodes = map[int32]int32{}
-		for l, k := range c.TopK {
-			if k != 0 {
-				c.topCodes[int32(l)] = k
-			}
+		for r, l := range st.TopKSlots(sp.TopK, sp.MinCount, c.Keep) {
+			c.topCodes[int32(l)] = int32(r + 1)
 		}
-		c.TopK = nil
 	}
 	if !supervised {
 		return

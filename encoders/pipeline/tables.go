@@ -335,6 +335,9 @@ func (m *Model) saveCol(path string, c *Col) error {
 			}
 		}
 		n := len(sel)
+		// Every level of sel is kept but the null level, when stored
+		// though unseen: the loops below need not read Keep again.
+		unkept0 := n > 0 && !c.Keep[sel[0]]
 		lv := &b.Cols[0]
 		lv.Form, lv.Data, lv.Offsets, lv.Nulls = table.FormText, lv.Data[:0], append(lv.Offsets[:0], 0), nil
 		if len(sel) > 0 && sel[0] == 0 { // the null level sorts first
@@ -365,7 +368,7 @@ func (m *Model) saveCol(path string, c *Col) error {
 		}
 		if supervised {
 			if fast {
-				m.binaryTableValues(c, sel, rowsCol, cols[j].Ints, cols[j+1].Ints, cols[j+2].Ints, cols[j+3].Floats)
+				m.binaryTableValues(c, sel, unkept0, rowsCol, cols[j].Ints, cols[j+1].Ints, cols[j+2].Ints, cols[j+3].Floats)
 				j += 4
 			} else {
 				for i, l := range sel {
@@ -401,7 +404,7 @@ func (m *Model) saveCol(path string, c *Col) error {
 			switch {
 			case c.Freq != nil:
 				freqCol[i] = c.Freq[l]
-			case !c.Keep[l]:
+			case i == 0 && unkept0:
 				freqCol[i] = 0
 			default:
 				// The rows were fetched above.
@@ -443,16 +446,17 @@ func (m *Model) fastTableValues(c *Col) bool {
 // classes and tmean, from one read of each level's per-fold counts: n_c = sum over folds of the count of
 // class c, target_rows = n_0 + n_1, tmean = Full.Encode(n_0+n_1, n_pos) for
 // a kept level and the prior otherwise (what Target, ClassCount and tmean
-// give, with the same integer sums).
-func (m *Model) binaryTableValues(c *Col, sel []int, all, rows, c0, c1 []int64, tmean []float64) {
+// give, with the same integer sums). Every level of sel is kept but sel[0]
+// when unkept0.
+func (m *Model) binaryTableValues(c *Col, sel []int, unkept0 bool, all, rows, c0, c1 []int64, tmean []float64) {
 	st := c.St
 	st.ClassTotals2s(sel, c0, c1, all)
 	for i := range sel {
 		rows[i] = c0[i] + c1[i]
 	}
 	ft := &c.Full[0]
-	for i, l := range sel {
-		if !c.Keep[l] {
+	for i := range sel {
+		if i == 0 && unkept0 {
 			tmean[i] = ft.Prior
 			continue
 		}

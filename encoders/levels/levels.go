@@ -74,8 +74,6 @@ type Table struct {
 	shift  uint       // 64 - log2(len(slots)): home slot of hash h is h >> shift
 	grow   int        // level count above which slots doubles
 
-	touched uint32 // sum of the slots InternBatch loads ahead, kept so the loads stay
-
 	// Where the arena's chunks and the location blocks come from: huge
 	// pages once the table is large (see hugemem).
 	arena  hugemem.Slab[byte]
@@ -267,34 +265,47 @@ const batchGroup = 32
 
 // InternBatch sets ids[i] to Intern(keys[i]) for every i, in order, so that
 // new levels get the same ids as interning them one by one would give
-// (len(ids) >= len(keys)). It hashes a group of keys and loads their home
-// slots before probing any of them: the slot table of a table of millions
-// of levels is far larger than the caches, and the loads of a group, being
-// independent, wait for memory together instead of one after another.
+// (len(ids) >= len(keys)). Like LookupBatch it hashes a group of keys and
+// loads their home slots, and then the locations of the levels those slots
+// point to, before comparing any bytes: the slot table of a table of
+// millions of levels is far larger than the caches, and the loads of a
+// group, being independent, wait for memory together instead of one after
+// another. A key found in its home slot takes that level's id (a level
+// found stays found, whatever the keys before it in the group added);
+// every other key is interned by InternHash, in order.
 func (t *Table) InternBatch(keys [][]byte, ids []uint32) {
 	if t.slots == nil {
 		t.init(0)
 	}
 	ids = ids[:len(keys)]
 	var hs [batchGroup]uint64
-	var touch uint32
+	var home [batchGroup]slot
+	var locs [batchGroup]uint64
 	for start := 0; start < len(keys); start += batchGroup {
 		group := keys[start:min(start+batchGroup, len(keys))]
 		for j, k := range group {
 			hs[j] = Hash(k)
 		}
-		// The loads in a loop of their own: between two hashes the
+		// The loads in loops of their own: between two hashes the
 		// processor's window holds only a few loads, in a loop this small
 		// the whole group's.
 		slots, shift := t.slots, t.shift
-		for _, h := range hs[:len(group)] {
-			touch += slots[h>>shift].id1
+		for j, h := range hs[:len(group)] {
+			home[j] = slots[h>>shift]
+		}
+		for j := range group {
+			if s := home[j]; s.id1 != 0 && s.tag == uint32(hs[j]>>32) {
+				locs[j] = t.loc(s.id1 - 1)
+			}
 		}
 		for j, k := range group {
+			if s := home[j]; s.id1 != 0 && s.tag == uint32(hs[j]>>32) && bytes.Equal(t.at(locs[j]), k) {
+				ids[start+j] = s.id1 - 1
+				continue
+			}
 			ids[start+j] = t.InternHash(k, hs[j])
 		}
 	}
-	t.touched += touch
 }
 
 // LookupBatch sets ids[i] to the id of keys[i], or NoID when keys[i] is not

@@ -552,3 +552,27 @@ func TestReserve(t *testing.T) {
 		t.Fatal("Reserve on the zero Table")
 	}
 }
+
+// BenchmarkBatchRepeats interns 10M keys drawn with a Zipf-like skew from
+// 700,000 account-like levels, most of them already in the table: the
+// account column of the benchmark job, whose values arrive PLAIN.
+func BenchmarkBatchRepeats(b *testing.B) {
+	const n, levels = 10_000_000, 700_000
+	rng := rand.New(rand.NewPCG(7, 11))
+	z := rand.NewZipf(rng, 1.1, 8, levels-1)
+	keys := make([][]byte, n)
+	for i := range keys {
+		keys[i] = []byte("A" + strconv.Itoa(1_000_000+int(z.Uint64())))
+	}
+	ids := make([]uint32, 4096)
+	var took time.Duration
+	for it := 0; it < b.N; it++ {
+		tb := New(0)
+		start := time.Now()
+		for i := 0; i < n; i += len(ids) {
+			tb.InternBatch(keys[i:min(i+len(ids), n)], ids)
+		}
+		took += time.Since(start)
+	}
+	b.ReportMetric(float64(took.Nanoseconds())/float64(b.N*n), "intern-ns/key")
+}

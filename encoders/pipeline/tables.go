@@ -253,8 +253,12 @@ func (m *Model) writeTables(st *StagedTables) error {
 	// The columns' own tables side by side (each file is the same
 	// whatever the number of threads), then the parents, which columns
 	// may share, one after another.
+	// The column with the most levels first: its table takes longest,
+	// and the run waits for it.
 	errs := make([]error, len(m.Cols))
-	each(len(m.Cols), m.threads, func(i int) {
+	first := byLevels(m.Cols)
+	each(len(m.Cols), m.threads, func(k int) {
+		i := first[k]
 		errs[i] = m.saveCol(filepath.Join(st.tmp, mf.Columns[i].Table), m.Cols[i])
 	})
 	for i, c := range m.Cols {

@@ -1048,6 +1048,13 @@ func (s *Stats) PermuteClasses(pos []int) {
 	if s.Task == Regression || len(pos) != s.Classes {
 		return
 	}
+	identity := true
+	for c, p := range pos {
+		identity = identity && c == p
+	}
+	if identity {
+		return // the classes were first seen in sorted order
+	}
 	tmp := make([]uint64, s.Classes)
 	tmp8 := make([]uint8, s.Classes)
 	for l := 0; l < s.n; l++ {

@@ -305,9 +305,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if len(labels) < 2 {
 			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: fmt.Errorf("target has a single class %q; there is nothing to learn", labels[0])}
 		}
-		for _, c := range all {
-			c.St.PermuteClasses(pos)
-		}
+		each(len(all), opt.Threads, func(i int) { all[i].St.PermuteClasses(pos) })
 		m.Task = colstats.Binary
 		if len(labels) > 2 {
 			m.Task = colstats.Multiclass

@@ -119,6 +119,21 @@ func checkAgainst(t *testing.T, s *Stats, ref *refStats) {
 	if C != 2 || s.Task != Binary {
 		return
 	}
+	all := make([]int, len(ref.cells))
+	for l := range all {
+		all[l] = len(all) - 1 - l // not in memory order
+	}
+	n0s, n1s, rs := make([]int64, len(all)), make([]int64, len(all)), make([]int64, len(all))
+	s.ClassTotals2s(all, n0s, n1s, rs)
+	for i, l := range all {
+		var a, b uint64
+		for f := 0; f < K; f++ {
+			a, b = a+ref.cells[l][f*C], b+ref.cells[l][f*C+1]
+		}
+		if r, _ := want(l); n0s[i] != int64(a) || n1s[i] != int64(b) || rs[i] != int64(r[0][0]) {
+			t.Errorf("ClassTotals2s level %d: %d %d %d rows, want %d %d %d", l, n0s[i], n1s[i], rs[i], a, b, r[0][0])
+		}
+	}
 	var ls, fold []int32
 	for l := range ref.cells {
 		for e := -1; e < K; e++ {

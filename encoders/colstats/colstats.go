@@ -295,48 +295,23 @@ func (s *Stats) ClassTotals2(l int) (n0, n1 uint64) {
 // canonical order): each level's counts are fetched by a loop that does
 // nothing else, so that their cache misses overlap.
 func (s *Stats) ClassTotals2s(ls []int, n0, n1, rows []int64) {
-	k := &s.cls
-	nw, sh := k.narrow.width, k.narrow.shift()
-	mask, w, marker := 1<<sh-1, k.width, k.marker()
-	chunks := k.narrow.chunks
-	wide := false
-	// A group's first cells are loaded by a loop that does nothing else,
-	// so that all their cache misses are in flight at once; the loop that
-	// sums then finds the rows in the cache.
-	const group = 32
-	var head [group]uint8
-	for g := 0; g < len(ls); g += group {
-		grp := ls[g:min(g+group, len(ls))]
-		if w > 0 {
-			for j, l := range grp {
-				head[j] = chunks[l>>sh][(l&mask)*nw]
-			}
-		}
+	c := &s.cls
+	var head [cellGroup]uint8
+	for g := 0; g < len(ls); g += cellGroup {
+		grp := ls[g:min(g+cellGroup, len(ls))]
+		loadHeads(c, grp, &head)
 		for j, l := range grp {
-			var a, b int64
-			if w > 0 {
-				o := (l & mask) * nw
-				row := chunks[l>>sh][o : o+w : o+w]
-				if head[j] == marker {
-					wide = true
-				}
-				for f := 0; f+1 < len(row); f += 2 {
-					a += int64(row[f])
-					b += int64(row[f+1])
+			var all, k1 uint64
+			if c.width > 0 {
+				if nr, wr := c.cellsAt(l, head[j]); wr != nil {
+					all, _, k1, _ = foldCounts2(wr, -1, 1)
+				} else {
+					all, _, k1, _ = foldCounts2(nr, -1, 1)
 				}
 			}
 			i := g + j
-			n0[i], n1[i] = a, b
-			rows[i] = a + b + int64(s.rows.get(l))
-		}
-	}
-	if wide {
-		for i, l := range ls {
-			if _, wr := k.cells(l); wr != nil {
-				a, b := totals2(wr)
-				n0[i], n1[i] = int64(a), int64(b)
-				rows[i] = int64(s.RowCount(l))
-			}
+			n0[i], n1[i] = int64(all-k1), int64(k1)
+			rows[i] = int64(all + s.rows.get(l))
 		}
 	}
 }
@@ -351,20 +326,10 @@ func (s *Stats) ClassTotals2s(ls []int, n0, n1, rows []int64) {
 // their cache misses overlap.
 func (s *Stats) OutOfFold2s(ls, fold []int32, pos int, n, k, rows []uint64) {
 	c := &s.cls
-	nw, sh := c.narrow.width, c.narrow.shift()
-	mask, w, marker := 1<<sh-1, c.width, c.marker()
-	chunks := c.narrow.chunks
-	const group = 32
-	var head [group]uint8
-	for g := 0; g < len(ls); g += group {
-		grp := ls[g:min(g+group, len(ls))]
-		if w > 0 {
-			for j, l := range grp {
-				if l >= 0 {
-					head[j] = chunks[int(l)>>sh][(int(l)&mask)*nw]
-				}
-			}
-		}
+	var head [cellGroup]uint8
+	for g := 0; g < len(ls); g += cellGroup {
+		grp := ls[g:min(g+cellGroup, len(ls))]
+		loadHeads(c, grp, &head)
 		for j, l32 := range grp {
 			i := g + j
 			if l32 < 0 {
@@ -373,19 +338,47 @@ func (s *Stats) OutOfFold2s(ls, fold []int32, pos int, n, k, rows []uint64) {
 			}
 			l := int(l32)
 			var all, in, kAll, kIn uint64
-			if w > 0 {
-				if head[j] == marker {
-					_, wr := c.cells(l)
+			if c.width > 0 {
+				if nr, wr := c.cellsAt(l, head[j]); wr != nil {
 					all, in, kAll, kIn = foldCounts2(wr, int(fold[i]), pos)
 				} else {
-					o := (l & mask) * nw
-					all, in, kAll, kIn = foldCounts2(chunks[l>>sh][o:o+w:o+w], int(fold[i]), pos)
+					all, in, kAll, kIn = foldCounts2(nr, int(fold[i]), pos)
 				}
 			}
 			n[i], k[i] = all-in, kAll-kIn
 			rows[i] = all + s.rows.get(l)
 		}
 	}
+}
+
+// cellGroup is the number of levels whose first cells ClassTotals2s and
+// OutOfFold2s load (loadHeads) before reading any level's counts.
+const cellGroup = 32
+
+// loadHeads sets head[j] to the first narrow cell of level grp[j] (a
+// negative level is passed over), by a loop that does nothing else: the
+// loads of the group are then in flight at once, and the reads of their
+// counts that follow find the rows in the cache.
+func loadHeads[L int | int32](c *classCells[uint8], grp []L, head *[cellGroup]uint8) {
+	if c.width == 0 {
+		return
+	}
+	nw, sh := c.narrow.width, c.narrow.shift()
+	mask, chunks := 1<<sh-1, c.narrow.chunks
+	for j, l := range grp {
+		if l >= 0 {
+			head[j] = chunks[int(l)>>sh][(int(l)&mask)*nw]
+		}
+	}
+}
+
+// cellsAt is cells for level l whose first narrow cell is head (loadHeads).
+func (k *classCells[N]) cellsAt(l int, head N) (narrow []N, wide []uint64) {
+	row := k.narrow.row(l)
+	if head == k.marker() {
+		return nil, k.wideOf(row)
+	}
+	return row[:k.width:k.width], nil
 }
 
 // foldCounts2 returns, for the cells of a level with two classes, its rows

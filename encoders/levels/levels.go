@@ -265,53 +265,34 @@ const batchGroup = 32
 
 // InternBatch sets ids[i] to Intern(keys[i]) for every i, in order, so that
 // new levels get the same ids as interning them one by one would give
-// (len(ids) >= len(keys)). Like LookupBatch it hashes a group of keys and
-// loads their home slots, and then the locations of the levels those slots
-// point to, before comparing any bytes: the slot table of a table of
-// millions of levels is far larger than the caches, and the loads of a
-// group, being independent, wait for memory together instead of one after
-// another. A key found in its home slot takes that level's id (a level
-// found stays found, whatever the keys before it in the group added);
-// every other key is interned by InternHash, in order.
+// (len(ids) >= len(keys)). Like LookupBatch it loads a group of keys' home
+// slots and their levels' locations before comparing any bytes (group). A
+// key found in its home slot takes that level's id (a level found stays
+// found, whatever the keys before it in the group added); every other key
+// is interned by InternHash, in order.
 func (t *Table) InternBatch(keys [][]byte, ids []uint32) {
 	if t.slots == nil {
 		t.init(0)
 	}
 	ids = ids[:len(keys)]
-	var hs [batchGroup]uint64
-	var home [batchGroup]slot
-	var locs [batchGroup]uint64
+	var g group
 	for start := 0; start < len(keys); start += batchGroup {
-		group := keys[start:min(start+batchGroup, len(keys))]
-		for j, k := range group {
-			hs[j] = Hash(k)
-		}
-		// The loads in loops of their own: between two hashes the
-		// processor's window holds only a few loads, in a loop this small
-		// the whole group's.
-		slots, shift := t.slots, t.shift
-		for j, h := range hs[:len(group)] {
-			home[j] = slots[h>>shift]
-		}
-		for j := range group {
-			if s := home[j]; s.id1 != 0 && s.tag == uint32(hs[j]>>32) {
-				locs[j] = t.loc(s.id1 - 1)
-			}
-		}
-		for j, k := range group {
-			if s := home[j]; s.id1 != 0 && s.tag == uint32(hs[j]>>32) && bytes.Equal(t.at(locs[j]), k) {
-				ids[start+j] = s.id1 - 1
+		keys := keys[start:min(start+batchGroup, len(keys))]
+		g.load(t, keys)
+		for j, k := range keys {
+			if id, ok := g.home(t, j, k); ok {
+				ids[start+j] = id
 				continue
 			}
-			ids[start+j] = t.InternHash(k, hs[j])
+			ids[start+j] = t.InternHash(k, g.hs[j])
 		}
 	}
 }
 
 // LookupBatch sets ids[i] to the id of keys[i], or NoID when keys[i] is not
-// in the table (len(ids) >= len(keys)). Like InternBatch it hashes a group
-// of keys and loads their home slots, and then the locations of the levels
-// those slots point to, before comparing any bytes. It does not allocate.
+// in the table (len(ids) >= len(keys)). Like InternBatch it loads a group
+// of keys' home slots and their levels' locations before comparing any
+// bytes (group). It does not allocate.
 func (t *Table) LookupBatch(keys [][]byte, ids []uint32) {
 	ids = ids[:len(keys)]
 	if len(t.slots) == 0 {
@@ -320,34 +301,20 @@ func (t *Table) LookupBatch(keys [][]byte, ids []uint32) {
 		}
 		return
 	}
-	var hs [batchGroup]uint64
-	var home [batchGroup]slot
-	var locs [batchGroup]uint64
+	var g group
 	mask := uint64(len(t.slots) - 1)
 	for start := 0; start < len(keys); start += batchGroup {
-		group := keys[start:min(start+batchGroup, len(keys))]
-		for j, k := range group {
-			hs[j] = Hash(k)
-		}
-		slots, shift := t.slots, t.shift
-		for j, h := range hs[:len(group)] {
-			home[j] = slots[h>>shift]
-		}
-		for j := range group {
-			if s := home[j]; s.id1 != 0 && s.tag == uint32(hs[j]>>32) {
-				locs[j] = t.loc(s.id1 - 1)
-			}
-		}
-		for j, k := range group {
-			h := hs[j]
-			tag := uint32(h >> 32)
-			s := home[j]
-			if s.id1 != 0 && s.tag == tag && bytes.Equal(t.at(locs[j]), k) {
-				ids[start+j] = s.id1 - 1
+		keys := keys[start:min(start+batchGroup, len(keys))]
+		g.load(t, keys)
+		for j, k := range keys {
+			if id, ok := g.home(t, j, k); ok {
+				ids[start+j] = id
 				continue
 			}
+			h := g.hs[j]
+			tag := uint32(h >> 32)
 			id := NoID
-			for i := h >> t.shift; s.id1 != 0; {
+			for i, s := h>>t.shift, g.slot[j]; s.id1 != 0; {
 				i = (i + 1) & mask
 				s = t.slots[i]
 				if s.id1 != 0 && s.tag == tag && bytes.Equal(t.Level(s.id1-1), k) {
@@ -358,6 +325,44 @@ func (t *Table) LookupBatch(keys [][]byte, ids []uint32) {
 			ids[start+j] = id
 		}
 	}
+}
+
+// group holds, for a group of at most batchGroup keys, their hashes, their
+// home slots and the locations of the levels those slots point to. load
+// fetches them by loops that do nothing else: the slot table of a table of
+// millions of levels is far larger than the caches, and between two hashes
+// the processor's window holds only a few loads, in a loop this small the
+// whole group's, whose waits for memory then overlap.
+type group struct {
+	hs   [batchGroup]uint64
+	slot [batchGroup]slot
+	locs [batchGroup]uint64
+}
+
+// load hashes keys and loads their home slots and those slots' locations.
+func (g *group) load(t *Table, keys [][]byte) {
+	for j, k := range keys {
+		g.hs[j] = Hash(k)
+	}
+	slots, shift := t.slots, t.shift
+	for j, h := range g.hs[:len(keys)] {
+		g.slot[j] = slots[h>>shift]
+	}
+	for j := range keys {
+		if s := g.slot[j]; s.id1 != 0 && s.tag == uint32(g.hs[j]>>32) {
+			g.locs[j] = t.loc(s.id1 - 1)
+		}
+	}
+}
+
+// home returns the id of key j of the group, k, when its home slot (as
+// loaded) holds it.
+func (g *group) home(t *Table, j int, k []byte) (uint32, bool) {
+	s := g.slot[j]
+	if s.id1 != 0 && s.tag == uint32(g.hs[j]>>32) && bytes.Equal(t.at(g.locs[j]), k) {
+		return s.id1 - 1, true
+	}
+	return 0, false
 }
 
 // rehash doubles the slot table and places every level again.

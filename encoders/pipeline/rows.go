@@ -58,6 +58,11 @@ func (ls *levelSlots) fill(b *table.Batch, st *colstats.Stats, add bool) []int32
 		ls.replay = nil
 	}
 	c := &b.Cols[ls.col]
+	if cap(ls.keys) < b.Rows {
+		// A batch's keys at once, not by doubling: growing a slice of
+		// slices copies it and touches fresh memory each time.
+		ls.keys = make([][]byte, 0, b.Rows)
+	}
 	keys := ls.keys[:0]
 	cut := func(v []byte) []byte {
 		if ls.prefix > 0 && len(v) > ls.prefix {

@@ -41,6 +41,7 @@ func runApply(args []string) error {
 		return err
 	}
 	start := time.Now()
+	reserveHeap(file, *tables)
 	m, err := pipeline.LoadTables(*tables)
 	if err != nil {
 		return err

@@ -11,6 +11,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/internal/hugemem"
 	"manyfold/io/csvio"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -248,4 +249,48 @@ func sameFile(a, b string) bool {
 		return false
 	}
 	return os.SameFile(fa, fb)
+}
+
+// reserveHeap readies the heap for a job on the files or directories of
+// files at paths (see hugemem.ReserveHeap): 256 MiB plus four times their
+// size, about what the heap reaches on the benchmark job (its 27 MB
+// Parquet file of 1M rows ran in a heap of about 230 MB, its 812 MB file
+// of 30M rows in about 2.1 GB). Inputs under 4 MiB in all get nothing:
+// their job is over before the reservation would pay, and standard input
+// counts once it is spooled.
+func reserveHeap(paths ...string) {
+	var size int64
+	for _, p := range paths {
+		size += diskSize(p)
+	}
+	if size < 4<<20 {
+		return
+	}
+	hugemem.ReserveHeap(int(min(256<<20+4*size, 1<<40)))
+}
+
+// diskSize returns the size of a regular file, or the total size of the
+// regular files in a directory, and 0 for anything else.
+func diskSize(path string) int64 {
+	fi, err := os.Stat(path)
+	if err != nil {
+		return 0
+	}
+	if fi.Mode().IsRegular() {
+		return fi.Size()
+	}
+	if !fi.IsDir() {
+		return 0
+	}
+	entries, err := os.ReadDir(path)
+	if err != nil {
+		return 0
+	}
+	var size int64
+	for _, e := range entries {
+		if info, err := e.Info(); err == nil && info.Mode().IsRegular() {
+			size += info.Size()
+		}
+	}
+	return size
 }

@@ -86,6 +86,7 @@ func runCompare(args []string) (err error) {
 		return err
 	}
 	defer func() { err = done(err) }()
+	reserveHeap(path)
 	r, err := tableio.Open(path, ropts)
 	if err != nil {
 		return err

@@ -133,6 +133,7 @@ func runEncode(args []string) (err error) {
 		return err
 	}
 	defer func() { err = done(err) }()
+	reserveHeap(path)
 
 	var total int64
 	if sp.FoldBy == "ordered" {

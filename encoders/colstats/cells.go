@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math"
 
-	"manyfold/encoders/internal/hugemem"
+	"manyfold/internal/hugemem"
 )
 
 // chunkBits sets the levels per chunk of a perLevel array (2^14).

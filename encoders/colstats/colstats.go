@@ -20,9 +20,9 @@ import (
 	"slices"
 	"sort"
 
-	"manyfold/encoders/internal/hugemem"
 	"manyfold/encoders/levels"
 	"manyfold/encoders/smooth"
+	"manyfold/internal/hugemem"
 )
 
 // Task is the kind of target a statistic describes.

@@ -20,7 +20,7 @@
 // table is ever reallocated. The arena may grow past 4 GiB of level bytes;
 // the only limits are memory and the id space (MaxLevels). A large table's
 // slots, chunks and blocks sit in huge pages where the system allows
-// (encoders/internal/hugemem), as its lookups land at random.
+// (internal/hugemem), as its lookups land at random.
 package levels
 
 import (
@@ -30,7 +30,7 @@ import (
 
 	"github.com/cespare/xxhash/v2"
 
-	"manyfold/encoders/internal/hugemem"
+	"manyfold/internal/hugemem"
 )
 
 // MaxLevels is the most levels a Table holds: ids are uint32 and NoID is

@@ -7,7 +7,7 @@ import (
 	"sync"
 
 	"manyfold/encoders/colstats"
-	"manyfold/encoders/internal/hugemem"
+	"manyfold/internal/hugemem"
 	"manyfold/io/table"
 )
 

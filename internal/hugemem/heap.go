@@ -1,0 +1,72 @@
+package hugemem
+
+import (
+	"runtime"
+	"unsafe"
+)
+
+// ReserveHeap has the Go heap take up to n bytes of fresh address space
+// from the system now, advises it for huge pages, and returns it to the
+// heap as free memory, so that the heap's growth into it later is backed
+// by 2 MiB pages. It returns the bytes advised: 0 when huge pages are off
+// (see Enabled), when n is below MinBytes, or when the system could not
+// spare the address space (see reserveSize).
+//
+// Why: Go's runtime maps new heap memory with mmap(MAP_FIXED) as the heap
+// grows, which an earlier madvise does not survive, and it never asks for
+// huge pages itself. Every 4 KiB the heap touches for the first time is
+// then a page fault, and on a virtual machine a fault is dear: about 8 to
+// 13 us on the benchmark machine, where the 1M-row benchmark job took
+// 41,000 to 44,000 of them, 0.33 to 0.44 s of system time in a run of 0.8
+// s. With 1 GiB reserved the same job took about 2,000.
+//
+// How: one allocation of n bytes, which the runtime maps fresh and so does
+// not zero, advised whole, then dropped and collected. Later allocations
+// take free memory from the lowest address up, as they would have taken
+// new memory, and reuse this range before the heap grows past it. Call it
+// once, early, while the heap is small: an allocation that fits in memory
+// the heap already holds would be zeroed, and so touched, by the runtime.
+//
+// Memory: none of the range is resident until touched, but a huge page is
+// resident whole once one byte of it is, which rounds the peak resident
+// memory up by at most a few huge pages per region in use.
+func ReserveHeap(n int) int {
+	if !Enabled() {
+		return 0
+	}
+	avail, strict := systemMemory()
+	n = reserveSize(n, avail, strict)
+	if n < MinBytes {
+		return 0
+	}
+	b := make([]byte, n)
+	base := unsafe.Pointer(unsafe.SliceData(b))
+	start := uintptr(base)
+	from, to := alignUp(start), alignDown(start+uintptr(n))
+	if to <= from {
+		return 0
+	}
+	advise(unsafe.Slice((*byte)(unsafe.Add(base, from-start)), to-from))
+	reserved = [2]uintptr{from, to}
+	b = nil
+	runtime.GC()
+	return int(to - from)
+}
+
+// reserved is the range ReserveHeap advised last, for the tests.
+var reserved [2]uintptr
+
+// reserveSize returns the bytes ReserveHeap takes when asked for n, with
+// avail bytes of memory available on the system: at most half of avail,
+// so that the mapping cannot be refused under the kernel's default
+// overcommit heuristic (a refusal would end the program: the runtime
+// treats it as out of memory), and none under strict overcommit
+// accounting (vm.overcommit_memory = 2), where address space counts
+// against a limit whether touched or not. avail < 0 means unknown:
+// nothing is reserved.
+func reserveSize(n int, avail int64, strict bool) int {
+	if strict || avail < 0 || n <= 0 {
+		return 0
+	}
+	return int(min(int64(n), avail/2))
+}

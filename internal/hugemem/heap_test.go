@@ -1,0 +1,93 @@
+package hugemem
+
+import (
+	"runtime"
+	"runtime/metrics"
+	"testing"
+)
+
+func TestMemAvailable(t *testing.T) {
+	// The line format is proc(5)'s ("MemAvailable %lu (since Linux
+	// 3.14)", in kB like every size line of /proc/meminfo).
+	for _, tc := range []struct {
+		in   string
+		want int64
+	}{
+		{"MemTotal:       24567212 kB\nMemFree:        22235148 kB\nMemAvailable:   23874328 kB\nBuffers: 1 kB\n", 23874328 << 10},
+		{"MemAvailable: 0 kB", 0},
+		{"MemTotal:       24567212 kB\n", -1},
+		{"MemAvailable:   12 MB\n", -1},
+		{"MemAvailable:   x kB\n", -1},
+		{"MemAvailable:\n", -1},
+		{"", -1},
+	} {
+		if got := memAvailable(tc.in); got != tc.want {
+			t.Errorf("memAvailable(%q) = %d, want %d", tc.in, got, tc.want)
+		}
+	}
+}
+
+func TestReserveSize(t *testing.T) {
+	for _, tc := range []struct {
+		n      int
+		avail  int64
+		strict bool
+		want   int
+	}{
+		{1 << 30, 24 << 30, false, 1 << 30},
+		{1 << 30, 1 << 30, false, 1 << 29}, // half of what is available
+		{1 << 30, 24 << 30, true, 0},       // strict accounting: nothing
+		{1 << 30, -1, false, 0},            // unknown: nothing
+		{0, 24 << 30, false, 0},
+		{-5, 24 << 30, false, 0},
+	} {
+		if got := reserveSize(tc.n, tc.avail, tc.strict); got != tc.want {
+			t.Errorf("reserveSize(%d, %d, %v) = %d, want %d", tc.n, tc.avail, tc.strict, got, tc.want)
+		}
+	}
+}
+
+func TestReserveHeap(t *testing.T) {
+	if !Enabled() || runtime.GOOS != "linux" {
+		if got := ReserveHeap(64 << 20); got != 0 {
+			t.Fatalf("ReserveHeap without huge pages = %d, want 0", got)
+		}
+		t.Skip("huge pages are off here")
+	}
+	if got := ReserveHeap(MinBytes - 1); got != 0 {
+		t.Errorf("ReserveHeap(MinBytes-1) = %d, want 0", got)
+	}
+	const n = 64 << 20
+	got := ReserveHeap(n)
+	avail, strict := systemMemory()
+	if reserveSize(n, avail, strict) < n {
+		if got != 0 && got > reserveSize(n, avail, strict) {
+			t.Fatalf("ReserveHeap(%d) = %d, more than the system allows", n, got)
+		}
+		t.Skip("the system cannot spare the address space")
+	}
+	// The advised range is whole huge pages of the allocation: at most
+	// one page shorter than it at each end.
+	if got%PageSize != 0 || got < n-2*PageSize || got > n {
+		t.Fatalf("ReserveHeap(%d) = %d", n, got)
+	}
+	lo, hi := reserved[0], reserved[1]
+	if hi-lo != uintptr(got) || lo%PageSize != 0 {
+		t.Fatalf("reserved %#x-%#x for %d bytes", lo, hi, got)
+	}
+	// The advice holds over the whole range, which went back to the
+	// heap as free memory.
+	for _, p := range []uintptr{lo, lo + (hi-lo)/2, hi - 1} {
+		switch ok, found := eligible(t, p); {
+		case !found:
+			t.Errorf("no THPeligible line in /proc/self/smaps for the mapping at %#x", p)
+		case !ok:
+			t.Errorf("the mapping at %#x is not eligible for huge pages after ReserveHeap", p)
+		}
+	}
+	sample := []metrics.Sample{{Name: "/memory/classes/heap/free:bytes"}, {Name: "/memory/classes/heap/released:bytes"}}
+	metrics.Read(sample)
+	if free := sample[0].Value.Uint64() + sample[1].Value.Uint64(); free < uint64(got) {
+		t.Errorf("the heap holds %d free bytes after ReserveHeap(%d) = %d", free, n, got)
+	}
+}

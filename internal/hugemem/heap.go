@@ -2,6 +2,8 @@ package hugemem
 
 import (
 	"runtime"
+	"runtime/metrics"
+	"sync"
 	"unsafe"
 )
 
@@ -9,8 +11,10 @@ import (
 // from the system now, advises it for huge pages, and returns it to the
 // heap as free memory, so that the heap's growth into it later is backed
 // by 2 MiB pages. It returns the bytes advised: 0 when huge pages are off
-// (see Enabled), when n is below MinBytes, or when the system could not
-// spare the address space (see reserveSize).
+// (see Enabled), when n is below MinBytes, when the system could not
+// spare the address space (see reserveSize), when an earlier call has
+// reserved already (it acts once in a process), or when the heap already
+// holds free memory (see How).
 //
 // Why: Go's runtime maps new heap memory with mmap(MAP_FIXED) as the heap
 // grows, which an earlier madvise does not survive, and it never asks for
@@ -24,8 +28,10 @@ import (
 // not zero, advised whole, then dropped and collected. Later allocations
 // take free memory from the lowest address up, as they would have taken
 // new memory, and reuse this range before the heap grows past it. Call it
-// once, early, while the heap is small: an allocation that fits in memory
-// the heap already holds would be zeroed, and so touched, by the runtime.
+// early, while the heap is small: an allocation served from memory the
+// heap already holds would be zeroed, and so touched, by the runtime, so
+// it reserves nothing once the heap holds more than maxSpare free bytes
+// (after a job, as in the demo's later steps) or has reserved before.
 //
 // Memory: none of the range is resident until touched, but a huge page is
 // resident whole once one byte of it is, which rounds the peak resident
@@ -37,6 +43,14 @@ func ReserveHeap(n int) int {
 	avail, strict := systemMemory()
 	n = reserveSize(n, avail, strict)
 	if n < MinBytes {
+		return 0
+	}
+	reserveMu.Lock()
+	defer reserveMu.Unlock()
+	if reserved != [2]uintptr{} || heapSpare() > maxSpare {
+		// The allocation could be served in part from memory the heap
+		// holds already (a second call's from the first's), which the
+		// runtime would zero, touching every page of it.
 		return 0
 	}
 	b := make([]byte, n)
@@ -53,8 +67,30 @@ func ReserveHeap(n int) int {
 	return int(to - from)
 }
 
-// reserved is the range ReserveHeap advised last, for the tests.
-var reserved [2]uintptr
+var (
+	reserveMu sync.Mutex
+	reserved  [2]uintptr // the range ReserveHeap advised, once it has
+)
+
+// maxSpare is the most free heap memory, in use before or given back to
+// the system, that ReserveHeap accepts: what the runtime may zero when it
+// serves the reservation from it. A command starts with a few hundred
+// KiB; one that has already run a job (the demo's steps) holds tens or
+// hundreds of MiB.
+const maxSpare = 8 << 20
+
+// heapSpare returns the heap's free bytes, resident or released.
+func heapSpare() uint64 {
+	sample := []metrics.Sample{{Name: "/memory/classes/heap/free:bytes"}, {Name: "/memory/classes/heap/released:bytes"}}
+	metrics.Read(sample)
+	var n uint64
+	for _, s := range sample {
+		if s.Value.Kind() == metrics.KindUint64 {
+			n += s.Value.Uint64()
+		}
+	}
+	return n
+}
 
 // reserveSize returns the bytes ReserveHeap takes when asked for n, with
 // avail bytes of memory available on the system: at most half of avail,

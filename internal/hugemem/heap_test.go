@@ -1,8 +1,11 @@
 package hugemem
 
 import (
+	"os"
+	"os/exec"
 	"runtime"
 	"runtime/metrics"
+	"strings"
 	"testing"
 )
 
@@ -85,9 +88,44 @@ func TestReserveHeap(t *testing.T) {
 			t.Errorf("the mapping at %#x is not eligible for huge pages after ReserveHeap", p)
 		}
 	}
+	// Once in a process: a second call reserves nothing.
+	if again := ReserveHeap(n); again != 0 || reserved != [2]uintptr{lo, hi} {
+		t.Errorf("a second ReserveHeap(%d) = %d, reserved %#x-%#x; want 0 and the first range", n, again, reserved[0], reserved[1])
+	}
 	sample := []metrics.Sample{{Name: "/memory/classes/heap/free:bytes"}, {Name: "/memory/classes/heap/released:bytes"}}
 	metrics.Read(sample)
 	if free := sample[0].Value.Uint64() + sample[1].Value.Uint64(); free < uint64(got) {
 		t.Errorf("the heap holds %d free bytes after ReserveHeap(%d) = %d", free, n, got)
+	}
+}
+
+// TestReserveHeapAfterUse runs in a process of its own (the test binary
+// again), as a process reserves once: a heap that already holds free
+// memory, as after a job, gets no reservation, since the runtime could
+// serve it from that memory and zero it, touching every page.
+func TestReserveHeapAfterUse(t *testing.T) {
+	if os.Getenv("HUGEMEM_AFTER_USE") == "1" {
+		b := make([]byte, 64<<20)
+		for i := range b {
+			b[i] = 1
+		}
+		b = nil
+		runtime.GC()
+		if spare := heapSpare(); spare <= maxSpare {
+			t.Fatalf("after a 64 MiB allocation is dropped the heap holds %d free bytes, want more than %d", spare, maxSpare)
+		}
+		if got := ReserveHeap(64 << 20); got != 0 {
+			t.Fatalf("ReserveHeap after use = %d, want 0", got)
+		}
+		return
+	}
+	if !Enabled() || runtime.GOOS != "linux" {
+		t.Skip("huge pages are off here")
+	}
+	cmd := exec.Command(os.Args[0], "-test.run", "^TestReserveHeapAfterUse$", "-test.v")
+	cmd.Env = append(os.Environ(), "HUGEMEM_AFTER_USE=1")
+	out, err := cmd.CombinedOutput()
+	if err != nil || !strings.Contains(string(out), "--- PASS: TestReserveHeapAfterUse") {
+		t.Fatalf("the test in a process of its own: %v\n%s", err, out)
 	}
 }

@@ -3,6 +3,8 @@ package hugemem
 import (
 	"runtime"
 	"runtime/metrics"
+	"strconv"
+	"strings"
 	"sync"
 	"unsafe"
 )
@@ -105,4 +107,27 @@ func reserveSize(n int, avail int64, strict bool) int {
 		return 0
 	}
 	return int(min(int64(n), avail/2))
+}
+
+// memAvailable returns the MemAvailable figure of a /proc/meminfo text in
+// bytes, or -1 when the line is missing or malformed. The line reads
+// "MemAvailable:   23874328 kB" (the kernel's proc(5) page; the unit is
+// always kB, meaning KiB).
+func memAvailable(meminfo string) int64 {
+	for line := range strings.Lines(meminfo) {
+		rest, ok := strings.CutPrefix(line, "MemAvailable:")
+		if !ok {
+			continue
+		}
+		f := strings.Fields(rest)
+		if len(f) != 2 || f[1] != "kB" {
+			return -1
+		}
+		kb, err := strconv.ParseInt(f[0], 10, 64)
+		if err != nil || kb < 0 {
+			return -1
+		}
+		return kb << 10
+	}
+	return -1
 }

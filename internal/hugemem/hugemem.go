@@ -28,11 +28,14 @@
 // small arrays are never advised (below MinBytes), and Slab hands out plain
 // pieces until its owner has taken SlabStart bytes: a small table costs
 // what it did.
+//
+// The rest of the heap: ReserveHeap, called once at the start of a
+// command, advises the address range the heap will grow into, so that its
+// first touches fault once per 2 MiB (see heap.go).
 package hugemem
 
 import (
 	"os"
-	"strconv"
 	"strings"
 	"sync"
 	"unsafe"
@@ -151,27 +154,4 @@ func (s *Slab[T]) Take(n int) []T {
 	s.rest = s.rest[n:]
 	s.spare -= n * es
 	return p
-}
-
-// memAvailable returns the MemAvailable figure of a /proc/meminfo text in
-// bytes, or -1 when the line is missing or malformed. The line reads
-// "MemAvailable:   23874328 kB" (the kernel's proc(5) page; the unit is
-// always kB, meaning KiB).
-func memAvailable(meminfo string) int64 {
-	for line := range strings.Lines(meminfo) {
-		rest, ok := strings.CutPrefix(line, "MemAvailable:")
-		if !ok {
-			continue
-		}
-		f := strings.Fields(rest)
-		if len(f) != 2 || f[1] != "kB" {
-			return -1
-		}
-		kb, err := strconv.ParseInt(f[0], 10, 64)
-		if err != nil || kb < 0 {
-			return -1
-		}
-		return kb << 10
-	}
-	return -1
 }

@@ -9,8 +9,8 @@
 # /tmp/manyfold-bench), GROWTH_ROWS (row counts of the RSS check without
 # shipment_id, default "10000000 30000000"; "" skips it), MF_ONLY_ROWS (row
 # counts at which only manyfold runs the job, Parquet to Parquet with 2
-# threads, for the growth of its wall time; default "30000000", "" skips
-# it), PEERS (default "duckdb pandas").
+# threads, for the growth of its wall time beside ROWS; default
+# "30000000", "" skips it), PEERS (default "duckdb pandas").
 set -euo pipefail
 
 here=$(cd "$(dirname "$0")" && pwd)
@@ -66,10 +66,10 @@ measure() {
 JOB=(--target late --columns dest_postcode,sender_account,shipment_id --methods target,freq
 	--smoothing m=20 --folds 5 --seed 3 --fold-column fold)
 
-mf() { # mf ROWS IN OUTFMT THREADS
+mf() { # mf ROWS IN OUTFMT THREADS [LABEL]
 	local d=$WORK/$1 out=$WORK/$1/out/mf-$2-$4t.$3
 	rm -rf "$d/out/tables"
-	measure "$1" "$2" "$3" manyfold "$4" "$bin/manyfold" encode "$d/shipments.$2" "${JOB[@]}" \
+	measure "$1" "$2" "$3" "${5:-manyfold}" "$4" "$bin/manyfold" encode "$d/shipments.$2" "${JOB[@]}" \
 		--out "$out" --tables "$d/out/tables" --threads "$4"
 }
 duck() { # duck ROWS IN THREADS
@@ -119,8 +119,14 @@ for n in "${ROWS[@]}"; do
 	rm -f "$o"/*.csv "$o"/*.parquet # keep the disk free for the next size
 done
 
-# The whole job at larger sizes, manyfold alone: its wall time should grow
-# linearly with the rows.
+# The growth of manyfold's wall time and memory with the rows, manyfold
+# alone: in each round the job at every row count (ROWS, then
+# MF_ONLY_ROWS), back to back, and then the job without shipment_id at
+# each of GROWTH_ROWS, so that the machine's slower and faster phases fall
+# on all sizes alike. (Measured at distant times, the sizes' seconds per
+# million rows differed by 20% and more on the same build: this machine's
+# speed wanders, and a process that follows one that freed much memory
+# pays for its first touches again, about 0.4 s for 250 MB here.)
 for n in $MF_ONLY_ROWS; do
 	d=$WORK/$n
 	mkdir -p "$d/out"
@@ -128,27 +134,46 @@ for n in $MF_ONLY_ROWS; do
 		log "generating $n rows (Parquet only)"
 		"$bin/gen" --rows "$n" --dir "$d" --formats parquet --no-folds-file
 	fi
-	for rep in $(seq "$REPS"); do
-		log "$n rows (manyfold only): round $rep of $REPS"
-		mf "$n" parquet parquet 2
-	done
-	rm -f "$d"/out/*.parquet
 done
-
-# Peak RSS without the nearly unique column: the statistics of 40k
-# postcodes and 1M accounts should not grow with the rows.
+# Without shipment_id: the table of each of GROWTH_ROWS (whose accounts
+# keep appearing as the rows grow: 38% more from 10M to 30M rows), and,
+# for each larger size, the table of the first size written over and over
+# to that many rows (gen --repeat): the same levels, more rows.
+growth_sizes=($GROWTH_ROWS)
+noid_cases=()
 for n in $GROWTH_ROWS; do
-	d=$WORK/noid-$n
+	noid_cases+=("noid-$n")
+	if [ "$n" != "${growth_sizes[0]}" ] && [ $((n % growth_sizes[0])) -eq 0 ]; then
+		noid_cases+=("noidrep-$n")
+	fi
+done
+for c in "${noid_cases[@]}"; do
+	d=$WORK/$c n=${c#*-}
 	mkdir -p "$d/out"
 	if [ ! -s "$d/shipments.parquet" ]; then
-		log "generating $n rows without shipment_id"
-		"$bin/gen" --rows "$n" --dir "$d" --formats parquet --no-shipment-id --no-folds-file
+		log "generating $c"
+		rep=1
+		[[ $c == noidrep-* ]] && rep=$((n / growth_sizes[0]))
+		"$bin/gen" --rows "$n" --repeat "$rep" --dir "$d" --formats parquet --no-shipment-id --no-folds-file
 	fi
-	rm -rf "$d/out/tables"
-	measure "$n" parquet parquet "manyfold, no shipment_id" 2 "$bin/manyfold" encode "$d/shipments.parquet" \
-		--target late --columns dest_postcode,sender_account --methods target,freq --smoothing m=20 \
-		--folds 5 --seed 3 --fold-column fold --out "$d/out/mf.parquet" --tables "$d/out/tables" --threads 2
-	rm -f "$d/out/mf.parquet"
+done
+for rep in $(seq "$REPS"); do
+	log "growth: round $rep of $REPS"
+	for n in "${ROWS[@]}" $MF_ONLY_ROWS; do
+		mf "$n" parquet parquet 2 "manyfold, growth"
+		rm -f "$WORK/$n"/out/*.parquet
+	done
+	# Peak RSS without the nearly unique column: the statistics of 40k
+	# postcodes and 1M accounts should not grow with the rows.
+	for c in "${noid_cases[@]}"; do
+		d=$WORK/$c n=${c#*-} label="manyfold, no shipment_id"
+		[[ $c == noidrep-* ]] && label="manyfold, no shipment_id, levels of ${growth_sizes[0]} rows"
+		rm -rf "$d/out/tables"
+		measure "$n" parquet parquet "$label" 2 "$bin/manyfold" encode "$d/shipments.parquet" \
+			--target late --columns dest_postcode,sender_account --methods target,freq --smoothing m=20 \
+			--folds 5 --seed 3 --fold-column fold --out "$d/out/mf.parquet" --tables "$d/out/tables" --threads 2
+		rm -f "$d/out/mf.parquet"
+	done
 done
 
 echo "load average at end: $(cut -d' ' -f1-3 /proc/loadavg)" >>"$WORK/env.txt"

@@ -33,14 +33,19 @@ func main() {
 	foldSeed := flag.Uint64("fold-seed", 3, "manyfold --seed of the fold assignment")
 	k := flag.Int("folds", 5, "manyfold --folds")
 	noFolds := flag.Bool("no-folds-file", false, "do not write folds.parquet")
+	repeat := flag.Int64("repeat", 1, "write the first rows/repeat rows this many times (the same levels, more rows)")
 	flag.Parse()
-	if err := run(*rows, *seed, *dir, *formats, *noID, *foldSeed, *k, !*noFolds); err != nil {
+	if *repeat < 1 || *rows%*repeat != 0 {
+		fmt.Fprintf(os.Stderr, "gen: --repeat %d must be at least 1 and divide --rows %d\n", *repeat, *rows)
+		os.Exit(2)
+	}
+	if err := run(*rows, *seed, *dir, *formats, *noID, *foldSeed, *k, !*noFolds, *repeat); err != nil {
 		fmt.Fprintln(os.Stderr, "gen:", err)
 		os.Exit(1)
 	}
 }
 
-func run(rows int64, seed uint64, dir, formats string, noID bool, foldSeed uint64, k int, writeFolds bool) error {
+func run(rows int64, seed uint64, dir, formats string, noID bool, foldSeed uint64, k int, writeFolds bool, repeat int64) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return err
 	}
@@ -56,7 +61,7 @@ func run(rows int64, seed uint64, dir, formats string, noID bool, foldSeed uint6
 		}
 		path := filepath.Join(dir, "shipments"+ext)
 		start := time.Now()
-		if err := writeTable(path, rows, seed, noID); err != nil {
+		if err := writeTable(path, rows, seed, noID, repeat); err != nil {
 			return err
 		}
 		fmt.Fprintf(os.Stderr, "gen: %s (%d rows) in %.1fs\n", path, rows, time.Since(start).Seconds())
@@ -76,7 +81,8 @@ func config(rows int64, seed uint64) parcels.Config {
 	return parcels.Config{Rows: rows, Seed: seed, Accounts: 1_000_000}
 }
 
-func writeTable(path string, rows int64, seed uint64, noID bool) error {
+// writeTable writes the table of rows/repeat rows repeat times over.
+func writeTable(path string, rows int64, seed uint64, noID bool, repeat int64) error {
 	schema := parcels.Schema()
 	if noID {
 		schema = &table.Schema{Fields: schema.Fields[1:]}
@@ -89,9 +95,11 @@ func writeTable(path string, rows int64, seed uint64, noID bool) error {
 	if noID {
 		w = &dropFirst{w: out}
 	}
-	if err := parcels.Generate(config(rows, seed), w); err != nil {
-		out.Abort()
-		return err
+	for range repeat {
+		if err := parcels.Generate(config(rows/repeat, seed), w); err != nil {
+			out.Abort()
+			return err
+		}
 	}
 	return out.Commit()
 }

@@ -188,9 +188,38 @@ type targetReader struct {
 	vals    []float64
 	missing int64
 	fixed   bool // task given by the user: do not switch
-	// Integer targets: the values met so far and their classes.
-	ints   []int64
-	intCls []int32
+	// The first values met and their classes, so that a target of few
+	// distinct values is not parsed, formatted and looked up by label on
+	// every row: integers, and texts (a CSV's "0" and "1").
+	ints  classMemo[int64]
+	texts classMemo[string]
+}
+
+// classMemo remembers the classes of the first distinct raw values of a
+// target, at most 2*MaxClasses of them: a raw value always gets the same
+// class, as its label is a function of it.
+type classMemo[T comparable] struct {
+	vals []T
+	cls  []int32
+}
+
+// get returns the class of v if v was met before: a linear search of at
+// most 2*MaxClasses values, most often two.
+func (m *classMemo[T]) get(v T) (int32, bool) {
+	for j, w := range m.vals {
+		if w == v {
+			return m.cls[j], true
+		}
+	}
+	return 0, false
+}
+
+// put records that v has class k, while there is room.
+func (m *classMemo[T]) put(v T, k int32) {
+	if len(m.vals) < 2*MaxClasses {
+		m.vals = append(m.vals, v)
+		m.cls = append(m.cls, k)
+	}
 }
 
 func (tr *targetReader) dataErr(b *table.Batch, i int, err error) error {
@@ -237,12 +266,18 @@ func (tr *targetReader) read(b *table.Batch) error {
 			tr.missing++
 			continue
 		}
-		if c.Form == table.FormInt64 && tr.numeric {
-			// An integer target has few distinct values: find the class of
-			// this one among those already met before formatting it as a
-			// label and looking that up.
-			v := c.Ints[i]
-			if k, ok := tr.intClass(v); ok {
+		// A classification target has few distinct values: find the
+		// class of this one among those already met before parsing or
+		// formatting it as a label and looking that up.
+		intForm := c.Form == table.FormInt64 && tr.numeric
+		textForm := c.Form == table.FormText || c.Form == table.FormDict
+		if intForm {
+			if k, ok := tr.ints.get(c.Ints[i]); ok {
+				tr.cls[i] = k
+				continue
+			}
+		} else if textForm {
+			if k, ok := tr.texts.get(string(c.Bytes(i))); ok {
 				tr.cls[i] = k
 				continue
 			}
@@ -276,23 +311,13 @@ func (tr *targetReader) read(b *table.Batch) error {
 			tr.order = append(tr.order, string(key))
 		}
 		tr.cls[i] = int32(k)
-		if c.Form == table.FormInt64 && tr.numeric && len(tr.ints) < 2*MaxClasses {
-			tr.ints = append(tr.ints, c.Ints[i])
-			tr.intCls = append(tr.intCls, int32(k))
+		if intForm {
+			tr.ints.put(c.Ints[i], int32(k))
+		} else if textForm {
+			tr.texts.put(string(c.Bytes(i)), int32(k))
 		}
 	}
 	return nil
-}
-
-// intClass returns the class of integer target value v if v was met
-// before: a linear search of at most MaxClasses values, most often two.
-func (tr *targetReader) intClass(v int64) (int32, bool) {
-	for j, w := range tr.ints {
-		if w == v {
-			return tr.intCls[j], true
-		}
-	}
-	return 0, false
 }
 
 // detectRegression decides the task from the first batch when the user did

@@ -16,14 +16,7 @@ import (
 // which levels were added are those of looking each row up in turn.
 func TestFillMatchesRowByRow(t *testing.T) {
 	postcodes := []string{"75570", "63634", "18681", "75570", "", "84394", "63634", "06974"}
-	text := func(vals []string, nulls []bool) table.Column {
-		c := table.Column{Form: table.FormText, Nulls: nulls, Offsets: []int32{0}}
-		for _, v := range vals {
-			c.Data = append(c.Data, v...)
-			c.Offsets = append(c.Offsets, int32(len(c.Data)))
-		}
-		return c
-	}
+	text := textColumn
 	dict := func(id uint64, entries []string, idx []int32, nulls []bool) table.Column {
 		d := &table.Dict{ID: id, Offsets: []int32{0}}
 		for _, e := range entries {
@@ -132,5 +125,55 @@ func TestTargetReaderInts(t *testing.T) {
 	}
 	if tr.missing != 1 {
 		t.Errorf("missing = %d, want 1", tr.missing)
+	}
+}
+
+// textColumn returns a text column of vals with the given null flags.
+func textColumn(vals []string, nulls []bool) table.Column {
+	c := table.Column{Form: table.FormText, Nulls: nulls, Offsets: []int32{0}}
+	for _, v := range vals {
+		c.Data = append(c.Data, v...)
+		c.Offsets = append(c.Offsets, int32(len(c.Data)))
+	}
+	return c
+}
+
+// TestTargetReaderTexts reads text targets (a CSV's cells) over two
+// batches: a numeric target's texts that denote one number share its class
+// and canonical label, whether met first or again (served from the text
+// cache); a text target keeps its labels as they are.
+func TestTargetReaderTexts(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		numeric bool
+		batches [][]string
+		nulls   [][]bool
+		want    [][]int32
+		labels  string
+	}{
+		{"numeric", true,
+			[][]string{{"1", "0", "1.0", "", "0", "1", "1e0", "0.00"}, {"0.00", "1.0", "2", "1", "-0.5"}},
+			[][]bool{{false, false, false, true, false, false, false, false}, nil},
+			[][]int32{{0, 1, 0, -1, 1, 0, 0, 1}, {1, 0, 2, 0, 3}}, "1,0,2,-0.5"},
+		{"text", false,
+			[][]string{{"late", "on time", "late", "Late"}, {"on time", "late", "Late", "lost"}},
+			[][]bool{nil, nil},
+			[][]int32{{0, 1, 0, 2}, {1, 0, 2, 3}}, "late,on time,Late,lost"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			tr := &targetReader{labels: map[string]int{}, numeric: tc.numeric}
+			for bi, vals := range tc.batches {
+				b := &table.Batch{Cols: []table.Column{textColumn(vals, tc.nulls[bi])}, Rows: len(vals)}
+				if err := tr.read(b); err != nil {
+					t.Fatal(err)
+				}
+				if !slices.Equal(tr.cls, tc.want[bi]) {
+					t.Errorf("batch %d: classes %v, want %v", bi, tr.cls, tc.want[bi])
+				}
+			}
+			if got := strings.Join(tr.order, ","); got != tc.labels {
+				t.Errorf("labels in order of appearance %q, want %q", got, tc.labels)
+			}
+		})
 	}
 }

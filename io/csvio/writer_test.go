@@ -7,6 +7,7 @@ import (
 	"math"
 	"reflect"
 	"runtime"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -305,5 +306,49 @@ func TestWriterPartsSameBytes(t *testing.T) {
 	}
 	if strings.Count(one, "\n") != n+1 {
 		t.Fatalf("%d lines, want %d", strings.Count(one, "\n"), n+1)
+	}
+}
+
+// Every float field reads as strconv's shortest text of its value, with
+// the remembered texts in play: values that repeat, values that share a
+// cache entry, the special values, and numbers as long as a float's text
+// gets, over batches formatted in one part and in several.
+func TestWriterFloatTexts(t *testing.T) {
+	vals := []float64{0, math.Copysign(0, -1), 1, -1, 0.1, 1e21, 1e-7, math.MaxFloat64, -math.SmallestNonzeroFloat64,
+		-2.2250738585072014e-308, math.NaN(), math.Inf(1), math.Inf(-1), 0.2094, 1.0 / 3}
+	// A repeating mix of few values (as an encoded column has) and many
+	// distinct ones, which evict each other from the cache's entries.
+	for i := 0; i < 4*minPartRows; i++ {
+		switch i % 3 {
+		case 0:
+			vals = append(vals, float64(i%5)/7)
+		default:
+			vals = append(vals, float64(i)*1.0000001e-3-float64(i%11))
+		}
+	}
+	for _, rows := range []int{len(vals), 7} {
+		var batches []*table.Batch
+		for lo := 0; lo < len(vals); lo += rows {
+			hi := min(lo+rows, len(vals))
+			batches = append(batches, &table.Batch{Rows: hi - lo, Cols: []table.Column{{Form: table.FormFloat64, Floats: vals[lo:hi]}}})
+		}
+		lines := strings.Split(strings.TrimSuffix(writeAll(t, schemaOf("v"), WriterOptions{}, batches...), "\n"), "\n")[1:]
+		if len(lines) != len(vals) {
+			t.Fatalf("batches of %d rows: %d lines, want %d", rows, len(lines), len(vals))
+		}
+		for i, v := range vals {
+			// The texts of strconv (shortest round trip) and of
+			// table.AppendFloat for the special values.
+			want := strconv.FormatFloat(v, 'g', -1, 64)
+			switch {
+			case math.IsNaN(v):
+				want = "NaN"
+			case math.IsInf(v, 1):
+				want = "+Inf"
+			}
+			if lines[i] != want {
+				t.Fatalf("batches of %d rows: row %d reads %q, want %q", rows, i, lines[i], want)
+			}
+		}
 	}
 }

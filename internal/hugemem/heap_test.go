@@ -50,12 +50,40 @@ func TestReserveSize(t *testing.T) {
 	}
 }
 
+// inFreshProcess reports whether test name runs in a child process of its
+// own (the test binary again, with a heap of its own); when it does not,
+// it starts that child, waits, and passes on its failure or skip.
+// A process reserves its heap once, and only while the heap holds no free
+// memory, so these tests cannot share the test binary's heap with others
+// (nor with themselves under -count or -shuffle).
+func inFreshProcess(t *testing.T, name string) bool {
+	t.Helper()
+	if os.Getenv("HUGEMEM_FRESH") == name {
+		return true
+	}
+	cmd := exec.Command(os.Args[0], "-test.run", "^"+name+"$", "-test.v", "-test.count=1")
+	cmd.Env = append(os.Environ(), "HUGEMEM_FRESH="+name)
+	out, err := cmd.CombinedOutput()
+	switch {
+	case err != nil:
+		t.Fatalf("%s in a process of its own: %v\n%s", name, err, out)
+	case strings.Contains(string(out), "--- SKIP: "+name):
+		t.Skipf("%s in a process of its own skipped:\n%s", name, out)
+	case !strings.Contains(string(out), "--- PASS: "+name):
+		t.Fatalf("%s in a process of its own did not pass:\n%s", name, out)
+	}
+	return false
+}
+
 func TestReserveHeap(t *testing.T) {
 	if !Enabled() || runtime.GOOS != "linux" {
 		if got := ReserveHeap(64 << 20); got != 0 {
 			t.Fatalf("ReserveHeap without huge pages = %d, want 0", got)
 		}
 		t.Skip("huge pages are off here")
+	}
+	if !inFreshProcess(t, "TestReserveHeap") {
+		return
 	}
 	if got := ReserveHeap(MinBytes - 1); got != 0 {
 		t.Errorf("ReserveHeap(MinBytes-1) = %d, want 0", got)
@@ -99,33 +127,26 @@ func TestReserveHeap(t *testing.T) {
 	}
 }
 
-// TestReserveHeapAfterUse runs in a process of its own (the test binary
-// again), as a process reserves once: a heap that already holds free
-// memory, as after a job, gets no reservation, since the runtime could
-// serve it from that memory and zero it, touching every page.
+// TestReserveHeapAfterUse: a heap that already holds free memory, as
+// after a job, gets no reservation, since the runtime could serve it from
+// that memory and zero it, touching every page.
 func TestReserveHeapAfterUse(t *testing.T) {
-	if os.Getenv("HUGEMEM_AFTER_USE") == "1" {
-		b := make([]byte, 64<<20)
-		for i := range b {
-			b[i] = 1
-		}
-		b = nil
-		runtime.GC()
-		if spare := heapSpare(); spare <= maxSpare {
-			t.Fatalf("after a 64 MiB allocation is dropped the heap holds %d free bytes, want more than %d", spare, maxSpare)
-		}
-		if got := ReserveHeap(64 << 20); got != 0 {
-			t.Fatalf("ReserveHeap after use = %d, want 0", got)
-		}
-		return
-	}
 	if !Enabled() || runtime.GOOS != "linux" {
 		t.Skip("huge pages are off here")
 	}
-	cmd := exec.Command(os.Args[0], "-test.run", "^TestReserveHeapAfterUse$", "-test.v")
-	cmd.Env = append(os.Environ(), "HUGEMEM_AFTER_USE=1")
-	out, err := cmd.CombinedOutput()
-	if err != nil || !strings.Contains(string(out), "--- PASS: TestReserveHeapAfterUse") {
-		t.Fatalf("the test in a process of its own: %v\n%s", err, out)
+	if !inFreshProcess(t, "TestReserveHeapAfterUse") {
+		return
+	}
+	b := make([]byte, 64<<20)
+	for i := range b {
+		b[i] = 1
+	}
+	b = nil
+	runtime.GC()
+	if spare := heapSpare(); spare <= maxSpare {
+		t.Fatalf("after a 64 MiB allocation is dropped the heap holds %d free bytes, want more than %d", spare, maxSpare)
+	}
+	if got := ReserveHeap(64 << 20); got != 0 {
+		t.Fatalf("ReserveHeap after use = %d, want 0", got)
 	}
 }

@@ -214,6 +214,17 @@ func (m *classMemo[T]) get(v T) (int32, bool) {
 	return 0, false
 }
 
+// textClass is texts.get for a text given as bytes: compared as they are,
+// not converted to a string (which would allocate past 32 bytes).
+func (tr *targetReader) textClass(b []byte) (int32, bool) {
+	for j, w := range tr.texts.vals {
+		if w == string(b) {
+			return tr.texts.cls[j], true
+		}
+	}
+	return 0, false
+}
+
 // put records that v has class k, while there is room.
 func (m *classMemo[T]) put(v T, k int32) {
 	if len(m.vals) < 2*MaxClasses {
@@ -277,7 +288,7 @@ func (tr *targetReader) read(b *table.Batch) error {
 				continue
 			}
 		} else if textForm {
-			if k, ok := tr.texts.get(string(c.Bytes(i))); ok {
+			if k, ok := tr.textClass(c.Bytes(i)); ok {
 				tr.cls[i] = k
 				continue
 			}

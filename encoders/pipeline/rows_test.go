@@ -177,3 +177,18 @@ func TestTargetReaderTexts(t *testing.T) {
 		})
 	}
 }
+
+// TestTargetReaderTextsNoAlloc: once its classes are known, a text
+// target is read without an allocation, labels longer than 32 bytes
+// included.
+func TestTargetReaderTextsNoAlloc(t *testing.T) {
+	long := strings.Repeat("delivered after the promised window, ", 2)
+	b := &table.Batch{Cols: []table.Column{textColumn([]string{long, "on time", long, "on time"}, nil)}, Rows: 4}
+	tr := &targetReader{labels: map[string]int{}}
+	if err := tr.read(b); err != nil {
+		t.Fatal(err)
+	}
+	if allocs := testing.AllocsPerRun(100, func() { tr.read(b) }); allocs > 0 {
+		t.Errorf("%.1f allocations per batch", allocs)
+	}
+}

@@ -7,6 +7,7 @@ import (
 	"math"
 	"sort"
 	"strconv"
+	"unsafe"
 
 	"manyfold/encoders/colstats"
 	"manyfold/folds"
@@ -214,16 +215,10 @@ func (m *classMemo[T]) get(v T) (int32, bool) {
 	return 0, false
 }
 
-// textClass is texts.get for a text given as bytes: compared as they are,
-// not converted to a string (which would allocate past 32 bytes).
-func (tr *targetReader) textClass(b []byte) (int32, bool) {
-	for j, w := range tr.texts.vals {
-		if w == string(b) {
-			return tr.texts.cls[j], true
-		}
-	}
-	return 0, false
-}
+// view returns b as a string without copying it (a conversion would
+// allocate past 32 bytes), for comparing only: it is valid while b is, and
+// classMemo.put is given a copy.
+func view(b []byte) string { return unsafe.String(unsafe.SliceData(b), len(b)) }
 
 // put records that v has class k, while there is room.
 func (m *classMemo[T]) put(v T, k int32) {
@@ -288,7 +283,7 @@ func (tr *targetReader) read(b *table.Batch) error {
 				continue
 			}
 		} else if textForm {
-			if k, ok := tr.textClass(c.Bytes(i)); ok {
+			if k, ok := tr.texts.get(view(c.Bytes(i))); ok {
 				tr.cls[i] = k
 				continue
 			}

@@ -106,18 +106,25 @@ const denseClasses = 64
 // the fold counts of a class differ by at most 1, and a row's fold depends
 // only on the seed, k, its class and its rank within the class.
 //
+// A class is named either by a small integer (Next) or by its label
+// (Stratum): a label names its class whatever order the classes were met
+// in, so two passes that number the classes differently (first seen, or
+// sorted) still give every row the same fold.
+//
 // A Stratifier is not safe for concurrent use. Next allocates only the first
 // time it sees a class.
 type Stratifier struct {
 	seed   uint64
 	k      int
-	dense  [denseClasses]*classState
-	sparse map[int]*classState
+	dense  [denseClasses]*Stratum
+	sparse map[int]*Stratum
 }
 
-// classState is the stream position of one class and the permutation of its
-// current block.
-type classState struct {
+// Stratum is the fold stream of one class: its position in the stream and
+// the permutation of its current block.
+type Stratum struct {
+	s    *Stratifier
+	id   uint64 // what the permutations are drawn from, beside the seed
 	rows uint64 // rows of the class seen so far
 	perm []int32
 }
@@ -132,23 +139,35 @@ func NewStratifier(seed uint64, k int) *Stratifier {
 
 // Next returns the fold in [0, k) of the next row, whose class is class (any
 // int: a class code, 0/1 for a binary target).
-func (s *Stratifier) Next(class int) int {
-	st := s.state(class)
-	pos := int(st.rows % uint64(s.k))
+func (s *Stratifier) Next(class int) int { return s.state(class).Next() }
+
+// Stratum returns the fold stream of the class whose label is label: its
+// permutations are drawn from the seed and the XXH64 hash of the label's
+// bytes, so the folds of its rows do not depend on how the caller numbers
+// the classes. Each call returns a new stream; the caller keeps one per
+// class.
+func (s *Stratifier) Stratum(label string) *Stratum {
+	return &Stratum{s: s, id: xxhash.Sum64String(label), perm: make([]int32, s.k)}
+}
+
+// Next returns the fold in [0, k) of the class's next row.
+func (st *Stratum) Next() int {
+	k := uint64(st.s.k)
+	pos := int(st.rows % k)
 	if pos == 0 {
-		s.shuffle(st.perm, class, st.rows/uint64(s.k))
+		st.s.shuffle(st.perm, st.id, st.rows/k)
 	}
 	st.rows++
 	return int(st.perm[pos])
 }
 
-// state returns the state of class, creating it on first sight.
-func (s *Stratifier) state(class int) *classState {
+// state returns the stream of class, creating it on first sight.
+func (s *Stratifier) state(class int) *Stratum {
 	if class >= 0 && class < denseClasses {
 		if st := s.dense[class]; st != nil {
 			return st
 		}
-		st := &classState{perm: make([]int32, s.k)}
+		st := &Stratum{s: s, id: uint64(class), perm: make([]int32, s.k)}
 		s.dense[class] = st
 		return st
 	}
@@ -156,20 +175,21 @@ func (s *Stratifier) state(class int) *classState {
 		return st
 	}
 	if s.sparse == nil {
-		s.sparse = make(map[int]*classState)
+		s.sparse = make(map[int]*Stratum)
 	}
-	st := &classState{perm: make([]int32, s.k)}
+	st := &Stratum{s: s, id: uint64(class), perm: make([]int32, s.k)}
 	s.sparse[class] = st
 	return st
 }
 
-// shuffle fills perm with the permutation of block of class: Fisher-Yates
-// driven by a splitmix64 stream whose start is the XXH64 hash, with the
-// seed, of the class and block number as two little-endian 8-byte words.
-// Indices are drawn without bias by Lemire's multiply-and-reject method.
-func (s *Stratifier) shuffle(perm []int32, class int, block uint64) {
+// shuffle fills perm with the permutation of block of the class whose id
+// is id: Fisher-Yates driven by a splitmix64 stream whose start is the
+// XXH64 hash, with the seed, of the id and block number as two
+// little-endian 8-byte words. Indices are drawn without bias by Lemire's
+// multiply-and-reject method.
+func (s *Stratifier) shuffle(perm []int32, id uint64, block uint64) {
 	var buf [16]byte
-	binary.LittleEndian.PutUint64(buf[:8], uint64(class))
+	binary.LittleEndian.PutUint64(buf[:8], id)
 	binary.LittleEndian.PutUint64(buf[8:], block)
 	var d xxhash.Digest
 	d.ResetWithSeed(s.seed)

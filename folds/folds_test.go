@@ -349,3 +349,54 @@ func BenchmarkStratifierNext(b *testing.B) {
 		sink += s.Next(i & 1)
 	}
 }
+
+// TestStratumFollowsLabel: two passes that number the classes differently
+// (first seen against sorted) give every row the same fold when each class
+// is followed by its label, and each class stays balanced.
+func TestStratumFollowsLabel(t *testing.T) {
+	const k = 5
+	rows := []string{"1", "0", "0", "1", "0", "1", "1", "1", "0", "0", "1", "0", "0"}
+	pass := func(labels []string) []int {
+		s := NewStratifier(9, k)
+		streams := map[string]*Stratum{}
+		var out []int
+		for _, r := range rows {
+			st := streams[r]
+			if st == nil {
+				st = s.Stratum(r)
+				streams[r] = st
+			}
+			out = append(out, st.Next())
+		}
+		return out
+	}
+	a, b := pass([]string{"1", "0"}), pass([]string{"0", "1"})
+	for i := range a {
+		if a[i] != b[i] {
+			t.Fatalf("row %d: fold %d in one pass, %d in the other", i, a[i], b[i])
+		}
+	}
+	counts := map[string][]int{"0": make([]int, k), "1": make([]int, k)}
+	for i, r := range rows {
+		counts[r][a[i]]++
+	}
+	for label, c := range counts {
+		lo, hi := c[0], c[0]
+		for _, v := range c {
+			lo, hi = min(lo, v), max(hi, v)
+		}
+		if hi-lo > 1 {
+			t.Errorf("class %s: fold counts %v differ by more than 1", label, c)
+		}
+	}
+	seq := func(seed uint64) (out [20]int) {
+		st := NewStratifier(seed, k).Stratum("1")
+		for i := range out {
+			out[i] = st.Next()
+		}
+		return out
+	}
+	if seq(9) == seq(10) {
+		t.Errorf("seeds 9 and 10 give one class the same 20 folds")
+	}
+}

@@ -145,14 +145,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 	if training {
 		if sp.Target != "" && (sp.has(MethodTarget) || sp.FoldBy == "stratified") {
 			tcol := schema.Index(sp.Target)
-			tr = &targetReader{file: opt.File, name: sp.Target, col: tcol, labels: map[string]int{},
-				regress: m.Task == colstats.Regression}
-			k := schema.Fields[tcol].Kind
-			tr.numeric = k == table.Int64 || k == table.Float64 || (tr.regress && k == table.String)
-			for i, cl := range m.Classes {
-				tr.labels[cl] = i
-				tr.order = append(tr.order, cl)
-			}
+			tr = newTargetReader(opt.File, sp.Target, tcol, schema.Fields[tcol].Kind, m.Task.String(), m.Classes)
 		}
 		gcol := -1
 		if g := sp.groupColumn(); g != "" {
@@ -220,7 +213,11 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 					cls = tr.cls
 				}
 			}
-			fold, err = fa.assign(b, cls)
+			var labels []string
+			if tr != nil {
+				labels = tr.order
+			}
+			fold, err = fa.assign(b, cls, labels)
 			if err != nil {
 				return err
 			}

@@ -34,16 +34,8 @@ type Targets struct {
 // kind kind; task is "" (detect), binary, multiclass or regression. file
 // names the input in errors.
 func NewTargets(file, name string, col int, kind table.Kind, task string) *Targets {
-	t := &Targets{kind: kind}
-	t.tr = targetReader{file: file, name: name, col: col, labels: map[string]int{},
-		numeric: kind == table.Int64 || kind == table.Float64, fixed: task != ""}
-	if task != "" {
-		t.decided = true
-		t.tr.regress = task == "regression"
-		if t.tr.regress && kind == table.String {
-			t.tr.numeric = true
-		}
-	}
+	t := &Targets{kind: kind, tr: *newTargetReader(file, name, col, kind, task, nil)}
+	t.decided = task != ""
 	return t
 }
 

@@ -134,17 +134,10 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	regress := false
 	decided := false
 	if tcol >= 0 {
-		kind := schema.Fields[tcol].Kind
-		tr = &targetReader{file: opt.File, name: sp.Target, col: tcol, labels: map[string]int{},
-			numeric: kind == table.Int64 || kind == table.Float64, fixed: sp.Task != ""}
+		tr = newTargetReader(opt.File, sp.Target, tcol, schema.Fields[tcol].Kind, sp.Task, nil)
 		if sp.Task != "" {
-			t, _ := colstats.ParseTask(sp.Task)
-			regress = t == colstats.Regression
+			regress = tr.regress
 			decided = true
-			if regress && kind == table.String {
-				// Text columns may still hold numbers (CSV); read them as such.
-				tr.numeric = true
-			}
 		}
 	}
 	fa := newFoldAssigner(&sp, gcol, opt.TotalRows)
@@ -226,7 +219,11 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 				cls = nil
 			}
 		}
-		fold, err := fa.assign(b, cls)
+		var labels []string
+		if tr != nil {
+			labels = tr.order
+		}
+		fold, err := fa.assign(b, cls, labels)
 		if err != nil {
 			return err
 		}

@@ -196,6 +196,30 @@ type targetReader struct {
 	texts classMemo[string]
 }
 
+// newTargetReader returns the reader of the target column name at position
+// col of kind kind: the one constructor of fit, encode and compare, so all
+// of them read the same column the same way. task is "" (decided later
+// from the first batch), binary, multiclass or regression. classes, when
+// known (the encode pass after a fit), are the labels in the fitted order:
+// rows get those class numbers; otherwise classes are numbered in order of
+// appearance.
+func newTargetReader(file, name string, col int, kind table.Kind, task string, classes []string) *targetReader {
+	tr := &targetReader{file: file, name: name, col: col, labels: map[string]int{},
+		numeric: kind == table.Int64 || kind == table.Float64, fixed: task != ""}
+	if task == colstats.Regression.String() {
+		tr.regress = true
+		if kind == table.String {
+			// Text columns may still hold numbers (CSV); read them as such.
+			tr.numeric = true
+		}
+	}
+	for i, cl := range classes {
+		tr.labels[cl] = i
+		tr.order = append(tr.order, cl)
+	}
+	return tr
+}
+
 // classMemo remembers the classes of the first distinct raw values of a
 // target, at most 2*MaxClasses of them: a raw value always gets the same
 // class, as its label is a function of it.
@@ -387,6 +411,7 @@ type foldAssigner struct {
 	groupCol int
 	total    int64 // rows in the table, for ordered blocks
 	strat    *folds.Stratifier
+	strata   []*folds.Stratum // per class number: its label's fold stream
 	scratch  []byte
 	out      []int32
 }
@@ -399,9 +424,12 @@ func newFoldAssigner(sp *Spec, groupCol int, total int64) *foldAssigner {
 	return fa
 }
 
-// assign fills the fold of every row. cls holds the class of each row for
-// stratified folds (-1: unknown target, assigned by row number).
-func (fa *foldAssigner) assign(b *table.Batch, cls []int32) ([]int32, error) {
+// assign fills the fold of every row. cls holds the class number of each
+// row for stratified folds (-1: unknown target, assigned by row number) and
+// labels the label of each class number: a class's fold stream follows its
+// label, not its number, so the fit (classes numbered as met) and the
+// encode pass (classes numbered in sorted order) give a row the same fold.
+func (fa *foldAssigner) assign(b *table.Batch, cls []int32, labels []string) ([]int32, error) {
 	if cap(fa.out) < b.Rows {
 		fa.out = make([]int32, b.Rows)
 	}
@@ -423,7 +451,7 @@ func (fa *foldAssigner) assign(b *table.Batch, cls []int32) ([]int32, error) {
 			}
 			out[i] = int32(folds.Key(fa.spec.Seed, fa.scratch, fa.k))
 		case fa.strat != nil && cls != nil && cls[i] >= 0:
-			out[i] = int32(fa.strat.Next(int(cls[i])))
+			out[i] = int32(fa.stratum(cls[i], labels).Next())
 		case fa.spec.FoldBy == "ordered":
 			if fa.total <= 0 {
 				return nil, errors.New("--fold-by ordered needs the row count")
@@ -434,4 +462,16 @@ func (fa *foldAssigner) assign(b *table.Batch, cls []int32) ([]int32, error) {
 		}
 	}
 	return out, nil
+}
+
+// stratum returns the fold stream of class number k, whose label is
+// labels[k].
+func (fa *foldAssigner) stratum(k int32, labels []string) *folds.Stratum {
+	for int(k) >= len(fa.strata) {
+		fa.strata = append(fa.strata, nil)
+	}
+	if fa.strata[k] == nil {
+		fa.strata[k] = fa.strat.Stratum(labels[k])
+	}
+	return fa.strata[k]
 }

@@ -3,9 +3,10 @@
 // # Reading
 //
 // Open reads the footer of a Parquet file and exposes its flat columns as a
-// table.Schema. Only top-level primitive columns are read: a column nested
-// in a group, or a repeated column (a list or a map), is left out of the
-// schema, so the rest of the file stays usable. The physical and logical
+// table.Schema. Only top-level primitive columns are read: a nested column
+// (a struct, a list or a map) is left out of the schema, so the rest of the
+// file stays usable, and Nested lists it. A file whose columns are all
+// nested gives an error wrapping table.ErrEmpty. The physical and logical
 // types map to kinds as follows:
 //
 //   - BYTE_ARRAY (strings, enums, JSON, raw bytes) and FIXED_LEN_BYTE_ARRAY
@@ -118,7 +119,8 @@ type Reader struct {
 	nextRow  int64 // 1-based number of the next row
 	err      error // sticky error from Next
 	closed   bool
-	curIndex int // column being read, for panic messages
+	curIndex int      // column being read, for panic messages
+	nested   []Nested // top-level columns left out of the table
 }
 
 // openSized opens the file at path and returns its size.
@@ -214,9 +216,22 @@ func isIOError(err error) bool {
 // and would give levels one too high.
 func (r *Reader) readSchema() error {
 	root := r.pf.Root()
-	for _, col := range root.Columns() {
-		if !col.Leaf() || col.Repeated() || col.MaxRepetitionLevel() > 0 {
-			continue // a group, a list or a map
+	tops, err := topColumns(r.pf.Metadata().Schema)
+	if err != nil {
+		return fmt.Errorf("%s: %w", r.path, err)
+	}
+	if len(tops) != len(root.Columns()) {
+		return fmt.Errorf("%s: %w: the schema has %d top-level columns, the file's tree %d", r.path, table.ErrCorrupt, len(tops), len(root.Columns()))
+	}
+	for i, col := range root.Columns() {
+		if tops[i].kind != "" || !col.Leaf() || col.Repeated() || col.MaxRepetitionLevel() > 0 {
+			// A group, a list or a map: never read, but listed.
+			kind := tops[i].kind
+			if kind == "" {
+				kind = "struct"
+			}
+			r.nested = append(r.nested, Nested{Name: col.Name(), Kind: kind, Before: len(r.leaves)})
+			continue
 		}
 		name := col.Name()
 		if d := col.MaxDefinitionLevel(); d > 255 || d < 0 {
@@ -245,14 +260,20 @@ func (r *Reader) readSchema() error {
 		r.full.Fields = append(r.full.Fields, table.Field{Name: l.name, Kind: l.kind, Nullable: l.maxDef > 0})
 	}
 	if len(r.leaves) == 0 {
-		if cols := root.Columns(); len(cols) > 0 {
-			return fmt.Errorf("%s: none of its %d columns is a flat primitive column (first: %q)",
-				r.path, len(cols), cols[0].Name())
+		if len(r.nested) > 0 {
+			return &noFlatError{fmt.Sprintf("%s: no flat columns: its %d columns are all nested (%s); manyfold reads flat columns only",
+				r.path, len(r.nested), describeNested(r.nested))}
 		}
-		return fmt.Errorf("%s: the file has no columns", r.path)
+		return &noFlatError{fmt.Sprintf("%s: the file has no columns", r.path)}
 	}
 	return nil
 }
+
+// Nested returns the file's nested top-level columns (lists, maps and
+// structs), which the table leaves out, in file order. Before is the
+// position in the full schema (before any Select) of the flat column that
+// follows each.
+func (r *Reader) Nested() []Nested { return r.nested }
 
 // isUnsigned reports whether an INT32 column holds unsigned integers.
 func isUnsigned(t parquet.Type) bool {

@@ -22,11 +22,10 @@ import (
 // is the output's, and otherwise decompressed and compressed again with the
 // output's codec, page by page, their values untouched.
 type Source struct {
-	name   string
-	f      *os.File
-	meta   *format.FileMetaData
-	leaves map[string]int // name of a top-level primitive column -> its column index
-	elems  map[string]format.SchemaElement
+	name string
+	f    *os.File
+	meta *format.FileMetaData
+	cols map[string]*topColumn // the top-level columns, flat or nested, by name
 }
 
 // OpenSource opens the Parquet file at path as a Source.
@@ -40,26 +39,16 @@ func OpenSource(path string) (*Source, error) {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w: %v", path, table.ErrCorrupt, err)
 	}
-	s := &Source{name: path, f: f, meta: pf.Metadata(), leaves: map[string]int{}, elems: map[string]format.SchemaElement{}}
-	// A flat schema is the root followed by its leaves. Leaves of nested
-	// groups are not copied (the output is flat).
-	sch := s.meta.Schema
-	if len(sch) == 0 {
+	s := &Source{name: path, f: f, meta: pf.Metadata(), cols: map[string]*topColumn{}}
+	// Every top-level column can be copied, a nested one (a list, a map,
+	// a struct) as all its leaf columns and its schema subtree.
+	tops, err := topColumns(s.meta.Schema)
+	if err != nil {
 		f.Close()
-		return nil, fmt.Errorf("%s: %w: no schema", path, table.ErrCorrupt)
+		return nil, fmt.Errorf("%s: %w", path, err)
 	}
-	col := 0
-	for i := 1; i < len(sch); i++ {
-		e := sch[i]
-		if n, ok := e.NumChildren.Get(); ok && n > 0 {
-			break // a group: only the flat leaves before it are copied
-		}
-		if rep, ok := e.RepetitionType.Get(); ok && rep == format.Repeated {
-			break
-		}
-		s.leaves[e.Name] = col
-		s.elems[e.Name] = e
-		col++
+	for i := range tops {
+		s.cols[tops[i].name] = &tops[i]
 	}
 	return s, nil
 }
@@ -73,15 +62,26 @@ func (s *Source) Name() string { return s.name }
 // NumRows returns the file's row count.
 func (s *Source) NumRows() int64 { return s.meta.NumRows }
 
-// CanCopy reports whether the column of that name can be copied: a
-// top-level primitive column whose chunks are all whole and unencrypted.
-// It reads the page headers of every chunk of the column and checks that
-// they fill the chunk and hold its values.
+// CanCopy reports whether the top-level column of that name can be
+// copied: every chunk of its leaf columns (one for a flat column, one per
+// leaf of a nested one) whole and unencrypted. It reads the page headers of
+// every chunk and checks that they fill the chunk and hold its values.
 func (s *Source) CanCopy(name string) error {
-	col, ok := s.leaves[name]
+	t, ok := s.cols[name]
 	if !ok {
-		return fmt.Errorf("%s: column %q is not a top-level primitive column", s.name, name)
+		return fmt.Errorf("%s: no top-level column %q", s.name, name)
 	}
+	for l := range t.paths {
+		if err := s.canCopyLeaf(name, t.first+l); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// canCopyLeaf checks the chunks of leaf column col, part of the top-level
+// column name.
+func (s *Source) canCopyLeaf(name string, col int) error {
 	for g := range s.meta.RowGroups {
 		rg := &s.meta.RowGroups[g]
 		if col >= len(rg.Columns) {
@@ -171,17 +171,18 @@ func (s *Source) header(pos, end int64, buf *[]byte) (*format.PageHeader, int, e
 	}
 }
 
-// copyChunk writes the chunk of column name in row group g to w at offset
+// copyChunk writes the chunk of leaf column col (at path in the schema, its
+// first element the top-level column's name) in row group g to w at offset
 // off, with codec out, and returns its metadata for the output's footer.
-func (s *Source) copyChunk(w io.Writer, off int64, name string, g int, out codec) (format.ColumnChunk, int64, error) {
-	col := s.leaves[name]
+func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int, out codec) (format.ColumnChunk, int64, error) {
+	name := path[0]
 	cc := s.meta.RowGroups[g].Columns[col]
 	md := cc.MetaData
 	start, size := chunkRange(&md)
 	res := format.ColumnChunk{FileOffset: off, MetaData: md}
 	rmd := &res.MetaData
 	rmd.IndexPageOffset, rmd.BloomFilterOffset, rmd.BloomFilterLength = 0, 0, 0
-	rmd.PathInSchema = []string{name}
+	rmd.PathInSchema = path
 	if md.Codec == out.id {
 		if _, err := io.Copy(w, io.NewSectionReader(s.f, start, size)); err != nil {
 			return res, 0, err

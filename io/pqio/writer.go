@@ -37,6 +37,13 @@ type WriterOptions struct {
 	// Copy marks, by position in the schema, the columns copied from
 	// Source.
 	Copy []bool
+	// Nested lists nested top-level columns of Source (lists, maps,
+	// structs) copied whole into the output, leaf chunks and schema
+	// subtree as they are: each goes before the schema's column at
+	// position Before (len(schema.Fields): after the last). Several with
+	// the same Before keep their order here. Kind is not used. The caller
+	// checks each with Source.CanCopy first.
+	Nested []Nested
 }
 
 // defaultRowGroupRows is the row group size when WriterOptions leaves it 0.
@@ -60,7 +67,9 @@ type writer struct {
 	inRG   int   // rows in the open row group
 	rows   int64 // rows written so far
 	groups []format.RowGroup
-	elems  []format.SchemaElement // the leaves
+	elems  []format.SchemaElement // the schema below the root, in output order
+	plan   []outCol               // the top-level columns in output order
+	leaves int                    // leaf columns in the output
 	// Per column: conversion scratch.
 	ints   [][]int64
 	floats [][]float64
@@ -109,6 +118,7 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, 
 		nulls: make([][]bool, n), text: make([][]byte, n), tends: make([][]int, n),
 	}
 	seen := make(map[string]bool, n)
+	elems := make([][]format.SchemaElement, n) // per field, its schema subtree
 	for i, f := range schema.Fields {
 		if f.Name == "" {
 			return nil, fmt.Errorf("%s: column %d has no name", name, i+1)
@@ -118,11 +128,11 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, 
 		}
 		seen[f.Name] = true
 		if opts.Copy != nil && opts.Copy[i] {
-			e, ok := opts.Source.elems[f.Name]
-			if !ok {
+			t, ok := opts.Source.cols[f.Name]
+			if !ok || t.kind != "" {
 				return nil, fmt.Errorf("%s: column %q is not a flat column of %s", name, f.Name, opts.Source.name)
 			}
-			wr.elems = append(wr.elems, e)
+			elems[i] = t.elems
 			continue
 		}
 		if f.Kind > table.Bool {
@@ -137,13 +147,89 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, 
 			e.ConvertedType = thrift.New(deprecated.UTF8)
 			e.LogicalType = format.LogicalType{Value: &format.StringType{}}
 		}
-		wr.elems = append(wr.elems, e)
+		elems[i] = []format.SchemaElement{e}
 		wr.chunks[i] = newChunk(f, cd)
+	}
+	if err := wr.planColumns(opts, elems, seen); err != nil {
+		return nil, err
 	}
 	if err := wr.emit([]byte("PAR1")); err != nil {
 		return nil, err
 	}
 	return wr, nil
+}
+
+// outCol is one top-level column of the output: field j of the schema, or
+// (field -1) a nested column copied from the Source.
+type outCol struct {
+	field int
+	src   *topColumn // the Source's column copied, nil when encoded here
+}
+
+// planColumns orders the output's top-level columns: the schema's fields,
+// with opts.Nested placed among them; and lays out the output's schema
+// (elems, one subtree per field) in that order.
+func (w *writer) planColumns(opts WriterOptions, elems [][]format.SchemaElement, seen map[string]bool) error {
+	n := len(w.fields)
+	if len(opts.Nested) > 0 && opts.Source == nil {
+		return fmt.Errorf("%s: nested columns to copy without a Source", w.name)
+	}
+	nested := make([][]*topColumn, n+1) // by the field they precede
+	for _, nc := range opts.Nested {
+		t, ok := opts.Source.cols[nc.Name]
+		switch {
+		case !ok || t.kind == "":
+			return fmt.Errorf("%s: %q is not a nested column of %s", w.name, nc.Name, opts.Source.name)
+		case nc.Before < 0 || nc.Before > n:
+			return fmt.Errorf("%s: nested column %q placed at %d of %d columns", w.name, nc.Name, nc.Before, n)
+		case seen[nc.Name]:
+			return fmt.Errorf("%s: column %q appears twice", w.name, nc.Name)
+		}
+		seen[nc.Name] = true
+		nested[nc.Before] = append(nested[nc.Before], t)
+	}
+	add := func(sl outCol, sub []format.SchemaElement) {
+		w.plan = append(w.plan, sl)
+		w.elems = append(w.elems, sub...)
+		if sl.src != nil {
+			w.leaves += len(sl.src.paths)
+		} else {
+			w.leaves++
+		}
+	}
+	for i := 0; i <= n; i++ {
+		for _, t := range nested[i] {
+			add(outCol{field: -1, src: t}, t.elems)
+		}
+		if i < n {
+			sl := outCol{field: i}
+			if w.chunks[i] == nil {
+				sl.src = opts.Source.cols[w.fields[i].Name]
+			}
+			add(sl, elems[i])
+		}
+	}
+	return nil
+}
+
+// copyColumn copies the chunks of the Source's column t in the open row
+// group into the output, and adds their metadata to rg.
+func (w *writer) copyColumn(rg *format.RowGroup, t *topColumn) error {
+	for l, path := range t.paths {
+		cc, _, err := w.src.copyChunk(countWriter{w}, w.off, t.first+l, path, w.rg, w.codec)
+		if err != nil {
+			return fmt.Errorf("%s: copying: %w", w.name, err)
+		}
+		if len(w.src.meta.ColumnOrders) == 0 {
+			// Without the source's column orders its min_value and
+			// max_value have no defined meaning; the output declares
+			// type-defined orders, so they are dropped.
+			cc.MetaData.Statistics.MinValue, cc.MetaData.Statistics.MaxValue = nil, nil
+		}
+		rg.Columns = append(rg.Columns, cc)
+		rg.TotalByteSize += cc.MetaData.TotalUncompressedSize
+	}
+	return nil
 }
 
 // emit writes b to the output.
@@ -375,24 +461,18 @@ func (w *writer) flushRowGroup() error {
 	}); err != nil {
 		return err
 	}
-	rg := format.RowGroup{NumRows: int64(w.inRG), Columns: make([]format.ColumnChunk, n)}
-	for j, ch := range w.chunks {
-		start := w.off
-		if ch == nil {
-			cc, _, err := w.src.copyChunk(countWriter{w}, w.off, w.fields[j].Name, w.rg, w.codec)
-			if err != nil {
-				return fmt.Errorf("%s: copying: %w", w.name, err)
+	rg := format.RowGroup{NumRows: int64(w.inRG), Columns: make([]format.ColumnChunk, 0, w.leaves)}
+	for _, sl := range w.plan {
+		j := sl.field
+		if j < 0 || w.chunks[j] == nil {
+			// A copied column: its leaf chunks, in schema order.
+			if err := w.copyColumn(&rg, sl.src); err != nil {
+				return err
 			}
-			if len(w.src.meta.ColumnOrders) == 0 {
-				// Without the source's column orders its min_value and
-				// max_value have no defined meaning; the output declares
-				// type-defined orders, so they are dropped.
-				cc.MetaData.Statistics.MinValue, cc.MetaData.Statistics.MaxValue = nil, nil
-			}
-			rg.Columns[j] = cc
-			rg.TotalByteSize += cc.MetaData.TotalUncompressedSize
 			continue
 		}
+		ch := w.chunks[j]
+		start := w.off
 		md := format.ColumnMetaData{
 			Type:         physical(ch.kind),
 			PathInSchema: []string{w.fields[j].Name},
@@ -424,7 +504,7 @@ func (w *writer) flushRowGroup() error {
 		}
 		md.TotalCompressedSize = w.off - start
 		md.TotalUncompressedSize = ch.uncomp + dictSizes[j]
-		rg.Columns[j] = format.ColumnChunk{FileOffset: start, MetaData: md}
+		rg.Columns = append(rg.Columns, format.ColumnChunk{FileOffset: start, MetaData: md})
 		rg.TotalByteSize += md.TotalUncompressedSize
 		ch.reset(ch.plainRG)
 	}
@@ -474,7 +554,7 @@ func (w *writer) close() error {
 			return err
 		}
 	}
-	root := format.SchemaElement{Name: "manyfold", NumChildren: thrift.New(int32(len(w.elems)))}
+	root := format.SchemaElement{Name: "manyfold", NumChildren: thrift.New(int32(len(w.plan)))}
 	meta := format.FileMetaData{
 		Version:   1,
 		Schema:    append([]format.SchemaElement{root}, w.elems...),
@@ -485,7 +565,7 @@ func (w *writer) close() error {
 	if meta.RowGroups == nil {
 		meta.RowGroups = []format.RowGroup{}
 	}
-	for range w.elems {
+	for range w.leaves {
 		meta.ColumnOrders = append(meta.ColumnOrders, format.ColumnOrder{Value: &format.TypeDefinedOrder{}})
 	}
 	b, err := thrift.Marshal(&compact, &meta)

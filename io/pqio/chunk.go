@@ -578,6 +578,7 @@ func (c *chunk) flushPage() error {
 		Type:                 format.DataPage,
 		UncompressedPageSize: int32(len(body)),
 		CompressedPageSize:   int32(len(comp)),
+		CRC:                  pageCRC(comp),
 		DataPageHeader: thrift.New(format.DataPageHeader{
 			NumValues:               int32(c.pageN),
 			Encoding:                enc,
@@ -627,6 +628,7 @@ func (c *chunk) finish() ([]byte, int64, error) {
 		Type:                 format.DictionaryPage,
 		UncompressedPageSize: int32(len(c.dictVals)),
 		CompressedPageSize:   int32(len(comp)),
+		CRC:                  pageCRC(comp),
 		DictionaryPageHeader: thrift.New(format.DictionaryPageHeader{
 			NumValues: int32(c.dictN),
 			Encoding:  format.Plain,

@@ -32,6 +32,7 @@ const julianUnixEpoch = 2440588
 type colReader struct {
 	leaf  *leaf
 	pages parquet.Pages
+	guard pageGuard // checks each page before pages reads it
 
 	// The current page.
 	page parquet.Page
@@ -100,6 +101,9 @@ func (c *colReader) closePages() {
 // nextPage reads the next page of the chunk and prepares its values.
 func (c *colReader) nextPage() error {
 	c.releasePage()
+	if err := c.guard.next(); err != nil {
+		return err
+	}
 	p, err := c.pages.ReadPage()
 	if err == io.EOF {
 		return fmt.Errorf("%w: %w", table.ErrCorrupt, errShortChunk)

@@ -912,8 +912,8 @@ func TestCorruptFiles(t *testing.T) {
 
 // TestDictionaryIndexOutOfRange hand-damages a dictionary index so that it
 // points past the dictionary while staying within the page's bit width, so
-// that only the index check can catch it (the writer puts no CRC in page
-// headers).
+// that only the index check can catch it (the page's CRC is made to
+// match).
 func TestDictionaryIndexOutOfRange(t *testing.T) {
 	var cells []cell
 	for _, v := range []string{"a", "b", "c", "a", "b", "c", "a", "b"} {
@@ -933,6 +933,7 @@ func TestDictionaryIndexOutOfRange(t *testing.T) {
 	}
 	bad := slices.Clone(data)
 	bad[at+2] = 0xE4 // the fourth index becomes 3; the dictionary has 3 entries
+	bad = rebuild(t, bad, func(_, _, _ int, h *format.PageHeader, body []byte) []byte { return withCRC(h, body) }, nil)
 	r := openBytes(t, "index.parquet", bad)
 	_, err := r.Next()
 	r.Close()

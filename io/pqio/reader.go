@@ -107,6 +107,8 @@ type Reader struct {
 	path     string
 	file     *os.File // nil when reading from an io.ReaderAt given by a test
 	pf       *parquet.File
+	ra       io.ReaderAt // the file, for the page checks
+	size     int64
 	leaves   []leaf // one per field of the full schema
 	full     table.Schema
 	schema   table.Schema
@@ -185,7 +187,7 @@ func openReaderAt(name string, ra io.ReaderAt, size int64) (r *Reader, err error
 		}
 		return nil, fmt.Errorf("%s: %w: %w", name, table.ErrCorrupt, err)
 	}
-	r = &Reader{path: name, pf: pf}
+	r = &Reader{path: name, pf: pf, ra: ra, size: size}
 	if err := r.readSchema(); err != nil {
 		return nil, err
 	}
@@ -370,8 +372,12 @@ func (r *Reader) Next() (b *table.Batch, err error) {
 			continue
 		}
 		chunks := rg.ColumnChunks()
+		meta := r.pf.Metadata().RowGroups[r.rg-1].Columns
 		for i := range r.cols {
 			c := &r.cols[i]
+			if err := c.guard.start(r.ra, r.size, &meta[c.leaf.index].MetaData, r.rgLeft, c.leaf); err != nil {
+				return nil, r.columnError(c, err)
+			}
 			c.startChunk(chunks[c.leaf.index].Pages())
 		}
 	}

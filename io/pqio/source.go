@@ -1,9 +1,8 @@
 package pqio
 
 import (
-	"bytes"
-	"errors"
 	"fmt"
+	"hash/crc32"
 	"io"
 	"os"
 
@@ -85,7 +84,7 @@ func (s *Source) canCopyLeaf(name string, col int) error {
 	for g := range s.meta.RowGroups {
 		rg := &s.meta.RowGroups[g]
 		if col >= len(rg.Columns) {
-			return fmt.Errorf("%s: row group %d has %d columns", s.name, g, len(rg.Columns))
+			return fmt.Errorf("%s: row group %d has %d columns", s.name, g+1, len(rg.Columns))
 		}
 		cc := &rg.Columns[col]
 		if cc.FilePath != "" || cc.CryptoMetadata.Value != nil || len(cc.EncryptedColumnMetadata) > 0 {
@@ -93,7 +92,7 @@ func (s *Source) canCopyLeaf(name string, col int) error {
 		}
 		start, size := chunkRange(&cc.MetaData)
 		var values int64
-		err := s.walk(start, size, func(h *format.PageHeader, hlen int, pos int64) error {
+		err := s.walk(start, size, cc.MetaData.Codec, func(h *format.PageHeader, hlen int, pos int64) error {
 			if dp, ok := h.DataPageHeader.Get(); ok {
 				values += int64(dp.NumValues)
 			} else if dp, ok := h.DataPageHeaderV2.Get(); ok {
@@ -102,10 +101,10 @@ func (s *Source) canCopyLeaf(name string, col int) error {
 			return nil
 		})
 		if err != nil {
-			return fmt.Errorf("%s: column %q, row group %d: %w", s.name, name, g, err)
+			return fmt.Errorf("%s: column %q, row group %d: %w", s.name, name, g+1, err)
 		}
 		if values != cc.MetaData.NumValues {
-			return fmt.Errorf("%s: column %q, row group %d: pages hold %d values, the metadata says %d", s.name, name, g, values, cc.MetaData.NumValues)
+			return fmt.Errorf("%s: column %q, row group %d: pages hold %d values, the metadata says %d", s.name, name, g+1, values, cc.MetaData.NumValues)
 		}
 	}
 	return nil
@@ -125,50 +124,29 @@ func chunkRange(md *format.ColumnMetaData) (int64, int64) {
 const maxHeader = 16 << 20
 
 // walk calls f with each page header of the byte range [start,
-// start+size), its encoded length and position, and checks that the pages
-// fill the range exactly.
-func (s *Source) walk(start, size int64, f func(h *format.PageHeader, hlen int, pos int64) error) error {
+// start+size) of a chunk of codec cid, its encoded length and position,
+// and checks that the pages fill the range exactly and that their sizes
+// are within the limits of checkSizes. Errors name the page (1-based).
+func (s *Source) walk(start, size int64, cid format.CompressionCodec, f func(h *format.PageHeader, hlen int, pos int64) error) error {
 	end := start + size
-	buf := make([]byte, 256)
-	for pos := start; pos < end; {
-		h, hlen, err := s.header(pos, end, &buf)
+	if start < 4 || size < 0 || end < start {
+		return fmt.Errorf("%w: column chunk of %d bytes at byte %d", table.ErrCorrupt, size, start)
+	}
+	var buf []byte
+	for pos, page := start, 1; pos < end; page++ {
+		h, hlen, err := readPageHeader(s.f, pos, end, &buf)
+		if err == nil {
+			err = checkSizes(h, cid, end-pos-int64(hlen))
+		}
+		if err == nil {
+			err = f(h, hlen, pos)
+		}
 		if err != nil {
-			return err
-		}
-		if h.CompressedPageSize < 0 {
-			return fmt.Errorf("page at byte %d: negative size", pos)
-		}
-		if err := f(h, hlen, pos); err != nil {
-			return err
+			return fmt.Errorf("page %d (byte %d): %w", page, pos, err)
 		}
 		pos += int64(hlen) + int64(h.CompressedPageSize)
-		if pos > end {
-			return fmt.Errorf("page at byte %d runs past the chunk's end", pos)
-		}
 	}
 	return nil
-}
-
-// header decodes the page header at pos (before end), growing *buf as
-// needed.
-func (s *Source) header(pos, end int64, buf *[]byte) (*format.PageHeader, int, error) {
-	for {
-		n := min(int64(len(*buf)), end-pos)
-		b := (*buf)[:n]
-		if _, err := s.f.ReadAt(b, pos); err != nil && !errors.Is(err, io.EOF) {
-			return nil, 0, err
-		}
-		r := bytes.NewReader(b)
-		h := new(format.PageHeader)
-		err := thrift.NewDecoder(compact.NewReader(r)).Decode(h)
-		if err == nil {
-			return h, int(n) - r.Len(), nil
-		}
-		if n == end-pos || len(*buf) >= maxHeader {
-			return nil, 0, fmt.Errorf("page header at byte %d: %w: %v", pos, table.ErrCorrupt, err)
-		}
-		*buf = make([]byte, 4*len(*buf))
-	}
 }
 
 // copyChunk writes the chunk of leaf column col (at path in the schema, its
@@ -184,8 +162,8 @@ func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int
 	rmd.IndexPageOffset, rmd.BloomFilterOffset, rmd.BloomFilterLength = 0, 0, 0
 	rmd.PathInSchema = path
 	if md.Codec == out.id {
-		if _, err := io.Copy(w, io.NewSectionReader(s.f, start, size)); err != nil {
-			return res, 0, err
+		if err := s.copyPages(w, start, size, md.Codec); err != nil {
+			return res, 0, fmt.Errorf("%s: column %q, row group %d: %w", s.name, name, g+1, err)
 		}
 		shift := off - start
 		rmd.DataPageOffset += shift
@@ -203,9 +181,12 @@ func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int
 	written := int64(0)
 	var uncomp int64
 	dataOff, dictOff := int64(-1), int64(0)
-	err := s.walk(start, size, func(h *format.PageHeader, hlen int, pos int64) error {
+	err := s.walk(start, size, md.Codec, func(h *format.PageHeader, hlen int, pos int64) error {
 		raw = grow(raw, int(h.CompressedPageSize))
 		if _, err := s.f.ReadAt(raw, pos+int64(hlen)); err != nil {
+			return err
+		}
+		if err := checkCRC(h, raw); err != nil {
 			return err
 		}
 		keep := 0 // leading bytes that are not compressed (v2 levels)
@@ -213,7 +194,7 @@ func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int
 		if v2, ok := h.DataPageHeaderV2.Get(); ok {
 			keep = int(v2.DefinitionLevelsByteLength + v2.RepetitionLevelsByteLength)
 			if keep > len(raw) || keep < 0 {
-				return fmt.Errorf("page at byte %d: %w: level lengths past the page", pos, table.ErrCorrupt)
+				return fmt.Errorf("%w: level lengths past the page", table.ErrCorrupt)
 			}
 			if c, ok := v2.IsCompressed.Get(); ok && !c {
 				compressed = false
@@ -222,10 +203,10 @@ func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int
 		var err error
 		body := raw[keep:]
 		if compressed && md.Codec != format.Uncompressed {
-			if plain, err = dec.Decode(plain[:0], body); err != nil {
-				return fmt.Errorf("page at byte %d: %w: %v", pos, table.ErrCorrupt, err)
+			if body, err = decompress(md.Codec, plain, body, int(h.UncompressedPageSize)); err != nil {
+				return err
 			}
-			body = plain
+			plain = body
 		}
 		if compressed {
 			if comp, err = out.enc(comp[:0], body); err != nil {
@@ -234,7 +215,7 @@ func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int
 			body = comp
 		}
 		nh := *h
-		nh.CRC = 0
+		nh.CRC = int32(crc32.Update(crc32.ChecksumIEEE(raw[:keep]), crc32.IEEETable, body))
 		nh.CompressedPageSize = int32(keep + len(body))
 		hb, err := thrift.Marshal(&compact, &nh)
 		if err != nil {
@@ -256,10 +237,35 @@ func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int
 		return nil
 	})
 	if err != nil {
-		return res, 0, fmt.Errorf("%s: column %q, row group %d: %w", s.name, name, g, err)
+		return res, 0, fmt.Errorf("%s: column %q, row group %d: %w", s.name, name, g+1, err)
 	}
 	rmd.Codec = out.id
 	rmd.TotalCompressedSize, rmd.TotalUncompressedSize = written, uncomp
 	rmd.DataPageOffset, rmd.DictionaryPageOffset = dataOff, dictOff
 	return res, written, nil
+}
+
+// copyPages copies the pages of the byte range [start, start+size) to w as
+// they are, after checking each page's CRC.
+func (s *Source) copyPages(w io.Writer, start, size int64, cid format.CompressionCodec) error {
+	var raw []byte
+	hdr := make([]byte, 0, 256)
+	return s.walk(start, size, cid, func(h *format.PageHeader, hlen int, pos int64) error {
+		hdr = grow(hdr, hlen)
+		raw = grow(raw, int(h.CompressedPageSize))
+		if _, err := s.f.ReadAt(hdr, pos); err != nil {
+			return err
+		}
+		if _, err := s.f.ReadAt(raw, pos+int64(hlen)); err != nil {
+			return err
+		}
+		if err := checkCRC(h, raw); err != nil {
+			return err
+		}
+		if _, err := w.Write(hdr); err != nil {
+			return err
+		}
+		_, err := w.Write(raw)
+		return err
+	})
 }

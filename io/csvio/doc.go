@@ -7,6 +7,11 @@
 //
 //   - Records end at LF or CRLF. A CR that is not followed by LF is data,
 //     except a CR that is the very last byte of the input, which is dropped.
+//     Lines that end in CR alone (old Mac text files) are not read: such a
+//     file reads as one long header, and a header field holding a CR that
+//     no LF follows is reported as such.
+//   - A NUL byte anywhere is an error naming its line and column: CSV is
+//     text, and a NUL is the sign of a binary file.
 //   - A UTF-8 byte order mark at the start of the input is dropped.
 //   - Input compressed with gzip or zstd is recognised by its magic bytes and
 //     decompressed on the fly.
@@ -29,9 +34,13 @@
 //     set, in which case the columns are named col1, col2, ... Header names
 //     must be non-empty and distinct. Every record must have as many fields
 //     as the header.
-//   - A record may span at most 512 MiB (about: the check is made when
-//     the read buffer is refilled), so that a stray quote cannot make the
-//     reader hold the rest of a large file.
+//   - A field may span at most Options.MaxFieldBytes bytes as written,
+//     quotes included (DefaultMaxFieldBytes, 16 MiB, unless set): a longer
+//     one is an error naming its line and column, found as soon as the
+//     bytes read pass the limit, so that memory stays bounded. A record may
+//     span at most 512 MiB, or the field limit if that is set higher
+//     (about: the check is made when the read buffer is refilled), so that
+//     a stray quote cannot make the reader hold the rest of a large file.
 //   - An input that holds no bytes, or only a byte order mark and white
 //     space, is an error wrapping table.ErrEmpty. A header with no rows is a
 //     valid table of zero rows.
@@ -45,7 +54,10 @@
 //     plus sign and no leading zero ("0" itself is fine);
 //   - float: every value is a decimal number (optional sign, digits with an
 //     optional point, optional exponent) or NaN, Inf, +Inf, -Inf, again with
-//     no leading zero before another digit;
+//     no leading zero before another digit, and no value is an integer
+//     (digits with an optional sign) beyond the range of int64: as floats
+//     such integers would lose digits and distinct ids would collapse, so
+//     their column is text, each value kept as written;
 //   - bool: every value is true or false (also TRUE, True, FALSE, False);
 //   - text otherwise, and when the sample has no non-null value.
 //

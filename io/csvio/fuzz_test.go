@@ -5,6 +5,7 @@ import (
 	"encoding/csv"
 	"errors"
 	"io"
+	"math"
 	"strings"
 	"testing"
 
@@ -19,8 +20,13 @@ import (
 //   - encoding/csv keeps a byte order mark; it is given the input without;
 //   - encoding/csv skips blank lines always; in a one-column table manyfold
 //     reads them as null rows, which are dropped before comparing;
-//   - manyfold rejects empty input (only white space) and empty or repeated
-//     header names, which encoding/csv accepts.
+//   - manyfold rejects empty input (only white space), empty or repeated
+//     header names and a header holding a CR that no LF follows (lines
+//     ending in CR alone), which encoding/csv accepts;
+//   - manyfold rejects every input that holds a NUL byte;
+//   - a value past the inference sample that does not read as the kind
+//     inferred from the sample is an error; the input is then read again
+//     with every row in the sample, which must give no such error.
 //
 // Otherwise both must accept or both reject the input, and accepted input
 // must give the same records, a null being an empty value.
@@ -44,6 +50,10 @@ func FuzzReader(f *testing.F) {
 		" \n",
 		"a,b\nx\ry,z\r\r\n",
 		"\"a\"\r\n\"b\"\r",
+		"a\n0\n1\nA\n",          // a bad value past the sample, in the batch of good rows
+		"a,b,c\r1,x,y\r2,x,y\r", // CR-only line ends
+		"a,b\n1,x\x00y\n",       // a NUL byte
+		"a\n18446744073709551615\n18446744073709551614\n",
 	}
 	for i, s := range seeds {
 		f.Add([]byte(s), uint8(i))
@@ -76,6 +86,19 @@ func FuzzReader(f *testing.F) {
 		}
 
 		got, gerr := fuzzRead(data, opts)
+		if bytes.IndexByte(data, 0) >= 0 {
+			if gerr == nil {
+				t.Fatalf("input with a NUL byte accepted as %q", got)
+			}
+			return
+		}
+		if errors.Is(gerr, errKindValue) {
+			all := opts
+			all.SampleRows = math.MaxInt32
+			if got, gerr = fuzzRead(data, all); errors.Is(gerr, errKindValue) {
+				t.Fatalf("a value does not read as the kind inferred from every row: %v", gerr)
+			}
+		}
 		if werr != nil {
 			if gerr == nil {
 				t.Fatalf("encoding/csv rejects the input (%v) but manyfold accepts it: %q", werr, got)
@@ -88,7 +111,7 @@ func FuzzReader(f *testing.F) {
 				if hasNonSpace(bytes.TrimPrefix(data, bom)) {
 					t.Fatalf("ErrEmpty for input that is not blank")
 				}
-			case !noHeader && (errors.Is(gerr, errEmptyName) || errors.Is(gerr, errDupName)):
+			case !noHeader && (errors.Is(gerr, errEmptyName) || errors.Is(gerr, errDupName) || errors.Is(gerr, errBareCR)):
 			default:
 				t.Fatalf("manyfold rejects input that encoding/csv accepts as %q: %v", want, gerr)
 			}

@@ -20,7 +20,7 @@ func inferKind(c *colBuf, rows int) table.Kind {
 		if isInt && !intText(v) {
 			isInt = false
 		}
-		if isFloat && !floatText(v) {
+		if isFloat && (!floatText(v) || bigInt(v)) {
 			isFloat = false
 		}
 		if isBool && !boolText(v) {
@@ -61,6 +61,29 @@ func intText(v []byte) bool {
 		return n <= 1<<63
 	}
 	return n <= 1<<63-1
+}
+
+// bigInt reports whether v is a decimal integer (an optional sign, then
+// digits) outside the range of int64: as a float it would lose digits and
+// distinct values would collapse, so its column is text.
+func bigInt(v []byte) bool {
+	if len(v) < 19 {
+		return false // 18 digits always fit
+	}
+	d := v
+	if d[0] == '-' || d[0] == '+' {
+		d = d[1:]
+	}
+	for _, c := range d {
+		if c < '0' || c > '9' {
+			return false
+		}
+	}
+	if len(d) == 0 {
+		return false
+	}
+	_, err := strconv.ParseInt(string(v), 10, 64)
+	return err != nil
 }
 
 // floatText reports whether v is a decimal number with an optional sign,

@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"sort"
 	"strconv"
@@ -31,7 +32,16 @@ type Options struct {
 	SampleRows int
 	// BatchRows is the number of rows per batch; values below 1 mean 65536.
 	BatchRows int
+	// MaxFieldBytes bounds the bytes one field may span as written in the
+	// file, quotes included; a longer field is an error naming its line
+	// and column, found before more of it is read. Values below 1 mean
+	// DefaultMaxFieldBytes.
+	MaxFieldBytes int
 }
+
+// DefaultMaxFieldBytes is the longest field a CSV input may hold unless
+// Options.MaxFieldBytes says otherwise: 16 MiB.
+const DefaultMaxFieldBytes = 16 << 20
 
 const (
 	defaultSampleRows = 10000
@@ -45,6 +55,9 @@ const (
 // maxRecordBytes bounds the bytes one record may span, so that a stray
 // quote cannot make the reader hold the rest of a large file. Tests lower it.
 var maxRecordBytes = 512 << 20
+
+// noNul is Reader.nul when no NUL byte is buffered.
+const noNul = math.MaxInt
 
 // bufSize is the initial size of the read buffer; tests shrink it to
 // exercise records that straddle refills.
@@ -61,6 +74,7 @@ var (
 var (
 	errEmptyName = errors.New("empty column name")
 	errDupName   = errors.New("duplicate column name")
+	errBareCR    = errors.New("bare carriage return in the header")
 )
 
 // nameError reports a bad header name; it matches its kind with errors.Is.
@@ -149,6 +163,12 @@ type Reader struct {
 	mark int // when >= 0, bytes from mark on are kept (type sampling)
 	eof  bool
 	line int64 // line on which the record at pos starts
+	// nul is the position in buf of the first NUL byte read, or noNul.
+	// Every byte before pos has been parsed, so nul >= pos.
+	nul int
+
+	maxField  int // Options.MaxFieldBytes
+	maxRecord int // the most bytes a record may span
 
 	// Set by parse on stRow / stMore.
 	next       int   // start of the following record
@@ -200,7 +220,16 @@ func NewReader(r io.Reader, name string, opts Options) (*Reader, error) {
 		openQuote: -1,
 		line:      1,
 		batchRows: opts.BatchRows,
+		nul:       noNul,
+		maxField:  opts.MaxFieldBytes,
+		maxRecord: maxRecordBytes,
 	}
+	if cr.maxField < 1 {
+		cr.maxField = DefaultMaxFieldBytes
+	}
+	// A larger field limit than the record limit asked for explicitly
+	// raises the record limit with it.
+	cr.maxRecord = max(cr.maxRecord, opts.MaxFieldBytes)
 	if cr.batchRows < 1 {
 		cr.batchRows = defaultBatchRows
 	}
@@ -294,6 +323,11 @@ func (r *Reader) start(opts Options) error {
 	}
 	r.headerLine = r.recLine
 	n := r.nf
+	if !r.noHeader {
+		if err := r.checkBareCR(n); err != nil {
+			return err
+		}
+	}
 	r.fields = make([]table.Field, n)
 	for i := range r.fields {
 		r.fields[i].Nullable = true
@@ -351,6 +385,35 @@ func hasNonSpace(b []byte) bool {
 		}
 	}
 	return false
+}
+
+// checkBareCR rejects a header field holding a CR that no LF follows: the
+// sign of a file whose lines end in CR alone (old Mac text files), read as
+// one long header.
+func (r *Reader) checkBareCR(n int) error {
+	for i := 0; i < n; i++ {
+		v := r.hdr.value(i)
+		for j := bytes.IndexByte(v, '\r'); j >= 0; j = indexFrom(v, j+1, '\r') {
+			if j+1 == len(v) || v[j+1] != '\n' {
+				return &table.DataError{File: r.name, Line: r.headerLine, Err: r.bareCRErr(i)}
+			}
+		}
+	}
+	return nil
+}
+
+// bareCRErr is the error of a bare CR in header field fi.
+func (r *Reader) bareCRErr(fi int) error {
+	return &nameError{fmt.Sprintf("header field %d holds a carriage return (CR) that no line feed (LF) follows: "+
+		"the lines seem to end in CR alone (old Mac text), which is not read; convert the line ends to LF or CRLF", fi+1), errBareCR}
+}
+
+// indexFrom returns the position of the first c in v at or after i, or -1.
+func indexFrom(v []byte, i int, c byte) int {
+	if j := bytes.IndexByte(v[i:], c); j >= 0 {
+		return i + j
+	}
+	return -1
 }
 
 // checkNames rejects empty and repeated header names.
@@ -532,7 +595,7 @@ func (r *Reader) Next() (*table.Batch, error) {
 	b.FirstRow = r.rowsDone + 1
 	r.rowsDone += int64(rows)
 	r.bytesDone += int64(r.batchBytes)
-	b.Lines = r.lines
+	b.Lines = r.lines[:rows]
 	r.bcols = r.bcols[:0]
 	for i := range r.cols {
 		c := &r.cols[i]
@@ -568,13 +631,25 @@ func (r *Reader) check(rows int) (int, error) {
 			v := c.value(i)
 			if err := checkValue(kind, v); err != nil {
 				bad = i
-				first = &table.DataError{File: r.name, Line: r.lines[i], Row: r.rowsDone + int64(i) + 1, Column: r.schema.Fields[k].Name, Err: err}
+				first = &table.DataError{File: r.name, Line: r.lines[i], Row: r.rowsDone + int64(i) + 1, Column: r.schema.Fields[k].Name, Err: &kindError{err}}
 				break
 			}
 		}
 	}
 	return bad, first
 }
+
+// errKindValue is matched (errors.Is) by the error of a value that does
+// not read as its column's kind.
+var errKindValue = errors.New("value does not read as its column's kind")
+
+// kindError is the error of a value that does not read as its column's
+// kind; it reads as the parser's error.
+type kindError struct{ err error }
+
+func (e *kindError) Error() string        { return e.err.Error() }
+func (e *kindError) Unwrap() error        { return e.err }
+func (e *kindError) Is(target error) bool { return target == errKindValue }
 
 // checkValue reports whether v reads as a value of kind: the quick forms
 // of inference first, then the parsers the writers use.
@@ -647,13 +722,13 @@ func (r *Reader) rollback(rows int) {
 
 // more makes room and reads more input after parse returned stMore.
 func (r *Reader) more() error {
-	if r.end-r.pos > maxRecordBytes {
+	if r.end-r.pos > r.maxRecord {
 		if r.openQuote >= 0 {
 			return r.dataErr(false, r.openField, r.pos, r.line, r.openQuote,
-				"quote opened here is not closed within "+sizeText(maxRecordBytes), false)
+				"quote opened here is not closed within "+sizeText(r.maxRecord), false)
 		}
 		return &table.DataError{File: r.name, Line: r.line,
-			Err: errors.New("record longer than " + sizeText(maxRecordBytes))}
+			Err: errors.New("record longer than " + sizeText(r.maxRecord))}
 	}
 	return r.refill()
 }
@@ -688,12 +763,27 @@ func (r *Reader) refill() error {
 		if r.openQuote >= 0 {
 			r.openQuote -= keep
 		}
+		if r.nul != noNul {
+			r.nul -= keep
+		}
 	}
 	if r.end == len(r.buf) {
 		nb := make([]byte, 2*len(r.buf))
 		copy(nb, r.buf[:r.end])
 		r.buf = nb
 	}
+	from := r.end
+	err := r.fill()
+	if r.nul == noNul {
+		if i := bytes.IndexByte(r.buf[from:r.end], 0); i >= 0 {
+			r.nul = from + i
+		}
+	}
+	return err
+}
+
+// fill reads until the buffer is full or the input ends.
+func (r *Reader) fill() error {
 	empty := 0
 	for r.end < len(r.buf) {
 		n, err := r.src.Read(r.buf[r.end:])
@@ -800,6 +890,11 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 			if j >= 0 {
 				fe = p + j
 			}
+			if r.nul < fe || fe-p > r.maxField {
+				if err := r.fieldErr(hdr, fi, rs, line, p, fe, j < 0); err != nil {
+					return stErr, err
+				}
+			}
 			if qp < fe {
 				return stErr, r.dataErr(hdr, fi, rs, line, qp,
 					"\" inside an unquoted field (quote the whole field and double the \")", true)
@@ -841,6 +936,11 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 		for {
 			i := bytes.IndexByte(buf[s:], '"')
 			if i < 0 {
+				if r.nul < len(buf) || len(buf)-q > r.maxField {
+					if err := r.fieldErr(hdr, fi, rs, line, q, len(buf), false); err != nil {
+						return stErr, err
+					}
+				}
 				if !r.eof {
 					r.openQuote, r.openField = q, fi
 					return stMore, nil
@@ -848,6 +948,11 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 				return stErr, r.dataErr(hdr, fi, rs, line, q, "quote opened here is never closed", false)
 			}
 			e := s + i
+			if r.nul < e || e+1-q > r.maxField {
+				if err := r.fieldErr(hdr, fi, rs, line, q, e+1, false); err != nil {
+					return stErr, err
+				}
+			}
 			if c != nil {
 				c.data = append(c.data, buf[s:e]...)
 			}
@@ -900,6 +1005,10 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 					}
 					return r.endRecord(hdr, fi, line, extra, n+1)
 				}
+				if hdr && !r.noHeader {
+					at := line + int64(bytes.Count(buf[rs:n], nlSep))
+					return stErr, &table.DataError{File: r.name, Line: at, Err: r.bareCRErr(fi)}
+				}
 			}
 			return stErr, r.dataErr(hdr, fi, rs, line, n,
 				"unexpected "+showByte(b)+" after a closing quote (a quoted field must end at a delimiter or line end)", true)
@@ -913,6 +1022,25 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 		}
 		qp = p + indexOrLen(buf[p:le], '"')
 	}
+}
+
+// fieldErr returns the error of a field that starts at fs and spans the
+// bytes up to fe (or more) when it holds a NUL byte or is longer than the
+// limit, and nil otherwise. crlf says that a CR ending the field is a line
+// end's and does not count.
+func (r *Reader) fieldErr(hdr bool, fi, rs int, line int64, fs, fe int, crlf bool) error {
+	if r.nul < fe {
+		return r.dataErr(hdr, fi, rs, line, r.nul, "NUL byte (0x00): the file looks binary, not CSV text", true)
+	}
+	n := fe - fs
+	if crlf && n > 0 && r.buf[fe-1] == '\r' {
+		n--
+	}
+	if n > r.maxField {
+		return r.dataErr(hdr, fi, rs, line, fs,
+			"field longer than "+sizeText(r.maxField)+" (the limit; raise it with --max-field-bytes)", true)
+	}
+	return nil
 }
 
 func indexOrLen(b []byte, c byte) int {

@@ -255,3 +255,174 @@ func allocDuring(f func()) uint64 {
 	runtime.ReadMemStats(&b)
 	return b.TotalAlloc - a.TotalAlloc
 }
+
+// hostileCase is a file built from a small valid one by patching page
+// headers, page bodies or the footer, and the text its error must hold.
+type hostileCase struct {
+	name string
+	comp string // the valid file's compression
+	edit pageEdit
+	md   func(*format.FileMetaData)
+	want string
+	// copyWant, when set, is in the error of copying the file's chunks
+	// into a zstd file (copies without recompressing decode nothing, and
+	// may succeed).
+	copyWant string
+}
+
+// onPage applies f to the first page of type typ of column c in row group
+// 0, and fixes the page's CRC.
+func onPage(c int, typ format.PageType, f func(h *format.PageHeader, body []byte) []byte) pageEdit {
+	done := false
+	return func(g, cc, pp int, h *format.PageHeader, body []byte) []byte {
+		if g == 0 && cc == c && h.Type == typ && !done {
+			done = true
+			return withCRC(h, f(h, body))
+		}
+		return body
+	}
+}
+
+// hugeRun is the header of an RLE run of 2^31-1 values, then its value.
+func hugeRun(value ...byte) []byte {
+	return append(binary.AppendUvarint(nil, (1<<31-1)<<1), value...)
+}
+
+var hostileCases = []hostileCase{
+	{name: "definition level run of 2^31-1", comp: "none",
+		edit: onPage(1, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			l := binary.LittleEndian.Uint32(body)
+			run := hugeRun(1)
+			out := binary.LittleEndian.AppendUint32(nil, uint32(len(run)))
+			return append(append(out, run...), body[4+l:]...)
+		}),
+		want: `column "i": row group 1: page 2: definition levels: file is corrupt or truncated: runs declare more than the page's`},
+	{name: "dictionary index run of 2^31-1", comp: "none",
+		edit: onPage(0, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			return append([]byte{body[0]}, hugeRun(0)...)
+		}),
+		want: `column "s": row group 1: page 2: dictionary indices: file is corrupt or truncated: runs declare more`},
+	{name: "data page of 2^31-1 values", comp: "snappy",
+		edit: onPage(0, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			h.DataPageHeader.V.NumValues = 1<<31 - 1
+			return body
+		}),
+		md: func(m *format.FileMetaData) {
+			m.RowGroups[0].NumRows, m.NumRows = 1<<31-1, 1<<31-1+m.RowGroups[1].NumRows
+		},
+		want:     `column "s": row group 1: page 2: file is corrupt or truncated: page declares 2147483647 values in`,
+		copyWant: `column "s", row group 1: file is corrupt or truncated: pages hold 2147485083 values, the metadata says 1500`},
+	{name: "data page of more values than its row group", comp: "snappy",
+		edit: onPage(2, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			h.DataPageHeader.V.NumValues = 1 << 20
+			return body
+		}),
+		want:     `column "b": row group 1: page 1: file is corrupt or truncated: page declares 1048576 values in a row group of 1500 rows`,
+		copyWant: `column "b", row group 1: file is corrupt or truncated: pages hold 1048576 values`},
+	{name: "page of 2 GiB uncompressed", comp: "snappy",
+		edit: onPage(1, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			h.UncompressedPageSize = 1<<31 - 1
+			return body
+		}),
+		want:     `column "i": row group 1: page 2: file is corrupt or truncated: page declares 2147483647 bytes uncompressed`,
+		copyWant: `column "i", row group 1: page 2 (byte`},
+	{name: "Snappy block claiming 4 GiB", comp: "snappy",
+		edit: onPage(1, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			return append(binary.AppendUvarint(nil, 1<<32-1), body[1:]...)
+		}),
+		want:     `column "i": row group 1: page 2: file is corrupt or truncated: page decompresses to 4294967295 bytes`,
+		copyWant: `page decompresses to 4294967295 bytes`},
+	{name: "zstd frame claiming 1 GiB", comp: "zstd",
+		edit: onPage(1, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			// A single-segment frame header with an 8-byte content size.
+			frame := []byte{0x28, 0xb5, 0x2f, 0xfd, 0xe0}
+			return append(binary.LittleEndian.AppendUint64(frame, 1<<30), 1, 0, 0)
+		}),
+		want: `column "i": row group 1: page 2: file is corrupt or truncated: decompressing a page`},
+	{name: "dictionary page of 2^31-1 values", comp: "snappy",
+		edit: onPage(0, format.DictionaryPage, func(h *format.PageHeader, body []byte) []byte {
+			h.DictionaryPageHeader.V.NumValues = 1<<31 - 1
+			return body
+		}),
+		want: `column "s": row group 1: page 1: file is corrupt or truncated: dictionary page declares 2147483647 values`},
+	{name: "page past its chunk", comp: "snappy",
+		edit: onPage(1, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			h.CompressedPageSize = 1 << 30
+			return body
+		}),
+		want:     `column "b": row group 1: page 1: file is corrupt or truncated: page of 223 bytes runs past its column chunk`,
+		copyWant: `column "b", row group 1: page 1 (byte`},
+}
+
+// TestHostilePages reads and copies files whose page headers or bodies
+// claim far more values or bytes than they hold, and checks that each is
+// refused as corrupt, naming the column, row group and page, having
+// allocated a few megabytes at most.
+func TestHostilePages(t *testing.T) {
+	const limit = 32 << 20
+	for _, tc := range hostileCases {
+		t.Run(tc.name, func(t *testing.T) {
+			data := crcFile(t, tc.comp)
+			var bad []byte
+			if tc.name == "page past its chunk" {
+				// The edit cannot go through rebuild, which follows the
+				// sizes: patch the header's bytes in place instead.
+				bad = patchFirstPageSize(t, data, 2)
+			} else {
+				bad = rebuild(t, data, tc.edit, tc.md)
+			}
+			var err error
+			alloc := allocDuring(func() {
+				r := openBytes(t, "bad.parquet", bad)
+				defer r.Close()
+				for err == nil {
+					_, err = r.Next()
+				}
+			})
+			if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), tc.want) {
+				t.Fatalf("Next: %v\nwant ErrCorrupt with %q", err, tc.want)
+			}
+			if alloc > limit {
+				t.Fatalf("reading allocated %d bytes", alloc)
+			}
+			path := filepath.Join(t.TempDir(), "bad.parquet")
+			if err := os.WriteFile(path, bad, 0o644); err != nil {
+				t.Fatal(err)
+			}
+			alloc = allocDuring(func() { err = copyAll(t, path, "zstd") })
+			if alloc > limit {
+				t.Fatalf("copying allocated %d bytes", alloc)
+			}
+			if tc.copyWant != "" && (!errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), tc.copyWant)) {
+				t.Fatalf("copy: %v\nwant ErrCorrupt with %q", err, tc.copyWant)
+			}
+		})
+	}
+}
+
+// patchFirstPageSize makes the first page of column c in row group 0 claim
+// a byte more than its chunk holds, in place.
+func patchFirstPageSize(t testing.TB, data []byte, c int) []byte {
+	t.Helper()
+	n := int(binary.LittleEndian.Uint32(data[len(data)-8:]))
+	var meta format.FileMetaData
+	if err := thrift.Unmarshal(&compact, data[len(data)-8-n:len(data)-8], &meta); err != nil {
+		t.Fatal(err)
+	}
+	start, size0 := chunkRange(&meta.RowGroups[0].Columns[c].MetaData)
+	h, hlen, err := readPageHeader(bytes.NewReader(data), start, start+size0, new([]byte))
+	if err != nil {
+		t.Fatal(err)
+	}
+	h.CompressedPageSize = int32(size0) + 1
+	hb, err := thrift.Marshal(&compact, h)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(hb) != hlen {
+		t.Fatalf("header grows from %d to %d bytes", hlen, len(hb))
+	}
+	out := bytes.Clone(data)
+	copy(out[start:], hb)
+	return out
+}

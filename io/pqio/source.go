@@ -104,7 +104,7 @@ func (s *Source) canCopyLeaf(name string, col int) error {
 			return fmt.Errorf("%s: column %q, row group %d: %w", s.name, name, g+1, err)
 		}
 		if values != cc.MetaData.NumValues {
-			return fmt.Errorf("%s: column %q, row group %d: pages hold %d values, the metadata says %d", s.name, name, g+1, values, cc.MetaData.NumValues)
+			return fmt.Errorf("%s: column %q, row group %d: %w: pages hold %d values, the metadata says %d", s.name, name, g+1, table.ErrCorrupt, values, cc.MetaData.NumValues)
 		}
 	}
 	return nil

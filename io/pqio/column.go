@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"strconv"
 
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/deprecated"
@@ -54,6 +55,7 @@ type colReader struct {
 	floatBuf []float64
 	boolBuf  []bool
 	offBuf   []uint32
+	utext    []byte // unsigned 64-bit values as text
 
 	// The column chunk's dictionary, converted once per chunk.
 	dictSrc    parquet.Dictionary
@@ -197,6 +199,13 @@ func (c *colReader) nextPage() error {
 		}
 		c.intBuf, c.ints = buf, buf
 	case parquet.Int64:
+		if l.uint64s {
+			v := data.Int64()
+			have = len(v)
+			c.utext, c.offBuf = unsignedTexts(c.utext, c.offBuf, v[:min(have, nvals)])
+			c.text, c.toffs = c.utext, c.offBuf
+			break
+		}
 		c.ints = data.Int64()
 		have = len(c.ints)
 	case parquet.Int96:
@@ -269,6 +278,12 @@ func (c *colReader) loadDict(d parquet.Dictionary) error {
 				return fmt.Errorf("%w: dictionary of %d fixed-length values holds %d bytes", table.ErrCorrupt, n, len(b))
 			}
 			offs = fixedOffsets(nil, n, size)
+		case parquet.Int64: // unsigned
+			v := data.Int64()
+			if len(v) < n {
+				return errShortDict(n, len(v))
+			}
+			b, offs = unsignedTexts(nil, nil, v[:n])
 		default:
 			return fmt.Errorf("%w: dictionary of physical type %v in a text column", table.ErrCorrupt, c.leaf.phys)
 		}
@@ -347,6 +362,17 @@ func errShortDict(want, have int) error {
 func int96Nanos(v deprecated.Int96) int64 {
 	nanos := int64(uint64(v[1])<<32 | uint64(v[0]))
 	return (int64(v[2])-julianUnixEpoch)*86400_000_000_000 + nanos
+}
+
+// unsignedTexts writes the unsigned decimal text of each of v into text
+// and their offsets (len(v)+1) into offs, reusing both buffers.
+func unsignedTexts(text []byte, offs []uint32, v []int64) ([]byte, []uint32) {
+	text, offs = text[:0], append(offs[:0], 0)
+	for _, x := range v {
+		text = strconv.AppendUint(text, uint64(x), 10)
+		offs = append(offs, uint32(len(text)))
+	}
+	return text, offs
 }
 
 // fixedOffsets returns the offsets of n values of the given size.

@@ -13,9 +13,11 @@
 //     (their raw bytes) give text;
 //   - INT32 and INT64 give int, whatever their logical type: a date is its
 //     day number, a timestamp or time its integer count of units, a decimal
-//     its unscaled integer; an unsigned 32-bit integer keeps its value and an
-//     unsigned 64-bit integer keeps its bit pattern (values above 2^63-1
-//     come out negative);
+//     its unscaled integer; an unsigned 32-bit integer keeps its value;
+//   - an unsigned 64-bit integer (INT64 with the unsigned integer logical
+//     type or the UINT_64 converted type) gives text, its unsigned decimal,
+//     as values above 2^63-1 do not fit an int: its levels are the texts a
+//     CSV file of the same numbers holds;
 //   - the legacy INT96 timestamp gives int, nanoseconds since 1970-01-01;
 //   - FLOAT and DOUBLE give float;
 //   - BOOLEAN gives bool.
@@ -100,6 +102,7 @@ type leaf struct {
 	maxDef  byte
 	phys    parquet.Kind
 	uint32s bool // INT32 holding unsigned values
+	uint64s bool // INT64 holding unsigned values, read as their decimal text
 }
 
 // Reader reads a Parquet file as a table. It implements table.Reader.
@@ -249,7 +252,12 @@ func (r *Reader) readSchema() error {
 		case parquet.Int32:
 			l.kind = table.Int64
 			l.uint32s = isUnsigned(t)
-		case parquet.Int64, parquet.Int96:
+		case parquet.Int64:
+			l.kind = table.Int64
+			if l.uint64s = isUnsigned(t); l.uint64s {
+				l.kind = table.String
+			}
+		case parquet.Int96:
 			l.kind = table.Int64
 		case parquet.Float, parquet.Double:
 			l.kind = table.Float64
@@ -277,7 +285,8 @@ func (r *Reader) readSchema() error {
 // follows each.
 func (r *Reader) Nested() []Nested { return r.nested }
 
-// isUnsigned reports whether an INT32 column holds unsigned integers.
+// isUnsigned reports whether an INT32 or INT64 column holds unsigned
+// integers.
 func isUnsigned(t parquet.Type) bool {
 	if lt := t.LogicalType(); lt != nil {
 		if it, ok := lt.Value.(*format.IntType); ok {
@@ -286,7 +295,7 @@ func isUnsigned(t parquet.Type) bool {
 	}
 	if ct := t.ConvertedType(); ct != nil {
 		switch *ct {
-		case deprecated.Uint8, deprecated.Uint16, deprecated.Uint32:
+		case deprecated.Uint8, deprecated.Uint16, deprecated.Uint32, deprecated.Uint64:
 			return true
 		}
 	}

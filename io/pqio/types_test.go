@@ -103,3 +103,54 @@ func TestReadTypes(t *testing.T) {
 		compareCells(t, wantFields[i].Name, res.cols[i], want[i])
 	}
 }
+
+// unsignedRow holds unsigned 64-bit integers, PLAIN and dictionary
+// encoded, one of them optional.
+type unsignedRow struct {
+	U64  uint64  `parquet:"u64"`
+	Dict uint64  `parquet:"u64d,dict"`
+	Opt  *uint64 `parquet:"u64o,optional"`
+}
+
+// TestReadUnsigned64 reads unsigned 64-bit integers up to 2^64-1: each
+// comes as the text of its unsigned decimal, the text a CSV file of the
+// same numbers holds, whatever its encoding.
+func TestReadUnsigned64(t *testing.T) {
+	vals := []uint64{1 << 63, 1<<64 - 1, 0, 5, 1<<63 - 1, 1<<63 + 1}
+	var rows []unsignedRow
+	for i, v := range vals {
+		row := unsignedRow{U64: v, Dict: v}
+		if i%3 != 2 {
+			row.Opt = &vals[i]
+		}
+		rows = append(rows, row)
+	}
+	var buf bytes.Buffer
+	w := parquet.NewGenericWriter[unsignedRow](&buf)
+	if _, err := w.Write(rows); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	r := openBytes(t, "unsigned.parquet", buf.Bytes())
+	defer r.Close()
+	for i, f := range r.Schema().Fields {
+		if f.Kind != table.String {
+			t.Fatalf("field %d = %+v, want text", i, f)
+		}
+	}
+	res := readAll(t, r)
+	want := []string{"9223372036854775808", "18446744073709551615", "0", "5", "9223372036854775807", "9223372036854775809"}
+	for c := range 3 {
+		var cells []cell
+		for i, v := range want {
+			if c == 2 && i%3 == 2 {
+				cells = append(cells, cell{null: true})
+			} else {
+				cells = append(cells, cell{text: v})
+			}
+		}
+		compareCells(t, r.Schema().Fields[c].Name, res.cols[c], cells)
+	}
+}

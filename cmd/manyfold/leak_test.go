@@ -122,3 +122,73 @@ func TestStratifiedFoldsDoNotLeak(t *testing.T) {
 		t.Errorf("%d rows in all differ from the out-of-fold values of the written fold column", bad)
 	}
 }
+
+// shiftTable returns a CSV of a postcode (levels levels) and a cost whose
+// level means spread with standard deviation about 1 around shift and whose
+// rows spread about 1 around their level's mean. Every cost is a multiple
+// of 1/1024 plus shift, so that the shifted texts are exact float64 values
+// (below 2^53 / 1024 for the shifts used) and the shifted table is the
+// unshifted one moved by exactly shift.
+func shiftTable(rows, levels int, shift float64) string {
+	rng := rand.New(rand.NewPCG(5, 9))
+	means := make([]float64, levels)
+	for i := range means {
+		means[i] = rng.NormFloat64()
+	}
+	var b strings.Builder
+	b.WriteString("postcode,cost\n")
+	for i := 0; i < rows; i++ {
+		l := rng.IntN(levels)
+		y := math.Round((means[l]+rng.NormFloat64())*1024) / 1024
+		fmt.Fprintf(&b, "P%04d,%s\n", l, strconv.FormatFloat(y+shift, 'g', -1, 64))
+	}
+	return b.String()
+}
+
+// TestShiftedTargetEncodesShifted: the smoothed mean is affine in the
+// target (the m-estimate (s + m p)/(n + m), and the empirical-Bayes m =
+// sigma^2/tau^2 is a ratio of variances, which a shift does not change), so
+// the encodings of y + c are those of y plus c. The comparison allows 1e-9
+// of the target's standard deviation plus four units in the last place of
+// the shifted value, which is what a float64 near c can hold. Before the
+// sums were taken about a value of the target itself, tau^2 came out <= 0
+// in most folds at c = 1e8 and the column collapsed to the prior.
+func TestShiftedTargetEncodesShifted(t *testing.T) {
+	const rows, levels = 6000, 300
+	encode := func(shift float64, extra ...string) []float64 {
+		dir := t.TempDir()
+		in := writeFile(t, dir, "cost.csv", shiftTable(rows, levels, shift))
+		out := filepath.Join(dir, "enc.csv")
+		args := append([]string{"encode", in, "--target", "cost", "--columns", "postcode", "--seed", "4",
+			"--out", out, "--tables", filepath.Join(dir, "tables")}, extra...)
+		mustRun(t, args...)
+		var v []float64
+		for _, s := range readTable(t, out).col(t, "postcode_tmean") {
+			v = append(v, parseF(t, s))
+		}
+		return v
+	}
+	for _, extra := range [][]string{nil, {"--scheme", "loo"}, {"--scheme", "ordered"}, {"--smoothing", "blend=5,2"}} {
+		base := encode(0, extra...)
+		_, sd := metrics.MeanStd(base)
+		if sd == 0 {
+			t.Fatalf("%v: the unshifted encoding is constant", extra)
+		}
+		for _, shift := range []float64{1e8, 1e12} {
+			got := encode(shift, extra...)
+			tol := 1e-9*sd + 4*(math.Nextafter(shift, math.Inf(1))-shift)
+			bad := 0
+			for i := range base {
+				if d := got[i] - shift - base[i]; math.Abs(d) > tol {
+					if bad++; bad <= 3 {
+						t.Errorf("%v, shift %g: row %d encodes to %.17g, the unshifted row to %.17g (off by %.3g, allowed %.3g)",
+							extra, shift, i+1, got[i], base[i], d, tol)
+					}
+				}
+			}
+			if bad > 3 {
+				t.Errorf("%v, shift %g: %d rows in all", extra, shift, bad)
+			}
+		}
+	}
+}

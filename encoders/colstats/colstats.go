@@ -79,6 +79,17 @@ type Stats struct {
 	cnt        perLevel[uint32]
 	sum, sumSq perLevel[float64]
 
+	// Origin is, for a regression target, the value its sums are taken
+	// about: the cells hold sum(y - Origin) and sum((y - Origin)^2). A
+	// target far from zero (a cost around 1e8) would otherwise lose every
+	// digit of its spread when the within and between sums of squares are
+	// formed, as SumSq - Sum^2/n cancels catastrophically (Chan, Golub and
+	// LeVeque, "Algorithms for computing the sample variance", The American
+	// Statistician 37(3), 1983: computing with shifted data). The fit takes
+	// the first known target value, so shifting every target by c shifts
+	// Origin by c and leaves the cells unchanged. 0 for classification.
+	Origin float64
+
 	// allBut[e+1] marks every fold but e (allBut[0]: all folds), the fold
 	// sets Target sums; built once so that Target allocates nothing and may
 	// run on several goroutines.
@@ -237,12 +248,14 @@ func (s *Stats) AddClass(l, f, c int) {
 	s.cls.inc(l, f*s.Classes+c)
 }
 
-// AddValue counts a row of level l in fold f with numeric target y.
+// AddValue counts a row of level l in fold f with numeric target y: its
+// cells add y - Origin and its square.
 func (s *Stats) AddValue(l, f int, y float64) {
 	s.rows.inc(l)
 	s.cnt.row(l)[f]++
-	s.sum.row(l)[f] += y
-	s.sumSq.row(l)[f] += y * y
+	d := y - s.Origin
+	s.sum.row(l)[f] += d
+	s.sumSq.row(l)[f] += d * d
 }
 
 // SetClass sets the count of class c of level l in fold f (for statistics
@@ -254,7 +267,7 @@ func (s *Stats) SetClass(l, f, c int, v uint32) {
 }
 
 // SetValue sets the row count, target sum and sum of squares of level l in
-// fold f of a regression target.
+// fold f of a regression target, the sums taken about Origin.
 func (s *Stats) SetValue(l, f int, n uint32, sum, sumSq float64) {
 	s.cnt.row(l)[f], s.sum.row(l)[f], s.sumSq.row(l)[f] = n, sum, sumSq
 }
@@ -422,7 +435,7 @@ func totals2[T uint8 | uint64](row []T) (n0, n1 uint64) {
 
 // Agg is the target statistic of a set of rows for one output: n rows and
 // the sum of the target (the count of the class for classification) and of
-// its square.
+// its square; for regression, of the target less the Stats' Origin.
 type Agg struct{ N, Sum, SumSq float64 }
 
 // Outputs returns the number of target outputs: 1 for binary and
@@ -534,7 +547,7 @@ func (s *Stats) FitMask(o, pos int, sm Smoothing, use, keep []bool, order []uint
 			mo.Add(smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq})
 		}
 	}
-	return fitted(tot, &mo, sm)
+	return fitted(tot, &mo, sm, s.Origin)
 }
 
 // Smoothing names how a level's mean is pulled towards its prior.
@@ -550,6 +563,9 @@ type Fitted struct {
 	Prior float64
 	M     float64 // the m in use: given, or estimated (auto); NaN for blend
 	Sm    Smoothing
+	// Origin is the Stats' Origin: the statistics Encode takes are sums
+	// about it, while Prior and the encoded values are the target's own.
+	Origin float64
 }
 
 // Encode returns the smoothed mean of a level with statistic a: the
@@ -557,15 +573,26 @@ type Fitted struct {
 // sigmoid blend lambda*s/n + (1-lambda)*p (Micci-Barreca 2001) for "blend".
 // A level with no rows gets the prior. With an infinite m (auto found no
 // between-level variance) every level gets the prior.
+//
+// With an Origin o (regression), a holds sums about o, and the value is
+// o + the same formula over those sums with the prior p - o: the formulas
+// are affine in the target, so this is the same value, computed from
+// numbers of the size of the target's spread rather than of its level.
 func (ft *Fitted) Encode(a Agg) float64 {
 	if a.N == 0 {
 		return ft.Prior
 	}
+	if ft.Sm.Kind != "blend" && math.IsInf(ft.M, 1) {
+		return ft.Prior
+	}
+	if o := ft.Origin; o != 0 {
+		if ft.Sm.Kind == "blend" {
+			return o + smooth.Blend(a.Sum, a.N, ft.Sm.K, ft.Sm.F, ft.Prior-o)
+		}
+		return o + smooth.MEstimate(a.Sum, a.N, ft.M, ft.Prior-o)
+	}
 	if ft.Sm.Kind == "blend" {
 		return smooth.Blend(a.Sum, a.N, ft.Sm.K, ft.Sm.F, ft.Prior)
-	}
-	if math.IsInf(ft.M, 1) {
-		return ft.Prior
 	}
 	return smooth.MEstimate(a.Sum, a.N, ft.M, ft.Prior)
 }
@@ -617,7 +644,7 @@ func (s *Stats) FitFolds(pos int, sm Smoothing, keep []bool, order []uint32) (fu
 			}
 			kk += tot[f*C+o]
 		}
-		return fitted(Agg{N: float64(n), Sum: float64(kk), SumSq: float64(kk)}, &mo, sm)
+		return fitted(Agg{N: float64(n), Sum: float64(kk), SumSq: float64(kk)}, &mo, sm, 0)
 	}
 	for o := 0; o < outs; o++ {
 		full[o] = fit(o, -1)
@@ -649,11 +676,14 @@ func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint
 }
 
 // fitted returns the fit of the fitting rows' total tot and level moments
-// mo.
-func fitted(tot Agg, mo *smooth.Moments, sm Smoothing) Fitted {
-	ft := Fitted{Sm: sm, M: math.NaN()}
+// mo, both taken about origin.
+func fitted(tot Agg, mo *smooth.Moments, sm Smoothing, origin float64) Fitted {
+	ft := Fitted{Sm: sm, M: math.NaN(), Origin: origin}
 	if tot.N > 0 {
 		ft.Prior = tot.Sum / tot.N
+		if origin != 0 {
+			ft.Prior += origin
+		}
 	} else {
 		ft.Prior = math.NaN()
 	}
@@ -1077,6 +1107,7 @@ func permute[T uint8 | uint64](row []T, pos []int, tmp []T) {
 // every level slot. The null level's parent is the parent null level.
 func (s *Stats) Rollup(parent func([]byte) []byte) (*Stats, []int32) {
 	p := New(s.Task, s.Folds, s.Classes, 0)
+	p.Origin = s.Origin
 	of := make([]int32, s.n)
 	for l := 0; l < s.n; l++ {
 		d := 0
@@ -1092,14 +1123,25 @@ func (s *Stats) Rollup(parent func([]byte) []byte) (*Stats, []int32) {
 
 // addLevel adds the per-fold target statistics of level l of o to level d
 // of s (same task and folds; o's classes are the first of s's).
+//
+// For regression, o's sums are taken about o.Origin: when that differs
+// from s.Origin by e, a cell of n rows and sums (S, Q) about o.Origin holds
+// (S + n e, Q + 2 e S + n e^2) about s.Origin (the sums expanded).
 func (s *Stats) addLevel(d int, o *Stats, l int) {
 	if s.Task == Regression {
 		dc, ds, dq := s.cnt.row(d), s.sum.row(d), s.sumSq.row(d)
 		oc, os, oq := o.cnt.row(l), o.sum.row(l), o.sumSq.row(l)
+		e := o.Origin - s.Origin
 		for f := 0; f < s.Folds; f++ {
 			dc[f] += oc[f]
-			ds[f] += os[f]
-			dq[f] += oq[f]
+			if e == 0 {
+				ds[f] += os[f]
+				dq[f] += oq[f]
+				continue
+			}
+			n := float64(oc[f])
+			ds[f] += os[f] + n*e
+			dq[f] += oq[f] + 2*e*os[f] + n*e*e
 		}
 		return
 	}

@@ -457,3 +457,31 @@ func BenchmarkTableGathers(b *testing.B) {
 	b.ReportMetric(float64(counts.Nanoseconds())/per, "counts-ns/level")
 	b.ReportMetric(float64(text.Nanoseconds())/per, "bytes-ns/level")
 }
+
+// TestMergeMovesOrigin: statistics whose sums are taken about different
+// origins merge into the sums about the receiver's origin, as if every row
+// had been added to it (the expansion of sum((y - a)^k) about another
+// origin, k = 1, 2).
+func TestMergeMovesOrigin(t *testing.T) {
+	ys := []float64{1e8 + 0.5, 1e8 - 1.25, 1e8 + 2, 1e8 + 0.75, 1e8 - 0.5}
+	whole := New(Regression, 1, 0, 4)
+	whole.Origin = 1e8 + 0.5
+	a, b := New(Regression, 1, 0, 4), New(Regression, 1, 0, 4)
+	a.Origin, b.Origin = 1e8+0.5, 1e8-3
+	for i, y := range ys {
+		l := whole.Level([]byte("P1"))
+		whole.AddValue(l, 0, y)
+		part := a
+		if i%2 == 1 {
+			part = b
+		}
+		part.AddValue(part.Level([]byte("P1")), 0, y)
+	}
+	if err := a.Merge(b); err != nil {
+		t.Fatal(err)
+	}
+	want, got := whole.Target(1, 0, -1, 0), a.Target(1, 0, -1, 0)
+	if got.N != want.N || math.Abs(got.Sum-want.Sum) > 1e-9 || math.Abs(got.SumSq-want.SumSq) > 1e-9 {
+		t.Errorf("merged statistics about %g = %+v, want %+v", a.Origin, got, want)
+	}
+}

@@ -479,7 +479,7 @@ type target struct {
 func (m *Model) contribution(t target, o int) float64 {
 	switch m.Task {
 	case colstats.Regression:
-		return t.val
+		return t.val - m.Origin // the statistics' sums are about Origin
 	case colstats.Binary:
 		if t.cls == m.Pos {
 			return 1

@@ -21,7 +21,10 @@ type Model struct {
 	Pos     int      // binary: slot of the positive class
 	Rows    int64    // rows fitted
 	Missing int64    // rows whose target was unknown (encoded, not counted)
-	Cols    []*Col
+	// Origin is, for a regression target, the first known target value in
+	// file order: every column's sums are taken about it (Stats.Origin).
+	Origin float64
+	Cols   []*Col
 
 	threads int // FitOptions.Threads: mapping tables written at once
 }
@@ -177,6 +180,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	counts := [2]batchCounts{newBatchCounts(len(all)), newBatchCounts(len(all))}
 	var pending *batchCounts // the batch whose rows are still to be counted
 	step := 0
+	originSet := false
 	if err := table.ForEach(r, func(b *table.Batch) error {
 		if order != nil {
 			if err := order.check(b); err != nil {
@@ -209,6 +213,18 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 				return err
 			}
 			cls, vals = tr.cls, tr.vals
+			if regress && !originSet {
+				for _, y := range vals {
+					if y == y { // the first known target
+						originSet = true
+						m.Origin = y
+						for _, c := range all {
+							c.St.Origin = y
+						}
+						break
+					}
+				}
+			}
 			if !regress {
 				if n := len(tr.order); n > m.Cols[0].St.Classes {
 					for _, c := range all {

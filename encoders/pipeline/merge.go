@@ -18,7 +18,7 @@ import (
 // merged tables.
 func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 	base := models[0]
-	out := &Model{Spec: base.Spec, Input: base.Input, Task: base.Task, Classes: base.Classes, Pos: base.Pos}
+	out := &Model{Spec: base.Spec, Input: base.Input, Task: base.Task, Classes: base.Classes, Pos: base.Pos, Origin: base.Origin}
 	out.Spec.MinLevelRows = minRows
 	for i, m := range models {
 		if err := compatible(base, m); err != nil {
@@ -37,6 +37,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 			task = colstats.Binary
 		}
 		st := colstats.New(task, 1, len(base.Classes), bc.St.NumLevels())
+		st.Origin = base.Origin // shards' sums are moved to it (Stats.Merge)
 		for _, m := range models {
 			if err := st.Merge(m.Cols[ci].St); err != nil {
 				return nil, err
@@ -56,6 +57,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 		}
 		if base.Spec.PriorColumn != "" && supervised {
 			ps := colstats.New(task, 1, len(base.Classes), 0)
+			ps.Origin = base.Origin
 			for _, m := range models {
 				if err := ps.Merge(m.Cols[ci].Parent.St); err != nil {
 					return nil, err

@@ -40,8 +40,13 @@ type Manifest struct {
 	Classes []string        `json:"classes,omitempty"`
 	Rows    int64           `json:"rows"`
 	Missing int64           `json:"target_missing"`
-	Params  Params          `json:"params"`
-	Columns []ManifestCol   `json:"columns"`
+	// Origin is, for a regression target, the value the tables' target
+	// sums are taken about (colstats.Stats.Origin): target_sum holds
+	// sum(y - origin) and target_sumsq sum((y - origin)^2). Absent (0) in
+	// tables written before it existed, whose sums are of y itself.
+	Origin  float64       `json:"target_origin,omitempty"`
+	Params  Params        `json:"params"`
+	Columns []ManifestCol `json:"columns"`
 }
 
 // ManifestField is an input column.
@@ -139,7 +144,7 @@ func tableFile(i int, name string) string {
 // Manifest returns the manifest of the fitted model.
 func (m *Model) Manifest() Manifest {
 	sp := &m.Spec
-	mf := Manifest{Format: FormatVersion, Tool: Version, Rows: m.Rows, Missing: m.Missing, Target: sp.Target}
+	mf := Manifest{Format: FormatVersion, Tool: Version, Rows: m.Rows, Missing: m.Missing, Target: sp.Target, Origin: m.Origin}
 	for _, f := range m.Input {
 		mf.Input = append(mf.Input, ManifestField{Name: f.Name, Type: f.Kind.String()})
 	}
@@ -502,6 +507,7 @@ func LoadTables(dir string) (*Model, error) {
 		m.Input = append(m.Input, table.Field{Name: f.Name, Kind: k})
 	}
 	supervised := mf.Task != ""
+	m.Origin = mf.Origin
 	if supervised {
 		m.Task, _ = colstats.ParseTask(mf.Task)
 		m.Pos = len(m.Classes) - 1
@@ -564,13 +570,14 @@ func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Co
 		task = colstats.Binary
 	}
 	st := colstats.New(task, 1, len(m.Classes), 1024)
+	st.Origin = m.Origin
 	c := &Col{St: st}
 	outs := 0
 	if supervised {
 		outs = st.Outputs()
 		c.TMean = make([][]float64, outs)
 		for o := 0; o < outs; o++ {
-			c.Full = append(c.Full, colstats.Fitted{Prior: fromOpt(prior[o]), M: fromOpt(ms[o]), Sm: m.Spec.Smoothing})
+			c.Full = append(c.Full, colstats.Fitted{Prior: fromOpt(prior[o]), M: fromOpt(ms[o]), Sm: m.Spec.Smoothing, Origin: m.Origin})
 			c.TMean[o] = []float64{0}
 		}
 	}

@@ -1,13 +1,35 @@
 // Package atomicfile writes a file so that it appears at its path only when
 // complete: data goes to a temporary file in the same directory, which
-// Commit renames into place and Abort removes.
+// Commit renames into place and Abort removes. Dir does the same for a
+// whole directory of files.
+//
+// A target that exists and is not a regular file (a FIFO, a terminal,
+// /dev/null), and any path under /dev or /proc (/dev/stdout), is written
+// in place instead: renaming over it would replace a device with a file.
+// Standard output is written in place (Stdout).
+//
+// New files get the permissions os.Create gives (0666 less the umask); a
+// file that replaces an existing regular file keeps that file's
+// permissions. Temporary files are named ".NAME.tmp-*" beside the target;
+// every temporary path is tracked (see Track) so that Cleanup can remove
+// it when the run is stopped.
 package atomicfile
 
 import (
+	"errors"
 	"fmt"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strconv"
+	"strings"
+	"syscall"
+
+	"manyfold/internal/guard"
 )
+
+// errClosed is the error of a commit after Cleanup.
+var errClosed = errors.New("the run is stopping; output not committed")
 
 // File is an output file in progress. It implements io.Writer.
 //
@@ -18,39 +40,123 @@ import (
 // durable waits for the last few megabytes instead of the whole file.
 type File struct {
 	*os.File
-	path    string
-	done    bool
-	written int64 // bytes written
-	flushed int64 // bytes handed to the system's write-back
+	path    string // the final path, as the user gave it
+	target  string // the path renamed over (symlinks resolved); "" in place
+	tmp     string // the temporary file; "" in place
+	inPlace bool   // written straight to its target
+	keep    bool   // in place on a file this package did not open (stdout): not closed
+	ready   bool   // synced and closed
+	done    bool   // committed or aborted
+	written int64  // bytes written
+	flushed int64  // bytes handed to the system's write-back
 }
 
 // writebackEvery is how many bytes File writes between two requests to
 // start write-back.
 const writebackEvery = 8 << 20
 
-// Write writes b to the temporary file.
+// Write writes b to the file.
 func (f *File) Write(b []byte) (int, error) {
 	n, err := f.File.Write(b)
 	f.written += int64(n)
-	if f.written-f.flushed >= writebackEvery {
+	if !f.inPlace && f.written-f.flushed >= writebackEvery {
 		startWriteback(f.File, f.flushed, f.written-f.flushed)
 		f.flushed = f.written
 	}
 	return n, err
 }
 
-// Create opens a temporary file beside path. The directory must exist.
+// Create opens a temporary file beside path, or path itself when it is
+// written in place (see the package comment). The directory must exist.
 func Create(path string) (*File, error) {
-	dir, base := filepath.Split(path)
+	fi, err := os.Stat(path)
+	switch {
+	case err == nil && fi.IsDir():
+		return nil, fmt.Errorf("create %s: is a directory", path)
+	case err == nil && !fi.Mode().IsRegular(), isSystemPath(path):
+		return openInPlace(path)
+	}
+	target := path
+	perm := os.FileMode(0o666) // less the umask, by the system
+	keepPerm := false
+	if err == nil {
+		// Replace the file a symbolic link points to, not the link.
+		if t, err := filepath.EvalSymlinks(path); err == nil {
+			target = t
+		}
+		perm, keepPerm = fi.Mode().Perm(), true
+	}
+	dir, base := filepath.Split(target)
 	if dir == "" {
 		dir = "."
 	}
-	f, err := os.CreateTemp(dir, "."+base+".tmp-*")
+	f, tmp, err := createTemp(dir, "."+base+".tmp-", perm)
 	if err != nil {
 		return nil, fmt.Errorf("create %s: %w", path, err)
 	}
-	return &File{File: f, path: path}, nil
+	if keepPerm {
+		// The umask applied at creation: set the old file's bits exactly.
+		if err := f.Chmod(perm); err != nil {
+			f.Close()
+			Remove(tmp)
+			return nil, fmt.Errorf("create %s: %w", path, err)
+		}
+	}
+	return &File{File: f, path: path, target: target, tmp: tmp}, nil
 }
+
+// Stdout returns a File that writes to standard output, in place; Commit
+// and Abort leave it open. Errors name it "stdout".
+func Stdout() *File {
+	return &File{File: os.Stdout, path: "stdout", inPlace: true, keep: true}
+}
+
+// isSystemPath reports whether path lies under /dev or /proc, where a name
+// may stand for another file (/dev/stdout, /proc/self/fd/1) and must never
+// be renamed over.
+func isSystemPath(path string) bool {
+	abs, err := filepath.Abs(path)
+	if err != nil {
+		return false
+	}
+	return strings.HasPrefix(abs, "/dev/") || strings.HasPrefix(abs, "/proc/")
+}
+
+// openInPlace opens an existing target that is written in place.
+func openInPlace(path string) (*File, error) {
+	flag := os.O_WRONLY
+	if fi, err := os.Stat(path); err == nil && fi.Mode().IsRegular() {
+		flag |= os.O_TRUNC
+	}
+	f, err := os.OpenFile(path, flag, 0)
+	if err != nil {
+		return nil, fmt.Errorf("create %s: %w", path, err)
+	}
+	return &File{File: f, path: path, inPlace: true}, nil
+}
+
+// createTemp creates a new file named prefix plus a random suffix in dir
+// with permissions perm (less the umask), and tracks it.
+func createTemp(dir, prefix string, perm os.FileMode) (*os.File, string, error) {
+	for try := 0; ; try++ {
+		name := filepath.Join(dir, prefix+randomSuffix())
+		f, err := os.OpenFile(name, os.O_RDWR|os.O_CREATE|os.O_EXCL, perm)
+		if errors.Is(err, os.ErrExist) && try < 100 {
+			continue
+		}
+		if err != nil {
+			return nil, "", err
+		}
+		if !Track(name) {
+			f.Close()
+			return nil, "", errClosed
+		}
+		return f, name, nil
+	}
+}
+
+// randomSuffix returns the random part of a temporary name.
+func randomSuffix() string { return strconv.FormatUint(uint64(rand.Uint32()), 10) }
 
 // Name returns the final path, so that writers which name their file in
 // errors name the file the user asked for, not the temporary one.
@@ -59,41 +165,140 @@ func (f *File) Name() string { return f.path }
 // Path returns the final path the file will have after Commit.
 func (f *File) Path() string { return f.path }
 
-// Commit syncs (see File) and closes the temporary file and renames it to the final
-// path. After Commit, Abort does nothing.
-func (f *File) Commit() error {
-	if f.done {
+// Ready syncs and closes the temporary file, so that all that Commit has
+// left to do is the rename. Committing several outputs as one (CommitAll)
+// makes them all ready before any is renamed.
+func (f *File) Ready() error {
+	if f.ready || f.done {
 		return nil
 	}
-	f.done = true
-	tmp := f.File.Name()
-	if err := f.File.Sync(); err != nil {
-		f.File.Close()
-		os.Remove(tmp)
+	f.ready = true
+	if err := f.File.Sync(); err != nil && !(f.inPlace && errors.Is(err, syscall.EINVAL)) {
+		// A pipe or a terminal cannot be synced (EINVAL); a file can.
+		f.closeFile()
+		f.discard()
 		return fmt.Errorf("write %s: %w", f.path, err)
 	}
-	if err := f.File.Close(); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("write %s: %w", f.path, err)
-	}
-	if err := os.Chmod(tmp, 0o644); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("write %s: %w", f.path, err)
-	}
-	if err := os.Rename(tmp, f.path); err != nil {
-		os.Remove(tmp)
+	if err := f.closeFile(); err != nil {
+		f.discard()
 		return fmt.Errorf("write %s: %w", f.path, err)
 	}
 	return nil
 }
 
+func (f *File) closeFile() error {
+	if f.keep {
+		return nil
+	}
+	return f.File.Close()
+}
+
+// discard marks the file done and removes the temporary file.
+func (f *File) discard() {
+	f.done = true
+	if f.tmp != "" {
+		Remove(f.tmp)
+	}
+}
+
+// Commit syncs (see File) and closes the temporary file and renames it to
+// the final path; the directory is synced so that the rename lasts. After
+// Commit, Abort does nothing. Nothing is committed after a panic on a
+// goroutine that nobody waited for (guard.Go).
+func (f *File) Commit() error {
+	if f.done {
+		return nil
+	}
+	if err := guard.Err(); err != nil {
+		f.Abort()
+		return err
+	}
+	if err := f.Ready(); err != nil {
+		return err
+	}
+	f.done = true
+	if f.inPlace {
+		return nil
+	}
+	err := commitLock(func() error {
+		if err := os.Rename(f.tmp, f.target); err != nil {
+			return err
+		}
+		untrackLocked(f.tmp)
+		return nil
+	})
+	if err != nil {
+		Remove(f.tmp)
+		return fmt.Errorf("write %s: %w", f.path, err)
+	}
+	syncDir(filepath.Dir(f.target))
+	return nil
+}
+
 // Abort closes and removes the temporary file, leaving the final path as
-// it was. It is safe to call after Commit or more than once.
+// it was (a target written in place keeps what was written). It is safe to
+// call after Commit or more than once.
 func (f *File) Abort() {
 	if f.done {
 		return
 	}
-	f.done = true
-	f.File.Close()
-	os.Remove(f.File.Name())
+	if !f.ready {
+		f.closeFile()
+	}
+	f.discard()
+}
+
+// syncDir syncs a directory, so that the names just made or renamed in
+// it survive a crash. It is best effort: some file systems cannot sync a
+// directory, and the rename has happened either way.
+func syncDir(dir string) error {
+	d, err := os.Open(dir)
+	if err != nil {
+		return err
+	}
+	defer d.Close()
+	if err := d.Sync(); err != nil && !errors.Is(err, syscall.EINVAL) && !errors.Is(err, syscall.ENOTSUP) {
+		return err
+	}
+	return nil
+}
+
+// Output is an output that can be made ready (complete and durable, not
+// yet in place), committed (moved into place) or aborted: a File, a Dir,
+// or a table writer over a File.
+type Output interface {
+	Ready() error
+	Commit() error
+	Abort()
+}
+
+// CommitAll commits outputs as one: it makes them all ready first, and
+// only when every one is, commits them in order; if one cannot be made
+// ready, all are aborted and none is moved. A failure of a later commit
+// (a rename, which seldom fails once the data is on disk) leaves the
+// earlier outputs committed and aborts the rest.
+func CommitAll(outs ...Output) error {
+	if err := guard.Err(); err != nil {
+		abortAll(outs)
+		return err
+	}
+	for _, o := range outs {
+		if err := o.Ready(); err != nil {
+			abortAll(outs)
+			return err
+		}
+	}
+	for i, o := range outs {
+		if err := o.Commit(); err != nil {
+			abortAll(outs[i+1:])
+			return err
+		}
+	}
+	return nil
+}
+
+func abortAll(outs []Output) {
+	for _, o := range outs {
+		o.Abort()
+	}
 }

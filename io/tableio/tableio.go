@@ -75,6 +75,19 @@ func looksBinary(head []byte) bool {
 	return false
 }
 
+// Errors of Open for inputs that cannot be read as a table; both wrap
+// table.ErrUnknownFormat, so that they are classed with the unreadable
+// inputs.
+var (
+	ErrParquetStdin = &inputError{"Parquet cannot be read from standard input (it is read from its end); give a file"}
+	ErrDirectory    = &inputError{"is a directory, not a table file"}
+)
+
+type inputError struct{ msg string }
+
+func (e *inputError) Error() string { return e.msg }
+func (e *inputError) Unwrap() error { return table.ErrUnknownFormat }
+
 // Open opens the table at path ("-" for standard input, read as CSV or an
 // Arrow IPC stream).
 func Open(path string, opts ReadOptions) (table.Reader, error) {
@@ -93,11 +106,15 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 		case Arrow:
 			return arrowio.NewReader(br, name)
 		}
-		return nil, fmt.Errorf("%s: Parquet cannot be read from standard input; give a file", name)
+		return nil, fmt.Errorf("%s: %w", name, ErrParquetStdin)
 	}
 	fh, err := os.Open(path)
 	if err != nil {
 		return nil, err
+	}
+	if fi, err := fh.Stat(); err == nil && fi.IsDir() {
+		fh.Close()
+		return nil, fmt.Errorf("%s: %w", path, ErrDirectory)
 	}
 	head := make([]byte, 512)
 	n, err := io.ReadFull(fh, head)
@@ -174,26 +191,42 @@ type WriteOptions struct {
 }
 
 // Output is a table being written to a temporary file beside its final
-// path. Commit closes the writer and renames the file into place; Abort
-// removes it.
+// path (see atomicfile). Commit closes the writer and renames the file
+// into place; Abort removes it.
 type Output struct {
 	table.Writer
-	file *atomicfile.File
+	file   *atomicfile.File
+	closed bool // the writer is closed
 }
 
-// Create starts writing a table with the given schema at path.
+// Stdout is the output path that writes to standard output. Its format
+// comes from WriteOptions.Format; CSV, Parquet and Arrow (the file format)
+// are written without seeking.
+const Stdout = "-"
+
+// Create starts writing a table with the given schema at path (Stdout for
+// standard output).
 func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, error) {
 	format := opts.Format
 	if format == "" {
 		format = FormatOf(path)
 		if format == "" {
+			if path == Stdout {
+				return nil, fmt.Errorf("standard output: give the output format (--format csv, parquet or arrow)")
+			}
 			return nil, fmt.Errorf("%s: cannot tell the output format from the extension (use .csv, .parquet or .arrow, or give --format)", path)
 		}
 	}
-	f, err := atomicfile.Create(path)
-	if err != nil {
-		return nil, err
+	var f *atomicfile.File
+	if path == Stdout {
+		f = atomicfile.Stdout()
+	} else {
+		var err error
+		if f, err = atomicfile.Create(path); err != nil {
+			return nil, err
+		}
 	}
+	var err error
 	var w table.Writer
 	switch format {
 	case CSV:
@@ -212,17 +245,33 @@ func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, erro
 	return &Output{Writer: w, file: f}, nil
 }
 
+// Ready completes the table (closes the writer) and makes the file
+// durable, leaving only the move into place to Commit. A writer's error is
+// returned as it is (a *table.DataError stays one).
+func (o *Output) Ready() error {
+	if !o.closed {
+		o.closed = true
+		if err := o.Writer.Close(); err != nil {
+			o.file.Abort()
+			return fmt.Errorf("write %s: %w", o.file.Path(), err)
+		}
+	}
+	return o.file.Ready()
+}
+
 // Commit completes the table and moves it into place.
 func (o *Output) Commit() error {
-	if err := o.Writer.Close(); err != nil {
-		o.file.Abort()
-		return fmt.Errorf("write %s: %w", o.file.Path(), err)
+	if err := o.Ready(); err != nil {
+		return err
 	}
 	return o.file.Commit()
 }
 
 // Abort discards the output; the final path is left as it was.
 func (o *Output) Abort() {
-	o.Writer.Close()
+	if !o.closed {
+		o.closed = true
+		o.Writer.Close()
+	}
 	o.file.Abort()
 }

@@ -1,0 +1,90 @@
+package atomicfile
+
+import (
+	"os"
+	"sync"
+)
+
+// The registry holds every temporary path this process has made and not
+// yet moved into place or removed: temporary files, staged directories,
+// an old directory moved aside, a spool of standard input. Cleanup removes
+// them, for a run stopped by a signal or by a bug.
+var registry struct {
+	mu     sync.Mutex
+	paths  map[string]bool
+	closed bool // after Cleanup: new paths are removed at once
+}
+
+// Track records a temporary path for Cleanup. After Cleanup has run, path
+// is removed at once and Track returns false.
+func Track(path string) bool {
+	registry.mu.Lock()
+	defer registry.mu.Unlock()
+	if registry.closed {
+		os.RemoveAll(path)
+		return false
+	}
+	trackLocked(path)
+	return true
+}
+
+// Untrack forgets a path: it was moved into place or removed.
+func Untrack(path string) {
+	registry.mu.Lock()
+	untrackLocked(path)
+	registry.mu.Unlock()
+}
+
+// trackLocked and untrackLocked are Track and Untrack for a caller that
+// holds the registry's lock (a function run by commitLock).
+func trackLocked(path string) {
+	if registry.paths == nil {
+		registry.paths = map[string]bool{}
+	}
+	registry.paths[path] = true
+}
+
+func untrackLocked(path string) { delete(registry.paths, path) }
+
+// Remove removes a tracked path and forgets it.
+func Remove(path string) {
+	os.RemoveAll(path)
+	Untrack(path)
+}
+
+// Cleanup removes every tracked path, and any path tracked later. It waits
+// for a commit in progress (a rename, or a directory swap) to finish, so
+// that what is in place is either the old output or the new one. A command
+// stopped by a signal calls it before exiting; nothing can be committed
+// after it.
+func Cleanup() {
+	registry.mu.Lock()
+	defer registry.mu.Unlock()
+	registry.closed = true
+	for p := range registry.paths {
+		os.RemoveAll(p)
+	}
+	registry.paths = nil
+}
+
+// Tracked returns the tracked paths, for tests.
+func Tracked() []string {
+	registry.mu.Lock()
+	defer registry.mu.Unlock()
+	var out []string
+	for p := range registry.paths {
+		out = append(out, p)
+	}
+	return out
+}
+
+// commitLock runs f, a move into place, so that Cleanup does not run
+// during it (f must use trackLocked and untrackLocked); it reports errClosed without running f after Cleanup.
+func commitLock(f func() error) error {
+	registry.mu.Lock()
+	defer registry.mu.Unlock()
+	if registry.closed {
+		return errClosed
+	}
+	return f()
+}

@@ -311,8 +311,8 @@ func (w *writer) floats(st *writeCol, col *table.Column, n int, name string, fir
 	return st.floats, nil
 }
 
-// bools returns the column as a bitmap; null rows hold false. Text may be
-// true/false in any common case, or 1/0; numbers must be 0 or 1.
+// bools returns the column as a bitmap; null rows hold false. Text is read
+// by table.ParseBool, as every writer reads it; numbers must be 0 or 1.
 func (w *writer) bools(st *writeCol, col *table.Column, n int, name string, first int64) ([]byte, error) {
 	st.bits = resize(st.bits, (n+7)/8)
 	clear(st.bits)
@@ -331,10 +331,9 @@ func (w *writer) bools(st *writeCol, col *table.Column, n int, name string, firs
 			}
 			v = f == 1
 		default:
-			var ok bool
-			v, ok = parseBool(col.Bytes(i))
-			if !ok {
-				return nil, w.dataErr(first, i, name, fmt.Errorf("%q is not a boolean", col.Bytes(i)))
+			var err error
+			if v, err = table.ParseBool(col.Bytes(i)); err != nil {
+				return nil, w.dataErr(first, i, name, err)
 			}
 		}
 		if v {
@@ -349,17 +348,6 @@ func b2i(b bool) int64 {
 		return 1
 	}
 	return 0
-}
-
-// parseBool accepts true/false in lower, upper or title case, and 1/0.
-func parseBool(b []byte) (v, ok bool) {
-	switch string(b) {
-	case "true", "TRUE", "True", "1":
-		return true, true
-	case "false", "FALSE", "False", "0":
-		return false, true
-	}
-	return false, false
 }
 
 // Close writes the footer and flushes the output; it does not close the

@@ -669,9 +669,8 @@ func checkValue(kind table.Kind, v []byte) error {
 			return err
 		}
 	case table.Bool:
-		if _, err := strconv.ParseBool(string(v)); err != nil {
-			return fmt.Errorf("%q is not a boolean", v)
-		}
+		_, err := table.ParseBool(v)
+		return err
 	}
 	return nil
 }

@@ -7,7 +7,6 @@ import (
 	"io"
 	"runtime"
 	"slices"
-	"strconv"
 	"sync"
 	"sync/atomic"
 	"unsafe"
@@ -642,7 +641,8 @@ func floatAt(c *table.Column, r int, nullable bool) (float64, bool, error) {
 }
 
 // boolAt returns row r of c as a boolean: numbers must be 0 or 1; text is
-// parsed by strconv.ParseBool (1, t, T, TRUE, true, True, 0, f, ...).
+// read by table.ParseBool (1, t, T, TRUE, true, True, 0, f, ...), as every
+// writer reads it.
 func boolAt(c *table.Column, r int, nullable bool) (bool, bool, error) {
 	switch c.Form {
 	case table.FormBool:
@@ -668,11 +668,8 @@ func boolAt(c *table.Column, r int, nullable bool) (bool, bool, error) {
 	if err != nil || null {
 		return false, null, err
 	}
-	v, err := strconv.ParseBool(bstr(b))
-	if err != nil {
-		return false, false, fmt.Errorf("%q is not a boolean", b)
-	}
-	return v, false, nil
+	v, err := table.ParseBool(b)
+	return v, false, err
 }
 
 // columns calls f for every column, on up to GOMAXPROCS goroutines, and

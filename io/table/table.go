@@ -280,6 +280,19 @@ func FloatToInt(f float64) (int64, error) {
 	return int64(f), nil
 }
 
+// ParseBool parses a boolean the way every manyfold writer reads text into
+// a bool column: what strconv.ParseBool accepts, 1, t, T, TRUE, true, True
+// and 0, f, F, FALSE, false, False.
+func ParseBool(b []byte) (bool, error) {
+	switch string(b) {
+	case "1", "t", "T", "TRUE", "true", "True":
+		return true, nil
+	case "0", "f", "F", "FALSE", "false", "False":
+		return false, nil
+	}
+	return false, fmt.Errorf("%q is not a boolean", b)
+}
+
 // ParseFloat parses a decimal or scientific number. It accepts what
 // strconv.ParseFloat accepts, including NaN and Inf, and the booleans
 // true and false as 1 and 0.

@@ -14,6 +14,7 @@ import (
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/hashenc"
+	"manyfold/io/atomicfile"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
@@ -192,8 +193,8 @@ func (m *Model) Manifest() Manifest {
 }
 
 // SaveTables writes one Parquet table per column (and per parent level
-// set) and the manifest into dir, creating it if needed. Every file is
-// written to a temporary name and renamed into place when complete.
+// set) and the manifest into a directory staged beside dir, then puts it
+// in place of dir whole (see StageTables).
 func (m *Model) SaveTables(dir string) error {
 	st, err := m.StageTables(dir)
 	if err != nil {
@@ -203,58 +204,64 @@ func (m *Model) SaveTables(dir string) error {
 }
 
 // StagedTables are mapping tables written to a temporary directory beside
-// their final one, so that a failure leaves the final directory as it was.
+// their final one, ".DIR.tmp-*", so that a failure leaves the final
+// directory as it was. It is an atomicfile.Output: Ready makes the files
+// durable, Commit replaces the directory whole (no table of an earlier
+// fit stays beside the new manifest), Abort removes the staged tables.
 type StagedTables struct {
-	dir, tmp string
-	files    []string // in the order they are moved; the manifest last
+	*atomicfile.Dir
 }
 
 // StageTables writes the mapping tables into a temporary directory beside
-// dir; Commit moves them into dir, Abort removes them. It only reads the
-// model, so it may run while Encode runs.
+// dir, creating dir's parents if needed; Commit puts it in place of dir,
+// Abort removes it. An existing dir is replaced only if it holds mapping
+// tables and nothing else (CheckTablesDir). It only reads the model, so it
+// may run while Encode runs.
 func (m *Model) StageTables(dir string) (*StagedTables, error) {
-	parent := filepath.Dir(filepath.Clean(dir))
-	if err := os.MkdirAll(parent, 0o755); err != nil {
-		return nil, fmt.Errorf("tables: %w", err)
-	}
-	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-*")
+	d, err := atomicfile.CreateDir(dir, CheckTablesDir)
 	if err != nil {
 		return nil, fmt.Errorf("tables: %w", err)
 	}
-	st := &StagedTables{dir: dir, tmp: tmp}
-	if err := m.writeTables(st); err != nil {
+	st := &StagedTables{Dir: d}
+	if err := m.writeTables(d.Name()); err != nil {
 		st.Abort()
 		return nil, err
 	}
 	return st, nil
 }
 
-// Commit moves the staged tables into their directory, creating it if
-// needed, the manifest last.
-func (st *StagedTables) Commit() error {
-	defer os.RemoveAll(st.tmp)
-	if err := os.MkdirAll(st.dir, 0o755); err != nil {
-		return fmt.Errorf("tables: %w", err)
+// CheckTablesDir returns an error unless dir may be replaced by mapping
+// tables: it does not exist, or it is a directory holding nothing but
+// regular files named like the files of a tables directory (the manifest
+// and .parquet tables). Since the tables replace the whole directory, a
+// directory of anything else is refused rather than removed.
+func CheckTablesDir(dir string) error {
+	fi, err := os.Stat(dir)
+	if errors.Is(err, os.ErrNotExist) {
+		return nil
 	}
-	for _, f := range st.files {
-		if err := os.Rename(filepath.Join(st.tmp, f), filepath.Join(st.dir, f)); err != nil {
-			return fmt.Errorf("tables: %w", err)
+	if err != nil {
+		return err
+	}
+	if !fi.IsDir() {
+		return fmt.Errorf("%s exists and is not a directory", dir)
+	}
+	entries, err := os.ReadDir(dir)
+	if err != nil {
+		return err
+	}
+	for _, e := range entries {
+		n := e.Name()
+		if !e.Type().IsRegular() || !(n == ManifestName || strings.HasSuffix(n, ".parquet")) {
+			return fmt.Errorf("%s holds %s, which is not a mapping table; the tables replace the whole directory, so give a new or a tables directory", dir, n)
 		}
 	}
 	return nil
 }
 
-// Abort removes the staged tables.
-func (st *StagedTables) Abort() { os.RemoveAll(st.tmp) }
-
-func (m *Model) writeTables(st *StagedTables) error {
+// writeTables writes the tables and the manifest into dir.
+func (m *Model) writeTables(dir string) error {
 	mf := m.Manifest()
-	for i, c := range m.Cols {
-		st.files = append(st.files, mf.Columns[i].Table)
-		if c.Parent != nil {
-			st.files = append(st.files, mf.Columns[i].ParentTable)
-		}
-	}
 	// The columns' own tables side by side (each file is the same
 	// whatever the number of threads), then the parents, which columns
 	// may share, one after another.
@@ -264,14 +271,14 @@ func (m *Model) writeTables(st *StagedTables) error {
 	first := byLevels(m.Cols)
 	each(len(m.Cols), m.threads, func(k int) {
 		i := first[k]
-		errs[i] = m.saveCol(filepath.Join(st.tmp, mf.Columns[i].Table), m.Cols[i])
+		errs[i] = m.saveCol(filepath.Join(dir, mf.Columns[i].Table), m.Cols[i])
 	})
 	for i, c := range m.Cols {
 		if errs[i] != nil {
 			return errs[i]
 		}
 		if c.Parent != nil {
-			if err := m.saveCol(filepath.Join(st.tmp, mf.Columns[i].ParentTable), c.Parent); err != nil {
+			if err := m.saveCol(filepath.Join(dir, mf.Columns[i].ParentTable), c.Parent); err != nil {
 				return err
 			}
 		}
@@ -280,8 +287,15 @@ func (m *Model) writeTables(st *StagedTables) error {
 	if err != nil {
 		return err
 	}
-	st.files = append(st.files, ManifestName)
-	return os.WriteFile(filepath.Join(st.tmp, ManifestName), append(data, '\n'), 0o644)
+	f, err := atomicfile.Create(filepath.Join(dir, ManifestName))
+	if err != nil {
+		return err
+	}
+	if _, err := f.Write(append(data, '\n')); err != nil {
+		f.Abort()
+		return err
+	}
+	return f.Commit()
 }
 
 // tableSchema returns the layout of a column's mapping table.

@@ -54,7 +54,7 @@ func runApply(args []string) error {
 	if file == "-" {
 		name = "stdin"
 	}
-	o, err := openOutput(file, name, of.out, ropts, wopts, m, true, func(s *table.Schema) error {
+	o, err := openOutput(file, name, of.out, ropts, wopts, m, true, nil, func(s *table.Schema) error {
 		return m.CheckInput(name, s, *tables)
 	})
 	if err != nil {

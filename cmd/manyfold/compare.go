@@ -91,6 +91,10 @@ func runCompare(args []string) (err error) {
 	if err != nil {
 		return err
 	}
+	if err := refuseNested(name, "--columns", "encoded", nestedOf(r), *columns...); err != nil {
+		r.Close()
+		return err
+	}
 	// Parquet knows its row count; for other input a cheap first pass
 	// counts the rows so that --sample can be turned into a share.
 	var total int64

@@ -145,6 +145,11 @@ func runEncode(args []string) (err error) {
 	if err != nil {
 		return err
 	}
+	keepList, err := vetNested(name, r, &sp, outputFormat(of.out, wopts))
+	if err != nil {
+		r.Close()
+		return err
+	}
 	if !sp.KeepAll {
 		// Check --keep now, not after the first pass.
 		if _, err := selectColumns(name, "--keep", r.Schema(), sp.Keep); err != nil {
@@ -184,7 +189,7 @@ func runEncode(args []string) (err error) {
 		return usagef("--output logodds needs a binary target; %s is %s", sp.Target, m.Task)
 	}
 
-	o, err := openOutput(path, name, of.out, ropts, wopts, m, false, nil)
+	o, err := openOutput(path, name, of.out, ropts, wopts, m, false, keepList, nil)
 	if err != nil {
 		return err
 	}

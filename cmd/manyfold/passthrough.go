@@ -1,6 +1,9 @@
 package main
 
 import (
+	"errors"
+	"fmt"
+
 	"manyfold/encoders/pipeline"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -20,11 +23,13 @@ type output struct {
 // output. When both are Parquet, the kept input columns are copied into the
 // output chunk by chunk as they are, still encoded and compressed (see
 // pqio.Source), and the reader is restricted to the columns the encodings
-// need; a kept column that cannot be copied (nested, or its pages do not
-// check out) is read and written again as before. check, when not nil,
-// vets the input's schema first. The caller calls close and commits or
-// aborts w.
-func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio.WriteOptions, m *pipeline.Model, apply bool, check func(*table.Schema) error) (*output, error) {
+// need; a kept flat column that cannot be copied (its pages do not check
+// out) is read and written again as before. Nested input columns (lists,
+// maps, structs) are copied whole: those that keep names (the --keep list
+// as given; nil: every column is kept), and only into a Parquet output.
+// check, when not nil, vets the input's schema first. The caller calls
+// close and commits or aborts w.
+func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio.WriteOptions, m *pipeline.Model, apply bool, keep []string, check func(*table.Schema) error) (*output, error) {
 	r, err := tableio.Open(path, ropts)
 	if err != nil {
 		return nil, err
@@ -43,11 +48,12 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 	if err != nil {
 		return fail(err)
 	}
-	format := wopts.Format
-	if format == "" {
-		format = tableio.FormatOf(out)
+	format := outputFormat(out, wopts)
+	nested := keptNested(nestedOf(r), keep)
+	if err := checkNestedOutput(name, nested, o.full, format, apply); err != nil {
+		return fail(err)
 	}
-	if _, isParquet := r.(*pqio.Reader); isParquet && format == tableio.Parquet && len(kept) > 0 {
+	if _, isParquet := r.(*pqio.Reader); isParquet && format == tableio.Parquet && len(kept)+len(nested) > 0 {
 		if o.src, err = pqio.OpenSource(path); err != nil {
 			return fail(err)
 		}
@@ -65,7 +71,15 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 				read[f.Name] = true
 			}
 		}
-		if any {
+		for _, n := range nested {
+			if err := o.src.CanCopy(n.Name); err != nil {
+				if !errors.Is(err, table.ErrCorrupt) {
+					err = fmt.Errorf("%w: %w", table.ErrCorrupt, err)
+				}
+				return fail(fmt.Errorf("%s: nested column %q cannot be copied: %w", name, n.Name, err))
+			}
+		}
+		if any || len(nested) > 0 {
 			var sel []int
 			for i, f := range o.full.Fields {
 				if read[f.Name] {
@@ -75,7 +89,7 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 			if err := r.Select(sel); err != nil {
 				return fail(err)
 			}
-			wopts.Parquet.Source, wopts.Parquet.Copy = o.src, copied
+			wopts.Parquet.Source, wopts.Parquet.Copy, wopts.Parquet.Nested = o.src, copied, nested
 		} else {
 			o.src.Close()
 			o.src = nil

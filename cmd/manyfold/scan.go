@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/pqio"
 	"manyfold/io/tableio"
 )
 
@@ -44,8 +45,16 @@ func runScan(args []string) error {
 	defer r.Close()
 	s := r.Schema()
 	names := *columns
+	// Nested columns (lists, maps, structs) are listed as not encodable
+	// when every column is profiled.
+	nested := nestedOf(r)
+	if err := refuseNested(file, "--columns", "profiled or encoded", nested, names...); err != nil {
+		return err
+	}
 	if len(names) == 0 {
 		names = s.Names()
+	} else {
+		nested = nil
 	}
 	idx, err := selectColumns(file, "--columns", s, names)
 	if err != nil {
@@ -67,10 +76,36 @@ func runScan(args []string) error {
 	if *asJSON {
 		enc := json.NewEncoder(os.Stdout)
 		enc.SetIndent("", "  ")
-		return enc.Encode(map[string]any{"file": file, "columns": profiles})
+		doc := map[string]any{"file": file, "columns": profiles}
+		if len(nested) > 0 {
+			doc["not_encodable"] = notEncodable(nested)
+		}
+		return enc.Encode(doc)
 	}
 	printProfiles(profiles)
+	printNested(nested)
 	return nil
+}
+
+// nestedNote says why a nested column is not encodable.
+const nestedNote = "a nested column: not encodable; copied as it is into a Parquet output"
+
+// notEncodable lists nested columns for scan's JSON output.
+func notEncodable(nested []pqio.Nested) []map[string]string {
+	var out []map[string]string
+	for _, n := range nested {
+		out = append(out, map[string]string{"name": n.Name, "type": n.Kind, "reason": nestedNote})
+	}
+	return out
+}
+
+// printNested lists nested columns after the profiles.
+func printNested(nested []pqio.Nested) {
+	var b strings.Builder
+	for _, n := range nested {
+		fmt.Fprintf(&b, "\n%s  [%s]  %s\n", n.Name, n.Kind, nestedNote)
+	}
+	os.Stdout.WriteString(b.String())
 }
 
 func printProfiles(ps []pipeline.Profile) {

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/format"
 
 	"manyfold/io/table"
 )
@@ -43,7 +44,13 @@ func fuzzSeeds(t testing.TB) [][]byte {
 		cols = append(cols, col(t, k, ownForm(k), cs))
 	}
 	for _, comp := range []string{"snappy", "zstd", "none"} {
-		out = append(out, writeCols(t, schema, cols, n, 16, WriterOptions{RowGroupRows: 25, Compression: comp}))
+		data := writeCols(t, schema, cols, n, 16, WriterOptions{RowGroupRows: 25, Compression: comp})
+		// Without CRCs too, so that changed page bytes reach the decoder.
+		noCRC := rebuild(t, data, func(_, _, _ int, h *format.PageHeader, body []byte) []byte {
+			h.CRC = 0
+			return body
+		}, nil)
+		out = append(out, data, noCRC)
 	}
 	for _, rows := range []any{
 		[]typedRow{{Code: [3]byte{'A', 'B', 'C'}, U32: 7, I32Dict: -5, F64Dict: 0.25, Day: 3, Tags: []string{"x"}}},

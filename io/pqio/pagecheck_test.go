@@ -426,3 +426,28 @@ func patchFirstPageSize(t testing.TB, data []byte, c int) []byte {
 	copy(out[start:], hb)
 	return out
 }
+
+// TestSourceFooterLength opens as a Source a file whose footer length
+// claims nearly 4 GiB: refused as corrupt before anything of that size is
+// allocated.
+func TestSourceFooterLength(t *testing.T) {
+	data := bytes.Clone(crcFile(t, "snappy"))
+	binary.LittleEndian.PutUint32(data[len(data)-8:], 1<<32-1)
+	path := filepath.Join(t.TempDir(), "footer.parquet")
+	if err := os.WriteFile(path, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	var err error
+	alloc := allocDuring(func() {
+		var s *Source
+		if s, err = OpenSource(path); err == nil {
+			s.Close()
+		}
+	})
+	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), "footer of 4294967295 bytes") {
+		t.Fatalf("OpenSource: %v, want ErrCorrupt naming the footer's length", err)
+	}
+	if alloc > 1<<20 {
+		t.Fatalf("OpenSource allocated %d bytes", alloc)
+	}
+}

@@ -168,20 +168,8 @@ func openReaderAt(name string, ra io.ReaderAt, size int64) (r *Reader, err error
 			r, err = nil, fmt.Errorf("%s: %w: reading the footer: %v", name, table.ErrCorrupt, p)
 		}
 	}()
-	// Check the footer's length before the decoder allocates a buffer of
-	// that size: a damaged length would otherwise cost up to 4 GiB.
-	var tail [8]byte
-	if size < 12 {
-		return nil, fmt.Errorf("%s: %w: %d bytes is too short for a Parquet file", name, table.ErrCorrupt, size)
-	}
-	if _, err := ra.ReadAt(tail[:], size-8); err != nil {
-		return nil, fmt.Errorf("%s: reading the footer: %w", name, err)
-	}
-	if string(tail[4:]) != "PAR1" {
-		return nil, fmt.Errorf("%s: %w: no Parquet magic at the end of the file", name, table.ErrCorrupt)
-	}
-	if n := int64(binary.LittleEndian.Uint32(tail[:4])); n+12 > size {
-		return nil, fmt.Errorf("%s: %w: footer of %d bytes in a file of %d", name, table.ErrCorrupt, n, size)
+	if err := checkFooter(name, ra, size); err != nil {
+		return nil, err
 	}
 	pf, err := parquet.OpenFile(ra, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true))
 	if err != nil {
@@ -206,6 +194,25 @@ func openReaderAt(name string, ra io.ReaderAt, size int64) (r *Reader, err error
 	}
 	r.setSelection(all)
 	return r, nil
+}
+
+// checkFooter checks the footer's length before the decoder allocates a
+// buffer of that size: a damaged length would otherwise cost up to 4 GiB.
+func checkFooter(name string, ra io.ReaderAt, size int64) error {
+	var tail [8]byte
+	if size < 12 {
+		return fmt.Errorf("%s: %w: %d bytes is too short for a Parquet file", name, table.ErrCorrupt, size)
+	}
+	if _, err := ra.ReadAt(tail[:], size-8); err != nil {
+		return fmt.Errorf("%s: reading the footer: %w", name, err)
+	}
+	if string(tail[4:]) != "PAR1" {
+		return fmt.Errorf("%s: %w: no Parquet magic at the end of the file", name, table.ErrCorrupt)
+	}
+	if n := int64(binary.LittleEndian.Uint32(tail[:4])); n+12 > size {
+		return fmt.Errorf("%s: %w: footer of %d bytes in a file of %d", name, table.ErrCorrupt, n, size)
+	}
+	return nil
 }
 
 // isIOError reports whether err comes from reading the file rather than

@@ -23,6 +23,7 @@ import (
 type Source struct {
 	name string
 	f    *os.File
+	size int64 // of the file
 	meta *format.FileMetaData
 	cols map[string]*topColumn // the top-level columns, flat or nested, by name
 }
@@ -33,12 +34,16 @@ func OpenSource(path string) (*Source, error) {
 	if err != nil {
 		return nil, err
 	}
+	if err := checkFooter(path, f, size); err != nil {
+		f.Close()
+		return nil, err
+	}
 	pf, err := parquet.OpenFile(f, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true), parquet.ReadBufferSize(4096))
 	if err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w: %v", path, table.ErrCorrupt, err)
 	}
-	s := &Source{name: path, f: f, meta: pf.Metadata(), cols: map[string]*topColumn{}}
+	s := &Source{name: path, f: f, size: size, meta: pf.Metadata(), cols: map[string]*topColumn{}}
 	// Every top-level column can be copied, a nested one (a list, a map,
 	// a struct) as all its leaf columns and its schema subtree.
 	tops, err := topColumns(s.meta.Schema)
@@ -129,8 +134,8 @@ const maxHeader = 16 << 20
 // are within the limits of checkSizes. Errors name the page (1-based).
 func (s *Source) walk(start, size int64, cid format.CompressionCodec, f func(h *format.PageHeader, hlen int, pos int64) error) error {
 	end := start + size
-	if start < 4 || size < 0 || end < start {
-		return fmt.Errorf("%w: column chunk of %d bytes at byte %d", table.ErrCorrupt, size, start)
+	if start < 4 || size < 0 || start > s.size || size > s.size-start {
+		return fmt.Errorf("%w: column chunk of %d bytes at byte %d, in a file of %d", table.ErrCorrupt, size, start, s.size)
 	}
 	var buf []byte
 	for pos, page := start, 1; pos < end; page++ {

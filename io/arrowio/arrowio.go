@@ -191,11 +191,16 @@ func openStream(in io.Reader, name string) (r *reader, err error) {
 			r, err = nil, corrupt(name, p)
 		}
 	}()
-	sr, err := ipc.NewReaderFromMessageReader(&msgReader{r: in}, ipc.WithAllocator(readAlloc))
+	mr := &msgReader{r: in}
+	sr, err := ipc.NewReaderFromMessageReader(mr, ipc.WithAllocator(readAlloc))
 	if err != nil {
 		if errors.Is(err, io.EOF) {
 			return nil, fmt.Errorf("%s: %w", name, table.ErrEmpty)
 		}
+		return nil, fmt.Errorf("%s: %w: %w", name, table.ErrCorrupt, err)
+	}
+	if mr.guard, err = streamGuard(mr.schema, sr.Schema()); err != nil {
+		sr.Release()
 		return nil, fmt.Errorf("%s: %w: %w", name, table.ErrCorrupt, err)
 	}
 	r, err = newReader(name, sr.Schema())

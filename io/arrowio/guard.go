@@ -1,11 +1,14 @@
 package arrowio
 
 import (
+	"bytes"
+	"cmp"
 	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
 	"os"
+	"slices"
 
 	flatbuffers "github.com/google/flatbuffers/go"
 
@@ -37,6 +40,7 @@ const (
 	slotFooterMeta     = 12 // Footer.custom_metadata
 
 	slotDictData      = 6  // DictionaryBatch.data: RecordBatch
+	slotBatchLength   = 4  // RecordBatch.length: long
 	slotBatchNodes    = 6  // RecordBatch.nodes: [FieldNode]
 	slotBatchBuffers  = 8  // RecordBatch.buffers: [Buffer]
 	slotBatchVariadic = 12 // RecordBatch.variadicBufferCounts: [long]
@@ -134,10 +138,15 @@ func (c *fbCheck) field(t *flatbuffers.Table, depth int) error {
 	return c.tables(t, slotFieldChildren, func(f *flatbuffers.Table) error { return c.field(f, depth+1) })
 }
 
-// checkMessage checks message metadata and returns the body length.
-func checkMessage(meta []byte) (int64, error) {
+// checkMessage checks message metadata and returns the body length and
+// the kind of message (headerSchema, headerDict, headerBatch, or another
+// value the library refuses).
+func checkMessage(meta []byte) (int64, byte, error) {
 	c := newCheck(meta)
-	var body int64
+	var (
+		body int64
+		kind byte
+	)
 	err := c.run(func() error {
 		t := c.root()
 		if err := c.tables(&t, slotMsgMeta, nil); err != nil {
@@ -153,7 +162,7 @@ func checkMessage(meta []byte) (int64, error) {
 		if o == 0 {
 			return nil
 		}
-		kind := t.GetByte(o + t.Pos)
+		kind = t.GetByte(o + t.Pos)
 		h := flatbuffers.UOffsetT(t.Offset(slotMsgHeader))
 		if h == 0 {
 			return errBadMeta
@@ -175,7 +184,7 @@ func checkMessage(meta []byte) (int64, error) {
 		}
 		return nil
 	})
-	return body, err
+	return body, kind, err
 }
 
 // batch checks that a record batch's buffers lie inside its body.
@@ -202,7 +211,8 @@ func (c *fbCheck) batch(t *flatbuffers.Table, body int64) error {
 }
 
 // checkFooter checks the footer of an Arrow file of the given size: its
-// schema, and that every block lies inside the file.
+// schema; that every block lies inside the file, apart from the others;
+// and each block's message, batches against the schema (batchGuard).
 func checkFooter(f *os.File, size int64) error {
 	const trailer = 10 // footer length (int32) and "ARROW1"
 	if size < int64(8+trailer) {
@@ -224,43 +234,91 @@ func checkFooter(f *os.File, size int64) error {
 		return err
 	}
 	c := newCheck(buf)
-	return c.run(func() error {
+	var (
+		schemaPos flatbuffers.UOffsetT
+		version   int16
+		blocks    [2][]fileBlock
+	)
+	err := c.run(func() error {
 		t := c.root()
 		if err := c.tables(&t, slotFooterMeta, nil); err != nil {
 			return err
 		}
-		for _, slot := range []flatbuffers.VOffsetT{slotFooterDicts, slotFooterRecords} {
+		if o := flatbuffers.UOffsetT(t.Offset(slotFooterVersion)); o != 0 {
+			version = t.GetInt16(o + t.Pos)
+		}
+		for i, slot := range []flatbuffers.VOffsetT{slotFooterDicts, slotFooterRecords} {
 			start, k, err := c.vector(&t, slot, blockSize)
 			if err != nil {
 				return err
 			}
 			for j := 0; j < k; j++ {
 				b := buf[start+uint32(j*blockSize):]
-				off := int64(binary.LittleEndian.Uint64(b))
-				meta := int64(int32(binary.LittleEndian.Uint32(b[8:])))
-				body := int64(binary.LittleEndian.Uint64(b[16:]))
-				if off < 0 || meta < 8 || body < 0 || off > size || meta > size || body > size || off+meta+body > size {
+				blk := fileBlock{
+					off:  int64(binary.LittleEndian.Uint64(b)),
+					meta: int64(int32(binary.LittleEndian.Uint32(b[8:]))),
+					body: int64(binary.LittleEndian.Uint64(b[16:])),
+				}
+				if blk.off < 0 || blk.meta < 8 || blk.body < 0 || blk.off > size || blk.meta > size || blk.body > size || blk.off+blk.meta+blk.body > size {
 					return fmt.Errorf("a block lies outside the file: %w", errBadMeta)
 				}
-				if err := checkBlock(f, off, meta, body); err != nil {
-					return err
-				}
+				blocks[i] = append(blocks[i], blk)
 			}
 		}
 		o := flatbuffers.UOffsetT(t.Offset(slotFooterSchema))
 		if o == 0 {
 			return errBadMeta
 		}
-		s := flatbuffers.Table{Bytes: buf, Pos: t.Indirect(o + t.Pos)}
+		schemaPos = t.Indirect(o + t.Pos)
+		s := flatbuffers.Table{Bytes: buf, Pos: schemaPos}
 		return c.schema(&s)
 	})
+	if err != nil {
+		return err
+	}
+	if err := disjoint(append(append([]fileBlock{}, blocks[0]...), blocks[1]...)); err != nil {
+		return err
+	}
+	meta, pos := schemaMessage(buf, schemaPos, version)
+	schema, err := schemaOf(meta)
+	if err != nil {
+		return err
+	}
+	g, err := newBatchGuard(meta, pos, schema)
+	if err != nil {
+		return err
+	}
+	for i, want := range []byte{headerDict, headerBatch} {
+		for _, blk := range blocks[i] {
+			if err := checkBlock(f, g, blk, want); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
 }
 
-// checkBlock checks the message of a file block, whose metadata (with its
-// length prefix) starts at off.
-func checkBlock(f *os.File, off, meta, body int64) error {
-	buf := make([]byte, meta)
-	if _, err := f.ReadAt(buf, off); err != nil {
+// fileBlock is a block of a file's footer: the offset of a message, the
+// length of its metadata (with the length prefix) and of its body.
+type fileBlock struct{ off, meta, body int64 }
+
+// disjoint checks that no two blocks share a byte, so that reading every
+// block reads no byte of the file twice.
+func disjoint(blocks []fileBlock) error {
+	slices.SortFunc(blocks, func(a, b fileBlock) int { return cmp.Compare(a.off, b.off) })
+	for i := 1; i < len(blocks); i++ {
+		if prev := blocks[i-1]; blocks[i].off < prev.off+prev.meta+prev.body {
+			return fmt.Errorf("two blocks of the footer overlap: %w", errBadMeta)
+		}
+	}
+	return nil
+}
+
+// checkBlock checks the message of a file block, which must be of kind
+// want, and its batch.
+func checkBlock(f *os.File, g *batchGuard, blk fileBlock, want byte) error {
+	buf := make([]byte, blk.meta)
+	if _, err := f.ReadAt(buf, blk.off); err != nil {
 		return err
 	}
 	// The prefix as the library reads it: continuation marker and length,
@@ -272,14 +330,17 @@ func checkBlock(f *os.File, off, meta, body int64) error {
 	case 0xffffffff:
 		prefix = 8
 	}
-	got, err := checkMessage(buf[prefix:])
+	got, kind, err := checkMessage(buf[prefix:])
 	if err != nil {
 		return err
 	}
-	if got > body {
+	if got > blk.body {
 		return fmt.Errorf("a message body is longer than its block: %w", errBadMeta)
 	}
-	return nil
+	if kind != want {
+		return fmt.Errorf("a block holds a message of another kind: %w", errBadMeta)
+	}
+	return g.check(buf[prefix:], io.NewSectionReader(f, blk.off+blk.meta, blk.body), blk.body)
 }
 
 // msgReader frames the messages of an IPC stream like the library's own
@@ -287,9 +348,11 @@ func checkBlock(f *os.File, off, meta, body int64) error {
 // bytes arrive, so a damaged length cannot claim more memory than the input
 // holds.
 type msgReader struct {
-	r   io.Reader
-	msg *ipc.Message
-	buf [4]byte
+	r      io.Reader
+	msg    *ipc.Message
+	buf    [4]byte
+	schema []byte      // the metadata of the schema message
+	guard  *batchGuard // set once the library has read the schema
 }
 
 // Message returns the next message, or io.EOF at the end of the stream (an
@@ -319,13 +382,26 @@ func (m *msgReader) Message() (*ipc.Message, error) {
 	if err != nil {
 		return nil, err
 	}
-	bodyLen, err := checkMessage(meta)
+	bodyLen, kind, err := checkMessage(meta)
 	if err != nil {
 		return nil, err
 	}
 	body, err := readGrow(m.r, bodyLen)
 	if err != nil {
 		return nil, err
+	}
+	switch kind {
+	case headerSchema:
+		if m.schema == nil {
+			m.schema = meta
+		}
+	case headerDict, headerBatch:
+		if m.guard == nil {
+			return nil, fmt.Errorf("a batch before the schema: %w", errBadMeta)
+		}
+		if err := m.guard.check(meta, bytes.NewReader(body), bodyLen); err != nil {
+			return nil, err
+		}
 	}
 	m.msg = ipc.NewMessage(memory.NewBufferBytes(meta), memory.NewBufferBytes(body))
 	return m.msg, nil

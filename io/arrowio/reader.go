@@ -33,6 +33,7 @@ type reader struct {
 	batch  table.Batch
 	cols   []colState // per selected column
 	rows   int64      // rows returned so far
+	nbatch int        // record batches read so far
 	lastID uint64     // last dictionary ID handed out
 }
 
@@ -194,6 +195,7 @@ func (r *reader) next() (b *table.Batch, err error) {
 		r.rec = r.stream.Record()
 		r.rec.Retain()
 	}
+	r.nbatch++
 	n := int(r.rec.NumRows())
 	if n < 0 || int64(r.rec.NumCols()) != int64(len(r.full)) {
 		return nil, fmt.Errorf("%s: %w: record batch does not match the schema", r.name, table.ErrCorrupt)
@@ -218,9 +220,10 @@ func (r *reader) dataErr(i int, column string, err error) error {
 	return &table.DataError{File: r.name, Row: r.rows + int64(i) + 1, Column: column, Err: err}
 }
 
-// badBuffers reports buffers that do not fit the declared lengths.
+// badBuffers reports buffers of the current record batch that do not fit
+// the declared lengths.
 func (r *reader) badBuffers(column, what string) error {
-	return fmt.Errorf("%s: column %q: %w: %s", r.name, column, table.ErrCorrupt, what)
+	return fmt.Errorf("%s: record batch %d: column %q: %w: %s", r.name, r.nbatch, column, table.ErrCorrupt, what)
 }
 
 // convert fills col from arr, reusing the buffers of st.
@@ -242,11 +245,11 @@ func (r *reader) convert(arr arrow.Array, st *colState, col *table.Column, name 
 	case *array.LargeBinary:
 		return r.text64(st, col, n, a.Data(), name)
 	case *array.StringView:
-		return r.textCopy(st, col, n, name, func(dst []byte, i int) []byte { return append(dst, a.Value(i)...) })
+		return r.textCopy(st, col, n, name, viewTextLimit(a.Data()), func(dst []byte, i int) []byte { return append(dst, a.Value(i)...) })
 	case *array.BinaryView:
-		return r.textCopy(st, col, n, name, func(dst []byte, i int) []byte { return append(dst, a.Value(i)...) })
+		return r.textCopy(st, col, n, name, viewTextLimit(a.Data()), func(dst []byte, i int) []byte { return append(dst, a.Value(i)...) })
 	case *array.FixedSizeBinary:
-		return r.textCopy(st, col, n, name, func(dst []byte, i int) []byte { return append(dst, a.Value(i)...) })
+		return r.textCopy(st, col, n, name, math.MaxInt32, func(dst []byte, i int) []byte { return append(dst, a.Value(i)...) })
 	case *array.Null:
 		col.Form = table.FormText
 		st.offs = resize(st.offs, n+1)
@@ -452,22 +455,42 @@ func (r *reader) offsets64(scratch *[]int32, d arrow.ArrayData, n int, name stri
 	return out, vals[base:last], nil
 }
 
-// textCopy sets col to text appended row by row by appendRow.
-func (r *reader) textCopy(st *colState, col *table.Column, n int, name string, appendRow func([]byte, int) []byte) error {
+// textCopy sets col to text appended row by row by appendRow, refusing more
+// than limit bytes.
+func (r *reader) textCopy(st *colState, col *table.Column, n int, name string, limit int, appendRow func([]byte, int) []byte) error {
 	col.Form = table.FormText
 	st.offs = resize(st.offs, n+1)
 	st.offs[0] = 0
 	data := st.data[:0]
 	for i := 0; i < n; i++ {
 		data = appendRow(data, i)
-		if len(data) > math.MaxInt32 {
-			return fmt.Errorf("%s: column %q: a record batch holds more than 2 GiB of text", r.name, name)
+		if len(data) > limit {
+			if limit == math.MaxInt32 {
+				return fmt.Errorf("%s: column %q: a record batch holds more than 2 GiB of text", r.name, name)
+			}
+			return r.badBuffers(name, fmt.Sprintf("views point at more than %d bytes of text, %d times the bytes of the column (and 1 MiB)", limit, viewTextPerByte))
 		}
 		st.offs[i+1] = int32(len(data))
 	}
 	st.data = data
 	col.Offsets, col.Data = st.offs, data
 	return nil
+}
+
+// A view column's rows may share their bytes, so its text can be longer
+// than its buffers; viewTextLimit bounds it by viewTextPerByte times the
+// column's buffers, plus 1 MiB, and by 2 GiB, so that a few views cannot
+// make a batch of gigabytes.
+const viewTextPerByte = 64
+
+func viewTextLimit(d arrow.ArrayData) int {
+	var size int64
+	for _, b := range d.Buffers() {
+		if b != nil {
+			size += int64(b.Len())
+		}
+	}
+	return int(min(1<<20+viewTextPerByte*size, math.MaxInt32))
 }
 
 func (r *reader) setInts(col *table.Column, v []int64, n int, name string) error {

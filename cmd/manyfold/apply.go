@@ -1,11 +1,13 @@
 package main
 
 import (
+	"errors"
 	"fmt"
 	"os"
 	"time"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/csvio"
 	"manyfold/io/table"
 )
 
@@ -50,6 +52,7 @@ func runApply(args []string) error {
 	if err != nil {
 		return err
 	}
+	ropts.CSV.TypesIfPresent = fittedKinds(m)
 	name := file
 	if file == "-" {
 		name = "stdin"
@@ -67,7 +70,7 @@ func runApply(args []string) error {
 	pr.done()
 	if err != nil {
 		w.Abort()
-		return err
+		return fittedKindError(err, ropts.CSV, *tables)
 	}
 	if err := w.Commit(); err != nil {
 		return commitError(err)
@@ -85,4 +88,49 @@ func runApply(args []string) error {
 	}
 	fmt.Fprintf(os.Stderr, "; wrote %s\n", of.out)
 	return nil
+}
+
+// fittedKinds returns the kinds the mapping tables' columns were fitted on,
+// the encoded columns' and the --prior-by column's, so that a CSV input
+// reads them as those kinds instead of inferring them from its own rows:
+// postcodes fitted as text stay text in a batch whose postcodes happen to
+// have no leading zero ("501" and "00501" stay distinct levels). --type
+// still overrides them.
+func fittedKinds(m *pipeline.Model) map[string]table.Kind {
+	kinds := make(map[string]table.Kind, len(m.Cols)+1)
+	if pc := m.Spec.PriorColumn; pc != "" {
+		for _, f := range m.Input {
+			if f.Name == pc {
+				kinds[pc] = f.Kind
+			}
+		}
+	}
+	for _, c := range m.Cols {
+		kinds[c.Name] = c.Kind
+	}
+	return kinds
+}
+
+// fittedKindError turns the error of a CSV value that does not read as the
+// kind its column was fitted on (read as that kind by fittedKinds, not
+// forced with --type) into the mismatch it is: exit 6, naming the line,
+// the column and the value. Other errors are returned as they are.
+func fittedKindError(err error, opts csvio.Options, dir string) error {
+	var de *table.DataError
+	var ke *csvio.KindError
+	if !errors.As(err, &de) || !errors.As(err, &ke) {
+		return err
+	}
+	if _, forced := opts.Types[de.Column]; forced {
+		return err
+	}
+	if _, fitted := opts.TypesIfPresent[de.Column]; !fitted {
+		return err
+	}
+	v := ke.Value
+	if len(v) > 40 {
+		v = v[:40] + "..."
+	}
+	return &pipeline.ManifestError{Dir: dir, Msg: fmt.Sprintf("column %q of %s is %s on line %d (%q), but the tables were fitted on %s",
+		de.Column, de.File, ke.Is, de.Line, v, ke.Want)}
 }

@@ -49,12 +49,18 @@ type inputFlags struct {
 	delim    string
 	noHeader bool
 	types    []string
+	maxField int
 }
+
+// maxFieldLimit is the largest --max-field-bytes: 1 GiB, as a batch of the
+// CSV reader holds at most 2 GiB.
+const maxFieldLimit = 1 << 30
 
 func (f *inputFlags) add(fs *pflag.FlagSet) {
 	fs.StringVar(&f.delim, "delimiter", ",", "CSV field delimiter: , ; tab or |")
 	fs.BoolVar(&f.noHeader, "no-header", false, "CSV input has no header row; columns are named col1, col2, ...")
 	fs.StringSliceVar(&f.types, "type", nil, "override an inferred CSV column type, COL=text|int|float|bool (repeatable)")
+	fs.IntVar(&f.maxField, "max-field-bytes", csvio.DefaultMaxFieldBytes, "longest CSV field accepted, in bytes as written (1 to 1073741824); a longer one is an error")
 }
 
 func (f *inputFlags) options() (tableio.ReadOptions, error) {
@@ -72,6 +78,10 @@ func (f *inputFlags) options() (tableio.ReadOptions, error) {
 		return tableio.ReadOptions{}, usagef("--delimiter %q: want , ; tab or |", f.delim)
 	}
 	o.NoHeader = f.noHeader
+	if f.maxField < 1 || f.maxField > maxFieldLimit {
+		return tableio.ReadOptions{}, usagef("--max-field-bytes %d: want 1 to %d", f.maxField, maxFieldLimit)
+	}
+	o.MaxFieldBytes = f.maxField
 	for _, t := range f.types {
 		name, kind, ok := strings.Cut(t, "=")
 		if !ok {

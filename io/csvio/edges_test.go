@@ -5,6 +5,7 @@ import (
 	"errors"
 	"io"
 	"runtime"
+	"slices"
 	"strings"
 	"testing"
 
@@ -27,8 +28,10 @@ func TestBadValueBatchLines(t *testing.T) {
 		t.Fatalf("batch of %d rows with %d lines, want 2 and 2", b.Rows, len(b.Lines))
 	}
 	var de *table.DataError
-	if _, err := r.Next(); !errors.As(err, &de) || de.Line != 4 || de.Column != "a" {
-		t.Errorf("second Next: %v, want the bad value at line 4, column a", err)
+	var ke *KindError
+	if _, err := r.Next(); !errors.As(err, &de) || de.Line != 4 || de.Column != "a" || !errors.As(err, &ke) ||
+		ke.Value != "A" || ke.Want != table.Int64 || ke.Is != table.String {
+		t.Errorf("second Next: %v, want the bad value A (text, not int) at line 4, column a", err)
 	}
 }
 
@@ -250,5 +253,23 @@ func TestBigIntegersAreText(t *testing.T) {
 		if len(res.rows) != len(want) || res.rows[0][0] != want[0] || res.rows[1][0] != want[1] {
 			t.Errorf("%q: rows %q", tc.in, res.rows)
 		}
+	}
+}
+
+// TestTypesIfPresent: kinds given for the columns a header may have are
+// used instead of inference, a name the header lacks is ignored, and Types
+// wins over them.
+func TestTypesIfPresent(t *testing.T) {
+	opts := Options{
+		Types:          map[string]table.Kind{"late": table.Int64},
+		TypesIfPresent: map[string]table.Kind{"pc": table.String, "late": table.Bool, "gone": table.Float64},
+	}
+	res, err := readBoth(t, []byte("pc,late,cost\n501,1,2\n502,0,3\n"), opts, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []table.Kind{table.String, table.Int64, table.Int64}
+	if !slices.Equal(res.kinds, want) || res.rows[0][0] != "501" {
+		t.Errorf("kinds %v, rows %q; want %v", res.kinds, res.rows, want)
 	}
 }

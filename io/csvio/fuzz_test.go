@@ -92,10 +92,11 @@ func FuzzReader(f *testing.F) {
 			}
 			return
 		}
-		if errors.Is(gerr, errKindValue) {
+		var ke *KindError
+		if errors.As(gerr, &ke) {
 			all := opts
 			all.SampleRows = math.MaxInt32
-			if got, gerr = fuzzRead(data, all); errors.Is(gerr, errKindValue) {
+			if got, gerr = fuzzRead(data, all); errors.As(gerr, &ke) {
 				t.Fatalf("a value does not read as the kind inferred from every row: %v", gerr)
 			}
 		}

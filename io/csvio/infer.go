@@ -40,6 +40,19 @@ func inferKind(c *colBuf, rows int) table.Kind {
 	return table.String
 }
 
+// valueKind returns the kind one value v would be inferred as alone.
+func valueKind(v []byte) table.Kind {
+	switch {
+	case intText(v):
+		return table.Int64
+	case floatText(v) && !bigInt(v):
+		return table.Float64
+	case boolText(v):
+		return table.Bool
+	}
+	return table.String
+}
+
 // intText reports whether v is a decimal int64: an optional minus sign,
 // then digits with no leading zero unless the number is 0.
 func intText(v []byte) bool {

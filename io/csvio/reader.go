@@ -27,6 +27,11 @@ type Options struct {
 	NoHeader bool
 	// Types overrides the inferred kind of the columns it names.
 	Types map[string]table.Kind
+	// TypesIfPresent sets the kind of the columns it names that the
+	// header has, instead of inferring it: the kinds a table was fitted
+	// on, say. Unlike Types, a name the header lacks is ignored; Types
+	// wins for a column both name.
+	TypesIfPresent map[string]table.Kind
 	// SampleRows is the number of rows used to infer column kinds; values
 	// below 1 mean 10000.
 	SampleRows int
@@ -363,6 +368,12 @@ func (r *Reader) start(opts Options) error {
 		r.fields[i].Kind = k
 		overridden[i] = true
 	}
+	for name, k := range opts.TypesIfPresent {
+		if i := full.Index(name); i >= 0 && !overridden[i] && k <= table.Bool {
+			r.fields[i].Kind = k
+			overridden[i] = true
+		}
+	}
 	all := make([]int, n)
 	for i := range all {
 		all[i] = i
@@ -631,7 +642,8 @@ func (r *Reader) check(rows int) (int, error) {
 			v := c.value(i)
 			if err := checkValue(kind, v); err != nil {
 				bad = i
-				first = &table.DataError{File: r.name, Line: r.lines[i], Row: r.rowsDone + int64(i) + 1, Column: r.schema.Fields[k].Name, Err: &kindError{err}}
+				first = &table.DataError{File: r.name, Line: r.lines[i], Row: r.rowsDone + int64(i) + 1, Column: r.schema.Fields[k].Name,
+					Err: &KindError{Value: string(v), Want: kind, Is: valueKind(v), Err: err}}
 				break
 			}
 		}
@@ -639,17 +651,21 @@ func (r *Reader) check(rows int) (int, error) {
 	return bad, first
 }
 
-// errKindValue is matched (errors.Is) by the error of a value that does
-// not read as its column's kind.
-var errKindValue = errors.New("value does not read as its column's kind")
+// KindError is the error, inside a *table.DataError that names the line
+// and the column, of a value that does not read as its column's kind. It
+// reads as the parser's error.
+type KindError struct {
+	Value string     // the value as written
+	Want  table.Kind // the column's kind
+	Is    table.Kind // the kind the value alone would be inferred as
+	Err   error      // the parser's error
+}
 
-// kindError is the error of a value that does not read as its column's
-// kind; it reads as the parser's error.
-type kindError struct{ err error }
+// Error returns the parser's message, such as "x" is not an integer.
+func (e *KindError) Error() string { return e.Err.Error() }
 
-func (e *kindError) Error() string        { return e.err.Error() }
-func (e *kindError) Unwrap() error        { return e.err }
-func (e *kindError) Is(target error) bool { return target == errKindValue }
+// Unwrap returns the parser's error.
+func (e *KindError) Unwrap() error { return e.Err }
 
 // checkValue reports whether v reads as a value of kind: the quick forms
 // of inference first, then the parsers the writers use.

@@ -13,6 +13,7 @@ import (
 	"manyfold/encoders/hashenc"
 	"manyfold/encoders/pipeline"
 	"manyfold/folds"
+	"manyfold/internal/guard"
 	"manyfold/io/table"
 )
 
@@ -560,22 +561,26 @@ func parallel(n, threads int, f func(i int)) {
 		}
 		return
 	}
-	var wg sync.WaitGroup
+	// A panic of f reaches the caller's goroutine (guard.Group); the
+	// other workers drain the queue so that the loop below ends.
+	var g guard.Group
 	next := make(chan int)
 	for w := 0; w < threads; w++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
+		g.Go(func() {
+			defer func() {
+				for range next {
+				}
+			}()
 			for i := range next {
 				f(i)
 			}
-		}()
+		})
 	}
 	for i := 0; i < n; i++ {
 		next <- i
 	}
 	close(next)
-	wg.Wait()
+	g.Wait()
 }
 
 // foldMeanStd is the mean and sample standard deviation of the finite values

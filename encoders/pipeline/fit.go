@@ -7,6 +7,7 @@ import (
 	"sync"
 
 	"manyfold/encoders/colstats"
+	"manyfold/internal/guard"
 	"manyfold/internal/hugemem"
 	"manyfold/io/table"
 )
@@ -350,12 +351,13 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	}
 	if opt.Tables && opt.Threads >= 2 {
 		// order is safe beside derive: both only read the statistics,
-		// and the first call of order sorts while later ones wait.
-		go func() {
+		// and the first call of order sorts while later ones wait. A
+		// panic here stops every commit (guard.Go).
+		guard.Go(func() {
 			for _, i := range byLevels(m.Cols) {
 				m.Cols[i].order()
 			}
-		}()
+		})
 	}
 	m.deriveAll(tr != nil, opt.Threads)
 	return m, nil
@@ -705,15 +707,16 @@ func each(n, threads int, f func(i int)) {
 		}
 		return
 	}
-	var wg sync.WaitGroup
+	// A panic of f reaches the caller's goroutine (guard.Group), where
+	// the command turns it into one line and exit code 1.
+	var g guard.Group
 	sem := make(chan struct{}, threads)
 	for i := 0; i < n; i++ {
-		wg.Add(1)
 		sem <- struct{}{}
-		go func(i int) {
-			defer func() { <-sem; wg.Done() }()
+		g.Go(func() {
+			defer func() { <-sem }()
 			f(i)
-		}(i)
+		})
 	}
-	wg.Wait()
+	g.Wait()
 }

@@ -8,8 +8,8 @@ import (
 	"io"
 	"math"
 	"runtime"
-	"sync"
 
+	"manyfold/internal/guard"
 	"manyfold/io/table"
 )
 
@@ -174,16 +174,14 @@ const (
 
 // formatParts formats the rows of b in parts on goroutines of their own.
 func (w *writer) formatParts(b *table.Batch, parts int) {
-	var wg sync.WaitGroup
+	var g guard.Group // a panic reaches the caller's goroutine
 	for p := 0; p < parts; p++ {
 		lo, hi := b.Rows*p/parts, b.Rows*(p+1)/parts
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
+		g.Go(func() {
 			w.bufs[p] = w.format(w.bufs[p][:0], b, lo, hi, w.floats[p])
-		}()
+		})
 	}
-	wg.Wait()
+	g.Wait()
 }
 
 // format appends rows lo..hi of b as CSV lines to dst, with floats' texts

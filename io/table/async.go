@@ -4,6 +4,8 @@ import (
 	"errors"
 	"io"
 	"sync"
+
+	"manyfold/internal/guard"
 )
 
 // CopyBatch makes dst a copy of src that shares no memory with it, reusing
@@ -125,7 +127,7 @@ func (a *readAhead) start() {
 	go func() {
 		defer a.wg.Done()
 		for {
-			b, err := a.r.Next()
+			b, err := a.next()
 			var dst *Batch
 			if err == nil {
 				select {
@@ -145,6 +147,13 @@ func (a *readAhead) start() {
 			}
 		}
 	}()
+}
+
+// next reads r's next batch; a panic of the reader becomes its error
+// (a *guard.Panic), so that it ends the run with one line, not a crash.
+func (a *readAhead) next() (b *Batch, err error) {
+	defer guard.Catch(&err)
+	return a.r.Next()
 }
 
 // Next returns the next batch.
@@ -197,7 +206,7 @@ func WriteBehind(w Writer) Writer {
 		defer close(wb.done)
 		for b := range wb.in {
 			if wb.failed() == nil {
-				if err := w.Write(b); err != nil {
+				if err := writeGuarded(w, b); err != nil {
 					wb.mu.Lock()
 					wb.err = err
 					wb.mu.Unlock()
@@ -207,6 +216,12 @@ func WriteBehind(w Writer) Writer {
 		}
 	}()
 	return wb
+}
+
+// writeGuarded writes b to w; a panic of the writer becomes its error.
+func writeGuarded(w Writer, b *Batch) (err error) {
+	defer guard.Catch(&err)
+	return w.Write(b)
 }
 
 type writeBehind struct {

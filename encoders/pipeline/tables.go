@@ -83,6 +83,8 @@ type ManifestCol struct {
 	Type        string     `json:"type"`
 	Table       string     `json:"table"`
 	ParentTable string     `json:"parent_table,omitempty"`
+	TableSum    string     `json:"table_xxh64"`                  // xxh64 of the table file, 16 hexadecimal digits
+	ParentSum   string     `json:"parent_table_xxh64,omitempty"` // and of the parent table
 	Levels      int        `json:"levels"`
 	Stored      int        `json:"levels_stored"`
 	Prior       []*float64 `json:"prior,omitempty"`
@@ -271,14 +273,17 @@ func (m *Model) writeTables(dir string) error {
 	first := byLevels(m.Cols)
 	each(len(m.Cols), m.threads, func(k int) {
 		i := first[k]
-		errs[i] = m.saveCol(filepath.Join(dir, mf.Columns[i].Table), m.Cols[i])
+		mc := &mf.Columns[i]
+		mc.TableSum, errs[i] = m.saveTable(filepath.Join(dir, mc.Table), m.Cols[i])
 	})
 	for i, c := range m.Cols {
 		if errs[i] != nil {
 			return errs[i]
 		}
 		if c.Parent != nil {
-			if err := m.saveCol(filepath.Join(dir, mf.Columns[i].ParentTable), c.Parent); err != nil {
+			mc := &mf.Columns[i]
+			var err error
+			if mc.ParentSum, err = m.saveTable(filepath.Join(dir, mc.ParentTable), c.Parent); err != nil {
 				return err
 			}
 		}
@@ -296,6 +301,19 @@ func (m *Model) writeTables(dir string) error {
 		return err
 	}
 	return f.Commit()
+}
+
+// saveTable writes the mapping table of c at path and returns its
+// checksum, which the manifest records.
+func (m *Model) saveTable(path string, c *Col) (string, error) {
+	if err := m.saveCol(path, c); err != nil {
+		return "", err
+	}
+	sum, err := fileChecksum(path)
+	if err != nil {
+		return "", fmt.Errorf("tables: %w", err)
+	}
+	return sum, nil
 }
 
 // tableSchema returns the layout of a column's mapping table.
@@ -489,151 +507,6 @@ func (m *Model) binaryTableValues(c *Col, sel []int, unkept0 bool, all, rows, c0
 		}
 		tmean[i] = ft.Encode(colstats.Agg{N: float64(rows[i]), Sum: float64(k), SumSq: float64(k)})
 	}
-}
-
-// LoadTables reads a tables directory written by SaveTables into a model
-// that encodes new rows (EncodeOptions.Apply) and merges with others.
-func LoadTables(dir string) (*Model, error) {
-	data, err := os.ReadFile(filepath.Join(dir, ManifestName))
-	if err != nil {
-		if errors.Is(err, os.ErrNotExist) {
-			return nil, &ManifestError{Dir: dir, Msg: "no " + ManifestName + " here; is this a tables directory written by manyfold encode?"}
-		}
-		return nil, err
-	}
-	var mf Manifest
-	if err := json.Unmarshal(data, &mf); err != nil {
-		return nil, &ManifestError{Dir: dir, Msg: "manifest.json is not valid: " + err.Error()}
-	}
-	if mf.Format != FormatVersion {
-		return nil, &ManifestError{Dir: dir, Msg: fmt.Sprintf("mapping tables of format version %d; this manyfold reads version %d: refit them with manyfold encode", mf.Format, FormatVersion)}
-	}
-	if mf.Tool != Version {
-		return nil, &ManifestError{Dir: dir, Msg: fmt.Sprintf("mapping tables written by manyfold %s; this is manyfold %s: refit them with this version", mf.Tool, Version)}
-	}
-	sp, err := specFrom(&mf)
-	if err != nil {
-		return nil, &ManifestError{Dir: dir, Msg: err.Error()}
-	}
-	m := &Model{Spec: sp, Classes: mf.Classes, Rows: mf.Rows, Missing: mf.Missing}
-	for _, f := range mf.Input {
-		k, _ := table.ParseKind(f.Type)
-		m.Input = append(m.Input, table.Field{Name: f.Name, Kind: k})
-	}
-	supervised := mf.Task != ""
-	m.Origin = mf.Origin
-	if supervised {
-		m.Task, _ = colstats.ParseTask(mf.Task)
-		m.Pos = len(m.Classes) - 1
-	}
-	for _, mc := range mf.Columns {
-		k, _ := table.ParseKind(mc.Type)
-		c, err := m.loadCol(filepath.Join(dir, mc.Table), supervised, mc.Prior, mc.M)
-		if err != nil {
-			return nil, err
-		}
-		c.Name, c.Kind = mc.Name, k
-		if mc.ParentTable != "" {
-			p, err := m.loadCol(filepath.Join(dir, mc.ParentTable), supervised, mc.ParentPrior, mc.ParentM)
-			if err != nil {
-				return nil, err
-			}
-			c.Parent = p
-		}
-		m.Cols = append(m.Cols, c)
-	}
-	return m, nil
-}
-
-func specFrom(mf *Manifest) (Spec, error) {
-	p := mf.Params
-	sm, err := ParseSmoothing(p.Smoothing)
-	if err != nil {
-		return Spec{}, err
-	}
-	sp := Spec{Target: mf.Target, Methods: p.Methods, Task: mf.Task, Folds: p.Folds, FoldBy: p.FoldBy, Seed: p.Seed,
-		Scheme: p.Scheme, Smoothing: sm, PriorPrefix: p.PriorPrefix, PriorColumn: p.PriorColumn, Output: p.Output, FreqShare: p.Freq == "share",
-		TopK: p.TopK, MinCount: p.MinCount, Buckets: p.Buckets, HashSeed: p.HashSeed, Signed: p.Signed,
-		MinLevelRows: p.MinLevelRows, NullsUnseen: p.Nulls == "unseen", KeepAll: true}
-	for _, c := range mf.Columns {
-		sp.Columns = append(sp.Columns, c.Name)
-	}
-	return sp, nil
-}
-
-// loadCol reads one mapping table into a column whose statistics have a
-// single fold and whose derived values are those stored.
-func (m *Model) loadCol(path string, supervised bool, prior, ms []*float64) (*Col, error) {
-	r, err := tableio.Open(path, tableio.ReadOptions{})
-	if err != nil {
-		return nil, err
-	}
-	defer r.Close()
-	want := m.tableSchema(supervised)
-	got := r.Schema()
-	if len(got.Fields) != len(want.Fields) {
-		return nil, &ManifestError{Dir: path, Msg: fmt.Sprintf("table has %d columns, the manifest implies %d", len(got.Fields), len(want.Fields))}
-	}
-	for i, f := range want.Fields {
-		if got.Fields[i].Name != f.Name {
-			return nil, &ManifestError{Dir: path, Msg: fmt.Sprintf("column %d is %q, expected %q", i+1, got.Fields[i].Name, f.Name)}
-		}
-	}
-	task := m.Task
-	if !supervised {
-		task = colstats.Binary
-	}
-	st := colstats.New(task, 1, len(m.Classes), 1024)
-	st.Origin = m.Origin
-	c := &Col{St: st}
-	outs := 0
-	if supervised {
-		outs = st.Outputs()
-		c.TMean = make([][]float64, outs)
-		for o := 0; o < outs; o++ {
-			c.Full = append(c.Full, colstats.Fitted{Prior: fromOpt(prior[o]), M: fromOpt(ms[o]), Sm: m.Spec.Smoothing, Origin: m.Origin})
-			c.TMean[o] = []float64{0}
-		}
-	}
-	c.Freq, c.TopK, c.Keep = []float64{0}, []int32{0}, []bool{false}
-	if err := table.ForEach(r, func(b *table.Batch) error {
-		for i := 0; i < b.Rows; i++ {
-			l := 0
-			if !b.Cols[0].IsNull(i) {
-				l = st.Level(b.Cols[0].Bytes(i))
-			}
-			for len(c.Keep) < st.NumLevels() {
-				c.Keep, c.Freq, c.TopK = append(c.Keep, false), append(c.Freq, 0), append(c.TopK, 0)
-				for o := range c.TMean {
-					c.TMean[o] = append(c.TMean[o], 0)
-				}
-			}
-			c.Keep[l] = l != 0 || !m.Spec.NullsUnseen
-			k := 1
-			next := func() *table.Column { k++; return &b.Cols[k-1] }
-			st.SetRows(l, uint64(next().Ints[i]))
-			if supervised {
-				tn := uint32(next().Ints[i])
-				if task == colstats.Regression {
-					sum := next().Floats[i]
-					st.SetValue(l, 0, tn, sum, next().Floats[i])
-				} else {
-					for cl := range m.Classes {
-						st.SetClass(l, 0, cl, uint32(next().Ints[i]))
-					}
-				}
-				for o := 0; o < outs; o++ {
-					c.TMean[o][l] = next().Floats[i]
-				}
-			}
-			c.Freq[l] = next().Floats[i]
-			c.TopK[l] = int32(next().Ints[i])
-		}
-		return nil
-	}); err != nil {
-		return nil, err
-	}
-	return c, nil
 }
 
 // CheckInput verifies that an input table has every column the model

@@ -21,8 +21,9 @@ import (
 const fuzzAllocLimit = 512 << 20
 
 // fuzzSeeds returns small valid files: ours (three codecs, text, int with
-// nulls and bool columns, dictionary and PLAIN pages, two row groups) and
-// files of parquet-go's writer (its types, unsigned 64-bit integers).
+// nulls and bool columns, dictionary and PLAIN pages, two row groups, with
+// and without CRCs) and files of parquet-go's writer (its types, unsigned
+// 64-bit integers, delta encodings).
 func fuzzSeeds(t testing.TB) [][]byte {
 	withGeometry(t, 128, 1<<17, 1<<20)
 	var out [][]byte
@@ -55,6 +56,7 @@ func fuzzSeeds(t testing.TB) [][]byte {
 	for _, rows := range []any{
 		[]typedRow{{Code: [3]byte{'A', 'B', 'C'}, U32: 7, I32Dict: -5, F64Dict: 0.25, Day: 3, Tags: []string{"x"}}},
 		[]unsignedRow{{U64: 1<<64 - 1, Dict: 1 << 63}, {U64: 5, Dict: 5}},
+		[]deltaRow{{S: "key-1", I: 3}, {S: "key-12", I: 9}, {S: "kex", I: -4}},
 	} {
 		var buf bytes.Buffer
 		var err error
@@ -63,6 +65,8 @@ func fuzzSeeds(t testing.TB) [][]byte {
 			err = parquet.Write(&buf, rows)
 		case []unsignedRow:
 			err = parquet.Write(&buf, rows)
+		case []deltaRow:
+			err = parquet.Write(&buf, rows, parquet.Compression(&parquet.Uncompressed))
 		}
 		if err != nil {
 			t.Fatal(err)

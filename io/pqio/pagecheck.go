@@ -13,6 +13,7 @@ import (
 	"github.com/klauspost/compress/s2"
 	"github.com/klauspost/compress/zstd"
 	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/encoding/delta"
 	"github.com/parquet-go/parquet-go/encoding/thrift"
 	"github.com/parquet-go/parquet-go/format"
 
@@ -384,8 +385,9 @@ func (g *pageGuard) checkV2(h *format.PageHeader, dp format.DataPageHeaderV2) er
 }
 
 // checkValues checks the runs of a page's values where they are runs:
-// dictionary indices (a bit width byte, then the hybrid) and RLE booleans
-// (a 4-byte length, then the hybrid).
+// dictionary indices (a bit width byte, then the hybrid), RLE booleans (a
+// 4-byte length, then the hybrid) and delta encodings (value counts in
+// their headers, and the length of the byte arrays that prefixes rebuild).
 func (g *pageGuard) checkValues(enc format.Encoding, vals []byte, n int64) error {
 	switch {
 	case enc == format.RLEDictionary || enc == format.PlainDictionary:
@@ -397,6 +399,13 @@ func (g *pageGuard) checkValues(enc format.Encoding, vals []byte, n int64) error
 				return fmt.Errorf("dictionary indices: %w", err)
 			}
 		}
+	case enc == format.DeltaBinaryPacked || enc == format.DeltaLengthByteArray:
+		// The values, or the lengths of the byte arrays that follow them.
+		if _, err := deltaRun(vals, n+runSlack); err != nil {
+			return fmt.Errorf("delta values: %w", err)
+		}
+	case enc == format.DeltaByteArray:
+		return checkDeltaByteArray(vals, n+runSlack)
 	case enc == format.RLE && g.phys == parquet.Boolean:
 		if len(vals) < 4 {
 			return nil
@@ -408,6 +417,90 @@ func (g *pageGuard) checkValues(enc format.Encoding, vals []byte, n int64) error
 		if _, err := hybridRuns(vals[4:4+l], 1, n+runSlack); err != nil {
 			return fmt.Errorf("booleans: %w", err)
 		}
+	}
+	return nil
+}
+
+// deltaRun reads the header of a DELTA_BINARY_PACKED run at the start of
+// b and walks its blocks without unpacking them: it returns the bytes the
+// run takes, and fails if its value count passes limit or its blocks pass
+// the end of b (layout from the Parquet format's Encodings.md).
+func deltaRun(b []byte, limit int64) (int, error) {
+	var h [3]uint64
+	i := 0
+	for k := range h {
+		v, n := binary.Uvarint(b[i:])
+		if n <= 0 {
+			return 0, fmt.Errorf("%w: bad delta header", table.ErrCorrupt)
+		}
+		h[k], i = v, i+n
+	}
+	if _, n := binary.Varint(b[i:]); n <= 0 {
+		return 0, fmt.Errorf("%w: bad delta header", table.ErrCorrupt)
+	} else {
+		i += n
+	}
+	block, minis, total := h[0], h[1], h[2]
+	if block == 0 || block%128 != 0 || block > 1<<20 || minis == 0 || block%minis != 0 || (block/minis)%32 != 0 {
+		return 0, fmt.Errorf("%w: bad delta block layout (%d values in %d miniblocks)", table.ErrCorrupt, block, minis)
+	}
+	if total > uint64(limit) {
+		return 0, fmt.Errorf("%w: delta run declares %d values, more than the page's %d", table.ErrCorrupt, total, limit-runSlack)
+	}
+	mini := block / minis
+	for left := int64(total) - 1; left > 0; {
+		if _, n := binary.Varint(b[i:]); n <= 0 {
+			return 0, fmt.Errorf("%w: delta run cut short", table.ErrCorrupt)
+		} else {
+			i += n
+		}
+		if uint64(len(b)-i) < minis {
+			return 0, fmt.Errorf("%w: delta run cut short", table.ErrCorrupt)
+		}
+		widths := b[i : i+int(minis)]
+		i += int(minis)
+		for _, w := range widths {
+			if left <= 0 {
+				break
+			}
+			if w > 64 {
+				return 0, fmt.Errorf("%w: delta bit width %d", table.ErrCorrupt, w)
+			}
+			// A last miniblock may be cut short (the decoder pads it).
+			i += int(min(mini*uint64(w)/8, uint64(len(b)-i)))
+			left -= int64(min(mini, uint64(left)))
+		}
+	}
+	return i, nil
+}
+
+// checkDeltaByteArray checks a DELTA_BYTE_ARRAY section: prefix lengths
+// and suffix lengths (two delta runs of at most limit values), then the
+// suffixes. Each value repeats a prefix of the one before, so a few bytes
+// of lengths can rebuild values far longer than the page: their total is
+// bounded as a decompressed page's size is.
+func checkDeltaByteArray(b []byte, limit int64) error {
+	np, err := deltaRun(b, limit)
+	if err != nil {
+		return fmt.Errorf("prefix lengths: %w", err)
+	}
+	ns, err := deltaRun(b[np:], limit)
+	if err != nil {
+		return fmt.Errorf("suffix lengths: %w", err)
+	}
+	var dec delta.BinaryPackedEncoding
+	var total int64
+	for _, sec := range [][]byte{b[:np], b[np : np+ns]} {
+		lengths, err := dec.DecodeInt32(nil, sec)
+		if err != nil {
+			return fmt.Errorf("%w: byte array lengths: %v", table.ErrCorrupt, err)
+		}
+		for _, l := range lengths {
+			total += int64(max(l, 0))
+		}
+	}
+	if bound := max(maxPageRatio*int64(len(b)), pageRatioFloor); total > bound || total > maxPageBytes {
+		return fmt.Errorf("%w: delta byte arrays of %d bytes in a page of %d", table.ErrCorrupt, total, len(b))
 	}
 	return nil
 }

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/binary"
 	"errors"
+	"fmt"
 	"hash/crc32"
 	"io"
 	"os"
@@ -12,6 +13,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/encoding/thrift"
 	"github.com/parquet-go/parquet-go/format"
 
@@ -449,5 +451,111 @@ func TestSourceFooterLength(t *testing.T) {
 	}
 	if alloc > 1<<20 {
 		t.Fatalf("OpenSource allocated %d bytes", alloc)
+	}
+}
+
+// deltaRow is written with delta encodings: DELTA_BYTE_ARRAY text and
+// DELTA_BINARY_PACKED integers.
+type deltaRow struct {
+	S string `parquet:"s,delta"`
+	I int64  `parquet:"i,delta"`
+}
+
+// appendDelta appends a DELTA_BINARY_PACKED run of count values, first
+// then each d more than the one before: blocks of 128 values in 4
+// miniblocks, each miniblock of bit width 0 (layout from the Parquet
+// format's Encodings.md).
+func appendDelta(b []byte, first, d int64, count int) []byte {
+	b = binary.AppendUvarint(b, 128)
+	b = binary.AppendUvarint(b, 4)
+	b = binary.AppendUvarint(b, uint64(count))
+	b = binary.AppendVarint(b, first)
+	for left := count - 1; left > 0; left -= 128 {
+		b = binary.AppendVarint(b, d)
+		b = append(b, 0, 0, 0, 0)
+	}
+	return b
+}
+
+// setCount makes a data page (either version) declare n values, none
+// null.
+func setCount(h *format.PageHeader, n int32) {
+	if h.DataPageHeader.Valid {
+		h.DataPageHeader.V.NumValues = n
+	}
+	if h.DataPageHeaderV2.Valid {
+		h.DataPageHeaderV2.V.NumValues, h.DataPageHeaderV2.V.NumRows, h.DataPageHeaderV2.V.NumNulls = n, n, 0
+	}
+}
+
+// TestHostileDeltaPages reads files whose delta-encoded pages claim
+// 2^31-1 values, or whose text values, each repeating the one before it
+// plus a byte, add up to 2 GiB from a page of 70 KB: refused as corrupt,
+// within 32 MB.
+func TestHostileDeltaPages(t *testing.T) {
+	var rows []deltaRow
+	for i := range 100 {
+		rows = append(rows, deltaRow{S: fmt.Sprintf("key-%03d", i), I: int64(3 * i)})
+	}
+	var buf bytes.Buffer
+	if err := parquet.Write(&buf, rows, parquet.Compression(&parquet.Uncompressed)); err != nil {
+		t.Fatal(err)
+	}
+	const n = 1 << 16
+	isData := func(h *format.PageHeader) bool {
+		return h.Type == format.DataPage || h.Type == format.DataPageV2
+	}
+	for _, tc := range []struct {
+		name string
+		edit pageEdit
+		md   func(*format.FileMetaData)
+		want string
+	}{
+		{"delta run of 2^31-1 integers", func(g, c, p int, h *format.PageHeader, body []byte) []byte {
+			if c != 1 || !isData(h) {
+				return body
+			}
+			// The header of a run of 100 values, its count made 2^31-1.
+			run := appendDelta(nil, 0, 3, 100)
+			body = binary.AppendUvarint(append([]byte(nil), run[:3]...), 1<<31-1)
+			body = append(body, run[4:]...)
+			h.UncompressedPageSize = int32(len(body))
+			return withCRC(h, body)
+		}, nil, `column "i": row group 1: page 1: delta values: file is corrupt or truncated: delta run declares 2147483647 values`},
+		{"delta byte arrays of 2 GiB", func(g, c, p int, h *format.PageHeader, body []byte) []byte {
+			if c != 0 || !isData(h) {
+				return body
+			}
+			body = appendDelta(nil, 0, 1, n)                     // prefix lengths 0, 1, 2, ...
+			body = appendDelta(body, 1, 0, n)                    // suffix lengths 1, 1, 1, ...
+			body = append(body, bytes.Repeat([]byte("a"), n)...) // the suffixes
+			setCount(h, n)
+			h.UncompressedPageSize = int32(len(body))
+			return withCRC(h, body)
+		}, func(m *format.FileMetaData) { m.NumRows, m.RowGroups[0].NumRows = n, n },
+			`column "s": row group 1: page 1: file is corrupt or truncated: delta byte arrays of 2147516416 bytes`},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			bad := rebuild(t, buf.Bytes(), tc.edit, tc.md)
+			var err error
+			alloc := allocDuring(func() {
+				r := openBytes(t, "delta.parquet", bad)
+				defer r.Close()
+				for err == nil {
+					_, err = r.Next()
+				}
+			})
+			if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), tc.want) {
+				t.Fatalf("Next: %v\nwant ErrCorrupt with %q", err, tc.want)
+			}
+			if alloc > 32<<20 {
+				t.Fatalf("reading allocated %d bytes", alloc)
+			}
+		})
+	}
+	// The undamaged file reads back.
+	res := readAll(t, openBytes(t, "delta.parquet", buf.Bytes()))
+	if got := res.cols[0][99].text; got != "key-099" {
+		t.Fatalf("last text %q", got)
 	}
 }

@@ -192,3 +192,51 @@ func TestShiftedTargetEncodesShifted(t *testing.T) {
 		}
 	}
 }
+
+// TestBlendLogOddsInterior: with the sigmoid blend the weight of a large
+// level's own rate rounds to exactly 1, so a level with no positives got
+// the rate 0 and the clipped log-odds log(1e-15) = -34.5. With --output
+// logodds the level's rate enters as (s + 1/2)/(n + 1) (Haldane 1956,
+// Anscombe 1956), strictly inside (0, 1): here log(0.5/(n + 1)) for the
+// training rows of a level of n out-of-fold rows, all negative, since
+// lambda = 1 / (1 + exp(-(n - 2)/1)) is 1 in float64 for n > 40.
+func TestBlendLogOddsInterior(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("route,late\n")
+	for i := 0; i < 3000; i++ {
+		fmt.Fprintf(&b, "R-NEVER,0\nR-MIXED,%d\n", i%2)
+	}
+	dir := t.TempDir()
+	in := writeFile(t, dir, "routes.csv", b.String())
+	out := filepath.Join(dir, "enc.csv")
+	tables := filepath.Join(dir, "tables")
+	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--smoothing", "blend=2,1", "--output", "logodds",
+		"--fold-column", "fold", "--out", out, "--tables", tables)
+	tt := readTable(t, out)
+	routes, vals, folds := tt.col(t, "route"), tt.col(t, "route_tmean"), tt.col(t, "fold")
+	inFold := map[string]float64{}
+	for i := range routes {
+		if routes[i] == "R-NEVER" {
+			inFold[folds[i]]++
+		}
+	}
+	for i := range routes {
+		v := parseF(t, vals[i])
+		if math.IsInf(v, 0) || math.Abs(v) > 30 {
+			t.Fatalf("row %d (%s): log-odds %g, want a rate strictly inside (0, 1)", i+2, routes[i], v)
+		}
+		if routes[i] == "R-NEVER" {
+			n := 3000 - inFold[folds[i]]
+			if want := math.Log(0.5/(n+1)) - math.Log1p(-0.5/(n+1)); !near(v, want, 1e-9) {
+				t.Errorf("row %d: log-odds %.12g, want logit(0.5/(%g+1)) = %.12g", i+2, v, n, want)
+			}
+		}
+	}
+	app := filepath.Join(dir, "app.csv")
+	mustRun(t, "apply", in, "--tables", tables, "--out", app)
+	for i, s := range readTable(t, app).col(t, "route_tmean") {
+		if v := parseF(t, s); math.Abs(v) > 30 {
+			t.Fatalf("applied row %d: log-odds %g, want a rate strictly inside (0, 1)", i+2, v)
+		}
+	}
+}

@@ -3,12 +3,25 @@ package colstats
 import (
 	"fmt"
 	"math"
+	"math/bits"
 
 	"manyfold/internal/hugemem"
 )
 
 // chunkBits sets the levels per chunk of a perLevel array (2^14).
 const chunkBits = 14
+
+// chunkShift returns the chunk size exponent of a perLevel array of width
+// values per level: chunkBits up to 8 values, then smaller so that a chunk
+// holds about 2^17 values whatever the width (2^4 levels at least): a
+// chunk is allocated whole, and with many folds a chunk of 2^14 levels
+// would be gigabytes.
+func chunkShift(width int) uint {
+	if width <= 8 {
+		return chunkBits
+	}
+	return uint(max(4, chunkBits-(bits.Len(uint(width-1))-3)))
+}
 
 // wideChunkBits sets the rows per chunk of the wide class-count rows
 // (2^10): few levels of a column are usually promoted, so their chunks are
@@ -105,7 +118,7 @@ func newClassCells[N narrowCell](width int) classCells[N] {
 	}
 	return classCells[N]{
 		width:  width,
-		narrow: perLevel[N]{width: nw},
+		narrow: perLevel[N]{width: nw, bits: chunkShift(nw)},
 		wide:   perLevel[uint64]{width: width, bits: wideChunkBits},
 	}
 }

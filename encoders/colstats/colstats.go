@@ -90,22 +90,17 @@ type Stats struct {
 	// Origin by c and leaves the cells unchanged. 0 for classification.
 	Origin float64
 
-	// allBut[e+1] marks every fold but e (allBut[0]: all folds), the fold
-	// sets Target sums; built once so that Target allocates nothing and may
-	// run on several goroutines.
-	allBut [][]bool
+	// Parents, when set (a hierarchical prior), holds the parent group of
+	// every level slot (-1: none, or several): the empirical-Bayes m is
+	// then estimated from the spread of the level means around their
+	// parents' (smooth.NestedMoments), as the prior a level is pulled to
+	// is its parent's value.
+	Parents []int32
 }
 
 // New returns empty statistics for k folds.
 func New(task Task, k, classes int, sizeHint int) *Stats {
 	s := &Stats{Task: task, Folds: k, Levels: levels.New(sizeHint)}
-	s.allBut = make([][]bool, k+1)
-	for e := range s.allBut {
-		s.allBut[e] = make([]bool, k)
-		for f := range s.allBut[e] {
-			s.allBut[e][f] = f != e-1
-		}
-	}
 	if task != Regression {
 		s.Classes = classes
 	}
@@ -141,6 +136,8 @@ func (s *Stats) grow(n int) {
 	s.rows.grow(n)
 	if s.Task == Regression {
 		s.cnt.width, s.sum.width, s.sumSq.width = s.Folds, s.Folds, s.Folds
+		sh := chunkShift(s.Folds)
+		s.cnt.bits, s.sum.bits, s.sumSq.bits = sh, sh, sh
 		s.cnt.grow(n)
 		s.sum.grow(n)
 		s.sumSq.grow(n)
@@ -465,7 +462,7 @@ func (s *Stats) Target(l, o, exclude, pos int) Agg {
 		}
 		return Agg{N: float64(n), Sum: float64(k), SumSq: float64(k)}
 	}
-	return s.TargetMask(l, o, pos, s.allBut[exclude+1])
+	return s.targetMask(l, o, pos, nil, exclude)
 }
 
 // binaryCounts returns, for the cells of a level with two classes, the
@@ -486,11 +483,18 @@ func binaryCounts[T uint8 | uint64](row []T, exclude, pos int) (n, k uint64) {
 // of one Stats and sums the cells a fit may see. For binary the positive
 // class is class slot pos.
 func (s *Stats) TargetMask(l, o, pos int, use []bool) Agg {
+	return s.targetMask(l, o, pos, use, -1)
+}
+
+// targetMask is TargetMask over the folds f with use[f] (nil: every fold)
+// and f != exclude: Target's fold set without a mask per fold, so that
+// memory stays linear in the folds.
+func (s *Stats) targetMask(l, o, pos int, use []bool, exclude int) Agg {
 	var a Agg
 	if s.Task == Regression {
 		cnt, sum, sq := s.cnt.row(l), s.sum.row(l), s.sumSq.row(l)
 		for f := 0; f < s.Folds; f++ {
-			if use[f] {
+			if (use == nil || use[f]) && f != exclude {
 				a.N += float64(cnt[f])
 				a.Sum += sum[f]
 				a.SumSq += sq[f]
@@ -503,19 +507,20 @@ func (s *Stats) TargetMask(l, o, pos int, use []bool) Agg {
 	}
 	var n, k uint64
 	if nr, wr := s.cls.cells(l); wr != nil {
-		n, k = maskCounts(wr, s.Classes, o, use)
+		n, k = maskCounts(wr, s.Classes, o, use, exclude)
 	} else {
-		n, k = maskCounts(nr, s.Classes, o, use)
+		n, k = maskCounts(nr, s.Classes, o, use, exclude)
 	}
 	a.N, a.Sum, a.SumSq = float64(n), float64(k), float64(k)
 	return a
 }
 
 // maskCounts returns, for the cells of a level, the rows n and the rows k
-// of class o over the folds f with use[f].
-func maskCounts[T uint8 | uint64](row []T, classes, o int, use []bool) (n, k uint64) {
-	for f := range use {
-		if !use[f] {
+// of class o over the folds f with use[f] (nil: every fold) and f !=
+// exclude.
+func maskCounts[T uint8 | uint64](row []T, classes, o int, use []bool, exclude int) (n, k uint64) {
+	for f := 0; f < len(row)/classes; f++ {
+		if (use != nil && !use[f]) || f == exclude {
 			continue
 		}
 		for _, v := range row[f*classes : (f+1)*classes] {
@@ -529,8 +534,16 @@ func maskCounts[T uint8 | uint64](row []T, classes, o int, use []bool) (n, k uin
 // FitMask is Fit over the rows of the folds f with use[f] instead of all
 // folds but one.
 func (s *Stats) FitMask(o, pos int, sm Smoothing, use, keep []bool, order []uint32) Fitted {
+	return s.fitMask(o, pos, sm, use, -1, keep, order)
+}
+
+// fitMask is FitMask over the folds f with use[f] (nil: every fold) and f
+// != exclude.
+func (s *Stats) fitMask(o, pos int, sm Smoothing, use []bool, exclude int, keep []bool, order []uint32) Fitted {
 	var tot Agg
 	var mo smooth.Moments
+	var nm smooth.NestedMoments
+	nested := s.Parents != nil && sm.Kind == "auto"
 	n := s.n
 	if order != nil {
 		n = len(order)
@@ -540,14 +553,31 @@ func (s *Stats) FitMask(o, pos int, sm Smoothing, use, keep []bool, order []uint
 		if order != nil {
 			l = int(order[i])
 		}
-		a := s.TargetMask(l, o, pos, use)
+		a := s.targetMask(l, o, pos, use, exclude)
 		tot.N += a.N
 		tot.Sum += a.Sum
 		if a.N > 0 && (keep == nil || keep[l]) {
-			mo.Add(smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq})
+			ls := smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq}
+			if nested {
+				p := -1
+				if l < len(s.Parents) {
+					p = int(s.Parents[l])
+				}
+				nm.Add(ls, p)
+			} else {
+				mo.Add(ls)
+			}
 		}
 	}
-	return fitted(tot, &mo, sm, s.Origin)
+	m := math.NaN()
+	if sm.Kind == "auto" {
+		if nested {
+			m, _, _ = nm.Estimate()
+		} else {
+			m, _, _ = mo.Estimate()
+		}
+	}
+	return fitted(tot, m, sm, s.Origin)
 }
 
 // Smoothing names how a level's mean is pulled towards its prior.
@@ -555,6 +585,13 @@ type Smoothing struct {
 	Kind string  // "auto", "m" or "blend"
 	M    float64 // m-estimate weight (Kind "m")
 	K, F float64 // blend midpoint and steepness (Kind "blend")
+	// Interior keeps a class rate strictly inside (0, 1), for a log-odds
+	// output: where a level's own rate would enter with weight 1 (the
+	// blend's weight rounds to 1 for large n; m = 0), it enters as
+	// (s + 1/2)/(n + 1), the Haldane-Anscombe correction (Haldane, Annals
+	// of Human Genetics 20, 1956; Anscombe, Biometrika 43, 1956), which
+	// lies strictly between 0 and 1 for every n >= 0 and s in [0, n].
+	Interior bool
 }
 
 // Fitted holds, for one output and one set of fitting rows, the prior and
@@ -585,6 +622,9 @@ func (ft *Fitted) Encode(a Agg) float64 {
 	if ft.Sm.Kind != "blend" && math.IsInf(ft.M, 1) {
 		return ft.Prior
 	}
+	if ft.Sm.Interior {
+		return ft.interior(a)
+	}
 	if o := ft.Origin; o != 0 {
 		if ft.Sm.Kind == "blend" {
 			return o + smooth.Blend(a.Sum, a.N, ft.Sm.K, ft.Sm.F, ft.Prior-o)
@@ -593,6 +633,25 @@ func (ft *Fitted) Encode(a Agg) float64 {
 	}
 	if ft.Sm.Kind == "blend" {
 		return smooth.Blend(a.Sum, a.N, ft.Sm.K, ft.Sm.F, ft.Prior)
+	}
+	return smooth.MEstimate(a.Sum, a.N, ft.M, ft.Prior)
+}
+
+// interior is Encode for a class rate kept strictly inside (0, 1)
+// (Smoothing.Interior): the blend lambda r + (1 - lambda) p, and for m = 0
+// the rate r alone, with the level's rate r = (s + 1/2)/(n + 1) in place of
+// s/n; an m-estimate with m > 0 is a weighted mean of s/n and a prior
+// inside (0, 1), so inside too, and is left as it is. The result is
+// strictly inside (0, 1) whenever the prior is (both classes among the
+// fitting rows); a log-odds output still clips the prior's own edge cases.
+func (ft *Fitted) interior(a Agg) float64 {
+	r := (a.Sum + 0.5) / (a.N + 1)
+	if ft.Sm.Kind == "blend" {
+		lambda := smooth.BlendWeight(a.N, ft.Sm.K, ft.Sm.F)
+		return lambda*r + (1-lambda)*ft.Prior
+	}
+	if ft.M == 0 {
+		return r
 	}
 	return smooth.MEstimate(a.Sum, a.N, ft.M, ft.Prior)
 }
@@ -629,7 +688,6 @@ func (s *Stats) FitFolds(pos int, sm Smoothing, keep []bool, order []uint32) (fu
 	}
 	tot := s.CellTotals()
 	C := s.Classes
-	var mo smooth.Moments // unused by m and blend
 	fit := func(o, exclude int) Fitted {
 		if s.Task == Binary {
 			o = pos
@@ -644,7 +702,7 @@ func (s *Stats) FitFolds(pos int, sm Smoothing, keep []bool, order []uint32) (fu
 			}
 			kk += tot[f*C+o]
 		}
-		return fitted(Agg{N: float64(n), Sum: float64(kk), SumSq: float64(kk)}, &mo, sm, 0)
+		return fitted(Agg{N: float64(n), Sum: float64(kk), SumSq: float64(kk)}, math.NaN(), sm, 0)
 	}
 	for o := 0; o < outs; o++ {
 		full[o] = fit(o, -1)
@@ -672,12 +730,12 @@ func (s *Stats) CellTotals() []uint64 {
 // canonical order (Sorted) makes the result independent of the order in
 // which levels were first seen.
 func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint32) Fitted {
-	return s.FitMask(o, pos, sm, s.allBut[exclude+1], keep, order)
+	return s.fitMask(o, pos, sm, nil, exclude, keep, order)
 }
 
-// fitted returns the fit of the fitting rows' total tot and level moments
-// mo, both taken about origin.
-func fitted(tot Agg, mo *smooth.Moments, sm Smoothing, origin float64) Fitted {
+// fitted returns the fit of the fitting rows' total tot, taken about
+// origin, with the empirical-Bayes m estimated (used by "auto").
+func fitted(tot Agg, estimated float64, sm Smoothing, origin float64) Fitted {
 	ft := Fitted{Sm: sm, M: math.NaN(), Origin: origin}
 	if tot.N > 0 {
 		ft.Prior = tot.Sum / tot.N
@@ -691,7 +749,7 @@ func fitted(tot Agg, mo *smooth.Moments, sm Smoothing, origin float64) Fitted {
 	case "m":
 		ft.M = sm.M
 	case "auto":
-		ft.M, _, _ = mo.Estimate()
+		ft.M = estimated
 	}
 	return ft
 }
@@ -973,7 +1031,7 @@ func (s *Stats) topK(k int, minCount uint64, n int, rows func(from int, dst []ui
 		return bytes.Compare(s.Bytes(a.l), s.Bytes(b.l)) < 0
 	}
 	// h is a heap whose root is the worst-ranked of the best k so far.
-	h := make([]entry, 0, k)
+	h := make([]entry, 0, min(k, n)) // room for what can be ranked, not for k
 	down := func(i int) {
 		for {
 			c := 2*i + 1

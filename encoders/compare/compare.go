@@ -78,26 +78,45 @@ type sample struct {
 // Rows whose target is empty are dropped: they enter neither the statistics
 // (frequency and top-k included) nor the models.
 func Run(r table.Reader, opt Options) (*Result, error) {
-	if opt.Folds < 2 || opt.Folds > 50 {
-		return nil, usage("--folds %d: want 2 to 50", opt.Folds)
-	}
-	if opt.InnerFolds < 2 || opt.InnerFolds > 50 {
-		return nil, usage("--inner-folds %d: want 2 to 50", opt.InnerFolds)
-	}
-	if opt.Target == "" {
-		return nil, usage("compare needs --target")
-	}
-	if len(opt.Columns) == 0 {
-		return nil, usage("compare needs --columns")
-	}
-	switch opt.Task {
-	case "", "binary", "multiclass", "regression":
-	default:
-		return nil, usage("--task %q: want binary, multiclass or regression", opt.Task)
+	if err := opt.Validate(); err != nil {
+		return nil, err
 	}
 	if opt.Candidates == nil {
 		opt.Candidates, _ = ParseCandidates(DefaultCandidates)
 	}
+	return run(r, opt)
+}
+
+// Validate checks the options that do not depend on the data, so that a
+// bad flag is refused before any is read: folds 2 to 50 each, an L2 weight
+// that is 0 (the default) or positive and finite, a target, columns and a
+// known task.
+func (opt *Options) Validate() error {
+	if opt.Folds < 2 || opt.Folds > 50 {
+		return usage("--folds %d: want 2 to 50", opt.Folds)
+	}
+	if opt.InnerFolds < 2 || opt.InnerFolds > 50 {
+		return usage("--inner-folds %d: want 2 to 50", opt.InnerFolds)
+	}
+	if opt.Lambda < 0 || math.IsNaN(opt.Lambda) || math.IsInf(opt.Lambda, 0) {
+		return usage("--lambda %v: want a number > 0", opt.Lambda)
+	}
+	if opt.Target == "" {
+		return usage("compare needs --target")
+	}
+	if len(opt.Columns) == 0 {
+		return usage("compare needs --columns")
+	}
+	switch opt.Task {
+	case "", "binary", "multiclass", "regression":
+	default:
+		return usage("--task %q: want binary, multiclass or regression", opt.Task)
+	}
+	return nil
+}
+
+// run is Run once the options are checked.
+func run(r table.Reader, opt Options) (*Result, error) {
 	if opt.Lambda == 0 {
 		opt.Lambda = DefaultLambda
 	}

@@ -136,8 +136,8 @@ func (sp *Spec) Validate() error {
 	default:
 		return usageErr("unknown --scheme %q (want kfold, loo, ordered, none)", sp.Scheme)
 	}
-	if sp.Scheme == "kfold" && sp.Folds < 2 {
-		return usageErr("--folds %d: need at least 2", sp.Folds)
+	if sp.Scheme == "kfold" && (sp.Folds < 2 || sp.Folds > MaxFolds) {
+		return usageErr("--folds %d: want 2 to %d (for leave-one-out give --scheme loo)", sp.Folds, MaxFolds)
 	}
 	switch {
 	case sp.FoldBy == "rows", sp.FoldBy == "stratified", sp.FoldBy == "ordered":
@@ -151,11 +151,16 @@ func (sp *Spec) Validate() error {
 	if sp.Output != "rate" && sp.Output != "logodds" {
 		return usageErr("unknown --output %q (want rate or logodds)", sp.Output)
 	}
+	// A log-odds output needs rates strictly inside (0, 1).
+	sp.Smoothing.Interior = sp.Output == "logodds"
 	if sp.TopK < 1 {
 		return usageErr("--top-k %d: need at least 1", sp.TopK)
 	}
-	if sp.Buckets < 1 {
-		return usageErr("--buckets must be at least 1")
+	if sp.Buckets < 1 || sp.Buckets > MaxBuckets {
+		return usageErr("--buckets %d: want 1 to %d", sp.Buckets, uint64(MaxBuckets))
+	}
+	if sp.PriorPrefix < 0 {
+		return usageErr("--prior-by prefix=%d: want a length of at least 1", sp.PriorPrefix)
 	}
 	if sp.PriorPrefix > 0 && sp.PriorColumn != "" {
 		return usageErr("--prior-by takes a prefix or a column, not both")
@@ -164,6 +169,22 @@ func (sp *Spec) Validate() error {
 		if _, err := colstats.ParseTask(sp.Task); err != nil {
 			return usageErr("--task: %v", err)
 		}
+	}
+	return nil
+}
+
+// Limits of the numeric parameters, checked by Validate before any data is
+// read. A level keeps a counter per fold and class, so memory grows with
+// --folds; bucket numbers are written as 64-bit signed integers.
+const (
+	MaxFolds   = 100
+	MaxBuckets = 1<<63 - 1
+)
+
+// CheckThreads checks a --threads value, the same for every command.
+func CheckThreads(n int) error {
+	if n < 1 {
+		return usageErr("--threads %d: want at least 1", n)
 	}
 	return nil
 }

@@ -180,6 +180,107 @@ func (mo *Moments) Estimate() (m, sigma2, tau2 float64) {
 	return sigma2 / tau2, sigma2, tau2
 }
 
+// NestedMoments accumulates what EstimateNested needs: levels grouped
+// under parents (a postcode under its region), for a shrinkage m that pulls
+// a level towards its parent's mean rather than the global one. Its zero
+// value is empty.
+type NestedMoments struct {
+	l      int
+	n, ssw float64 // rows and within-level sum of squares of every level
+	groups []groupMoments
+}
+
+// groupMoments are the sums of the levels of one parent.
+type groupMoments struct {
+	l                 int
+	n, sum            float64 // rows, sum of targets
+	sumSqN, sumMeanSq float64 // sum of n_i^2, sum of Sum_i^2/n_i
+}
+
+// Add counts one level under parent (a non-negative index; the slice of
+// groups grows to it). A level with parent < 0 (its rows fall under several
+// parents) counts towards the within-level variance only. A level with N
+// <= 0 (or NaN N) is ignored.
+func (nm *NestedMoments) Add(s LevelStats, parent int) {
+	if !(s.N > 0) {
+		return
+	}
+	nm.l++
+	nm.n += s.N
+	between := s.Sum * s.Sum / s.N
+	if w := s.SumSq - between; w > 0 || math.IsNaN(w) {
+		nm.ssw += w
+	}
+	if parent < 0 {
+		return
+	}
+	for parent >= len(nm.groups) {
+		nm.groups = append(nm.groups, groupMoments{})
+	}
+	g := &nm.groups[parent]
+	g.l++
+	g.n += s.N
+	g.sum += s.Sum
+	g.sumSqN += s.N * s.N
+	g.sumMeanSq += between
+}
+
+// Estimate returns m = sigma2/tau2 for levels nested in parents, by the
+// method of moments of the two-stage nested classification with parents
+// as fixed effects (the ANOVA estimator of the unbalanced nested model;
+// Searle, Casella and McCulloch, "Variance Components", Wiley 1992, the
+// 2-way nested classification, from memory): with parent p holding L_p
+// levels and N_p rows, level sizes n_i and level sums S_i,
+//
+//	SSW    = sum_i (SumSq_i - S_i^2/n_i)                   (within levels)
+//	SSB    = sum_p (sum_{i in p} S_i^2/n_i - S_p^2/N_p)    (levels around their parent)
+//	sigma2 = SSW / (N - L)
+//	tau2   = (SSB - sum_p (L_p - 1) sigma2) / sum_p (N_p - sum_{i in p} n_i^2/N_p)
+//
+// since E[SSB] = sum_p (L_p - 1) sigma2 + tau2 sum_p (N_p - sum n_i^2/N_p):
+// each parent is the one-way layout of EstimateM, and their sums add. tau2
+// is then the variance of the true level means around their parent's, the
+// spread that m must shrink over when the prior is the parent's mean. With
+// one parent holding every level it is EstimateM's estimator.
+//
+// Edge cases, as EstimateM: tau2 <= 0 gives m = +Inf (every level gets its
+// parent's value); sigma2 == 0 and tau2 > 0 gives m = 0; no level with two
+// rows (N <= L), or no parent with two levels (the denominator is 0), gives
+// m = FallbackM with tau2 NaN; NaN sums give NaN.
+func (nm *NestedMoments) Estimate() (m, sigma2, tau2 float64) {
+	var ssb, df, coef float64
+	for _, g := range nm.groups {
+		if g.l == 0 {
+			continue
+		}
+		b := g.sumMeanSq - g.sum*g.sum/g.n
+		if b < 0 {
+			b = 0 // rounding: a sum of squares
+		}
+		ssb += b
+		df += float64(g.l - 1)
+		coef += g.n - g.sumSqN/g.n
+	}
+	if nm.n <= float64(nm.l) || df == 0 || !(coef > 0) {
+		sigma2 = math.NaN()
+		if nm.n > float64(nm.l) {
+			sigma2 = nm.ssw / (nm.n - float64(nm.l))
+		}
+		return FallbackM, sigma2, math.NaN()
+	}
+	sigma2 = nm.ssw / (nm.n - float64(nm.l))
+	tau2 = (ssb - df*sigma2) / coef
+	switch {
+	case math.IsNaN(sigma2) || math.IsNaN(tau2):
+		return math.NaN(), sigma2, tau2
+	case tau2 <= 0:
+		return math.Inf(1), sigma2, tau2
+	case sigma2 == 0:
+		return 0, sigma2, tau2
+	}
+	return sigma2 / tau2, sigma2, tau2
+}
+
 // LogOddsEps is the clipping bound of LogOdds: p is held to [LogOddsEps,
 // 1-LogOddsEps] so that rates of exactly 0 or 1 give finite values (about
 // -34.5 and +34.5) instead of -Inf and +Inf.

@@ -95,8 +95,12 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 			o.src = nil
 		}
 	}
+	// Errors about the values written (text that is not UTF-8 in a Parquet
+	// or Arrow output) name the input; such an error found at once (a
+	// column name) is bad data, not an output failure.
+	wopts.Input = name
 	if o.w, err = tableio.Create(out, schema, wopts); err != nil {
-		return fail(&outputError{err})
+		return fail(commitError(err))
 	}
 	// Reading, encoding and writing overlap: the next batch is decoded
 	// and the last one written while the current one is encoded.

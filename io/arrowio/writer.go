@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"unicode/utf8"
 
 	"github.com/apache/arrow/go/v17/arrow"
 	"github.com/apache/arrow/go/v17/arrow/array"
@@ -28,6 +29,10 @@ type writer struct {
 	arrays []arrow.Array
 	err    error // sticky output error
 	closed bool
+	// Errors about values and names: the file they come from and each
+	// row's line in it (the batch's Lines, nil when unknown).
+	dataName string
+	lines    []int64
 }
 
 // writeCol holds the buffers reused to build one output column.
@@ -38,6 +43,7 @@ type writeCol struct {
 	bits   []byte
 	offs   []int32
 	data   []byte
+	utf8   table.UTF8Check
 }
 
 // positionWriter counts the bytes written so that the file writer can ask
@@ -61,14 +67,36 @@ func (p *positionWriter) Seek(offset int64, whence int) (int64, error) {
 	return 0, errors.New("arrowio: output cannot seek")
 }
 
+// WriterOptions configures an Arrow writer.
+type WriterOptions struct {
+	// Input names the table being written (the input file) in errors
+	// about its values and column names; empty: the output's name.
+	Input string
+}
+
 // NewWriter writes a table in the Arrow IPC file format to w, which need not
 // be seekable: text columns as utf8, int as int64, float as float64, bool as
 // bool, each nullable as the field says. Close writes the footer and
-// flushes, but does not close w.
+// flushes, but does not close w. Text values and column names must be valid
+// UTF-8 (utf8's definition): one that is not gives a *table.DataError
+// wrapping table.ErrNotUTF8, naming the row and column, or the column's
+// position.
 func NewWriter(w io.Writer, schema *table.Schema) (table.Writer, error) {
+	return NewWriterWith(w, schema, WriterOptions{})
+}
+
+// NewWriterWith is NewWriter with options.
+func NewWriterWith(w io.Writer, schema *table.Schema, opts WriterOptions) (table.Writer, error) {
 	name := outputName(w)
+	dataName := name
+	if opts.Input != "" {
+		dataName = opts.Input
+	}
 	fields := make([]arrow.Field, len(schema.Fields))
 	for i, f := range schema.Fields {
+		if !utf8.ValidString(f.Name) {
+			return nil, &table.DataError{File: dataName, Err: table.NameNotUTF8(i, f.Name)}
+		}
 		var dt arrow.DataType
 		switch f.Kind {
 		case table.String:
@@ -92,7 +120,7 @@ func NewWriter(w io.Writer, schema *table.Schema) (table.Writer, error) {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	return &writer{
-		name: name, out: bw, pos: pw, fw: fw, schema: schema, asch: asch,
+		name: name, dataName: dataName, out: bw, pos: pw, fw: fw, schema: schema, asch: asch,
 		cols:   make([]writeCol, len(fields)),
 		arrays: make([]arrow.Array, len(fields)),
 	}, nil
@@ -125,6 +153,10 @@ func (w *writer) Write(b *table.Batch) error {
 	if b.FirstRow > 0 {
 		first = b.FirstRow
 	}
+	w.lines = nil
+	if len(b.Lines) >= b.Rows {
+		w.lines = b.Lines
+	}
 	for i := range b.Cols {
 		col := &b.Cols[i]
 		f := &w.schema.Fields[i]
@@ -156,7 +188,11 @@ func (w *writer) Write(b *table.Batch) error {
 
 // dataErr reports a bad value at row i of the batch.
 func (w *writer) dataErr(first int64, i int, column string, err error) error {
-	return &table.DataError{File: w.name, Row: first + int64(i), Column: column, Err: err}
+	e := &table.DataError{File: w.dataName, Row: first + int64(i), Column: column, Err: err}
+	if w.lines != nil {
+		e.Line = w.lines[i]
+	}
+	return e
 }
 
 // build makes the Arrow array for one column, converting its form to the
@@ -193,6 +229,11 @@ func (w *writer) build(st *writeCol, col *table.Column, f *table.Field, n int, f
 	)
 	switch f.Kind {
 	case table.String:
+		// Arrow's utf8 is UTF-8: text values are checked (numbers and
+		// booleans converted to text are ASCII).
+		if i := st.utf8.Invalid(col, 0, n); i >= 0 {
+			return nil, w.dataErr(first, i, f.Name, table.NotUTF8(col.Bytes(i)))
+		}
 		offs, data, err := w.text(st, col, n, f.Name)
 		if err != nil {
 			return nil, err

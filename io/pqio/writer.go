@@ -9,6 +9,7 @@ import (
 	"slices"
 	"sync"
 	"sync/atomic"
+	"unicode/utf8"
 	"unsafe"
 
 	"github.com/parquet-go/parquet-go/deprecated"
@@ -43,6 +44,9 @@ type WriterOptions struct {
 	// the same Before keep their order here. Kind is not used. The caller
 	// checks each with Source.CanCopy first.
 	Nested []Nested
+	// Input names the table being written (the input file) in errors
+	// about its values and column names; empty: the output's name.
+	Input string
 }
 
 // defaultRowGroupRows is the row group size when WriterOptions leaves it 0.
@@ -76,13 +80,21 @@ type writer struct {
 	nulls  [][]bool
 	text   [][]byte
 	tends  [][]int
-	err    error // sticky: the first failure
-	closed bool
+	// Errors about values and names: the file they come from and each
+	// row's line in it (the batch's Lines, nil when unknown).
+	dataName string
+	lines    []int64
+	utf8     []table.UTF8Check // per column, text checked as UTF-8
+	err      error             // sticky: the first failure
+	closed   bool
 }
 
 // NewWriter returns a writer of a Parquet file with the given schema to w.
 // The columns keep the schema's order; Close writes the footer but does not
-// close w.
+// close w. Text values and column names must be valid UTF-8 (a STRING
+// column's type): one that is not gives a *table.DataError wrapping
+// table.ErrNotUTF8, naming the row and column, or the column's position.
+// Columns copied from a Source are the input's bytes and are not checked.
 func NewWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (table.Writer, error) {
 	return newWriter(w, schema, opts)
 }
@@ -115,6 +127,10 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, 
 		chunks: make([]*chunk, n), src: opts.Source, rgRows: rg,
 		ints: make([][]int64, n), floats: make([][]float64, n), bools: make([][]bool, n),
 		nulls: make([][]bool, n), text: make([][]byte, n), tends: make([][]int, n),
+		dataName: name, utf8: make([]table.UTF8Check, n),
+	}
+	if opts.Input != "" {
+		wr.dataName = opts.Input
 	}
 	seen := make(map[string]bool, n)
 	elems := make([][]format.SchemaElement, n) // per field, its schema subtree
@@ -133,6 +149,9 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, 
 			}
 			elems[i] = t.elems
 			continue
+		}
+		if !utf8.ValidString(f.Name) {
+			return nil, &table.DataError{File: wr.dataName, Err: table.NameNotUTF8(i, f.Name)}
 		}
 		if f.Kind > table.Bool {
 			return nil, fmt.Errorf("%s: column %q: unknown kind %v", name, f.Name, f.Kind)
@@ -291,6 +310,10 @@ func (w *writer) write(b *table.Batch) error {
 	if first <= 0 {
 		first = w.rows + 1
 	}
+	w.lines = nil
+	if len(b.Lines) >= b.Rows {
+		w.lines = b.Lines
+	}
 	for start := 0; start < b.Rows; {
 		t, err := w.target()
 		if err != nil {
@@ -331,7 +354,11 @@ func (w *writer) add(j int, c *table.Column, start, k int, first int64) error {
 	f := &w.fields[j]
 	ch := w.chunks[j]
 	bad := func(i int, err error) error {
-		return &table.DataError{File: w.name, Row: first + int64(start+i), Column: f.Name, Err: err}
+		e := &table.DataError{File: w.dataName, Row: first + int64(start+i), Column: f.Name, Err: err}
+		if w.lines != nil {
+			e.Line = w.lines[start+i]
+		}
+		return e
 	}
 	var nulls []bool // nulls of the rows converted, nil when none
 	if c.Nulls != nil {
@@ -348,6 +375,13 @@ func (w *writer) add(j int, c *table.Column, start, k int, first int64) error {
 			return fmt.Errorf("%s: column %q: %w", w.name, f.Name, err)
 		}
 		return nil
+	}
+	// Parquet text is UTF-8: text values are checked (numbers and
+	// booleans converted to text are ASCII).
+	if f.Kind == table.String {
+		if i := w.utf8[j].Invalid(c, start, k); i >= 0 {
+			return bad(i, table.NotUTF8(c.Bytes(start+i)))
+		}
 	}
 	// The common cases: the column's form matches the kind.
 	switch {

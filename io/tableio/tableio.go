@@ -188,6 +188,10 @@ type WriteOptions struct {
 	Format  Format // "" picks by extension
 	CSV     csvio.WriterOptions
 	Parquet pqio.WriterOptions
+	// Input names the table being written (the input file) in the
+	// errors of the Parquet and Arrow writers about its values, which
+	// must be valid UTF-8 text there (unless Parquet.Input is set).
+	Input string
 }
 
 // Output is a table being written to a temporary file beside its final
@@ -232,9 +236,13 @@ func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, erro
 	case CSV:
 		w, err = csvio.NewWriter(f, schema, opts.CSV)
 	case Parquet:
-		w, err = pqio.NewWriter(f, schema, opts.Parquet)
+		po := opts.Parquet
+		if po.Input == "" {
+			po.Input = opts.Input
+		}
+		w, err = pqio.NewWriter(f, schema, po)
 	case Arrow:
-		w, err = arrowio.NewWriter(f, schema)
+		w, err = arrowio.NewWriterWith(f, schema, arrowio.WriterOptions{Input: opts.Input})
 	default:
 		err = fmt.Errorf("unknown output format %q", format)
 	}

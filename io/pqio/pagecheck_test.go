@@ -559,3 +559,53 @@ func TestHostileDeltaPages(t *testing.T) {
 		t.Fatalf("last text %q", got)
 	}
 }
+
+// TestFooterListSize opens files whose footer declares a list of 2^31-1
+// schema elements (the decoder would make that list before reading it) or
+// is cut short: refused as corrupt by the reader and by Source, within a
+// megabyte.
+func TestFooterListSize(t *testing.T) {
+	data := crcFile(t, "none")
+	n := int(binary.LittleEndian.Uint32(data[len(data)-8:]))
+	body, fb := data[:len(data)-8-n], data[len(data)-8-n:len(data)-8]
+	var meta format.FileMetaData
+	if err := thrift.Unmarshal(&compact, fb, &meta); err != nil {
+		t.Fatal(err)
+	}
+	// Field 2 (schema), a list of structs: header 0x19, then the list's
+	// size and element type, 0x4C for 4 elements (the thrift compact
+	// protocol's layout).
+	at := bytes.Index(fb, []byte{0x19, byte(len(meta.Schema))<<4 | 0x0C})
+	if at < 0 || len(meta.Schema) != 4 {
+		t.Fatalf("schema list not found in the footer (%d elements)", len(meta.Schema))
+	}
+	huge := append([]byte{0x19, 0xFC}, binary.AppendUvarint(nil, 1<<31-1)...)
+	for name, footer := range map[string][]byte{
+		"list of 2^31-1": append(append(bytes.Clone(fb[:at]), huge...), fb[at+2:]...),
+		"cut short":      fb[:len(fb)-5],
+	} {
+		t.Run(name, func(t *testing.T) {
+			bad := append(bytes.Clone(body), footer...)
+			bad = binary.LittleEndian.AppendUint32(bad, uint32(len(footer)))
+			bad = append(bad, "PAR1"...)
+			var err error
+			alloc := allocDuring(func() {
+				_, err = openReaderAt("footer.parquet", bytes.NewReader(bad), int64(len(bad)))
+			})
+			if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), "footer.parquet: file is corrupt or truncated: malformed footer") {
+				t.Fatalf("open: %v, want ErrCorrupt naming the malformed footer", err)
+			}
+			path := filepath.Join(t.TempDir(), "footer.parquet")
+			if err := os.WriteFile(path, bad, 0o644); err != nil {
+				t.Fatal(err)
+			}
+			alloc += allocDuring(func() { _, err = OpenSource(path) })
+			if !errors.Is(err, table.ErrCorrupt) {
+				t.Fatalf("OpenSource: %v, want ErrCorrupt", err)
+			}
+			if alloc > 1<<20 {
+				t.Fatalf("allocated %d bytes", alloc)
+			}
+		})
+	}
+}

@@ -197,7 +197,8 @@ func openReaderAt(name string, ra io.ReaderAt, size int64) (r *Reader, err error
 }
 
 // checkFooter checks the footer's length before the decoder allocates a
-// buffer of that size: a damaged length would otherwise cost up to 4 GiB.
+// buffer of that size (a damaged length would otherwise cost up to 4 GiB),
+// then its structure (see checkThrift).
 func checkFooter(name string, ra io.ReaderAt, size int64) error {
 	var tail [8]byte
 	if size < 12 {
@@ -209,8 +210,16 @@ func checkFooter(name string, ra io.ReaderAt, size int64) error {
 	if string(tail[4:]) != "PAR1" {
 		return fmt.Errorf("%s: %w: no Parquet magic at the end of the file", name, table.ErrCorrupt)
 	}
-	if n := int64(binary.LittleEndian.Uint32(tail[:4])); n+12 > size {
+	n := int64(binary.LittleEndian.Uint32(tail[:4]))
+	if n+12 > size {
 		return fmt.Errorf("%s: %w: footer of %d bytes in a file of %d", name, table.ErrCorrupt, n, size)
+	}
+	footer := make([]byte, n)
+	if _, err := ra.ReadAt(footer, size-8-n); err != nil {
+		return fmt.Errorf("%s: reading the footer: %w", name, err)
+	}
+	if err := checkThrift(footer); err != nil {
+		return fmt.Errorf("%s: %w: %w", name, table.ErrCorrupt, err)
 	}
 	return nil
 }

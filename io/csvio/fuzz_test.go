@@ -6,6 +6,7 @@ import (
 	"errors"
 	"io"
 	"math"
+	"reflect"
 	"strings"
 	"testing"
 
@@ -86,6 +87,7 @@ func FuzzReader(f *testing.F) {
 		}
 
 		got, gerr := fuzzRead(data, opts)
+		read := opts // the options of the read compared
 		if bytes.IndexByte(data, 0) >= 0 {
 			if gerr == nil {
 				t.Fatalf("input with a NUL byte accepted as %q", got)
@@ -94,9 +96,8 @@ func FuzzReader(f *testing.F) {
 		}
 		var ke *KindError
 		if errors.As(gerr, &ke) {
-			all := opts
-			all.SampleRows = math.MaxInt32
-			if got, gerr = fuzzRead(data, all); errors.As(gerr, &ke) {
+			read.SampleRows = math.MaxInt32
+			if got, gerr = fuzzRead(data, read); errors.As(gerr, &ke) {
 				t.Fatalf("a value does not read as the kind inferred from every row: %v", gerr)
 			}
 		}
@@ -118,6 +119,7 @@ func FuzzReader(f *testing.F) {
 			}
 			return
 		}
+		checkFieldLimit(t, data, read, got)
 		if len(got) > 0 && len(got[0]) == 1 {
 			kept := got[:1]
 			for _, rec := range got[1:] {
@@ -144,6 +146,39 @@ func FuzzReader(f *testing.F) {
 			}
 		}
 	})
+}
+
+// checkFieldLimit reads data again with a small field limit: the read
+// must give the records got unless a field is longer than the limit, and
+// must refuse a field whose value alone is longer. A field as written is
+// at most twice its value's length (every byte a doubled quote) plus its
+// two quotes.
+func checkFieldLimit(t *testing.T, data []byte, opts Options, got [][]string) {
+	opts.MaxFieldBytes = len(data)%13 + 1
+	longest := 0
+	for _, rec := range got {
+		for _, v := range rec {
+			if v != null {
+				longest = max(longest, len(v))
+			}
+		}
+	}
+	lgot, lerr := fuzzRead(data, opts)
+	switch {
+	case lerr == nil:
+		if longest > opts.MaxFieldBytes {
+			t.Fatalf("a value of %d bytes read with a field limit of %d", longest, opts.MaxFieldBytes)
+		}
+		if !reflect.DeepEqual(lgot, got) {
+			t.Fatalf("with a field limit of %d: %q, without: %q", opts.MaxFieldBytes, lgot, got)
+		}
+	case errors.Is(lerr, errFieldSize):
+		if 2*longest+2 <= opts.MaxFieldBytes {
+			t.Fatalf("no field can pass the limit of %d (longest value %d bytes): %v", opts.MaxFieldBytes, longest, lerr)
+		}
+	default:
+		t.Fatalf("with a field limit of %d: %v", opts.MaxFieldBytes, lerr)
+	}
 }
 
 // fuzzRead returns the header (unless opts.NoHeader) and the records.

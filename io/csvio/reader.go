@@ -1052,11 +1052,26 @@ func (r *Reader) fieldErr(hdr bool, fi, rs int, line int64, fs, fe int, crlf boo
 		n--
 	}
 	if n > r.maxField {
-		return r.dataErr(hdr, fi, rs, line, fs,
+		err := r.dataErr(hdr, fi, rs, line, fs,
 			"field longer than "+sizeText(r.maxField)+" (the limit; raise it with --max-field-bytes)", true)
+		if de, ok := err.(*table.DataError); ok {
+			de.Err = &limitError{de.Err}
+		}
+		return err
 	}
 	return nil
 }
+
+// errFieldSize is matched (errors.Is) by the error of a field longer than
+// Options.MaxFieldBytes.
+var errFieldSize = errors.New("field longer than the limit")
+
+// limitError is the error of a field longer than the limit.
+type limitError struct{ err error }
+
+func (e *limitError) Error() string        { return e.err.Error() }
+func (e *limitError) Unwrap() error        { return e.err }
+func (e *limitError) Is(target error) bool { return target == errFieldSize }
 
 func indexOrLen(b []byte, c byte) int {
 	if i := bytes.IndexByte(b, c); i >= 0 {

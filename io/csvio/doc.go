@@ -62,13 +62,15 @@
 //   - text otherwise, and when the sample has no non-null value.
 //
 // A value with a leading zero such as "00501" makes its column text, so that
-// codes keep their zeros. Options.Types overrides the inferred kinds. Kinds
+// codes keep their zeros. Options.Types overrides the inferred kinds, and
+// so does Options.TypesIfPresent for the columns the header has. Kinds
 // are logical only: the data stays text. But every value of an int, float
 // or bool column, inferred or forced, past the sample too, must read as its
 // kind the way the writers parse it (an int may then also be written with
 // leading zeros, or as a number without a fraction such as 3.0; a bool as
-// strconv.ParseBool accepts), so that a value that does not is reported by
-// the reader, whatever the output format.
+// table.ParseBool accepts: 1, t, T, true, TRUE, True and 0, f, F, false,
+// FALSE, False), so that a value that does not is reported by the reader,
+// whatever the output format, as a *KindError inside the *table.DataError.
 //
 // Bad data is reported as a *table.DataError naming the file, the line and,
 // where known, the column.

@@ -266,10 +266,20 @@ type hostileCase struct {
 	edit pageEdit
 	md   func(*format.FileMetaData)
 	want string
+	// patch, when set, replaces edit and md: it damages the file itself.
+	patch func(t testing.TB, data []byte) []byte
 	// copyWant, when set, is in the error of copying the file's chunks
 	// into a zstd file (copies without recompressing decode nothing, and
 	// may succeed).
 	copyWant string
+}
+
+// build returns the damaged file made from data.
+func (tc *hostileCase) build(t testing.TB, data []byte) []byte {
+	if tc.patch != nil {
+		return tc.patch(t, data)
+	}
+	return rebuild(t, data, tc.edit, tc.md)
 }
 
 // onPage applies f to the first page of type typ of column c in row group
@@ -348,10 +358,9 @@ var hostileCases = []hostileCase{
 		}),
 		want: `column "s": row group 1: page 1: file is corrupt or truncated: dictionary page declares 2147483647 values`},
 	{name: "page past its chunk", comp: "snappy",
-		edit: onPage(1, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
-			h.CompressedPageSize = 1 << 30
-			return body
-		}),
+		// rebuild follows the sizes: the header's bytes are patched in
+		// place instead.
+		patch:    func(t testing.TB, data []byte) []byte { return patchFirstPageSize(t, data, 2) },
 		want:     `column "b": row group 1: page 1: file is corrupt or truncated: page of 223 bytes runs past its column chunk`,
 		copyWant: `column "b", row group 1: page 1 (byte`},
 }
@@ -365,14 +374,7 @@ func TestHostilePages(t *testing.T) {
 	for _, tc := range hostileCases {
 		t.Run(tc.name, func(t *testing.T) {
 			data := crcFile(t, tc.comp)
-			var bad []byte
-			if tc.name == "page past its chunk" {
-				// The edit cannot go through rebuild, which follows the
-				// sizes: patch the header's bytes in place instead.
-				bad = patchFirstPageSize(t, data, 2)
-			} else {
-				bad = rebuild(t, data, tc.edit, tc.md)
-			}
+			bad := tc.build(t, data)
 			var err error
 			alloc := allocDuring(func() {
 				r := openBytes(t, "bad.parquet", bad)

@@ -12,6 +12,7 @@ import (
 
 	"manyfold/encoders/pipeline"
 	"manyfold/internal/hugemem"
+	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -107,7 +108,7 @@ type outputFlags struct {
 }
 
 func (f *outputFlags) add(fs *pflag.FlagSet) {
-	fs.StringVar(&f.out, "out", "", "encoded table: .parquet, .csv or .arrow")
+	fs.StringVar(&f.out, "out", "", "encoded table: .parquet, .csv or .arrow; - for standard output (with --format)")
 	fs.StringVar(&f.format, "format", "", "output format, overriding the extension: parquet, csv, arrow")
 	fs.StringVar(&f.compression, "compression", "snappy", "Parquet output compression: snappy, zstd, none")
 	fs.IntVar(&f.threads, "threads", runtime.NumCPU(), "cores to use: columns encoded at once, and reading, encoding and writing side by side (the output is the same for any number)")
@@ -124,6 +125,9 @@ func (f *outputFlags) options(input string) (tableio.WriteOptions, error) {
 	format := tableio.Format(f.format)
 	switch format {
 	case "":
+		if f.out == tableio.Stdout {
+			return tableio.WriteOptions{}, usagef("--out - writes to standard output: give its format with --format csv, parquet or arrow")
+		}
 		if tableio.FormatOf(f.out) == "" {
 			return tableio.WriteOptions{}, usagef("--out %s: cannot tell the output format from the extension (use .csv, .parquet or .arrow, or give --format)", f.out)
 		}
@@ -204,16 +208,18 @@ func spool(path string) (string, func(), error) {
 	if err != nil {
 		return "", nil, err
 	}
+	// Tracked, so that a run stopped by a signal removes it.
+	atomicfile.Track(f.Name())
 	if _, err := io.Copy(f, os.Stdin); err != nil {
 		f.Close()
-		os.Remove(f.Name())
+		atomicfile.Remove(f.Name())
 		return "", nil, fmt.Errorf("stdin: %w", err)
 	}
 	if err := f.Close(); err != nil {
-		os.Remove(f.Name())
+		atomicfile.Remove(f.Name())
 		return "", nil, err
 	}
-	return f.Name(), func() { os.Remove(f.Name()) }, nil
+	return f.Name(), func() { atomicfile.Remove(f.Name()) }, nil
 }
 
 // progress prints a rows-read line on standard error when it is a

@@ -1,8 +1,8 @@
 package main
 
 import (
-	"bytes"
 	"fmt"
+	"io"
 	"os"
 	"runtime"
 
@@ -77,6 +77,9 @@ func runCompare(args []string) (err error) {
 			return usagef("%s is the input file; choose another path", p)
 		}
 	}
+	if sameOutput(*jsonOut, *report) {
+		return usagef("--json and --report both name %s; give two files", *jsonOut)
+	}
 	ropts, err := in.options()
 	if err != nil {
 		return err
@@ -118,19 +121,8 @@ func runCompare(args []string) (err error) {
 	if err != nil {
 		return err
 	}
-	if *jsonOut != "" {
-		var buf bytes.Buffer
-		if err := compare.WriteJSON(&buf, res); err != nil {
-			return err
-		}
-		if err := writeAtomic(*jsonOut, buf.Bytes()); err != nil {
-			return &outputError{fmt.Errorf("write %s: %w", *jsonOut, err)}
-		}
-	}
-	if *report != "" {
-		if err := compare.WriteReport(*report, res); err != nil {
-			return &outputError{err}
-		}
+	if err := writeResults(res, *jsonOut, *report); err != nil {
+		return &outputError{err}
 	}
 	if err := compare.WriteText(os.Stdout, res); err != nil {
 		return &outputError{err}
@@ -138,15 +130,32 @@ func runCompare(args []string) (err error) {
 	return nil
 }
 
-// writeAtomic writes b to path, which appears only when complete.
-func writeAtomic(path string, b []byte) error {
-	f, err := atomicfile.Create(path)
-	if err != nil {
+// writeResults writes the JSON result and the HTML report, those whose
+// path is not empty, as one unit: both are written in full before either
+// is moved into place, so a failure leaves neither.
+func writeResults(res *compare.Result, jsonPath, reportPath string) error {
+	var outs []atomicfile.Output
+	fail := func(err error) error {
+		for _, o := range outs {
+			o.Abort()
+		}
 		return err
 	}
-	if _, err := f.Write(b); err != nil {
-		f.Abort()
-		return err
+	for _, o := range []struct {
+		path  string
+		write func(io.Writer, *compare.Result) error
+	}{{jsonPath, compare.WriteJSON}, {reportPath, compare.WriteReportTo}} {
+		if o.path == "" {
+			continue
+		}
+		f, err := atomicfile.Create(o.path)
+		if err != nil {
+			return fail(err)
+		}
+		outs = append(outs, f)
+		if err := o.write(f, res); err != nil {
+			return fail(fmt.Errorf("write %s: %w", o.path, err))
+		}
 	}
-	return f.Commit()
+	return atomicfile.CommitAll(outs...)
 }

@@ -11,6 +11,8 @@ import (
 	"time"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/internal/guard"
+	"manyfold/io/atomicfile"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -127,6 +129,9 @@ func runEncode(args []string) (err error) {
 	if err != nil {
 		return err
 	}
+	if err := checkTablesFlag(*tables, file, of.out); err != nil {
+		return err
+	}
 	start := time.Now()
 	path, name, done, err := spoolInput(file)
 	if err != nil {
@@ -203,8 +208,12 @@ func runEncode(args []string) (err error) {
 	}
 	tablesDone := make(chan staged, 1)
 	go phase("tables", func() {
-		st, err := m.StageTables(*tables)
-		tablesDone <- staged{st, err}
+		var s staged
+		func() {
+			defer guard.Catch(&s.err)
+			s.st, s.err = m.StageTables(*tables)
+		}()
+		tablesDone <- s
 	})
 	pr = newProgress("encode")
 	region = trace.StartRegion(context.Background(), "encode")
@@ -214,8 +223,9 @@ func runEncode(args []string) (err error) {
 	})
 	region.End()
 	if err == nil {
-		// Finish the output (the writer runs behind the encoding) before
-		// anything is committed, so that a failure leaves neither.
+		// Finish the output (the writer runs behind the encoding), so
+		// that bad data met by the writer is reported before anything
+		// is committed.
 		if cerr := w.Writer.Close(); cerr != nil {
 			err = commitError(cerr)
 		}
@@ -232,11 +242,10 @@ func runEncode(args []string) (err error) {
 		}
 		return &outputError{saved.err}
 	}
-	if err := saved.st.Commit(); err != nil {
-		w.Abort()
-		return &outputError{err}
-	}
-	if err := w.Commit(); err != nil {
+	// The output and the tables are one unit: both are made durable
+	// first, then the output is renamed into place and the tables
+	// directory swapped for the old one.
+	if err := atomicfile.CommitAll(w, saved.st); err != nil {
 		return commitError(err)
 	}
 	fmt.Fprintf(os.Stderr, "encoded %d rows", sum.Rows)

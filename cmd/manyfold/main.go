@@ -12,11 +12,14 @@
 //	manyfold compare FILE [flags]   rank encodings of each column by nested cross-validation
 //	manyfold demo [flags]           run the whole job on a generated parcel-network table
 //
-// Exit codes: 0 success; 1 unexpected failure; 2 usage (bad flags, unknown
-// column); 3 input cannot be read as a table (missing, empty, unknown
-// format, corrupt); 4 bad data in the input (ragged row, bad quote, bad
-// target); 5 output cannot be written; 6 mapping tables that cannot serve
-// (wrong version, other columns or types).
+// Exit codes: 0 success; 1 unexpected failure (an internal error: a bug,
+// reported in one line; MANYFOLD_DEBUG=1 adds the stack); 2 usage (bad
+// flags, unknown column); 3 input cannot be read as a table (missing,
+// empty, a directory, unknown format, corrupt, Parquet on standard
+// input); 4 bad data in the input (ragged row, bad quote, bad target); 5
+// output cannot be written; 6 mapping tables that cannot serve (wrong
+// version, other columns or types); 130 and 143 stopped by SIGINT or
+// SIGTERM, with the temporary files removed.
 package main
 
 import (
@@ -24,15 +27,19 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"os/signal"
 	"runtime"
 	"runtime/debug"
 	"runtime/metrics"
 	"runtime/pprof"
 	"runtime/trace"
+	"syscall"
 
 	"github.com/spf13/pflag"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/internal/guard"
+	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
 	"manyfold/io/table"
 )
@@ -88,6 +95,7 @@ func main() {
 	if os.Getenv("GOGC") == "" {
 		tuneGC()
 	}
+	stopOnSignals()
 	// For contributors (see DEVELOPERS.md): an execution trace for "go
 	// tool trace", or a CPU profile, of the whole run.
 	recordRun("MANYFOLD_TRACE", trace.Start, trace.Stop)
@@ -143,7 +151,7 @@ func run(args []string) int {
 	}
 	for _, c := range commands {
 		if c.name == args[0] {
-			err := c.run(args[1:])
+			err := runCommand(c, args[1:])
 			if err == nil {
 				return exitOK
 			}
@@ -151,11 +159,42 @@ func run(args []string) int {
 				return exitOK
 			}
 			fmt.Fprintln(os.Stderr, "manyfold "+c.name+": "+err.Error())
+			var p *guard.Panic
+			if errors.As(err, &p) && os.Getenv("MANYFOLD_DEBUG") != "" {
+				os.Stderr.Write(p.Stack)
+			}
 			return exitCode(err)
 		}
 	}
 	fmt.Fprintf(os.Stderr, "manyfold: unknown command %q\n\n%s", args[0], usage)
 	return exitUsage
+}
+
+// runCommand runs a command; a panic, on its goroutine or carried from a
+// worker's (guard.Group), becomes a *guard.Panic error, and the temporary
+// files that the command's aborts did not remove are removed.
+func runCommand(c command, args []string) (err error) {
+	defer atomicfile.RemoveTracked()
+	defer guard.Catch(&err)
+	return c.run(args)
+}
+
+// stopOnSignals makes SIGINT and SIGTERM remove the run's temporary files
+// (the output being written, the staged mapping tables, the spool of
+// standard input: atomicfile.Cleanup) and exit 130 or 143, the codes a
+// shell gives a process those signals end. A write to a closed pipe on
+// standard output fails with an error (exit 5) instead of killing the
+// process, so that the staged tables are removed then too.
+func stopOnSignals() {
+	c := make(chan os.Signal, 1)
+	signal.Notify(c, os.Interrupt, syscall.SIGTERM)
+	signal.Notify(make(chan os.Signal, 1), syscall.SIGPIPE)
+	go func() {
+		s := <-c
+		atomicfile.Cleanup()
+		fmt.Fprintf(os.Stderr, "manyfold: stopped by %v; temporary files removed\n", s)
+		os.Exit(128 + int(s.(syscall.Signal)))
+	}()
 }
 
 // usageError is a mistake on the command line.
@@ -179,7 +218,10 @@ func exitCode(err error) int {
 	var de *table.DataError
 	var me *pipeline.ManifestError
 	var oe *outputError
+	var gp *guard.Panic
 	switch {
+	case errors.As(err, &gp):
+		return exitFailure
 	case errors.As(err, &ue), errors.As(err, &pu), errors.As(err, &ce), errors.Is(err, csvio.ErrTypeColumn):
 		return exitUsage
 	case errors.As(err, &oe):

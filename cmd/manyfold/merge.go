@@ -28,6 +28,9 @@ func runMerge(args []string) error {
 	if fs.NArg() < 2 || *tables == "" {
 		return usagef("merge takes two or more tables directories and --tables OUT")
 	}
+	if err := checkTablesFlag(*tables, "", ""); err != nil {
+		return err
+	}
 	var models []*pipeline.Model
 	for _, dir := range fs.Args() {
 		m, err := pipeline.LoadTables(dir)

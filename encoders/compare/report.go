@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"fmt"
 	"html/template"
+	"io"
 	"math"
 	"slices"
 	"strconv"
@@ -37,17 +38,11 @@ func WriteReport(path string, r *Result) error {
 	if r == nil {
 		return fmt.Errorf("write report %s: no result", path)
 	}
-	view := buildView(r)
 	f, err := atomicfile.Create(path)
 	if err != nil {
 		return fmt.Errorf("write report: %w", err)
 	}
-	w := bufio.NewWriterSize(f, 64<<10)
-	if err := reportTemplate.Execute(w, view); err != nil {
-		f.Abort()
-		return fmt.Errorf("write report %s: %w", path, err)
-	}
-	if err := w.Flush(); err != nil {
+	if err := WriteReportTo(f, r); err != nil {
 		f.Abort()
 		return fmt.Errorf("write report %s: %w", path, err)
 	}
@@ -55,6 +50,18 @@ func WriteReport(path string, r *Result) error {
 		return fmt.Errorf("write report: %w", err)
 	}
 	return nil
+}
+
+// WriteReportTo writes the report that WriteReport writes to w.
+func WriteReportTo(w io.Writer, r *Result) error {
+	if r == nil {
+		return fmt.Errorf("no result")
+	}
+	bw := bufio.NewWriterSize(w, 64<<10)
+	if err := reportTemplate.Execute(bw, buildView(r)); err != nil {
+		return err
+	}
+	return bw.Flush()
 }
 
 // ---- view model: every string is final text; the template escapes it ----

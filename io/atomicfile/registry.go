@@ -67,6 +67,18 @@ func Cleanup() {
 	registry.paths = nil
 }
 
+// RemoveTracked removes every tracked path now, as Cleanup does, but
+// lets the process go on making new ones: for a command that returns after
+// a panic, whose deferred aborts did not all run.
+func RemoveTracked() {
+	registry.mu.Lock()
+	defer registry.mu.Unlock()
+	for p := range registry.paths {
+		os.RemoveAll(p)
+	}
+	registry.paths = nil
+}
+
 // Tracked returns the tracked paths, for tests.
 func Tracked() []string {
 	registry.mu.Lock()

@@ -1,0 +1,69 @@
+package main
+
+import (
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"manyfold/encoders/pipeline"
+	"manyfold/io/tableio"
+)
+
+// checkTablesFlag vets a --tables directory that a command will write,
+// before any input is read: the tables replace the whole directory, so it
+// must not hold the output, the input or anything but mapping tables.
+// Paths are compared after resolving symbolic links; "-" (standard input
+// or output) is never inside.
+func checkTablesFlag(tables, input, out string) error {
+	if fi, err := os.Stat(tables); err == nil && !fi.IsDir() {
+		return &outputError{fmt.Errorf("tables: %s exists and is not a directory", tables)}
+	}
+	if out != "" && out != tableio.Stdout && within(out, tables) {
+		return usagef("--out %s is inside --tables %s, which the mapping tables replace whole; write the output elsewhere", out, tables)
+	}
+	if input != "" && input != "-" && within(input, tables) {
+		return usagef("the input %s is inside --tables %s, which the mapping tables replace whole; give another --tables", input, tables)
+	}
+	if err := pipeline.CheckTablesDir(tables); err != nil {
+		return usagef("--tables %v", err)
+	}
+	return nil
+}
+
+// within reports whether path is dir or lies under it.
+func within(path, dir string) bool {
+	p, d := resolved(path), resolved(dir)
+	return p == d || strings.HasPrefix(p, d+string(filepath.Separator))
+}
+
+// resolved returns path made absolute, with the symbolic links of its
+// longest existing prefix resolved.
+func resolved(path string) string {
+	abs, err := filepath.Abs(path)
+	if err != nil {
+		return filepath.Clean(path)
+	}
+	var rest []string
+	for p := abs; ; p = filepath.Dir(p) {
+		if r, err := filepath.EvalSymlinks(p); err == nil {
+			return filepath.Join(append([]string{r}, rest...)...)
+		}
+		if p == filepath.Dir(p) {
+			return abs
+		}
+		rest = append([]string{filepath.Base(p)}, rest...)
+	}
+}
+
+// sameOutput reports whether two output paths name the same file, existing
+// or not.
+func sameOutput(a, b string) bool {
+	if a == "" || b == "" {
+		return false
+	}
+	if resolved(a) == resolved(b) {
+		return true
+	}
+	return sameFile(a, b)
+}

@@ -61,6 +61,14 @@ type Col struct {
 	// column, shared by every encoded column, and ParentOf is nil.
 	Parent   *Col
 	ParentOf []int32
+	// nest, with --prior-by column, records for each level the parent of
+	// its rows: the slot of the parent level all of them had, noParent
+	// before the first, or mixedParents when they had several (see
+	// Stats.Parents).
+	nest []int32
+	// rowSlots, for a column loaded from a mapping table, is the slot of
+	// each of the table's rows.
+	rowSlots []int32
 
 	// replay holds the slots of the fit's rows for the encode pass over
 	// the same table, for a column whose levels are nearly all distinct.
@@ -163,6 +171,9 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		}
 		parent = &Col{Name: sp.PriorColumn, Kind: schema.Fields[i].Kind, Index: i}
 		pslots = levelSlots{col: i, settle: true}
+		for _, c := range m.Cols {
+			c.nest = []int32{}
+		}
 	}
 	all := m.Cols
 	if parent != nil {
@@ -333,6 +344,12 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		parent.St.Task = m.Task
 		for _, c := range m.Cols {
 			c.Parent = parent
+			for l, p := range c.nest {
+				if p == noParent {
+					c.nest[l] = mixedParents
+				}
+			}
+			c.St.Parents = c.nest
 		}
 	}
 	for _, c := range m.Cols {
@@ -347,6 +364,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			})
 			c.Parent = &Col{Name: c.Name + " prefix", St: ps}
 			c.ParentOf = of
+			c.St.Parents = of
 		}
 	}
 	if opt.Tables && opt.Threads >= 2 {
@@ -395,12 +413,35 @@ func (bc *batchCounts) take(rows int, cls []int32, vals []float64, fold []int32)
 	}
 }
 
+// noParent and mixedParents mark a level in Col.nest with no row yet, and
+// one whose rows have had several parent levels.
+const (
+	noParent     = -2
+	mixedParents = -1
+)
+
 // count adds the rows of a batch to column c's statistics: stage 2 of the
 // fit (see Fit), after its levels were interned.
 func (m *Model) count(c *Col, bc *batchCounts, ci int, supervised, regress bool) {
 	st := c.St
 	st.Settle(bc.levels[ci])
 	ls := bc.slots[ci]
+	if c.nest != nil {
+		// With --prior-by column the parent's slots are the last column's.
+		ps := bc.slots[len(bc.slots)-1]
+		for len(c.nest) < st.NumLevels() {
+			c.nest = append(c.nest, noParent)
+		}
+		for i, l := range ls {
+			switch cur := c.nest[l]; cur {
+			case ps[i], mixedParents:
+			case noParent:
+				c.nest[l] = ps[i]
+			default:
+				c.nest[l] = mixedParents
+			}
+		}
+	}
 	if c.replay != nil && !c.replay.record(ls) {
 		c.replay = nil
 	}

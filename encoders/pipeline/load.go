@@ -43,7 +43,10 @@ func LoadTables(dir string) (*Model, error) {
 	if err != nil {
 		return nil, &ManifestError{Dir: dir, Msg: ManifestName + ": " + err.Error()}
 	}
-	m := &Model{Spec: sp, Classes: mf.Classes, Rows: mf.Rows, Missing: mf.Missing}
+	m := &Model{Spec: sp, Classes: mf.Classes, Rows: mf.Rows, Missing: mf.Missing, Origin: mf.Origin}
+	if math.IsNaN(m.Origin) || math.IsInf(m.Origin, 0) || (m.Origin != 0 && mf.Task != colstats.Regression.String()) {
+		return nil, &ManifestError{Dir: dir, Msg: ManifestName + fmt.Sprintf(": target_origin %g: want a finite number, and 0 unless the task is regression", m.Origin)}
+	}
 	for _, f := range mf.Input {
 		k, _ := table.ParseKind(f.Type) // checked
 		m.Input = append(m.Input, table.Field{Name: f.Name, Kind: k})
@@ -66,6 +69,17 @@ func LoadTables(dir string) (*Model, error) {
 				return nil, err
 			}
 			c.Parent = p
+			if c.nest != nil { // parent rows to the parent's slots
+				for l, r := range c.nest {
+					if int(r) >= len(p.rowSlots) {
+						return nil, &ManifestError{Dir: filepath.Join(dir, mc.Table), Msg: fmt.Sprintf("parent_row %d: the parent table has %d rows", r, len(p.rowSlots))}
+					}
+					if r >= 0 {
+						c.nest[l] = p.rowSlots[r]
+					}
+				}
+				c.St.Parents = c.nest
+			}
 		}
 		m.Cols = append(m.Cols, c)
 	}
@@ -424,6 +438,7 @@ func specFrom(mf *Manifest) (Spec, error) {
 		Scheme: p.Scheme, Smoothing: sm, PriorPrefix: p.PriorPrefix, PriorColumn: p.PriorColumn, Output: p.Output, FreqShare: p.Freq == "share",
 		TopK: p.TopK, MinCount: p.MinCount, Buckets: p.Buckets, HashSeed: p.HashSeed, Signed: p.Signed,
 		MinLevelRows: p.MinLevelRows, NullsUnseen: p.Nulls == "unseen", KeepAll: true}
+	sp.Smoothing.Interior = sp.Output == "logodds" // as Validate sets it
 	for _, c := range mf.Columns {
 		sp.Columns = append(sp.Columns, c.Name)
 	}
@@ -548,7 +563,8 @@ func (m *Model) loadCol(dir, name, sum string, supervised bool, prior, ms []*flo
 	bad := func(format string, a ...any) error {
 		return &ManifestError{Dir: path, Msg: fmt.Sprintf(format, a...)}
 	}
-	want := m.tableSchema(supervised)
+	nested := supervised && m.Spec.PriorColumn != "" && stored >= 0
+	want := m.tableSchema(supervised, nested)
 	got := r.Schema()
 	if len(got.Fields) != len(want.Fields) {
 		return nil, bad("table has %d columns, the manifest implies %d", len(got.Fields), len(want.Fields))
@@ -568,18 +584,19 @@ func (m *Model) loadCol(dir, name, sum string, supervised bool, prior, ms []*flo
 		task = colstats.Binary
 	}
 	st := colstats.New(task, 1, len(m.Classes), 1024)
+	st.Origin = m.Origin
 	c := &Col{St: st}
 	outs := 0
 	if supervised {
 		outs = st.Outputs()
 		c.TMean = make([][]float64, outs)
 		for o := 0; o < outs; o++ {
-			c.Full = append(c.Full, colstats.Fitted{Prior: fromOpt(prior[o]), M: fromOpt(ms[o]), Sm: m.Spec.Smoothing})
+			c.Full = append(c.Full, colstats.Fitted{Prior: fromOpt(prior[o]), M: fromOpt(ms[o]), Sm: m.Spec.Smoothing, Origin: m.Origin})
 			c.TMean[o] = []float64{0}
 		}
 	}
 	c.Freq, c.TopK, c.Keep = []float64{0}, []int32{0}, []bool{false}
-	tl := tableLoad{m: m, c: c, task: task, outs: outs, supervised: supervised, names: want.Fields}
+	tl := tableLoad{m: m, c: c, task: task, outs: outs, supervised: supervised, nested: nested, names: want.Fields}
 	if err := table.ForEach(r, tl.batch); err != nil {
 		var me *ManifestError
 		if errors.As(err, &me) {
@@ -591,6 +608,8 @@ func (m *Model) loadCol(dir, name, sum string, supervised bool, prior, ms []*flo
 	if stored >= 0 && tl.kept != stored {
 		return nil, bad("%d levels kept, but the manifest's levels_stored is %d", tl.kept, stored)
 	}
+	c.nest = tl.parentRow
+	c.rowSlots = tl.slots
 	return c, nil
 }
 
@@ -602,7 +621,10 @@ type tableLoad struct {
 	task       colstats.Task
 	outs       int
 	supervised bool
+	nested     bool // the table has parent_row
 	names      []table.Field
+	slots      []int32 // the slot of each row read
+	parentRow  []int32 // nested: each slot's parent_row
 	row        int64  // rows read
 	total      uint64 // fitting rows of the levels read
 	null       bool   // the null level was read
@@ -727,6 +749,17 @@ func (tl *tableLoad) level(b *table.Batch, i int) error {
 	bucket := next().Ints[i]
 	if want := hashenc.Bucket(hashenc.Sum(lv.Bytes(i), m.Spec.HashSeed), m.Spec.Buckets); bucket < 0 || uint64(bucket) != want {
 		return tl.errf(i, "bucket %d, but the manifest's buckets and hash_seed give %d", bucket, want)
+	}
+	tl.slots = append(tl.slots, int32(l))
+	if tl.nested {
+		pr := next().Ints[i]
+		if pr < -1 || pr > math.MaxInt32 {
+			return tl.errf(i, "parent_row %d: want -1 or a row of the parent table", pr)
+		}
+		for len(tl.parentRow) < st.NumLevels() {
+			tl.parentRow = append(tl.parentRow, -1)
+		}
+		tl.parentRow[l] = int32(pr)
 	}
 	return nil
 }

@@ -54,6 +54,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 			})
 			c.Parent = &Col{Name: c.Name + " prefix", St: ps}
 			c.ParentOf = of
+			st.Parents = of
 		}
 		if base.Spec.PriorColumn != "" && supervised {
 			ps := colstats.New(task, 1, len(base.Classes), 0)
@@ -64,6 +65,11 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 				}
 			}
 			c.Parent = &Col{Name: base.Spec.PriorColumn, St: ps}
+			var shards []*Col
+			for _, m := range models {
+				shards = append(shards, m.Cols[ci])
+			}
+			st.Parents = mergeNests(st, ps, shards)
 		}
 		out.derive(c, supervised)
 		out.Cols = append(out.Cols, c)
@@ -91,4 +97,46 @@ func compatible(a, b *Model) error {
 		return fmt.Errorf("other methods or null handling")
 	}
 	return nil
+}
+
+// mergeNests returns the parent of every level of the merged statistics st
+// (see Stats.Parents), whose parents are ps, from the shards' columns: a
+// level's parent is the one all its rows had in every shard, or
+// mixedParents when they had several or a shard did not know.
+func mergeNests(st, ps *colstats.Stats, shards []*Col) []int32 {
+	nest := make([]int32, st.NumLevels())
+	for i := range nest {
+		nest[i] = noParent
+	}
+	for _, c := range shards {
+		for l := 0; l < c.St.NumLevels(); l++ {
+			if c.St.RowCount(l) == 0 {
+				continue
+			}
+			d := 0
+			if l > 0 {
+				d = st.Level(c.St.Bytes(l))
+			}
+			p := int32(mixedParents)
+			if l < len(c.St.Parents) && c.St.Parents[l] >= 0 {
+				pl := int(c.St.Parents[l])
+				p = int32(0)
+				if pl > 0 {
+					p = int32(ps.Level(c.Parent.St.Bytes(pl)))
+				}
+			}
+			switch cur := nest[d]; {
+			case cur == noParent:
+				nest[d] = p
+			case cur != p:
+				nest[d] = mixedParents
+			}
+		}
+	}
+	for i, p := range nest {
+		if p == noParent {
+			nest[i] = mixedParents
+		}
+	}
+	return nest
 }

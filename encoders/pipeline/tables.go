@@ -317,7 +317,12 @@ func (m *Model) saveTable(path string, c *Col) (string, error) {
 }
 
 // tableSchema returns the layout of a column's mapping table.
-func (m *Model) tableSchema(supervised bool) *table.Schema {
+//
+// nested adds parent_row, in the table of a column whose prior is another
+// column's value (--prior-by column): for each level, the row of the parent
+// table whose level all of its rows had, or -1 when they had several. A
+// merge needs it to estimate m within parents (Stats.Parents).
+func (m *Model) tableSchema(supervised, nested bool) *table.Schema {
 	s := &table.Schema{Fields: []table.Field{{Name: "level", Kind: table.String, Nullable: true}, {Name: "rows", Kind: table.Int64}}}
 	add := func(name string, k table.Kind) { s.Fields = append(s.Fields, table.Field{Name: name, Kind: k}) }
 	if supervised {
@@ -342,7 +347,36 @@ func (m *Model) tableSchema(supervised bool) *table.Schema {
 	add("freq", table.Float64)
 	add("topk", table.Int64)
 	add("bucket", table.Int64)
+	if nested {
+		add("parent_row", table.Int64)
+	}
 	return s
+}
+
+// parentRows returns, for a column with --prior-by column, the parent_row
+// of every level slot (see tableSchema): its parent's row in the parent
+// table, -1 for none or several.
+func (m *Model) parentRows(c *Col) []int64 {
+	p := c.Parent
+	row := make([]int64, p.St.NumLevels())
+	for i := range row {
+		row[i] = -1
+	}
+	r := int64(0)
+	for _, l := range p.order() {
+		if p.Keep[l] || (l == 0 && m.Spec.NullsUnseen) { // as saveCol selects
+			row[l] = r
+			r++
+		}
+	}
+	out := make([]int64, c.St.NumLevels())
+	for l := range out {
+		out[l] = -1
+		if l < len(c.St.Parents) && c.St.Parents[l] >= 0 {
+			out[l] = row[c.St.Parents[l]]
+		}
+	}
+	return out
 }
 
 // tableRowGroup is the number of levels in a row group of a mapping table.
@@ -351,7 +385,12 @@ const tableRowGroup = 1 << 17
 func (m *Model) saveCol(path string, c *Col) error {
 	defer trace.StartRegion(context.Background(), "table "+c.Name).End()
 	supervised := c.Full != nil
-	schema := m.tableSchema(supervised)
+	nested := supervised && m.Spec.PriorColumn != "" && c.Parent != nil
+	schema := m.tableSchema(supervised, nested)
+	var parentRow []int64
+	if nested {
+		parentRow = m.parentRows(c)
+	}
 	// Row groups of tableRowGroup levels: the writer holds a row group's
 	// pages until it is complete, and a table may have millions of levels.
 	out, err := tableio.Create(path, schema, tableio.WriteOptions{Format: tableio.Parquet, Parquet: pqio.WriterOptions{RowGroupRows: tableRowGroup}})
@@ -462,6 +501,12 @@ func (m *Model) saveCol(path string, c *Col) error {
 		for i := range sel {
 			v := lv.Data[lv.Offsets[i]:lv.Offsets[i+1]]
 			bucketCol[i] = int64(hashenc.Bucket(hashenc.Sum(v, m.Spec.HashSeed), m.Spec.Buckets))
+		}
+		if nested {
+			pr := cols[j+1].Ints
+			for i, l := range sel {
+				pr[i] = parentRow[l]
+			}
 		}
 		b.Rows = n
 		if n == 0 {

@@ -270,3 +270,56 @@ func TestLogOdds(t *testing.T) {
 		t.Fatalf("clipped log-odds = %v, %v, want about ±34.5", lo, hi)
 	}
 }
+
+// TestNestedMoments: with every level under one parent the nested
+// estimator is the one-way estimator (EstimateM); moving every level of a
+// parent by the same amount (a parent effect) leaves it unchanged, since
+// only the spread of levels around their own parent counts, while the
+// one-way estimate sees the parents' spread as between-level variance and
+// shrinks less (a smaller m).
+func TestNestedMoments(t *testing.T) {
+	levels := []LevelStats{
+		{N: 4, Sum: 2, SumSq: 1.5}, {N: 3, Sum: 2.4, SumSq: 2.1}, {N: 5, Sum: 1, SumSq: 0.9},
+		{N: 2, Sum: 1.6, SumSq: 1.4}, {N: 6, Sum: 3.3, SumSq: 2.2}, {N: 3, Sum: 0.6, SumSq: 0.5},
+	}
+	var one NestedMoments
+	for _, s := range levels {
+		one.Add(s, 0)
+	}
+	m1, s1, t1 := one.Estimate()
+	m0, s0, t0 := EstimateM(levels)
+	if math.Abs(m1-m0) > 1e-12*m0 || math.Abs(s1-s0) > 1e-12 || math.Abs(t1-t0) > 1e-12 {
+		t.Errorf("one parent: m, sigma2, tau2 = %g, %g, %g; EstimateM gives %g, %g, %g", m1, s1, t1, m0, s0, t0)
+	}
+	// Parents 0 and 1; parent 1's levels moved by +5 (y -> y + 5 adds 5n
+	// to the sum and 10 Sum + 25 n to the sum of squares).
+	shift := func(s LevelStats, d float64) LevelStats {
+		return LevelStats{N: s.N, Sum: s.Sum + d*s.N, SumSq: s.SumSq + 2*d*s.Sum + d*d*s.N}
+	}
+	var a, b NestedMoments
+	var flat []LevelStats
+	for i, s := range levels {
+		a.Add(s, i%2)
+		moved := s
+		if i%2 == 1 {
+			moved = shift(s, 5)
+		}
+		b.Add(moved, i%2)
+		flat = append(flat, moved)
+	}
+	ma, _, _ := a.Estimate()
+	mb, _, _ := b.Estimate()
+	if math.Abs(ma-mb) > 1e-9*math.Abs(ma) {
+		t.Errorf("a parent effect changed the nested m: %g, then %g", ma, mb)
+	}
+	if mflat, _, _ := EstimateM(flat); !(mflat < mb) {
+		t.Errorf("one-way m %g with the parents' spread, nested m %g: want the one-way one smaller", mflat, mb)
+	}
+	// No parent with two levels: nothing to estimate within parents.
+	var lone NestedMoments
+	lone.Add(levels[0], 0)
+	lone.Add(levels[1], 1)
+	if m, _, tau2 := lone.Estimate(); m != FallbackM || !math.IsNaN(tau2) {
+		t.Errorf("one level per parent: m %g, tau2 %g; want FallbackM and NaN", m, tau2)
+	}
+}

@@ -625,10 +625,10 @@ type tableLoad struct {
 	names      []table.Field
 	slots      []int32 // the slot of each row read
 	parentRow  []int32 // nested: each slot's parent_row
-	row        int64  // rows read
-	total      uint64 // fitting rows of the levels read
-	null       bool   // the null level was read
-	kept       int    // levels read that count as seen
+	row        int64   // rows read
+	total      uint64  // fitting rows of the levels read
+	null       bool    // the null level was read
+	kept       int     // levels read that count as seen
 }
 
 // batch loads the rows of one batch.

@@ -95,10 +95,10 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 			o.src = nil
 		}
 	}
-	// Errors about the values written (text that is not UTF-8 in a Parquet
-	// or Arrow output) name the input; such an error found at once (a
-	// column name) is bad data, not an output failure.
-	wopts.Input = name
+	// Text that is not UTF-8 is refused in a Parquet or Arrow output,
+	// naming the input; found at once (a column name), it is bad data,
+	// not an output failure.
+	wopts.Input, wopts.CheckUTF8 = name, true
 	if o.w, err = tableio.Create(out, schema, wopts); err != nil {
 		return fail(commitError(err))
 	}

@@ -40,11 +40,17 @@ func TestInvalidUTF8(t *testing.T) {
 	}
 	runBad(t, cases)
 
-	// A CSV output keeps the bytes.
+	// A CSV output keeps the bytes, and so do the mapping tables of a
+	// column whose levels are not UTF-8.
 	dir := t.TempDir()
 	in := writeFile(t, dir, "shipments.csv", latin1CSV)
 	out := filepath.Join(dir, "enc.csv")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--folds", "2", "--out", out, "--tables", filepath.Join(dir, "tables"))
+	mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,city", "--methods", "target,freq", "--folds", "2", "--out", out, "--tables", filepath.Join(dir, "tables"))
+	applied := filepath.Join(dir, "applied.csv")
+	mustRun(t, "apply", in, "--tables", filepath.Join(dir, "tables"), "--out", applied)
+	if got := readTable(t, applied).col(t, "city_freq"); got[1] != "1" || got[0] != "2" {
+		t.Fatalf("apply: city_freq %v, want the Latin-1 level counted once", got)
+	}
 	b, err := os.ReadFile(out)
 	if err != nil {
 		t.Fatal(err)

@@ -32,7 +32,7 @@ func TestWriterRefusesInvalidUTF8(t *testing.T) {
 	}
 	for name, c := range cols {
 		var out bytes.Buffer
-		w, err := NewWriterWith(&out, schema, WriterOptions{Input: "in.csv"})
+		w, err := NewWriterWith(&out, schema, WriterOptions{Input: "in.csv", CheckUTF8: true})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -46,7 +46,7 @@ func TestWriterRefusesInvalidUTF8(t *testing.T) {
 		}
 		w.Close()
 	}
-	_, err := NewWriterWith(&bytes.Buffer{}, &table.Schema{Fields: []table.Field{{Name: "id", Kind: table.Int64}, {Name: "st\xe4dt", Kind: table.String}}}, WriterOptions{Input: "in.csv"})
+	_, err := NewWriterWith(&bytes.Buffer{}, &table.Schema{Fields: []table.Field{{Name: "id", Kind: table.Int64}, {Name: "st\xe4dt", Kind: table.String}}}, WriterOptions{Input: "in.csv", CheckUTF8: true})
 	if !errors.Is(err, table.ErrNotUTF8) || !strings.HasPrefix(err.Error(), `in.csv: output column 2: its name "st\xe4dt" is not valid UTF-8`) {
 		t.Fatalf("column name: %v", err)
 	}

@@ -31,8 +31,9 @@ type writer struct {
 	closed bool
 	// Errors about values and names: the file they come from and each
 	// row's line in it (the batch's Lines, nil when unknown).
-	dataName string
-	lines    []int64
+	dataName  string
+	lines     []int64
+	checkUTF8 bool
 }
 
 // writeCol holds the buffers reused to build one output column.
@@ -72,20 +73,24 @@ type WriterOptions struct {
 	// Input names the table being written (the input file) in errors
 	// about its values and column names; empty: the output's name.
 	Input string
+	// CheckUTF8 refuses text values and column names that are not valid
+	// UTF-8, utf8's definition, with a *table.DataError wrapping
+	// table.ErrNotUTF8. Without it text is written as it is.
+	CheckUTF8 bool
 }
 
 // NewWriter writes a table in the Arrow IPC file format to w, which need not
 // be seekable: text columns as utf8, int as int64, float as float64, bool as
 // bool, each nullable as the field says. Close writes the footer and
-// flushes, but does not close w. Text values and column names must be valid
-// UTF-8 (utf8's definition): one that is not gives a *table.DataError
-// wrapping table.ErrNotUTF8, naming the row and column, or the column's
-// position.
+// flushes, but does not close w.
 func NewWriter(w io.Writer, schema *table.Schema) (table.Writer, error) {
 	return NewWriterWith(w, schema, WriterOptions{})
 }
 
-// NewWriterWith is NewWriter with options.
+// NewWriterWith is NewWriter with options. With opts.CheckUTF8, a text
+// value or a column name that is not valid UTF-8 gives a *table.DataError
+// wrapping table.ErrNotUTF8, naming the row and column, or the column's
+// position.
 func NewWriterWith(w io.Writer, schema *table.Schema, opts WriterOptions) (table.Writer, error) {
 	name := outputName(w)
 	dataName := name
@@ -94,7 +99,7 @@ func NewWriterWith(w io.Writer, schema *table.Schema, opts WriterOptions) (table
 	}
 	fields := make([]arrow.Field, len(schema.Fields))
 	for i, f := range schema.Fields {
-		if !utf8.ValidString(f.Name) {
+		if opts.CheckUTF8 && !utf8.ValidString(f.Name) {
 			return nil, &table.DataError{File: dataName, Err: table.NameNotUTF8(i, f.Name)}
 		}
 		var dt arrow.DataType
@@ -120,7 +125,7 @@ func NewWriterWith(w io.Writer, schema *table.Schema, opts WriterOptions) (table
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	return &writer{
-		name: name, dataName: dataName, out: bw, pos: pw, fw: fw, schema: schema, asch: asch,
+		name: name, dataName: dataName, checkUTF8: opts.CheckUTF8, out: bw, pos: pw, fw: fw, schema: schema, asch: asch,
 		cols:   make([]writeCol, len(fields)),
 		arrays: make([]arrow.Array, len(fields)),
 	}, nil
@@ -231,8 +236,10 @@ func (w *writer) build(st *writeCol, col *table.Column, f *table.Field, n int, f
 	case table.String:
 		// Arrow's utf8 is UTF-8: text values are checked (numbers and
 		// booleans converted to text are ASCII).
-		if i := st.utf8.Invalid(col, 0, n); i >= 0 {
-			return nil, w.dataErr(first, i, f.Name, table.NotUTF8(col.Bytes(i)))
+		if w.checkUTF8 {
+			if i := st.utf8.Invalid(col, 0, n); i >= 0 {
+				return nil, w.dataErr(first, i, f.Name, table.NotUTF8(col.Bytes(i)))
+			}
 		}
 		offs, data, err := w.text(st, col, n, f.Name)
 		if err != nil {

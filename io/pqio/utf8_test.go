@@ -39,7 +39,7 @@ func TestWriterRefusesInvalidUTF8(t *testing.T) {
 	schema := &table.Schema{Fields: []table.Field{{Name: "id", Kind: table.Int64}, {Name: "city", Kind: table.String, Nullable: true}}}
 	for _, form := range []table.Form{table.FormText, table.FormDict} {
 		var buf bytes.Buffer
-		w, err := NewWriter(&buf, schema, WriterOptions{Input: "in.csv"})
+		w, err := NewWriter(&buf, schema, WriterOptions{Input: "in.csv", CheckUTF8: true})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -57,9 +57,30 @@ func TestWriterRefusesInvalidUTF8(t *testing.T) {
 		w.Close()
 	}
 	// A column name.
-	_, err := NewWriter(&bytes.Buffer{}, &table.Schema{Fields: []table.Field{{Name: "id", Kind: table.Int64}, {Name: "st\xe4dt", Kind: table.String}}}, WriterOptions{Input: "in.csv"})
+	_, err := NewWriter(&bytes.Buffer{}, &table.Schema{Fields: []table.Field{{Name: "id", Kind: table.Int64}, {Name: "st\xe4dt", Kind: table.String}}}, WriterOptions{Input: "in.csv", CheckUTF8: true})
 	var de *table.DataError
 	if !errors.As(err, &de) || !errors.Is(err, table.ErrNotUTF8) || !strings.HasPrefix(err.Error(), `in.csv: output column 2: its name "st\xe4dt" is not valid UTF-8`) {
 		t.Fatalf("column name: %v", err)
+	}
+}
+
+// TestWriterKeepsBytesWithoutCheck: without CheckUTF8 (manyfold's mapping
+// tables) text is written as it is and reads back the same.
+func TestWriterKeepsBytesWithoutCheck(t *testing.T) {
+	schema := &table.Schema{Fields: []table.Field{{Name: "id", Kind: table.Int64}, {Name: "city", Kind: table.String, Nullable: true}}}
+	var buf bytes.Buffer
+	w, err := NewWriter(&buf, schema, WriterOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Write(utf8Batch(table.FormText, 0, "Gen\xe8ve")); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	res := readAll(t, openBytes(t, "kept.parquet", buf.Bytes()))
+	if got := res.cols[1][3].text; got != "Gen\xe8ve" {
+		t.Fatalf("read back %q", got)
 	}
 }

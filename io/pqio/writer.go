@@ -47,6 +47,12 @@ type WriterOptions struct {
 	// Input names the table being written (the input file) in errors
 	// about its values and column names; empty: the output's name.
 	Input string
+	// CheckUTF8 refuses text values and column names that are not valid
+	// UTF-8, a STRING column's type, with a *table.DataError wrapping
+	// table.ErrNotUTF8 (columns copied from Source are the input's bytes
+	// and are not checked). Without it text is written as it is, as
+	// manyfold's mapping tables keep a level's bytes.
+	CheckUTF8 bool
 }
 
 // defaultRowGroupRows is the row group size when WriterOptions leaves it 0.
@@ -84,17 +90,16 @@ type writer struct {
 	// row's line in it (the batch's Lines, nil when unknown).
 	dataName string
 	lines    []int64
-	utf8     []table.UTF8Check // per column, text checked as UTF-8
+	utf8     []table.UTF8Check // per column, text checked as UTF-8 (nil: none)
 	err      error             // sticky: the first failure
 	closed   bool
 }
 
 // NewWriter returns a writer of a Parquet file with the given schema to w.
 // The columns keep the schema's order; Close writes the footer but does not
-// close w. Text values and column names must be valid UTF-8 (a STRING
-// column's type): one that is not gives a *table.DataError wrapping
+// close w. With WriterOptions.CheckUTF8, a text value or a column name
+// that is not valid UTF-8 gives a *table.DataError wrapping
 // table.ErrNotUTF8, naming the row and column, or the column's position.
-// Columns copied from a Source are the input's bytes and are not checked.
 func NewWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (table.Writer, error) {
 	return newWriter(w, schema, opts)
 }
@@ -127,7 +132,10 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, 
 		chunks: make([]*chunk, n), src: opts.Source, rgRows: rg,
 		ints: make([][]int64, n), floats: make([][]float64, n), bools: make([][]bool, n),
 		nulls: make([][]bool, n), text: make([][]byte, n), tends: make([][]int, n),
-		dataName: name, utf8: make([]table.UTF8Check, n),
+		dataName: name,
+	}
+	if opts.CheckUTF8 {
+		wr.utf8 = make([]table.UTF8Check, n)
 	}
 	if opts.Input != "" {
 		wr.dataName = opts.Input
@@ -150,7 +158,7 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, 
 			elems[i] = t.elems
 			continue
 		}
-		if !utf8.ValidString(f.Name) {
+		if opts.CheckUTF8 && !utf8.ValidString(f.Name) {
 			return nil, &table.DataError{File: wr.dataName, Err: table.NameNotUTF8(i, f.Name)}
 		}
 		if f.Kind > table.Bool {
@@ -378,7 +386,7 @@ func (w *writer) add(j int, c *table.Column, start, k int, first int64) error {
 	}
 	// Parquet text is UTF-8: text values are checked (numbers and
 	// booleans converted to text are ASCII).
-	if f.Kind == table.String {
+	if f.Kind == table.String && w.utf8 != nil {
 		if i := w.utf8[j].Invalid(c, start, k); i >= 0 {
 			return bad(i, table.NotUTF8(c.Bytes(start+i)))
 		}

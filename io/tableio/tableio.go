@@ -189,9 +189,13 @@ type WriteOptions struct {
 	CSV     csvio.WriterOptions
 	Parquet pqio.WriterOptions
 	// Input names the table being written (the input file) in the
-	// errors of the Parquet and Arrow writers about its values, which
-	// must be valid UTF-8 text there (unless Parquet.Input is set).
+	// errors of the Parquet and Arrow writers about its values (unless
+	// Parquet.Input is set).
 	Input string
+	// CheckUTF8 makes the Parquet and Arrow writers refuse text and
+	// column names that are not valid UTF-8 (see pqio.WriterOptions); a
+	// CSV output keeps the bytes as they are.
+	CheckUTF8 bool
 }
 
 // Output is a table being written to a temporary file beside its final
@@ -240,9 +244,10 @@ func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, erro
 		if po.Input == "" {
 			po.Input = opts.Input
 		}
+		po.CheckUTF8 = po.CheckUTF8 || opts.CheckUTF8
 		w, err = pqio.NewWriter(f, schema, po)
 	case Arrow:
-		w, err = arrowio.NewWriterWith(f, schema, arrowio.WriterOptions{Input: opts.Input})
+		w, err = arrowio.NewWriterWith(f, schema, arrowio.WriterOptions{Input: opts.Input, CheckUTF8: opts.CheckUTF8})
 	default:
 		err = fmt.Errorf("unknown output format %q", format)
 	}

@@ -140,8 +140,8 @@ func (f *outputFlags) options(input string) (tableio.WriteOptions, error) {
 	default:
 		return tableio.WriteOptions{}, usagef("--compression %q: want snappy, zstd or none", f.compression)
 	}
-	if f.threads < 1 {
-		return tableio.WriteOptions{}, usagef("--threads %d: want at least 1", f.threads)
+	if err := pipeline.CheckThreads(f.threads); err != nil {
+		return tableio.WriteOptions{}, err
 	}
 	// The reader ahead, the writer behind and the column encoders all run
 	// on goroutines: --threads bounds the cores they share.

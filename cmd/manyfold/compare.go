@@ -7,6 +7,7 @@ import (
 	"runtime"
 
 	"manyfold/encoders/compare"
+	"manyfold/encoders/pipeline"
 	"manyfold/io/atomicfile"
 	"manyfold/io/tableio"
 )
@@ -72,6 +73,18 @@ func runCompare(args []string) (err error) {
 	if err != nil {
 		return err
 	}
+	// Every option is checked before any data is read.
+	opts := compare.Options{
+		Target: *target, Task: *task, Columns: *columns, Candidates: list,
+		Folds: *folds, InnerFolds: *inner, Seed: *seed, With: *with, Sample: *sample,
+		Lambda: *lambda, Threads: *threads, NoTimings: !*timings,
+	}
+	if err := opts.Validate(); err != nil {
+		return err
+	}
+	if err := pipeline.CheckThreads(*threads); err != nil {
+		return err
+	}
 	for _, p := range []string{*jsonOut, *report} {
 		if p != "" && file != "-" && sameFile(file, p) {
 			return usagef("%s is the input file; choose another path", p)
@@ -112,11 +125,8 @@ func runCompare(args []string) (err error) {
 	}
 	defer r.Close()
 	pr := newProgress("compare")
-	res, err := compare.Run(r, compare.Options{
-		File: name, Target: *target, Task: *task, Columns: *columns, Candidates: list,
-		Folds: *folds, InnerFolds: *inner, Seed: *seed, With: *with, Sample: *sample, TotalRows: total,
-		Lambda: *lambda, Threads: *threads, NoTimings: !*timings, Progress: pr.update,
-	})
+	opts.File, opts.TotalRows, opts.Progress = name, total, pr.update
+	res, err := compare.Run(r, opts)
 	pr.done()
 	if err != nil {
 		return err

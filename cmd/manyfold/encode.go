@@ -121,6 +121,10 @@ func runEncode(args []string) (err error) {
 		sp.KeepAll = false
 		sp.Keep = strings.Split(*keep, ",")
 	}
+	// Every parameter is checked before any data is read.
+	if err := sp.Validate(); err != nil {
+		return err
+	}
 	ropts, err := in.options()
 	if err != nil {
 		return err

@@ -1,0 +1,55 @@
+package main
+
+import (
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// TestFlagsCheckedBeforeData: a numeric flag out of its documented range is
+// a usage error (exit 2) given before the input is read, so the input here
+// does not even exist (exit 3 would mean it was opened first). Before,
+// --folds 100000 built a k-by-k mask and took 10 GB before failing.
+func TestFlagsCheckedBeforeData(t *testing.T) {
+	dir := t.TempDir()
+	missing := filepath.Join(dir, "no-such-shipments.csv")
+	out, tables := filepath.Join(dir, "enc.csv"), filepath.Join(dir, "tables")
+	enc := []string{"encode", missing, "--target", "late", "--columns", "route", "--out", out, "--tables", tables}
+	cmp := []string{"compare", missing, "--target", "late", "--columns", "route"}
+	cases := []struct {
+		args []string
+		want string
+	}{
+		{append(enc, "--folds", "100000"), "--folds 100000: want 2 to 100"},
+		{append(enc, "--folds", "1"), "--folds 1: want 2 to 100"},
+		{append(enc, "--threads", "0"), "--threads 0: want at least 1"},
+		{append(enc, "--top-k", "0"), "--top-k 0"},
+		{append(enc, "--buckets", "0", "--methods", "hash"), "--buckets 0"},
+		{append(cmp, "--threads", "0"), "--threads 0: want at least 1"},
+		{append(cmp, "--threads", "-1"), "--threads -1: want at least 1"},
+		{append(cmp, "--folds", "1000000"), "--folds 1000000: want 2 to 50"},
+		{append(cmp, "--inner-folds", "1"), "--inner-folds 1: want 2 to 50"},
+		{append(cmp, "--lambda", "-1"), "--lambda -1"},
+	}
+	for _, c := range cases {
+		res := runCLI(t, c.args...)
+		if res.code != exitUsage || !strings.Contains(res.stderr, c.want) {
+			t.Errorf("%s: exit %d, %q; want exit %d naming %q", strings.Join(c.args[2:], " "), res.code, res.stderr, exitUsage, c.want)
+		}
+	}
+}
+
+// TestTopKHugeK: --top-k larger than any table once reserved room for k
+// entries (2^31 of them: a fatal out-of-memory); room is now taken for at
+// most the levels there are.
+func TestTopKHugeK(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "routes.csv", "route,late\nR1,1\nR2,0\nR1,0\nR1,1\nR2,1\nR1,0\n")
+	out := filepath.Join(dir, "enc.csv")
+	mustRun(t, "encode", in, "--columns", "route", "--methods", "topk", "--top-k", "2147483648",
+		"--out", out, "--tables", filepath.Join(dir, "tables"))
+	got := readTable(t, out).col(t, "route_topk")
+	if strings.Join(got, ",") != "1,2,1,1,2,1" {
+		t.Errorf("route_topk = %v, want 1,2,1,1,2,1 (R1 has the most rows)", got)
+	}
+}

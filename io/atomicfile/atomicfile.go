@@ -288,6 +288,8 @@ func CommitAll(outs ...Output) error {
 			return err
 		}
 	}
+	unitMu.Lock()
+	defer unitMu.Unlock()
 	for i, o := range outs {
 		if err := o.Commit(); err != nil {
 			abortAll(outs[i+1:])

@@ -7,6 +7,7 @@ import (
 	"strings"
 	"syscall"
 	"testing"
+	"time"
 )
 
 // withUmask runs f with the process's umask set to mask. No test of this
@@ -292,5 +293,48 @@ func TestCommitAll(t *testing.T) {
 	}
 	if got := names(t, dir); !slices.Equal(got, []string{"a.json", "b.html"}) {
 		t.Errorf("after CommitAll: %v", got)
+	}
+}
+
+// slowOutput is an Output whose Commit waits to be released.
+type slowOutput struct {
+	started, release chan struct{}
+	committed        bool
+}
+
+func (s *slowOutput) Ready() error { return nil }
+func (s *slowOutput) Commit() error {
+	close(s.started)
+	<-s.release
+	s.committed = true
+	return nil
+}
+func (s *slowOutput) Abort() {}
+
+// TestCleanupWaitsForCommitAll: a signal's Cleanup does not run between the
+// moves of CommitAll, so the outputs are all new or all old.
+func TestCleanupWaitsForCommitAll(t *testing.T) {
+	defer func() { registry.mu.Lock(); registry.closed = false; registry.mu.Unlock() }()
+	dir := t.TempDir()
+	a, _ := Create(filepath.Join(dir, "a.csv"))
+	s := &slowOutput{started: make(chan struct{}), release: make(chan struct{})}
+	d, _ := CreateDir(filepath.Join(dir, "tables"), nil)
+	done := make(chan error, 1)
+	go func() { done <- CommitAll(a, s, d) }()
+	<-s.started
+	cleaned := make(chan struct{})
+	go func() { Cleanup(); close(cleaned) }()
+	select {
+	case <-cleaned:
+		t.Fatal("Cleanup ran while CommitAll was moving its outputs")
+	case <-time.After(50 * time.Millisecond):
+	}
+	close(s.release)
+	if err := <-done; err != nil {
+		t.Fatal(err)
+	}
+	<-cleaned
+	if got := names(t, dir); !slices.Equal(got, []string{"a.csv", "tables"}) {
+		t.Errorf("after CommitAll and Cleanup: %v", got)
 	}
 }

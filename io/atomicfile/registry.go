@@ -9,6 +9,10 @@ import (
 // yet moved into place or removed: temporary files, staged directories,
 // an old directory moved aside, a spool of standard input. Cleanup removes
 // them, for a run stopped by a signal or by a bug.
+// unitMu is held while CommitAll moves its outputs into place, so that
+// Cleanup, which takes it first, cannot stop a run between two of them.
+var unitMu sync.Mutex
+
 var registry struct {
 	mu     sync.Mutex
 	paths  map[string]bool
@@ -53,11 +57,14 @@ func Remove(path string) {
 }
 
 // Cleanup removes every tracked path, and any path tracked later. It waits
-// for a commit in progress (a rename, or a directory swap) to finish, so
-// that what is in place is either the old output or the new one. A command
+// for a commit in progress (a rename, a directory swap, or the moves of a
+// CommitAll) to finish, so that what is in place is either the old set of
+// outputs or the new one. A command
 // stopped by a signal calls it before exiting; nothing can be committed
 // after it.
 func Cleanup() {
+	unitMu.Lock()
+	defer unitMu.Unlock()
 	registry.mu.Lock()
 	defer registry.mu.Unlock()
 	registry.closed = true

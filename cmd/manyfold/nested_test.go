@@ -252,6 +252,9 @@ func TestBadNested(t *testing.T) {
 		{"nested target", func(t *testing.T, dir string) []string {
 			return append(enc(dir, nested(t, dir), "enc.parquet", "--columns", "postcode"), "--target", "props")
 		}, exitUsage, []string{`--target "props" is a nested Parquet column (struct)`}},
+		{"compare a nested column", func(t *testing.T, dir string) []string {
+			return []string{"compare", nested(t, dir), "--target", "late", "--columns", "postcode,props"}
+		}, exitUsage, []string{inPlaceholder, `--columns "props" is a nested Parquet column (struct): only flat columns can be encoded`}},
 		{"scan a nested column", func(t *testing.T, dir string) []string {
 			return []string{"scan", nested(t, dir), "--columns", "attrs"}
 		}, exitUsage, []string{inPlaceholder, `--columns "attrs" is a nested Parquet column (map)`}},

@@ -128,59 +128,19 @@ func EstimateM(levels []LevelStats) (m, sigma2, tau2 float64) {
 }
 
 // Moments accumulates, level by level, the sums EstimateM needs, so that m
-// can be estimated in one pass without holding the levels. Its zero value
-// is empty.
-type Moments struct {
-	l              int
-	n, sum, sumSqN float64 // rows, sum of targets, sum of n_i^2
-	ssw, sumMeanSq float64 // within SS, sum of Sum_i^2/n_i
-}
+// can be estimated in one pass without holding the levels. It is
+// NestedMoments with every level under one parent, whose estimator is then
+// EstimateM's. Its zero value is empty.
+type Moments struct{ nm NestedMoments }
 
 // Add counts one level; a level with N <= 0 (or NaN N) is ignored.
-func (mo *Moments) Add(s LevelStats) {
-	if !(s.N > 0) {
-		return
-	}
-	mo.l++
-	mo.n += s.N
-	mo.sum += s.Sum
-	mo.sumSqN += s.N * s.N
-	between := s.Sum * s.Sum / s.N
-	mo.sumMeanSq += between
-	if w := s.SumSq - between; w > 0 || math.IsNaN(w) {
-		mo.ssw += w
-	}
-}
+func (mo *Moments) Add(s LevelStats) { mo.nm.Add(s, 0) }
 
 // Estimate returns m, sigma2 and tau2 for the levels added, as EstimateM
 // documents.
-func (mo *Moments) Estimate() (m, sigma2, tau2 float64) {
-	l, n, sum, sumSqN, ssw, sumMeanSq := mo.l, mo.n, mo.sum, mo.sumSqN, mo.ssw, mo.sumMeanSq
-	if l < 2 || n <= float64(l) {
-		sigma2, tau2 = math.NaN(), math.NaN()
-		if l == 1 && n > 1 {
-			sigma2 = ssw / (n - 1)
-		}
-		return FallbackM, sigma2, tau2
-	}
-	sigma2 = ssw / (n - float64(l))
-	ssb := sumMeanSq - sum*sum/n
-	if ssb < 0 {
-		ssb = 0 // rounding: SSB is a sum of squares
-	}
-	tau2 = (ssb - float64(l-1)*sigma2) / (n - sumSqN/n)
-	switch {
-	case math.IsNaN(sigma2) || math.IsNaN(tau2):
-		return math.NaN(), sigma2, tau2
-	case tau2 <= 0:
-		return math.Inf(1), sigma2, tau2
-	case sigma2 == 0:
-		return 0, sigma2, tau2
-	}
-	return sigma2 / tau2, sigma2, tau2
-}
+func (mo *Moments) Estimate() (m, sigma2, tau2 float64) { return mo.nm.Estimate() }
 
-// NestedMoments accumulates what EstimateNested needs: levels grouped
+// NestedMoments accumulates what its Estimate needs: levels grouped
 // under parents (a postcode under its region), for a shrinkage m that pulls
 // a level towards its parent's mean rather than the global one. Its zero
 // value is empty.

@@ -239,11 +239,16 @@ func exitCode(err error) int {
 
 // commitError classes an error of committing the output: bad data that
 // the writer found while converting (written behind the encoding, so it
-// can surface only now) is a data error; anything else an output error.
+// can surface only now) is a data error, a corrupt input page met while
+// copying the input's column chunks an input error; anything else an
+// output error.
 func commitError(err error) error {
 	var de *table.DataError
 	if errors.As(err, &de) {
 		return de
+	}
+	if errors.Is(err, table.ErrCorrupt) {
+		return err
 	}
 	return &outputError{err}
 }

@@ -203,6 +203,7 @@ func openStream(in io.Reader, name string) (r *reader, err error) {
 		sr.Release()
 		return nil, fmt.Errorf("%s: %w: %w", name, table.ErrCorrupt, err)
 	}
+	mr.dicts = len(mr.guard.dicts)
 	r, err = newReader(name, sr.Schema())
 	if err != nil {
 		sr.Release()

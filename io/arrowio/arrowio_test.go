@@ -43,7 +43,7 @@ type batchData struct {
 
 // buildArray makes an Arrow array of type dt from vals with Arrow's own
 // builders, and returns the cells manyfold should read back.
-func buildArray(t *testing.T, mem memory.Allocator, dt arrow.DataType, vals []any, dict []string) (arrow.Array, []cell) {
+func buildArray(t testing.TB, mem memory.Allocator, dt arrow.DataType, vals []any, dict []string) (arrow.Array, []cell) {
 	t.Helper()
 	cells := make([]cell, len(vals))
 	if dt, ok := dt.(*arrow.DictionaryType); ok {
@@ -132,7 +132,7 @@ func num(v any) float64 {
 
 // writeArrow writes batches with Arrow's own IPC writer (file or stream
 // format) and returns the bytes and the expected cells per batch.
-func writeArrow(t *testing.T, schema *arrow.Schema, batches []batchData, stream bool, opts ...ipc.Option) ([]byte, [][][]cell) {
+func writeArrow(t testing.TB, schema *arrow.Schema, batches []batchData, stream bool, opts ...ipc.Option) ([]byte, [][][]cell) {
 	t.Helper()
 	mem := memory.NewGoAllocator()
 	path := filepath.Join(t.TempDir(), "x.arrow")

@@ -353,6 +353,7 @@ type msgReader struct {
 	buf    [4]byte
 	schema []byte      // the metadata of the schema message
 	guard  *batchGuard // set once the library has read the schema
+	dicts  int         // dictionaries the library still expects first
 }
 
 // Message returns the next message, or io.EOF at the end of the stream (an
@@ -389,6 +390,14 @@ func (m *msgReader) Message() (*ipc.Message, error) {
 	body, err := readGrow(m.r, bodyLen)
 	if err != nil {
 		return nil, err
+	}
+	if m.guard != nil && m.dicts > 0 {
+		// The library reads the messages after the schema as its
+		// dictionaries, whatever their kind.
+		if kind != headerDict {
+			return nil, fmt.Errorf("%d dictionaries missing after the schema: %w", m.dicts, errBadMeta)
+		}
+		m.dicts--
 	}
 	switch kind {
 	case headerSchema:

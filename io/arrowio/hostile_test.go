@@ -153,7 +153,7 @@ func (p patch) apply(t *testing.T, data []byte, first bool) {
 }
 
 // recordOf makes a record of the given columns with Arrow's builders.
-func recordOf(t *testing.T, schema *arrow.Schema, rows int) arrow.Record {
+func recordOf(t testing.TB, schema *arrow.Schema, rows int) arrow.Record {
 	t.Helper()
 	mem := memory.NewGoAllocator()
 	cols := make([]arrow.Array, schema.NumFields())
@@ -187,11 +187,17 @@ func recordOf(t *testing.T, schema *arrow.Schema, rows int) arrow.Record {
 
 // smallArrow writes one batch of the given rows in the file or stream
 // format with Arrow's own writers.
-func smallArrow(t *testing.T, schema *arrow.Schema, rows int, stream bool, opts ...ipc.Option) []byte {
+func smallArrow(t testing.TB, schema *arrow.Schema, rows int, stream bool, opts ...ipc.Option) []byte {
 	t.Helper()
 	rec := recordOf(t, schema, rows)
 	defer rec.Release()
-	opts = append(opts, ipc.WithSchema(schema))
+	return writeRecord(t, rec, stream, opts...)
+}
+
+// writeRecord writes rec as a file or a stream with Arrow's own writers.
+func writeRecord(t testing.TB, rec arrow.Record, stream bool, opts ...ipc.Option) []byte {
+	t.Helper()
+	opts = append(opts, ipc.WithSchema(rec.Schema()))
 	var buf bytes.Buffer
 	if stream {
 		w := ipc.NewWriter(&buf, opts...)
@@ -463,59 +469,12 @@ func TestOverlappingBlocks(t *testing.T) {
 // columns are nested, with dictionaries inside them: the batch checks must
 // follow the nodes and buffers of every type as the library loads them.
 func TestGuardNestedSchema(t *testing.T) {
-	dict := &arrow.DictionaryType{IndexType: arrow.PrimitiveTypes.Int16, ValueType: arrow.BinaryTypes.String}
-	schema := arrow.NewSchema([]arrow.Field{
-		{Name: "stops", Type: arrow.ListOf(arrow.PrimitiveTypes.Int64), Nullable: true},
-		{Name: "depot", Type: arrow.StructOf(
-			arrow.Field{Name: "code", Type: arrow.PrimitiveTypes.Int32, Nullable: true},
-			arrow.Field{Name: "region", Type: dict, Nullable: true},
-			arrow.Field{Name: "none", Type: arrow.Null, Nullable: true}), Nullable: true},
-		{Name: "tags", Type: arrow.MapOf(arrow.BinaryTypes.String, arrow.PrimitiveTypes.Int32), Nullable: true},
-		{Name: "route", Type: dict, Nullable: true},
-		{Name: "seal", Type: &arrow.FixedSizeBinaryType{ByteWidth: 3}, Nullable: true},
-		{Name: "sender", Type: arrow.BinaryTypes.StringView, Nullable: true},
-		{Name: "parcels", Type: arrow.PrimitiveTypes.Int64, Nullable: true},
-	}, nil)
-	rows := `[
-		{"stops": [1, 2], "depot": {"code": 7, "region": "north", "none": null}, "tags": [{"key": "a", "value": 1}], "route": "R-1", "seal": "YWJj", "sender": "a sender of more than twelve bytes", "parcels": 3},
-		{"stops": null, "depot": null, "tags": null, "route": null, "seal": null, "sender": null, "parcels": null},
-		{"stops": [], "depot": {"code": null, "region": "south", "none": null}, "tags": [], "route": "R-2", "seal": "eHl6", "sender": "s", "parcels": 5}
-	]`
-	mem := memory.NewGoAllocator()
-	rec, _, err := array.RecordFromJSON(mem, schema, strings.NewReader(rows))
-	if err != nil {
-		t.Fatal(err)
-	}
+	rec := nestedRecord(t)
 	defer rec.Release()
 	for _, opts := range [][]ipc.Option{nil, {ipc.WithZstd()}, {ipc.WithLZ4()}} {
 		for _, stream := range []bool{false, true} {
-			var buf bytes.Buffer
-			opts := append(opts, ipc.WithSchema(schema))
-			if stream {
-				w := ipc.NewWriter(&buf, opts...)
-				if err := w.Write(rec); err != nil {
-					t.Fatal(err)
-				}
-				w.Close()
-			} else {
-				path := filepath.Join(t.TempDir(), "nested.arrow")
-				f, err := os.Create(path)
-				if err != nil {
-					t.Fatal(err)
-				}
-				w, err := ipc.NewFileWriter(f, opts...)
-				if err != nil {
-					t.Fatal(err)
-				}
-				if err := w.Write(rec); err != nil {
-					t.Fatal(err)
-				}
-				w.Close()
-				f.Close()
-				data, _ := os.ReadFile(path)
-				buf.Write(data)
-			}
-			r, err := NewReader(bytes.NewReader(buf.Bytes()), "nested.arrow")
+			data := writeRecord(t, rec, stream, opts...)
+			r, err := NewReader(bytes.NewReader(data), "nested.arrow")
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -535,4 +494,33 @@ func TestGuardNestedSchema(t *testing.T) {
 			r.Close()
 		}
 	}
+}
+
+// nestedRecord is a record of nested columns, with dictionaries inside
+// them, beside flat ones (the last four).
+func nestedRecord(t testing.TB) arrow.Record {
+	t.Helper()
+	dict := &arrow.DictionaryType{IndexType: arrow.PrimitiveTypes.Int16, ValueType: arrow.BinaryTypes.String}
+	schema := arrow.NewSchema([]arrow.Field{
+		{Name: "stops", Type: arrow.ListOf(arrow.PrimitiveTypes.Int64), Nullable: true},
+		{Name: "depot", Type: arrow.StructOf(
+			arrow.Field{Name: "code", Type: arrow.PrimitiveTypes.Int32, Nullable: true},
+			arrow.Field{Name: "region", Type: dict, Nullable: true},
+			arrow.Field{Name: "none", Type: arrow.Null, Nullable: true}), Nullable: true},
+		{Name: "tags", Type: arrow.MapOf(arrow.BinaryTypes.String, arrow.PrimitiveTypes.Int32), Nullable: true},
+		{Name: "route", Type: dict, Nullable: true},
+		{Name: "seal", Type: &arrow.FixedSizeBinaryType{ByteWidth: 3}, Nullable: true},
+		{Name: "sender", Type: arrow.BinaryTypes.StringView, Nullable: true},
+		{Name: "parcels", Type: arrow.PrimitiveTypes.Int64, Nullable: true},
+	}, nil)
+	rows := `[
+		{"stops": [1, 2], "depot": {"code": 7, "region": "north", "none": null}, "tags": [{"key": "a", "value": 1}], "route": "R-1", "seal": "YWJj", "sender": "a sender of more than twelve bytes", "parcels": 3},
+		{"stops": null, "depot": null, "tags": null, "route": null, "seal": null, "sender": null, "parcels": null},
+		{"stops": [], "depot": {"code": null, "region": "south", "none": null}, "tags": [], "route": "R-2", "seal": "eHl6", "sender": "s", "parcels": 5}
+	]`
+	rec, _, err := array.RecordFromJSON(memory.NewGoAllocator(), schema, strings.NewReader(rows))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return rec
 }

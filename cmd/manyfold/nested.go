@@ -82,8 +82,11 @@ func vetNested(file string, r table.Reader, sp *pipeline.Spec, format tableio.Fo
 		}
 		sp.Keep = flat
 	}
-	kept := keptNested(nested, keep)
-	return keep, checkNestedOutput(file, kept, r.Schema(), format, false)
+	suggest := r.Schema().Names()
+	if keep != nil {
+		suggest = sp.Keep
+	}
+	return keep, checkNestedOutput(file, keptNested(nested, keep), suggest, format, false)
 }
 
 // keptNested returns the nested columns that an output keeps, placed among
@@ -107,8 +110,9 @@ func keptNested(nested []pqio.Nested, keep []string) []pqio.Nested {
 }
 
 // checkNestedOutput refuses kept nested columns when the output is not
-// Parquet, naming them and saying how to leave them out.
-func checkNestedOutput(file string, kept []pqio.Nested, s *table.Schema, format tableio.Format, apply bool) error {
+// Parquet, naming them and saying how to leave them out: with --keep and
+// the flat columns to keep, suggest.
+func checkNestedOutput(file string, kept []pqio.Nested, suggest []string, format tableio.Format, apply bool) error {
 	if len(kept) == 0 || format == tableio.Parquet {
 		return nil
 	}
@@ -117,16 +121,20 @@ func checkNestedOutput(file string, kept []pqio.Nested, s *table.Schema, format 
 		names = append(names, strconv.Quote(n.Name)+" ("+n.Kind+")")
 	}
 	kind := map[tableio.Format]string{tableio.CSV: "CSV", tableio.Arrow: "Arrow"}[format]
-	what := "column " + names[0] + " is"
+	what, them := "column "+names[0]+" is", "it"
 	if len(names) > 1 {
-		what = "columns " + strings.Join(names, ", ") + " are"
+		what, them = "columns "+strings.Join(names, ", ")+" are", "them"
 	}
 	if apply {
-		return usagef("%s: the nested Parquet %s written back by apply, and %s output cannot hold them: write a Parquet output, which copies them as they are",
-			file, what, kind)
+		return usagef("%s: the nested Parquet %s written back by apply, and %s output cannot hold %s: write a Parquet output, which copies %s as %s",
+			file, what, kind, them, them, map[string]string{"it": "it is", "them": "they are"}[them])
 	}
-	return usagef("%s: the nested Parquet %s kept, and %s output cannot hold them: leave them out with --keep (the columns to write back, for example --keep %s) or write a Parquet output",
-		file, what, kind, strings.Join(s.Names(), ","))
+	flag := "--keep none"
+	if len(suggest) > 0 {
+		flag = "--keep " + strings.Join(suggest, ",")
+	}
+	return usagef("%s: the nested Parquet %s kept, and %s output cannot hold %s: leave %s out with --keep (the columns to write back: %s) or write a Parquet output",
+		file, what, kind, them, them, flag)
 }
 
 // outputFormat returns the format an output will be written in.

@@ -236,10 +236,10 @@ func TestBadNested(t *testing.T) {
 	cases := []badCase{
 		{"nested kept in a CSV output", func(t *testing.T, dir string) []string {
 			return enc(dir, nested(t, dir), "enc.csv", "--columns", "postcode")
-		}, exitUsage, []string{inPlaceholder, `columns "tags" (list), "props" (struct), "attrs" (map) are kept`, "CSV output cannot hold them", "--keep id,postcode,late"}},
+		}, exitUsage, []string{inPlaceholder, `columns "tags" (list), "props" (struct), "attrs" (map) are kept`, "CSV output cannot hold them", "(the columns to write back: --keep id,postcode,late)"}},
 		{"nested kept in an Arrow output", func(t *testing.T, dir string) []string {
 			return enc(dir, nested(t, dir), "enc.arrow", "--columns", "postcode", "--keep", "id,props")
-		}, exitUsage, []string{inPlaceholder, `column "props" (struct) is kept`, "Arrow output cannot hold them", "--keep"}},
+		}, exitUsage, []string{inPlaceholder, `column "props" (struct) is kept`, "Arrow output cannot hold it: leave it out with --keep", "(the columns to write back: --keep id)"}},
 		{"apply with nested to CSV", func(t *testing.T, dir string) []string {
 			in := nested(t, dir)
 			tables := filepath.Join(dir, "tables")

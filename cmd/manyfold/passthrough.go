@@ -50,7 +50,7 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 	}
 	format := outputFormat(out, wopts)
 	nested := keptNested(nestedOf(r), keep)
-	if err := checkNestedOutput(name, nested, o.full, format, apply); err != nil {
+	if err := checkNestedOutput(name, nested, o.full.Names(), format, apply); err != nil {
 		return fail(err)
 	}
 	if _, isParquet := r.(*pqio.Reader); isParquet && format == tableio.Parquet && len(kept)+len(nested) > 0 {

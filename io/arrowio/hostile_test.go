@@ -524,3 +524,25 @@ func nestedRecord(t testing.TB) arrow.Record {
 	}
 	return rec
 }
+
+// TestStreamBatchInPlaceOfDictionary drops the dictionary message of a
+// stream, so that a record batch arrives where the library expects the
+// dictionary and would load it as one: the reader refuses it first.
+func TestStreamBatchInPlaceOfDictionary(t *testing.T) {
+	data := smallArrow(t, dictTextSchema, 4, true)
+	var out []byte
+	for _, m := range messages(t, data) {
+		root := newCheck(m.meta).root()
+		if root.GetByte(flatbuffers.UOffsetT(root.Offset(slotMsgHeaderType))+root.Pos) == headerDict {
+			continue
+		}
+		out = binary.LittleEndian.AppendUint32(out, 0xffffffff)
+		out = binary.LittleEndian.AppendUint32(out, uint32(len(m.meta)))
+		out = append(append(out, m.meta...), m.body...)
+	}
+	out = append(out, 0xff, 0xff, 0xff, 0xff, 0, 0, 0, 0)
+	err, _ := readBounded(t, out, "nodict.arrows")
+	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), "dictionaries missing") {
+		t.Fatalf("error %v, want ErrCorrupt saying the dictionary is missing", err)
+	}
+}

@@ -611,3 +611,28 @@ func TestFooterListSize(t *testing.T) {
 		})
 	}
 }
+
+// TestNumRowsBounded: a footer that claims 2^40 rows does not make
+// NumRows, the hint callers size tables by, claim them.
+func TestNumRowsBounded(t *testing.T) {
+	data := crcFile(t, "snappy")
+	r := openBytes(t, "good.parquet", data)
+	if n := r.NumRows(); n != 3000 {
+		t.Fatalf("NumRows = %d, want 3000", n)
+	}
+	r.Close()
+	bad := rebuild(t, data, func(_, _, _ int, _ *format.PageHeader, body []byte) []byte { return body },
+		func(m *format.FileMetaData) { m.NumRows, m.RowGroups[0].NumRows = 1<<40, 1<<40-1500 })
+	r = openBytes(t, "rows.parquet", bad)
+	defer r.Close()
+	if n, most := r.NumRows(), 8*int64(len(bad))+sparseValues; n > most {
+		t.Fatalf("NumRows = %d, more than %d", n, most)
+	}
+	var err error
+	for err == nil {
+		_, err = r.Next()
+	}
+	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), "fewer rows than the footer records") {
+		t.Fatalf("Next: %v, want the missing rows", err)
+	}
+}

@@ -334,8 +334,15 @@ func (r *Reader) setSelection(sel []int) {
 // Schema returns the table's columns (after Select, the selected ones).
 func (r *Reader) Schema() *table.Schema { return &r.schema }
 
-// NumRows returns the number of rows that the file's footer records.
-func (r *Reader) NumRows() int64 { return r.pf.NumRows() }
+// NumRows returns the number of rows that the file's footer records, as a
+// hint for sizing (the rows read are counted from the pages): at most 8 per
+// byte of the file plus sparseValues, so that a damaged footer cannot make
+// a caller reserve room for trillions of rows. Only a file of long runs
+// (a column of nulls or of one value) holds more rows than that, and its
+// levels are then too few for the hint to matter.
+func (r *Reader) NumRows() int64 {
+	return max(0, min(r.pf.NumRows(), 8*r.size+sparseValues))
+}
 
 // Select restricts the reader to the columns at the given positions of the
 // full schema, in that order. It must be called before the first Next.

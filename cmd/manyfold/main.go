@@ -26,6 +26,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"os"
 	"os/signal"
 	"runtime"
@@ -224,7 +225,7 @@ func exitCode(err error) int {
 		return exitFailure
 	case errors.As(err, &ue), errors.As(err, &pu), errors.As(err, &ce), errors.Is(err, csvio.ErrTypeColumn):
 		return exitUsage
-	case errors.As(err, &oe):
+	case errors.As(err, &oe), isWriteError(err):
 		return exitOutput
 	case errors.As(err, &me):
 		return exitMismatch
@@ -235,6 +236,14 @@ func exitCode(err error) int {
 		return exitData
 	}
 	return exitFailure
+}
+
+// isWriteError reports whether err is a failed write to a file or a pipe
+// (a full disk, a pipe whose reader went away), which a writer returns
+// while the encoding runs, before the output is committed.
+func isWriteError(err error) bool {
+	var pe *fs.PathError
+	return errors.Is(err, syscall.EPIPE) || (errors.As(err, &pe) && pe.Op == "write")
 }
 
 // commitError classes an error of committing the output: bad data that

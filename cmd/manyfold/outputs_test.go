@@ -151,6 +151,9 @@ func TestCompareWritesBothOrNeither(t *testing.T) {
 	if _, err := os.Stat(json); err == nil {
 		t.Errorf("the JSON result was written though the report was not")
 	}
+	if strings.Contains(r.stderr, ".tmp-") || !strings.Contains(r.stderr, "missing/r.html: no such file or directory") {
+		t.Errorf("the message %q should name the report, not its temporary file", r.stderr)
+	}
 	noTempFiles(t, dir)
 }
 
@@ -308,6 +311,30 @@ func TestOutStdout(t *testing.T) {
 			t.Fatalf("a file named - was written")
 		}
 	}
+	// A reader that goes away: exit 5, and the tables are not committed.
+	big := writeFile(t, dir, "big.csv", shipmentsCSV(400000))
+	cmd := manyfoldCmd("encode", big, "--target", "late", "--columns", "postcode", "--folds", "2",
+		"--out", "-", "--format", "csv", "--tables", filepath.Join(dir, "t-pipe"))
+	var stderr bytes.Buffer
+	cmd.Stderr = &stderr
+	stdout, err := cmd.StdoutPipe()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	stdout.Read(make([]byte, 100))
+	stdout.Close()
+	err = cmd.Wait()
+	var ee *exec.ExitError
+	if !errors.As(err, &ee) || ee.ExitCode() != exitOutput || !strings.Contains(stderr.String(), "broken pipe") {
+		t.Errorf("standard output closed early: %v, stderr %q; want exit %d, a broken pipe", err, stderr.String(), exitOutput)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "t-pipe")); err == nil {
+		t.Errorf("the tables were committed though the output was not")
+	}
+	noTempFiles(t, dir)
 	r := runCLI(t, "encode", csv, "--target", "late", "--columns", "postcode", "--out", "-", "--tables", filepath.Join(dir, "t"))
 	if r.code != exitUsage || !strings.Contains(r.stderr, "--out - writes to standard output: give its format with --format") {
 		t.Errorf("--out - without --format: exit %d, %q", r.code, r.stderr)

@@ -18,6 +18,7 @@ package atomicfile
 import (
 	"errors"
 	"fmt"
+	"io/fs"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -92,7 +93,7 @@ func Create(path string) (*File, error) {
 	}
 	f, tmp, err := createTemp(dir, "."+base+".tmp-", perm)
 	if err != nil {
-		return nil, fmt.Errorf("create %s: %w", path, err)
+		return nil, fmt.Errorf("create %s: %w", path, unwrapPath(err))
 	}
 	if keepPerm {
 		// The umask applied at creation: set the old file's bits exactly.
@@ -133,6 +134,16 @@ func openInPlace(path string) (*File, error) {
 		return nil, fmt.Errorf("create %s: %w", path, err)
 	}
 	return &File{File: f, path: path, inPlace: true}, nil
+}
+
+// unwrapPath returns the cause of an error about a temporary path, so that
+// messages name the path the user gave, not the temporary one.
+func unwrapPath(err error) error {
+	var pe *fs.PathError
+	if errors.As(err, &pe) {
+		return pe.Err
+	}
+	return err
 }
 
 // createTemp creates a new file named prefix plus a random suffix in dir
@@ -222,7 +233,7 @@ func (f *File) Commit() error {
 	}
 	err := commitLock(func() error {
 		if err := os.Rename(f.tmp, f.target); err != nil {
-			return err
+			return unwrapPath(err)
 		}
 		untrackLocked(f.tmp)
 		return nil

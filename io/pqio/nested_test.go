@@ -12,6 +12,7 @@ import (
 
 	"github.com/apache/arrow/go/v17/arrow"
 	pq "github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/encoding/thrift"
 	"github.com/parquet-go/parquet-go/format"
 
 	"manyfold/io/table"
@@ -238,5 +239,39 @@ func TestOnlyNestedColumns(t *testing.T) {
 	if !errors.Is(err, table.ErrEmpty) || !strings.Contains(msg, "no flat columns") ||
 		!strings.Contains(msg, `"tags" (list)`) || !strings.Contains(msg, `"props" (struct)`) {
 		t.Fatalf("error %q", msg)
+	}
+}
+
+// TestTopColumnsBadSchemas: a footer whose child counts do not add up is
+// corrupt, never a panic or a runaway recursion.
+func TestTopColumnsBadSchemas(t *testing.T) {
+	leaf := func(name string) format.SchemaElement {
+		return format.SchemaElement{Name: name, Type: thrift.New(format.Int64)}
+	}
+	group := func(name string, n int32) format.SchemaElement {
+		return format.SchemaElement{Name: name, NumChildren: thrift.New(n)}
+	}
+	deep := []format.SchemaElement{group("root", 1)}
+	for i := 0; i < 1000; i++ {
+		deep = append(deep, group("g", 1))
+	}
+	deep = append(deep, leaf("x"))
+	for name, sch := range map[string][]format.SchemaElement{
+		"empty":            nil,
+		"root too many":    {group("root", 3), leaf("a")},
+		"root negative":    {group("root", -1), leaf("a")},
+		"group cut short":  {group("root", 1), group("g", 5), leaf("a")},
+		"elements left":    {group("root", 1), leaf("a"), leaf("b")},
+		"too deep":         deep,
+		"huge child count": {group("root", 1), group("g", 1<<30)},
+	} {
+		if _, err := topColumns(sch); !errors.Is(err, table.ErrCorrupt) {
+			t.Errorf("%s: %v, want a corrupt file", name, err)
+		}
+	}
+	cols, err := topColumns([]format.SchemaElement{group("root", 2), group("s", 2), leaf("a"), leaf("b"), leaf("c")})
+	if err != nil || len(cols) != 2 || cols[0].kind != "struct" || cols[1].kind != "" || cols[1].first != 2 ||
+		!slices.Equal(cols[0].paths[1], []string{"s", "b"}) {
+		t.Fatalf("topColumns: %+v, %v", cols, err)
 	}
 }

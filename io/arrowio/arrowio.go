@@ -22,6 +22,20 @@
 // listed in the schema as text, but selecting such a column, or reading it
 // without a selection, fails with an error naming the column.
 //
+// Before the Arrow library loads a record or dictionary batch, the reader
+// checks its claims against the bytes that hold them, so that a damaged or
+// hostile input of a few kilobytes cannot make it allocate gigabytes: every
+// field node's length must fit its buffers and a top-level node must be as
+// long as its batch; rows that no buffer holds (null columns, zero-width
+// binary, structs without nulls) may total 2^20 plus 64 per byte of the
+// message; a compressed buffer may claim at most 256 (LZ4) or 32768 (ZSTD)
+// times its compressed bytes, the most either codec expands a byte to, and
+// a fixed-width one no more than its rows need (rounded up to 64 bytes); the
+// blocks of a file's footer may not overlap; and the text of a view column
+// is bounded by 64 times its buffers' bytes plus 1 MiB. A batch that breaks
+// one of these is an error wrapping table.ErrCorrupt that names the batch
+// and the column.
+//
 // Writing produces the file format with one record batch per Write.
 package arrowio
 

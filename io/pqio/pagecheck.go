@@ -210,9 +210,15 @@ type pageGuard struct {
 }
 
 // start begins a chunk: ra holds the file of size fileSize, md is the
-// chunk's metadata and rows the row group's row count. The pages are found
-// where the decoder will look for them.
-func (g *pageGuard) start(ra io.ReaderAt, fileSize int64, md *format.ColumnMetaData, rows int64, l *leaf) error {
+// chunk's metadata, first the codec of the column's first chunk and rows
+// the row group's row count. The pages are found where the decoder will
+// look for them, and decompressed as it will: with the codec of the
+// column's first chunk, which it applies to every chunk of the column, so
+// a chunk of another codec is refused rather than decoded as garbage.
+func (g *pageGuard) start(ra io.ReaderAt, fileSize int64, md *format.ColumnMetaData, first format.CompressionCodec, rows int64, l *leaf) error {
+	if md.Codec != first {
+		return fmt.Errorf("%w: column chunk compressed with %v where the column's first is %v (a column's chunks are read with one codec)", table.ErrCorrupt, md.Codec, first)
+	}
 	g.ra, g.codec, g.maxDef, g.phys, g.rows, g.page = ra, md.Codec, l.maxDef, l.phys, rows, 0
 	g.pos = md.DataPageOffset
 	if md.DictionaryPageOffset != 0 {

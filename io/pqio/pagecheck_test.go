@@ -636,3 +636,25 @@ func TestNumRowsBounded(t *testing.T) {
 		t.Fatalf("Next: %v, want the missing rows", err)
 	}
 }
+
+// TestChunkCodecs: the decoder reads every chunk of a column with the
+// codec of its first chunk, so a chunk of another codec is refused (here
+// an uncompressed file whose second row group's chunks claim Snappy, the
+// pages of which would be checked decompressed and decoded raw).
+func TestChunkCodecs(t *testing.T) {
+	bad := rebuild(t, crcFile(t, "none"), func(_, _, _ int, _ *format.PageHeader, body []byte) []byte { return body },
+		func(m *format.FileMetaData) {
+			for c := range m.RowGroups[1].Columns {
+				m.RowGroups[1].Columns[c].MetaData.Codec = format.Snappy
+			}
+		})
+	r := openBytes(t, "codecs.parquet", bad)
+	defer r.Close()
+	var err error
+	for err == nil {
+		_, err = r.Next()
+	}
+	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), `column "s": row group 2: file is corrupt or truncated: column chunk compressed with SNAPPY where the column's first is UNCOMPRESSED`) {
+		t.Fatalf("Next: %v, want the codecs named", err)
+	}
+}

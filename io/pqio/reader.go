@@ -407,7 +407,8 @@ func (r *Reader) Next() (b *table.Batch, err error) {
 		meta := r.pf.Metadata().RowGroups[r.rg-1].Columns
 		for i := range r.cols {
 			c := &r.cols[i]
-			if err := c.guard.start(r.ra, r.size, &meta[c.leaf.index].MetaData, r.rgLeft, c.leaf); err != nil {
+			first := r.pf.Metadata().RowGroups[0].Columns[c.leaf.index].MetaData.Codec
+			if err := c.guard.start(r.ra, r.size, &meta[c.leaf.index].MetaData, first, r.rgLeft, c.leaf); err != nil {
 				return nil, r.columnError(c, err)
 			}
 			c.startChunk(chunks[c.leaf.index].Pages())

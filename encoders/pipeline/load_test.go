@@ -34,7 +34,7 @@ func loadCSV() string {
 
 // fitTablesDir fits loadCSV with sp (columns pc and sender, target late
 // unless sp names another) and saves its tables in a new directory.
-func fitTablesDir(t *testing.T, sp Spec) string {
+func fitTablesDir(t testing.TB, sp Spec) string {
 	t.Helper()
 	dir := t.TempDir()
 	in := filepath.Join(dir, "train.csv")

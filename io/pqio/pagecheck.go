@@ -342,10 +342,11 @@ func (g *pageGuard) checkV1(h *format.PageHeader, dp format.DataPageHeader) erro
 		if len(body) < 4 {
 			return fmt.Errorf("%w: page too short for its definition levels", table.ErrCorrupt)
 		}
+		// Whatever their encoding, the decoder takes the levels' length
+		// from a 4-byte prefix; bit-packed levels (the deprecated
+		// encoding) are as many as their bytes hold, so only the hybrid's
+		// runs are walked.
 		l := binary.LittleEndian.Uint32(body)
-		if dp.DefinitionLevelEncoding == format.BitPacked {
-			l = uint32(len(body) - 4) // the decoder reads levels to the end; their count is bounded by the bytes
-		}
 		if uint64(l) > uint64(len(body)-4) {
 			return fmt.Errorf("%w: definition levels of %d bytes in a page of %d", table.ErrCorrupt, l, len(body))
 		}

@@ -314,6 +314,13 @@ var hostileCases = []hostileCase{
 			return append([]byte{body[0]}, hugeRun(0)...)
 		}),
 		want: `column "s": row group 1: page 2: dictionary indices: file is corrupt or truncated: runs declare more`},
+	{name: "index run of 2^31-1 after bit-packed levels", comp: "none",
+		edit: onPage(1, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
+			h.DataPageHeader.V.DefinitionLevelEncoding = format.BitPacked
+			l := binary.LittleEndian.Uint32(body)
+			return append(bytes.Clone(body[:4+l]), append([]byte{body[4+l]}, hugeRun(0, 0)...)...)
+		}),
+		want: `column "i": row group 1: page 2: dictionary indices: file is corrupt or truncated: runs declare more`},
 	{name: "data page of 2^31-1 values", comp: "snappy",
 		edit: onPage(0, format.DataPage, func(h *format.PageHeader, body []byte) []byte {
 			h.DataPageHeader.V.NumValues = 1<<31 - 1

@@ -321,3 +321,40 @@ func TestHierarchicalM(t *testing.T) {
 		t.Errorf("manifest m = %.12g, the nested estimator gives %.12g", got, want)
 	}
 }
+
+// TestLatin1LevelsInTables: a CSV in Latin-1 encodes to CSV (bytes kept as
+// they are), and its mapping tables keep the levels' bytes too: a table
+// whose levels are not all valid UTF-8 stores them as plain BYTE_ARRAY
+// without the STRING annotation, which promises UTF-8 (the Parquet format
+// specification, LogicalTypes.md), while a table of valid levels keeps it.
+// apply then finds the Latin-1 level again.
+func TestLatin1LevelsInTables(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "latin1.csv", "city,route,late\nK\xf6ln,R1,1\nK\xf6ln,R1,0\nBonn,R2,1\nBonn,R2,0\nK\xf6ln,R2,1\n")
+	tables := filepath.Join(dir, "tables")
+	mustRun(t, "encode", in, "--target", "late", "--columns", "city,route", "--methods", "target,freq", "--folds", "2",
+		"--out", filepath.Join(dir, "enc.csv"), "--tables", tables)
+	for _, c := range []struct {
+		file string
+		utf8 bool
+	}{{"01-city.parquet", false}, {"02-route.parquet", true}} {
+		md := footer(t, filepath.Join(tables, c.file))
+		e := md.Schema[1] // the level column
+		if e.Name != "level" {
+			t.Fatalf("%s: first column %q", c.file, e.Name)
+		}
+		_, converted := e.ConvertedType.Get()
+		annotated := e.LogicalType.Value != nil || converted
+		if annotated != c.utf8 {
+			t.Errorf("%s: level column annotated as UTF-8 text: %v, want %v", c.file, annotated, c.utf8)
+		}
+	}
+	app := filepath.Join(dir, "app.csv")
+	mustRun(t, "apply", in, "--tables", tables, "--out", app)
+	tt := readTable(t, app)
+	for i, f := range tt.col(t, "city_freq") {
+		if want := map[bool]string{true: "3", false: "2"}[i != 2 && i != 3]; f != want {
+			t.Errorf("applied row %d: city_freq %s, want %s", i+2, f, want)
+		}
+	}
+}

@@ -393,7 +393,7 @@ func (m *Model) saveCol(path string, c *Col) error {
 	}
 	// Row groups of tableRowGroup levels: the writer holds a row group's
 	// pages until it is complete, and a table may have millions of levels.
-	out, err := tableio.Create(path, schema, tableio.WriteOptions{Format: tableio.Parquet, Parquet: pqio.WriterOptions{RowGroupRows: tableRowGroup}})
+	out, err := tableio.Create(path, schema, tableio.WriteOptions{Format: tableio.Parquet, Parquet: pqio.WriterOptions{RowGroupRows: tableRowGroup, KeepBytes: true}})
 	if err != nil {
 		return err
 	}

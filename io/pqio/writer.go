@@ -53,6 +53,13 @@ type WriterOptions struct {
 	// and are not checked). Without it text is written as it is, as
 	// manyfold's mapping tables keep a level's bytes.
 	CheckUTF8 bool
+	// KeepBytes writes a text column any of whose values is not valid
+	// UTF-8 as plain BYTE_ARRAY, without the STRING annotation, which
+	// promises UTF-8 (decided at Close: the schema is in the footer).
+	// manyfold's mapping tables set it, as their levels are the input's
+	// bytes, in whatever encoding the input has. CheckUTF8 takes
+	// precedence.
+	KeepBytes bool
 }
 
 // defaultRowGroupRows is the row group size when WriterOptions leaves it 0.
@@ -91,6 +98,9 @@ type writer struct {
 	dataName string
 	lines    []int64
 	utf8     []table.UTF8Check // per column, text checked as UTF-8 (nil: none)
+	refuse   bool              // CheckUTF8: text that is not UTF-8 is an error
+	binary   []bool            // KeepBytes: per column, text met that is not UTF-8
+	elemAt   []int             // per column written here: its element in elems
 	err      error             // sticky: the first failure
 	closed   bool
 }
@@ -134,8 +144,11 @@ func newWriter(w io.Writer, schema *table.Schema, opts WriterOptions) (*writer, 
 		nulls: make([][]bool, n), text: make([][]byte, n), tends: make([][]int, n),
 		dataName: name,
 	}
-	if opts.CheckUTF8 {
+	if opts.CheckUTF8 || opts.KeepBytes {
 		wr.utf8 = make([]table.UTF8Check, n)
+		wr.refuse = opts.CheckUTF8
+		wr.binary = make([]bool, n)
+		wr.elemAt = make([]int, n)
 	}
 	if opts.Input != "" {
 		wr.dataName = opts.Input
@@ -215,6 +228,9 @@ func (w *writer) planColumns(opts WriterOptions, elems [][]format.SchemaElement,
 		nested[nc.Before] = append(nested[nc.Before], t)
 	}
 	add := func(sl outCol, sub []format.SchemaElement) {
+		if sl.field >= 0 && w.elemAt != nil {
+			w.elemAt[sl.field] = len(w.elems)
+		}
 		w.plan = append(w.plan, sl)
 		w.elems = append(w.elems, sub...)
 		if sl.src != nil {
@@ -386,9 +402,12 @@ func (w *writer) add(j int, c *table.Column, start, k int, first int64) error {
 	}
 	// Parquet text is UTF-8: text values are checked (numbers and
 	// booleans converted to text are ASCII).
-	if f.Kind == table.String && w.utf8 != nil {
+	if f.Kind == table.String && w.utf8 != nil && !w.binary[j] {
 		if i := w.utf8[j].Invalid(c, start, k); i >= 0 {
-			return bad(i, table.NotUTF8(c.Bytes(start+i)))
+			if w.refuse {
+				return bad(i, table.NotUTF8(c.Bytes(start+i)))
+			}
+			w.binary[j] = true // KeepBytes: no STRING annotation
 		}
 	}
 	// The common cases: the column's form matches the kind.
@@ -593,6 +612,12 @@ func (w *writer) close() error {
 	} else if w.inRG > 0 {
 		if err := w.flushRowGroup(); err != nil {
 			return err
+		}
+	}
+	for j, b := range w.binary {
+		if b { // KeepBytes: bytes, not UTF-8 text
+			e := &w.elems[w.elemAt[j]]
+			e.ConvertedType, e.LogicalType = thrift.Null[deprecated.ConvertedType]{}, format.LogicalType{}
 		}
 	}
 	root := format.SchemaElement{Name: "manyfold", NumChildren: thrift.New(int32(len(w.plan)))}

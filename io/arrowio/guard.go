@@ -395,7 +395,7 @@ func (m *msgReader) Message() (*ipc.Message, error) {
 		// The library reads the messages after the schema as its
 		// dictionaries, whatever their kind.
 		if kind != headerDict {
-			return nil, fmt.Errorf("%d dictionaries missing after the schema: %w", m.dicts, errBadMeta)
+			return nil, fmt.Errorf("the dictionaries do not follow the schema (%d missing): %w", m.dicts, errBadMeta)
 		}
 		m.dicts--
 	}

@@ -542,7 +542,7 @@ func TestStreamBatchInPlaceOfDictionary(t *testing.T) {
 	}
 	out = append(out, 0xff, 0xff, 0xff, 0xff, 0, 0, 0, 0)
 	err, _ := readBounded(t, out, "nodict.arrows")
-	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), "dictionaries missing") {
+	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), "the dictionaries do not follow the schema") {
 		t.Fatalf("error %v, want ErrCorrupt saying the dictionary is missing", err)
 	}
 }

@@ -290,18 +290,20 @@ func (g *pageGuard) check() (bool, error) {
 	return false, fmt.Errorf("%w: page of type %v in a column chunk", table.ErrCorrupt, h.Type)
 }
 
-// checkDict checks a dictionary page: its values are PLAIN, each at least
-// a bit (a boolean) long.
+// checkDict checks a dictionary page: its values (PLAIN, in a valid file)
+// each take at least a bit (a boolean).
 func (g *pageGuard) checkDict(h *format.PageHeader, dp format.DictionaryPageHeader) error {
 	body, err := decompress(g.codec, g.plain, g.raw, int(h.UncompressedPageSize))
 	if err != nil {
 		return err
 	}
 	g.keep(body)
-	if n := int64(dp.NumValues); n < 0 || n > 8*int64(len(body))+8 {
+	n := int64(dp.NumValues)
+	if n < 0 || n > 8*int64(len(body))+8 {
 		return fmt.Errorf("%w: dictionary page declares %d values in %d bytes", table.ErrCorrupt, n, len(body))
 	}
-	return nil
+	// The decoder takes the dictionary's encoding from its header.
+	return g.checkValues(dp.Encoding, body, n)
 }
 
 // keep remembers body's buffer for the next page, unless it is the raw

@@ -665,3 +665,32 @@ func TestChunkCodecs(t *testing.T) {
 		t.Fatalf("Next: %v, want the codecs named", err)
 	}
 }
+
+// TestDeltaDictionaryPage: a dictionary page that says its values are
+// delta encoded, in a run claiming 2^31-1 of them, is checked as a data
+// page's values are.
+func TestDeltaDictionaryPage(t *testing.T) {
+	bad := rebuild(t, crcFile(t, "none"), onPage(1, format.DictionaryPage, func(h *format.PageHeader, body []byte) []byte {
+		h.DictionaryPageHeader.V.Encoding = format.DeltaBinaryPacked
+		run := appendDelta(nil, 0, 3, 100)
+		body = binary.AppendUvarint(append([]byte(nil), run[:3]...), 1<<31-1)
+		body = append(body, run[4:]...)
+		h.DictionaryPageHeader.V.NumValues = 100
+		h.UncompressedPageSize = int32(len(body))
+		return body
+	}), nil)
+	var err error
+	alloc := allocDuring(func() {
+		r := openBytes(t, "dict.parquet", bad)
+		defer r.Close()
+		for err == nil {
+			_, err = r.Next()
+		}
+	})
+	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), `column "i": row group 1: page 1: delta values: file is corrupt or truncated: delta run declares 2147483647 values`) {
+		t.Fatalf("Next: %v, want the delta run refused", err)
+	}
+	if alloc > 32<<20 {
+		t.Fatalf("reading allocated %d bytes", alloc)
+	}
+}

@@ -130,60 +130,52 @@ func (g *batchGuard) mapDicts(c *fbCheck, t *flatbuffers.Table, dt arrow.DataTyp
 // check checks a record or dictionary batch message (its metadata, already
 // checked by checkMessage) and its body, of bodyLen bytes.
 func (g *batchGuard) check(meta []byte, body io.ReaderAt, bodyLen int64) error {
-	var (
-		b     *batchCheck
-		what  string
-		err   error
-		check func() error
-	)
 	fc := newCheck(meta)
-	err = fc.run(func() error {
+	msgLen := int64(len(meta)) + bodyLen
+	var what string
+	err := fc.run(func() error {
 		root := fc.root()
 		kind := root.GetByte(flatbuffers.UOffsetT(root.Offset(slotMsgHeaderType)) + root.Pos)
 		var ht flatbuffers.Table
 		root.Union(&ht, flatbuffers.UOffsetT(root.Offset(slotMsgHeader)))
-		version := int16(0) // the library loads dictionaries as version 1
 		if kind == headerBatch {
 			g.batches++
 			what = fmt.Sprintf("record batch %d", g.batches)
+			var version int16
 			if o := flatbuffers.UOffsetT(root.Offset(slotMsgVersion)); o != 0 {
 				version = root.GetInt16(o + root.Pos)
 			}
-			b = newBatchCheck(fc, &ht, version, body, int64(len(meta))+bodyLen)
-			check = func() error { return b.record(g.fields) }
-			return nil
+			return newBatchCheck(fc, &ht, version, body, msgLen).record(g.fields)
 		}
 		g.dictNo++
 		what = fmt.Sprintf("dictionary batch %d", g.dictNo)
-		var id int64
-		if o := flatbuffers.UOffsetT(ht.Offset(slotDictID)); o != 0 {
-			id = ht.GetInt64(o + ht.Pos)
-		}
-		d, ok := g.dicts[id]
-		if !ok {
-			return nil // the library refuses an unknown dictionary
-		}
-		what += fmt.Sprintf(" (column %q)", d.column)
-		rb := flatbuffers.Table{Bytes: meta, Pos: ht.Indirect(flatbuffers.UOffsetT(ht.Offset(slotDictData)) + ht.Pos)}
-		b = newBatchCheck(fc, &rb, version, body, int64(len(meta))+bodyLen)
-		check = func() error {
-			if _, _, err := b.load(d.typ, 0); err != nil {
-				return err
-			}
-			return b.over
-		}
-		return nil
+		return g.dictionary(fc, &ht, body, msgLen, &what)
 	})
-	if err == nil && check != nil {
-		err = fc.run(check)
-	}
-	if err != nil {
-		if what == "" {
-			return err
-		}
+	if err != nil && what != "" {
 		return fmt.Errorf("%s: %w", what, err)
 	}
-	return nil
+	return err
+}
+
+// dictionary checks the DictionaryBatch table ht against the value type of
+// its dictionary, adding the column's name to *what.
+func (g *batchGuard) dictionary(fc *fbCheck, ht *flatbuffers.Table, body io.ReaderAt, msgLen int64, what *string) error {
+	var id int64
+	if o := flatbuffers.UOffsetT(ht.Offset(slotDictID)); o != 0 {
+		id = ht.GetInt64(o + ht.Pos)
+	}
+	d, ok := g.dicts[id]
+	if !ok {
+		return nil // the library refuses an unknown dictionary
+	}
+	*what += fmt.Sprintf(" (column %q)", d.column)
+	rb := flatbuffers.Table{Bytes: fc.buf, Pos: ht.Indirect(flatbuffers.UOffsetT(ht.Offset(slotDictData)) + ht.Pos)}
+	// The library loads dictionaries as metadata version 1.
+	b := newBatchCheck(fc, &rb, 0, body, msgLen)
+	if _, _, err := b.load(d.typ, 0); err != nil {
+		return err
+	}
+	return b.over
 }
 
 // batchCheck walks the nodes and buffers of one RecordBatch table.

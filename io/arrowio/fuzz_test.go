@@ -25,6 +25,8 @@ func FuzzRead(f *testing.F) {
 	for _, stream := range []bool{false, true} {
 		data, _ := writeArrow(f, eventSchema, eventBatches, stream)
 		f.Add(data)
+		data, _ = writeArrow(f, eventSchema, eventBatches, stream, ipc.WithLZ4())
+		f.Add(data)
 		rec := nestedRecord(f)
 		f.Add(writeRecord(f, rec, stream))
 		f.Add(writeRecord(f, rec, stream, ipc.WithZstd()))

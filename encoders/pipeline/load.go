@@ -62,6 +62,11 @@ func LoadTables(dir string) (*Model, error) {
 		if err != nil {
 			return nil, err
 		}
+		if supervised && mc.ParentTable == "" {
+			if err := m.checkEncoded(c); err != nil {
+				return nil, &ManifestError{Dir: filepath.Join(dir, mc.Table), Msg: err.Error()}
+			}
+		}
 		c.Name, c.Kind = mc.Name, k
 		if mc.ParentTable != "" {
 			p, err := m.loadCol(dir, mc.ParentTable, mc.ParentSum, supervised, mc.ParentPrior, mc.ParentM, -1)
@@ -213,7 +218,7 @@ func (mf *Manifest) check() (Spec, error) {
 	}
 	hier := supervised && (sp.PriorPrefix > 0 || sp.PriorColumn != "")
 	for i := range mf.Columns {
-		if err := mf.checkColumn(i, kinds, task, outs, hier); err != nil {
+		if err := mf.checkColumn(i, kinds, task, outs, hier, sp.Smoothing); err != nil {
 			return Spec{}, err
 		}
 	}
@@ -328,7 +333,7 @@ func (mf *Manifest) checkParams(kinds map[string]table.Kind) (Spec, error) {
 
 // checkColumn checks columns[i]: outs values of priors and smoothing
 // weights (0 without a target), parent tables when hier.
-func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstats.Task, outs int, hier bool) error {
+func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstats.Task, outs int, hier bool, sm colstats.Smoothing) error {
 	c := &mf.Columns[i]
 	at := fmt.Sprintf("columns[%d]", i)
 	k, err := table.ParseKind(c.Type)
@@ -355,7 +360,7 @@ func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstat
 		return err
 	}
 	rate := task != colstats.Regression
-	if err := checkFits(at, "prior", "m", c.Prior, c.M, outs, rate); err != nil {
+	if err := checkFits(at, "prior", "m", c.Prior, c.M, outs, rate, sm); err != nil {
 		return err
 	}
 	if !hier {
@@ -376,7 +381,7 @@ func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstat
 	if err := checkSum(at+".parent_table_xxh64", c.ParentSum); err != nil {
 		return err
 	}
-	return checkFits(at, "parent_prior", "parent_m", c.ParentPrior, c.ParentM, outs, rate)
+	return checkFits(at, "parent_prior", "parent_m", c.ParentPrior, c.ParentM, outs, rate, sm)
 }
 
 // checkTableName checks that the table named at field is a plain file name
@@ -404,8 +409,8 @@ func checkSum(field, s string) error {
 
 // checkFits checks a column's priors and smoothing weights: outs of each,
 // priors finite (within [0, 1] for a rate), weights null (infinite) or at
-// least 0.
-func checkFits(at, priorName, mName string, prior, ms []*float64, outs int, rate bool) error {
+// least 0: the m of params.smoothing m=M, null for a blend.
+func checkFits(at, priorName, mName string, prior, ms []*float64, outs int, rate bool, sm colstats.Smoothing) error {
 	if len(prior) != outs {
 		return fmt.Errorf("%s.%s has %d values; the target implies %d", at, priorName, len(prior), outs)
 	}
@@ -420,11 +425,25 @@ func checkFits(at, priorName, mName string, prior, ms []*float64, outs int, rate
 		case rate && (*p < 0 || *p > 1):
 			return fmt.Errorf("%s.%s[%d] is %g, not a rate", at, priorName, o, *p)
 		}
-		if m := ms[o]; m != nil && !(*m >= 0) {
+		m := ms[o]
+		switch {
+		case m != nil && !(*m >= 0):
 			return fmt.Errorf("%s.%s[%d] is %g; want a number >= 0 or null (infinite)", at, mName, o, *m)
+		case sm.Kind == "m" && (m == nil || *m != sm.M):
+			return fmt.Errorf("%s.%s[%d] is %s, but params.smoothing is m=%g", at, mName, o, optText(m), sm.M)
+		case sm.Kind == "blend" && m != nil:
+			return fmt.Errorf("%s.%s[%d] is %g, but params.smoothing is a blend, which has no m", at, mName, o, *m)
 		}
 	}
 	return nil
+}
+
+// optText prints an optional number, null when absent.
+func optText(p *float64) string {
+	if p == nil {
+		return "null"
+	}
+	return strconv.FormatFloat(*p, 'g', -1, 64)
 }
 
 // specFrom returns the job the manifest's parameters describe.
@@ -760,6 +779,37 @@ func (tl *tableLoad) level(b *table.Batch, i int) error {
 			tl.parentRow = append(tl.parentRow, -1)
 		}
 		tl.parentRow[l] = int32(pr)
+	}
+	return nil
+}
+
+// checkEncoded checks the encoded values stored in a table without a
+// hierarchical prior against those its counts give with the manifest's
+// priors, smoothing weights and smoothing: the prior for a level left out,
+// the smoothed mean of its rows otherwise. A manifest whose prior, m or
+// smoothing was changed, or a table fitted with others, is refused.
+func (m *Model) checkEncoded(c *Col) error {
+	st := c.St
+	for l := 0; l < st.NumLevels(); l++ {
+		if l == 0 && st.RowCount(0) == 0 {
+			continue // no null level in the table
+		}
+		for o := range c.Full {
+			ft := &c.Full[o]
+			want := ft.Prior
+			if c.Keep[l] {
+				want = ft.Encode(st.Target(l, o, -1, m.Pos))
+			}
+			got := c.TMean[o][l]
+			if math.Abs(got-want) <= 1e-9*max(1, math.Abs(want)) {
+				continue
+			}
+			level := "the null level"
+			if l > 0 {
+				level = strconv.Quote(string(st.Bytes(l)))
+			}
+			return fmt.Errorf("%s: encoded value %g, but its counts with the manifest's prior, m and smoothing give %g", level, got, want)
+		}
 	}
 	return nil
 }

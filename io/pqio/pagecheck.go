@@ -9,6 +9,7 @@ import (
 	"io"
 	"math/bits"
 
+	"github.com/andybalholm/brotli"
 	"github.com/klauspost/compress/gzip"
 	"github.com/klauspost/compress/s2"
 	"github.com/klauspost/compress/zstd"
@@ -16,6 +17,7 @@ import (
 	"github.com/parquet-go/parquet-go/encoding/delta"
 	"github.com/parquet-go/parquet-go/encoding/thrift"
 	"github.com/parquet-go/parquet-go/format"
+	"github.com/pierrec/lz4/v4"
 
 	"manyfold/io/table"
 )
@@ -128,7 +130,21 @@ func decompress(codecID format.CompressionCodec, dst, src []byte, limit int) ([]
 	case format.Zstd:
 		out, err = zstdPages.DecodeAll(src, dst[:0])
 	case format.Gzip:
-		out, err = readLimited(dst, src, limit)
+		var zr io.Reader
+		if zr, err = gzip.NewReader(bytes.NewReader(src)); err == nil {
+			out, err = readLimited(dst, zr, limit)
+		}
+	case format.Brotli:
+		out, err = readLimited(dst, brotli.NewReader(bytes.NewReader(src)), limit)
+	case format.Lz4Raw:
+		// One block into a buffer of the declared size: the decoder's
+		// own loop doubles its buffer on any error, a corrupt block
+		// included, until memory runs out.
+		out = grow(dst, limit)
+		var n int
+		if n, err = lz4.UncompressBlock(src, out); err == nil {
+			out = out[:n]
+		}
 	default:
 		dec := parquet.LookupCompressionCodec(codecID)
 		if dec == nil {
@@ -145,12 +161,9 @@ func decompress(codecID format.CompressionCodec, dst, src []byte, limit int) ([]
 	return out, nil
 }
 
-// readLimited gunzips src into dst, stopping past limit bytes.
-func readLimited(dst, src []byte, limit int) ([]byte, error) {
-	zr, err := gzip.NewReader(bytes.NewReader(src))
-	if err != nil {
-		return nil, err
-	}
+// readLimited reads a decompressing reader into dst, stopping past limit
+// bytes.
+func readLimited(dst []byte, zr io.Reader, limit int) ([]byte, error) {
 	w := bytes.NewBuffer(dst[:0])
 	if _, err := io.Copy(w, io.LimitReader(zr, int64(limit)+1)); err != nil {
 		return nil, err

@@ -13,6 +13,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/andybalholm/brotli"
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/encoding/thrift"
 	"github.com/parquet-go/parquet-go/format"
@@ -692,5 +693,54 @@ func TestDeltaDictionaryPage(t *testing.T) {
 	}
 	if alloc > 32<<20 {
 		t.Fatalf("reading allocated %d bytes", alloc)
+	}
+}
+
+// TestHostileCodecs reads files whose first page is a corrupt LZ4 block
+// (the decoder's own loop doubles its buffer on any error, without end) or
+// a Brotli stream of 40 MB of zeros where the header says 630 bytes:
+// refused as corrupt, within 32 MB.
+func TestHostileCodecs(t *testing.T) {
+	var bomb bytes.Buffer
+	bw := brotli.NewWriterLevel(&bomb, 1)
+	if _, err := bw.Write(make([]byte, 40<<20)); err != nil {
+		t.Fatal(err)
+	}
+	if err := bw.Close(); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		codec format.CompressionCodec
+		body  []byte
+		want  string
+	}{
+		{format.Lz4Raw, []byte{0xF0, 0xFF, 0xFF, 0xFF, 0x0F, 1, 2, 3}, "decompressing a page"},
+		{format.Brotli, bomb.Bytes(), "page decompresses to more than the"},
+	} {
+		t.Run(tc.codec.String(), func(t *testing.T) {
+			bad := rebuild(t, crcFile(t, "none"), onPage(0, format.DictionaryPage, func(h *format.PageHeader, body []byte) []byte {
+				return tc.body
+			}), func(m *format.FileMetaData) {
+				for g := range m.RowGroups {
+					for c := range m.RowGroups[g].Columns {
+						m.RowGroups[g].Columns[c].MetaData.Codec = tc.codec
+					}
+				}
+			})
+			var err error
+			alloc := allocDuring(func() {
+				r := openBytes(t, "codec.parquet", bad)
+				defer r.Close()
+				for err == nil {
+					_, err = r.Next()
+				}
+			})
+			if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), `column "s": row group 1: page 1: file is corrupt or truncated: `+tc.want) {
+				t.Fatalf("Next: %v\nwant ErrCorrupt with %q", err, tc.want)
+			}
+			if alloc > 32<<20 {
+				t.Fatalf("reading allocated %d bytes", alloc)
+			}
+		})
 	}
 }

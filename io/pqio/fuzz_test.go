@@ -52,6 +52,11 @@ func fuzzSeeds(t testing.TB) [][]byte {
 			return body
 		}, nil)
 		out = append(out, data, noCRC)
+		if comp == "none" {
+			for _, id := range []format.CompressionCodec{format.Gzip, format.Brotli, format.Lz4Raw} {
+				out = append(out, recompressed(t, data, id))
+			}
+		}
 	}
 	for _, rows := range []any{
 		[]typedRow{{Code: [3]byte{'A', 'B', 'C'}, U32: 7, I32Dict: -5, F64Dict: 0.25, Day: 3, Tags: []string{"x"}}},
@@ -74,6 +79,26 @@ func fuzzSeeds(t testing.TB) [][]byte {
 		out = append(out, buf.Bytes())
 	}
 	return out
+}
+
+// recompressed returns an uncompressed file of ours with every page
+// compressed with codec id (and no CRCs).
+func recompressed(t testing.TB, data []byte, id format.CompressionCodec) []byte {
+	c := parquet.LookupCompressionCodec(id)
+	return rebuild(t, data, func(_, _, _ int, h *format.PageHeader, body []byte) []byte {
+		h.CRC = 0
+		out, err := c.Encode(nil, body)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return out
+	}, func(m *format.FileMetaData) {
+		for g := range m.RowGroups {
+			for c := range m.RowGroups[g].Columns {
+				m.RowGroups[g].Columns[c].MetaData.Codec = id
+			}
+		}
+	})
 }
 
 // allocated returns the bytes the heap has allocated so far, without

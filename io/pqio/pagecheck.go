@@ -522,7 +522,7 @@ func checkDeltaByteArray(b []byte, limit int64) error {
 		}
 	}
 	if bound := max(maxPageRatio*int64(len(b)), pageRatioFloor); total > bound || total > maxPageBytes {
-		return fmt.Errorf("%w: delta byte arrays of %d bytes in a page of %d", table.ErrCorrupt, total, len(b))
+		return fmt.Errorf("%w: delta byte arrays of %d bytes in a page of %d bytes", table.ErrCorrupt, total, len(b))
 	}
 	return nil
 }

@@ -14,6 +14,7 @@ import (
 	"testing"
 
 	"github.com/andybalholm/brotli"
+	"github.com/apache/arrow/go/v17/arrow"
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/encoding/thrift"
 	"github.com/parquet-go/parquet-go/format"
@@ -111,11 +112,18 @@ func crcFile(t testing.TB, compression string) []byte {
 }
 
 // TestPageCRCWritten checks that every page the writer writes records the
-// CRC-32 (IEEE) of its stored bytes, the Parquet format's definition.
+// CRC-32 (IEEE) of its stored bytes, the Parquet format's definition, and
+// that Arrow's Parquet reader reads the file whole.
 func TestPageCRCWritten(t *testing.T) {
 	for _, comp := range []string{"snappy", "zstd", "none"} {
 		pages := 0
-		rebuild(t, crcFile(t, comp), func(g, c, p int, h *format.PageHeader, body []byte) []byte {
+		data := crcFile(t, comp)
+		rows := 0
+		arrowRead(t, data, "", nil, func(rec arrow.Record) { rows += int(rec.NumRows()) })
+		if rows != 3000 {
+			t.Fatalf("%s: Arrow's reader read %d rows, want 3000", comp, rows)
+		}
+		rebuild(t, data, func(g, c, p int, h *format.PageHeader, body []byte) []byte {
 			pages++
 			if h.CRC == 0 || uint32(h.CRC) != crc32.ChecksumIEEE(body) {
 				t.Errorf("%s: row group %d, column %d, page %d: CRC 0x%08x, bytes 0x%08x", comp, g, c, p, uint32(h.CRC), crc32.ChecksumIEEE(body))

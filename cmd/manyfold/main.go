@@ -71,7 +71,8 @@ FILE is CSV (optionally gzip or zstd compressed), Parquet or Arrow IPC; "-" read
 Run "manyfold COMMAND --help" for a command's flags.
 
 Exit codes: 0 ok, 1 unexpected failure, 2 usage, 3 unreadable input, 4 bad data,
-5 output not written, 6 mapping tables that do not fit the input.
+5 output not written, 6 mapping tables that do not fit the input, 130 and 143
+stopped by SIGINT or SIGTERM (temporary files removed).
 `
 
 type command struct {

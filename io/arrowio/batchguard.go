@@ -302,7 +302,7 @@ func (b *batchCheck) load(dt arrow.DataType, depth int) (n int64, bounded bool, 
 	case arrow.UnionType:
 		return b.union(dt, depth)
 	}
-	return 0, false, fmt.Errorf("type %s cannot be read", dt)
+	return 0, false, fmt.Errorf("type %s cannot be read", typeName(dt))
 }
 
 // unbounded counts the rows of a node that its buffers do not bound.
@@ -435,7 +435,7 @@ func (b *batchCheck) primitive(dt arrow.DataType) (int64, bool, error) {
 	}
 	fw, ok := dt.(arrow.FixedWidthDataType)
 	if !ok || fw.BitWidth() <= 0 {
-		return 0, false, fmt.Errorf("type %s has no fixed width", dt)
+		return 0, false, fmt.Errorf("type %s has no fixed width", typeName(dt))
 	}
 	return n, true, fits("values", size, comp, n, int64(fw.BitWidth()))
 }

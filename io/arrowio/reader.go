@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"strconv"
 
 	"github.com/apache/arrow/go/v17/arrow"
 	"github.com/apache/arrow/go/v17/arrow/array"
@@ -102,12 +103,22 @@ func kindOf(dt arrow.DataType) (table.Kind, error) {
 		case arrow.STRING, arrow.LARGE_STRING, arrow.BINARY, arrow.LARGE_BINARY:
 			return table.String, nil
 		}
-		return table.String, fmt.Errorf("dictionary of %s values is not supported (only text dictionaries are)", dt.ValueType)
+		return table.String, fmt.Errorf("dictionary of %s values is not supported (only text dictionaries are)", typeName(dt.ValueType))
 	case arrow.LIST, arrow.LARGE_LIST, arrow.FIXED_SIZE_LIST, arrow.LIST_VIEW, arrow.LARGE_LIST_VIEW,
 		arrow.STRUCT, arrow.MAP, arrow.SPARSE_UNION, arrow.DENSE_UNION:
-		return table.String, fmt.Errorf("nested type %s cannot be read; select other columns", dt)
+		return table.String, fmt.Errorf("nested type %s cannot be read; select other columns", typeName(dt))
 	}
-	return table.String, fmt.Errorf("type %s is not supported; select other columns", dt)
+	return table.String, fmt.Errorf("type %s is not supported; select other columns", typeName(dt))
+}
+
+// typeName is the text of an Arrow type for a message of one line: quoted
+// when a field name inside it holds characters that need escaping.
+func typeName(dt arrow.DataType) string {
+	s := dt.String()
+	if q := strconv.Quote(s); q[1:len(q)-1] != s {
+		return q
+	}
+	return s
 }
 
 func (r *reader) selectCols(cols []int) {
@@ -328,7 +339,7 @@ func (r *reader) convert(arr arrow.Array, st *colState, col *table.Column, name 
 	case *array.Dictionary:
 		return r.dictionary(a, st, col, n, name)
 	}
-	return fmt.Errorf("%s: column %q: type %s is not supported", r.name, name, arr.DataType())
+	return fmt.Errorf("%s: column %q: type %s is not supported", r.name, name, typeName(arr.DataType()))
 }
 
 // nullsOf returns the column's null flags, or nil when no row is null.
@@ -566,7 +577,7 @@ func (r *reader) dictionary(a *array.Dictionary, st *colState, col *table.Column
 	case *array.Uint64:
 		idx, bad = copyIndices(st, ix.Uint64Values(), col.Nulls, size)
 	default:
-		return fmt.Errorf("%s: column %q: dictionary index type %s is not supported", r.name, name, a.Indices().DataType())
+		return fmt.Errorf("%s: column %q: dictionary index type %s is not supported", r.name, name, typeName(a.Indices().DataType()))
 	}
 	if len(idx) != n {
 		return r.badBuffers(name, "indices shorter than the column")
@@ -652,7 +663,7 @@ func (r *reader) loadDict(st *colState, dd arrow.ArrayData, name string) error {
 	case arrow.LARGE_STRING, arrow.LARGE_BINARY:
 		offs, data, err = r.offsets64(&st.dictOffs, dd, n, name)
 	default:
-		err = fmt.Errorf("%s: column %q: dictionary of %s values is not supported", r.name, name, dd.DataType())
+		err = fmt.Errorf("%s: column %q: dictionary of %s values is not supported", r.name, name, typeName(dd.DataType()))
 	}
 	if err != nil {
 		return err

@@ -86,7 +86,7 @@ func runApply(args []string) error {
 			fmt.Fprint(os.Stderr, ",")
 		}
 	}
-	fmt.Fprintf(os.Stderr, "; wrote %s\n", of.out)
+	fmt.Fprintf(os.Stderr, "; wrote %s\n", outName(of.out))
 	return nil
 }
 

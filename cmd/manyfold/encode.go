@@ -263,7 +263,7 @@ func runEncode(args []string) (err error) {
 			fmt.Fprint(os.Stderr, ",")
 		}
 	}
-	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", of.out, *tables)
+	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", outName(of.out), *tables)
 	return nil
 }
 

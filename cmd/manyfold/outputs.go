@@ -67,3 +67,11 @@ func sameOutput(a, b string) bool {
 	}
 	return sameFile(a, b)
 }
+
+// outName names an output path in messages: "standard output" for "-".
+func outName(out string) string {
+	if out == tableio.Stdout {
+		return "standard output"
+	}
+	return out
+}

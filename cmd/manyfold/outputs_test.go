@@ -302,6 +302,9 @@ func TestOutStdout(t *testing.T) {
 		if err := cmd.Run(); err != nil {
 			t.Fatalf("--out - --format %s: %v: %s", f, err, stderr.String())
 		}
+		if !strings.Contains(stderr.String(), "; wrote standard output and ") {
+			t.Errorf("--format %s: the summary %q does not name standard output", f, stderr.String())
+		}
 		got := filepath.Join(dir, "got."+f)
 		os.WriteFile(got, stdout.Bytes(), 0o644)
 		if g := readTable(t, got); fmt.Sprint(g) != fmt.Sprint(want) {

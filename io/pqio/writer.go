@@ -16,6 +16,7 @@ import (
 	"github.com/parquet-go/parquet-go/encoding/thrift"
 	"github.com/parquet-go/parquet-go/format"
 
+	"manyfold/internal/guard"
 	"manyfold/io/table"
 )
 
@@ -765,11 +766,9 @@ func (w *writer) columns(f func(j int) error) error {
 					return
 				}
 				errs[j] = func() (err error) {
-					defer func() {
-						if p := recover(); p != nil {
-							err = fmt.Errorf("writing Parquet: %v", p)
-						}
-					}()
+					// A panic here is a bug of ours: an internal error
+					// (exit 1), not a failure to write the output.
+					defer guard.Catch(&err)
 					return f(j)
 				}()
 			}

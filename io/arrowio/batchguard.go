@@ -189,6 +189,7 @@ type batchCheck struct {
 	ratio              int64 // 0 for an uncompressed body
 	body               io.ReaderAt
 	free, maxFree      int64
+	scratch            []byte // a compressed buffer being read
 	column             string // the column being checked
 	over               error  // set when the rows no buffer bounds pass maxFree
 }
@@ -374,7 +375,110 @@ func (b *batchCheck) buffer() (size int64, compressed bool, err error) {
 	if u < 0 || u > b.ratio*(length-8) {
 		return 0, false, fmt.Errorf("a compressed buffer of %d bytes claims %d bytes uncompressed (at most %d)", length-8, u, b.ratio*(length-8))
 	}
+	if b.ratio == ratioZstd {
+		if err := b.zstdFrames(off+8, length-8, u); err != nil {
+			return 0, false, err
+		}
+	}
 	return u, true, nil
+}
+
+// zstdFrames reads the compressed bytes of a ZSTD buffer, of n bytes at
+// off, and checks the window of each frame: the decoder allocates it
+// before reading a block, so a frame header of a few bytes could claim
+// 512 MiB. A frame may ask for at most the buffer's uncompressed size u,
+// or maxZstdWindow (what streaming encoders declare whatever the size).
+func (b *batchCheck) zstdFrames(off, n, u int64) error {
+	b.scratch = resize(b.scratch, int(n))
+	if _, err := b.body.ReadAt(b.scratch, off); err != nil {
+		return fmt.Errorf("read a compressed buffer: %w", err)
+	}
+	limit := uint64(max(u, maxZstdWindow))
+	for f := b.scratch; len(f) > 0; {
+		window, size, ok := zstdFrame(f)
+		if !ok {
+			return nil // the decoder refuses what is not a frame
+		}
+		if window > limit {
+			return fmt.Errorf("a ZSTD frame asks for a window of %d bytes to make %d", window, u)
+		}
+		f = f[size:]
+	}
+	return nil
+}
+
+// maxZstdWindow is the largest ZSTD window allowed beyond a buffer's own
+// size: 8 MiB, the window of the default level of the common encoders.
+const maxZstdWindow = 8 << 20
+
+// zstdFrame returns the window size a ZSTD frame at the start of f asks for
+// (zero for a skippable frame) and the frame's length, following the frame
+// format of RFC 8878 section 3.1. ok is false when f holds no complete
+// frame header.
+func zstdFrame(f []byte) (window uint64, size int, ok bool) {
+	le := binary.LittleEndian
+	if len(f) < 8 {
+		return 0, 0, false
+	}
+	if magic := le.Uint32(f); magic&0xfffffff0 == 0x184d2a50 { // skippable
+		n := int64(le.Uint32(f[4:]))
+		if n > int64(len(f)-8) {
+			return 0, 0, false
+		}
+		return 0, 8 + int(n), true
+	} else if magic != 0xfd2fb528 {
+		return 0, 0, false
+	}
+	fhd := f[4]
+	single := fhd&0x20 != 0
+	pos := 5
+	if !single {
+		exp, mant := uint64(f[pos]>>3), uint64(f[pos]&7)
+		base := uint64(1) << (10 + exp)
+		window = base + base/8*mant
+		pos++
+	}
+	pos += [4]int{0, 1, 2, 4}[fhd&3] // dictionary id
+	fcsLen := [4]int{0, 2, 4, 8}[fhd>>6]
+	if single && fcsLen == 0 {
+		fcsLen = 1
+	}
+	if pos+fcsLen > len(f) {
+		return 0, 0, false
+	}
+	if single {
+		switch fcsLen {
+		case 1:
+			window = uint64(f[pos])
+		case 2:
+			window = uint64(le.Uint16(f[pos:])) + 256
+		case 4:
+			window = uint64(le.Uint32(f[pos:]))
+		case 8:
+			window = le.Uint64(f[pos:])
+		}
+	}
+	pos += fcsLen
+	for last := false; !last; {
+		if pos+3 > len(f) {
+			return window, len(f), true // cut: the decoder will say so
+		}
+		h := int(f[pos]) | int(f[pos+1])<<8 | int(f[pos+2])<<16
+		pos += 3
+		last = h&1 == 1
+		switch (h >> 1) & 3 {
+		case 1: // RLE: one byte
+			pos++
+		case 3: // reserved
+			return 0, 0, false
+		default: // raw or compressed: the block's bytes
+			pos += h >> 3
+		}
+	}
+	if fhd&4 != 0 {
+		pos += 4 // checksum
+	}
+	return window, min(pos, len(f)), true
 }
 
 // fits checks that a buffer of size bytes holds n values of bits bits, and

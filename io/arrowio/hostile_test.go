@@ -91,6 +91,7 @@ type patch struct {
 	nulls    map[int]int64    // node index -> null count
 	prefixes map[int]int64    // buffer index -> uncompressed length prefix
 	buffers  map[int][2]int64 // buffer index -> (offset, length)
+	payload  map[int][]byte   // buffer index -> bytes after the length prefix
 }
 
 // apply patches every batch message of data in place (the first one only
@@ -141,6 +142,13 @@ func (p patch) apply(t *testing.T, data []byte, first bool) {
 				t.Fatalf("buffer %d is not compressed", i)
 			}
 			binary.LittleEndian.PutUint64(m.body[off:], uint64(u))
+		}
+		for i, pl := range p.payload {
+			off := binary.LittleEndian.Uint64(m.meta[bstart+i*bufferSize:])
+			if binary.LittleEndian.Uint64(m.meta[bstart+i*bufferSize+8:]) < 8+uint64(len(pl)) {
+				t.Fatalf("buffer %d is shorter than the payload", i)
+			}
+			copy(m.body[off+8:], pl)
 		}
 		done++
 		if first {
@@ -324,6 +332,10 @@ func TestHostileLengths(t *testing.T) {
 			patch{length: keep, prefixes: map[int]int64{2: 1 << 33}}, []string{"record batch 1", `column "postcode"`}},
 		{"lz4 dictionary buffer claiming 8 GiB", dictTextSchema, 1000, []ipc.Option{ipc.WithLZ4()},
 			patch{dict: true, length: keep, prefixes: map[int]int64{1: 1 << 33}}, []string{"dictionary batch 1", `column "route"`}},
+		{"zstd frame asking for a window of 512 MiB", intSchema, 1000, []ipc.Option{ipc.WithZstd()},
+			patch{length: keep, prefixes: map[int]int64{1: 8000}, payload: map[int][]byte{1: zstdRLE(19<<3, 8000)}}, []string{"record batch 1", `column "parcels"`, "window"}},
+		{"zstd frame with a content size of 512 MiB", intSchema, 1000, []ipc.Option{ipc.WithZstd()},
+			patch{length: keep, prefixes: map[int]int64{1: 8000}, payload: map[int][]byte{1: zstdSingle(1<<29, 8000)}}, []string{"record batch 1", `column "parcels"`, "window"}},
 		{"compressed buffer claiming a negative length", intSchema, 1000, []ipc.Option{ipc.WithZstd()},
 			patch{length: keep, prefixes: map[int]int64{1: -2}}, []string{"record batch 1", `column "parcels"`}},
 	}
@@ -334,6 +346,9 @@ func TestHostileLengths(t *testing.T) {
 				data := smallArrow(t, tc.schema, tc.rows, stream, tc.opts...)
 				tc.patch.apply(t, data, true)
 				err, alloc := readBounded(t, data, "hostile.arrow")
+				if alloc > memoryBound {
+					t.Errorf("reading %d bytes allocated %d MB", len(data), alloc>>20)
+				}
 				if !errors.Is(err, table.ErrCorrupt) {
 					t.Fatalf("error %v, want ErrCorrupt", err)
 				}
@@ -346,12 +361,25 @@ func TestHostileLengths(t *testing.T) {
 				if strings.Contains(err.Error(), "\n") {
 					t.Errorf("error %q spans lines", err)
 				}
-				if alloc > memoryBound {
-					t.Errorf("reading %d bytes allocated %d MB", len(data), alloc>>20)
-				}
 			})
 		}
 	}
+}
+
+// zstdRLE is a ZSTD frame with the window descriptor wd whose one block
+// repeats a zero byte n times (RFC 8878, 3.1.1).
+func zstdRLE(wd byte, n int) []byte {
+	h := 1 | 1<<1 | n<<3 // last block, RLE, size
+	return []byte{0x28, 0xb5, 0x2f, 0xfd, 0x00, wd, byte(h), byte(h >> 8), byte(h >> 16), 0}
+}
+
+// zstdSingle is a single-segment ZSTD frame claiming a content size of
+// size bytes, whose one block repeats a zero byte n times.
+func zstdSingle(size uint32, n int) []byte {
+	h := 1 | 1<<1 | n<<3
+	f := []byte{0x28, 0xb5, 0x2f, 0xfd, 0x20 | 2<<6}
+	f = binary.LittleEndian.AppendUint32(f, size)
+	return append(f, byte(h), byte(h>>8), byte(h>>16), 0)
 }
 
 // TestLengthsWithinBounds reads valid files near the limits: a null-only

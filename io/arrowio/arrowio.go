@@ -29,8 +29,9 @@
 // long as its batch; rows that no buffer holds (null columns, zero-width
 // binary, structs without nulls) may total 2^20 plus 64 per byte of the
 // message; a compressed buffer may claim at most 256 (LZ4) or 32768 (ZSTD)
-// times its compressed bytes, the most either codec expands a byte to, and
-// a fixed-width one no more than its rows need (rounded up to 64 bytes); the
+// times its compressed bytes, the most either codec expands a byte to, a
+// fixed-width one no more than its rows need (rounded up to 64 bytes), and a
+// ZSTD frame a window of at most the buffer's size or 8 MiB; the
 // blocks of a file's footer may not overlap; and the text of a view column
 // is bounded by 64 times its buffers' bytes plus 1 MiB. A batch that breaks
 // one of these is an error wrapping table.ErrCorrupt that names the batch

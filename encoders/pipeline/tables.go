@@ -21,8 +21,10 @@ import (
 )
 
 // FormatVersion is the version of the mapping-table layout. Tables of
-// another version are refused.
-const FormatVersion = 1
+// another version are refused with a message to refit them. 2: the
+// manifest records each table's checksum and the target's origin, and a
+// table of a column with a column prior has parent_row.
+const FormatVersion = 2
 
 // Version is manyfold's version, recorded in every manifest.
 const Version = "0.1.0"

@@ -752,3 +752,27 @@ func TestHostileCodecs(t *testing.T) {
 		})
 	}
 }
+
+// TestColumnNames: a column without a name, or two columns of one name,
+// are bad data (as in a CSV header): no column could be named or written
+// out. Found by FuzzSource (testdata/fuzz/FuzzSource/176db0de2e4d363c).
+func TestColumnNames(t *testing.T) {
+	data := crcFile(t, "none")
+	same := func(_, _, _ int, _ *format.PageHeader, body []byte) []byte { return body }
+	for name, tc := range map[string]struct {
+		md   func(*format.FileMetaData)
+		want string
+	}{
+		"empty": {func(m *format.FileMetaData) { m.Schema[2].Name = "" }, "names.parquet: column 2 has an empty name"},
+		"twice": {func(m *format.FileMetaData) { m.Schema[3].Name = m.Schema[1].Name }, `names.parquet: column "s": named twice, columns 1 and 3`},
+	} {
+		t.Run(name, func(t *testing.T) {
+			bad := rebuild(t, data, same, tc.md)
+			_, err := openReaderAt("names.parquet", bytes.NewReader(bad), int64(len(bad)))
+			var de *table.DataError
+			if !errors.As(err, &de) || err.Error() != tc.want {
+				t.Fatalf("open: %v, want a DataError %q", err, tc.want)
+			}
+		})
+	}
+}

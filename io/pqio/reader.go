@@ -285,12 +285,33 @@ func (r *Reader) readSchema() error {
 		r.leaves = append(r.leaves, l)
 		r.full.Fields = append(r.full.Fields, table.Field{Name: l.name, Kind: l.kind, Nullable: l.maxDef > 0})
 	}
+	if err := r.checkNames(); err != nil {
+		return err
+	}
 	if len(r.leaves) == 0 {
 		if len(r.nested) > 0 {
 			return &noFlatError{fmt.Sprintf("%s: no flat columns: its %d columns are all nested (%s); manyfold reads flat columns only",
 				r.path, len(r.nested), describeNested(r.nested))}
 		}
 		return &noFlatError{fmt.Sprintf("%s: the file has no columns", r.path)}
+	}
+	return nil
+}
+
+// checkNames refuses top-level columns with an empty name or a name
+// another one has, as the CSV reader refuses such a header: no column
+// could be named on the command line or written out.
+func (r *Reader) checkNames() error {
+	seen := map[string]int{}
+	for i, col := range r.pf.Root().Columns() {
+		name := col.Name()
+		if name == "" {
+			return &table.DataError{File: r.path, Err: fmt.Errorf("column %d has an empty name", i+1)}
+		}
+		if j, ok := seen[name]; ok {
+			return &table.DataError{File: r.path, Column: name, Err: fmt.Errorf("named twice, columns %d and %d", j+1, i+1)}
+		}
+		seen[name] = i
 	}
 	return nil
 }

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"hash/crc32"
 	"io"
+	"math"
 	"math/bits"
 
 	"github.com/andybalholm/brotli"
@@ -45,6 +46,24 @@ const (
 	// bit-packed groups).
 	runSlack = 1 << 10
 )
+
+// checkRowCounts checks that the footer's row count is the sum of its row
+// groups', none negative: the reader counts rows by row group, a writer
+// copying chunks by the file's count.
+func checkRowCounts(m *format.FileMetaData) error {
+	var sum int64
+	for g := range m.RowGroups {
+		n := m.RowGroups[g].NumRows
+		if n < 0 || n > math.MaxInt64-sum {
+			return fmt.Errorf("%w: row group %d has %d rows", table.ErrCorrupt, g+1, n)
+		}
+		sum += n
+	}
+	if sum != m.NumRows {
+		return fmt.Errorf("%w: the footer records %d rows, its row groups %d", table.ErrCorrupt, m.NumRows, sum)
+	}
+	return nil
+}
 
 // readPageHeader decodes the page header at pos of ra (which ends at end),
 // growing *buf as needed; it returns the header and its encoded length.

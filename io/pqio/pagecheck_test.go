@@ -776,3 +776,23 @@ func TestColumnNames(t *testing.T) {
 		})
 	}
 }
+
+// TestRowCounts: a footer whose row count is not the sum of its row
+// groups' is corrupt, for the reader and for Source (a copy wrote the
+// footer's count of rows from row groups holding fewer). Found by
+// FuzzSource (testdata/fuzz/FuzzSource/b70c0d118167655e).
+func TestRowCounts(t *testing.T) {
+	bad := rebuild(t, crcFile(t, "none"), func(_, _, _ int, _ *format.PageHeader, body []byte) []byte { return body },
+		func(m *format.FileMetaData) { m.NumRows = 5 })
+	const want = "file is corrupt or truncated: the footer records 5 rows, its row groups 3000"
+	if _, err := openReaderAt("rows.parquet", bytes.NewReader(bad), int64(len(bad))); !errors.Is(err, table.ErrCorrupt) || err.Error() != "rows.parquet: "+want {
+		t.Fatalf("open: %v", err)
+	}
+	path := filepath.Join(t.TempDir(), "rows.parquet")
+	if err := os.WriteFile(path, bad, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := OpenSource(path); !errors.Is(err, table.ErrCorrupt) || !strings.HasSuffix(err.Error(), want) {
+		t.Fatalf("OpenSource: %v", err)
+	}
+}

@@ -188,6 +188,9 @@ func openReaderAt(name string, ra io.ReaderAt, size int64) (r *Reader, err error
 				name, table.ErrCorrupt, n, len(pf.Schema().Columns()))
 		}
 	}
+	if err := checkRowCounts(pf.Metadata()); err != nil {
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
 	all := make([]int, len(r.leaves))
 	for i := range all {
 		all[i] = i

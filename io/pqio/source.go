@@ -44,6 +44,10 @@ func OpenSource(path string) (*Source, error) {
 		return nil, fmt.Errorf("%s: %w: %v", path, table.ErrCorrupt, err)
 	}
 	s := &Source{name: path, f: f, size: size, meta: pf.Metadata(), cols: map[string]*topColumn{}}
+	if err := checkRowCounts(s.meta); err != nil {
+		f.Close()
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
 	// Every top-level column can be copied, a nested one (a list, a map,
 	// a struct) as all its leaf columns and its schema subtree.
 	tops, err := topColumns(s.meta.Schema)

@@ -28,8 +28,9 @@ import (
 //     structs and fixed-size lists without nulls, run-end encoded arrays)
 //     may hold at most maxFreeRows rows plus freeRowsPerByte rows a byte of
 //     the message (metadata and body), summed over the batch;
-//   - a compressed buffer may claim at most maxRatio times its compressed
-//     bytes (the most the codec can expand a byte to), a fixed-width
+//   - a compressed buffer may claim at most ratioLZ4 or ratioZstd times
+//     its compressed bytes (the most the codec can expand a byte to), a
+//     fixed-width
 //     buffer no more than its rows need, rounded up to the format's 64-byte
 //     alignment, and each ZSTD frame a window of at most the buffer's size
 //     or maxZstdWindow.

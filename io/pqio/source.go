@@ -38,7 +38,7 @@ func OpenSource(path string) (*Source, error) {
 		f.Close()
 		return nil, err
 	}
-	pf, err := parquet.OpenFile(f, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true), parquet.ReadBufferSize(4096))
+	pf, err := openFooter(f, size)
 	if err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w: %v", path, table.ErrCorrupt, err)
@@ -59,6 +59,17 @@ func OpenSource(path string) (*Source, error) {
 		s.cols[tops[i].name] = &tops[i]
 	}
 	return s, nil
+}
+
+// openFooter opens the Parquet file f of the given size, turning a panic
+// of the decoder on a footer it does not expect into an error.
+func openFooter(f *os.File, size int64) (pf *parquet.File, err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			pf, err = nil, fmt.Errorf("reading the footer: %v", p)
+		}
+	}()
+	return parquet.OpenFile(f, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true), parquet.ReadBufferSize(4096))
 }
 
 // Close closes the file.

@@ -30,10 +30,9 @@ import (
 //     the message (metadata and body), summed over the batch;
 //   - a compressed buffer may claim at most ratioLZ4 or ratioZstd times
 //     its compressed bytes (the most the codec can expand a byte to), a
-//     fixed-width
-//     buffer no more than its rows need, rounded up to the format's 64-byte
-//     alignment, and each ZSTD frame a window of at most the buffer's size
-//     or maxZstdWindow.
+//     fixed-width buffer no more than its rows need, rounded up to the
+//     format's 64-byte alignment, and each ZSTD frame a window of at most
+//     the buffer's size or maxZstdWindow.
 const (
 	maxFreeRows     = 1 << 20
 	freeRowsPerByte = 64

@@ -268,24 +268,17 @@ func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int
 // copyPages copies the pages of the byte range [start, start+size) to w as
 // they are, after checking each page's CRC.
 func (s *Source) copyPages(w io.Writer, start, size int64, cid format.CompressionCodec) error {
-	var raw []byte
-	hdr := make([]byte, 0, 256)
+	var page []byte
 	return s.walk(start, size, cid, func(h *format.PageHeader, hlen int, pos int64) error {
-		hdr = grow(hdr, hlen)
-		raw = grow(raw, int(h.CompressedPageSize))
-		if _, err := s.f.ReadAt(hdr, pos); err != nil {
+		// The header and the body in one read.
+		page = grow(page, hlen+int(h.CompressedPageSize))
+		if _, err := s.f.ReadAt(page, pos); err != nil {
 			return err
 		}
-		if _, err := s.f.ReadAt(raw, pos+int64(hlen)); err != nil {
+		if err := checkCRC(h, page[hlen:]); err != nil {
 			return err
 		}
-		if err := checkCRC(h, raw); err != nil {
-			return err
-		}
-		if _, err := w.Write(hdr); err != nil {
-			return err
-		}
-		_, err := w.Write(raw)
+		_, err := w.Write(page)
 		return err
 	})
 }

@@ -43,12 +43,12 @@ func runApply(args []string) error {
 		return err
 	}
 	start := time.Now()
-	reserveHeap(file, *tables)
-	m, err := pipeline.LoadTables(*tables)
+	ropts, err := in.options() // every flag before any data is read
 	if err != nil {
 		return err
 	}
-	ropts, err := in.options()
+	reserveHeap(file, *tables)
+	m, err := pipeline.LoadTables(*tables)
 	if err != nil {
 		return err
 	}

@@ -53,3 +53,39 @@ func TestTopKHugeK(t *testing.T) {
 		t.Errorf("route_topk = %v, want 1,2,1,1,2,1 (R1 has the most rows)", got)
 	}
 }
+
+// TestReviewEdges: cases found in review. A merge of shards whose origins
+// differ, with a level sitting at the receiver's origin, once wrote a sum
+// of squares a little below 0, which the loader then refused; a
+// non-finite smoothing weight wrote tables the loader refused; apply read
+// the tables before checking its flags; a target of 1e200 overflowed the
+// sums of squares.
+func TestReviewEdges(t *testing.T) {
+	dir := t.TempDir()
+	a := writeFile(t, dir, "a.csv", "k,y\nc,1.0\nc,1.0\nc,1.0\nc,1.0\n")
+	b := writeFile(t, dir, "b.csv", "k,y\nb,1.1\nc,1.0\nc,1.0\nc,1.0\nc,1.0\nc,1.0\nc,1.0\n")
+	for _, f := range []string{a, b} {
+		mustRun(t, "encode", f, "--target", "y", "--task", "regression", "--columns", "k", "--folds", "2",
+			"--out", f+".enc.csv", "--tables", f+".t")
+	}
+	merged := filepath.Join(dir, "merged")
+	mustRun(t, "merge", a+".t", b+".t", "--tables", merged)
+	mustRun(t, "apply", a, "--tables", merged, "--out", filepath.Join(dir, "app.csv"))
+
+	cases := []struct {
+		args []string
+		code int
+		want string
+	}{
+		{[]string{"encode", a, "--target", "y", "--columns", "k", "--smoothing", "m=Inf", "--out", filepath.Join(dir, "o1.csv"), "--tables", filepath.Join(dir, "t1")}, exitUsage, "m must be a finite number"},
+		{[]string{"encode", a, "--target", "y", "--columns", "k", "--smoothing", "blend=NaN,1", "--out", filepath.Join(dir, "o2.csv"), "--tables", filepath.Join(dir, "t2")}, exitUsage, "finite K"},
+		{[]string{"apply", a, "--tables", filepath.Join(dir, "no-such-tables"), "--out", filepath.Join(dir, "o3.csv"), "--max-field-bytes", "0"}, exitUsage, "--max-field-bytes 0"},
+		{[]string{"encode", writeFile(t, dir, "huge.csv", "k,y\nc,1\nd,1e200\nc,2\n"), "--target", "y", "--task", "regression", "--columns", "k", "--folds", "2", "--out", filepath.Join(dir, "o4.csv"), "--tables", filepath.Join(dir, "t4")}, exitData, "overflow"},
+	}
+	for _, c := range cases {
+		res := runCLI(t, c.args...)
+		if res.code != c.code || !strings.Contains(res.stderr, c.want) {
+			t.Errorf("%s: exit %d, %q; want exit %d naming %q", strings.Join(c.args, " "), res.code, res.stderr, c.code, c.want)
+		}
+	}
+}

@@ -586,11 +586,13 @@ type Smoothing struct {
 	M    float64 // m-estimate weight (Kind "m")
 	K, F float64 // blend midpoint and steepness (Kind "blend")
 	// Interior keeps a class rate strictly inside (0, 1), for a log-odds
-	// output: where a level's own rate would enter with weight 1 (the
-	// blend's weight rounds to 1 for large n; m = 0), it enters as
+	// output: in the blend (whose weight rounds to 1 for large n) and in
+	// an m-estimate with m = 0, a level's own rate enters as
 	// (s + 1/2)/(n + 1), the Haldane-Anscombe correction (Haldane, Annals
 	// of Human Genetics 20, 1956; Anscombe, Biometrika 43, 1956), which
-	// lies strictly between 0 and 1 for every n >= 0 and s in [0, n].
+	// lies strictly between 0 and 1 for every n >= 0 and s in [0, n]. (Only
+	// where the weight is exactly 1 would do, but a weight of 1 - 1e-16
+	// would then leave 1e-16 of the prior: a log-odds of -37.)
 	Interior bool
 }
 
@@ -1199,7 +1201,10 @@ func (s *Stats) addLevel(d int, o *Stats, l int) {
 			}
 			n := float64(oc[f])
 			ds[f] += os[f] + n*e
-			dq[f] += oq[f] + 2*e*os[f] + n*e*e
+			// A sum of squares: the expansion's terms can cancel to a
+			// little below 0 by rounding when the values sit at the
+			// receiver's origin.
+			dq[f] = max(dq[f]+oq[f]+2*e*os[f]+n*e*e, 0)
 		}
 		return
 	}

@@ -82,7 +82,14 @@ func (ev *evaluator) encode(cs *colState, cand Candidate, f int) encoding {
 	fitOn := func(use []bool) fit {
 		var r fit
 		for o := 0; o < outs; o++ {
-			r.ft = append(r.ft, st.FitMask(o, pos, cand.Smoothing, use, nil, cs.order))
+			fs := st
+			if par != nil {
+				// m within parents, as encode estimates it (Stats.Parents).
+				c := *st
+				c.Parents = par.of
+				fs = &c
+			}
+			r.ft = append(r.ft, fs.FitMask(o, pos, cand.Smoothing, use, nil, cs.order))
 			if par != nil {
 				r.pft = append(r.pft, par.st.FitMask(o, pos, cand.Smoothing, use, nil, par.order))
 			}

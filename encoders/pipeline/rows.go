@@ -196,6 +196,11 @@ type targetReader struct {
 	texts classMemo[string]
 }
 
+// MaxTarget bounds the magnitude of a regression target: the statistics
+// hold sums of squares of targets (less the origin), and a square must stay
+// finite.
+const MaxTarget = 1e150
+
 // newTargetReader returns the reader of the target column name at position
 // col of kind kind: the one constructor of fit, encode and compare, so all
 // of them read the same column the same way. task is "" (decided later
@@ -281,6 +286,9 @@ func (tr *targetReader) read(b *table.Batch) error {
 			}
 			if math.IsNaN(v) || math.IsInf(v, 0) {
 				return tr.dataErr(b, i, fmt.Errorf("target is %v; NaN and infinite targets are refused (leave the cell empty to mark it unknown)", v))
+			}
+			if math.Abs(v) > MaxTarget {
+				return tr.dataErr(b, i, fmt.Errorf("target is %v; a regression target beyond ±%g would overflow its sums of squares (rescale it)", v, MaxTarget))
 			}
 			tr.vals[i] = v
 		}

@@ -6,6 +6,7 @@ package pipeline
 
 import (
 	"fmt"
+	"math"
 	"slices"
 	"strings"
 
@@ -82,14 +83,14 @@ func ParseSmoothing(s string) (colstats.Smoothing, error) {
 		return colstats.Smoothing{Kind: "auto"}, nil
 	case strings.HasPrefix(s, "m="):
 		var m float64
-		if _, err := fmt.Sscanf(s[2:], "%g", &m); err != nil || m < 0 || m != m {
-			return colstats.Smoothing{}, fmt.Errorf("--smoothing %s: m must be a number >= 0", s)
+		if _, err := fmt.Sscanf(s[2:], "%g", &m); err != nil || !(m >= 0) || math.IsInf(m, 1) {
+			return colstats.Smoothing{}, fmt.Errorf("--smoothing %s: m must be a finite number >= 0", s)
 		}
 		return colstats.Smoothing{Kind: "m", M: m}, nil
 	case strings.HasPrefix(s, "blend="):
 		var k, f float64
-		if _, err := fmt.Sscanf(s[6:], "%g,%g", &k, &f); err != nil || f < 0 {
-			return colstats.Smoothing{}, fmt.Errorf("--smoothing %s: want blend=K,F with F >= 0", s)
+		if _, err := fmt.Sscanf(s[6:], "%g,%g", &k, &f); err != nil || math.IsNaN(k) || math.IsInf(k, 0) || !(f >= 0) || math.IsInf(f, 1) {
+			return colstats.Smoothing{}, fmt.Errorf("--smoothing %s: want blend=K,F with finite K and F >= 0", s)
 		}
 		return colstats.Smoothing{Kind: "blend", K: k, F: f}, nil
 	}

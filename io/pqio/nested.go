@@ -54,6 +54,9 @@ func topColumns(sch []format.SchemaElement) ([]topColumn, error) {
 	var cols []topColumn
 	pos, leaves := 1, 0
 	for k := 0; k < int(n); k++ {
+		if pos >= len(sch) { // the children before took every element
+			return nil, fmt.Errorf("%w: the schema's root has %d children, but its elements end after %d", table.ErrCorrupt, n, k)
+		}
 		t := topColumn{name: sch[pos].Name, first: leaves}
 		end, err := t.walk(sch, pos, nil, 0, 0)
 		if err != nil {

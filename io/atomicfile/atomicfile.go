@@ -69,12 +69,26 @@ func (f *File) Write(b []byte) (int, error) {
 
 // Create opens a temporary file beside path, or path itself when it is
 // written in place (see the package comment). The directory must exist.
+//
+// /dev/stdout, /dev/fd/1 and /proc/self/fd/1 are standard output itself
+// (Stdout), written at its offset, so that a shell's ">> log" appends; a
+// target that exists and is not a regular file (a FIFO, a device), or a
+// symbolic link under /dev or /proc, is written in place; a symbolic link
+// elsewhere is resolved, even when the file it names does not exist yet,
+// and that file is replaced.
 func Create(path string) (*File, error) {
+	if isStdout(path) {
+		f := Stdout()
+		f.path = path
+		return f, nil
+	}
 	fi, err := os.Stat(path)
 	switch {
 	case err == nil && fi.IsDir():
 		return nil, fmt.Errorf("create %s: is a directory", path)
-	case err == nil && !fi.Mode().IsRegular(), isSystemPath(path):
+	case err == nil && !fi.Mode().IsRegular():
+		return openInPlace(path)
+	case isSystemPath(path) && isSymlink(path):
 		return openInPlace(path)
 	}
 	target := path
@@ -86,6 +100,8 @@ func Create(path string) (*File, error) {
 			target = t
 		}
 		perm, keepPerm = fi.Mode().Perm(), true
+	} else if t, ok := danglingTarget(path); ok {
+		target = t
 	}
 	dir, base := filepath.Split(target)
 	if dir == "" {
@@ -106,6 +122,38 @@ func Create(path string) (*File, error) {
 	return &File{File: f, path: path, target: target, tmp: tmp}, nil
 }
 
+// isStdout reports whether path names this process's standard output.
+func isStdout(path string) bool {
+	switch filepath.Clean(path) {
+	case "/dev/stdout", "/dev/fd/1", "/proc/self/fd/1":
+		return true
+	}
+	return false
+}
+
+// isSymlink reports whether path itself is a symbolic link.
+func isSymlink(path string) bool {
+	fi, err := os.Lstat(path)
+	return err == nil && fi.Mode()&os.ModeSymlink != 0
+}
+
+// danglingTarget returns the path that the symbolic link path names when
+// that file does not exist (yet), so that the file is created there and
+// the link kept.
+func danglingTarget(path string) (string, bool) {
+	if !isSymlink(path) {
+		return "", false
+	}
+	t, err := os.Readlink(path)
+	if err != nil {
+		return "", false
+	}
+	if !filepath.IsAbs(t) {
+		t = filepath.Join(filepath.Dir(path), t)
+	}
+	return t, true
+}
+
 // Stdout returns a File that writes to standard output, in place; Commit
 // and Abort leave it open. Errors name it "stdout".
 func Stdout() *File {
@@ -123,11 +171,14 @@ func isSystemPath(path string) bool {
 	return strings.HasPrefix(abs, "/dev/") || strings.HasPrefix(abs, "/proc/")
 }
 
-// openInPlace opens an existing target that is written in place.
+// openInPlace opens an existing target that is written in place: a FIFO
+// or a device as it is; a link under /dev or /proc to a regular file (a
+// descriptor the shell opened) at its end, never truncated, as other
+// output may share it.
 func openInPlace(path string) (*File, error) {
 	flag := os.O_WRONLY
 	if fi, err := os.Stat(path); err == nil && fi.Mode().IsRegular() {
-		flag |= os.O_TRUNC
+		flag |= os.O_APPEND
 	}
 	f, err := os.OpenFile(path, flag, 0)
 	if err != nil {

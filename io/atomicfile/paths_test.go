@@ -1,0 +1,63 @@
+package atomicfile
+
+import (
+	"os"
+	"path/filepath"
+	"testing"
+)
+
+// TestPathsInReview: cases found in review of the in-place rules.
+// /dev/stdout is standard output itself (re-opening it truncated the file
+// a shell's ">>" had opened); a dangling symbolic link as the target keeps
+// the link and creates the file it names; a new file under /dev (tmpfs at
+// /dev/shm) is created by the usual temporary file and rename.
+func TestPathsInReview(t *testing.T) {
+	for _, p := range []string{"/dev/stdout", "/dev/fd/1", "/proc/self/fd/1"} {
+		f, err := Create(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if f.File != os.Stdout || !f.inPlace {
+			t.Errorf("%s: not standard output itself", p)
+		}
+		if err := f.Commit(); err != nil {
+			t.Fatal(err)
+		}
+	}
+
+	dir := t.TempDir()
+	link := filepath.Join(dir, "out.csv")
+	if err := os.Symlink("missing.csv", link); err != nil {
+		t.Fatal(err)
+	}
+	f, err := Create(link)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.Write([]byte("a\n"))
+	if err := f.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	if fi, err := os.Lstat(link); err != nil || fi.Mode()&os.ModeSymlink == 0 {
+		t.Errorf("the link %s was replaced by a file", link)
+	}
+	if b, err := os.ReadFile(filepath.Join(dir, "missing.csv")); err != nil || string(b) != "a\n" {
+		t.Errorf("the file the link names holds %q, %v", b, err)
+	}
+
+	if fi, err := os.Stat("/dev/shm"); err == nil && fi.IsDir() {
+		p := filepath.Join("/dev/shm", filepath.Base(dir)+".csv")
+		defer os.Remove(p)
+		f, err := Create(p)
+		if err != nil {
+			t.Fatalf("a new file under /dev/shm: %v", err)
+		}
+		f.Write([]byte("b\n"))
+		if err := f.Commit(); err != nil {
+			t.Fatal(err)
+		}
+		if b, _ := os.ReadFile(p); string(b) != "b\n" {
+			t.Errorf("%s holds %q", p, b)
+		}
+	}
+}

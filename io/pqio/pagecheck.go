@@ -112,7 +112,8 @@ func pageCRC(page []byte) int32 { return int32(crc32.ChecksumIEEE(page)) }
 
 // zstdPages decodes zstd pages with a bound on the memory a frame may
 // claim.
-var zstdPages, _ = zstd.NewReader(nil, zstd.WithDecoderConcurrency(1), zstd.WithDecoderMaxMemory(maxPageBytes))
+var zstdPages, _ = zstd.NewReader(nil, zstd.WithDecoderConcurrency(1), zstd.WithDecoderMaxMemory(maxPageBytes),
+	zstd.WithDecodeAllCapLimit(true))
 
 // checkSizes checks a page header's sizes against the limits above and
 // the bytes left in its chunk.
@@ -123,10 +124,22 @@ func checkSizes(h *format.PageHeader, codecID format.CompressionCodec, left int6
 		return fmt.Errorf("%w: negative page size", table.ErrCorrupt)
 	case c > left:
 		return fmt.Errorf("%w: page of %d bytes runs past its column chunk (%d bytes left)", table.ErrCorrupt, c, left)
-	case codecID != format.Uncompressed && (u > maxPageBytes || u > max(maxPageRatio*c, pageRatioFloor)):
+	case codecID != format.Uncompressed && (u > maxPageBytes || u > max(pageRatio(codecID)*c, pageRatioFloor)):
 		return fmt.Errorf("%w: page declares %d bytes uncompressed from %d compressed", table.ErrCorrupt, u, c)
 	}
 	return nil
+}
+
+// pageRatio returns the largest ratio of uncompressed to compressed size
+// a page of the codec may declare past pageRatioFloor: maxPageRatio, or
+// 2^15 for zstd and Brotli, whose run-length blocks compress a repeated
+// value far beyond deflate's ratio (a 32 MiB text of one byte is a few KB
+// of zstd).
+func pageRatio(codecID format.CompressionCodec) int64 {
+	if codecID == format.Zstd || codecID == format.Brotli {
+		return 1 << 15
+	}
+	return maxPageRatio
 }
 
 // decompress decompresses a page body of the given codec into dst, and
@@ -147,7 +160,10 @@ func decompress(codecID format.CompressionCodec, dst, src []byte, limit int) ([]
 		}
 		out, err = s2.Decode(dst[:cap(dst)], src)
 	case format.Zstd:
-		out, err = zstdPages.DecodeAll(src, dst[:0])
+		// At most limit+1 bytes (the decoder stops at the buffer's
+		// capacity), so a frame cannot make it allocate more than the
+		// header declares.
+		out, err = zstdPages.DecodeAll(src, grow(dst, limit+1)[:0])
 	case format.Gzip:
 		var zr io.Reader
 		if zr, err = gzip.NewReader(bytes.NewReader(src)); err == nil {
@@ -348,7 +364,9 @@ func (g *pageGuard) keep(body []byte) {
 }
 
 // checkCount checks a data page's value count against the row group and
-// the page's size.
+// the page's size as stored (compressed): bounding it by the decompressed
+// size would let a few hundred bytes of zstd that decompress to 16 MiB
+// claim 2^27 values, for which the decoder sizes its arrays.
 func (g *pageGuard) checkCount(n int64, size int) error {
 	if n < 0 || n > g.rows {
 		return fmt.Errorf("%w: page declares %d values in a row group of %d rows", table.ErrCorrupt, n, g.rows)
@@ -368,7 +386,7 @@ func (g *pageGuard) checkV1(h *format.PageHeader, dp format.DataPageHeader) erro
 	}
 	g.keep(body)
 	n := int64(dp.NumValues)
-	if err := g.checkCount(n, len(body)); err != nil {
+	if err := g.checkCount(n, len(g.raw)); err != nil {
 		return err
 	}
 	vals := body
@@ -411,7 +429,7 @@ func (g *pageGuard) checkV2(h *format.PageHeader, dp format.DataPageHeaderV2) er
 		g.keep(vals)
 	}
 	n := int64(dp.NumValues)
-	if err := g.checkCount(n, len(levels)+len(vals)); err != nil {
+	if err := g.checkCount(n, len(g.raw)); err != nil {
 		return err
 	}
 	if nn := int64(dp.NumNulls); nn < 0 || nn > n {

@@ -1,0 +1,48 @@
+package pqio
+
+import (
+	"bytes"
+	"runtime"
+	"testing"
+
+	"github.com/klauspost/compress/zstd"
+	"github.com/parquet-go/parquet-go/format"
+)
+
+// TestZstdPageBounded: a zstd page whose header declares 65 bytes but whose
+// frame (run-length blocks, no content size) decodes to 64 MiB is refused
+// having allocated about what the header declares: the decoder stops at
+// its buffer's capacity. Before, it decoded the whole frame first.
+func TestZstdPageBounded(t *testing.T) {
+	enc, err := zstd.NewWriter(nil, zstd.WithNoEntropyCompression(true))
+	if err != nil {
+		t.Fatal(err)
+	}
+	frame := enc.EncodeAll(make([]byte, 64<<20), nil)
+	var before, after runtime.MemStats
+	runtime.GC()
+	runtime.ReadMemStats(&before)
+	_, err = decompress(format.Zstd, nil, frame, 65)
+	runtime.ReadMemStats(&after)
+	if err == nil {
+		t.Fatal("a page decoding past its declared size was accepted")
+	}
+	if got := after.TotalAlloc - before.TotalAlloc; got > 16<<20 {
+		t.Errorf("refusing it allocated %d bytes, want under 16 MiB", got)
+	}
+}
+
+// TestZstdPageRatio: a valid zstd page of 32 MiB of one byte compresses to
+// a few KB, a ratio past deflate's; its header must not be refused.
+func TestZstdPageRatio(t *testing.T) {
+	enc, err := zstd.NewWriter(nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	page := bytes.Repeat([]byte("a"), 32<<20)
+	frame := enc.EncodeAll(page, nil)
+	h := &format.PageHeader{CompressedPageSize: int32(len(frame)), UncompressedPageSize: int32(len(page))}
+	if err := checkSizes(h, format.Zstd, int64(len(frame))); err != nil {
+		t.Errorf("a %d-byte zstd page of %d bytes: %v", len(frame), len(page), err)
+	}
+}

@@ -2,6 +2,7 @@ package pqio
 
 import (
 	"bytes"
+	"encoding/binary"
 	"runtime"
 	"testing"
 
@@ -44,5 +45,27 @@ func TestZstdPageRatio(t *testing.T) {
 	h := &format.PageHeader{CompressedPageSize: int32(len(frame)), UncompressedPageSize: int32(len(page))}
 	if err := checkSizes(h, format.Zstd, int64(len(frame))); err != nil {
 		t.Errorf("a %d-byte zstd page of %d bytes: %v", len(frame), len(page), err)
+	}
+}
+
+// TestThriftListOfEmptyStructs: a footer field listing a million empty
+// structs (a byte each) passed the bytes-left check, and the decoder would
+// make a list of a million 560-byte column chunks (about 40 million of
+// them from a 40 MB file: a fatal out-of-memory). The walk's budget
+// refuses it.
+func TestThriftListOfEmptyStructs(t *testing.T) {
+	const n = 1 << 20
+	b := []byte{0x19, 0xFC} // field 1, a list; its size follows, of structs
+	b = binary.AppendUvarint(b, n)
+	b = append(b, make([]byte, n)...) // n empty structs
+	b = append(b, 0)                  // the outer struct's stop
+	if err := checkThrift(b); err == nil {
+		t.Fatal("a list of a million empty structs was accepted")
+	}
+	// The same list of 1,000 is well within the budget.
+	small := append([]byte{0x19, 0xFC}, binary.AppendUvarint(nil, 1000)...)
+	small = append(append(small, make([]byte, 1000)...), 0)
+	if err := checkThrift(small); err != nil {
+		t.Errorf("a list of 1,000 empty structs: %v", err)
 	}
 }

@@ -19,15 +19,31 @@ const maxThriftDepth = 64
 // a list of the declared size before reading its elements, so a few bytes
 // could otherwise ask for gigabytes (layout from the thrift compact
 // protocol's specification).
+//
+// A struct element may take a single byte (an empty struct) and yet be
+// decoded into hundreds of bytes (a column chunk's metadata is 560), so
+// the elements of every list also draw on a budget of what the decoder may
+// allocate: thriftBudget plus 64 bytes per footer byte.
 func checkThrift(b []byte) error {
-	w := thriftWalk{b: b}
+	w := thriftWalk{b: b, budget: thriftBudget + 64*int64(len(b))}
 	return w.value(12, 0) // a struct
 }
 
+// thriftBudget is the allocation a footer may cause beyond 64 bytes per
+// byte of its own, and structElemBytes what one element of a list of
+// structs is reckoned to take once decoded (the largest struct of the
+// footer, a column chunk with its metadata, rounded up).
+const (
+	thriftBudget    = 64 << 20
+	structElemBytes = 640
+	otherElemBytes  = 24 // a slice or string header
+)
+
 // thriftWalk is a position in compact thrift bytes.
 type thriftWalk struct {
-	b []byte
-	i int
+	b      []byte
+	i      int
+	budget int64 // bytes the decoder may still allocate for lists
 }
 
 func (w *thriftWalk) byte() (byte, error) {
@@ -99,6 +115,13 @@ func (w *thriftWalk) value(t byte, depth int) error {
 			return err
 		}
 		et := h & 15
+		size := int64(otherElemBytes)
+		if et == 12 {
+			size = structElemBytes
+		}
+		if w.budget -= int64(n) * size; w.budget < 0 {
+			return errThrift
+		}
 		for range n {
 			if et == 1 || et == 2 {
 				err = w.skip(1) // a boolean element takes a byte

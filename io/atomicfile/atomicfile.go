@@ -99,7 +99,7 @@ func Create(path string) (*File, error) {
 		if t, err := filepath.EvalSymlinks(path); err == nil {
 			target = t
 		}
-		perm, keepPerm = fi.Mode().Perm(), true
+		perm, keepPerm = fi.Mode()&keptMode, true
 	} else if t, ok := danglingTarget(path); ok {
 		target = t
 	}
@@ -121,6 +121,11 @@ func Create(path string) (*File, error) {
 	}
 	return &File{File: f, path: path, target: target, tmp: tmp}, nil
 }
+
+// keptMode are the bits of a replaced file's or directory's mode that its
+// replacement keeps: the permissions, and setgid and sticky (a group-shared
+// tables directory stays group-shared).
+const keptMode = os.ModePerm | os.ModeSetgid | os.ModeSticky
 
 // isStdout reports whether path names this process's standard output.
 func isStdout(path string) bool {

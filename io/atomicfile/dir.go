@@ -42,7 +42,7 @@ func CreateDir(path string, replace func(existing string) error) (*Dir, error) {
 		if t, err := filepath.EvalSymlinks(target); err == nil {
 			target = t
 		}
-		perm, keepPerm = fi.Mode().Perm(), true
+		perm, keepPerm = fi.Mode()&keptMode, true
 	}
 	parent, base := filepath.Split(target)
 	if parent == "" {

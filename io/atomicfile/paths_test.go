@@ -61,3 +61,29 @@ func TestPathsInReview(t *testing.T) {
 		}
 	}
 }
+
+// TestSetgidKept: a group-shared directory (setgid) replaced whole stays
+// setgid, so that files made in it later keep its group.
+func TestSetgidKept(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "tables")
+	if err := os.Mkdir(dir, 0o775); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Chmod(dir, 0o775|os.ModeSetgid); err != nil {
+		t.Fatal(err)
+	}
+	d, err := CreateDir(dir, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := d.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	fi, err := os.Stat(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fi.Mode()&os.ModeSetgid == 0 || fi.Mode().Perm() != 0o775 {
+		t.Errorf("replaced directory mode %v, want setgid and 0775", fi.Mode())
+	}
+}

@@ -111,6 +111,30 @@ func (d *Dir) Ready() error {
 		d.Abort()
 		return fmt.Errorf("write %s: %w", d.path, err)
 	}
+	// What Commit would refuse is refused now, before the other outputs
+	// of a CommitAll are renamed into place: the target is no directory
+	// (a file, a dangling link), or holds what must not be replaced.
+	if err := d.replaceable(); err != nil {
+		d.Abort()
+		return err
+	}
+	return nil
+}
+
+// replaceable checks that the target is absent or a directory that
+// replace accepts.
+func (d *Dir) replaceable() error {
+	fi, err := os.Lstat(d.target)
+	switch {
+	case errors.Is(err, os.ErrNotExist):
+		return nil
+	case err != nil:
+		return err
+	case !fi.IsDir():
+		return fmt.Errorf("%s exists and is not a directory", d.path)
+	case d.replace != nil:
+		return d.replace(d.target)
+	}
 	return nil
 }
 

@@ -87,3 +87,31 @@ func TestSetgidKept(t *testing.T) {
 		t.Errorf("replaced directory mode %v, want setgid and 0775", fi.Mode())
 	}
 }
+
+// TestCommitAllChecksTablesFirst: when the tables directory cannot be put
+// in place (here its path is a dangling link), CommitAll refuses before it
+// renames the output, so neither is left: they are one unit. The check was
+// made only after the output was in place.
+func TestCommitAllChecksTablesFirst(t *testing.T) {
+	dir := t.TempDir()
+	tables := filepath.Join(dir, "tables")
+	if err := os.Symlink("gone", tables); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(dir, "out.csv")
+	f, err := Create(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.Write([]byte("a\n"))
+	d, err := CreateDir(tables, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := CommitAll(f, d); err == nil {
+		t.Fatal("CommitAll put a directory in place of a dangling link")
+	}
+	if _, err := os.Stat(out); err == nil {
+		t.Errorf("the output was committed although its tables were not")
+	}
+}

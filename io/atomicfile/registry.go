@@ -1,8 +1,11 @@
 package atomicfile
 
 import (
+	"errors"
 	"os"
 	"sync"
+	"syscall"
+	"time"
 )
 
 // The registry holds every temporary path this process has made and not
@@ -66,12 +69,27 @@ func Cleanup() {
 	unitMu.Lock()
 	defer unitMu.Unlock()
 	registry.mu.Lock()
-	defer registry.mu.Unlock()
 	registry.closed = true
-	for p := range registry.paths {
-		os.RemoveAll(p)
-	}
+	paths := registry.paths
 	registry.paths = nil
+	registry.mu.Unlock()
+	// Unlocked, so that a file made at this moment in a staging directory
+	// is removed by Track at once (the registry is closed), and the
+	// directory can then go.
+	for p := range paths {
+		removeAll(p)
+	}
+}
+
+// removeAll removes path and what it holds, trying again for a while when
+// a file made meanwhile (and removed by Track) kept a directory from going.
+func removeAll(path string) {
+	for range 50 {
+		if err := os.RemoveAll(path); err == nil || !errors.Is(err, syscall.ENOTEMPTY) {
+			return
+		}
+		time.Sleep(time.Millisecond)
+	}
 }
 
 // RemoveTracked removes every tracked path now, as Cleanup does, but

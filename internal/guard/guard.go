@@ -83,7 +83,10 @@ func (g *Group) Go(f func()) {
 }
 
 // Wait waits for every function started by Go; if one of them panicked,
-// Wait panics with the first *Panic, on the caller's goroutine.
+// Wait panics with the first *Panic, on the caller's goroutine. That is on
+// purpose: a panic is a bug, not bad input, and moving it to the caller
+// lets the command's top-level recover report it as one internal-error
+// line (exit 1) instead of the worker's goroutine killing the process.
 func (g *Group) Wait() {
 	g.wg.Wait()
 	if g.first != nil {

@@ -110,17 +110,7 @@ func readAllNamed(in []byte, name string, opts Options, sel []int) (int, error) 
 			return 0, err
 		}
 	}
-	rows := 0
-	for {
-		b, err := r.Next()
-		if err == io.EOF {
-			return rows, nil
-		}
-		if err != nil {
-			return rows, err
-		}
-		rows += b.Rows
-	}
+	return countRows(r)
 }
 
 // TestFieldLimit: a field may hold Options.MaxFieldBytes bytes as written
@@ -207,23 +197,15 @@ func TestFieldLimitMemory(t *testing.T) {
 	}
 }
 
+// readAllReader reads every batch of a CSV read from src and returns the
+// rows read.
 func readAllReader(src io.Reader, opts Options) (int, error) {
 	r, err := NewReader(src, "s.csv", opts)
 	if err != nil {
 		return 0, err
 	}
 	defer r.Close()
-	rows := 0
-	for {
-		b, err := r.Next()
-		if err == io.EOF {
-			return rows, nil
-		}
-		if err != nil {
-			return rows, err
-		}
-		rows += b.Rows
-	}
+	return countRows(r)
 }
 
 // TestBigIntegersAreText: integers beyond int64 would collapse into one
@@ -271,5 +253,21 @@ func TestTypesIfPresent(t *testing.T) {
 	want := []table.Kind{table.String, table.Int64, table.Int64}
 	if !slices.Equal(res.kinds, want) || res.rows[0][0] != "501" {
 		t.Errorf("kinds %v, rows %q; want %v", res.kinds, res.rows, want)
+	}
+}
+
+// countRows reads r to its end and returns the rows of its batches, or the
+// rows read before the first error and that error.
+func countRows(r *Reader) (int, error) {
+	rows := 0
+	for {
+		b, err := r.Next()
+		if err == io.EOF {
+			return rows, nil
+		}
+		if err != nil {
+			return rows, err
+		}
+		rows += b.Rows
 	}
 }

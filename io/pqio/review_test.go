@@ -11,9 +11,11 @@ import (
 )
 
 // TestZstdPageBounded: a zstd page whose header declares 65 bytes but whose
-// frame (run-length blocks, no content size) decodes to 64 MiB is refused
-// having allocated about what the header declares: the decoder stops at
-// its buffer's capacity. Before, it decoded the whole frame first.
+// frame decodes to 64 MiB is refused having allocated about what the header
+// declares, as the decoder now stops at its buffer's capacity. (This frame
+// records its content size, which the decoder checked before too, so the
+// test guards the bound rather than reproducing the frames without one that
+// review found.)
 func TestZstdPageBounded(t *testing.T) {
 	enc, err := zstd.NewWriter(nil, zstd.WithNoEntropyCompression(true))
 	if err != nil {

@@ -23,7 +23,7 @@ import (
 
 	_ "github.com/duckdb/duckdb-go/v2" // registers the "duckdb" database/sql driver
 
-	"manyfold/cmd/parcels"
+	"manyfold/internal/parcels"
 	"manyfold/io/tableio"
 )
 

@@ -7,7 +7,7 @@ import (
 	"strings"
 	"testing"
 
-	"manyfold/cmd/parcels"
+	"manyfold/internal/parcels"
 )
 
 // TestCompareSameSeed: the same seed gives a byte-identical table on

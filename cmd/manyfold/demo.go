@@ -7,7 +7,7 @@ import (
 	"strconv"
 	"strings"
 
-	"manyfold/cmd/parcels"
+	"manyfold/internal/parcels"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )

@@ -11,7 +11,7 @@ import (
 	"strings"
 	"testing"
 
-	"manyfold/cmd/parcels"
+	"manyfold/internal/parcels"
 	"manyfold/io/tableio"
 )
 

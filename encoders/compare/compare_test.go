@@ -8,8 +8,8 @@ import (
 	"strings"
 	"testing"
 
-	"manyfold/cmd/parcels"
 	"manyfold/folds"
+	"manyfold/internal/parcels"
 	"manyfold/io/csvio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"

@@ -4,7 +4,7 @@ import (
 	"path/filepath"
 	"testing"
 
-	"manyfold/cmd/parcels"
+	"manyfold/internal/parcels"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )

@@ -17,8 +17,8 @@ import (
 	"strings"
 	"time"
 
-	"manyfold/cmd/parcels"
 	"manyfold/folds"
+	"manyfold/internal/parcels"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"

@@ -6,8 +6,8 @@ import (
 	"os"
 	"runtime"
 
-	"manyfold/encoders/compare"
 	"manyfold/encoders/pipeline"
+	"manyfold/internal/evaluate/compare"
 	"manyfold/io/atomicfile"
 	"manyfold/io/tableio"
 )

@@ -9,7 +9,7 @@ import (
 	"strings"
 	"testing"
 
-	"manyfold/encoders/metrics"
+	"manyfold/internal/evaluate/metrics"
 )
 
 // noiseTable returns a CSV of rows rows: a postcode drawn uniformly from

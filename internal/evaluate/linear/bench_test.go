@@ -11,7 +11,7 @@ import (
 // before the timed loop. It reports the solver's iterations and objective
 // evaluations per fit.
 //
-//	go test ./encoders/linear -run '^$' -bench FitLogistic1M -benchtime 1x
+//	go test ./internal/evaluate/linear -run '^$' -bench FitLogistic1M -benchtime 1x
 func BenchmarkFitLogistic1M(b *testing.B) {
 	d, z := standardised(1, 1_000_000, 3, []int{1000, 1000, 1000})
 	y := binaryTargets(1, z)

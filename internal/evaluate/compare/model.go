@@ -5,8 +5,8 @@ import (
 	"time"
 
 	"manyfold/encoders/colstats"
-	"manyfold/encoders/linear"
-	"manyfold/encoders/metrics"
+	"manyfold/internal/evaluate/linear"
+	"manyfold/internal/evaluate/metrics"
 )
 
 // solver are the options of every model fit: the package defaults.

@@ -2,7 +2,6 @@ package pipeline
 
 import (
 	"bytes"
-	"errors"
 	"fmt"
 	"math"
 	"sort"
@@ -412,23 +411,23 @@ func sortedClasses(order []string, numeric bool) ([]string, []int) {
 	return labels, pos
 }
 
-// foldAssigner gives the fold of each row of a batch.
+// foldAssigner gives the fold of each row of a batch: the spec's fold rule
+// (folds.ParseRule) with the batch's group column, classes and row numbers.
 type foldAssigner struct {
-	spec     *Spec
-	k        int
-	groupCol int
-	total    int64 // rows in the table, for ordered blocks
-	strat    *folds.Stratifier
-	strata   []*folds.Stratum // per class number: its label's fold stream
-	scratch  []byte
+	groupCol int // position of the group column in the batch, or -1
+	as       folds.Assigner
+	err      error // the fold rule did not parse
 	out      []int32
 }
 
 func newFoldAssigner(sp *Spec, groupCol int, total int64) *foldAssigner {
-	fa := &foldAssigner{spec: sp, k: sp.folds(), groupCol: groupCol, total: total}
-	if sp.FoldBy == "stratified" && fa.k > 1 {
-		fa.strat = folds.NewStratifier(sp.Seed, fa.k)
+	fa := &foldAssigner{groupCol: groupCol}
+	rule, err := folds.ParseRule(sp.FoldBy)
+	if err != nil {
+		fa.err = err
+		return fa
 	}
+	fa.as = rule.Assigner(sp.Seed, sp.folds(), total)
 	return fa
 }
 
@@ -438,48 +437,19 @@ func newFoldAssigner(sp *Spec, groupCol int, total int64) *foldAssigner {
 // label, not its number, so the fit (classes numbered as met) and the
 // encode pass (classes numbered in sorted order) give a row the same fold.
 func (fa *foldAssigner) assign(b *table.Batch, cls []int32, labels []string) ([]int32, error) {
+	if fa.err != nil {
+		return nil, fa.err
+	}
 	if cap(fa.out) < b.Rows {
 		fa.out = make([]int32, b.Rows)
 	}
 	out := fa.out[:b.Rows]
-	if fa.k == 1 {
-		for i := range out {
-			out[i] = 0
-		}
-		return out, nil
+	fb := folds.Batch{First: uint64(b.FirstRow - 1), Class: cls, Labels: labels}
+	if fa.groupCol >= 0 {
+		fb.Group = &b.Cols[fa.groupCol]
 	}
-	for i := 0; i < b.Rows; i++ {
-		row := uint64(b.FirstRow - 1 + int64(i))
-		switch {
-		case fa.groupCol >= 0:
-			c := &b.Cols[fa.groupCol]
-			fa.scratch = c.AppendText(fa.scratch[:0], i)
-			if c.IsNull(i) {
-				fa.scratch = append(fa.scratch[:0], 0xff) // nulls form one group of their own
-			}
-			out[i] = int32(folds.Key(fa.spec.Seed, fa.scratch, fa.k))
-		case fa.strat != nil && cls != nil && cls[i] >= 0:
-			out[i] = int32(fa.stratum(cls[i], labels).Next())
-		case fa.spec.FoldBy == "ordered":
-			if fa.total <= 0 {
-				return nil, errors.New("--fold-by ordered needs the row count")
-			}
-			out[i] = int32(folds.Block(row, uint64(fa.total), fa.k))
-		default:
-			out[i] = int32(folds.Row(fa.spec.Seed, row, fa.k))
-		}
+	if err := fa.as.Assign(fb, out); err != nil {
+		return nil, err
 	}
 	return out, nil
-}
-
-// stratum returns the fold stream of class number k, whose label is
-// labels[k].
-func (fa *foldAssigner) stratum(k int32, labels []string) *folds.Stratum {
-	for int(k) >= len(fa.strata) {
-		fa.strata = append(fa.strata, nil)
-	}
-	if fa.strata[k] == nil {
-		fa.strata[k] = fa.strat.Stratum(labels[k])
-	}
-	return fa.strata[k]
 }

@@ -7,6 +7,7 @@ import (
 	"runtime"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/folds"
 	"manyfold/internal/evaluate/compare"
 	"manyfold/io/atomicfile"
 	"manyfold/io/tableio"
@@ -22,6 +23,14 @@ held-out rows are encoded with the tables of all outer training rows, and a
 linear model (L2 logistic for a binary target, multinomial for several
 classes, ridge for a number) is fitted on the training rows and scored on
 the held-out rows. Every candidate sees the same folds, fixed by --seed.
+
+--fold-by sets the rule of the outer and inner folds: rows (the default: a
+hash of the row number), group=COL (all rows with one value of COL share an
+outer and an inner fold, so a customer's or a sender's rows never sit on
+both sides of a split; the inner folds are drawn independently of the
+outer), or stratified (each class of the target spread evenly over the
+folds; classification targets only). ordered is refused: compare's nested
+folds cannot keep the row order.
 
 Candidates (--candidates, comma separated): prior (baseline: no information
 from the column), target:insample (baseline: the raw level mean fitted on
@@ -46,9 +55,10 @@ func runCompare(args []string) (err error) {
 	columns := fs.StringSlice("columns", nil, "categorical columns to compare, comma separated")
 	cands := fs.String("candidates", compare.DefaultCandidates, "candidates, comma separated")
 	task := fs.String("task", "", "binary, multiclass or regression (default: detected from the target)")
-	folds := fs.Int("folds", 5, "outer folds")
+	nfolds := fs.Int("folds", 5, "outer folds")
 	inner := fs.Int("inner-folds", 5, "inner folds for the training rows' target statistics")
 	seed := fs.Uint64("seed", 0, "seed of the outer, inner and sample assignments")
+	foldBy := fs.String("fold-by", "rows", "rule of the outer and inner folds: rows, stratified, group=COL")
 	with := fs.StringSlice("with", nil, "numeric columns added to every model, comma separated")
 	sample := fs.Int64("sample", 200000, "rows the models are fitted and scored on (about; 0: all)")
 	lambda := fs.Float64("lambda", compare.DefaultLambda, "L2 weight of the models")
@@ -73,10 +83,14 @@ func runCompare(args []string) (err error) {
 	if err != nil {
 		return err
 	}
+	rule, err := folds.ParseRule(*foldBy)
+	if err != nil {
+		return usagef("--fold-by: %v", err)
+	}
 	// Every option is checked before any data is read.
 	opts := compare.Options{
 		Target: *target, Task: *task, Columns: *columns, Candidates: list,
-		Folds: *folds, InnerFolds: *inner, Seed: *seed, With: *with, Sample: *sample,
+		Folds: *nfolds, InnerFolds: *inner, Seed: *seed, FoldBy: rule, With: *with, Sample: *sample,
 		Lambda: *lambda, Threads: *threads, NoTimings: !*timings,
 	}
 	if err := opts.Validate(); err != nil {
@@ -108,6 +122,10 @@ func runCompare(args []string) (err error) {
 		return err
 	}
 	if err := refuseNested(name, "--columns", "encoded", nestedOf(r), *columns...); err != nil {
+		r.Close()
+		return err
+	}
+	if err := refuseNested(name, "--fold-by group=", "read", nestedOf(r), rule.Needs().Group); err != nil {
 		r.Close()
 		return err
 	}

@@ -99,3 +99,40 @@ func TestCompareCSVAndReport(t *testing.T) {
 		}
 	}
 }
+
+// TestCompareFoldBy: --fold-by picks the rule of compare's outer and inner
+// folds, the table and the JSON say which, and the rules compare cannot
+// follow are usage errors.
+func TestCompareFoldBy(t *testing.T) {
+	dir := t.TempDir()
+	csv := writeFile(t, dir, "ship.csv", shipmentsCSV(600))
+	out := filepath.Join(dir, "r.json")
+	res := mustRun(t, "compare", csv, "--target", "late", "--columns", "postcode", "--folds", "2", "--inner-folds", "2",
+		"--fold-by", "group=sender", "--json", out)
+	if !strings.Contains(res.stdout, "2 outer x 2 inner folds (fold rule group=sender)") {
+		t.Errorf("the table does not say the fold rule:\n%s", res.stdout)
+	}
+	js, err := os.ReadFile(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(js), `"fold_by": "group=sender"`) {
+		t.Errorf("JSON lacks fold_by:\n%s", js)
+	}
+	base := []string{"compare", csv, "--columns", "postcode", "--folds", "2", "--inner-folds", "2"}
+	for _, tc := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"--target", "late", "--fold-by", "senders"}, `--fold-by: fold rule "senders": unknown (want rows, stratified, group=COL, ordered)`},
+		{[]string{"--target", "late", "--fold-by", "group="}, `--fold-by: fold rule "group=": the group column's name is empty`},
+		{[]string{"--target", "late", "--fold-by", "ordered"}, `fold rule "ordered": compare cannot follow it`},
+		{[]string{"--target", "cost", "--fold-by", "stratified"}, `fold rule "stratified": target "cost" is a regression target`},
+		{[]string{"--target", "late", "--fold-by", "group=sendr"}, `"sendr"`},
+	} {
+		r := runCLI(t, append(base, tc.args...)...)
+		if r.code != exitUsage || !strings.Contains(r.stderr, tc.want) {
+			t.Errorf("%v: exit %d, stderr %q; want exit %d mentioning %q", tc.args, r.code, r.stderr, exitUsage, tc.want)
+		}
+	}
+}

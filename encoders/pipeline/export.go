@@ -62,6 +62,11 @@ func (t *Targets) Regression() bool { return t.tr.regress }
 // NumClasses returns the number of class labels seen so far.
 func (t *Targets) NumClasses() int { return len(t.tr.order) }
 
+// Labels returns the class labels seen so far, by class index (order of
+// appearance): the label of each class number Read returns. The slice is
+// the reader's own; the caller does not change it.
+func (t *Targets) Labels() []string { return t.tr.order }
+
 // Missing returns the number of rows read whose target was empty.
 func (t *Targets) Missing() int64 { return t.tr.missing }
 

@@ -27,7 +27,14 @@ type Options struct {
 	Folds      int         // outer folds (>= 2)
 	InnerFolds int         // inner folds for the training rows' target statistics (>= 2)
 	Seed       uint64      // fixes the outer, inner and sample assignments
-	With       []string    // numeric columns added to every model (also to the prior baseline)
+	// FoldBy is the rule of the outer and inner folds (nil: rows). The
+	// inner folds follow the same rule with a salted seed, so they are
+	// drawn independently of the outer ones: with group=COL all rows of a
+	// group share an outer and an inner fold. Rules that need the row
+	// count before the pass (ordered) are refused, and stratified needs a
+	// classification target.
+	FoldBy folds.Rule
+	With   []string // numeric columns added to every model (also to the prior baseline)
 	// Sample bounds the rows the models are fitted and scored on: each row
 	// is kept when a hash of its number and the seed falls below
 	// Sample/TotalRows, so about Sample rows are kept. 0 or less keeps
@@ -89,8 +96,8 @@ func Run(r table.Reader, opt Options) (*Result, error) {
 
 // Validate checks the options that do not depend on the data, so that a
 // bad flag is refused before any is read: folds 2 to 50 each, an L2 weight
-// that is 0 (the default) or positive and finite, a target, columns and a
-// known task.
+// that is 0 (the default) or positive and finite, a target, columns, a
+// known task and a fold rule compare can follow.
 func (opt *Options) Validate() error {
 	if opt.Folds < 2 || opt.Folds > 50 {
 		return usage("--folds %d: want 2 to 50", opt.Folds)
@@ -112,7 +119,31 @@ func (opt *Options) Validate() error {
 	default:
 		return usage("--task %q: want binary, multiclass or regression", opt.Task)
 	}
+	rule := opt.foldRule()
+	if rule.Needs().Total {
+		return usage("fold rule %q: compare cannot follow it (it cuts the rows into blocks by their count, and the inner folds would have to cut each outer fold's training rows again); use rows, stratified or group=COL", rule)
+	}
+	if rule.Needs().Class && opt.Task == "regression" {
+		return stratifiedRegression(rule, opt.Target)
+	}
+	if g := rule.Needs().Group; g != "" && g == opt.Target {
+		return usage("fold rule %q: the group column is the target", rule)
+	}
 	return nil
+}
+
+// foldRule returns the fold rule of the options, rows when none is given.
+func (opt *Options) foldRule() folds.Rule {
+	if opt.FoldBy == nil {
+		return folds.RowsRule{}
+	}
+	return opt.FoldBy
+}
+
+// stratifiedRegression is the error of a rule that stratifies by class
+// given a numeric (regression) target.
+func stratifiedRegression(rule folds.Rule, target string) error {
+	return usage("fold rule %q: target %q is a regression target, which has no classes to stratify by; use rows or group=COL", rule, target)
 }
 
 // run is Run once the options are checked.
@@ -133,7 +164,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 		return nil, err
 	}
 	// need lists the positions read, in the order of the selected batches:
-	// the target, the columns, the numeric columns.
+	// the target, the columns, the numeric columns, the group column.
 	need := []int{tcol}
 	seen := map[string]bool{}
 	for _, c := range opt.Columns {
@@ -160,6 +191,14 @@ func run(r table.Reader, opt Options) (*Result, error) {
 		}
 		if k := schema.Fields[i].Kind; k != table.Int64 && k != table.Float64 && k != table.Bool && k != table.String {
 			return nil, usage("--with %q is not numeric", c)
+		}
+		need = append(need, i)
+	}
+	rule := opt.foldRule()
+	if g := rule.Needs().Group; g != "" {
+		i, err := find("--fold-by group", g)
+		if err != nil {
+			return nil, err
 		}
 		need = append(need, i)
 	}
@@ -198,7 +237,12 @@ func run(r table.Reader, opt Options) (*Result, error) {
 	for i := range slots {
 		slots[i] = pipeline.NewLevelSlots(at[1+i])
 	}
-	withAt := at[1+nc:]
+	withAt := at[1+nc : 1+nc+len(opt.With)]
+	groupAt := -1
+	if rule.Needs().Group != "" {
+		groupAt = at[len(at)-1]
+	}
+	cells := newCellAssigner(rule, opt.Seed, ko, ki, total)
 	sts := make([]*colstats.Stats, nc)
 	smp := &sample{slot: make([][]int32, nc), with: make([][]float64, len(opt.With))}
 	var rows, dropped int64
@@ -210,6 +254,9 @@ func run(r table.Reader, opt Options) (*Result, error) {
 			return err
 		}
 		regress := targets.Regression()
+		if regress && rule.Needs().Class {
+			return stratifiedRegression(rule, opt.Target)
+		}
 		if sts[0] == nil {
 			task := colstats.Binary
 			if regress {
@@ -231,6 +278,13 @@ func run(r table.Reader, opt Options) (*Result, error) {
 			keepBuf = make([]bool, b.Rows)
 		}
 		cell, keep := cellBuf[:b.Rows], keepBuf[:b.Rows]
+		fb := folds.Batch{First: uint64(b.FirstRow - 1), Class: cls, Labels: targets.Labels()}
+		if groupAt >= 0 {
+			fb.Group = &b.Cols[groupAt]
+		}
+		if err := cells.assign(fb, cell); err != nil {
+			return err
+		}
 		for i := 0; i < b.Rows; i++ {
 			row := uint64(b.FirstRow - 1 + int64(i))
 			known := (regress && vals[i] == vals[i]) || (!regress && cls[i] >= 0)
@@ -241,9 +295,6 @@ func run(r table.Reader, opt Options) (*Result, error) {
 				continue
 			}
 			rows++
-			o := folds.Row(opt.Seed, row, ko)
-			in := folds.Row(opt.Seed^innerSalt, row, ki)
-			cell[i] = uint16(o*ki + in)
 			keep[i] = threshold == sampleSpan || uint64(folds.Row(opt.Seed^sampleSalt, row, sampleSpan)) < threshold
 			if keep[i] {
 				smp.cell = append(smp.cell, cell[i])
@@ -304,7 +355,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 	if rows == 0 {
 		return nil, &table.DataError{File: opt.File, Column: opt.Target, Err: errors.New("target is null in every row")}
 	}
-	res := &Result{File: opt.File, Target: opt.Target, Folds: ko, InnerFolds: ki, Seed: opt.Seed,
+	res := &Result{File: opt.File, Target: opt.Target, Folds: ko, InnerFolds: ki, FoldBy: rule.String(), Seed: opt.Seed,
 		Rows: rows, DroppedRows: dropped, ModelRows: int64(smp.count), With: append([]string{}, opt.With...), Lambda: opt.Lambda}
 	ev := &evaluator{opt: opt, smp: smp, ko: ko, ki: ki}
 	if targets.Regression() {
@@ -347,6 +398,41 @@ func run(r table.Reader, opt Options) (*Result, error) {
 		res.Columns = append(res.Columns, cr)
 	}
 	return res, nil
+}
+
+// cellAssigner gives each row its cell outer*ki + inner. The outer and
+// inner folds follow one rule, the inner drawn with the seed salted by
+// innerSalt so that it is independent of the outer: with row folds a row's
+// inner fold tells nothing of its outer fold, with group folds all rows of a
+// group share both, and each outer fold's training groups spread over all
+// inner folds.
+type cellAssigner struct {
+	outer, inner folds.Assigner
+	ki           int
+	of, in       []int32
+}
+
+func newCellAssigner(rule folds.Rule, seed uint64, ko, ki int, total int64) *cellAssigner {
+	return &cellAssigner{outer: rule.Assigner(seed, ko, total), inner: rule.Assigner(seed^innerSalt, ki, total), ki: ki}
+}
+
+// assign writes the cell of each row of the batch to cell.
+func (ca *cellAssigner) assign(fb folds.Batch, cell []uint16) error {
+	n := len(cell)
+	if cap(ca.of) < n {
+		ca.of, ca.in = make([]int32, n), make([]int32, n)
+	}
+	of, in := ca.of[:n], ca.in[:n]
+	if err := ca.outer.Assign(fb, of); err != nil {
+		return err
+	}
+	if err := ca.inner.Assign(fb, in); err != nil {
+		return err
+	}
+	for i := range cell {
+		cell[i] = uint16(int(of[i])*ca.ki + int(in[i]))
+	}
+	return nil
 }
 
 func usage(format string, a ...any) error {

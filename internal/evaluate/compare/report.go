@@ -188,6 +188,7 @@ func buildView(r *Result) reportView {
 			{"Task", clean(r.Task)},
 			{"Primary metric", clean(r.Metric) + " (" + dir + ")"},
 			{"Folds", fmt.Sprintf("%d outer × %d inner", r.Folds, r.InnerFolds)},
+			{"Fold rule", clean(r.FoldBy)},
 			{"Seed", strconv.FormatUint(r.Seed, 10)},
 			{"Rows", groupDigits(r.Rows)},
 			{"Model rows", groupDigits(r.ModelRows)},

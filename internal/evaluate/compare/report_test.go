@@ -146,7 +146,7 @@ func binaryResult() *Result {
 	ll := func(m float64) Metric { return Metric{Name: "logloss", Stat: Stat{m, 0.002}} }
 	return &Result{
 		File: trickyFile, Target: "late_delivery", Task: "binary",
-		Metric: "auc", HigherBetter: true, Folds: 5, InnerFolds: 3, Seed: 42,
+		Metric: "auc", HigherBetter: true, Folds: 5, InnerFolds: 3, FoldBy: "group=sender_account", Seed: 42,
 		Rows: 1_234_567, ModelRows: 200_000, With: []string{"parcel_weight", "distance_km"},
 		Columns: []ColumnResult{
 			{
@@ -574,6 +574,7 @@ func TestReportHeaderRoundTrip(t *testing.T) {
 		{"Task", "binary"},
 		{"Primary metric", "auc (higher is better)"},
 		{"Folds", "5 outer × 3 inner"},
+		{"Fold rule", "group=sender_account"},
 		{"Seed", "42"},
 		{"Rows", "1 234 567"},
 		{"Model rows", "200 000"},

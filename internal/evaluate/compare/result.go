@@ -13,6 +13,7 @@ type Result struct {
 	HigherBetter bool           `json:"higher_better"` // for the primary metric
 	Folds        int            `json:"folds"`
 	InnerFolds   int            `json:"inner_folds"`
+	FoldBy       string         `json:"fold_by"` // the fold rule of the outer and inner folds: rows, stratified, group=COL
 	Seed         uint64         `json:"seed"`
 	Rows         int64          `json:"rows"`              // rows whose statistics were gathered
 	ModelRows    int64          `json:"model_rows"`        // rows the models were fitted and scored on (--sample)

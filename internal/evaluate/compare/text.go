@@ -50,8 +50,8 @@ func WriteText(w io.Writer, r *Result) error {
 		dir = "higher is better"
 	}
 	fmt.Fprintf(bw, "manyfold compare: %s, target %s (%s; ranked by held-out %s, %s)\n", r.File, r.Target, r.Task, metricLabel(r.Metric), dir)
-	fmt.Fprintf(bw, "nested cross-validation: %d outer x %d inner folds, seed %d; statistics over %d rows, models on %d of them; L2 lambda %g\n",
-		r.Folds, r.InnerFolds, r.Seed, r.Rows, r.ModelRows, r.Lambda)
+	fmt.Fprintf(bw, "nested cross-validation: %d outer x %d inner folds (fold rule %s), seed %d; statistics over %d rows, models on %d of them; L2 lambda %g\n",
+		r.Folds, r.InnerFolds, r.FoldBy, r.Seed, r.Rows, r.ModelRows, r.Lambda)
 	if r.DroppedRows > 0 {
 		fmt.Fprintf(bw, "%d rows with an empty target left out\n", r.DroppedRows)
 	}

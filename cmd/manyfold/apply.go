@@ -98,7 +98,7 @@ func runApply(args []string) error {
 // still overrides them.
 func fittedKinds(m *pipeline.Model) map[string]table.Kind {
 	kinds := make(map[string]table.Kind, len(m.Cols)+1)
-	if pc := m.Spec.PriorColumn; pc != "" {
+	for _, pc := range m.Spec.PriorColumns() {
 		for _, f := range m.Input {
 			if f.Name == pc {
 				kinds[pc] = f.Kind

@@ -6,10 +6,10 @@ import (
 	"os"
 	"runtime/pprof"
 	"runtime/trace"
-	"strconv"
 	"strings"
 	"time"
 
+	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 	"manyfold/internal/guard"
 	"manyfold/io/atomicfile"
@@ -25,9 +25,21 @@ fitted mapping tables in DIR so that "manyfold apply" encodes new data the same
 way. Training rows get target statistics out of fold (--scheme kfold): a row
 never sees its own label.
 
-Encoded columns: <col>_tmean (smoothed target mean; <col>_tmean_<class> for a
-multi-class target), <col>_freq, <col>_topk (1..k, 0 = other), <col>_hash
-(and <col>_hash_sign with --signed).
+Encodings (--methods), in one grammar with compare and the manifest:
+  target[:eb|:m=NUM|:blend=K,F][:prior=prefixN|:prior=column:COL][:logodds]
+        smoothed target mean, <col>_tmean (<col>_tmean_<class> for a
+        multi-class target); eb (default) estimates m by empirical Bayes;
+        a prior pulls a level towards its prefix's or the row's COL value
+  freq[:share]            rows of the level (or their share): <col>_freq
+  topk[:K][:min=N]        codes 1..K of the K most frequent levels, 0 = other
+                          (default K 100): <col>_topk
+  hash[:B][:signed][:seed=S]
+                          bucket of XXH64(value) mod B (default 1024):
+                          <col>_hash, and <col>_hash_sign with signed
+Join encodings with '+'. One list for every column:
+  --methods target:eb+freq
+or a list per column (then --columns may be left out):
+  --methods 'dest_postcode=target:eb+freq,parcel_type=topk:6'
 
 Schemes: kfold (default) uses the statistics of the other folds, prior
 included; loo leaves the row's own label out, which still leaks on binary
@@ -47,21 +59,12 @@ func runEncode(args []string) (err error) {
 	sp := pipeline.DefaultSpec()
 	target := fs.String("target", "", "target column (needed by the target method)")
 	columns := fs.StringSlice("columns", nil, "categorical columns to encode, comma separated")
-	methods := fs.StringSlice("methods", []string{"target"}, "encoders: target, freq, topk, hash")
+	methods := fs.String("methods", "target:eb", "encodings, joined by '+' (target:eb+freq), for every column or per column (col=target:eb+freq,col2=topk:6); see above")
 	task := fs.String("task", "", "binary, multiclass or regression (default: detected from the target)")
 	fs.IntVar(&sp.Folds, "folds", 5, "folds for out-of-fold statistics")
 	fs.StringVar(&sp.FoldBy, "fold-by", "rows", "fold assignment: rows, stratified, group=COL, ordered (contiguous blocks)")
 	fs.Uint64Var(&sp.Seed, "seed", 0, "seed of the fold assignment")
-	fs.StringVar(&sp.Scheme, "scheme", "kfold", "training rows: kfold, loo, ordered, none")
-	smoothing := fs.String("smoothing", "auto", "auto (empirical Bayes), m=NUM (m-estimate) or blend=K,F (sigmoid blend)")
-	priorBy := fs.String("prior-by", "", "hierarchical prior: prefix=N (the level's first N characters) or column=COL (the row's value of COL, a region say)")
-	fs.StringVar(&sp.Output, "output", "rate", "target mean as rate, or logodds (binary targets)")
-	freq := fs.String("freq", "count", "frequency as count or share of the rows")
-	fs.IntVar(&sp.TopK, "top-k", 100, "top-k: number of levels that get their own code")
-	fs.Uint64Var(&sp.MinCount, "min-count", 1, "top-k: a level needs at least this many rows for a code")
-	fs.Uint64Var(&sp.Buckets, "buckets", 1024, "hash: number of buckets")
-	fs.Uint64Var(&sp.HashSeed, "hash-seed", 0, "hash: XXH64 seed")
-	fs.BoolVar(&sp.Signed, "signed", false, "hash: add the sign column from the hash's top bit")
+	scheme := fs.String("scheme", "kfold", "training rows: kfold, loo, ordered, none")
 	fs.Uint64Var(&sp.MinLevelRows, "min-level-rows", 0, "levels with fewer rows are left out of the tables and treated as unseen")
 	nulls := fs.String("nulls", "level", "nulls as a level of their own (level) or as unseen")
 	keep := fs.String("keep", "all", "input columns written back: all, none, or a comma-separated list")
@@ -80,31 +83,16 @@ func runEncode(args []string) (err error) {
 	if of.out == "" || *tables == "" {
 		return usagef("encode needs --out and --tables")
 	}
-	sp.Target, sp.Columns, sp.Methods, sp.Task = *target, *columns, *methods, *task
-	if sp.Smoothing, err = pipeline.ParseSmoothing(*smoothing); err != nil {
-		return usagef("%v", err)
+	sp.Target, sp.Columns, sp.Task = *target, *columns, *task
+	if sp.Encodings, err = method.ParsePlan(*methods); err != nil {
+		return usagef("--methods: %v", err)
 	}
-	if *priorBy != "" {
-		if col, ok := strings.CutPrefix(*priorBy, "column="); ok && col != "" {
-			sp.PriorColumn = col
-		} else {
-			v, ok := strings.CutPrefix(*priorBy, "prefix=")
-			n, perr := strconv.Atoi(v)
-			if !ok || perr != nil || n < 1 {
-				return usagef("--prior-by %q: want prefix=N with N >= 1, or column=COL", *priorBy)
-			}
-			sp.PriorPrefix = n
-		}
-		if sp.Scheme != "kfold" && sp.Scheme != "none" {
-			return usagef("--prior-by works with --scheme kfold or none")
-		}
+	var ok bool
+	if sp.Scheme, ok = method.ParseScheme(*scheme); !ok {
+		return usagef("unknown --scheme %q (want kfold, loo, ordered, none)", *scheme)
 	}
-	switch *freq {
-	case "count":
-	case "share":
-		sp.FreqShare = true
-	default:
-		return usagef("--freq %q: want count or share", *freq)
+	if sp.Encodings.PerColumn != nil && len(sp.Columns) > 0 {
+		return usagef("--methods names the columns (COLUMN=LIST,...): leave out --columns")
 	}
 	switch *nulls {
 	case "level":
@@ -193,9 +181,6 @@ func runEncode(args []string) (err error) {
 	pr.done()
 	if err != nil {
 		return err
-	}
-	if sp.Output == "logodds" && m.Task.String() != "binary" {
-		return usagef("--output logodds needs a binary target; %s is %s", sp.Target, m.Task)
 	}
 
 	o, err := openOutput(path, name, of.out, ropts, wopts, m, false, keepList, nil)

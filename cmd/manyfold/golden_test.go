@@ -27,18 +27,18 @@ var goldenRuns = []struct {
 	name string
 	args string
 }{
-	{"binary-all-methods", "encode IN --target late --columns dest_postcode,sender_account,route --methods target,freq,topk,hash --top-k 20 --signed --fold-column fold --out OUT/o.parquet --tables OUT/t"},
+	{"binary-all-methods", "encode IN --target late --columns dest_postcode,sender_account,route --methods target:eb+freq+topk:20+hash:1024:signed --fold-column fold --out OUT/o.parquet --tables OUT/t"},
 	{"binary-apply", "apply NEW --tables OUT/../binary-all-methods/t --out OUT/o.csv"},
 	{"regression-auto", "encode IN --target cost --columns dest_postcode,route --out OUT/o.csv --tables OUT/t"},
-	{"regression-blend-loo", "encode IN --target cost --columns dest_postcode --scheme loo --smoothing blend=5,2 --out OUT/o.csv --tables OUT/t"},
-	{"binary-m-logodds", "encode IN --target late --columns dest_postcode,sender_account --smoothing m=20 --output logodds --out OUT/o.arrow --tables OUT/t"},
-	{"binary-prefix-prior", "encode IN --target late --columns dest_postcode --prior-by prefix=3 --out OUT/o.csv --tables OUT/t"},
-	{"binary-column-prior", "encode IN --target late --columns dest_postcode,sender_account --prior-by column=route --out OUT/o.csv --tables OUT/t"},
+	{"regression-blend-loo", "encode IN --target cost --columns dest_postcode --scheme loo --methods target:blend=5,2 --out OUT/o.csv --tables OUT/t"},
+	{"binary-m-logodds", "encode IN --target late --columns dest_postcode,sender_account --methods target:m=20:logodds --out OUT/o.arrow --tables OUT/t"},
+	{"binary-prefix-prior", "encode IN --target late --columns dest_postcode --methods target:eb:prior=prefix3 --out OUT/o.csv --tables OUT/t"},
+	{"binary-column-prior", "encode IN --target late --columns dest_postcode,sender_account --methods target:eb:prior=column:route --out OUT/o.csv --tables OUT/t"},
 	{"multiclass", "encode IN --target parcel_type --columns dest_postcode,route --methods target,freq --out OUT/o.csv --tables OUT/t"},
 	{"stratified", "encode IN --target late --columns sender_account --fold-by stratified --fold-column fold --out OUT/o.csv --tables OUT/t"},
 	{"group-folds", "encode IN --target late --columns dest_postcode --fold-by group=sender_account --fold-column fold --out OUT/o.csv --tables OUT/t"},
 	{"ordered-scheme", "encode IN --target late --columns route --scheme ordered --out OUT/o.csv --tables OUT/t"},
-	{"unsupervised-min-rows", "encode IN --columns dest_postcode,sender_account --methods freq,topk,hash --freq share --min-level-rows 3 --nulls unseen --out OUT/o.parquet --tables OUT/t"},
+	{"unsupervised-min-rows", "encode IN --columns dest_postcode,sender_account --methods freq:share+topk+hash --min-level-rows 3 --nulls unseen --out OUT/o.parquet --tables OUT/t"},
 }
 
 // TestGoldenOutputs runs goldenRuns on a generated table and compares the

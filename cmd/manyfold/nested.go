@@ -67,8 +67,11 @@ func vetNested(file string, r table.Reader, sp *pipeline.Spec, format tableio.Fo
 	if g, ok := strings.CutPrefix(sp.FoldBy, "group="); ok {
 		group = g
 	}
-	for _, f := range []struct{ flag, name string }{{"--target", sp.Target}, {"--fold-by group=", group},
-		{"--order-by", sp.OrderBy}, {"--prior-by column=", sp.PriorColumn}} {
+	uses := []struct{ flag, name string }{{"--target", sp.Target}, {"--fold-by group=", group}, {"--order-by", sp.OrderBy}}
+	for _, pc := range sp.PriorColumns() {
+		uses = append(uses, struct{ flag, name string }{"prior=column:", pc})
+	}
+	for _, f := range uses {
 		if err := refuseNested(file, f.flag, "read", nested, f.name); err != nil {
 			return nil, err
 		}

@@ -3,9 +3,7 @@ package pipeline
 import (
 	"fmt"
 
-	"manyfold/encoders/colstats"
-	"manyfold/encoders/hashenc"
-	"manyfold/encoders/smooth"
+	"manyfold/encoders/method"
 	"manyfold/io/table"
 )
 
@@ -33,12 +31,12 @@ type Summary struct {
 	Unseen  []int64 // per column: rows whose level was unseen or left out
 }
 
-// outCol is one encoded output column and how to fill it.
+// outCol is one encoding's output columns and how to fill them: encoding
+// enc of column col, or the fold column (col -1).
 type outCol struct {
-	field  table.Field
-	col    int    // index into Model.Cols
-	method string // target, freq, topk, hash, sign, fold
-	output int    // target output
+	fields []table.Field
+	col    int // index into Model.Cols; -1: the fold column
+	enc    int // index into the column's Fits
 }
 
 // OutputSchema returns the schema of the encoded table: the kept input
@@ -64,48 +62,30 @@ func (m *Model) OutputSchema(file string, in *table.Schema, apply bool) (*table.
 		out.Fields = append(out.Fields, in.Fields[i])
 	}
 	var outs []outCol
-	names := m.OutputNames()
-	ni := 0
-	add := func(kind table.Kind, col int, method string, o int) {
-		outs = append(outs, outCol{field: table.Field{Name: names[ni], Kind: kind}, col: col, method: method, output: o})
-		ni++
-	}
 	for ci, c := range m.Cols {
-		for _, meth := range m.Spec.Methods {
-			switch meth {
-			case MethodTarget:
-				for o := 0; o < len(c.Full); o++ {
-					add(table.Float64, ci, meth, o)
-				}
-			case MethodFreq:
-				if m.Spec.FreqShare {
-					add(table.Float64, ci, meth, 0)
-				} else {
-					add(table.Int64, ci, meth, 0)
-				}
-			case MethodTopK:
-				add(table.Int64, ci, meth, 0)
-			case MethodHash:
-				add(table.Int64, ci, meth, 0)
-				if m.Spec.Signed {
-					add(table.Int64, ci, "sign", 0)
-				}
+		for ei, f := range c.Fits {
+			oc := outCol{col: ci, enc: ei}
+			for _, o := range f.Outputs() {
+				oc.fields = append(oc.fields, table.Field{Name: c.Name + "_" + o.Name, Kind: o.Kind})
 			}
+			outs = append(outs, oc)
 		}
 	}
 	if !apply && m.Spec.FoldColumn != "" {
-		outs = append(outs, outCol{field: table.Field{Name: m.Spec.FoldColumn, Kind: table.Int64}, method: "fold"})
+		outs = append(outs, outCol{fields: []table.Field{{Name: m.Spec.FoldColumn, Kind: table.Int64}}, col: -1})
 	}
 	seen := map[string]bool{}
 	for _, f := range out.Fields {
 		seen[f.Name] = true
 	}
 	for _, o := range outs {
-		if seen[o.field.Name] {
-			return nil, nil, nil, usageErr("output column %q would appear twice; drop the input column with --keep or rename it", o.field.Name)
+		for _, f := range o.fields {
+			if seen[f.Name] {
+				return nil, nil, nil, usageErr("output column %q would appear twice; drop the input column with --keep or rename it", f.Name)
+			}
+			seen[f.Name] = true
+			out.Fields = append(out.Fields, f)
 		}
-		seen[o.field.Name] = true
-		out.Fields = append(out.Fields, o.field)
 	}
 	return out, kept, outs, nil
 }
@@ -133,17 +113,21 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 	}
 	sp := &m.Spec
 	training := !opt.Apply
+	pass := method.Apply
+	if training {
+		pass = sp.Scheme
+	}
 	idx := make([]int, len(m.Cols))
 	for i, c := range m.Cols {
 		idx[i] = schema.Index(c.Name)
-		if idx[i] < 0 && !(training && m.replays(c)) {
+		if idx[i] < 0 && !(training && m.replays(i)) {
 			return sum, &ColumnError{File: opt.File, Flag: "the mapping tables", Name: c.Name, Have: schema.Names()}
 		}
 	}
 	var tr *targetReader
 	var fa *foldAssigner
 	if training {
-		if sp.Target != "" && (sp.has(MethodTarget) || sp.FoldBy == "stratified") {
+		if sp.Target != "" && (sp.supervised() || sp.FoldBy == "stratified") {
 			tcol := schema.Index(sp.Target)
 			tr = newTargetReader(opt.File, sp.Target, tcol, schema.Fields[tcol].Kind, m.Task.String(), m.Classes)
 		}
@@ -155,48 +139,53 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 	}
 	slots := make([]levelSlots, len(m.Cols))
 	pslots := make([]levelSlots, len(m.Cols))
-	var running []*runningStats
-	pcol := -1
-	if sp.PriorColumn != "" {
-		if pcol = schema.Index(sp.PriorColumn); pcol < 0 {
-			return sum, &ColumnError{File: opt.File, Flag: "--prior-by column", Name: sp.PriorColumn, Have: schema.Names()}
-		}
-	}
+	rows := make([]method.Rows, len(m.Cols))
+	encoders := make([][]method.Encoder, len(m.Cols))
+	// first[ci] lists the column's encodings in the order they run: those
+	// that read the target first, as they may read each row's level rows
+	// on the way and leave them for the others (method.Rows.LevelRows).
+	first := make([][]int, len(m.Cols))
+	at := make([][]int, len(m.Cols)) // position of each encoding's first output
 	for i, c := range m.Cols {
 		slots[i] = levelSlots{col: idx[i]}
-		if training && m.replays(c) {
+		if training && m.replays(i) {
 			slots[i].replay = c.replay.start()
 		}
-		pslots[i] = levelSlots{col: idx[i], prefix: sp.PriorPrefix}
-		if pcol >= 0 {
-			pslots[i] = levelSlots{col: pcol}
+		if c.Parent != nil {
+			if pc := sp.prior(i).Column; pc != "" {
+				pcol := schema.Index(pc)
+				if pcol < 0 {
+					return sum, &ColumnError{File: opt.File, Flag: "prior=column:" + pc, Name: pc, Have: schema.Names()}
+				}
+				pslots[i] = levelSlots{col: pcol}
+			} else {
+				pslots[i] = levelSlots{col: idx[i], prefix: sp.prior(i).Prefix}
+			}
 		}
-		if training && sp.Scheme == "ordered" && c.Full != nil {
-			running = append(running, newRunning(c))
-		} else {
-			running = append(running, nil)
+		at[i] = make([]int, len(c.Fits))
+		for ei, f := range c.Fits {
+			encoders[i] = append(encoders[i], f.Encoder(pass))
+			if sp.EncodingsOf(i)[ei].Needs().Target {
+				first[i] = append(first[i], ei)
+			}
 		}
-	}
-	// In the training pass with k folds, a binary target's out-of-fold
-	// mean is computed from one read of each row's counts (encodeFolds),
-	// which also gives the row's frequency: fused[oi] is the frequency
-	// output that target output oi fills, and byOther marks it.
-	fused := make([]int, len(outs))
-	byOther := make([]bool, len(outs))
-	fast := make([]bool, len(outs))
-	for oi, oc := range outs {
-		fused[oi] = -1
-		if !training || sp.Scheme != "kfold" || oc.method != MethodTarget || !m.fastFolds(m.Cols[oc.col]) {
-			continue
-		}
-		fast[oi] = true
-		for oj, od := range outs {
-			if od.method == MethodFreq && od.col == oc.col {
-				fused[oi], byOther[oj] = oj, true
+		for ei := range c.Fits {
+			if !sp.EncodingsOf(i)[ei].Needs().Target {
+				first[i] = append(first[i], ei)
 			}
 		}
 	}
-	batch := &table.Batch{Cols: make([]table.Column, len(kept)+len(outs))}
+	foldAt := -1
+	pos := len(kept)
+	for _, oc := range outs {
+		if oc.col < 0 {
+			foldAt = pos
+		} else {
+			at[oc.col][oc.enc] = pos
+		}
+		pos += len(oc.fields)
+	}
+	batch := &table.Batch{Cols: make([]table.Column, pos)}
 	if err := table.ForEach(r, func(b *table.Batch) error {
 		n := b.Rows
 		var cls []int32
@@ -234,126 +223,35 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 				return &table.DataError{File: opt.File, Row: b.FirstRow, Err: fmt.Errorf("the second pass read more rows than the first, %d; the file changed while it was read", m.Rows)}
 			}
 		}
-		colSlots := make([][]int32, len(m.Cols))
-		parSlots := make([][]int32, len(m.Cols))
 		each(len(m.Cols), opt.Threads, func(ci int) {
 			c := m.Cols[ci]
-			colSlots[ci] = slots[ci].fill(b, c.St, false)
+			rw := &rows[ci]
+			rw.Reset(n)
+			rw.Slots = slots[ci].fill(b, c.St, false)
+			rw.ParentSlots = nil
 			if c.Parent != nil {
-				parSlots[ci] = pslots[ci].fill(b, c.Parent.St, false)
+				rw.ParentSlots = pslots[ci].fill(b, c.Parent.St, false)
 			}
-			for _, l := range colSlots[ci] {
+			rw.Fold, rw.Cls, rw.Vals, rw.Values = fold, cls, vals, nil
+			if idx[ci] >= 0 {
+				rw.Values = &b.Cols[idx[ci]]
+			}
+			for _, l := range rw.Slots {
 				if l < 0 || !c.Keep[l] {
 					sum.Unseen[ci]++
 				}
 			}
-		})
-		each(len(outs), opt.Threads, func(oi int) {
-			oc := outs[oi]
-			if byOther[oi] {
-				return
-			}
-			var scratch []byte
-			dst := &batch.Cols[len(kept)+oi]
-			var c *Col
-			var ls, ps []int32
-			if oc.method != "fold" {
-				c = m.Cols[oc.col]
-				ls, ps = colSlots[oc.col], parSlots[oc.col]
-			}
-			switch oc.method {
-			case MethodTarget:
-				fl := floats(dst, n)
-				if fast[oi] {
-					var freq *table.Column
-					if oj := fused[oi]; oj >= 0 {
-						freq = &batch.Cols[len(kept)+oj]
-					}
-					m.encodeFolds(c, ls, fold, fl, freq)
-					break
-				}
-				rs := running[oc.col]
-				for i := 0; i < n; i++ {
-					l := int(ls[i])
-					pl := -1
-					if ps != nil {
-						pl = int(ps[i])
-					}
-					var v float64
-					switch {
-					case !training || sp.Scheme == "none":
-						if sp.PriorColumn != "" {
-							// The prior depends on the row, not only the level.
-							v = m.value(c, l, pl, oc.output, -1, c.Full[oc.output])
-						} else if l >= 0 && c.Keep[l] {
-							v = m.tmean(c, oc.output, l)
-						} else {
-							v = m.value(c, -1, pl, oc.output, -1, c.Full[oc.output])
-						}
-					case sp.Scheme == "kfold":
-						f := int(fold[i])
-						v = m.value(c, l, pl, oc.output, f, c.FoldFit[f][oc.output])
-					case sp.Scheme == "loo":
-						v = m.leaveOneOut(c, l, pl, oc.output, yOf(cls, vals, i))
-					case sp.Scheme == "ordered":
-						v = rs.next(m, l, oc.output, yOf(cls, vals, i))
-					}
-					if sp.Output == "logodds" {
-						v = smooth.LogOdds(v)
-					}
-					fl[i] = v
-				}
-			case MethodFreq:
-				if sp.FreqShare {
-					fl := floats(dst, n)
-					for i, l := range ls {
-						fl[i] = 0
-						if l >= 0 {
-							fl[i] = m.freq(c, int(l))
-						}
-					}
-				} else {
-					in := ints(dst, n)
-					for i, l := range ls {
-						in[i] = 0
-						if l >= 0 {
-							in[i] = int64(m.freq(c, int(l)))
-						}
-					}
-				}
-			case MethodTopK:
-				in := ints(dst, n)
-				for i, l := range ls {
-					in[i] = 0
-					if l >= 0 {
-						in[i] = int64(c.TopK[l])
-					}
-				}
-			case MethodHash, "sign":
-				in := ints(dst, n)
-				src := &b.Cols[idx[oc.col]]
-				for i := 0; i < n; i++ {
-					var v []byte
-					if src.Form == table.FormText || src.Form == table.FormDict {
-						v = src.Bytes(i)
-					} else {
-						scratch = src.AppendText(scratch[:0], i)
-						v = scratch
-					}
-					h := hashenc.Sum(v, sp.HashSeed)
-					if oc.method == "sign" {
-						in[i] = int64(hashenc.Sign(h))
-					} else {
-						in[i] = int64(hashenc.Bucket(h, sp.Buckets))
-					}
-				}
-			case "fold":
-				in := ints(dst, n)
-				for i, f := range fold {
-					in[i] = int64(f)
-				}
+			for _, ei := range first[ci] {
+				k := at[ci][ei]
+				encoders[ci][ei].Encode(rw, batch.Cols[k:k+len(c.Fits[ei].Outputs())])
 			}
 		})
+		if foldAt >= 0 {
+			in := ints(&batch.Cols[foldAt], n)
+			for i, f := range fold {
+				in[i] = int64(f)
+			}
+		}
 		batch.Rows, batch.FirstRow, batch.Lines = n, b.FirstRow, b.Lines
 		if err := w.Write(batch); err != nil {
 			return err
@@ -375,65 +273,12 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 	return sum, nil
 }
 
-// fastFolds reports whether encodeFolds encodes column c: a binary
-// target, no hierarchical prior, values computed from the statistics.
-func (m *Model) fastFolds(c *Col) bool {
-	return m.fastTableValues(c) && c.Freq == nil && m.Spec.PriorColumn == ""
-}
-
-// encodeFolds sets tm[i] to the out-of-fold target mean of row i, whose
-// level slot is ls[i] and fold fold[i] (what value gives with the fold's
-// fit), and, when freq is not nil, fills freq with each row's frequency
-// (what freq gives), from one read of the row's counts
-// (Stats.OutOfFold2s).
-func (m *Model) encodeFolds(c *Col, ls, fold []int32, tm []float64, freq *table.Column) {
-	const part = 512
-	var nb, kb, rb [part]uint64
-	var fi []int64
-	var ff []float64
-	if freq != nil {
-		if m.Spec.FreqShare {
-			ff = floats(freq, len(ls))
-		} else {
-			fi = ints(freq, len(ls))
-		}
-	}
-	logodds := m.Spec.Output == "logodds"
-	for start := 0; start < len(ls); start += part {
-		end := min(start+part, len(ls))
-		ps, pf := ls[start:end], fold[start:end]
-		c.St.OutOfFold2s(ps, pf, m.Pos, nb[:], kb[:], rb[:])
-		for j, l := range ps {
-			i := start + j
-			ft := &c.FoldFit[pf[j]][0]
-			kept := l >= 0 && c.Keep[l]
-			v := ft.Prior
-			if kept {
-				v = ft.Encode(colstats.Agg{N: float64(nb[j]), Sum: float64(kb[j]), SumSq: float64(kb[j])})
-			}
-			if logodds {
-				v = smooth.LogOdds(v)
-			}
-			tm[i] = v
-			if freq == nil {
-				continue
-			}
-			f := 0.0
-			if kept {
-				f = m.freqOf(c, rb[j])
-			}
-			if ff != nil {
-				ff[i] = f
-			} else {
-				fi[i] = int64(f)
-			}
-		}
-	}
-}
-
-// replays says whether the training pass takes column c's level slots
+// replays says whether the training pass takes column i's level slots
 // from the fit's record rather than from its values.
-func (m *Model) replays(c *Col) bool { return c.replay != nil && c.replay.rows == m.Rows }
+func (m *Model) replays(i int) bool {
+	c := m.Cols[i]
+	return c.replay != nil && c.replay.rows == m.Rows
+}
 
 // EncodeReads returns the names of the input columns that Encode reads
 // from its batches, besides the kept ones: the encoded columns, the target
@@ -444,105 +289,17 @@ func (m *Model) replays(c *Col) bool { return c.replay != nil && c.replay.rows =
 func (m *Model) EncodeReads(apply bool) []string {
 	sp := &m.Spec
 	var names []string
-	for _, c := range m.Cols {
-		if apply || !m.replays(c) || sp.has(MethodHash) || sp.PriorPrefix > 0 {
+	for i, c := range m.Cols {
+		if apply || !m.replays(i) || sp.needsValues(i) || sp.prior(i).Prefix > 0 {
 			names = append(names, c.Name)
 		}
 	}
-	for _, n := range []string{sp.Target, sp.PriorColumn, sp.GroupColumn()} {
+	for _, n := range append(sp.priorColumns(), sp.Target, sp.GroupColumn()) {
 		if n != "" {
 			names = append(names, n)
 		}
 	}
 	return names
-}
-
-// yOf returns the target of row i as a class index or value; ok is false
-// when it is unknown.
-func yOf(cls []int32, vals []float64, i int) target {
-	if cls != nil {
-		return target{cls: int(cls[i]), ok: cls[i] >= 0}
-	}
-	if vals != nil {
-		return target{val: vals[i], ok: vals[i] == vals[i]}
-	}
-	return target{}
-}
-
-type target struct {
-	cls int
-	val float64
-	ok  bool
-}
-
-// contribution returns what a row with target t adds to the sum of output o.
-func (m *Model) contribution(t target, o int) float64 {
-	switch m.Task {
-	case colstats.Regression:
-		return t.val - m.Origin // the statistics' sums are about Origin
-	case colstats.Binary:
-		if t.cls == m.Pos {
-			return 1
-		}
-		return 0
-	}
-	if t.cls == o {
-		return 1
-	}
-	return 0
-}
-
-// leaveOneOut encodes a training row from the statistics of all other rows
-// of its level: (s - y + m*p) / (n - 1 + m), the prior and m of all rows.
-// Leave-one-out leaks the row's own label (see the package README).
-func (m *Model) leaveOneOut(c *Col, l, pl, o int, t target) float64 {
-	ft := c.Full[o]
-	if l < 0 || !c.Keep[l] {
-		return m.value(c, -1, pl, o, -1, ft)
-	}
-	a := c.St.Target(l, o, -1, m.Pos)
-	if t.ok {
-		y := m.contribution(t, o)
-		a.N--
-		a.Sum -= y
-		a.SumSq -= y * y
-	}
-	if c.Parent != nil {
-		ft.Prior = m.value(c, -1, pl, o, -1, ft)
-	}
-	return ft.Encode(a)
-}
-
-// runningStats holds, for the ordered scheme, the statistics of the rows
-// read so far of every level.
-type runningStats struct {
-	col  *Col
-	outs int
-	agg  []colstats.Agg // [slot*outs + o]
-}
-
-func newRunning(c *Col) *runningStats {
-	return &runningStats{col: c, outs: len(c.Full), agg: make([]colstats.Agg, c.St.NumLevels()*len(c.Full))}
-}
-
-// next encodes a row of slot l from the rows before it, the m-estimate or
-// blend of their statistics with the prior and m of all rows (the ordered
-// target statistic), then counts the row. Each output keeps statistics of
-// its own, so outputs may be encoded one after another over a batch.
-func (rs *runningStats) next(m *Model, l, o int, t target) float64 {
-	ft := rs.col.Full[o]
-	if l < 0 || !rs.col.Keep[l] {
-		return ft.Prior
-	}
-	a := &rs.agg[l*rs.outs+o]
-	v := ft.Encode(*a)
-	if t.ok {
-		y := m.contribution(t, o)
-		a.N++
-		a.Sum += y
-		a.SumSq += y * y
-	}
-	return v
 }
 
 func floats(c *table.Column, n int) []float64 {

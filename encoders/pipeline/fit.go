@@ -7,6 +7,7 @@ import (
 	"sync"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/method"
 	"manyfold/internal/guard"
 	"manyfold/internal/hugemem"
 	"manyfold/io/table"
@@ -38,32 +39,28 @@ type Col struct {
 	St    *colstats.Stats
 	Keep  []bool // per slot: counted as seen (min-level-rows, nulls unseen)
 
-	// Derived from all fitting rows, per slot (and per output for TMean).
-	// A fitted column leaves TMean and Freq nil and computes them on demand
-	// (tmean, freq), which saves 16 bytes a level; a column loaded from
-	// mapping tables holds the stored values.
-	TMean [][]float64
-	Freq  []float64
-	// TopK[l] is the top-k code of slot l (0: other). When the encoding
-	// does not ask for top-k codes, only the mapping table needs them:
-	// TopK is then nil and topCodes holds the k coded slots.
-	TopK     []int32
-	topCodes map[int32]int32
-	Order    []uint32          // slots in canonical order (Stats.Sorted), once order has run
-	ordered  sync.Once         // guards Order
-	total    float64           // rows of all levels, for frequency shares
-	Full     []colstats.Fitted // per output
-	// Per fold f and output o, the fit over the rows of the other folds.
-	FoldFit [][]colstats.Fitted
+	// Fits are the column's encodings, fitted (or loaded from its mapping
+	// table), in the spec's order.
+	Fits []method.Fitted
+	// info is what the encodings see of the column.
+	info *method.Column
 
-	// Hierarchical prior: the parent levels and, with PriorPrefix, each
-	// slot's parent. With PriorColumn the parent is the row's value of that
-	// column, shared by every encoded column, and ParentOf is nil.
+	Order   []uint32  // slots in canonical order (Stats.Sorted), once order has run
+	ordered sync.Once // guards Order
+	total   float64   // rows of all levels, for frequency shares
+
+	// Hierarchical prior: the parent levels and, with a prefix prior, each
+	// slot's parent. With a column prior the parent is the row's value of
+	// that column, shared by every column with that prior, and ParentOf is
+	// nil.
 	Parent   *Col
 	ParentOf []int32
-	// nest, with --prior-by column, records for each level the parent of
-	// its rows: the slot of the parent level all of them had, noParent
-	// before the first, or mixedParents when they had several (see
+	// parentAt is, with a column prior, the parent's position among the
+	// columns the fit gathers (see Fit).
+	parentAt int
+	// nest, with a column prior, records for each level the parent of its
+	// rows: the slot of the parent level all of them had, noParent before
+	// the first, or mixedParents when they had several (see
 	// Stats.Parents).
 	nest []int32
 	// rowSlots, for a column loaded from a mapping table, is the slot of
@@ -101,7 +98,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	}
 	schema := r.Schema()
 	m := &Model{Spec: sp, Input: append([]table.Field(nil), schema.Fields...), threads: opt.Threads}
-	needTarget := sp.has(MethodTarget) || sp.FoldBy == "stratified"
+	needTarget := sp.supervised() || sp.FoldBy == "stratified"
 	tcol := -1
 	if sp.Target != "" {
 		tcol = schema.Index(sp.Target)
@@ -157,28 +154,29 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	for i, c := range m.Cols {
 		slots[i] = levelSlots{col: c.Index, nullSlot: 0, settle: true}
 	}
-	// With --prior-by column=COL the parent levels are that column's
-	// values, gathered like an encoded column's and shared by all columns.
-	var parent *Col
-	var pslots levelSlots
-	if sp.PriorColumn != "" && tcol >= 0 {
-		i := schema.Index(sp.PriorColumn)
-		if i < 0 {
-			return nil, &ColumnError{File: opt.File, Flag: "--prior-by column", Name: sp.PriorColumn, Have: schema.Names()}
-		}
-		if i == tcol {
-			return nil, usageErr("--prior-by column=%s is the target", sp.PriorColumn)
-		}
-		parent = &Col{Name: sp.PriorColumn, Kind: schema.Fields[i].Kind, Index: i}
-		pslots = levelSlots{col: i, settle: true}
-		for _, c := range m.Cols {
-			c.nest = []int32{}
-		}
-	}
+	// With a column prior (prior=column:COL) the parent levels are that
+	// column's values, gathered like an encoded column's and shared by
+	// every column with that prior.
 	all := m.Cols
-	if parent != nil {
-		all = append(append([]*Col(nil), m.Cols...), parent)
-		slots = append(slots, pslots)
+	if tcol >= 0 {
+		for _, name := range sp.priorColumns() {
+			i := schema.Index(name)
+			if i < 0 {
+				return nil, &ColumnError{File: opt.File, Flag: "prior=column:" + name, Name: name, Have: schema.Names()}
+			}
+			if i == tcol {
+				return nil, usageErr("prior=column:%s is the target", name)
+			}
+			parent := &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i}
+			at := len(all)
+			for ci, c := range m.Cols {
+				if sp.prior(ci).Column == name {
+					c.Parent, c.parentAt, c.nest = parent, at, []int32{}
+				}
+			}
+			all = append(all[:len(all):len(all)], parent)
+			slots = append(slots, levelSlots{col: i, settle: true})
+		}
 	}
 
 	// The row count, when the reader knows it before reading (Parquet).
@@ -340,10 +338,11 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		}
 		m.Pos = len(labels) - 1
 	}
-	if parent != nil {
-		parent.St.Task = m.Task
-		for _, c := range m.Cols {
-			c.Parent = parent
+	for _, p := range all[len(m.Cols):] {
+		p.St.Task = m.Task
+	}
+	for _, c := range m.Cols {
+		if c.nest != nil {
 			for l, p := range c.nest {
 				if p == noParent {
 					c.nest[l] = mixedParents
@@ -352,19 +351,10 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			c.St.Parents = c.nest
 		}
 	}
-	for _, c := range m.Cols {
+	for ci, c := range m.Cols {
 		c.St.Task = m.Task
-		if sp.PriorPrefix > 0 && tr != nil {
-			n := sp.PriorPrefix
-			ps, of := c.St.Rollup(func(b []byte) []byte {
-				if len(b) > n {
-					return b[:n]
-				}
-				return b
-			})
-			c.Parent = &Col{Name: c.Name + " prefix", St: ps}
-			c.ParentOf = of
-			c.St.Parents = of
+		if n := sp.prior(ci).Prefix; n > 0 && tr != nil {
+			c.rollup(n)
 		}
 	}
 	if opt.Tables && opt.Threads >= 2 {
@@ -377,8 +367,40 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			}
 		})
 	}
+	if err := m.checkTask(); err != nil {
+		return nil, usageErr("%s: %v", opt.File, err)
+	}
 	m.deriveAll(tr != nil, opt.Threads)
 	return m, nil
+}
+
+// checkTask reports an encoding that cannot serve the fitted target.
+func (m *Model) checkTask() error {
+	if m.Cols[0].St.Task == colstats.Binary && m.Classes == nil {
+		return nil // no target
+	}
+	for i, c := range m.Cols {
+		for _, e := range m.Spec.EncodingsOf(i) {
+			if err := e.Check(m.Task, len(m.Classes)); err != nil {
+				return fmt.Errorf("column %q: %w", c.Name, err)
+			}
+		}
+	}
+	return nil
+}
+
+// rollup makes the parent levels of a prefix prior: the first n bytes of
+// each level.
+func (c *Col) rollup(n int) {
+	ps, of := c.St.Rollup(func(b []byte) []byte {
+		if len(b) > n {
+			return b[:n]
+		}
+		return b
+	})
+	c.Parent = &Col{Name: c.Name + " prefix", St: ps}
+	c.ParentOf = of
+	c.St.Parents = of
 }
 
 // batchCounts is what counting a batch's rows needs once the batch itself
@@ -427,8 +449,8 @@ func (m *Model) count(c *Col, bc *batchCounts, ci int, supervised, regress bool)
 	st.Settle(bc.levels[ci])
 	ls := bc.slots[ci]
 	if c.nest != nil {
-		// With --prior-by column the parent's slots are the last column's.
-		ps := bc.slots[len(bc.slots)-1]
+		// With a column prior the parent's slots are its column's.
+		ps := bc.slots[c.parentAt]
 		for len(c.nest) < st.NumLevels() {
 			c.nest = append(c.nest, noParent)
 		}
@@ -481,23 +503,34 @@ func byLevels(cols []*Col) []int {
 	return idx
 }
 
-// deriveAll derives every column, threads at a time: a parent shared by
-// several columns (--prior-by column) is derived first, then the columns,
-// each of which writes only its own Col, so the result does not depend on
-// the number of threads.
+// deriveAll derives every column, threads at a time: the parents that
+// several columns may share (column priors) first, then the columns, each
+// of which writes only its own Col, so the result does not depend on the
+// number of threads.
 func (m *Model) deriveAll(supervised bool, threads int) {
-	if supervised {
-		for _, c := range m.Cols {
-			m.deriveParent(c)
+	for _, c := range m.Cols {
+		if c.Parent != nil && c.Parent.info == nil {
+			m.describe(c.Parent, supervised, nil)
 		}
 	}
-	each(len(m.Cols), threads, func(i int) { m.derive(m.Cols[i], supervised) })
+	each(len(m.Cols), threads, func(i int) { m.derive(i, m.Cols[i], supervised) })
 }
 
-// derive computes the seen flags and every value derived from the
-// statistics of c: full-data fits and encodings, per-fold fits, frequency
-// and top-k codes.
-func (m *Model) derive(c *Col, supervised bool) {
+// derive computes the seen flags of column i and fits its encodings.
+func (m *Model) derive(i int, c *Col, supervised bool) {
+	if c.Parent != nil && c.Parent.info == nil {
+		m.describe(c.Parent, supervised, nil)
+	}
+	m.describe(c, supervised, c.Parent)
+	c.Fits = make([]method.Fitted, 0, len(m.Spec.EncodingsOf(i)))
+	for _, e := range m.Spec.EncodingsOf(i) {
+		c.Fits = append(c.Fits, e.Fit(c.info))
+	}
+}
+
+// describe computes the seen flags and row total of c and what the
+// encodings see of it.
+func (m *Model) describe(c *Col, supervised bool, parent *Col) {
 	sp := &m.Spec
 	st := c.St
 	n := st.NumLevels()
@@ -518,95 +551,35 @@ func (m *Model) derive(c *Col, supervised bool) {
 	if sp.NullsUnseen {
 		c.Keep[0] = false
 	}
-	// The canonical order is needed here only where float sums over the
-	// levels depend on their order (empirical-Bayes moments, regression
-	// sums); otherwise it is sorted when the mapping tables are written,
-	// beside the second pass.
-	var order []uint32
-	if supervised && (st.Task == colstats.Regression || sp.Smoothing.Kind == "auto") {
-		order = c.order()
-	}
-	if sp.has(MethodTopK) {
-		c.TopK = st.TopK(sp.TopK, sp.MinCount, c.Keep)
-	} else {
-		// Keep the k coded slots, not a code for every level.
-		c.topCodes = map[int32]int32{}
-		for r, l := range st.TopKSlots(sp.TopK, sp.MinCount, c.Keep) {
-			c.topCodes[int32(l)] = int32(r + 1)
-		}
-	}
-	if !supervised {
-		return
-	}
-	m.deriveParent(c)
-	c.Full, c.FoldFit = st.FitFolds(m.Pos, sp.Smoothing, c.Keep, order)
+	m.setInfo(c, supervised, parent)
 }
 
-// deriveParent derives the parent levels of c, if it has some not yet
-// derived, and their full-data encoded values.
-func (m *Model) deriveParent(c *Col) {
-	if c.Parent == nil || c.Parent.Full != nil {
-		return
-	}
-	m.derive(c.Parent, true)
-	p := c.Parent
-	p.TMean = make([][]float64, len(p.Full))
-	for o := range p.Full {
-		p.TMean[o] = make([]float64, p.St.NumLevels())
-		for l := range p.TMean[o] {
-			p.TMean[o][l] = m.value(p, l, -1, o, -1, p.Full[o])
-		}
+// setInfo sets what the encodings see of c.
+func (m *Model) setInfo(c *Col, supervised bool, parent *Col) {
+	c.info = &method.Column{Name: c.Name, St: c.St, Keep: c.Keep, Total: c.total, Distinct: c.distinct(),
+		Supervised: supervised, Task: m.Task, Classes: m.Classes, Pos: m.Pos, ParentOf: c.ParentOf, Order: c.order}
+	if parent != nil {
+		c.info.Parent = parent.info
 	}
 }
 
-// value encodes level slot l (-1: unseen) for output o from the rows of all
-// folds but exclude, with fit ft. pl is the slot of the level's parent (-1:
-// unseen) when the column has a hierarchical prior. An unseen or left-out
-// level gets the prior: the global one, or its parent's value.
-func (m *Model) value(c *Col, l, pl, o, exclude int, ft colstats.Fitted) float64 {
-	if c.Parent != nil {
-		p := c.Parent
-		pft := p.Full[o]
-		if exclude >= 0 {
-			pft = p.FoldFit[exclude][o]
-		}
-		if pl < 0 || !p.Keep[pl] {
-			ft.Prior = pft.Prior
-		} else if exclude < 0 && p.TMean != nil {
-			ft.Prior = p.TMean[o][pl]
-		} else {
-			ft.Prior = pft.Encode(p.St.Target(pl, o, exclude, m.Pos))
-		}
+// distinct returns the number of levels with rows, the null level
+// included when it has rows.
+func (c *Col) distinct() int {
+	n := c.St.Levels.Len()
+	if c.St.RowCount(0) > 0 {
+		n++
 	}
-	if l < 0 || !c.Keep[l] {
-		return ft.Prior
-	}
-	return ft.Encode(c.St.Target(l, o, exclude, m.Pos))
+	return n
 }
 
 // OutputNames returns the names of the encoded columns in output order.
 func (m *Model) OutputNames() []string {
 	var out []string
 	for _, c := range m.Cols {
-		for _, meth := range m.Spec.Methods {
-			switch meth {
-			case MethodTarget:
-				if m.Task == colstats.Multiclass {
-					for _, cl := range m.Classes {
-						out = append(out, c.Name+"_tmean_"+cl)
-					}
-				} else {
-					out = append(out, c.Name+"_tmean")
-				}
-			case MethodFreq:
-				out = append(out, c.Name+"_freq")
-			case MethodTopK:
-				out = append(out, c.Name+"_topk")
-			case MethodHash:
-				out = append(out, c.Name+"_hash")
-				if m.Spec.Signed {
-					out = append(out, c.Name+"_hash_sign")
-				}
+		for _, f := range c.Fits {
+			for _, o := range f.Outputs() {
+				out = append(out, c.Name+"_"+o.Name)
 			}
 		}
 	}
@@ -615,14 +588,7 @@ func (m *Model) OutputNames() []string {
 
 // Levels returns the number of distinct levels of column i seen in the fit,
 // the null level included when it has rows.
-func (m *Model) Levels(i int) int {
-	st := m.Cols[i].St
-	n := st.Levels.Len()
-	if st.RowCount(0) > 0 {
-		n++
-	}
-	return n
-}
+func (m *Model) Levels(i int) int { return m.Cols[i].distinct() }
 
 // ColumnError reports a column named on the command line that the input
 // does not have, with the closest names it does have.
@@ -639,50 +605,6 @@ func (e *ColumnError) Error() string {
 		msg += "; closest: " + joinQuoted(near)
 	}
 	return msg
-}
-
-// parentOf returns the parent slot of slot l, or -1.
-func (c *Col) parentOf(l int) int {
-	if c.ParentOf == nil || l < 0 {
-		return -1
-	}
-	return int(c.ParentOf[l])
-}
-
-// tmean returns the full-data encoded value of slot l for output o.
-func (m *Model) tmean(c *Col, o, l int) float64 {
-	if c.TMean != nil {
-		return c.TMean[o][l]
-	}
-	return m.value(c, l, c.parentOf(l), o, -1, c.Full[o])
-}
-
-// topCode returns the top-k code of slot l (0: other).
-func (c *Col) topCode(l int) int32 {
-	if c.TopK != nil {
-		return c.TopK[l]
-	}
-	return c.topCodes[int32(l)]
-}
-
-// freq returns the frequency of slot l: its rows, or their share of all
-// fitting rows; 0 for a level left out.
-func (m *Model) freq(c *Col, l int) float64 {
-	if c.Freq != nil {
-		return c.Freq[l]
-	}
-	if !c.Keep[l] {
-		return 0
-	}
-	return m.freqOf(c, c.St.RowCount(l))
-}
-
-// freqOf returns the frequency of a kept level of c with rows rows.
-func (m *Model) freqOf(c *Col, rows uint64) float64 {
-	if m.Spec.FreqShare {
-		return float64(rows) / c.total
-	}
-	return float64(rows)
 }
 
 // order returns the slots in canonical order.

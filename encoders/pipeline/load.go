@@ -1,7 +1,6 @@
 package pipeline
 
 import (
-	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -9,14 +8,14 @@ import (
 	"math"
 	"os"
 	"path/filepath"
-	"reflect"
 	"strconv"
 	"strings"
 
 	"github.com/cespare/xxhash/v2"
 
 	"manyfold/encoders/colstats"
-	"manyfold/encoders/hashenc"
+	"manyfold/encoders/method"
+	"manyfold/internal/strictjson"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
 )
@@ -56,39 +55,86 @@ func LoadTables(dir string) (*Model, error) {
 		m.Task, _ = colstats.ParseTask(mf.Task) // checked
 		m.Pos = len(m.Classes) - 1
 	}
-	for _, mc := range mf.Columns {
-		k, _ := table.ParseKind(mc.Type) // checked
-		c, err := m.loadCol(dir, mc.Table, mc.TableSum, supervised, mc.Prior, mc.M, mc.Stored)
+	for i, mc := range mf.Columns {
+		c, err := m.loadColumn(dir, i, &mc, supervised)
 		if err != nil {
 			return nil, err
-		}
-		if supervised && mc.ParentTable == "" {
-			if err := m.checkEncoded(c); err != nil {
-				return nil, &ManifestError{Dir: filepath.Join(dir, mc.Table), Msg: err.Error()}
-			}
-		}
-		c.Name, c.Kind = mc.Name, k
-		if mc.ParentTable != "" {
-			p, err := m.loadCol(dir, mc.ParentTable, mc.ParentSum, supervised, mc.ParentPrior, mc.ParentM, -1)
-			if err != nil {
-				return nil, err
-			}
-			c.Parent = p
-			if c.nest != nil { // parent rows to the parent's slots
-				for l, r := range c.nest {
-					if int(r) >= len(p.rowSlots) {
-						return nil, &ManifestError{Dir: filepath.Join(dir, mc.Table), Msg: fmt.Sprintf("parent_row %d: the parent table has %d rows", r, len(p.rowSlots))}
-					}
-					if r >= 0 {
-						c.nest[l] = p.rowSlots[r]
-					}
-				}
-				c.St.Parents = c.nest
-			}
 		}
 		m.Cols = append(m.Cols, c)
 	}
 	return m, nil
+}
+
+// loadColumn reads the tables of column i: its encodings from the manifest,
+// then its table and its parent levels' table, each value checked.
+func (m *Model) loadColumn(dir string, i int, mc *ManifestCol, supervised bool) (*Col, error) {
+	k, _ := table.ParseKind(mc.Type) // checked
+	c := m.newLoaded(mc.Name, k, supervised)
+	if mc.ParentTable != "" {
+		c.Parent = m.newLoaded(mc.Name+" parents", table.String, supervised)
+		if m.Spec.prior(i).Column != "" {
+			c.nest = []int32{}
+		}
+	}
+	if c.Parent != nil {
+		m.setInfo(c.Parent, supervised, nil)
+	}
+	m.setInfo(c, supervised, c.Parent)
+	for ei, e := range m.Spec.EncodingsOf(i) {
+		f, err := e.Load(c.info, mc.Encodings[ei].Fit)
+		if err != nil {
+			return nil, &ManifestError{Dir: dir, Msg: fmt.Sprintf("%s: columns[%d].encodings[%d].fit: %v", ManifestName, i, ei, err)}
+		}
+		c.Fits = append(c.Fits, f)
+	}
+	if err := m.loadTable(dir, mc.Table, mc.TableSum, c, false, mc.Stored); err != nil {
+		return nil, err
+	}
+	if p := c.Parent; p != nil {
+		if err := m.loadTable(dir, mc.ParentTable, mc.ParentSum, c, true, -1); err != nil {
+			return nil, err
+		}
+		if m.Spec.prior(i).Prefix > 0 {
+			c.ParentOf = make([]int32, c.St.NumLevels())
+			for l := range c.ParentOf {
+				c.ParentOf[l] = -1
+				if l > 0 {
+					b := c.St.Bytes(l)
+					c.ParentOf[l] = int32(p.St.Lookup(b[:min(len(b), m.Spec.prior(i).Prefix)]))
+				}
+			}
+			c.info.ParentOf = c.ParentOf
+		}
+		if c.nest != nil { // parent rows to the parent's slots
+			for l, r := range c.nest {
+				if int(r) >= len(p.rowSlots) {
+					return nil, &ManifestError{Dir: filepath.Join(dir, mc.Table), Msg: fmt.Sprintf("parent_row %d: the parent table has %d rows", r, len(p.rowSlots))}
+				}
+				if r >= 0 {
+					c.nest[l] = p.rowSlots[r]
+				}
+			}
+			c.St.Parents = c.nest
+		}
+	}
+	for _, f := range c.Fits {
+		if err := f.Finish(); err != nil {
+			return nil, &ManifestError{Dir: filepath.Join(dir, mc.Table), Msg: err.Error()}
+		}
+	}
+	return c, nil
+}
+
+// newLoaded returns an empty column of a loaded model: statistics of one
+// fold, no level seen.
+func (m *Model) newLoaded(name string, k table.Kind, supervised bool) *Col {
+	task := m.Task
+	if !supervised {
+		task = colstats.Binary
+	}
+	st := colstats.New(task, 1, len(m.Classes), 1024)
+	st.Origin = m.Origin
+	return &Col{Name: name, Kind: k, St: st, Keep: []bool{false}}
 }
 
 // readManifest reads and decodes the manifest of dir: a regular file of at
@@ -125,72 +171,11 @@ func readManifest(dir string) (*Manifest, error) {
 	if head.Tool != Version {
 		return nil, &ManifestError{Dir: dir, Msg: fmt.Sprintf("mapping tables written by manyfold %s; this is manyfold %s: refit them with this version", head.Tool, Version)}
 	}
-	if err := requireFields(data, reflect.TypeOf(Manifest{}), ""); err != nil {
-		return nil, bad("%v", err)
-	}
-	dec := json.NewDecoder(bytes.NewReader(data))
-	dec.DisallowUnknownFields()
 	var mf Manifest
-	if err := dec.Decode(&mf); err != nil {
+	if err := strictjson.Decode(data, &mf); err != nil {
 		return nil, bad("%v", err)
-	}
-	if _, err := dec.Token(); err != io.EOF {
-		return nil, bad("more data after the manifest's object")
 	}
 	return &mf, nil
-}
-
-// requireFields checks that the JSON object data has every field of the
-// struct type t whose tag does not say omitempty, not null, and so on down
-// the nested structs and slices of structs; at names the object in errors.
-func requireFields(data []byte, t reflect.Type, at string) error {
-	var obj map[string]json.RawMessage
-	if err := json.Unmarshal(data, &obj); err != nil {
-		return fmt.Errorf("%s: %v", orTop(at), err)
-	}
-	for i := 0; i < t.NumField(); i++ {
-		f := t.Field(i)
-		name, opts, _ := strings.Cut(f.Tag.Get("json"), ",")
-		if name == "" || name == "-" {
-			continue
-		}
-		path := name
-		if at != "" {
-			path = at + "." + name
-		}
-		raw, ok := obj[name]
-		if !ok || string(raw) == "null" {
-			if strings.Contains(opts, "omitempty") {
-				continue
-			}
-			return fmt.Errorf("%s is missing", path)
-		}
-		ft := f.Type
-		switch {
-		case ft.Kind() == reflect.Struct:
-			if err := requireFields(raw, ft, path); err != nil {
-				return err
-			}
-		case ft.Kind() == reflect.Slice && ft.Elem().Kind() == reflect.Struct:
-			var elems []json.RawMessage
-			if err := json.Unmarshal(raw, &elems); err != nil {
-				return fmt.Errorf("%s: %v", path, err)
-			}
-			for j, e := range elems {
-				if err := requireFields(e, ft.Elem(), fmt.Sprintf("%s[%d]", path, j)); err != nil {
-					return err
-				}
-			}
-		}
-	}
-	return nil
-}
-
-func orTop(at string) string {
-	if at == "" {
-		return "the manifest"
-	}
-	return at
 }
 
 // check verifies every field of the manifest against its domain and the
@@ -209,16 +194,8 @@ func (mf *Manifest) check() (Spec, error) {
 		return Spec{}, err
 	}
 	supervised := mf.Task != ""
-	outs := 0
-	if supervised {
-		outs = 1
-		if task == colstats.Multiclass {
-			outs = len(mf.Classes)
-		}
-	}
-	hier := supervised && (sp.PriorPrefix > 0 || sp.PriorColumn != "")
 	for i := range mf.Columns {
-		if err := mf.checkColumn(i, kinds, task, outs, hier, sp.Smoothing); err != nil {
+		if err := mf.checkColumn(i, kinds, task, supervised, &sp); err != nil {
 			return Spec{}, err
 		}
 	}
@@ -292,48 +269,40 @@ func (mf *Manifest) checkTarget(kinds map[string]table.Kind) (colstats.Task, err
 	return task, nil
 }
 
-// checkParams checks the parameters and returns the job they describe.
+// checkParams checks the parameters and the columns' encodings and
+// returns the job they describe.
 func (mf *Manifest) checkParams(kinds map[string]table.Kind) (Spec, error) {
 	p := &mf.Params
-	switch {
-	case p.Freq != "count" && p.Freq != "share":
-		return Spec{}, fmt.Errorf("params.freq %q: want count or share", p.Freq)
-	case p.Nulls != "level" && p.Nulls != "unseen":
+	if p.Nulls != "level" && p.Nulls != "unseen" {
 		return Spec{}, fmt.Errorf("params.nulls %q: want level or unseen", p.Nulls)
-	case p.PriorPrefix < 0:
-		return Spec{}, fmt.Errorf("params.prior_prefix %d: want 0 or more", p.PriorPrefix)
 	}
 	sp, err := specFrom(mf)
 	if err != nil {
-		return Spec{}, fmt.Errorf("params.smoothing: %v", err)
+		return Spec{}, err
 	}
 	if err := sp.Validate(); err != nil {
 		return Spec{}, fmt.Errorf("params: %v", err)
 	}
-	seen := map[string]bool{}
-	for _, m := range p.Methods {
-		if seen[m] {
-			return Spec{}, fmt.Errorf("params.methods names %q twice", m)
-		}
-		seen[m] = true
-	}
 	if mf.Task == "" && sp.FoldBy == "stratified" {
 		return Spec{}, errors.New("params.fold_by is stratified but task is empty")
 	}
-	if mf.Task != "" && !sp.has(MethodTarget) && sp.FoldBy != "stratified" {
-		return Spec{}, fmt.Errorf("task %q but neither the target method nor stratified folds", mf.Task)
+	if mf.Task == "" && sp.supervised() {
+		return Spec{}, errors.New("an encoding reads the target but task is empty")
 	}
-	if c := sp.PriorColumn; c != "" {
+	if mf.Task != "" && !sp.supervised() && sp.FoldBy != "stratified" {
+		return Spec{}, fmt.Errorf("task %q but no encoding reads the target and the folds are not stratified", mf.Task)
+	}
+	for _, c := range sp.priorColumns() {
 		if _, ok := kinds[c]; !ok {
-			return Spec{}, fmt.Errorf("params.prior_column %q is not among the input columns", c)
+			return Spec{}, fmt.Errorf("prior=column:%s: %q is not among the input columns", c, c)
 		}
 	}
 	return sp, nil
 }
 
-// checkColumn checks columns[i]: outs values of priors and smoothing
-// weights (0 without a target), parent tables when hier.
-func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstats.Task, outs int, hier bool, sm colstats.Smoothing) error {
+// checkColumn checks columns[i]: its name, type, level counts, table and
+// parent table.
+func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstats.Task, supervised bool, sp *Spec) error {
 	c := &mf.Columns[i]
 	at := fmt.Sprintf("columns[%d]", i)
 	k, err := table.ParseKind(c.Type)
@@ -359,29 +328,26 @@ func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstat
 	if err := checkSum(at+".table_xxh64", c.TableSum); err != nil {
 		return err
 	}
-	rate := task != colstats.Regression
-	if err := checkFits(at, "prior", "m", c.Prior, c.M, outs, rate, sm); err != nil {
-		return err
+	if supervised {
+		for ei, e := range sp.EncodingsOf(i) {
+			if err := e.Check(task, len(mf.Classes)); err != nil {
+				return fmt.Errorf("%s.encodings[%d]: %v", at, ei, err)
+			}
+		}
 	}
-	if !hier {
-		switch {
-		case c.ParentTable != "":
-			return fmt.Errorf("%s.parent_table %q, but the fit has no hierarchical prior", at, c.ParentTable)
-		case c.ParentSum != "" || len(c.ParentPrior) > 0 || len(c.ParentM) > 0:
-			return fmt.Errorf("%s has parent values, but the fit has no hierarchical prior", at)
+	if !supervised || sp.prior(i).None() {
+		if c.ParentTable != "" || c.ParentSum != "" {
+			return fmt.Errorf("%s.parent_table %q, but the column has no hierarchical prior", at, c.ParentTable)
 		}
 		return nil
 	}
 	if c.ParentTable == "" {
-		return fmt.Errorf("%s.parent_table is missing; the fit has a hierarchical prior", at)
+		return fmt.Errorf("%s.parent_table is missing; the column has a hierarchical prior", at)
 	}
 	if err := checkTableName(at+".parent_table", c.ParentTable, strings.TrimSuffix(c.Table, ".parquet")+".parents.parquet"); err != nil {
 		return err
 	}
-	if err := checkSum(at+".parent_table_xxh64", c.ParentSum); err != nil {
-		return err
-	}
-	return checkFits(at, "parent_prior", "parent_m", c.ParentPrior, c.ParentM, outs, rate, sm)
+	return checkSum(at+".parent_table_xxh64", c.ParentSum)
 }
 
 // checkTableName checks that the table named at field is a plain file name
@@ -407,59 +373,34 @@ func checkSum(field, s string) error {
 	return nil
 }
 
-// checkFits checks a column's priors and smoothing weights: outs of each,
-// priors finite (within [0, 1] for a rate), weights null (infinite) or at
-// least 0: the m of params.smoothing m=M, null for a blend.
-func checkFits(at, priorName, mName string, prior, ms []*float64, outs int, rate bool, sm colstats.Smoothing) error {
-	if len(prior) != outs {
-		return fmt.Errorf("%s.%s has %d values; the target implies %d", at, priorName, len(prior), outs)
-	}
-	if len(ms) != outs {
-		return fmt.Errorf("%s.%s has %d values; the target implies %d", at, mName, len(ms), outs)
-	}
-	for o := 0; o < outs; o++ {
-		p := prior[o]
-		switch {
-		case p == nil || math.IsNaN(*p) || math.IsInf(*p, 0):
-			return fmt.Errorf("%s.%s[%d] is not a number", at, priorName, o)
-		case rate && (*p < 0 || *p > 1):
-			return fmt.Errorf("%s.%s[%d] is %g, not a rate", at, priorName, o, *p)
-		}
-		m := ms[o]
-		switch {
-		case m != nil && !(*m >= 0):
-			return fmt.Errorf("%s.%s[%d] is %g; want a number >= 0 or null (infinite)", at, mName, o, *m)
-		case sm.Kind == "m" && (m == nil || *m != sm.M):
-			return fmt.Errorf("%s.%s[%d] is %s, but params.smoothing is m=%g", at, mName, o, optText(m), sm.M)
-		case sm.Kind == "blend" && m != nil:
-			return fmt.Errorf("%s.%s[%d] is %g, but params.smoothing is a blend, which has no m", at, mName, o, *m)
-		}
-	}
-	return nil
-}
-
-// optText prints an optional number, null when absent.
-func optText(p *float64) string {
-	if p == nil {
-		return "null"
-	}
-	return strconv.FormatFloat(*p, 'g', -1, 64)
-}
-
-// specFrom returns the job the manifest's parameters describe.
+// specFrom returns the job the manifest's parameters and the columns'
+// encodings describe.
 func specFrom(mf *Manifest) (Spec, error) {
 	p := mf.Params
-	sm, err := ParseSmoothing(p.Smoothing)
-	if err != nil {
-		return Spec{}, err
+	scheme, ok := method.ParseScheme(p.Scheme)
+	if !ok {
+		return Spec{}, fmt.Errorf("params.scheme %q: want kfold, loo, ordered or none", p.Scheme)
 	}
-	sp := Spec{Target: mf.Target, Methods: p.Methods, Task: mf.Task, Folds: p.Folds, FoldBy: p.FoldBy, Seed: p.Seed,
-		Scheme: p.Scheme, Smoothing: sm, PriorPrefix: p.PriorPrefix, PriorColumn: p.PriorColumn, Output: p.Output, FreqShare: p.Freq == "share",
-		TopK: p.TopK, MinCount: p.MinCount, Buckets: p.Buckets, HashSeed: p.HashSeed, Signed: p.Signed,
-		MinLevelRows: p.MinLevelRows, NullsUnseen: p.Nulls == "unseen", KeepAll: true}
-	sp.Smoothing.Interior = sp.Output == "logodds" // as Validate sets it
-	for _, c := range mf.Columns {
+	sp := Spec{Target: mf.Target, Task: mf.Task, Folds: p.Folds, FoldBy: p.FoldBy, Seed: p.Seed,
+		Scheme: scheme, MinLevelRows: p.MinLevelRows, NullsUnseen: p.Nulls == "unseen", KeepAll: true}
+	sp.Encodings.PerColumn = []method.ColumnEncodings{}
+	for i, c := range mf.Columns {
+		if len(c.Encodings) == 0 {
+			return Spec{}, fmt.Errorf("columns[%d].encodings is empty", i)
+		}
+		var encs []method.Encoding
+		for ei, me := range c.Encodings {
+			e, err := method.Parse(me.Encoding)
+			if err != nil {
+				return Spec{}, fmt.Errorf("columns[%d].encodings[%d]: %v", i, ei, err)
+			}
+			if e.String() != me.Encoding {
+				return Spec{}, fmt.Errorf("columns[%d].encodings[%d]: %q is not written as manyfold writes it (%q)", i, ei, me.Encoding, e.String())
+			}
+			encs = append(encs, e)
+		}
 		sp.Columns = append(sp.Columns, c.Name)
+		sp.Encodings.PerColumn = append(sp.Encodings.PerColumn, method.ColumnEncodings{Column: c.Name, Encodings: encs})
 	}
 	return sp, nil
 }
@@ -568,86 +509,79 @@ func openTable(dir, name, sum string) (*pqio.Reader, error) {
 	return r, nil
 }
 
-// loadCol reads one mapping table into a column whose statistics have a
-// single fold and whose derived values are those stored. stored is the
+// loadTable reads the mapping table name of column c (of its parent
+// levels with parent) into its statistics and its encodings. stored is the
 // number of levels the manifest says the table keeps (-1 for a parent
 // table, which the manifest does not count).
-func (m *Model) loadCol(dir, name, sum string, supervised bool, prior, ms []*float64, stored int) (*Col, error) {
+func (m *Model) loadTable(dir, name, sum string, c *Col, parent bool, stored int) error {
 	r, err := openTable(dir, name, sum)
 	if err != nil {
-		return nil, err
+		return err
 	}
 	defer r.Close()
 	path := filepath.Join(dir, name)
 	bad := func(format string, a ...any) error {
 		return &ManifestError{Dir: path, Msg: fmt.Sprintf(format, a...)}
 	}
-	nested := supervised && m.Spec.PriorColumn != "" && stored >= 0
-	want := m.tableSchema(supervised, nested)
+	want, encs, err := m.tableSchema(c, parent)
+	if err != nil {
+		return bad("%v", err)
+	}
 	got := r.Schema()
 	if len(got.Fields) != len(want.Fields) {
-		return nil, bad("table has %d columns, the manifest implies %d", len(got.Fields), len(want.Fields))
+		return bad("table has %d columns, the manifest implies %d", len(got.Fields), len(want.Fields))
 	}
 	for i, f := range want.Fields {
 		if g := got.Fields[i]; g.Name != f.Name || g.Kind != f.Kind {
-			return nil, bad("column %d is %q of type %s, expected %q of type %s", i+1, g.Name, g.Kind, f.Name, f.Kind)
+			return bad("column %d is %q of type %s, expected %q of type %s", i+1, g.Name, g.Kind, f.Name, f.Kind)
 		}
 	}
 	// A table holds the kept levels and, when nulls are unseen, the null
 	// level: check the footer's count before reading a row.
 	if n := r.NumRows(); stored >= 0 && (n < int64(stored) || n > int64(stored)+1) {
-		return nil, bad("%d levels, but the manifest's levels_stored is %d", n, stored)
+		return bad("%d levels, but the manifest's levels_stored is %d", n, stored)
 	}
-	task := m.Task
-	if !supervised {
-		task = colstats.Binary
+	of := c
+	if parent {
+		of = c.Parent
 	}
-	st := colstats.New(task, 1, len(m.Classes), 1024)
-	st.Origin = m.Origin
-	c := &Col{St: st}
-	outs := 0
-	if supervised {
-		outs = st.Outputs()
-		c.TMean = make([][]float64, outs)
-		for o := 0; o < outs; o++ {
-			c.Full = append(c.Full, colstats.Fitted{Prior: fromOpt(prior[o]), M: fromOpt(ms[o]), Sm: m.Spec.Smoothing, Origin: m.Origin})
-			c.TMean[o] = []float64{0}
-		}
-	}
-	c.Freq, c.TopK, c.Keep = []float64{0}, []int32{0}, []bool{false}
-	tl := tableLoad{m: m, c: c, task: task, outs: outs, supervised: supervised, nested: nested, names: want.Fields}
+	tl := tableLoad{m: m, c: of, fits: c.Fits, encs: encs, parent: parent, nested: !parent && c.nest != nil && of.info.Supervised, names: want.Fields}
 	if err := table.ForEach(r, tl.batch); err != nil {
 		var me *ManifestError
 		if errors.As(err, &me) {
 			me.Dir = path
-			return nil, me
+			return me
 		}
-		return nil, bad("%v", err)
+		return bad("%v", err)
 	}
 	if stored >= 0 && tl.kept != stored {
-		return nil, bad("%d levels kept, but the manifest's levels_stored is %d", tl.kept, stored)
+		return bad("%d levels kept, but the manifest's levels_stored is %d", tl.kept, stored)
 	}
-	c.nest = tl.parentRow
-	c.rowSlots = tl.slots
-	return c, nil
+	if tl.nested {
+		c.nest = tl.parentRow
+	}
+	of.rowSlots = tl.slots
+	of.total = float64(tl.total)
+	of.info.Keep, of.info.Total, of.info.Distinct = of.Keep, of.total, of.distinct()
+	return nil
 }
 
 // tableLoad reads the rows of a mapping table into a column, checking
 // each value.
 type tableLoad struct {
-	m          *Model
-	c          *Col
-	task       colstats.Task
-	outs       int
-	supervised bool
-	nested     bool // the table has parent_row
-	names      []table.Field
-	slots      []int32 // the slot of each row read
-	parentRow  []int32 // nested: each slot's parent_row
-	row        int64   // rows read
-	total      uint64  // fitting rows of the levels read
-	null       bool    // the null level was read
-	kept       int     // levels read that count as seen
+	m         *Model
+	c         *Col            // the column whose levels the table lists
+	fits      []method.Fitted // the encodings of the table's column
+	encs      [][2]int        // each encoding's range of the table's columns
+	parent    bool            // the table of the parent levels
+	nested    bool            // the table has parent_row
+	names     []table.Field
+	slots     []int32 // the slot of each row read
+	parentRow []int32 // nested: each slot's parent_row
+	row       int64   // rows read
+	total     uint64  // fitting rows of the levels read
+	null      bool    // the null level was read
+	kept      int     // levels read that count as seen
 }
 
 // batch loads the rows of one batch.
@@ -671,9 +605,28 @@ func (tl *tableLoad) batch(b *table.Batch) error {
 	if lv.Form != table.FormText && lv.Form != table.FormDict {
 		return tl.errf(0, "column \"level\" is not text")
 	}
+	from := len(tl.slots)
 	for i := 0; i < b.Rows; i++ {
 		if err := tl.level(b, i); err != nil {
 			return err
+		}
+	}
+	slots := tl.slots[from:]
+	for ei, f := range tl.fits {
+		src := b.Cols[tl.encs[ei][0]:tl.encs[ei][1]]
+		var err error
+		switch pt, ok := f.(method.ParentTabler); {
+		case !tl.parent:
+			err = f.LoadTable(slots, src)
+		case ok:
+			err = pt.LoadParentTable(slots, src)
+		}
+		var le *method.LoadError
+		if errors.As(err, &le) {
+			return tl.errf(le.Row, "%s", le.Msg)
+		}
+		if err != nil {
+			return tl.errf(0, "%v", err)
 		}
 	}
 	tl.row += int64(b.Rows)
@@ -685,7 +638,7 @@ func (tl *tableLoad) errf(i int, format string, a ...any) error {
 	return &ManifestError{Msg: fmt.Sprintf("row %d: ", tl.row+int64(i)+1) + fmt.Sprintf(format, a...)}
 }
 
-// level loads row i of b, one level.
+// level loads the level and the statistics of row i of b.
 func (tl *tableLoad) level(b *table.Batch, i int) error {
 	m, c, st := tl.m, tl.c, tl.c.St
 	lv := &b.Cols[0]
@@ -702,10 +655,7 @@ func (tl *tableLoad) level(b *table.Batch, i int) error {
 		}
 	}
 	for len(c.Keep) < st.NumLevels() {
-		c.Keep, c.Freq, c.TopK = append(c.Keep, false), append(c.Freq, 0), append(c.TopK, 0)
-		for o := range c.TMean {
-			c.TMean[o] = append(c.TMean[o], 0)
-		}
+		c.Keep = append(c.Keep, false)
 	}
 	c.Keep[l] = l != 0 || !m.Spec.NullsUnseen
 	if c.Keep[l] {
@@ -719,12 +669,12 @@ func (tl *tableLoad) level(b *table.Batch, i int) error {
 	}
 	tl.total += uint64(rows)
 	st.SetRows(l, uint64(rows))
-	if tl.supervised {
+	if c.info.Supervised {
 		tn := next().Ints[i]
 		if tn < 0 || tn > rows || tn > math.MaxUint32 {
 			return tl.errf(i, "target_rows %d: want 0 to rows (%d)", tn, rows)
 		}
-		if tl.task == colstats.Regression {
+		if m.Task == colstats.Regression {
 			sum, sumSq := next().Floats[i], next().Floats[i]
 			if math.IsNaN(sum) || math.IsInf(sum, 0) || !(sumSq >= 0) || math.IsInf(sumSq, 0) {
 				return tl.errf(i, "target_sum %g, target_sumsq %g: want finite sums, of squares at least 0", sum, sumSq)
@@ -744,34 +694,10 @@ func (tl *tableLoad) level(b *table.Batch, i int) error {
 				return tl.errf(i, "the class counts add up to %d, target_rows is %d", all, tn)
 			}
 		}
-		for o := 0; o < tl.outs; o++ {
-			v := next().Floats[i]
-			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return tl.errf(i, "%s %g: want a finite number", tl.names[k-1].Name, v)
-			}
-			if tl.task != colstats.Regression && (v < 0 || v > 1) {
-				return tl.errf(i, "%s %g: want a rate within [0, 1]", tl.names[k-1].Name, v)
-			}
-			c.TMean[o][l] = v
-		}
-	}
-	freq := next().Floats[i]
-	if !(freq >= 0) || math.IsInf(freq, 0) {
-		return tl.errf(i, "freq %g: want a finite number >= 0", freq)
-	}
-	c.Freq[l] = freq
-	top := next().Ints[i]
-	if top < 0 || top > int64(m.Spec.TopK) || top > math.MaxInt32 {
-		return tl.errf(i, "topk %d: want 0 to the manifest's top_k (%d)", top, m.Spec.TopK)
-	}
-	c.TopK[l] = int32(top)
-	bucket := next().Ints[i]
-	if want := hashenc.Bucket(hashenc.Sum(lv.Bytes(i), m.Spec.HashSeed), m.Spec.Buckets); bucket < 0 || uint64(bucket) != want {
-		return tl.errf(i, "bucket %d, but the manifest's buckets and hash_seed give %d", bucket, want)
 	}
 	tl.slots = append(tl.slots, int32(l))
 	if tl.nested {
-		pr := next().Ints[i]
+		pr := b.Cols[len(b.Cols)-1].Ints[i]
 		if pr < -1 || pr > math.MaxInt32 {
 			return tl.errf(i, "parent_row %d: want -1 or a row of the parent table", pr)
 		}
@@ -779,37 +705,6 @@ func (tl *tableLoad) level(b *table.Batch, i int) error {
 			tl.parentRow = append(tl.parentRow, -1)
 		}
 		tl.parentRow[l] = int32(pr)
-	}
-	return nil
-}
-
-// checkEncoded checks the encoded values stored in a table without a
-// hierarchical prior against those its counts give with the manifest's
-// priors, smoothing weights and smoothing: the prior for a level left out,
-// the smoothed mean of its rows otherwise. A manifest whose prior, m or
-// smoothing was changed, or a table fitted with others, is refused.
-func (m *Model) checkEncoded(c *Col) error {
-	st := c.St
-	for l := 0; l < st.NumLevels(); l++ {
-		if l == 0 && st.RowCount(0) == 0 {
-			continue // no null level in the table
-		}
-		for o := range c.Full {
-			ft := &c.Full[o]
-			want := ft.Prior
-			if c.Keep[l] {
-				want = ft.Encode(st.Target(l, o, -1, m.Pos))
-			}
-			got := c.TMean[o][l]
-			if math.Abs(got-want) <= 1e-9*max(1, math.Abs(want)) {
-				continue
-			}
-			level := "the null level"
-			if l > 0 {
-				level = strconv.Quote(string(st.Bytes(l)))
-			}
-			return fmt.Errorf("%s: encoded value %g, but its counts with the manifest's prior, m and smoothing give %g", level, got, want)
-		}
 	}
 	return nil
 }

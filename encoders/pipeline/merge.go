@@ -5,6 +5,7 @@ import (
 	"slices"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/method"
 )
 
 // Merge combines models loaded from mapping tables fitted with the same
@@ -30,7 +31,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 		out.Rows += m.Rows
 		out.Missing += m.Missing
 	}
-	supervised := base.Cols[0].Full != nil
+	supervised := base.Cols[0].info.Supervised
 	for ci, bc := range base.Cols {
 		task := base.Task
 		if !supervised {
@@ -44,19 +45,11 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 			}
 		}
 		c := &Col{Name: bc.Name, Kind: bc.Kind, Index: bc.Index, St: st}
-		if base.Spec.PriorPrefix > 0 && supervised {
-			n := base.Spec.PriorPrefix
-			ps, of := st.Rollup(func(b []byte) []byte {
-				if len(b) > n {
-					return b[:n]
-				}
-				return b
-			})
-			c.Parent = &Col{Name: c.Name + " prefix", St: ps}
-			c.ParentOf = of
-			st.Parents = of
+		prior := base.Spec.prior(ci)
+		if prior.Prefix > 0 && supervised {
+			c.rollup(prior.Prefix)
 		}
-		if base.Spec.PriorColumn != "" && supervised {
+		if prior.Column != "" && supervised {
 			ps := colstats.New(task, 1, len(base.Classes), 0)
 			ps.Origin = base.Origin
 			for _, m := range models {
@@ -64,14 +57,14 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 					return nil, err
 				}
 			}
-			c.Parent = &Col{Name: base.Spec.PriorColumn, St: ps}
+			c.Parent = &Col{Name: prior.Column, St: ps}
 			var shards []*Col
 			for _, m := range models {
 				shards = append(shards, m.Cols[ci])
 			}
 			st.Parents = mergeNests(st, ps, shards)
 		}
-		out.derive(c, supervised)
+		out.derive(ci, c, supervised)
 		out.Cols = append(out.Cols, c)
 	}
 	return out, nil
@@ -87,14 +80,13 @@ func compatible(a, b *Model) error {
 		return fmt.Errorf("another target or task")
 	case !slices.Equal(a.Classes, b.Classes):
 		return fmt.Errorf("other target classes")
-	case x.Smoothing != y.Smoothing || x.PriorPrefix != y.PriorPrefix || x.PriorColumn != y.PriorColumn || x.Output != y.Output:
-		return fmt.Errorf("other smoothing")
-	case x.FreqShare != y.FreqShare || x.TopK != y.TopK || x.MinCount != y.MinCount:
-		return fmt.Errorf("other frequency or top-k parameters")
-	case x.Buckets != y.Buckets || x.HashSeed != y.HashSeed || x.Signed != y.Signed:
-		return fmt.Errorf("other hash parameters")
-	case x.NullsUnseen != y.NullsUnseen || !slices.Equal(x.Methods, y.Methods):
-		return fmt.Errorf("other methods or null handling")
+	case x.NullsUnseen != y.NullsUnseen:
+		return fmt.Errorf("other null handling")
+	}
+	for i, c := range x.Columns {
+		if a, b := method.ListString(x.EncodingsOf(i)), method.ListString(y.EncodingsOf(i)); a != b {
+			return fmt.Errorf("other encodings of %q (%s, not %s)", c, b, a)
+		}
 	}
 	return nil
 }

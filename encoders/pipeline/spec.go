@@ -6,20 +6,12 @@ package pipeline
 
 import (
 	"fmt"
-	"math"
 	"slices"
 	"strings"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/method"
 	"manyfold/io/table"
-)
-
-// The encoding methods.
-const (
-	MethodTarget = "target"
-	MethodFreq   = "freq"
-	MethodTopK   = "topk"
-	MethodHash   = "hash"
 )
 
 // MaxClasses is the largest number of target classes a classification
@@ -30,27 +22,16 @@ const MaxClasses = 64
 // valid; start from DefaultSpec.
 type Spec struct {
 	Target  string   // target column
-	Columns []string // categorical columns to encode
-	Methods []string // of target, freq, topk, hash, in output order
-	Task    string   // "" detects; binary, multiclass, regression
+	Columns []string // categorical columns to encode (with Encodings.PerColumn, may be left empty)
+	// Encodings gives every column one list of encodings, or each column
+	// its own (method.Plan); Validate resolves it per column.
+	Encodings method.Plan
+	Task      string // "" detects; binary, multiclass, regression
 
 	Folds  int    // K for kfold
 	FoldBy string // rows, stratified, group=COL, ordered
 	Seed   uint64
-	Scheme string // kfold, loo, ordered, none
-
-	Smoothing   colstats.Smoothing
-	PriorPrefix int    // >0: prior of a level is the smoothed mean of its first PriorPrefix bytes
-	PriorColumn string // prior of a row's level is the smoothed mean of the row's value of this column
-	Output      string // rate or logodds
-
-	FreqShare bool   // frequency as a share of the fitting rows instead of a count
-	TopK      int    // codes 1..TopK
-	MinCount  uint64 // top-k: only levels with at least MinCount rows get a code
-
-	Buckets  uint64
-	HashSeed uint64
-	Signed   bool
+	Scheme method.Pass // the training rows' scheme: KFold, LeaveOneOut, Ordered or InSample
 
 	MinLevelRows uint64 // levels with fewer rows are left out of the tables and treated as unseen
 	NullsUnseen  bool   // nulls are treated as unseen instead of as a level of their own
@@ -58,86 +39,150 @@ type Spec struct {
 	KeepAll      bool
 	FoldColumn   string // "" for none
 	OrderBy      string // a column the input must be sorted by (ascending), checked during the fit
+
+	// encs holds each column's encodings once Validate has run.
+	encs [][]method.Encoding
 }
 
 // DefaultSpec returns the defaults documented in the command's help.
 func DefaultSpec() Spec {
+	eb, _ := method.Parse("target:eb")
 	return Spec{
-		Methods:   []string{MethodTarget},
+		Encodings: method.Plan{All: []method.Encoding{eb}},
 		Folds:     5,
 		FoldBy:    "rows",
-		Scheme:    "kfold",
-		Smoothing: colstats.Smoothing{Kind: "auto"},
-		Output:    "rate",
-		TopK:      100,
-		MinCount:  1,
-		Buckets:   1024,
+		Scheme:    method.KFold,
 		KeepAll:   true,
 	}
 }
 
-// ParseSmoothing parses auto, m=NUM or blend=K,F.
-func ParseSmoothing(s string) (colstats.Smoothing, error) {
-	switch {
-	case s == "auto":
-		return colstats.Smoothing{Kind: "auto"}, nil
-	case strings.HasPrefix(s, "m="):
-		var m float64
-		if _, err := fmt.Sscanf(s[2:], "%g", &m); err != nil || !(m >= 0) || math.IsInf(m, 1) {
-			return colstats.Smoothing{}, fmt.Errorf("--smoothing %s: m must be a finite number >= 0", s)
+// EncodingsOf returns the encodings of column i (after Validate).
+func (sp *Spec) EncodingsOf(i int) []method.Encoding { return sp.encs[i] }
+
+// supervised reports whether an encoding reads the target.
+func (sp *Spec) supervised() bool {
+	for _, encs := range sp.encs {
+		for _, e := range encs {
+			if e.Needs().Target {
+				return true
+			}
 		}
-		return colstats.Smoothing{Kind: "m", M: m}, nil
-	case strings.HasPrefix(s, "blend="):
-		var k, f float64
-		if _, err := fmt.Sscanf(s[6:], "%g,%g", &k, &f); err != nil || math.IsNaN(k) || math.IsInf(k, 0) || !(f >= 0) || math.IsInf(f, 1) {
-			return colstats.Smoothing{}, fmt.Errorf("--smoothing %s: want blend=K,F with finite K and F >= 0", s)
-		}
-		return colstats.Smoothing{Kind: "blend", K: k, F: f}, nil
 	}
-	return colstats.Smoothing{}, fmt.Errorf("--smoothing %q: want auto, m=NUM or blend=K,F", s)
+	return false
 }
 
-// has reports whether the spec asks for method m.
-func (sp *Spec) has(m string) bool {
-	for _, x := range sp.Methods {
-		if x == m {
+// needsValues reports whether an encoding of column i reads its values.
+func (sp *Spec) needsValues(i int) bool {
+	for _, e := range sp.encs[i] {
+		if e.Needs().Values {
 			return true
 		}
 	}
 	return false
 }
 
-// Validate checks the parameters that do not depend on the data.
+// prior returns the hierarchical prior of column i (Validate checked that
+// its encodings agree), the zero Prior for none.
+func (sp *Spec) prior(i int) method.Prior {
+	for _, e := range sp.encs[i] {
+		if p := e.Needs().Prior; !p.None() {
+			return p
+		}
+	}
+	return method.Prior{}
+}
+
+// PriorColumns returns the columns that hierarchical priors take the
+// parent from (prior=column:COL), each once, in the order first named.
+func (sp *Spec) PriorColumns() []string { return sp.priorColumns() }
+
+func (sp *Spec) priorColumns() []string {
+	var out []string
+	for i := range sp.encs {
+		if c := sp.prior(i).Column; c != "" && !slices.Contains(out, c) {
+			out = append(out, c)
+		}
+	}
+	return out
+}
+
+// PlanString returns the encodings in the grammar of the per-column form
+// (COLUMN=LIST,...), or of the simple form when every column has the same
+// list.
+func (sp *Spec) PlanString() string {
+	same := true
+	for i := range sp.encs {
+		if method.ListString(sp.encs[i]) != method.ListString(sp.encs[0]) {
+			same = false
+		}
+	}
+	if same && len(sp.encs) > 0 {
+		return method.ListString(sp.encs[0])
+	}
+	p := method.Plan{}
+	for i, c := range sp.Columns {
+		p.PerColumn = append(p.PerColumn, method.ColumnEncodings{Column: c, Encodings: sp.encs[i]})
+	}
+	return p.String()
+}
+
+// Validate checks the parameters that do not depend on the data and
+// resolves each column's encodings.
 func (sp *Spec) Validate() error {
+	if per := sp.Encodings.PerColumn; per != nil {
+		if len(sp.Columns) == 0 {
+			for _, c := range per {
+				sp.Columns = append(sp.Columns, c.Column)
+			}
+		}
+		if len(per) != len(sp.Columns) {
+			return usageErr("the columns to encode and the per-column encodings name different columns")
+		}
+	} else if len(sp.Encodings.All) == 0 {
+		return usageErr("no encodings: give --methods")
+	}
 	if len(sp.Columns) == 0 {
 		return usageErr("no columns to encode: give --columns")
 	}
 	seen := map[string]bool{}
-	for _, c := range sp.Columns {
+	sp.encs = make([][]method.Encoding, len(sp.Columns))
+	for i, c := range sp.Columns {
 		if seen[c] {
 			return usageErr("column %q is named twice in --columns", c)
 		}
 		seen[c] = true
-	}
-	if len(sp.Methods) == 0 {
-		return usageErr("no methods: give --methods")
-	}
-	for _, m := range sp.Methods {
-		switch m {
-		case MethodTarget, MethodFreq, MethodTopK, MethodHash:
-		default:
-			return usageErr("unknown method %q (want target, freq, topk, hash)", m)
+		sp.encs[i] = sp.Encodings.All
+		if per := sp.Encodings.PerColumn; per != nil {
+			j := slices.IndexFunc(per, func(ce method.ColumnEncodings) bool { return ce.Column == c })
+			if j < 0 {
+				return usageErr("column %q has no encodings in the per-column list", c)
+			}
+			sp.encs[i] = per[j].Encodings
+		}
+		var prior method.Prior
+		for _, e := range sp.encs[i] {
+			if err := e.Validate(sp.Scheme); err != nil {
+				return usageErr("column %q: %v", c, err)
+			}
+			p := e.Needs().Prior
+			if !p.None() && !prior.None() && p != prior {
+				return usageErr("column %q: two hierarchical priors", c)
+			}
+			if !p.None() {
+				prior = p
+			}
+		}
+		if prior.Column == c {
+			return usageErr("column %q: its prior cannot be the column itself", c)
 		}
 	}
-	if sp.has(MethodTarget) && sp.Target == "" {
-		return usageErr("the target method needs --target")
+	if sp.supervised() && sp.Target == "" {
+		return usageErr("the target encodings need --target")
 	}
-	switch sp.Scheme {
-	case "kfold", "loo", "ordered", "none":
-	default:
-		return usageErr("unknown --scheme %q (want kfold, loo, ordered, none)", sp.Scheme)
+	if sp.Scheme == method.Apply {
+		return usageErr("unknown --scheme (want kfold, loo, ordered, none)")
 	}
-	if sp.Scheme == "kfold" && (sp.Folds < 2 || sp.Folds > MaxFolds) {
+	if sp.Scheme == method.KFold && (sp.Folds < 2 || sp.Folds > MaxFolds) {
 		return usageErr("--folds %d: want 2 to %d (for leave-one-out give --scheme loo)", sp.Folds, MaxFolds)
 	}
 	switch {
@@ -148,23 +193,6 @@ func (sp *Spec) Validate() error {
 	}
 	if sp.FoldBy == "stratified" && sp.Target == "" {
 		return usageErr("--fold-by stratified needs --target")
-	}
-	if sp.Output != "rate" && sp.Output != "logodds" {
-		return usageErr("unknown --output %q (want rate or logodds)", sp.Output)
-	}
-	// A log-odds output needs rates strictly inside (0, 1).
-	sp.Smoothing.Interior = sp.Output == "logodds"
-	if sp.TopK < 1 {
-		return usageErr("--top-k %d: need at least 1", sp.TopK)
-	}
-	if sp.Buckets < 1 || sp.Buckets > MaxBuckets {
-		return usageErr("--buckets %d: want 1 to %d", sp.Buckets, uint64(MaxBuckets))
-	}
-	if sp.PriorPrefix < 0 {
-		return usageErr("--prior-by prefix=%d: want a length of at least 1", sp.PriorPrefix)
-	}
-	if sp.PriorPrefix > 0 && sp.PriorColumn != "" {
-		return usageErr("--prior-by takes a prefix or a column, not both")
 	}
 	if sp.Task != "" {
 		if _, err := colstats.ParseTask(sp.Task); err != nil {
@@ -177,10 +205,7 @@ func (sp *Spec) Validate() error {
 // Limits of the numeric parameters, checked by Validate before any data is
 // read. A level keeps a counter per fold and class, so memory grows with
 // --folds; bucket numbers are written as 64-bit signed integers.
-const (
-	MaxFolds   = 100
-	MaxBuckets = 1<<63 - 1
-)
+const MaxFolds = 100
 
 // CheckThreads checks a --threads value, the same for every command.
 func CheckThreads(n int) error {
@@ -201,7 +226,7 @@ func (sp *Spec) groupColumn() string {
 // folds returns the number of folds statistics are split into: K for
 // kfold, 1 otherwise.
 func (sp *Spec) folds() int {
-	if sp.Scheme == "kfold" {
+	if sp.Scheme == method.KFold {
 		return sp.Folds
 	}
 	return 1
@@ -220,7 +245,10 @@ func usageErr(format string, a ...any) error {
 // encoded columns, the target and the group column, in schema order. ok is
 // false when one of them is missing (Fit then reports it by name).
 func (sp *Spec) FitColumns(s *table.Schema) (cols []int, ok bool) {
-	need := map[string]bool{sp.Target: sp.Target != "", sp.groupColumn(): sp.groupColumn() != "", sp.OrderBy: sp.OrderBy != "", sp.PriorColumn: sp.PriorColumn != ""}
+	need := map[string]bool{sp.Target: sp.Target != "", sp.groupColumn(): sp.groupColumn() != "", sp.OrderBy: sp.OrderBy != ""}
+	for _, c := range sp.priorColumns() {
+		need[c] = true
+	}
 	for _, c := range sp.Columns {
 		need[c] = true
 	}
@@ -239,8 +267,8 @@ func (sp *Spec) FitColumns(s *table.Schema) (cols []int, ok bool) {
 }
 
 // CheckOutputNames reports, before any row is read, an encoded column
-// whose name a kept input column already has (multi-class names, which
-// depend on the classes found, are checked after the fit).
+// whose name a kept input column already has (names that depend on the fit,
+// such as a multi-class target's, are checked after it).
 func (sp *Spec) CheckOutputNames(file string, s *table.Schema) error {
 	kept := map[string]bool{}
 	for _, f := range s.Fields {
@@ -252,18 +280,10 @@ func (sp *Spec) CheckOutputNames(file string, s *table.Schema) error {
 	if sp.FoldColumn != "" {
 		names = append(names, sp.FoldColumn)
 	}
-	for _, c := range sp.Columns {
-		for _, m := range sp.Methods {
-			switch m {
-			case MethodTarget:
-				names = append(names, c+"_tmean")
-			case MethodHash:
-				names = append(names, c+"_hash")
-				if sp.Signed {
-					names = append(names, c+"_hash_sign")
-				}
-			default:
-				names = append(names, c+"_"+m)
+	for i, c := range sp.Columns {
+		for _, e := range sp.encs[i] {
+			for _, n := range e.Names() {
+				names = append(names, c+"_"+n)
 			}
 		}
 	}

@@ -5,15 +5,13 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"math"
 	"os"
 	"path/filepath"
 	"runtime/trace"
-	"strconv"
 	"strings"
 
 	"manyfold/encoders/colstats"
-	"manyfold/encoders/hashenc"
+	"manyfold/encoders/method"
 	"manyfold/io/atomicfile"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -23,8 +21,10 @@ import (
 // FormatVersion is the version of the mapping-table layout. Tables of
 // another version are refused with a message to refit them. 2: the
 // manifest records each table's checksum and the target's origin, and a
-// table of a column with a column prior has parent_row.
-const FormatVersion = 2
+// table of a column with a column prior has parent_row. 3: each column
+// lists its encodings in the grammar, with what each recorded of its fit,
+// and a table holds the statistics and each encoding's own columns.
+const FormatVersion = 3
 
 // Version is manyfold's version, recorded in every manifest.
 const Version = "0.1.0"
@@ -58,46 +58,35 @@ type ManifestField struct {
 	Type string `json:"type"`
 }
 
-// Params records every parameter of the fit.
+// Params records the parameters of the fit that are not an encoding's.
 type Params struct {
-	Methods      []string `json:"methods"`
-	Folds        int      `json:"folds"`
-	FoldBy       string   `json:"fold_by"`
-	Seed         uint64   `json:"seed"`
-	Scheme       string   `json:"scheme"`
-	Smoothing    string   `json:"smoothing"`
-	PriorPrefix  int      `json:"prior_prefix,omitempty"`
-	PriorColumn  string   `json:"prior_column,omitempty"`
-	Output       string   `json:"output"`
-	Freq         string   `json:"freq"`
-	TopK         int      `json:"top_k"`
-	MinCount     uint64   `json:"min_count"`
-	Buckets      uint64   `json:"buckets"`
-	HashSeed     uint64   `json:"hash_seed"`
-	Signed       bool     `json:"signed"`
-	MinLevelRows uint64   `json:"min_level_rows"`
-	Nulls        string   `json:"nulls"`
+	Folds        int    `json:"folds"`
+	FoldBy       string `json:"fold_by"`
+	Seed         uint64 `json:"seed"`
+	Scheme       string `json:"scheme"`
+	MinLevelRows uint64 `json:"min_level_rows"`
+	Nulls        string `json:"nulls"`
 }
 
 // ManifestCol describes one encoded column's table.
 type ManifestCol struct {
-	Name        string     `json:"name"`
-	Type        string     `json:"type"`
-	Table       string     `json:"table"`
-	ParentTable string     `json:"parent_table,omitempty"`
-	TableSum    string     `json:"table_xxh64"`                  // xxh64 of the table file, 16 hexadecimal digits
-	ParentSum   string     `json:"parent_table_xxh64,omitempty"` // and of the parent table
-	Levels      int        `json:"levels"`
-	Stored      int        `json:"levels_stored"`
-	Prior       []*float64 `json:"prior,omitempty"`
-	M           []*float64 `json:"m,omitempty"`
-	ParentPrior []*float64 `json:"parent_prior,omitempty"`
-	ParentM     []*float64 `json:"parent_m,omitempty"`
-	// Hashing: for the levels seen, the expected number of occupied buckets
-	// B*(1-(1-1/B)^n) and the chance that a level shares its bucket
-	// 1-(1-1/B)^(n-1) (standard occupancy results).
-	HashOccupied float64 `json:"hash_expected_occupied,omitempty"`
-	HashShared   float64 `json:"hash_expected_shared,omitempty"`
+	Name        string `json:"name"`
+	Type        string `json:"type"`
+	Table       string `json:"table"`
+	ParentTable string `json:"parent_table,omitempty"`
+	TableSum    string `json:"table_xxh64"`                  // xxh64 of the table file, 16 hexadecimal digits
+	ParentSum   string `json:"parent_table_xxh64,omitempty"` // and of the parent table
+	Levels      int    `json:"levels"`
+	Stored      int    `json:"levels_stored"`
+	// Encodings lists the column's encodings in the grammar, each with
+	// what its fit recorded (a prior, a smoothing weight).
+	Encodings []ManifestEnc `json:"encodings"`
+}
+
+// ManifestEnc is one encoding of a column.
+type ManifestEnc struct {
+	Encoding string          `json:"encoding"`
+	Fit      json.RawMessage `json:"fit,omitempty"`
 }
 
 // ManifestError reports mapping tables that cannot serve the input.
@@ -107,30 +96,6 @@ type ManifestError struct {
 }
 
 func (e *ManifestError) Error() string { return e.Dir + ": " + e.Msg }
-
-func smoothingString(s colstats.Smoothing) string {
-	switch s.Kind {
-	case "m":
-		return "m=" + strconv.FormatFloat(s.M, 'g', -1, 64)
-	case "blend":
-		return "blend=" + strconv.FormatFloat(s.K, 'g', -1, 64) + "," + strconv.FormatFloat(s.F, 'g', -1, 64)
-	}
-	return "auto"
-}
-
-func optFloat(v float64) *float64 {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return nil
-	}
-	return &v
-}
-
-func fromOpt(p *float64) float64 {
-	if p == nil {
-		return math.Inf(1)
-	}
-	return *p
-}
 
 // tableFile names the table of the i-th column: its position and a form of
 // its name safe in any file system.
@@ -147,28 +112,23 @@ func tableFile(i int, name string) string {
 }
 
 // Manifest returns the manifest of the fitted model.
-func (m *Model) Manifest() Manifest {
+func (m *Model) Manifest() (Manifest, error) {
 	sp := &m.Spec
 	mf := Manifest{Format: FormatVersion, Tool: Version, Rows: m.Rows, Missing: m.Missing, Target: sp.Target, Origin: m.Origin}
 	for _, f := range m.Input {
 		mf.Input = append(mf.Input, ManifestField{Name: f.Name, Type: f.Kind.String()})
 	}
-	if m.Cols[0].Full != nil {
+	if m.Cols[0].info.Supervised {
 		mf.Task = m.Task.String()
 		mf.Classes = m.Classes
 	} else {
 		mf.Target = ""
 	}
-	freq, nulls := "count", "level"
-	if sp.FreqShare {
-		freq = "share"
-	}
+	nulls := "level"
 	if sp.NullsUnseen {
 		nulls = "unseen"
 	}
-	mf.Params = Params{Methods: sp.Methods, Folds: sp.Folds, FoldBy: sp.FoldBy, Seed: sp.Seed, Scheme: sp.Scheme,
-		Smoothing: smoothingString(sp.Smoothing), PriorPrefix: sp.PriorPrefix, PriorColumn: sp.PriorColumn, Output: sp.Output, Freq: freq,
-		TopK: sp.TopK, MinCount: sp.MinCount, Buckets: sp.Buckets, HashSeed: sp.HashSeed, Signed: sp.Signed,
+	mf.Params = Params{Folds: sp.Folds, FoldBy: sp.FoldBy, Seed: sp.Seed, Scheme: sp.Scheme.String(),
 		MinLevelRows: sp.MinLevelRows, Nulls: nulls}
 	for i, c := range m.Cols {
 		mc := ManifestCol{Name: c.Name, Type: c.Kind.String(), Table: tableFile(i, c.Name), Levels: m.Levels(i)}
@@ -177,23 +137,23 @@ func (m *Model) Manifest() Manifest {
 				mc.Stored++
 			}
 		}
-		for _, ft := range c.Full {
-			mc.Prior = append(mc.Prior, optFloat(ft.Prior))
-			mc.M = append(mc.M, optFloat(ft.M))
-		}
 		if c.Parent != nil {
 			mc.ParentTable = strings.TrimSuffix(mc.Table, ".parquet") + ".parents.parquet"
-			for _, ft := range c.Parent.Full {
-				mc.ParentPrior = append(mc.ParentPrior, optFloat(ft.Prior))
-				mc.ParentM = append(mc.ParentM, optFloat(ft.M))
-			}
 		}
-		n, b := float64(mc.Levels), float64(sp.Buckets)
-		mc.HashOccupied = hashenc.ExpectedOccupied(n, b)
-		mc.HashShared = hashenc.SharedChance(n, b)
+		for ei, f := range c.Fits {
+			me := ManifestEnc{Encoding: sp.EncodingsOf(i)[ei].String()}
+			if v := f.Manifest(); v != nil {
+				raw, err := json.Marshal(v)
+				if err != nil {
+					return Manifest{}, fmt.Errorf("manifest of %s: %w", me.Encoding, err)
+				}
+				me.Fit = raw
+			}
+			mc.Encodings = append(mc.Encodings, me)
+		}
 		mf.Columns = append(mf.Columns, mc)
 	}
-	return mf
+	return mf, nil
 }
 
 // SaveTables writes one Parquet table per column (and per parent level
@@ -265,7 +225,10 @@ func CheckTablesDir(dir string) error {
 
 // writeTables writes the tables and the manifest into dir.
 func (m *Model) writeTables(dir string) error {
-	mf := m.Manifest()
+	mf, err := m.Manifest()
+	if err != nil {
+		return err
+	}
 	// The columns' own tables side by side (each file is the same
 	// whatever the number of threads), then the parents, which columns
 	// may share, one after another.
@@ -276,7 +239,7 @@ func (m *Model) writeTables(dir string) error {
 	each(len(m.Cols), m.threads, func(k int) {
 		i := first[k]
 		mc := &mf.Columns[i]
-		mc.TableSum, errs[i] = m.saveTable(filepath.Join(dir, mc.Table), m.Cols[i])
+		mc.TableSum, errs[i] = m.saveTable(filepath.Join(dir, mc.Table), m.Cols[i], false)
 	})
 	for i, c := range m.Cols {
 		if errs[i] != nil {
@@ -285,7 +248,7 @@ func (m *Model) writeTables(dir string) error {
 		if c.Parent != nil {
 			mc := &mf.Columns[i]
 			var err error
-			if mc.ParentSum, err = m.saveTable(filepath.Join(dir, mc.ParentTable), c.Parent); err != nil {
+			if mc.ParentSum, err = m.saveTable(filepath.Join(dir, mc.ParentTable), c, true); err != nil {
 				return err
 			}
 		}
@@ -305,10 +268,10 @@ func (m *Model) writeTables(dir string) error {
 	return f.Commit()
 }
 
-// saveTable writes the mapping table of c at path and returns its
-// checksum, which the manifest records.
-func (m *Model) saveTable(path string, c *Col) (string, error) {
-	if err := m.saveCol(path, c); err != nil {
+// saveTable writes the mapping table of c (of its parent levels with
+// parent) at path and returns its checksum, which the manifest records.
+func (m *Model) saveTable(path string, c *Col, parent bool) (string, error) {
+	if err := m.saveCol(path, c, parent); err != nil {
 		return "", err
 	}
 	sum, err := fileChecksum(path)
@@ -318,41 +281,53 @@ func (m *Model) saveTable(path string, c *Col) (string, error) {
 	return sum, nil
 }
 
-// tableSchema returns the layout of a column's mapping table.
-//
-// nested adds parent_row, in the table of a column whose prior is another
-// column's value (--prior-by column): for each level, the row of the parent
-// table whose level all of its rows had, or -1 when they had several. A
-// merge needs it to estimate m within parents (Stats.Parents).
-func (m *Model) tableSchema(supervised, nested bool) *table.Schema {
-	s := &table.Schema{Fields: []table.Field{{Name: "level", Kind: table.String, Nullable: true}, {Name: "rows", Kind: table.Int64}}}
+// tableSchema returns the layout of the mapping table of c (of its
+// parent levels with parent): the level and its rows, the target's
+// statistics when supervised, then each encoding's own columns
+// (method.Fitted.TableColumns; the parent levels' values of an encoding
+// with a hierarchical prior in the parent table), then, for a column whose
+// prior is another column's value, parent_row: for each level, the row of
+// the parent table whose level all of its rows had, or -1 when they had
+// several. A merge needs it to estimate m within parents (Stats.Parents).
+// encs[i] is the range of the schema's fields that encoding i fills
+// ([0, 0) for none).
+func (m *Model) tableSchema(c *Col, parent bool) (s *table.Schema, encs [][2]int, err error) {
+	s = &table.Schema{Fields: []table.Field{{Name: "level", Kind: table.String, Nullable: true}, {Name: "rows", Kind: table.Int64}}}
 	add := func(name string, k table.Kind) { s.Fields = append(s.Fields, table.Field{Name: name, Kind: k}) }
-	if supervised {
+	if c.info.Supervised {
 		add("target_rows", table.Int64)
 		if m.Task == colstats.Regression {
 			add("target_sum", table.Float64)
 			add("target_sumsq", table.Float64)
-			add("tmean", table.Float64)
 		} else {
 			for _, cl := range m.Classes {
 				add("count_"+cl, table.Int64)
 			}
-			if m.Task == colstats.Binary {
-				add("tmean", table.Float64)
-			} else {
-				for _, cl := range m.Classes {
-					add("tmean_"+cl, table.Float64)
-				}
-			}
 		}
 	}
-	add("freq", table.Float64)
-	add("topk", table.Int64)
-	add("bucket", table.Int64)
-	if nested {
+	for _, f := range c.Fits {
+		from := len(s.Fields)
+		var cols []table.Field
+		switch pt, ok := f.(method.ParentTabler); {
+		case !parent:
+			cols = f.TableColumns()
+		case ok:
+			cols = pt.ParentTableColumns()
+		}
+		s.Fields = append(s.Fields, cols...)
+		encs = append(encs, [2]int{from, len(s.Fields)})
+	}
+	if !parent && c.nest != nil && c.info.Supervised {
 		add("parent_row", table.Int64)
 	}
-	return s
+	seen := map[string]bool{}
+	for _, f := range s.Fields {
+		if seen[f.Name] {
+			return nil, nil, fmt.Errorf("column %q: two of its encodings write the table column %q", c.Name, f.Name)
+		}
+		seen[f.Name] = true
+	}
+	return s, encs, nil
 }
 
 // parentRows returns, for a column with --prior-by column, the parent_row
@@ -366,7 +341,7 @@ func (m *Model) parentRows(c *Col) []int64 {
 	}
 	r := int64(0)
 	for _, l := range p.order() {
-		if p.Keep[l] || (l == 0 && m.Spec.NullsUnseen) { // as saveCol selects
+		if p.Keep[l] || (l == 0 && m.Spec.NullsUnseen) { // as gatherLevels selects
 			row[l] = r
 			r++
 		}
@@ -384,14 +359,19 @@ func (m *Model) parentRows(c *Col) []int64 {
 // tableRowGroup is the number of levels in a row group of a mapping table.
 const tableRowGroup = 1 << 17
 
-func (m *Model) saveCol(path string, c *Col) error {
+func (m *Model) saveCol(path string, c *Col, parent bool) error {
 	defer trace.StartRegion(context.Background(), "table "+c.Name).End()
-	supervised := c.Full != nil
-	nested := supervised && m.Spec.PriorColumn != "" && c.Parent != nil
-	schema := m.tableSchema(supervised, nested)
+	schema, encs, err := m.tableSchema(c, parent)
+	if err != nil {
+		return err
+	}
 	var parentRow []int64
-	if nested {
+	if schema.Index("parent_row") >= 0 {
 		parentRow = m.parentRows(c)
+	}
+	of := c // the levels the table lists
+	if parent {
+		of = c.Parent
 	}
 	// Row groups of tableRowGroup levels: the writer holds a row group's
 	// pages until it is complete, and a table may have millions of levels.
@@ -401,119 +381,53 @@ func (m *Model) saveCol(path string, c *Col) error {
 	}
 	// The writer encodes a chunk of levels while the next is gathered.
 	out.Writer = table.WriteBehind(out.Writer)
-	st := c.St
-	order := c.order()
+	order := of.order()
 	const chunk = 1 << 16
 	b := &table.Batch{Cols: make([]table.Column, len(schema.Fields))}
+	var lv method.Levels
 	for start := 0; start < len(order); start += chunk {
-		rows := order[start:min(start+chunk, len(order))]
-		var sel []int
-		for _, l32 := range rows {
-			l := int(l32)
-			// The null level is stored even when nulls are treated as
-			// unseen, so that merged tables keep its rows in the prior.
-			if c.Keep[l] || (l == 0 && m.Spec.NullsUnseen) {
-				sel = append(sel, l)
-			}
+		m.gatherLevels(of, order[start:min(start+chunk, len(order))], &lv)
+		n := len(lv.Slots)
+		if n == 0 {
+			continue
 		}
-		n := len(sel)
-		// Every level of sel is kept but the null level, when stored
-		// though unseen: the loops below need not read Keep again.
-		unkept0 := n > 0 && !c.Keep[sel[0]]
-		lv := &b.Cols[0]
-		lv.Form, lv.Data, lv.Offsets, lv.Nulls = table.FormText, lv.Data[:0], append(lv.Offsets[:0], 0), nil
-		if len(sel) > 0 && sel[0] == 0 { // the null level sorts first
-			lv.Nulls = make([]bool, n)
-			lv.Nulls[0] = true
+		col := &b.Cols[0]
+		col.Form, col.Data, col.Offsets, col.Nulls = table.FormText, lv.Data, lv.Offsets, nil
+		if lv.Slots[0] == 0 { // the null level sorts first
+			col.Nulls = make([]bool, n)
+			col.Nulls[0] = true
 		}
-		lv.Data, lv.Offsets = st.AppendBytes(lv.Data, lv.Offsets, sel)
-		// The columns are filled one at a time, each by a loop that does
-		// little more than fetch one value per level: in canonical order the
-		// levels' statistics are scattered over memory, and loops this small
-		// let the processor wait for many of them at once.
-		cols := b.Cols[1:]
-		for j, f := range schema.Fields[1:] {
-			if f.Kind == table.Int64 {
-				ints(&cols[j], n)
+		j := 1
+		putInts := func(v []int64) { b.Cols[j] = table.Column{Form: table.FormInt64, Ints: v}; j++ }
+		putFloats := func(v []float64) { b.Cols[j] = table.Column{Form: table.FormFloat64, Floats: v}; j++ }
+		putInts(lv.Rows)
+		if of.info.Supervised {
+			putInts(lv.TargetRows)
+			if m.Task == colstats.Regression {
+				putFloats(lv.Sum)
+				putFloats(lv.SumSq)
 			} else {
-				floats(&cols[j], n)
-			}
-		}
-		j := 0
-		rowsCol := cols[j].Ints
-		j++
-		fast := supervised && m.fastTableValues(c)
-		if !fast {
-			for i, l := range sel {
-				rowsCol[i] = int64(st.RowCount(l))
-			}
-		}
-		if supervised {
-			if fast {
-				m.binaryTableValues(c, sel, unkept0, rowsCol, cols[j].Ints, cols[j+1].Ints, cols[j+2].Ints, cols[j+3].Floats)
-				j += 4
-			} else {
-				for i, l := range sel {
-					k := j
-					putI := func(v int64) { cols[k].Ints[i] = v; k++ }
-					putF := func(v float64) { cols[k].Floats[i] = v; k++ }
-					a := st.Target(l, 0, -1, m.Pos)
-					putI(int64(a.N))
-					if m.Task == colstats.Regression {
-						putF(a.Sum)
-						putF(a.SumSq)
-					} else {
-						for cl := range m.Classes {
-							putI(int64(st.ClassCount(l, cl)))
-						}
-					}
-					for o := range c.Full {
-						putF(m.tmean(c, o, l))
-					}
+				for _, cnt := range lv.Counts {
+					putInts(cnt)
 				}
-				j++ // target_rows
-				if m.Task == colstats.Regression {
-					j += 2
-				} else {
-					j += len(m.Classes)
-				}
-				j += len(c.Full)
 			}
 		}
-		freqCol := cols[j].Floats
-		j++
-		for i, l := range sel {
-			switch {
-			case c.Freq != nil:
-				freqCol[i] = c.Freq[l]
-			case i == 0 && unkept0:
-				freqCol[i] = 0
-			default:
-				// The rows were fetched above.
-				freqCol[i] = m.freqOf(c, uint64(rowsCol[i]))
+		for ei, f := range c.Fits {
+			dst := b.Cols[encs[ei][0]:encs[ei][1]]
+			switch pt, ok := f.(method.ParentTabler); {
+			case !parent:
+				f.FillTable(&lv, dst)
+			case ok:
+				pt.FillParentTable(&lv, dst)
 			}
 		}
-		topCol := cols[j].Ints
-		j++
-		for i, l := range sel {
-			topCol[i] = int64(c.topCode(l))
-		}
-		// The level bytes were copied above, in order: hash them there.
-		bucketCol := cols[j].Ints
-		for i := range sel {
-			v := lv.Data[lv.Offsets[i]:lv.Offsets[i+1]]
-			bucketCol[i] = int64(hashenc.Bucket(hashenc.Sum(v, m.Spec.HashSeed), m.Spec.Buckets))
-		}
-		if nested {
-			pr := cols[j+1].Ints
-			for i, l := range sel {
+		if parentRow != nil {
+			pr := ints(&b.Cols[len(b.Cols)-1], n)
+			for i, l := range lv.Slots {
 				pr[i] = parentRow[l]
 			}
 		}
 		b.Rows = n
-		if n == 0 {
-			continue
-		}
 		if err := out.Write(b); err != nil {
 			out.Abort()
 			return fmt.Errorf("write %s: %w", path, err)
@@ -522,45 +436,91 @@ func (m *Model) saveCol(path string, c *Col) error {
 	return out.Commit()
 }
 
-// fastTableValues reports whether binaryTableValues computes the
-// supervised table columns of c: a binary target, no hierarchical prior,
-// and values computed from the statistics (not loaded).
-func (m *Model) fastTableValues(c *Col) bool {
-	return m.Task == colstats.Binary && len(m.Classes) == 2 && c.St.Classes == 2 && c.Parent == nil && c.TMean == nil && len(c.Full) == 1
-}
-
-// binaryTableValues fills, for the slots sel of a binary-target column,
-// rows (all, whatever the target), target_rows, count_<class> of the two
-// classes and tmean, from one read of each level's per-fold counts: n_c = sum over folds of the count of
-// class c, target_rows = n_0 + n_1, tmean = Full.Encode(n_0+n_1, n_pos) for
-// a kept level and the prior otherwise (what Target, ClassCount and tmean
-// give, with the same integer sums). Every level of sel is kept but sel[0]
-// when unkept0.
-func (m *Model) binaryTableValues(c *Col, sel []int, unkept0 bool, all, rows, c0, c1 []int64, tmean []float64) {
+// gatherLevels fills lv with the levels of c among the slots rows (in
+// canonical order) that its mapping table stores, and their statistics.
+// The null level is stored even when nulls are treated as unseen, so that
+// merged tables keep its rows in the prior. The columns are gathered one
+// at a time, each by a loop that does little more than fetch one value per
+// level: in canonical order the levels' statistics are scattered over
+// memory, and loops this small let the processor wait for many of them at
+// once.
+func (m *Model) gatherLevels(c *Col, rows []uint32, lv *method.Levels) {
 	st := c.St
-	st.ClassTotals2s(sel, c0, c1, all)
-	for i := range sel {
-		rows[i] = c0[i] + c1[i]
+	sel := lv.Slots[:0]
+	for _, l32 := range rows {
+		l := int(l32)
+		if c.Keep[l] || (l == 0 && m.Spec.NullsUnseen) {
+			sel = append(sel, l)
+		}
 	}
-	ft := &c.Full[0]
-	for i := range sel {
-		if i == 0 && unkept0 {
-			tmean[i] = ft.Prior
-			continue
+	n := len(sel)
+	lv.Slots = sel
+	lv.Unkept0 = n > 0 && !c.Keep[sel[0]]
+	lv.Data, lv.Offsets = st.AppendBytes(lv.Data[:0], append(lv.Offsets[:0], 0), sel)
+	grow := func(v []int64) []int64 {
+		if cap(v) < n {
+			return make([]int64, n)
 		}
-		k := c0[i]
-		if m.Pos == 1 {
-			k = c1[i]
+		return v[:n]
+	}
+	growF := func(v []float64) []float64 {
+		if cap(v) < n {
+			return make([]float64, n)
 		}
-		tmean[i] = ft.Encode(colstats.Agg{N: float64(rows[i]), Sum: float64(k), SumSq: float64(k)})
+		return v[:n]
+	}
+	lv.Rows = grow(lv.Rows)
+	if !c.info.Supervised {
+		for i, l := range sel {
+			lv.Rows[i] = int64(st.RowCount(l))
+		}
+		return
+	}
+	lv.TargetRows = grow(lv.TargetRows)
+	if m.Task == colstats.Regression {
+		lv.Sum, lv.SumSq = growF(lv.Sum), growF(lv.SumSq)
+		for i, l := range sel {
+			a := st.Target(l, 0, -1, m.Pos)
+			lv.Rows[i] = int64(st.RowCount(l))
+			lv.TargetRows[i], lv.Sum[i], lv.SumSq[i] = int64(a.N), a.Sum, a.SumSq
+		}
+		return
+	}
+	for len(lv.Counts) < len(m.Classes) {
+		lv.Counts = append(lv.Counts, nil)
+	}
+	lv.Counts = lv.Counts[:len(m.Classes)]
+	for k := range lv.Counts {
+		lv.Counts[k] = grow(lv.Counts[k])
+	}
+	if len(m.Classes) == 2 && st.Classes == 2 {
+		// One read of each level's per-fold counts: n_c = the sum over
+		// folds of the count of class c.
+		st.ClassTotals2s(sel, lv.Counts[0], lv.Counts[1], lv.Rows)
+		for i := range sel {
+			lv.TargetRows[i] = lv.Counts[0][i] + lv.Counts[1][i]
+		}
+		return
+	}
+	for i, l := range sel {
+		lv.Rows[i] = int64(st.RowCount(l))
+		var all int64
+		for k := range lv.Counts {
+			v := int64(st.ClassCount(l, k))
+			lv.Counts[k][i] = v
+			all += v
+		}
+		lv.TargetRows[i] = all
 	}
 }
 
 // CheckInput verifies that an input table has every column the model
 // encodes, with the type it had when the model was fitted.
 func (m *Model) CheckInput(file string, s *table.Schema, dir string) error {
-	if pc := m.Spec.PriorColumn; pc != "" && s.Index(pc) < 0 {
-		return &ColumnError{File: file, Flag: "the mapping tables in " + dir + " (--prior-by column)", Name: pc, Have: s.Names()}
+	for _, pc := range m.Spec.priorColumns() {
+		if s.Index(pc) < 0 {
+			return &ColumnError{File: file, Flag: "the mapping tables in " + dir + " (prior=column:" + pc + ")", Name: pc, Have: s.Names()}
+		}
 	}
 	for _, c := range m.Cols {
 		i := s.Index(c.Name)

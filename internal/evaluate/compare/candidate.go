@@ -6,6 +6,7 @@ import (
 	"strings"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 )
 
@@ -37,7 +38,7 @@ func (c Candidate) Baseline() bool { return c.Kind == KindPrior || c.Kind == Kin
 
 // DefaultCandidates is the default list: each method once, plus the two
 // baselines.
-const DefaultCandidates = "prior,target:insample,target:auto,freq,topk:100,hash:1024"
+const DefaultCandidates = "prior,target:insample,target:eb,freq,topk:100,hash:1024"
 
 // ParseCandidates parses a comma-separated list of candidates. A comma
 // inside target:blend=K,F belongs to the blend. Names must be distinct.
@@ -81,7 +82,7 @@ func ParseCandidates(list string) ([]Candidate, error) {
 }
 
 // ParseCandidate parses one candidate: prior; target:insample;
-// target[:auto|:m=NUM|:blend=K,F][:prior=prefixN]; freq; topk[:K] (K
+// target[:eb|:m=NUM|:blend=K,F][:prior=prefixN]; freq; topk[:K] (K
 // default 100); hash[:BUCKETS] (default 1024).
 func ParseCandidate(s string) (Candidate, error) {
 	bad := func(format string, a ...any) (Candidate, error) {
@@ -120,7 +121,7 @@ func ParseCandidate(s string) (Candidate, error) {
 		return Candidate{Name: "hash:" + strconv.FormatUint(n, 10), Kind: KindHash, Buckets: n}, nil
 	case "target":
 		c := Candidate{Kind: KindTarget, Smoothing: colstats.Smoothing{Kind: "auto"}}
-		sm := "auto"
+		sm := "eb"
 		for _, f := range fields[1:] {
 			switch {
 			case f == "insample":
@@ -128,8 +129,8 @@ func ParseCandidate(s string) (Candidate, error) {
 					return bad("target:insample takes no other parameters")
 				}
 				return Candidate{Name: "target:insample", Kind: KindInSample, Smoothing: colstats.Smoothing{Kind: "m", M: 0}}, nil
-			case f == "auto" || strings.HasPrefix(f, "m=") || strings.HasPrefix(f, "blend="):
-				v, err := pipeline.ParseSmoothing(f)
+			case f == "eb" || strings.HasPrefix(f, "m=") || strings.HasPrefix(f, "blend="):
+				v, err := method.ParseSmoothing(f)
 				if err != nil {
 					return bad("%v", strings.TrimPrefix(err.Error(), "--smoothing "))
 				}
@@ -141,7 +142,7 @@ func ParseCandidate(s string) (Candidate, error) {
 				}
 				c.PriorPrefix = n
 			default:
-				return bad("unknown parameter %q (want auto, m=NUM, blend=K,F, prior=prefixN or insample)", f)
+				return bad("unknown parameter %q (want eb, m=NUM, blend=K,F, prior=prefixN or insample)", f)
 			}
 		}
 		c.Name = "target:" + sm

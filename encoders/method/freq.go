@@ -38,10 +38,10 @@ func (e *freqEnc) String() string {
 	return "freq"
 }
 
-func (e *freqEnc) Needs() Needs                      { return Needs{} }
-func (e *freqEnc) Validate(Pass) error               { return nil }
-func (e *freqEnc) Check(colstats.Task, int) error    { return nil }
-func (e *freqEnc) Fit(c *Column) Fitted              { return &freqFit{e: e, c: c} }
+func (e *freqEnc) Needs() Needs                   { return Needs{} }
+func (e *freqEnc) Validate(Pass) error            { return nil }
+func (e *freqEnc) Check(colstats.Task, int) error { return nil }
+func (e *freqEnc) Fit(c *Column) Fitted           { return &freqFit{e: e, c: c} }
 func (e *freqEnc) Load(c *Column, raw json.RawMessage) (Fitted, error) {
 	if err := strictjson.Decode(raw, &struct{}{}); err != nil {
 		return nil, err

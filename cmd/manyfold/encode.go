@@ -11,6 +11,7 @@ import (
 
 	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
+	"manyfold/folds"
 	"manyfold/internal/guard"
 	"manyfold/io/atomicfile"
 	"manyfold/io/table"
@@ -62,7 +63,7 @@ func runEncode(args []string) (err error) {
 	methods := fs.String("methods", "target:eb", "encodings, joined by '+' (target:eb+freq), for every column or per column (col=target:eb+freq,col2=topk:6); see above")
 	task := fs.String("task", "", "binary, multiclass or regression (default: detected from the target)")
 	fs.IntVar(&sp.Folds, "folds", 5, "folds for out-of-fold statistics")
-	fs.StringVar(&sp.FoldBy, "fold-by", "rows", "fold assignment: rows, stratified, group=COL, ordered (contiguous blocks)")
+	foldBy := fs.String("fold-by", "rows", "fold rule: rows, stratified, group=COL, ordered (contiguous blocks)")
 	fs.Uint64Var(&sp.Seed, "seed", 0, "seed of the fold assignment")
 	scheme := fs.String("scheme", "kfold", "training rows: kfold, loo, ordered, none")
 	fs.Uint64Var(&sp.MinLevelRows, "min-level-rows", 0, "levels with fewer rows are left out of the tables and treated as unseen")
@@ -86,6 +87,9 @@ func runEncode(args []string) (err error) {
 	sp.Target, sp.Columns, sp.Task = *target, *columns, *task
 	if sp.Encodings, err = method.ParsePlan(*methods); err != nil {
 		return usagef("--methods: %v", err)
+	}
+	if sp.FoldBy, err = folds.ParseRule(*foldBy); err != nil {
+		return usagef("--fold-by: %v", err)
 	}
 	var ok bool
 	if sp.Scheme, ok = method.ParseScheme(*scheme); !ok {
@@ -133,7 +137,7 @@ func runEncode(args []string) (err error) {
 	reserveHeap(path)
 
 	var total int64
-	if sp.FoldBy == "ordered" {
+	if sp.FoldBy.Needs().Total {
 		if total, err = countRows(path, ropts); err != nil {
 			return err
 		}

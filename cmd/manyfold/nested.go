@@ -64,9 +64,7 @@ func vetNested(file string, r table.Reader, sp *pipeline.Spec, format tableio.Fo
 		return nil, err
 	}
 	group := ""
-	if g, ok := strings.CutPrefix(sp.FoldBy, "group="); ok {
-		group = g
-	}
+	group = sp.GroupColumn()
 	uses := []struct{ flag, name string }{{"--target", sp.Target}, {"--fold-by group=", group}, {"--order-by", sp.OrderBy}}
 	for _, pc := range sp.PriorColumns() {
 		uses = append(uses, struct{ flag, name string }{"prior=column:", pc})

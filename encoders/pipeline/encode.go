@@ -127,7 +127,7 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 	var tr *targetReader
 	var fa *foldAssigner
 	if training {
-		if sp.Target != "" && (sp.supervised() || sp.FoldBy == "stratified") {
+		if sp.Target != "" && (sp.supervised() || sp.FoldBy.Needs().Class) {
 			tcol := schema.Index(sp.Target)
 			tr = newTargetReader(opt.File, sp.Target, tcol, schema.Fields[tcol].Kind, m.Task.String(), m.Classes)
 		}

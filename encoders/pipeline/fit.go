@@ -98,7 +98,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	}
 	schema := r.Schema()
 	m := &Model{Spec: sp, Input: append([]table.Field(nil), schema.Fields...), threads: opt.Threads}
-	needTarget := sp.supervised() || sp.FoldBy == "stratified"
+	needTarget := sp.supervised() || sp.FoldBy.Needs().Class
 	tcol := -1
 	if sp.Target != "" {
 		tcol = schema.Index(sp.Target)
@@ -135,8 +135,8 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		k := schema.Fields[i].Kind
 		order = &orderCheck{file: opt.File, name: sp.OrderBy, col: i, numeric: k == table.Int64 || k == table.Float64}
 	}
-	if sp.FoldBy == "ordered" && sp.folds() > 1 && opt.TotalRows <= 0 {
-		return nil, errors.New("--fold-by ordered needs the row count of the input")
+	if sp.FoldBy.Needs().Total && sp.folds() > 1 && opt.TotalRows <= 0 {
+		return nil, fmt.Errorf("the fold rule %s needs the row count of the input", sp.FoldBy)
 	}
 
 	var tr *targetReader

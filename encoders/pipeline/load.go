@@ -15,6 +15,7 @@ import (
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/method"
+	"manyfold/folds"
 	"manyfold/internal/strictjson"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -283,13 +284,13 @@ func (mf *Manifest) checkParams(kinds map[string]table.Kind) (Spec, error) {
 	if err := sp.Validate(); err != nil {
 		return Spec{}, fmt.Errorf("params: %v", err)
 	}
-	if mf.Task == "" && sp.FoldBy == "stratified" {
-		return Spec{}, errors.New("params.fold_by is stratified but task is empty")
+	if mf.Task == "" && sp.FoldBy.Needs().Class {
+		return Spec{}, fmt.Errorf("params.fold_by is %s but task is empty", sp.FoldBy)
 	}
 	if mf.Task == "" && sp.supervised() {
 		return Spec{}, errors.New("an encoding reads the target but task is empty")
 	}
-	if mf.Task != "" && !sp.supervised() && sp.FoldBy != "stratified" {
+	if mf.Task != "" && !sp.supervised() && !sp.FoldBy.Needs().Class {
 		return Spec{}, fmt.Errorf("task %q but no encoding reads the target and the folds are not stratified", mf.Task)
 	}
 	for _, c := range sp.priorColumns() {
@@ -381,7 +382,11 @@ func specFrom(mf *Manifest) (Spec, error) {
 	if !ok {
 		return Spec{}, fmt.Errorf("params.scheme %q: want kfold, loo, ordered or none", p.Scheme)
 	}
-	sp := Spec{Target: mf.Target, Task: mf.Task, Folds: p.Folds, FoldBy: p.FoldBy, Seed: p.Seed,
+	rule, err := folds.ParseRule(p.FoldBy)
+	if err != nil {
+		return Spec{}, fmt.Errorf("params.fold_by: %v", err)
+	}
+	sp := Spec{Target: mf.Target, Task: mf.Task, Folds: p.Folds, FoldBy: rule, Seed: p.Seed,
 		Scheme: scheme, MinLevelRows: p.MinLevelRows, NullsUnseen: p.Nulls == "unseen", KeepAll: true}
 	sp.Encodings.PerColumn = []method.ColumnEncodings{}
 	for i, c := range mf.Columns {

@@ -416,19 +416,11 @@ func sortedClasses(order []string, numeric bool) ([]string, []int) {
 type foldAssigner struct {
 	groupCol int // position of the group column in the batch, or -1
 	as       folds.Assigner
-	err      error // the fold rule did not parse
 	out      []int32
 }
 
 func newFoldAssigner(sp *Spec, groupCol int, total int64) *foldAssigner {
-	fa := &foldAssigner{groupCol: groupCol}
-	rule, err := folds.ParseRule(sp.FoldBy)
-	if err != nil {
-		fa.err = err
-		return fa
-	}
-	fa.as = rule.Assigner(sp.Seed, sp.folds(), total)
-	return fa
+	return &foldAssigner{groupCol: groupCol, as: sp.FoldBy.Assigner(sp.Seed, sp.folds(), total)}
 }
 
 // assign fills the fold of every row. cls holds the class number of each
@@ -437,9 +429,6 @@ func newFoldAssigner(sp *Spec, groupCol int, total int64) *foldAssigner {
 // label, not its number, so the fit (classes numbered as met) and the
 // encode pass (classes numbered in sorted order) give a row the same fold.
 func (fa *foldAssigner) assign(b *table.Batch, cls []int32, labels []string) ([]int32, error) {
-	if fa.err != nil {
-		return nil, fa.err
-	}
 	if cap(fa.out) < b.Rows {
 		fa.out = make([]int32, b.Rows)
 	}

@@ -7,10 +7,10 @@ package pipeline
 import (
 	"fmt"
 	"slices"
-	"strings"
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/method"
+	"manyfold/folds"
 	"manyfold/io/table"
 )
 
@@ -29,7 +29,7 @@ type Spec struct {
 	Task      string // "" detects; binary, multiclass, regression
 
 	Folds  int    // K for kfold
-	FoldBy string // rows, stratified, group=COL, ordered
+	FoldBy folds.Rule // how rows are given folds (folds.ParseRule)
 	Seed   uint64
 	Scheme method.Pass // the training rows' scheme: KFold, LeaveOneOut, Ordered or InSample
 
@@ -50,7 +50,7 @@ func DefaultSpec() Spec {
 	return Spec{
 		Encodings: method.Plan{All: []method.Encoding{eb}},
 		Folds:     5,
-		FoldBy:    "rows",
+		FoldBy:    folds.RowsRule{},
 		Scheme:    method.KFold,
 		KeepAll:   true,
 	}
@@ -185,14 +185,11 @@ func (sp *Spec) Validate() error {
 	if sp.Scheme == method.KFold && (sp.Folds < 2 || sp.Folds > MaxFolds) {
 		return usageErr("--folds %d: want 2 to %d (for leave-one-out give --scheme loo)", sp.Folds, MaxFolds)
 	}
-	switch {
-	case sp.FoldBy == "rows", sp.FoldBy == "stratified", sp.FoldBy == "ordered":
-	case strings.HasPrefix(sp.FoldBy, "group=") && len(sp.FoldBy) > 6:
-	default:
-		return usageErr("unknown --fold-by %q (want rows, stratified, group=COL, ordered)", sp.FoldBy)
+	if sp.FoldBy == nil {
+		return usageErr("no fold rule")
 	}
-	if sp.FoldBy == "stratified" && sp.Target == "" {
-		return usageErr("--fold-by stratified needs --target")
+	if sp.FoldBy.Needs().Class && sp.Target == "" {
+		return usageErr("the fold rule %s needs --target", sp.FoldBy)
 	}
 	if sp.Task != "" {
 		if _, err := colstats.ParseTask(sp.Task); err != nil {
@@ -217,8 +214,8 @@ func CheckThreads(n int) error {
 
 // groupColumn returns the column named by --fold-by group=COL, or "".
 func (sp *Spec) groupColumn() string {
-	if strings.HasPrefix(sp.FoldBy, "group=") {
-		return sp.FoldBy[6:]
+	if sp.FoldBy != nil {
+		return sp.FoldBy.Needs().Group
 	}
 	return ""
 }

@@ -128,7 +128,7 @@ func (m *Model) Manifest() (Manifest, error) {
 	if sp.NullsUnseen {
 		nulls = "unseen"
 	}
-	mf.Params = Params{Folds: sp.Folds, FoldBy: sp.FoldBy, Seed: sp.Seed, Scheme: sp.Scheme.String(),
+	mf.Params = Params{Folds: sp.Folds, FoldBy: sp.FoldBy.String(), Seed: sp.Seed, Scheme: sp.Scheme.String(),
 		MinLevelRows: sp.MinLevelRows, Nulls: nulls}
 	for i, c := range m.Cols {
 		mc := ManifestCol{Name: c.Name, Type: c.Kind.String(), Table: tableFile(i, c.Name), Levels: m.Levels(i)}

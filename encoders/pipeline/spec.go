@@ -28,7 +28,7 @@ type Spec struct {
 	Encodings method.Plan
 	Task      string // "" detects; binary, multiclass, regression
 
-	Folds  int    // K for kfold
+	Folds  int        // K for kfold
 	FoldBy folds.Rule // how rows are given folds (folds.ParseRule)
 	Seed   uint64
 	Scheme method.Pass // the training rows' scheme: KFold, LeaveOneOut, Ordered or InSample

@@ -7,6 +7,7 @@ var registry = []Method{
 	freqMethod{},
 	topKMethod{},
 	hashMethod{},
+	woeMethod{},
 }
 
 // Lookup returns the method named name.

@@ -8,6 +8,7 @@ var registry = []Method{
 	topKMethod{},
 	hashMethod{},
 	woeMethod{},
+	oneHotMethod{},
 }
 
 // Lookup returns the method named name.

@@ -40,7 +40,7 @@ func BenchmarkFitEncode(b *testing.B) {
 	path := benchTable(b, rows)
 	sp := DefaultSpec()
 	sp.Target, sp.Columns = "late", []string{"dest_postcode", "sender_account", "route"}
-	sp.Methods = []string{MethodTarget, MethodFreq}
+	sp.Encodings = mustPlan(b, "target:eb+freq")
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		r, err := tableio.Open(path, tableio.ReadOptions{})
@@ -73,7 +73,7 @@ func BenchmarkTables(b *testing.B) {
 	path := benchTable(b, rows)
 	sp := DefaultSpec()
 	sp.Target, sp.Columns = "late", []string{"dest_postcode", "sender_account", "shipment_id"}
-	sp.Methods = []string{MethodTarget, MethodFreq}
+	sp.Encodings = mustPlan(b, "target:eb+freq")
 	r, err := tableio.Open(path, tableio.ReadOptions{})
 	if err != nil {
 		b.Fatal(err)

@@ -15,20 +15,15 @@ import (
 // regression target, a three-class target and no target. It returns them
 // with their manifests and the input they were fitted on.
 func fuzzDirs(f *testing.F) (dirs []string, manifests [][]byte, in string) {
-	specs := []func() Spec{
+	specs := []func(testing.TB) Spec{
 		loadSpec,
-		func() Spec { sp := loadSpec(); sp.PriorPrefix = 2; return sp },
-		func() Spec { sp := loadSpec(); sp.Target = "weight"; sp.Task = "regression"; return sp },
-		func() Spec { sp := loadSpec(); sp.Target = "grade"; return sp },
-		func() Spec {
-			sp := loadSpec()
-			sp.Methods = []string{MethodFreq, MethodTopK, MethodHash}
-			sp.Signed = true
-			return sp
-		},
+		func(tb testing.TB) Spec { return planSpec(tb, "target:eb:prior=prefix2+freq+topk+hash") },
+		func(tb testing.TB) Spec { sp := loadSpec(tb); sp.Target = "weight"; sp.Task = "regression"; return sp },
+		func(tb testing.TB) Spec { sp := loadSpec(tb); sp.Target = "grade"; return sp },
+		func(tb testing.TB) Spec { return planSpec(tb, "freq+topk+hash:1024:signed") },
 	}
 	for _, spec := range specs {
-		dir := fitTablesDir(f, spec())
+		dir := fitTablesDir(f, spec(f))
 		if _, err := LoadTables(dir); err != nil {
 			f.Fatalf("the tables as fitted do not load: %v", err)
 		}

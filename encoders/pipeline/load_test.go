@@ -63,11 +63,18 @@ func fitTablesDir(t testing.TB, sp Spec) string {
 	return tables
 }
 
+// loadPlan is the encodings of the loader's tests: every method, so that
+// columns[i].encodings[0] is target, [1] freq, [2] topk and [3] hash.
+const loadPlan = "target:eb+freq+topk+hash"
+
 // loadSpec is the default job of the loader's tests: every method, two
 // folds.
-func loadSpec() Spec {
+func loadSpec(tb testing.TB) Spec { return planSpec(tb, loadPlan) }
+
+// planSpec is the job of the loader's tests with the encodings plan.
+func planSpec(tb testing.TB, plan string) Spec {
 	sp := DefaultSpec()
-	sp.Methods = []string{MethodTarget, MethodFreq, MethodTopK, MethodHash}
+	sp.Encodings = mustPlan(tb, plan)
 	sp.Folds = 2
 	return sp
 }
@@ -127,6 +134,33 @@ func setCol(key string, v any) func(t *testing.T, dir string) {
 			delete(column(m, 0), key)
 		} else {
 			column(m, 0)[key] = v
+		}
+	})
+}
+
+// encoding returns the entry of the first column's encoding e.
+func encoding(m map[string]any, e int) map[string]any {
+	return column(m, 0)["encodings"].([]any)[e].(map[string]any)
+}
+
+// setEnc sets the text of the first column's encoding e.
+func setEnc(e int, text string) func(t *testing.T, dir string) {
+	return edit(func(m map[string]any) { encoding(m, e)["encoding"] = text })
+}
+
+// setFit sets a field of the fit of the first column's encoding e (nil
+// deletes it).
+func setFit(e int, key string, v any) func(t *testing.T, dir string) {
+	return edit(func(m map[string]any) {
+		fit, _ := encoding(m, e)["fit"].(map[string]any)
+		if fit == nil {
+			fit = map[string]any{}
+			encoding(m, e)["fit"] = fit
+		}
+		if v == nil {
+			delete(fit, key)
+		} else {
+			fit[key] = v
 		}
 	})
 }
@@ -270,7 +304,7 @@ func loadOrPanic(dir string) error {
 
 type loadCase struct {
 	name    string
-	spec    func() Spec // nil: loadSpec
+	spec    func(testing.TB) Spec // nil: loadSpec
 	corrupt func(t *testing.T, dir string)
 	want    []string // in the message
 }
@@ -283,7 +317,7 @@ func runLoadCases(t *testing.T, cases []loadCase) {
 			if c.spec != nil {
 				spec = c.spec
 			}
-			dir := fitTablesDir(t, spec())
+			dir := fitTablesDir(t, spec(t))
 			if _, err := LoadTables(dir); err != nil {
 				t.Fatalf("the tables as fitted do not load: %v", err)
 			}
@@ -311,31 +345,41 @@ func runLoadCases(t *testing.T, cases []loadCase) {
 // tables directory per case: each must give a ManifestError naming the
 // field, never a panic or a model that answers wrongly.
 func TestLoadDamagedManifest(t *testing.T) {
-	prefix := func() Spec { sp := loadSpec(); sp.PriorPrefix = 2; return sp }
-	multi := func() Spec { sp := loadSpec(); sp.Target = "grade"; return sp }
+	prefix := func(tb testing.TB) Spec { return planSpec(tb, "target:eb:prior=prefix2+freq+topk+hash") }
+	multi := func(tb testing.TB) Spec { sp := loadSpec(tb); sp.Target = "grade"; return sp }
+	regression := func(tb testing.TB) Spec { sp := loadSpec(tb); sp.Target = "weight"; sp.Task = "regression"; return sp }
+	const fit = "columns[0].encodings[0].fit"
 	cases := []loadCase{
-		{"prior missing", nil, setCol("prior", nil), []string{"columns[0].prior"}},
-		{"prior empty", nil, setCol("prior", []any{}), []string{"columns[0].prior"}},
-		{"prior null", nil, setCol("prior", []any{nil}), []string{"columns[0].prior"}},
-		{"prior out of range", nil, setCol("prior", []any{1.5}), []string{"columns[0].prior"}},
-		{"prior another rate", nil, setCol("prior", []any{0.123}), []string{"01-pc.parquet", "prior"}},
-		{"m another weight", nil, setCol("m", []any{0.5}), []string{"01-pc.parquet", "m"}},
-		{"smoothing other", nil, setParam("smoothing", "m=50"), []string{"columns[0].m", "params.smoothing"}},
-		{"smoothing a blend", nil, setParam("smoothing", "blend=2,1"), []string{"columns[0].m", "params.smoothing"}},
-		{"regression prior other", func() Spec { sp := loadSpec(); sp.Target = "weight"; sp.Task = "regression"; return sp },
-			setCol("prior", []any{40}), []string{"01-pc.parquet", "prior"}},
-		{"m missing", nil, setCol("m", nil), []string{"columns[0].m"}},
-		{"m empty", nil, setCol("m", []any{}), []string{"columns[0].m"}},
-		{"m negative", nil, setCol("m", []any{-2}), []string{"columns[0].m"}},
-		{"m of a column that has no target", func() Spec { sp := loadSpec(); sp.Methods = []string{MethodFreq}; return sp },
-			setCol("m", []any{3}), []string{"columns[0].m"}},
-		{"buckets 0", nil, setParam("buckets", 0), []string{"buckets"}},
-		{"buckets missing", nil, edit(func(m map[string]any) { delete(params(m), "buckets") }), []string{"params.buckets"}},
-		{"buckets other", nil, setParam("buckets", 77), []string{"bucket", "01-pc.parquet"}},
-		{"hash seed other", nil, setParam("hash_seed", 9), []string{"bucket", "01-pc.parquet"}},
-		{"unknown method", nil, setParam("methods", []any{"target", "woe"}), []string{"woe"}},
-		{"no methods", nil, setParam("methods", []any{}), []string{"methods"}},
-		{"method twice", nil, setParam("methods", []any{"freq", "freq"}), []string{"freq", "twice"}},
+		{"prior missing", nil, setFit(0, "prior", nil), []string{fit + ": prior is missing"}},
+		{"prior empty", nil, setFit(0, "prior", []any{}), []string{fit + ": prior has 0 values"}},
+		{"prior null", nil, setFit(0, "prior", []any{nil}), []string{fit, "prior[0]"}},
+		{"prior out of range", nil, setFit(0, "prior", []any{1.5}), []string{fit, "prior[0]"}},
+		{"prior another rate", nil, setFit(0, "prior", []any{0.123}), []string{"01-pc.parquet", "the manifest's prior, m"}},
+		{"m another weight", nil, setFit(0, "m", []any{0.5}), []string{"01-pc.parquet", "the manifest's prior, m"}},
+		{"smoothing other", nil, setEnc(0, "target:m=50"), []string{fit, "m[0]", "m=50"}},
+		{"smoothing a blend", nil, setEnc(0, "target:blend=2,1"), []string{fit, "m[0]", "blend"}},
+		{"regression prior other", regression, setFit(0, "prior", []any{40}), []string{"01-pc.parquet", "the manifest's prior, m"}},
+		{"m missing", nil, setFit(0, "m", nil), []string{fit + ": m is missing"}},
+		{"m empty", nil, setFit(0, "m", []any{}), []string{fit + ": m has 0 values"}},
+		{"m negative", nil, setFit(0, "m", []any{-2}), []string{fit, "m[0]"}},
+		{"m of a column that has no target", func(tb testing.TB) Spec { return planSpec(tb, "freq") },
+			setFit(0, "m", []any{3}), []string{fit, `unknown field "m"`}},
+		{"unknown field in a fit", nil, setFit(0, "prior_weight", []any{1}), []string{fit, `unknown field "prior_weight"`}},
+		{"fit missing", nil, edit(func(m map[string]any) { delete(encoding(m, 0), "fit") }), []string{fit + ": prior is missing"}},
+		{"fit of a hash missing", nil, edit(func(m map[string]any) { delete(encoding(m, 3), "fit") }), []string{"columns[0].encodings[3].fit", "expected_occupied"}},
+		{"buckets 0", nil, setEnc(3, "hash:0"), []string{"columns[0].encodings[3]", "hash:0"}},
+		{"buckets other", nil, setEnc(3, "hash:77"), []string{"bucket", "01-pc.parquet"}},
+		{"hash seed other", nil, setEnc(3, "hash:1024:seed=9"), []string{"bucket", "01-pc.parquet"}},
+		{"unknown method", nil, setEnc(1, "shrink"), []string{"columns[0].encodings[1]", `unknown method "shrink"`, "target, freq, topk, hash"}},
+		{"unknown target parameter", nil, setEnc(0, "target:woe"), []string{"columns[0].encodings[0]", `unknown parameter "woe"`}},
+		{"no encodings", nil, setCol("encodings", []any{}), []string{"columns[0].encodings is empty"}},
+		{"encodings missing", nil, setCol("encodings", nil), []string{"columns[0].encodings is missing"}},
+		{"encoding text missing", nil, edit(func(m map[string]any) { delete(encoding(m, 1), "encoding") }), []string{"columns[0].encodings[1].encoding"}},
+		{"encoding twice", nil, edit(func(m map[string]any) {
+			c := column(m, 0)
+			c["encodings"] = append(c["encodings"].([]any), encoding(m, 1))
+		}), []string{"01-pc.parquet", "two of its encodings", `"freq"`}},
+		{"encoding not canonical", nil, setEnc(0, "target"), []string{"columns[0].encodings[0]", `"target" is not written`, "target:eb"}},
 		{"bogus column type", nil, setCol("type", "blob"), []string{"columns[0].type", "blob"}},
 		{"column type other than the input's", nil, setCol("type", "int"), []string{"columns[0].type"}},
 		{"bogus input type", nil, edit(func(m map[string]any) { m["input"].([]any)[0].(map[string]any)["type"] = "blob" }), []string{"input[0].type", "blob"}},
@@ -344,38 +388,40 @@ func TestLoadDamagedManifest(t *testing.T) {
 		{"task without target", nil, edit(func(m map[string]any) { delete(m, "target") }), []string{"target"}},
 		{"binary with three classes", nil, edit(func(m map[string]any) { m["classes"] = []any{"0", "1", "2"} }), []string{"classes"}},
 		{"class twice", multi, edit(func(m map[string]any) { c := m["classes"].([]any); c[1] = c[0] }), []string{"classes", "twice"}},
-		{"classes of a regression", func() Spec { sp := loadSpec(); sp.Target = "weight"; sp.Task = "regression"; return sp },
-			edit(func(m map[string]any) { m["classes"] = []any{"0", "1"} }), []string{"classes"}},
+		{"classes of a regression", regression, edit(func(m map[string]any) { m["classes"] = []any{"0", "1"} }), []string{"classes"}},
 		{"bogus nulls", nil, setParam("nulls", "skip"), []string{"params.nulls", "skip"}},
-		{"bogus freq", nil, setParam("freq", "percent"), []string{"params.freq", "percent"}},
-		{"bogus output", nil, setParam("output", "probit"), []string{"output", "probit"}},
+		{"bogus freq", nil, setEnc(1, "freq:x"), []string{"columns[0].encodings[1]", "freq:x"}},
+		{"bogus output", nil, setEnc(0, "target:eb:probit"), []string{"columns[0].encodings[0]", "probit"}},
+		{"log-odds of a regression", regression, setEnc(0, "target:eb:logodds"), []string{"columns[0].encodings[0]", "log-odds"}},
 		{"bogus scheme", nil, setParam("scheme", "bootstrap"), []string{"scheme", "bootstrap"}},
-		{"bogus smoothing", nil, setParam("smoothing", "m=-3"), []string{"params.smoothing"}},
-		{"top_k 0", nil, setParam("top_k", 0), []string{"top-k"}},
-		{"top_k negative", nil, setParam("top_k", -5), []string{"top-k"}},
-		{"top_k below the codes stored", nil, setParam("top_k", 1), []string{"topk", "01-pc.parquet"}},
-		{"top_k a text", nil, setParam("top_k", "ten"), []string{"top_k"}},
-		{"signed missing", nil, edit(func(m map[string]any) { delete(params(m), "signed") }), []string{"params.signed"}},
-		{"signed null", nil, setParam("signed", nil), []string{"params.signed"}},
+		{"bogus smoothing", nil, setEnc(0, "target:m=-3"), []string{"columns[0].encodings[0]", "m=-3"}},
+		{"top_k 0", nil, setEnc(2, "topk:0"), []string{"columns[0].encodings[2]", "topk:0"}},
+		{"top_k negative", nil, setEnc(2, "topk:-5"), []string{"columns[0].encodings[2]", "topk:-5"}},
+		{"top_k below the codes stored", nil, setEnc(2, "topk:1"), []string{"topk", "01-pc.parquet"}},
+		{"top_k a text", nil, setEnc(2, "topk:ten"), []string{"columns[0].encodings[2]", "ten"}},
+		{"params.smoothing, a field of format 2", nil, setParam("smoothing", "auto"), []string{ManifestName, `unknown field "smoothing"`}},
 		{"unknown field", nil, edit(func(m map[string]any) { column(m, 0)["prior_weight"] = 1 }), []string{"prior_weight"}},
-		{"rows 0", nil, edit(func(m map[string]any) { m["rows"] = 0 }), []string{"rows"}},
+		{"format 2", nil, edit(func(m map[string]any) { m["format"] = 2 }), []string{"format version 2", "refit them"}},
+		{"rows 0", nil, edit(func(m map[string]any) { m["rows"] = 0 }), []string{ManifestName, "rows is 0"}},
 		{"rows fewer than the tables hold", nil, edit(func(m map[string]any) { m["rows"] = 5 }), []string{"rows", "01-pc.parquet"}},
 		{"levels stored other", nil, setCol("levels_stored", 3), []string{"levels_stored", "01-pc.parquet"}},
 		{"levels stored above levels", nil, setCol("levels_stored", 1000), []string{"columns[0].levels_stored"}},
-		{"no columns", nil, edit(func(m map[string]any) { m["columns"] = []any{} }), []string{"columns"}},
-		{"column twice", nil, edit(func(m map[string]any) { c := m["columns"].([]any); c[1] = c[0] }), []string{"pc", "twice"}},
+		{"no columns", nil, edit(func(m map[string]any) { m["columns"] = []any{} }), []string{ManifestName, "no columns"}},
+		{"column twice", nil, edit(func(m map[string]any) { c := m["columns"].([]any); c[1] = c[0] }), []string{ManifestName, `"pc" is named twice`}},
 		{"not JSON", nil, func(t *testing.T, dir string) {
-			os.WriteFile(filepath.Join(dir, ManifestName), []byte("{\"format\": 1,"), 0o644)
+			os.WriteFile(filepath.Join(dir, ManifestName), []byte("{\"format\": 3,"), 0o644)
 		}, []string{ManifestName}},
 		{"trailing bytes", nil, func(t *testing.T, dir string) {
 			b, _ := os.ReadFile(filepath.Join(dir, ManifestName))
 			os.WriteFile(filepath.Join(dir, ManifestName), append(b, "{}"...), 0o644)
 		}, []string{ManifestName}},
 		{"parent table missing from the manifest", prefix, setCol("parent_table", nil), []string{"columns[0].parent_table"}},
-		{"parent prior missing", prefix, setCol("parent_prior", nil), []string{"columns[0].parent_prior"}},
+		{"parent prior missing", prefix, setFit(0, "parent_prior", nil), []string{fit + ": parent_prior"}},
+		{"parent m missing", prefix, setFit(0, "parent_m", nil), []string{fit + ": parent_m"}},
+		{"parent prior without a prior", nil, setFit(0, "parent_prior", []any{0.5}), []string{fit + ": parent_prior"}},
 		{"parent table without a prior", nil, setCol("parent_table", "01-pc.parents.parquet"), []string{"columns[0].parent_table"}},
-		{"prior prefix negative", nil, setParam("prior_prefix", -1), []string{"prior_prefix"}},
-		{"prior column not in the input", nil, setParam("prior_column", "region"), []string{"region"}},
+		{"prior prefix negative", nil, setEnc(0, "target:eb:prior=prefix-1"), []string{"columns[0].encodings[0]", "prefix-1"}},
+		{"prior column not in the input", nil, setEnc(0, "target:eb:prior=column:region"), []string{ManifestName, `"region" is not among the input columns`}},
 	}
 	runLoadCases(t, cases)
 }
@@ -464,7 +510,7 @@ func TestLoadDamagedTables(t *testing.T) {
 // TestLoadParentTables checks the hierarchical prior's tables: a parent
 // table swapped for the column's own, or missing.
 func TestLoadParentTables(t *testing.T) {
-	prefix := func() Spec { sp := loadSpec(); sp.PriorPrefix = 2; return sp }
+	prefix := func(tb testing.TB) Spec { return planSpec(tb, "target:eb:prior=prefix2+freq+topk+hash") }
 	cases := []loadCase{
 		{"parent table missing", prefix, func(t *testing.T, dir string) { os.Remove(filepath.Join(dir, "01-pc.parents.parquet")) },
 			[]string{"01-pc.parents.parquet"}},

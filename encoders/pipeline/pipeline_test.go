@@ -4,7 +4,7 @@ import (
 	"slices"
 	"testing"
 
-	"manyfold/encoders/colstats"
+	"manyfold/encoders/method"
 	"manyfold/io/table"
 )
 
@@ -26,27 +26,14 @@ func TestClosest(t *testing.T) {
 	}
 }
 
-func TestParseSmoothing(t *testing.T) {
-	cases := []struct {
-		in   string
-		want colstats.Smoothing
-		ok   bool
-	}{
-		{"auto", colstats.Smoothing{Kind: "auto"}, true},
-		{"m=20", colstats.Smoothing{Kind: "m", M: 20}, true},
-		{"m=0.5", colstats.Smoothing{Kind: "m", M: 0.5}, true},
-		{"blend=20,10", colstats.Smoothing{Kind: "blend", K: 20, F: 10}, true},
-		{"m=-1", colstats.Smoothing{}, false},
-		{"m=x", colstats.Smoothing{}, false},
-		{"blend=3", colstats.Smoothing{}, false},
-		{"shrink", colstats.Smoothing{}, false},
+// mustPlan parses a plan of encodings (method.ParsePlan) for a test.
+func mustPlan(tb testing.TB, s string) method.Plan {
+	tb.Helper()
+	p, err := method.ParsePlan(s)
+	if err != nil {
+		tb.Fatal(err)
 	}
-	for _, c := range cases {
-		got, err := ParseSmoothing(c.in)
-		if (err == nil) != c.ok || (c.ok && got != c.want) {
-			t.Errorf("ParseSmoothing(%q) = %+v, %v", c.in, got, err)
-		}
-	}
+	return p
 }
 
 // textBatch returns a one-column batch of text values ("" is null).
@@ -99,12 +86,23 @@ func TestSortedClasses(t *testing.T) {
 func TestCheckOutputNames(t *testing.T) {
 	s := &table.Schema{Fields: []table.Field{{Name: "route"}, {Name: "route_freq"}, {Name: "late"}}}
 	sp := DefaultSpec()
-	sp.Columns, sp.Methods = []string{"route"}, []string{MethodTarget, MethodFreq}
+	sp.Target, sp.Columns, sp.Encodings = "late", []string{"route"}, mustPlan(t, "target:eb+freq")
+	if err := sp.Validate(); err != nil {
+		t.Fatal(err)
+	}
 	if err := sp.CheckOutputNames("x.csv", s); err == nil {
 		t.Error("route_freq clash not reported")
 	}
 	sp.KeepAll, sp.Keep = false, []string{"route", "late"}
 	if err := sp.CheckOutputNames("x.csv", s); err != nil {
 		t.Errorf("clash reported for a column that is not kept: %v", err)
+	}
+	sp.KeepAll, sp.Keep = true, nil
+	sp.Encodings = mustPlan(t, "route=target:eb")
+	if err := sp.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	if err := sp.CheckOutputNames("x.csv", s); err != nil {
+		t.Errorf("clash reported for a column whose encodings write no freq: %v", err)
 	}
 }

@@ -2,14 +2,12 @@ package pipeline
 
 import (
 	"fmt"
-	"math"
 	"os"
 	"path/filepath"
 	"reflect"
 	"strings"
 	"testing"
 
-	"manyfold/encoders/smooth"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -133,7 +131,7 @@ func TestEncodeReplayMatchesLookup(t *testing.T) {
 	}
 	sp := DefaultSpec()
 	sp.Target, sp.Columns = "late", []string{"shipment_id", "dest_postcode"}
-	sp.Methods = []string{MethodTarget, MethodFreq}
+	sp.Encodings = mustPlan(t, "target:eb+freq")
 	encode := func(t *testing.T, replayed bool) []*table.Batch {
 		r, err := tableio.Open(path, tableio.ReadOptions{})
 		if err != nil {
@@ -171,102 +169,5 @@ func TestEncodeReplayMatchesLookup(t *testing.T) {
 		if !reflect.DeepEqual(got[i].Cols, want[i].Cols) {
 			t.Fatalf("batch %d differs between the recorded slots and the lookups", i)
 		}
-	}
-}
-
-// TestEncodeFoldsMatchesValue checks the training pass's kernel for a
-// binary target with k folds against the general path, value and freq,
-// for every level slot (unseen and left-out ones among them) in each fold:
-// frequencies as counts and as shares, rates and log-odds, m-estimate and
-// empirical-Bayes smoothing, a fold's cells narrow and wide (a level with
-// more than 255 rows of one class in one fold).
-func TestEncodeFoldsMatchesValue(t *testing.T) {
-	var sb strings.Builder
-	sb.WriteString("account,late\n")
-	for i := 0; i < 20000; i++ {
-		acct := fmt.Sprintf("A%04d", (i*i)%997)
-		if i%3 == 0 {
-			acct = "A-big" // thousands of rows: wide cells
-		}
-		if i%211 == 5 {
-			acct = ""
-		}
-		fmt.Fprintf(&sb, "%s,%d\n", acct, (i/7+i%5)%2)
-	}
-	path := filepath.Join(t.TempDir(), "accounts.csv")
-	if err := os.WriteFile(path, []byte(sb.String()), 0o644); err != nil {
-		t.Fatal(err)
-	}
-	for _, tc := range []struct {
-		name      string
-		share     bool
-		output    string
-		smoothing string
-		minRows   uint64
-	}{
-		{"counts", false, "rate", "m=20", 0},
-		{"shares, log-odds", true, "logodds", "m=5", 0},
-		{"auto, min rows", false, "rate", "auto", 30},
-	} {
-		t.Run(tc.name, func(t *testing.T) {
-			sp := DefaultSpec()
-			sp.Target, sp.Columns = "late", []string{"account"}
-			sp.Methods = []string{MethodTarget, MethodFreq}
-			sp.FreqShare, sp.Output, sp.MinLevelRows = tc.share, tc.output, tc.minRows
-			sm, err := ParseSmoothing(tc.smoothing)
-			if err != nil {
-				t.Fatal(err)
-			}
-			sp.Smoothing = sm
-			r, err := tableio.Open(path, tableio.ReadOptions{})
-			if err != nil {
-				t.Fatal(err)
-			}
-			m, err := Fit(r, sp, FitOptions{File: path, Threads: 2})
-			r.Close()
-			if err != nil {
-				t.Fatal(err)
-			}
-			c := m.Cols[0]
-			if !m.fastFolds(c) {
-				t.Fatal("the kernel does not take this column")
-			}
-			var ls, fold []int32
-			left := 0
-			for l := -1; l < c.St.NumLevels(); l++ {
-				if l >= 0 && !c.Keep[l] {
-					left++
-				}
-				for f := 0; f < sp.Folds; f++ {
-					ls, fold = append(ls, int32(l)), append(fold, int32(f))
-				}
-			}
-			if tc.minRows > 0 && left == 0 {
-				t.Fatal("no level is left out")
-			}
-			tm := make([]float64, len(ls))
-			var freq table.Column
-			m.encodeFolds(c, ls, fold, tm, &freq)
-			for i, l := range ls {
-				f := int(fold[i])
-				want := m.value(c, int(l), -1, 0, f, c.FoldFit[f][0])
-				if tc.output == "logodds" {
-					want = smooth.LogOdds(want)
-				}
-				wantFreq := 0.0
-				if l >= 0 {
-					wantFreq = m.freq(c, int(l))
-				}
-				gotFreq := float64(0)
-				if tc.share {
-					gotFreq = freq.Floats[i]
-				} else {
-					gotFreq = float64(freq.Ints[i])
-				}
-				if math.Float64bits(tm[i]) != math.Float64bits(want) || gotFreq != wantFreq {
-					t.Fatalf("slot %d, fold %d: mean %v, frequency %v; the general path gives %v, %v", l, f, tm[i], gotFreq, want, wantFreq)
-				}
-			}
-		})
 	}
 }

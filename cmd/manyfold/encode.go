@@ -18,7 +18,7 @@ import (
 	"manyfold/io/tableio"
 )
 
-const encodeUsage = `Usage: manyfold encode FILE --columns a,b,c --out OUT --tables DIR [flags]
+var encodeUsage = `Usage: manyfold encode FILE --columns a,b,c --out OUT --tables DIR [flags]
 
 Fits encodings of the categorical columns in one pass over FILE, then writes
 FILE again in a second pass with the encoded columns appended, and saves the
@@ -27,17 +27,7 @@ way. Training rows get target statistics out of fold (--scheme kfold): a row
 never sees its own label.
 
 Encodings (--methods), in one grammar with compare and the manifest:
-  target[:eb|:m=NUM|:blend=K,F][:prior=prefixN|:prior=column:COL][:logodds]
-        smoothed target mean, <col>_tmean (<col>_tmean_<class> for a
-        multi-class target); eb (default) estimates m by empirical Bayes;
-        a prior pulls a level towards its prefix's or the row's COL value
-  freq[:share]            rows of the level (or their share): <col>_freq
-  topk[:K][:min=N]        codes 1..K of the K most frequent levels, 0 = other
-                          (default K 100): <col>_topk
-  hash[:B][:signed][:seed=S]
-                          bucket of XXH64(value) mod B (default 1024):
-                          <col>_hash, and <col>_hash_sign with signed
-Join encodings with '+'. One list for every column:
+` + method.Help() + `Join encodings with '+'. One list for every column:
   --methods target:eb+freq
 or a list per column (then --columns may be left out):
   --methods 'dest_postcode=target:eb+freq,parcel_type=topk:6'

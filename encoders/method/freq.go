@@ -15,6 +15,12 @@ import (
 // unseen level, or one left out, gets 0. It does not read the target.
 type freqMethod struct{}
 
+func (freqMethod) Syntax() string { return "freq[:share]" }
+
+func (freqMethod) Summary() string {
+	return "rows of the level, or their share of all rows: <col>_freq"
+}
+
 func (freqMethod) Name() string { return "freq" }
 
 func (freqMethod) Parse(args []string) (Encoding, error) {

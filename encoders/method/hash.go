@@ -20,6 +20,12 @@ import (
 // its bucket too; the null level hashes the empty value.
 type hashMethod struct{}
 
+func (hashMethod) Syntax() string { return "hash[:B][:signed][:seed=S]" }
+
+func (hashMethod) Summary() string {
+	return "bucket of XXH64(value) mod B (default 1024): <col>_hash, and <col>_hash_sign with signed"
+}
+
 func (hashMethod) Name() string { return "hash" }
 
 // MaxBuckets bounds B: bucket numbers are written as 64-bit signed

@@ -24,6 +24,10 @@ import (
 type Method interface {
 	// Name is the method's first word in the grammar.
 	Name() string
+	// Syntax is the method's grammar, Summary one line on what it
+	// writes, for the commands' help.
+	Syntax() string
+	Summary() string
 	// Parse returns the encoding that the parameters args (the grammar's
 	// fields after the name, split at ':') describe; errors say which
 	// parameter is wrong and what is wanted.

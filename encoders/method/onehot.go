@@ -21,6 +21,12 @@ import (
 // and runs of bit-packed indices, about a bit a value or less.
 type oneHotMethod struct{}
 
+func (oneHotMethod) Syntax() string { return "onehot[:K][:min=N]" }
+
+func (oneHotMethod) Summary() string {
+	return "indicators of the K most frequent levels (default 100), other = all zeros: <col>_onehot_1 ... <col>_onehot_K"
+}
+
 func (oneHotMethod) Name() string { return "onehot" }
 
 func (oneHotMethod) Parse(args []string) (Encoding, error) {

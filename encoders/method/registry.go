@@ -1,5 +1,10 @@
 package method
 
+import (
+	"fmt"
+	"strings"
+)
+
 // registry lists the methods, in the order the help text names them. A new
 // method is a file of its own and one line here.
 var registry = []Method{
@@ -19,6 +24,24 @@ func Lookup(name string) (Method, bool) {
 		}
 	}
 	return nil, false
+}
+
+// Help lists every method's grammar and summary, for the commands' help.
+func Help() string {
+	var b strings.Builder
+	for _, m := range registry {
+		fmt.Fprintf(&b, "  %s\n", m.Syntax())
+		line := "       "
+		for _, w := range strings.Fields(m.Summary()) {
+			if len(line)+1+len(w) > 78 {
+				b.WriteString(line + "\n")
+				line = "       "
+			}
+			line += " " + w
+		}
+		b.WriteString(line + "\n")
+	}
+	return b.String()
 }
 
 // Names returns the registered methods' names.

@@ -27,6 +27,14 @@ import (
 // formulas and their edge cases.
 type targetMethod struct{}
 
+func (targetMethod) Syntax() string {
+	return "target[:eb|:m=NUM|:blend=K,F][:prior=prefixN|:prior=column:COL][:logodds]"
+}
+
+func (targetMethod) Summary() string {
+	return "smoothed target mean, out of fold: <col>_tmean (<col>_tmean_<class> for a multi-class target); eb (default) estimates m by empirical Bayes; a prior pulls a level towards its prefix's or the row's COL value"
+}
+
 func (targetMethod) Name() string { return "target" }
 
 func (m targetMethod) Parse(args []string) (Encoding, error) {

@@ -16,6 +16,12 @@ import (
 // for a code. Every other level, unseen or left out, is 0, "other".
 type topKMethod struct{}
 
+func (topKMethod) Syntax() string { return "topk[:K][:min=N]" }
+
+func (topKMethod) Summary() string {
+	return "codes 1..K of the K most frequent levels (default 100), 0 = other: <col>_topk"
+}
+
 func (topKMethod) Name() string { return "topk" }
 
 // MaxTopK bounds k: the codes and a one-hot design's columns.

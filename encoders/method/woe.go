@@ -32,6 +32,12 @@ import (
 // logarithm finite; a = 0 is refused.
 type woeMethod struct{}
 
+func (woeMethod) Syntax() string { return "woe[:a=A]" }
+
+func (woeMethod) Summary() string {
+	return "weight of evidence of a binary target, out of fold, a = 0.5 by default; unseen levels 0: <col>_woe"
+}
+
 func (woeMethod) Name() string { return "woe" }
 
 func (woeMethod) Parse(args []string) (Encoding, error) {

@@ -35,9 +35,11 @@ folds cannot keep the row order.
 Candidates (--candidates, comma separated): prior (baseline: no information
 from the column), target:insample (baseline: the raw level mean fitted on
 the training rows themselves; it leaks, and is shown so the gap is seen),
-target[:auto|:m=NUM|:blend=K,F][:prior=prefixN], freq, topk:K, hash:BUCKETS.
-Target means and frequencies enter the models as standardised features,
-top-k and hashed codes as one indicator column per code.
+or encodings in encode's grammar (see manyfold encode --help), several
+joined by '+' to feed one model together (target:eb+freq). A column prior
+(prior=column:COL) is not taken. Numeric outputs (target means, weights of
+evidence, frequencies, indicators) enter the models as standardised
+features, top-k codes and hash buckets as one indicator column per code.
 
 The statistics always stream over every row; --sample bounds the rows the
 models are fitted and scored on (a deterministic hash sample of about that

@@ -195,3 +195,7 @@ func parseUint(name, s string, lo, hi uint64) (uint64, error) {
 	}
 	return v, nil
 }
+
+// SplitCandidates splits a comma-separated list of encoding lists (each
+// joined by '+'), keeping the comma of blend=K,F inside its piece.
+func SplitCandidates(s string) []string { return splitList(s, ",") }

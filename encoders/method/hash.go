@@ -181,3 +181,6 @@ func (e *hashEnc) Names() []string {
 	}
 	return []string{"hash"}
 }
+
+// Codes gives the buckets 0..B-1.
+func (f *hashFit) Codes() (int, int64) { return int(f.e.buckets), 0 }

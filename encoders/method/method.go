@@ -259,3 +259,12 @@ func (lv *Levels) Agg(i, o, pos int, task colstats.Task) colstats.Agg {
 	k := float64(lv.Counts[o][i])
 	return colstats.Agg{N: float64(lv.TargetRows[i]), Sum: k, SumSq: k}
 }
+
+// Coded is a Fitted whose first output is a code standing for a group of
+// levels (a top-k code, a hash bucket) rather than a quantity: a model
+// expands it into one indicator per code. Codes returns the number of
+// codes and the first one's value; n == 0 means the output is a quantity
+// after all.
+type Coded interface {
+	Codes() (n int, first int64)
+}

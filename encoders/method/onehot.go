@@ -105,3 +105,7 @@ func (f *oneHotFit) Encode(r *Rows, dst []table.Column) {
 }
 
 func (f *oneHotFit) Manifest() any { return oneHotManifest{Codes: f.n} }
+
+// Codes says that the indicators are quantities already (0 or 1): unlike
+// topk's, the first output is not a code.
+func (f *oneHotFit) Codes() (int, int64) { return 0, 0 }

@@ -156,3 +156,13 @@ func (f *topKFit) Finish() error { return nil }
 func (f *topKFit) Manifest() any { return nil }
 
 func (e *topKEnc) Names() []string { return []string{"topk"} }
+
+// Codes gives the codes 1..n, n the largest code given (levels below it
+// in the ranking).
+func (f *topKFit) Codes() (int, int64) {
+	n := 0
+	for _, c := range f.codes {
+		n = max(n, int(c))
+	}
+	return n, 1
+}

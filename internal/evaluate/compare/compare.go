@@ -10,7 +10,7 @@ import (
 	"time"
 
 	"manyfold/encoders/colstats"
-	"manyfold/encoders/hashenc"
+	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 	"manyfold/folds"
 	"manyfold/internal/guard"
@@ -379,6 +379,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 			return nil, &table.DataError{File: opt.File, Column: opt.Target, Err: fmt.Errorf("--task binary but the target has %d classes", len(labels))}
 		}
 		ev.classes = len(labels)
+		ev.classLabels = labels
 		ev.pos = len(labels) - 1
 		res.Classes = labels
 	}
@@ -472,12 +473,13 @@ func higherBetter(name string) bool {
 
 // evaluator scores the candidates of every column on the sample.
 type evaluator struct {
-	opt     Options
-	smp     *sample
-	task    colstats.Task
-	classes int
-	pos     int
-	ko, ki  int
+	opt         Options
+	smp         *sample
+	task        colstats.Task
+	classes     int
+	classLabels []string // classification: the labels in sorted order
+	pos         int
+	ko, ki      int
 	// useOut[f]: the cells of the outer training rows of fold f;
 	// useIn[f][g]: those whose inner fold is not g either.
 	useOut [][]bool
@@ -531,48 +533,80 @@ type colState struct {
 	slot  []int32
 	// foldRows[f][l]: rows of level l among the outer training rows of f.
 	foldRows [][]uint64
-	// parents by prefix length: statistics and each slot's parent.
-	mu      sync.Mutex
-	parents map[int]*parentStats
-	buckets map[uint64][]int32
+	// views[f] is outer fold f's view of the statistics (see view).
+	views []foldView
 }
 
-type parentStats struct {
-	st    *colstats.Stats
-	of    []int32
-	order []uint32
+// foldView is the statistics of the training cells of one outer fold,
+// grouped by inner fold, as the methods see a column, made once by the
+// first candidate that needs them; by prefix length, the same with the
+// parent levels of a prefix prior.
+type foldView struct {
+	once     sync.Once
+	col      *method.Column
+	mu       sync.Mutex
+	prefixed map[int]*method.Column
 }
 
-func (cs *colState) parent(n int) *parentStats {
-	cs.mu.Lock()
-	defer cs.mu.Unlock()
-	if p := cs.parents[n]; p != nil {
-		return p
+// view returns outer fold f's view of the column, for an encoding with
+// hierarchical prior p (a prefix prior, or none): statistics with the
+// inner folds as folds (colstats.Stats.Collapse), so that a method fits a
+// training row of inner fold g from the other inner folds of the fold's
+// training cells, as encode fits a row of fold g; a level is seen when it
+// has rows among them.
+func (cs *colState) view(ev *evaluator, f int, p method.Prior) *method.Column {
+	v := &cs.views[f]
+	v.once.Do(func() {
+		group := make([]int, ev.ko*ev.ki)
+		for c := range group {
+			group[c] = -1
+			if c/ev.ki != f {
+				group[c] = c % ev.ki
+			}
+		}
+		v.col = ev.methodColumn(cs.st.Collapse(group, ev.ki), cs.order)
+	})
+	if p.Prefix == 0 {
+		return v.col
 	}
-	st, of := cs.st.Rollup(func(b []byte) []byte {
+	v.mu.Lock()
+	defer v.mu.Unlock()
+	if c := v.prefixed[p.Prefix]; c != nil {
+		return c
+	}
+	n := p.Prefix
+	ps, of := v.col.St.Rollup(func(b []byte) []byte {
 		if len(b) > n {
 			return b[:n]
 		}
 		return b
 	})
-	p := &parentStats{st: st, of: of, order: st.Sorted()}
-	cs.parents[n] = p
-	return p
+	// The column's m is then estimated within parents (Stats.Parents), as
+	// encode estimates it; the statistics themselves are shared.
+	st := *v.col.St
+	st.Parents = of
+	c := ev.methodColumn(&st, cs.order)
+	c.Parent, c.ParentOf = ev.methodColumn(ps, ps.Sorted()), of
+	if v.prefixed == nil {
+		v.prefixed = map[int]*method.Column{}
+	}
+	v.prefixed[n] = c
+	return c
 }
 
-// bucketsOf returns the hash bucket of every level slot.
-func (cs *colState) bucketsOf(n uint64) []int32 {
-	cs.mu.Lock()
-	defer cs.mu.Unlock()
-	if b := cs.buckets[n]; b != nil {
-		return b
+// methodColumn describes statistics to the methods: a level is seen when it has
+// rows; order is the slots' canonical order.
+func (ev *evaluator) methodColumn(st *colstats.Stats, order []uint32) *method.Column {
+	c := &method.Column{St: st, Keep: make([]bool, st.NumLevels()), Supervised: true, Task: ev.task,
+		Classes: ev.classLabels, Pos: ev.pos, Order: func() []uint32 { return order }}
+	for l := range c.Keep {
+		if n := st.RowCount(l); n > 0 {
+			c.Keep[l] = true
+			c.Total += float64(n)
+			c.Distinct++
+		}
 	}
-	b := make([]int32, cs.st.NumLevels())
-	for l := range b {
-		b[l] = int32(hashenc.Bucket(hashenc.Sum(cs.st.Bytes(l), 0), n))
-	}
-	cs.buckets[n] = b
-	return b
+	return c
 }
 
 // job is one (candidate, outer fold) fit.
@@ -590,8 +624,7 @@ type foldScore struct {
 }
 
 func (ev *evaluator) column(ci int, name string, st *colstats.Stats) (ColumnResult, error) {
-	cs := &colState{st: st, order: st.Sorted(), slot: ev.smp.slot[ci],
-		parents: map[int]*parentStats{}, buckets: map[uint64][]int32{}}
+	cs := &colState{st: st, order: st.Sorted(), slot: ev.smp.slot[ci], views: make([]foldView, ev.ko)}
 	n := st.NumLevels()
 	cs.foldRows = make([][]uint64, ev.ko)
 	for f := range cs.foldRows {
@@ -621,7 +654,7 @@ func (ev *evaluator) column(ci int, name string, st *colstats.Stats) (ColumnResu
 	}
 	names := metricNames(ev.task)
 	for c, cand := range cands {
-		r := CandidateResult{Name: cand.Name, Baseline: cand.Baseline()}
+		r := CandidateResult{Name: cand.Name, Baseline: cand.IsBaseline()}
 		per := make([][]float64, len(names))
 		var train []float64
 		for f, s := range scores[c] {
@@ -771,14 +804,14 @@ func rankFrequency(st *colstats.Stats) []RankPoint {
 	return out
 }
 
-// shrinkage returns the raw and target:auto smoothed means, fitted on all
+// shrinkage returns the raw and target:eb smoothed means, fitted on all
 // rows, of up to 400 levels taken evenly from the canonical order.
 func (ev *evaluator) shrinkage(cs *colState) []ShrinkPoint {
 	all := make([]bool, ev.ko*ev.ki)
 	for i := range all {
 		all[i] = true
 	}
-	ft := cs.st.FitMask(0, ev.pos, colstats.Smoothing{Kind: "auto"}, all, nil, cs.order)
+	ft := cs.st.FitMask(0, ev.pos, colstats.Smoothing{Kind: "auto"}, all, nil, cs.order) // target:eb
 	const points = 400
 	step := max(1, len(cs.order)/points)
 	var out []ShrinkPoint

@@ -71,7 +71,7 @@ func find(t *testing.T, c ColumnResult, name string) CandidateResult {
 func TestLeakIsCaught(t *testing.T) {
 	const n, k, seed = 20000, 5, 3
 	text, y := idTable(n, 11)
-	cands, err := ParseCandidates("prior,target:insample,target:auto,target:m=10,target:blend=5,1,target:auto:prior=prefix3,freq,topk:100,hash:256")
+	cands, err := ParseCandidates("prior,target:insample,target:eb,target:m=10,target:blend=5,1,target:eb:prior=prefix3,freq,topk:100,hash:256")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -122,7 +122,7 @@ func TestLeakIsCaught(t *testing.T) {
 	if in.TrainPrimary.Mean <= 0.95 {
 		t.Errorf("in-sample baseline's training AUC %.4f, want > 0.95", in.TrainPrimary.Mean)
 	}
-	for _, name := range []string{"target:auto", "target:m=10", "freq"} {
+	for _, name := range []string{"target:eb", "target:m=10", "freq"} {
 		if tr := find(t, c, name).TrainPrimary.Mean; math.Abs(tr-0.5) > bound {
 			t.Errorf("%s: training AUC %.4f: an honest encoding of an id must not fit its training rows", name, tr)
 		}
@@ -178,25 +178,25 @@ func runFile(t *testing.T, path string, opt Options) *Result {
 }
 
 // TestSignalIsFound: late depends on the destination postcode through
-// level effects; target:auto must beat the prior baseline by a clear
+// level effects; target:eb must beat the prior baseline by a clear
 // margin, and the winner must not depend on the seed.
 func TestSignalIsFound(t *testing.T) {
 	if testing.Short() {
 		t.Skip("100k rows")
 	}
 	path := parcelsFile(t, parcels.Config{Rows: 100000, Seed: 5})
-	cands, _ := ParseCandidates("prior,target:insample,target:auto,freq,topk:100,hash:1024")
+	cands, _ := ParseCandidates("prior,target:insample,target:eb,freq,topk:100,hash:1024")
 	var winners []string
 	var orders [][]string
 	for _, seed := range []uint64{1, 2} {
 		res := runFile(t, path, Options{Target: "late", Columns: []string{"dest_postcode"}, Candidates: cands,
 			Folds: 5, InnerFolds: 5, Seed: seed, NoTimings: true, Threads: 2})
 		c := res.Columns[0]
-		auto, prior := find(t, c, "target:auto"), find(t, c, "prior")
+		auto, prior := find(t, c, "target:eb"), find(t, c, "prior")
 		// Margin: 0.02 AUC, about ten times the fold-to-fold standard
 		// deviation seen on this table (0.002 to 0.004).
 		if d := auto.Primary.Mean - prior.Primary.Mean; d < 0.02 {
-			t.Errorf("seed %d: target:auto beats the prior by %.4f AUC, want > 0.02", seed, d)
+			t.Errorf("seed %d: target:eb beats the prior by %.4f AUC, want > 0.02", seed, d)
 		}
 		if prior.Primary.Mean != 0.5 {
 			t.Errorf("seed %d: the prior alone scores %.4f, want exactly 0.5 (a constant)", seed, prior.Primary.Mean)
@@ -223,8 +223,8 @@ func TestSignalIsFound(t *testing.T) {
 	if winners[0] != winners[1] {
 		t.Errorf("winner changes with the seed: %s, %s", winners[0], winners[1])
 	}
-	if winners[0] != "target:auto" {
-		t.Errorf("winner %s, want target:auto", winners[0])
+	if winners[0] != "target:eb" {
+		t.Errorf("winner %s, want target:eb", winners[0])
 	}
 	if strings.Join(orders[0], ",") != strings.Join(orders[1], ",") {
 		t.Logf("note: order of the honest candidates differs between seeds: %v, %v", orders[0], orders[1])
@@ -284,15 +284,15 @@ func TestSampleBoundsModelRows(t *testing.T) {
 // the level effects are found by the task's metrics.
 func TestTasks(t *testing.T) {
 	path := parcelsFile(t, parcels.Config{Rows: 30000, Seed: 4, Postcodes: 3000, Accounts: 5000})
-	cands, _ := ParseCandidates("prior,target:auto,hash:256")
+	cands, _ := ParseCandidates("prior,target:eb,hash:256")
 	res := runFile(t, path, Options{Target: "cost", Columns: []string{"route"}, Candidates: cands,
 		Folds: 3, InnerFolds: 3, NoTimings: true, With: []string{"weight_kg"}})
 	if res.Task != "regression" || res.Metric != "rmse" || res.HigherBetter {
 		t.Fatalf("task %s metric %s higher %v, want regression rmse lower", res.Task, res.Metric, res.HigherBetter)
 	}
 	c := res.Columns[0]
-	if a, p := find(t, c, "target:auto"), find(t, c, "prior"); !(a.Primary.Mean < p.Primary.Mean) {
-		t.Errorf("regression: target:auto RMSE %.4f not below the prior's %.4f", a.Primary.Mean, p.Primary.Mean)
+	if a, p := find(t, c, "target:eb"), find(t, c, "prior"); !(a.Primary.Mean < p.Primary.Mean) {
+		t.Errorf("regression: target:eb RMSE %.4f not below the prior's %.4f", a.Primary.Mean, p.Primary.Mean)
 	}
 	res = runFile(t, path, Options{Target: "parcel_type", Columns: []string{"route"}, Candidates: cands,
 		Folds: 3, InnerFolds: 3, NoTimings: true})
@@ -305,8 +305,8 @@ func TestTasks(t *testing.T) {
 				t.Errorf("multiclass %s: %s is NaN", k.Name, m.Name)
 			}
 		}
-		if k.Name == "target:auto" && k.OutputColumns != len(res.Classes) {
-			t.Errorf("multiclass target:auto has %d columns, want one per class (%d)", k.OutputColumns, len(res.Classes))
+		if k.Name == "target:eb" && k.OutputColumns != len(res.Classes) {
+			t.Errorf("multiclass target:eb has %d columns, want one per class (%d)", k.OutputColumns, len(res.Classes))
 		}
 	}
 }
@@ -317,17 +317,18 @@ func TestParseCandidates(t *testing.T) {
 		want []string
 		err  bool
 	}{
-		{in: DefaultCandidates, want: []string{"prior", "target:insample", "target:auto", "freq", "topk:100", "hash:1024"}},
-		{in: "target,topk,hash", want: []string{"target:auto", "topk:100", "hash:1024"}},
+		{in: DefaultCandidates, want: []string{"prior", "target:insample", "target:eb", "freq", "topk:100", "hash:1024"}},
+		{in: "target,topk,hash", want: []string{"target:eb", "topk:100", "hash:1024"}},
 		{in: "target:blend=20,10,target:m=50", want: []string{"target:blend=20,10", "target:m=50"}},
 		{in: "target:blend=20,10:prior=prefix3,freq", want: []string{"target:blend=20,10:prior=prefix3", "freq"}},
-		{in: "target:auto:prior=prefix3", want: []string{"target:auto:prior=prefix3"}},
-		{in: "target:auto,target", err: true}, // listed twice
+		{in: "target:eb:prior=prefix3", want: []string{"target:eb:prior=prefix3"}},
+		{in: "target:eb,target", err: true}, // listed twice
 		{in: "topk:0", err: true},
 		{in: "hash:x", err: true},
 		{in: "target:m=-1", err: true},
 		{in: "target:prior=prefix0", err: true},
-		{in: "onehot", err: true},
+		{in: "onehot:5+freq", want: []string{"onehot:5+freq"}}, // a combination
+		{in: "bogus", err: true},
 		{in: "freq:3", err: true},
 		{in: "", err: true},
 	}

@@ -44,7 +44,7 @@ func groupTable(groups, rows int, seed uint64) string {
 // new sender: nothing (0.5).
 func TestGroupFoldsDoNotFlatter(t *testing.T) {
 	text := groupTable(400, 40, 21)
-	cands, _ := ParseCandidates("prior,target:auto")
+	cands, _ := ParseCandidates("prior,target:eb")
 	run := func(rule string) CandidateResult {
 		r, err := folds.ParseRule(rule)
 		if err != nil {
@@ -58,10 +58,10 @@ func TestGroupFoldsDoNotFlatter(t *testing.T) {
 		if res.FoldBy != rule {
 			t.Errorf("result's fold_by %q, want %q", res.FoldBy, rule)
 		}
-		return find(t, res.Columns[0], "target:auto")
+		return find(t, res.Columns[0], "target:eb")
 	}
 	byRow, byGroup := run("rows"), run("group=sender_account")
-	t.Logf("held-out AUC of target:auto: row folds %.4f (unseen %.3f), group folds %.4f (unseen %.3f)",
+	t.Logf("held-out AUC of target:eb: row folds %.4f (unseen %.3f), group folds %.4f (unseen %.3f)",
 		byRow.Primary.Mean, byRow.UnseenShare, byGroup.Primary.Mean, byGroup.UnseenShare)
 	// Row folds: a level's mean, from about 32 of its sender's 40 rows,
 	// gives the sender's flag, which 9 rows in 10 carry: AUC about
@@ -216,7 +216,7 @@ func TestFoldRuleErrors(t *testing.T) {
 // result byte for byte, and it says its rule in JSON, text and report.
 func TestRowsRuleIsDefault(t *testing.T) {
 	path := parcelsFile(t, parcels.Config{Rows: 5000, Seed: 3, Postcodes: 500, Accounts: 800})
-	cands, _ := ParseCandidates("prior,target:auto,freq")
+	cands, _ := ParseCandidates("prior,target:eb,freq")
 	out := func(rule folds.Rule) (string, string, string) {
 		res := runFile(t, path, Options{Target: "late", Columns: []string{"dest_postcode"}, Candidates: cands,
 			Folds: 3, InnerFolds: 3, Seed: 2, FoldBy: rule, NoTimings: true})

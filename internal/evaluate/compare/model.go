@@ -2,24 +2,18 @@ package compare
 
 import (
 	"errors"
+	"fmt"
 	"time"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/method"
 	"manyfold/internal/evaluate/linear"
 	"manyfold/internal/evaluate/metrics"
+	"manyfold/io/table"
 )
 
 // solver are the options of every model fit: the package defaults.
 var solver = linear.Options{}
-
-// encoding is one candidate fitted on one outer fold: nf dense features
-// per row (filled by train or test for a sample row) and nind indicator
-// columns (ind gives a row's column, -1 for none).
-type encoding struct {
-	nf, nind    int
-	train, test func(i int, dst []float64)
-	ind         func(i int) int32
-}
 
 // run fits candidate cand on outer fold f of column cs and scores it.
 func (ev *evaluator) run(cs *colState, cand Candidate, f int) (fs foldScore) {
@@ -33,12 +27,14 @@ func (ev *evaluator) run(cs *colState, cand Candidate, f int) (fs foldScore) {
 		}
 	}
 	fs.unseen = float64(unseen) / float64(len(test))
-	enc := ev.encode(cs, cand, f)
-	fs.outCols = enc.nf + enc.nind
-	dtr := ev.design(train, enc, enc.train)
-	dte := ev.design(test, enc, enc.test)
+	dtr, dte, err := ev.designs(cs, cand, f)
+	if err != nil {
+		fs.err = err
+		return fs
+	}
+	fs.outCols = dtr.NDense - len(ev.smp.with) + dtr.NInd
 	fs.seconds = measure(start)
-	ev.impute(dtr, dte, enc.nf)
+	ev.impute(dtr, dte, dtr.NDense-len(ev.smp.with))
 	sd := linear.FitStandardizer(dtr)
 	sd.Apply(dtr)
 	sd.Apply(dte)
@@ -46,103 +42,139 @@ func (ev *evaluator) run(cs *colState, cand Candidate, f int) (fs foldScore) {
 	return fs
 }
 
-// encode fits the candidate's tables on the outer training cells of fold
-// f. A training row of inner fold g is encoded from the cells of neither
-// fold f nor inner fold g (target statistics) or from all outer training
-// cells (frequency, top-k; the in-sample baseline); a held-out row from all
-// outer training cells.
-func (ev *evaluator) encode(cs *colState, cand Candidate, f int) encoding {
-	st, slot, pos := cs.st, cs.slot, ev.pos
-	cellOf := ev.smp.cell
-	switch cand.Kind {
-	case KindPrior:
-		return encoding{}
-	case KindFreq:
-		rows := cs.foldRows[f]
-		fill := func(i int, dst []float64) { dst[0] = float64(rows[slot[i]]) }
-		return encoding{nf: 1, train: fill, test: fill}
-	case KindTopK:
-		codes := st.TopKBy(cand.K, 1, cs.foldRows[f], nil)
-		var n int32
-		for _, c := range codes {
-			n = max(n, c)
-		}
-		return encoding{nind: int(n), ind: func(i int) int32 { return codes[slot[i]] - 1 }}
-	case KindHash:
-		b := cs.bucketsOf(cand.Buckets)
-		return encoding{nind: int(cand.Buckets), ind: func(i int) int32 { return b[slot[i]] }}
+// designs encodes the training and the held-out rows of outer fold f with
+// the candidate's encodings, each fitted on the fold's training cells (the
+// fold's view, colState.view) through the methods of encode
+// (encoders/method): a training row of inner fold g as encode's k-fold pass
+// encodes a row of fold g, from the cells of neither fold f nor inner fold
+// g; a held-out row as apply encodes a new row, from all the fold's
+// training cells. Methods that do not read the target give both the values
+// of all training cells; the in-sample baseline gives the training rows
+// apply's values too (it sees their own labels). An encoding's outputs are
+// the model's dense features, but for a code standing for a group of
+// levels (method.Coded: top-k codes, hash buckets), which becomes one
+// indicator column per code.
+func (ev *evaluator) designs(cs *colState, cand Candidate, f int) (dtr, dte *linear.Design, err error) {
+	trainPass := method.KFold
+	if cand.Baseline == InSampleBaseline {
+		trainPass = method.Apply
 	}
-	// Target statistics: KindTarget and KindInSample.
-	outs := st.Outputs()
-	var par *parentStats
-	if cand.PriorPrefix > 0 {
-		par = cs.parent(cand.PriorPrefix)
-	}
-	type fit struct{ ft, pft []colstats.Fitted }
-	fitOn := func(use []bool) fit {
-		var r fit
-		for o := 0; o < outs; o++ {
-			fs := st
-			if par != nil {
-				// m within parents, as encode estimates it (Stats.Parents).
-				c := *st
-				c.Parents = par.of
-				fs = &c
+	sets := []struct {
+		rows []int
+		pass method.Pass
+	}{{ev.train[f], trainPass}, {ev.test[f], method.Apply}}
+	var out [2]*linear.Design
+	for k, set := range sets {
+		r := ev.sampleRows(cs, set.rows, cand.Encodings)
+		var dense [][]float64 // per dense feature, per row
+		var ind [][]int32     // per coded output, per row: the indicator column, -1 none
+		nind := 0
+		for _, e := range cand.Encodings {
+			fit := e.Fit(cs.view(ev, f, e.Needs().Prior))
+			outs := fit.Outputs()
+			dst := make([]table.Column, len(outs))
+			fit.Encoder(set.pass).Encode(r, dst)
+			n, first := 0, int64(0)
+			if c, ok := fit.(method.Coded); ok {
+				n, first = c.Codes()
 			}
-			r.ft = append(r.ft, fs.FitMask(o, pos, cand.Smoothing, use, nil, cs.order))
-			if par != nil {
-				r.pft = append(r.pft, par.st.FitMask(o, pos, cand.Smoothing, use, nil, par.order))
+			if nind+n > maxIndicators {
+				return nil, nil, fmt.Errorf("%s: %d indicator columns; a model takes at most %d", e, nind+n, maxIndicators)
+			}
+			for o := range outs {
+				if o == 0 && n > 0 {
+					col := make([]int32, r.N)
+					for i, v := range dst[0].Ints {
+						col[i] = -1
+						if v >= first && v-first < int64(n) {
+							col[i] = int32(nind + int(v-first))
+						}
+					}
+					ind = append(ind, col)
+					nind += n
+					continue
+				}
+				x := make([]float64, r.N)
+				for i := range x {
+					x[i], _, _ = dst[o].Float(i)
+				}
+				dense = append(dense, x)
 			}
 		}
-		return r
+		out[k] = ev.design(set.rows, dense, ind, nind)
 	}
-	value := func(l int, use []bool, ft fit, dst []float64) {
-		for o := 0; o < outs; o++ {
-			x := ft.ft[o]
-			if par != nil {
-				x.Prior = ft.pft[o].Encode(par.st.TargetMask(int(par.of[l]), o, pos, use))
-			}
-			dst[o] = x.Encode(st.TargetMask(l, o, pos, use))
-		}
-	}
-	useOut := ev.useOut[f]
-	out := fitOn(useOut)
-	testFill := func(i int, dst []float64) { value(int(slot[i]), useOut, out, dst) }
-	if cand.Kind == KindInSample {
-		return encoding{nf: outs, train: testFill, test: testFill}
-	}
-	in := make([]fit, ev.ki)
-	for g := range in {
-		in[g] = fitOn(ev.useIn[f][g])
-	}
-	trainFill := func(i int, dst []float64) {
-		g := int(cellOf[i]) % ev.ki
-		value(int(slot[i]), ev.useIn[f][g], in[g], dst)
-	}
-	return encoding{nf: outs, train: trainFill, test: testFill}
+	return out[0], out[1], nil
 }
 
-// design builds the model rows of sample rows rows: the encoder's dense
-// features, then the --with columns, then the indicators.
-func (ev *evaluator) design(rows []int, enc encoding, fill func(i int, dst []float64)) *linear.Design {
+// maxIndicators bounds a model's indicator columns (top-k codes, hash
+// buckets): each has a weight and a gradient entry per class.
+const maxIndicators = 1 << 20
+
+// sampleRows returns the sample rows rows as a batch for the methods:
+// their level slots, inner folds and targets, and, for an encoding that
+// reads the values themselves (hashing), their levels' bytes.
+func (ev *evaluator) sampleRows(cs *colState, rows []int, encs []method.Encoding) *method.Rows {
+	r := &method.Rows{}
+	r.Reset(len(rows))
+	r.Slots = make([]int32, len(rows))
+	r.Fold = make([]int32, len(rows))
+	for j, i := range rows {
+		r.Slots[j] = cs.slot[i]
+		r.Fold[j] = int32(int(ev.smp.cell[i]) % ev.ki)
+	}
+	if ev.smp.cls != nil {
+		r.Cls = make([]int32, len(rows))
+		for j, i := range rows {
+			r.Cls[j] = ev.smp.cls[i]
+		}
+	} else {
+		r.Vals = make([]float64, len(rows))
+		for j, i := range rows {
+			r.Vals[j] = ev.smp.val[i]
+		}
+	}
+	for _, e := range encs {
+		if !e.Needs().Values {
+			continue
+		}
+		v := &table.Column{Form: table.FormText, Offsets: make([]int32, 1, len(rows)+1)}
+		for _, l := range r.Slots {
+			if l > 0 {
+				v.Data = append(v.Data, cs.st.Bytes(int(l))...)
+			}
+			v.Offsets = append(v.Offsets, int32(len(v.Data)))
+		}
+		r.Values = v
+		break
+	}
+	return r
+}
+
+// design builds the model rows of sample rows rows: the dense features,
+// then the --with columns, then the indicators (ind[j][r] the column of
+// coded output j in row r, -1 for none).
+func (ev *evaluator) design(rows []int, dense [][]float64, ind [][]int32, nind int) *linear.Design {
 	nw := len(ev.smp.with)
-	nd := enc.nf + nw
-	d := &linear.Design{Rows: len(rows), NDense: nd, NInd: enc.nind, Dense: make([]float64, len(rows)*nd)}
-	if enc.ind != nil {
+	nf := len(dense)
+	nd := nf + nw
+	d := &linear.Design{Rows: len(rows), NDense: nd, NInd: nind, Dense: make([]float64, len(rows)*nd)}
+	if len(ind) > 0 {
 		d.IndPtr = make([]int, len(rows)+1)
-		d.IndCol = make([]int32, 0, len(rows))
+		d.IndCol = make([]int32, 0, len(rows)*len(ind))
 	}
 	for r, i := range rows {
 		x := d.Dense[r*nd : (r+1)*nd]
-		if enc.nf > 0 {
-			fill(i, x[:enc.nf])
+		for j, col := range dense {
+			x[j] = col[r]
 		}
 		for w, col := range ev.smp.with {
-			x[enc.nf+w] = col[i]
+			x[nf+w] = col[i]
 		}
-		if enc.ind != nil {
-			if c := enc.ind(i); c >= 0 {
-				d.IndCol = append(d.IndCol, c)
+		if len(ind) > 0 {
+			for _, col := range ind {
+				if c := col[r]; c >= 0 {
+					d.IndCol = append(d.IndCol, c)
+				}
 			}
 			d.IndPtr[r+1] = len(d.IndCol)
 		}

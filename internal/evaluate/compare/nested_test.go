@@ -5,6 +5,7 @@ import (
 	"testing"
 
 	"manyfold/encoders/colstats"
+	"manyfold/internal/evaluate/linear"
 )
 
 // TestNestedEncoding checks the protocol on a hand-sized example with 2
@@ -39,7 +40,7 @@ func TestNestedEncoding(t *testing.T) {
 	if err := ev.prepare(); err != nil {
 		t.Fatal(err)
 	}
-	cs := &colState{st: st, order: st.Sorted(), slot: smp.slot[0], parents: map[int]*parentStats{}, buckets: map[uint64][]int32{}}
+	cs := &colState{st: st, order: st.Sorted(), slot: smp.slot[0], views: make([]foldView, 2)}
 	cs.foldRows = [][]uint64{make([]uint64, st.NumLevels()), make([]uint64, st.NumLevels())}
 	for l := 0; l < st.NumLevels(); l++ {
 		for f := 0; f < 2; f++ {
@@ -52,35 +53,58 @@ func TestNestedEncoding(t *testing.T) {
 	if got := ev.test[0]; len(got) != 3 || got[0] != 0 || got[1] != 1 || got[2] != 7 {
 		t.Fatalf("held-out rows of fold 0: %v, want [0 1 7]", got)
 	}
-	check := func(name string, enc encoding, train map[int]float64, test map[int]float64) {
-		t.Helper()
-		var x [1]float64
-		for i, want := range train {
-			enc.train(i, x[:])
-			if math.Abs(x[0]-want) > 1e-12 {
-				t.Errorf("%s: training row %d encoded %.6f, want %.6f", name, i, x[0], want)
+	// at returns the design row of sample row i in rows.
+	at := func(rows []int, i int) int {
+		for r, j := range rows {
+			if j == i {
+				return r
 			}
 		}
-		for i, want := range test {
-			enc.test(i, x[:])
-			if math.Abs(x[0]-want) > 1e-12 {
-				t.Errorf("%s: held-out row %d encoded %.6f, want %.6f", name, i, x[0], want)
+		t.Fatalf("sample row %d is not among %v", i, rows)
+		return -1
+	}
+	check := func(name string, train map[int]float64, test map[int]float64) {
+		t.Helper()
+		c, err := ParseCandidate(name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		dtr, dte, err := ev.designs(cs, c, 0)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, set := range []struct {
+			d    *linear.Design
+			rows []int
+			want map[int]float64
+			what string
+		}{{dtr, ev.train[0], train, "training"}, {dte, ev.test[0], test, "held-out"}} {
+			if set.d.NDense != 1 {
+				t.Fatalf("%s: %d dense features, want 1", name, set.d.NDense)
+			}
+			for i, want := range set.want {
+				if got := set.d.Dense[at(set.rows, i)]; math.Abs(got-want) > 1e-12 {
+					t.Errorf("%s: %s row %d encoded %.6f, want %.6f", name, set.what, i, got, want)
+				}
 			}
 		}
 	}
-	m1, _ := ParseCandidate("target:m=1")
-	check("target:m=1", ev.encode(cs, m1, 0),
+	check("target:m=1",
 		map[int]float64{2: 5.0 / 9, 3: 0.75, 4: 0.75, 5: 5.0 / 6, 6: 0.25},
 		map[int]float64{0: 0.65, 1: 0.65, 7: 8.0 / 15})
-	in, _ := ParseCandidate("target:insample")
-	check("target:insample", ev.encode(cs, in, 0),
+	check("target:insample",
 		map[int]float64{2: 2.0 / 3, 3: 2.0 / 3, 5: 0.5, 6: 0.5},
 		map[int]float64{0: 2.0 / 3, 7: 0.5})
-	fr, _ := ParseCandidate("freq")
-	check("freq", ev.encode(cs, fr, 0), map[int]float64{2: 3, 5: 2}, map[int]float64{0: 3, 7: 2})
+	check("freq", map[int]float64{2: 3, 5: 2}, map[int]float64{0: 3, 7: 2})
 	tk, _ := ParseCandidate("topk:1")
-	enc := ev.encode(cs, tk, 0)
-	if enc.nind != 1 || enc.ind(0) != 0 || enc.ind(7) != -1 {
-		t.Errorf("topk:1 on fold 0: %d columns, A -> %d, B -> %d; want 1 column, A -> 0, B -> none", enc.nind, enc.ind(0), enc.ind(7))
+	_, dte, err := ev.designs(cs, tk, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Held-out rows 0 (A) and 7 (B): A has code 1, its indicator column 0;
+	// B is other, no indicator.
+	a, b := at(ev.test[0], 0), at(ev.test[0], 7)
+	if dte.NInd != 1 || dte.IndPtr[a+1]-dte.IndPtr[a] != 1 || dte.IndCol[dte.IndPtr[a]] != 0 || dte.IndPtr[b+1] != dte.IndPtr[b] {
+		t.Errorf("topk:1 on fold 0: %d columns, indicators %v at %v; want 1 column, A -> 0, B -> none", dte.NInd, dte.IndCol, dte.IndPtr)
 	}
 }

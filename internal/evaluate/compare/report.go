@@ -595,7 +595,7 @@ func buildShrink(c *ColumnResult) *shrinkChart {
 		}
 		ch.Circles = append(ch.Circles, point{X: px(xpos(p.Raw)), Y: px(ypos(p.Smoothed)), R: px(r)})
 	}
-	ch.Caption = fmt.Sprintf("%d sampled levels: raw mean target (x) against the smoothed value of target:auto fitted on all rows (y); the circle grows with the level's rows. On the diagonal a level keeps its raw mean; the further a circle sits from it, the more its mean was pulled toward the prior.", len(pts))
+	ch.Caption = fmt.Sprintf("%d sampled levels: raw mean target (x) against the smoothed value of target:eb fitted on all rows (y); the circle grows with the level's rows. On the diagonal a level keeps its raw mean; the further a circle sits from it, the more its mean was pulled toward the prior.", len(pts))
 	return ch
 }
 
@@ -967,7 +967,7 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 <line class="axis" x1="{{.X0}}" x2="{{.X0}}" y1="{{.Y0}}" y2="{{.Y1}}"></line>
 <line class="axis" x1="{{.X0}}" x2="{{.X1}}" y1="{{.Y1}}" y2="{{.Y1}}"></line>
 <text class="title" x="{{.XTitleX}}" y="{{.XTitleY}}" text-anchor="middle">raw mean target of the level</text>
-<text class="title" x="{{.YTitleX}}" y="{{.YTitleY}}" text-anchor="middle" transform="rotate(-90 {{.YTitleX}} {{.YTitleY}})">smoothed (target:auto)</text>
+<text class="title" x="{{.YTitleX}}" y="{{.YTitleY}}" text-anchor="middle" transform="rotate(-90 {{.YTitleX}} {{.YTitleY}})">smoothed (target:eb)</text>
 </svg>
 <figcaption>{{.Caption}}</figcaption>
 {{- else}}

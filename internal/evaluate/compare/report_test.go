@@ -152,13 +152,13 @@ func binaryResult() *Result {
 			{
 				Column: "sender_account", Levels: 50_000,
 				Candidates: []CandidateResult{
-					cand("target:auto", 0.781, 0.004, false, true, auc(0.781), ll(0.41)),
+					cand("target:eb", 0.781, 0.004, false, true, auc(0.781), ll(0.41)),
 					cand("target:insample", 0.752, 0.006, true, false, auc(0.752), ll(0.45)),
 					cand("frequency", 0.703, 0.003, false, false, auc(0.703), ll(0.48)),
 					cand("topk:100", 0.655, 0.005, false, false, auc(0.655), ll(0.50)),
 					cand("prior", 0.5, 0, true, false, auc(0.5), ll(0.55)),
 				},
-				Reading:  "target:auto beats the prior by 0.281 AUC; the in-sample target mean flatters itself.",
+				Reading:  "target:eb beats the prior by 0.281 AUC; the in-sample target mean flatters itself.",
 				RankFreq: rankCurve(50_000),
 				Shrinkage: []ShrinkPoint{
 					{Rows: 4000, Raw: 0.30, Smoothed: 0.299},
@@ -194,13 +194,13 @@ func regressionResult() *Result {
 			{
 				Column: "postcode", Levels: 9000,
 				Candidates: []CandidateResult{ // best first: rising RMSE
-					cand("target:auto", 3.10, 0.05, false, true, rmse(3.10)),
+					cand("target:eb", 3.10, 0.05, false, true, rmse(3.10)),
 					cand("target:insample", 3.35, 0.07, true, false, rmse(3.35)),
 					cand("hash:1024", 3.52, 0.06, false, false, rmse(3.52)),
 					cand("frequency", 3.90, 0.04, false, false, rmse(3.90)),
 					cand("prior", 4.40, 0.02, true, false, rmse(4.40)),
 				},
-				Reading:  "target:auto lowers RMSE by 1.30 against the prior.",
+				Reading:  "target:eb lowers RMSE by 1.30 against the prior.",
 				RankFreq: rankCurve(9000),
 				Shrinkage: []ShrinkPoint{
 					{Rows: 900, Raw: 12.5, Smoothed: 12.4},
@@ -212,7 +212,7 @@ func regressionResult() *Result {
 				Column: "parcel_type", Levels: 12,
 				Candidates: []CandidateResult{
 					cand("topk:12", 4.01, 0.03, false, true, rmse(4.01)),
-					cand("target:auto", 4.02, 0.03, false, false, rmse(4.02)),
+					cand("target:eb", 4.02, 0.03, false, false, rmse(4.02)),
 					cand("target:insample", 4.05, 0.03, true, false, rmse(4.05)),
 					cand("frequency", 4.30, 0.03, false, false, rmse(4.30)),
 					cand("prior", 4.40, 0.02, true, false, rmse(4.40)),

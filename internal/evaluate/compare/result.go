@@ -35,7 +35,7 @@ type ColumnResult struct {
 	// points spread evenly on a log scale of the rank.
 	RankFreq []RankPoint `json:"rank_frequency"`
 	// Shrinkage shows, for a sample of levels, the raw mean target against
-	// the smoothed value of target:auto fitted on all rows (binary and
+	// the smoothed value of target:eb fitted on all rows (binary and
 	// regression targets; empty for multi-class).
 	Shrinkage []ShrinkPoint `json:"shrinkage"`
 }
@@ -56,7 +56,7 @@ type ShrinkPoint struct {
 // CandidateResult is one encoder with its parameters, scored on every
 // outer fold.
 type CandidateResult struct {
-	Name     string    `json:"name"`     // e.g. target:auto, topk:100, hash:1024, prior, target:insample
+	Name     string    `json:"name"`     // e.g. target:eb, topk:100, hash:1024, prior, target:insample
 	Baseline bool      `json:"baseline"` // the prior alone, or the leaky in-sample target mean
 	Winner   bool      `json:"winner"`   // the best candidate that is not a baseline
 	Primary  Stat      `json:"primary"`  // the primary metric over the outer folds

@@ -195,7 +195,7 @@ func TestBadInputs(t *testing.T) {
 			}, k.code, want},
 			badCase{"encode " + k.name, func(t *testing.T, dir string) []string {
 				return []string{"encode", in(t, dir), "--target", "late", "--columns", "postcode",
-					"--methods", "target,freq", "--out", filepath.Join(dir, "out", "enc.parquet"), "--tables", filepath.Join(dir, "out", "tables")}
+					"--methods", "target:eb+freq", "--out", filepath.Join(dir, "out", "enc.parquet"), "--tables", filepath.Join(dir, "out", "tables")}
 			}, k.code, want},
 			badCase{"apply " + k.name, func(t *testing.T, dir string) []string {
 				tables := fitTables(t, dir, goodCSV, "--columns", "postcode")
@@ -421,7 +421,7 @@ func TestSomeTargetsMissing(t *testing.T) {
 	dir := t.TempDir()
 	in := writeFile(t, dir, "shipments.csv", "postcode,late\nPC1,1\nPC2,\nPC1,0\nPC2,1\nPC3,\nPC1,1\n")
 	out := filepath.Join(dir, "enc.csv")
-	res := mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--scheme", "none", "--smoothing", "m=0", "--out", out, "--tables", filepath.Join(dir, "tables"))
+	res := mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--scheme", "none", "--methods", "target:m=0", "--out", out, "--tables", filepath.Join(dir, "tables"))
 	if !strings.Contains(res.stderr, "encoded 6 rows (2 with an empty target") {
 		t.Errorf("summary %q does not report the 2 rows with an empty target", res.stderr)
 	}

@@ -258,7 +258,7 @@ func TestTopLevel(t *testing.T) {
 		{"--help", []string{"--help"}, exitOK, "manyfold encode FILE", ""},
 		{"version", []string{"version"}, exitOK, "manyfold 0.", ""},
 		{"unknown command", []string{"fold"}, exitUsage, "", `unknown command "fold"`},
-		{"command help", []string{"encode", "--help"}, exitOK, "--smoothing", ""},
+		{"command help", []string{"encode", "--help"}, exitOK, "--methods", ""},
 		{"bad flag", []string{"scan", "--nonsense", "x.csv"}, exitUsage, "", "--nonsense"},
 		{"scan two files", []string{"scan", "a.csv", "b.csv"}, exitUsage, "", "one input file"},
 		{"encode without out", []string{"encode", "a.csv", "--columns", "a"}, exitUsage, "", "--out and --tables"},
@@ -308,7 +308,7 @@ func TestEncodeSummary(t *testing.T) {
 	in := writeFile(t, dir, "shipments.csv", shipmentsCSV(40))
 	out := filepath.Join(dir, "enc.parquet")
 	tables := filepath.Join(dir, "tables")
-	res := mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,sender", "--methods", "target,freq",
+	res := mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,sender", "--methods", "target:eb+freq",
 		"--out", out, "--tables", tables)
 	for _, want := range []string{"encoded 40 rows", "postcode 23 levels", "sender ", "wrote " + out} {
 		if !strings.Contains(res.stderr, want) {

@@ -27,7 +27,7 @@ func TestApplyReadsFittedKinds(t *testing.T) {
 	}
 	train := writeFile(t, dir, "train.csv", b.String())
 	tables := filepath.Join(dir, "tables")
-	mustRun(t, "encode", train, "--target", "late", "--columns", "postcode", "--methods", "target,freq",
+	mustRun(t, "encode", train, "--target", "late", "--columns", "postcode", "--methods", "target:eb+freq",
 		"--scheme", "none", "--out", filepath.Join(dir, "enc.csv"), "--tables", tables)
 	// The full-data values of the fitted levels, and the prior.
 	want := map[string][2]string{}
@@ -89,7 +89,7 @@ func TestBigIntegerIDs(t *testing.T) {
 	in := writeFile(t, dir, "ids.csv", b.String())
 	for _, out := range []string{"enc.parquet", "enc.csv", "enc.arrow"} {
 		path := filepath.Join(dir, out)
-		res := mustRun(t, "encode", in, "--target", "late", "--columns", "id", "--methods", "freq,target",
+		res := mustRun(t, "encode", in, "--target", "late", "--columns", "id", "--methods", "freq+target:eb",
 			"--folds", "2", "--out", path, "--tables", filepath.Join(dir, "tables_"+out))
 		if !strings.Contains(res.stderr, "id 2 levels") {
 			t.Errorf("%s: summary %q, want 2 levels", out, res.stderr)

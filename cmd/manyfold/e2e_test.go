@@ -41,16 +41,16 @@ func withNullPostcodes(csv string) string {
 // tables to the training file gives the encoded table's values.
 func TestApplyOnTrainingMatchesSchemeNone(t *testing.T) {
 	cases := []struct {
-		name, target, columns string
-		flags                 []string
+		name, target, columns, methods string
+		flags                          []string
 	}{
-		{"binary", "late", "postcode,sender,route", []string{"--smoothing", "m=2"}},
-		{"binary left-out levels", "late", "postcode,sender,route", []string{"--min-level-rows", "8", "--top-k", "4", "--signed"}},
-		{"nulls unseen", "late", "postcode,sender", []string{"--nulls", "unseen", "--freq", "share"}},
-		{"regression", "cost", "postcode,sender,route", nil},
-		{"multiclass", "parcel_type", "postcode,sender", []string{"--smoothing", "blend=3,1.5"}},
-		{"hierarchical prior", "late", "route", []string{"--prior-by", "prefix=2"}},
-		{"prior by column", "late", "postcode,sender", []string{"--prior-by", "column=route", "--smoothing", "m=3"}},
+		{"binary", "late", "postcode,sender,route", "target:m=2+freq+topk+hash", nil},
+		{"binary left-out levels", "late", "postcode,sender,route", "target:eb+freq+topk:4+hash:signed", []string{"--min-level-rows", "8"}},
+		{"nulls unseen", "late", "postcode,sender", "target:eb+freq:share+topk+hash", []string{"--nulls", "unseen"}},
+		{"regression", "cost", "postcode,sender,route", "target:eb+freq+topk+hash", nil},
+		{"multiclass", "parcel_type", "postcode,sender", "target:blend=3,1.5+freq+topk+hash", nil},
+		{"hierarchical prior", "late", "route", "target:eb:prior=prefix2+freq+topk+hash", nil},
+		{"prior by column", "late", "postcode,sender", "target:m=3:prior=column:route+freq+topk+hash", nil},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -59,7 +59,7 @@ func TestApplyOnTrainingMatchesSchemeNone(t *testing.T) {
 			enc := filepath.Join(dir, "enc.csv")
 			tables := filepath.Join(dir, "tables")
 			args := append([]string{"encode", train, "--target", c.target, "--columns", c.columns,
-				"--methods", "target,freq,topk,hash", "--scheme", "none", "--out", enc, "--tables", tables}, c.flags...)
+				"--methods", c.methods, "--scheme", "none", "--out", enc, "--tables", tables}, c.flags...)
 			mustRun(t, args...)
 			app := filepath.Join(dir, "applied.parquet")
 			res := mustRun(t, "apply", train, "--tables", tables, "--out", app)
@@ -195,7 +195,7 @@ func TestCSVAndParquetSameTables(t *testing.T) {
 		out := filepath.Join(dir, "enc-"+ext+".csv")
 		tab := filepath.Join(dir, "tables-"+ext)
 		mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,sender,route",
-			"--methods", "target,freq,topk,hash", "--folds", "3", "--seed", "4", "--top-k", "6",
+			"--methods", "target:eb+freq+topk:6+hash", "--folds", "3", "--seed", "4",
 			"--fold-column", "fold", "--out", out, "--tables", tab)
 		tables, outs = append(tables, tab), append(outs, out)
 	}
@@ -221,9 +221,19 @@ func TestShardMerge(t *testing.T) {
 	lines := strings.SplitAfter(whole, "\n")
 	header, body := lines[0], lines[1:]
 	half := len(body) / 2
+	const rest = "+freq+topk:5+hash"
+	plans := []struct{ name, columns, methods string }{
+		{"eb", "postcode,sender,route", "target:eb" + rest},
+		{"m=3", "postcode,sender,route", "target:m=3" + rest},
+		{"blend=2,1", "postcode,sender,route", "target:blend=2,1" + rest},
+		// route cannot be its own prior: a list per column.
+		{"eb prior=column:route", "", "postcode=target:eb:prior=column:route" + rest +
+			",sender=target:eb:prior=column:route" + rest + ",route=target:eb" + rest},
+		{"m=3 prior=prefix2", "postcode,sender,route", "target:m=3:prior=prefix2" + rest},
+	}
 	for _, scheme := range []string{"none", "kfold"} {
-		for _, smoothing := range []string{"auto", "m=3", "blend=2,1", "auto --prior-by column=route", "m=3 --prior-by prefix=2"} {
-			t.Run(scheme+" "+smoothing, func(t *testing.T) {
+		for _, plan := range plans {
+			t.Run(scheme+" "+plan.name, func(t *testing.T) {
 				dir := t.TempDir()
 				files := map[string]string{
 					"a.csv":     header + strings.Join(body[:half], ""),
@@ -232,10 +242,13 @@ func TestShardMerge(t *testing.T) {
 				}
 				for name, text := range files {
 					writeFile(t, dir, name, text)
-					flags := []string{"encode", filepath.Join(dir, name), "--target", "late", "--columns", "postcode,sender,route",
-						"--methods", "target,freq,topk,hash", "--top-k", "5", "--scheme", scheme, "--smoothing", strings.Fields(smoothing)[0], "--folds", "3",
+					flags := []string{"encode", filepath.Join(dir, name), "--target", "late",
+						"--methods", plan.methods, "--scheme", scheme, "--folds", "3",
 						"--out", filepath.Join(dir, name+".enc.csv"), "--tables", filepath.Join(dir, "tables-"+name)}
-					mustRun(t, append(flags, strings.Fields(smoothing)[1:]...)...)
+					if plan.columns != "" {
+						flags = append(flags, "--columns", plan.columns)
+					}
+					mustRun(t, flags...)
 				}
 				merged := filepath.Join(dir, "merged")
 				res := mustRun(t, "merge", filepath.Join(dir, "tables-a.csv"), filepath.Join(dir, "tables-b.csv"), "--tables", merged)
@@ -254,18 +267,18 @@ func TestShardMerge(t *testing.T) {
 func TestMergeMismatch(t *testing.T) {
 	cases := []struct {
 		name   string
-		second []string // flags of the second shard; the first has --columns postcode --smoothing m=1
+		second []string // flags of the second shard; the first has --columns postcode --methods target:m=1
 		want   string
 	}{
-		{"other smoothing", []string{"--columns", "postcode", "--smoothing", "m=2"}, "same parameters"},
-		{"other columns", []string{"--columns", "sender", "--smoothing", "m=1"}, "same parameters"},
-		{"small levels left out", []string{"--columns", "postcode", "--smoothing", "m=1", "--min-level-rows", "3"}, "--min-level-rows 0"},
+		{"other smoothing", []string{"--columns", "postcode", "--methods", "target:m=2"}, "same parameters"},
+		{"other columns", []string{"--columns", "sender", "--methods", "target:m=1"}, "same parameters"},
+		{"small levels left out", []string{"--columns", "postcode", "--methods", "target:m=1", "--min-level-rows", "3"}, "--min-level-rows 0"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			dir := t.TempDir()
 			in := writeFile(t, dir, "shipments.csv", shipmentsCSV(50))
-			for i, flags := range [][]string{{"--columns", "postcode", "--smoothing", "m=1"}, c.second} {
+			for i, flags := range [][]string{{"--columns", "postcode", "--methods", "target:m=1"}, c.second} {
 				args := append([]string{"encode", in, "--target", "late",
 					"--out", filepath.Join(dir, fmt.Sprintf("e%d.csv", i)), "--tables", filepath.Join(dir, fmt.Sprintf("t%d", i))}, flags...)
 				mustRun(t, args...)
@@ -297,7 +310,7 @@ func TestDeterministic(t *testing.T) {
 					t.Fatal(err)
 				}
 				mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,sender,route",
-					"--methods", "target,freq,topk,hash", "--fold-column", "fold", "--seed", "11", "--threads", threads,
+					"--methods", "target:eb+freq+topk+hash", "--fold-column", "fold", "--seed", "11", "--threads", threads,
 					"--out", filepath.Join(d, "enc."+ext), "--tables", filepath.Join(d, "tables"))
 				mustRun(t, "apply", in, "--tables", filepath.Join(d, "tables"), "--out", filepath.Join(d, "app."+ext), "--threads", threads)
 				s := map[string][]byte{}
@@ -356,7 +369,7 @@ func TestOutOfFoldWorkedExample(t *testing.T) {
 	in := writeFile(t, dir, "shipments.csv", b.String())
 	out := filepath.Join(dir, "enc.csv")
 	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--fold-by", "group=sender", "--folds", "2",
-		"--smoothing", "m=1", "--fold-column", "fold", "--out", out, "--tables", filepath.Join(dir, "tables"))
+		"--methods", "target:m=1", "--fold-column", "fold", "--out", out, "--tables", filepath.Join(dir, "tables"))
 	tt := readTable(t, out)
 	fold := tt.col(t, "fold")
 	got := tt.col(t, "route_tmean")
@@ -384,7 +397,7 @@ func TestOrderedScheme(t *testing.T) {
 	in := writeFile(t, dir, "shipments.csv", "route,late\nR1,1\nR1,0\nR1,1\nR1,1\n")
 	out := filepath.Join(dir, "enc.csv")
 	tables := filepath.Join(dir, "tables")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--scheme", "ordered", "--smoothing", "m=1",
+	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--scheme", "ordered", "--methods", "target:m=1",
 		"--out", out, "--tables", tables)
 	const p = 0.75
 	want := []float64{(0 + p) / 1, (1 + p) / 2, (1 + p) / 3, (2 + p) / 4}
@@ -431,7 +444,7 @@ func TestLeaveOneOutLeaks(t *testing.T) {
 	dir := t.TempDir()
 	in := writeFile(t, dir, "shipments.csv", b.String())
 	out := filepath.Join(dir, "enc.csv")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "parcel_type", "--scheme", "loo", "--smoothing", "m=1",
+	mustRun(t, "encode", in, "--target", "late", "--columns", "parcel_type", "--scheme", "loo", "--methods", "target:m=1",
 		"--out", out, "--tables", filepath.Join(dir, "tables"))
 	const p = 50.0 / 101
 	wantPos, wantNeg := (49+p)/101, (50+p)/101
@@ -469,7 +482,7 @@ func TestReferenceChecksPriorHalf(t *testing.T) {
 	in := writeFile(t, dir, "ordered.csv", "route,late\nR1,1\nR1,0\nR1,1\nR1,1\nR2,0\nR2,0\n")
 	out := filepath.Join(dir, "enc.csv")
 	tables := filepath.Join(dir, "tables")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--scheme", "ordered", "--smoothing", "m=1",
+	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--scheme", "ordered", "--methods", "target:m=1",
 		"--out", out, "--tables", tables)
 	got := readTable(t, out).col(t, "route_tmean")
 	for i, want := range []float64{0.5, 0.75, 0.5, 0.625} {
@@ -493,7 +506,7 @@ func TestReferenceChecksPriorHalf(t *testing.T) {
 	}
 	in = writeFile(t, dir, "loo.csv", b.String())
 	out = filepath.Join(dir, "loo_enc.csv")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "parcel_type", "--scheme", "loo", "--smoothing", "m=1",
+	mustRun(t, "encode", in, "--target", "late", "--columns", "parcel_type", "--scheme", "loo", "--methods", "target:m=1",
 		"--out", out, "--tables", filepath.Join(dir, "loo_tables"))
 	vals := readTable(t, out).col(t, "parcel_type_tmean")
 	if v := parseF(t, vals[0]); !near(v, 49.5/101, 1e-12) {
@@ -520,8 +533,8 @@ func TestPriorByColumn(t *testing.T) {
 	in := writeFile(t, dir, "shipments.csv", "region,postcode,late\nnorth,P1,1\nnorth,P1,1\nnorth,P2,0\nsouth,P3,0\nsouth,P3,0\nsouth,P4,1\n")
 	out := filepath.Join(dir, "enc.csv")
 	tables := filepath.Join(dir, "tables")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--scheme", "none", "--smoothing", "m=1",
-		"--prior-by", "column=region", "--out", out, "--tables", tables)
+	mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--scheme", "none", "--methods", "target:m=1:prior=column:region",
+		"--out", out, "--tables", tables)
 	want := []float64{0.875, 0.875, 0.3125, 0.125, 0.125, 0.6875}
 	for i, s := range readTable(t, out).col(t, "postcode_tmean") {
 		if v := parseF(t, s); !near(v, want[i], 1e-12) {
@@ -559,7 +572,7 @@ func TestParquetCopiesKeptColumns(t *testing.T) {
 	if err := w.Commit(); err != nil {
 		t.Fatal(err)
 	}
-	args := []string{"--target", "late", "--columns", "postcode,sender", "--methods", "target,freq,hash",
+	args := []string{"--target", "late", "--columns", "postcode,sender", "--methods", "target:eb+freq+hash",
 		"--folds", "3", "--seed", "4", "--fold-column", "fold"}
 	for _, comp := range []string{"snappy", "zstd"} {
 		outs := map[string]string{}
@@ -611,28 +624,29 @@ func footer(t *testing.T, path string) *format.FileMetaData {
 	return pf.Metadata()
 }
 
-// TestTopKCodesInTablesWithoutTopK: the mapping table records each level's
-// top-k code whether or not the encoding asked for top-k codes.
-func TestTopKCodesInTablesWithoutTopK(t *testing.T) {
+// TestTopKCodesOnlyWithTopK: a mapping table holds the columns of the
+// encodings its column was fitted with (format 3): the level's top-k code
+// with topk, no topk column without it.
+func TestTopKCodesOnlyWithTopK(t *testing.T) {
 	dir := t.TempDir()
 	in := writeFile(t, dir, "shipments.csv", shipmentsCSV(400))
-	var tops [][]string
-	for i, methods := range []string{"target", "target,topk"} {
+	var tables []*textTable
+	for i, methods := range []string{"target:eb", "target:eb+topk:3"} {
 		tab := filepath.Join(dir, fmt.Sprint("tables", i))
-		mustRun(t, "encode", in, "--target", "late", "--columns", "sender", "--methods", methods, "--top-k", "3",
+		mustRun(t, "encode", in, "--target", "late", "--columns", "sender", "--methods", methods,
 			"--out", filepath.Join(dir, fmt.Sprint("enc", i, ".csv")), "--tables", tab)
-		tops = append(tops, readTable(t, filepath.Join(tab, "01-sender.parquet")).col(t, "topk"))
+		tables = append(tables, readTable(t, filepath.Join(tab, "01-sender.parquet")))
 	}
-	if !slices.Equal(tops[0], tops[1]) {
-		t.Fatalf("top-k codes %v without the method, %v with it", tops[0], tops[1])
+	if slices.Contains(tables[0].names, "topk") {
+		t.Fatalf("table of target:eb alone has a topk column: %v", tables[0].names)
 	}
 	coded := 0
-	for _, c := range tops[0] {
+	for _, c := range tables[1].col(t, "topk") {
 		if c != "0" {
 			coded++
 		}
 	}
 	if coded != 3 {
-		t.Fatalf("%d levels coded, want 3: %v", coded, tops[0])
+		t.Fatalf("%d levels coded, want 3: %v", coded, tables[1].col(t, "topk"))
 	}
 }

@@ -1,9 +1,12 @@
 package main
 
 import (
+	"fmt"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"manyfold/encoders/method"
 )
 
 // TestFlagsCheckedBeforeData: a numeric flag out of its documented range is
@@ -23,8 +26,8 @@ func TestFlagsCheckedBeforeData(t *testing.T) {
 		{append(enc, "--folds", "100000"), "--folds 100000: want 2 to 100"},
 		{append(enc, "--folds", "1"), "--folds 1: want 2 to 100"},
 		{append(enc, "--threads", "0"), "--threads 0: want at least 1"},
-		{append(enc, "--top-k", "0"), "--top-k 0"},
-		{append(enc, "--buckets", "0", "--methods", "hash"), "--buckets 0"},
+		{append(enc, "--methods", "topk:0"), fmt.Sprintf(`encoding "topk:0": K "0": want a whole number from 1 to %d`, method.MaxTopK)},
+		{append(enc, "--methods", "hash:0"), fmt.Sprintf(`encoding "hash:0": B "0": want a whole number from 1 to %d`, uint64(method.MaxBuckets))},
 		{append(cmp, "--threads", "0"), "--threads 0: want at least 1"},
 		{append(cmp, "--threads", "-1"), "--threads -1: want at least 1"},
 		{append(cmp, "--folds", "1000000"), "--folds 1000000: want 2 to 50"},
@@ -39,18 +42,24 @@ func TestFlagsCheckedBeforeData(t *testing.T) {
 	}
 }
 
-// TestTopKHugeK: --top-k larger than any table once reserved room for k
-// entries (2^31 of them: a fatal out-of-memory); room is now taken for at
-// most the levels there are.
+// TestTopKHugeK: a top-k K larger than any table (2^31 with the old flag)
+// once reserved room for K entries (a fatal out-of-memory); room is now
+// taken for at most the levels there are. The grammar takes K up to
+// method.MaxTopK and refuses more before reading anything.
 func TestTopKHugeK(t *testing.T) {
 	dir := t.TempDir()
 	in := writeFile(t, dir, "routes.csv", "route,late\nR1,1\nR2,0\nR1,0\nR1,1\nR2,1\nR1,0\n")
 	out := filepath.Join(dir, "enc.csv")
-	mustRun(t, "encode", in, "--columns", "route", "--methods", "topk", "--top-k", "2147483648",
+	mustRun(t, "encode", in, "--columns", "route", "--methods", fmt.Sprintf("topk:%d", method.MaxTopK),
 		"--out", out, "--tables", filepath.Join(dir, "tables"))
 	got := readTable(t, out).col(t, "route_topk")
 	if strings.Join(got, ",") != "1,2,1,1,2,1" {
 		t.Errorf("route_topk = %v, want 1,2,1,1,2,1 (R1 has the most rows)", got)
+	}
+	res := runCLI(t, "encode", in, "--columns", "route", "--methods", "topk:2147483648",
+		"--out", filepath.Join(dir, "enc2.csv"), "--tables", filepath.Join(dir, "tables2"))
+	if want := fmt.Sprintf(`K "2147483648": want a whole number from 1 to %d`, method.MaxTopK); res.code != exitUsage || !strings.Contains(res.stderr, want) {
+		t.Errorf("topk:2147483648: exit %d, %q; want exit %d naming %q", res.code, res.stderr, exitUsage, want)
 	}
 }
 
@@ -77,8 +86,8 @@ func TestReviewEdges(t *testing.T) {
 		code int
 		want string
 	}{
-		{[]string{"encode", a, "--target", "y", "--columns", "k", "--smoothing", "m=Inf", "--out", filepath.Join(dir, "o1.csv"), "--tables", filepath.Join(dir, "t1")}, exitUsage, "m must be a finite number"},
-		{[]string{"encode", a, "--target", "y", "--columns", "k", "--smoothing", "blend=NaN,1", "--out", filepath.Join(dir, "o2.csv"), "--tables", filepath.Join(dir, "t2")}, exitUsage, "finite K"},
+		{[]string{"encode", a, "--target", "y", "--columns", "k", "--methods", "target:m=Inf", "--out", filepath.Join(dir, "o1.csv"), "--tables", filepath.Join(dir, "t1")}, exitUsage, "m must be a finite number"},
+		{[]string{"encode", a, "--target", "y", "--columns", "k", "--methods", "target:blend=NaN,1", "--out", filepath.Join(dir, "o2.csv"), "--tables", filepath.Join(dir, "t2")}, exitUsage, "finite K"},
 		{[]string{"apply", a, "--tables", filepath.Join(dir, "no-such-tables"), "--out", filepath.Join(dir, "o3.csv"), "--max-field-bytes", "0"}, exitUsage, "--max-field-bytes 0"},
 		{[]string{"encode", writeFile(t, dir, "huge.csv", "k,y\nc,1\nd,1e200\nc,2\n"), "--target", "y", "--task", "regression", "--columns", "k", "--folds", "2", "--out", filepath.Join(dir, "o4.csv"), "--tables", filepath.Join(dir, "t4")}, exitData, "overflow"},
 	}

@@ -34,7 +34,7 @@ var goldenRuns = []struct {
 	{"binary-m-logodds", "encode IN --target late --columns dest_postcode,sender_account --methods target:m=20:logodds --out OUT/o.arrow --tables OUT/t"},
 	{"binary-prefix-prior", "encode IN --target late --columns dest_postcode --methods target:eb:prior=prefix3 --out OUT/o.csv --tables OUT/t"},
 	{"binary-column-prior", "encode IN --target late --columns dest_postcode,sender_account --methods target:eb:prior=column:route --out OUT/o.csv --tables OUT/t"},
-	{"multiclass", "encode IN --target parcel_type --columns dest_postcode,route --methods target,freq --out OUT/o.csv --tables OUT/t"},
+	{"multiclass", "encode IN --target parcel_type --columns dest_postcode,route --methods target:eb+freq --out OUT/o.csv --tables OUT/t"},
 	{"stratified", "encode IN --target late --columns sender_account --fold-by stratified --fold-column fold --out OUT/o.csv --tables OUT/t"},
 	{"group-folds", "encode IN --target late --columns dest_postcode --fold-by group=sender_account --fold-column fold --out OUT/o.csv --tables OUT/t"},
 	{"ordered-scheme", "encode IN --target late --columns route --scheme ordered --out OUT/o.csv --tables OUT/t"},

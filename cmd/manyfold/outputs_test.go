@@ -395,7 +395,7 @@ func TestSignalsRemoveTemporaryFiles(t *testing.T) {
 	}{{syscall.SIGINT, 130}, {syscall.SIGTERM, 143}} {
 		out := filepath.Join(dir, "out")
 		os.Mkdir(out, 0o755)
-		cmd := manyfoldCmd("encode", in, "--target", "late", "--columns", "id,postcode,sender", "--methods", "target,freq",
+		cmd := manyfoldCmd("encode", in, "--target", "late", "--columns", "id,postcode,sender", "--methods", "target:eb+freq",
 			"--out", filepath.Join(out, "enc.csv"), "--tables", filepath.Join(out, "tables"))
 		var stderr bytes.Buffer
 		cmd.Stderr = &stderr

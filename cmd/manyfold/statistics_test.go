@@ -53,7 +53,7 @@ func TestStratifiedFoldsDoNotLeak(t *testing.T) {
 	in := writeFile(t, dir, "noise.csv", noiseTable(rows, levels, 11))
 	out := filepath.Join(dir, "enc.csv")
 	mustRun(t, "encode", in, "--target", "late", "--columns", "postcode", "--fold-by", "stratified",
-		"--folds", strconv.Itoa(k), "--smoothing", "m=1", "--fold-column", "fold", "--seed", "3",
+		"--folds", strconv.Itoa(k), "--methods", "target:m=1", "--fold-column", "fold", "--seed", "3",
 		"--out", out, "--tables", filepath.Join(dir, "tables"))
 	tt := readTable(t, out)
 	pc, lateS, foldS, enc := tt.col(t, "postcode"), tt.col(t, "late"), tt.col(t, "fold"), tt.col(t, "postcode_tmean")
@@ -168,7 +168,7 @@ func TestShiftedTargetEncodesShifted(t *testing.T) {
 		}
 		return v
 	}
-	for _, extra := range [][]string{nil, {"--scheme", "loo"}, {"--scheme", "ordered"}, {"--smoothing", "blend=5,2"}} {
+	for _, extra := range [][]string{nil, {"--scheme", "loo"}, {"--scheme", "ordered"}, {"--methods", "target:blend=5,2"}} {
 		base := encode(0, extra...)
 		_, sd := metrics.MeanStd(base)
 		if sd == 0 {
@@ -195,11 +195,12 @@ func TestShiftedTargetEncodesShifted(t *testing.T) {
 
 // TestBlendLogOddsInterior: with the sigmoid blend the weight of a large
 // level's own rate rounds to exactly 1, so a level with no positives got
-// the rate 0 and the clipped log-odds log(1e-15) = -34.5. With --output
-// logodds the level's rate enters as (s + 1/2)/(n + 1) (Haldane 1956,
-// Anscombe 1956), strictly inside (0, 1): here log(0.5/(n + 1)) for the
-// training rows of a level of n out-of-fold rows, all negative, since
-// lambda = 1 / (1 + exp(-(n - 2)/1)) is 1 in float64 for n > 40.
+// the rate 0 and the clipped log-odds log(1e-15) = -34.5. With
+// target:blend=2,1:logodds the level's rate enters as (s + 1/2)/(n + 1)
+// (Haldane 1956, Anscombe 1956), strictly inside (0, 1): here
+// log(0.5/(n + 1)) for the training rows of a level of n out-of-fold rows,
+// all negative, since lambda = 1 / (1 + exp(-(n - 2)/1)) is 1 in float64
+// for n > 40.
 func TestBlendLogOddsInterior(t *testing.T) {
 	var b strings.Builder
 	b.WriteString("route,late\n")
@@ -210,7 +211,7 @@ func TestBlendLogOddsInterior(t *testing.T) {
 	in := writeFile(t, dir, "routes.csv", b.String())
 	out := filepath.Join(dir, "enc.csv")
 	tables := filepath.Join(dir, "tables")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--smoothing", "blend=2,1", "--output", "logodds",
+	mustRun(t, "encode", in, "--target", "late", "--columns", "route", "--methods", "target:blend=2,1:logodds",
 		"--fold-column", "fold", "--out", out, "--tables", tables)
 	tt := readTable(t, out)
 	routes, vals, folds := tt.col(t, "route"), tt.col(t, "route_tmean"), tt.col(t, "fold")
@@ -241,7 +242,7 @@ func TestBlendLogOddsInterior(t *testing.T) {
 	}
 }
 
-// TestHierarchicalM: with --prior-by prefix=2 a postcode is pulled towards
+// TestHierarchicalM: with target:eb:prior=prefix2 a postcode is pulled towards
 // its region's value, so its empirical-Bayes m must measure how postcodes
 // spread around their region, not around the global mean. The manifest's m
 // is checked against the method-of-moments estimator of the nested
@@ -277,10 +278,14 @@ func TestHierarchicalM(t *testing.T) {
 	dir := t.TempDir()
 	in := writeFile(t, dir, "cost.csv", b.String())
 	tables := filepath.Join(dir, "tables")
-	mustRun(t, "encode", in, "--target", "cost", "--columns", "postcode", "--prior-by", "prefix=2", "--scheme", "none",
+	mustRun(t, "encode", in, "--target", "cost", "--columns", "postcode", "--methods", "target:eb:prior=prefix2", "--scheme", "none",
 		"--out", filepath.Join(dir, "enc.csv"), "--tables", tables)
 	mf := readManifest(t, tables)
-	got := mf["columns"].([]any)[0].(map[string]any)["m"].([]any)[0].(float64)
+	enc := mf["columns"].([]any)[0].(map[string]any)["encodings"].([]any)[0].(map[string]any)
+	if enc["encoding"] != "target:eb:prior=prefix2" {
+		t.Fatalf("manifest columns[0].encodings[0] is %v, want target:eb:prior=prefix2", enc["encoding"])
+	}
+	got := enc["fit"].(map[string]any)["m"].([]any)[0].(float64)
 
 	// The recomputation, level means first, then sums of squares.
 	var N, L, ssw float64
@@ -332,7 +337,7 @@ func TestLatin1LevelsInTables(t *testing.T) {
 	dir := t.TempDir()
 	in := writeFile(t, dir, "latin1.csv", "city,route,late\nK\xf6ln,R1,1\nK\xf6ln,R1,0\nBonn,R2,1\nBonn,R2,0\nK\xf6ln,R2,1\n")
 	tables := filepath.Join(dir, "tables")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "city,route", "--methods", "target,freq", "--folds", "2",
+	mustRun(t, "encode", in, "--target", "late", "--columns", "city,route", "--methods", "target:eb+freq", "--folds", "2",
 		"--out", filepath.Join(dir, "enc.csv"), "--tables", tables)
 	for _, c := range []struct {
 		file string

@@ -13,7 +13,7 @@ func TestDamagedTables(t *testing.T) {
 	fresh := "postcode,sender\nPC1,ACC-9\nPC7,ACC-1\n"
 	apply := func(edit func(t *testing.T, tables string)) func(t *testing.T, dir string) []string {
 		return func(t *testing.T, dir string) []string {
-			tables := fitTables(t, dir, goodCSV, "--columns", "postcode,sender", "--methods", "target,hash")
+			tables := fitTables(t, dir, goodCSV, "--columns", "postcode,sender", "--methods", "target:eb+hash")
 			edit(t, tables)
 			return []string{"apply", writeFile(t, dir, "new.csv", fresh), "--tables", tables, "--out", filepath.Join(dir, "out", "new.csv")}
 		}
@@ -21,9 +21,9 @@ func TestDamagedTables(t *testing.T) {
 	cases := []badCase{
 		{"buckets 0", apply(func(t *testing.T, tables string) {
 			m := readManifest(t, tables)
-			m["params"].(map[string]any)["buckets"] = 0
+			encoding(t, m, 0, 1)["encoding"] = "hash:0"
 			writeManifest(t, tables, m)
-		}), exitMismatch, []string{"manifest.json", "buckets"}},
+		}), exitMismatch, []string{"manifest.json", "columns[0].encodings[1]", `B "0"`}},
 		{"table outside the directory", apply(func(t *testing.T, tables string) {
 			m := readManifest(t, tables)
 			m["columns"].([]any)[0].(map[string]any)["table"] = "../train.csv"
@@ -41,12 +41,22 @@ func TestDamagedTables(t *testing.T) {
 			os.Rename(a, b)
 			a = fitTables(t, dir, goodCSV, "--columns", "postcode")
 			m := readManifest(t, b)
-			m["columns"].([]any)[0].(map[string]any)["prior"] = []any{}
+			encoding(t, m, 0, 0)["fit"].(map[string]any)["prior"] = []any{}
 			writeManifest(t, b, m)
 			return []string{"merge", a, b, "--tables", filepath.Join(dir, "out", "merged")}
-		}, exitMismatch, []string{"manifest.json", "columns[0].prior"}},
+		}, exitMismatch, []string{"manifest.json", "columns[0].encodings[0].fit: prior has 0 values"}},
 	}
 	runBad(t, cases)
+}
+
+// encoding returns the manifest's entry columns[col].encodings[enc].
+func encoding(t *testing.T, m map[string]any, col, enc int) map[string]any {
+	t.Helper()
+	e, ok := m["columns"].([]any)[col].(map[string]any)["encodings"].([]any)[enc].(map[string]any)
+	if !ok {
+		t.Fatalf("manifest has no columns[%d].encodings[%d]", col, enc)
+	}
+	return e
 }
 
 // writeManifest writes m as the manifest of the tables directory.

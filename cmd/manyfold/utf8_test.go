@@ -45,7 +45,7 @@ func TestInvalidUTF8(t *testing.T) {
 	dir := t.TempDir()
 	in := writeFile(t, dir, "shipments.csv", latin1CSV)
 	out := filepath.Join(dir, "enc.csv")
-	mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,city", "--methods", "target,freq", "--folds", "2", "--out", out, "--tables", filepath.Join(dir, "tables"))
+	mustRun(t, "encode", in, "--target", "late", "--columns", "postcode,city", "--methods", "target:eb+freq", "--folds", "2", "--out", out, "--tables", filepath.Join(dir, "tables"))
 	applied := filepath.Join(dir, "applied.csv")
 	mustRun(t, "apply", in, "--tables", filepath.Join(dir, "tables"), "--out", applied)
 	if got := readTable(t, applied).col(t, "city_freq"); got[1] != "1" || got[0] != "2" {

@@ -44,6 +44,9 @@ target). Rows whose target is empty are encoded but not counted.
 `
 
 func runEncode(args []string) (err error) {
+	if err := refuseRemovedFlags(args); err != nil {
+		return err
+	}
 	fs := newFlags("encode", encodeUsage)
 	var in inputFlags
 	in.add(fs)
@@ -243,6 +246,77 @@ func runEncode(args []string) (err error) {
 		}
 	}
 	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", outName(of.out), *tables)
+	return nil
+}
+
+// removedFlags are encode's flags that became parameters of an encoding
+// (mapping tables of format 3): the method, the encoding that replaces
+// --name V, and the V a message shows when none was given.
+var removedFlags = []struct {
+	name, method, placeholder string
+	to                        func(v string) string
+}{
+	{"smoothing", "target", "m=NUM", func(v string) string {
+		if v == "auto" {
+			return "target:eb"
+		}
+		return "target:" + v
+	}},
+	{"prior-by", "target", "prefix=N", func(v string) string {
+		if col, ok := strings.CutPrefix(v, "column="); ok {
+			return "target:eb:prior=column:" + col
+		}
+		return "target:eb:prior=" + strings.Replace(v, "=", "", 1) // prefix=3: prefix3
+	}},
+	{"output", "target", "logodds", func(v string) string {
+		if v == "rate" {
+			return "target:eb"
+		}
+		return "target:eb:" + v
+	}},
+	{"freq", "freq", "share", func(v string) string {
+		if v == "count" {
+			return "freq"
+		}
+		return "freq:" + v
+	}},
+	{"top-k", "topk", "K", func(v string) string { return "topk:" + v }},
+	{"min-count", "topk", "N", func(v string) string { return "topk:100:min=" + v }},
+	{"buckets", "hash", "B", func(v string) string { return "hash:" + v }},
+	{"hash-seed", "hash", "S", func(v string) string { return "hash:1024:seed=" + v }},
+	{"signed", "hash", "", func(v string) string {
+		if v == "false" {
+			return "hash:1024"
+		}
+		return "hash:1024:signed"
+	}},
+}
+
+// refuseRemovedFlags refuses the first removed flag in args with a usage
+// error that gives its replacement in the --methods grammar. It runs
+// before the flags are parsed, which would only call the flag unknown.
+func refuseRemovedFlags(args []string) error {
+	for i, a := range args {
+		if a == "--" {
+			return nil
+		}
+		if !strings.HasPrefix(a, "--") {
+			continue
+		}
+		name, v, hasV := strings.Cut(a[2:], "=")
+		for _, f := range removedFlags {
+			if name != f.name {
+				continue
+			}
+			if !hasV { // --signed takes no value; the others the next argument
+				v = f.placeholder
+				if f.placeholder != "" && i+1 < len(args) && !strings.HasPrefix(args[i+1], "-") {
+					v = args[i+1]
+				}
+			}
+			return usagef("--%s is now a parameter of the %s encoding: --methods %s (see manyfold encode --help)", f.name, f.method, f.to(v))
+		}
+	}
 	return nil
 }
 

@@ -52,7 +52,7 @@ func runDemo(args []string) error {
 	steps := [][]string{
 		{"scan", train, "--columns", "dest_postcode,sender_account,route,parcel_type", "--top", "3"},
 		{"encode", train, "--target", "late", "--columns", "dest_postcode,sender_account,route",
-			"--methods", "target,freq,topk,hash", "--folds", "5", "--seed", "1", "--fold-column", "fold",
+			"--methods", "target:eb+freq+topk:100+hash:1024", "--folds", "5", "--seed", "1", "--fold-column", "fold",
 			"--out", encoded, "--tables", tables},
 		{"apply", fresh, "--tables", tables, "--out", applied},
 	}

@@ -63,8 +63,8 @@ measure() {
 	log "$rows rows $in->$out $tool threads=$threads: ${wall}s $((kb / 1024)) MB"
 }
 
-JOB=(--target late --columns dest_postcode,sender_account,shipment_id --methods target,freq
-	--smoothing m=20 --folds 5 --seed 3 --fold-column fold)
+JOB=(--target late --columns dest_postcode,sender_account,shipment_id --methods target:m=20+freq
+	--folds 5 --seed 3 --fold-column fold)
 
 mf() { # mf ROWS IN OUTFMT THREADS [LABEL]
 	local d=$WORK/$1 out=$WORK/$1/out/mf-$2-$4t.$3
@@ -170,7 +170,7 @@ for rep in $(seq "$REPS"); do
 		[[ $c == noidrep-* ]] && label="manyfold, no shipment_id, levels of ${growth_sizes[0]} rows"
 		rm -rf "$d/out/tables"
 		measure "$n" parquet parquet "$label" 2 "$bin/manyfold" encode "$d/shipments.parquet" \
-			--target late --columns dest_postcode,sender_account --methods target,freq --smoothing m=20 \
+			--target late --columns dest_postcode,sender_account --methods target:m=20+freq \
 			--folds 5 --seed 3 --fold-column fold --out "$d/out/mf.parquet" --tables "$d/out/tables" --threads 2
 		rm -f "$d/out/mf.parquet"
 	done

@@ -33,7 +33,7 @@ const (
 	dataSeed  = 11 // parcels network and rows
 	foldSeed  = 3  // manyfold --seed
 	folds     = 5  // manyfold --folds
-	smoothM   = 20 // manyfold --smoothing m=20
+	smoothM   = 20 // manyfold --methods target:m=20+freq
 	foldCol   = "fold"
 	idCol     = "shipment_id"
 	encodeCol = "dest_postcode,sender_account,route"
@@ -131,8 +131,7 @@ func encode(t *testing.T, target string) string {
 	args := []string{"encode", inputPath,
 		"--target", target,
 		"--columns", encodeCol,
-		"--methods", "target,freq",
-		"--smoothing", fmt.Sprintf("m=%d", smoothM),
+		"--methods", fmt.Sprintf("target:m=%d+freq", smoothM),
 		"--folds", fmt.Sprint(folds),
 		"--seed", fmt.Sprint(foldSeed),
 		"--fold-column", foldCol,

@@ -6,6 +6,7 @@ import (
 	"math"
 	"slices"
 	"sort"
+	"strconv"
 	"sync"
 	"time"
 
@@ -13,6 +14,7 @@ import (
 	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 	"manyfold/folds"
+	"manyfold/internal/cmdline"
 	"manyfold/internal/guard"
 	"manyfold/io/table"
 )
@@ -398,6 +400,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 		}
 		res.Columns = append(res.Columns, cr)
 	}
+	res.EncodeCommand = encodeCommand(res, opt)
 	return res, nil
 }
 
@@ -434,6 +437,40 @@ func (ca *cellAssigner) assign(fb folds.Batch, cell []uint16) error {
 		cell[i] = uint16(int(of[i])*ca.ki + int(in[i]))
 	}
 	return nil
+}
+
+// encodeCommand returns the manyfold encode command that encodes every
+// column with a winner by its winning encodings (the per-column form), with
+// the comparison's target, task, fold rule and seed; "" when no column has
+// a winner.
+func encodeCommand(res *Result, opt Options) string {
+	var plan method.Plan
+	for _, c := range res.Columns {
+		for _, k := range c.Candidates {
+			if !k.Winner {
+				continue
+			}
+			encs, err := method.ParseList(k.Name)
+			if err != nil {
+				panic(fmt.Sprintf("compare: the winner %q does not parse: %v", k.Name, err)) // names are canonical
+			}
+			plan.PerColumn = append(plan.PerColumn, method.ColumnEncodings{Column: c.Column, Encodings: encs})
+		}
+	}
+	if plan.PerColumn == nil {
+		return ""
+	}
+	var flags []string
+	if opt.Task != "" {
+		flags = append(flags, "--task", opt.Task)
+	}
+	if res.FoldBy != "rows" {
+		flags = append(flags, "--fold-by", res.FoldBy)
+	}
+	if opt.Seed != 0 {
+		flags = append(flags, "--seed", strconv.FormatUint(opt.Seed, 10))
+	}
+	return cmdline.Encode(res.File, res.Target, plan, flags...)
 }
 
 func usage(format string, a ...any) error {

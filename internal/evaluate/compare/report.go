@@ -69,6 +69,7 @@ func WriteReportTo(w io.Writer, r *Result) error {
 type reportView struct {
 	Title     string
 	Header    []headerItem
+	Command   string // the encode command that carries out the verdict
 	Columns   []columnView
 	Generator string
 }
@@ -194,6 +195,7 @@ func buildView(r *Result) reportView {
 			{"Model rows", groupDigits(r.ModelRows)},
 			{"Numeric columns added", with},
 		},
+		Command:   r.EncodeCommand,
 		Generator: "manyfold compare",
 	}
 	for i := range r.Columns {
@@ -865,6 +867,9 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 </ul></nav>
 {{- else}}
 <p class="none">No categorical columns were compared.</p>
+{{- end}}
+{{- if .Command}}
+<p class="command">To encode each column by its winner: <code>{{.Command}}</code></p>
 {{- end}}
 </header>
 {{- range .Columns}}

@@ -97,6 +97,9 @@ func WriteText(w io.Writer, r *Result) error {
 		}
 		fmt.Fprintf(bw, "reading: %s\n", c.Reading)
 	}
+	if r.EncodeCommand != "" {
+		fmt.Fprintf(bw, "\nto encode each column by its winner:\n  %s\n", r.EncodeCommand)
+	}
 	return bw.Flush()
 }
 

@@ -1,0 +1,123 @@
+package main
+
+import (
+	"encoding/json"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"manyfold/internal/parcels"
+	"manyfold/io/tableio"
+)
+
+// shellWords splits a command line as a POSIX shell does, by asking one.
+func shellWords(t *testing.T, line string) []string {
+	t.Helper()
+	out, err := exec.Command("sh", "-c", "set -- "+line+`; for a in "$@"; do printf '%s\0' "$a"; done`).Output()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return strings.Split(strings.TrimSuffix(string(out), "\x00"), "\x00")
+}
+
+// TestCompareCommandCarriesOutVerdict: compare prints the encode command
+// of its verdict (text and JSON); run as it is, it encodes each column by
+// its winner, which the manifest of its tables names. The candidates
+// include the two methods added as one file each (woe, onehot) and a
+// combination, which compare scores without an edit of its own.
+func TestCompareCommandCarriesOutVerdict(t *testing.T) {
+	if _, err := exec.LookPath("sh"); err != nil {
+		t.Skip("no sh here")
+	}
+	dir := t.TempDir()
+	in := filepath.Join(dir, "shipments.csv")
+	w, err := tableio.Create(in, parcels.Schema(), tableio.WriteOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := parcels.Generate(parcels.Config{Rows: 20000, Seed: 5, Postcodes: 2000, Accounts: 3000}, w); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	js := filepath.Join(dir, "verdict.json")
+	res := mustRun(t, "compare", in, "--target", "late", "--columns", "dest_postcode,parcel_type",
+		"--candidates", "prior,target:eb,freq,topk:10,woe,onehot:6,target:eb+freq", "--seed", "3", "--json", js, "--folds", "3", "--inner-folds", "3")
+	var v struct {
+		EncodeCommand string `json:"encode_command"`
+		Columns       []struct {
+			Column     string `json:"column"`
+			Candidates []struct {
+				Name    string  `json:"name"`
+				Winner  bool    `json:"winner"`
+				Primary struct {
+					Mean float64 `json:"mean"`
+				} `json:"primary"`
+			} `json:"candidates"`
+		} `json:"columns"`
+	}
+	b, err := os.ReadFile(js)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b, &v); err != nil {
+		t.Fatal(err)
+	}
+	if v.EncodeCommand == "" || !strings.Contains(res.stdout, v.EncodeCommand) {
+		t.Fatalf("encode command %q, not printed in the text:\n%s", v.EncodeCommand, res.stdout)
+	}
+	winners := map[string]string{}
+	for _, c := range v.Columns {
+		if len(c.Candidates) != 7 {
+			t.Fatalf("%s: %d candidates scored, want 7", c.Column, len(c.Candidates))
+		}
+		for _, k := range c.Candidates {
+			if math.IsNaN(k.Primary.Mean) || k.Primary.Mean < 0.4 || k.Primary.Mean > 1 {
+				t.Errorf("%s, %s: AUC %v", c.Column, k.Name, k.Primary.Mean)
+			}
+			if k.Winner {
+				winners[c.Column] = k.Name
+			}
+		}
+	}
+	if len(winners) != 2 {
+		t.Fatalf("winners %v, want one per column", winners)
+	}
+	args := shellWords(t, v.EncodeCommand)
+	if args[0] != "manyfold" || args[1] != "encode" {
+		t.Fatalf("command %q", v.EncodeCommand)
+	}
+	mustRun(t, args[1:]...)
+	var mf struct {
+		Columns []struct {
+			Name      string `json:"name"`
+			Encodings []struct {
+				Encoding string `json:"encoding"`
+			} `json:"encodings"`
+		} `json:"columns"`
+	}
+	b, err = os.ReadFile(filepath.Join(dir, "shipments_tables", "manifest.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b, &mf); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range mf.Columns {
+		var encs []string
+		for _, e := range c.Encodings {
+			encs = append(encs, e.Encoding)
+		}
+		if got := strings.Join(encs, "+"); got != winners[c.Name] {
+			t.Errorf("%s encoded as %s; compare's winner is %s", c.Name, got, winners[c.Name])
+		}
+	}
+	if len(mf.Columns) != 2 {
+		t.Errorf("%d columns encoded, want 2", len(mf.Columns))
+	}
+	t.Logf("winners %v; command: %s", winners, v.EncodeCommand)
+}

@@ -6,18 +6,22 @@ import (
 	"os"
 	"strings"
 
+	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
+	"manyfold/internal/cmdline"
 	"manyfold/io/pqio"
 	"manyfold/io/tableio"
 )
 
-const scanUsage = `Usage: manyfold scan FILE [--columns a,b] [--top N] [--json]
+const scanUsage = `Usage: manyfold scan FILE [--columns a,b] [--target COL] [--top N] [--json]
 
 Profiles the columns of FILE (all, or those given) as categorical columns:
 type, rows, nulls, exact distinct count, the most frequent levels, the share
 of levels seen once, the share of rows the top 10 / 100 / 1000 levels cover,
-and a suggested encoding with its reason. Memory grows with the number of
-distinct levels, not with the rows.
+and a suggested encoding with its reason, in encode's grammar. It ends with
+the manyfold encode command that carries out the suggestions (with --target,
+the target column is left out of them and named in the command). Memory
+grows with the number of distinct levels, not with the rows.
 `
 
 func runScan(args []string) error {
@@ -26,6 +30,7 @@ func runScan(args []string) error {
 	in.add(fs)
 	columns := fs.StringSlice("columns", nil, "columns to profile (default: all)")
 	top := fs.Int("top", 5, "how many of the most frequent levels to list")
+	target := fs.String("target", "", "the target column: left out of the suggestions, named in the encode command")
 	asJSON := fs.Bool("json", false, "print JSON instead of text")
 	if err := parseFlags(fs, args); err != nil {
 		return err
@@ -73,10 +78,18 @@ func runScan(args []string) error {
 	if err != nil {
 		return err
 	}
+	command := ""
+	if plan := pipeline.SuggestedPlan(profiles, *target); plan.PerColumn != nil {
+		t := *target
+		if t == "" && needsTarget(plan) {
+			t = "TARGET"
+		}
+		command = cmdline.Encode(file, t, plan)
+	}
 	if *asJSON {
 		enc := json.NewEncoder(os.Stdout)
 		enc.SetIndent("", "  ")
-		doc := map[string]any{"file": file, "columns": profiles}
+		doc := map[string]any{"file": file, "columns": profiles, "encode_command": command}
 		if len(nested) > 0 {
 			doc["not_encodable"] = notEncodable(nested)
 		}
@@ -84,7 +97,25 @@ func runScan(args []string) error {
 	}
 	printProfiles(profiles)
 	printNested(nested)
+	if command != "" {
+		fmt.Printf("\nto encode as suggested:\n  %s\n", command)
+		if *target == "" && strings.Contains(command, "TARGET") {
+			fmt.Println("  (TARGET: name the target column, or give scan --target)")
+		}
+	}
 	return nil
+}
+
+// needsTarget reports whether an encoding of the plan reads the target.
+func needsTarget(p method.Plan) bool {
+	for _, c := range p.PerColumn {
+		for _, e := range c.Encodings {
+			if e.Needs().Target {
+				return true
+			}
+		}
+	}
+	return false
 }
 
 // nestedNote says why a nested column is not encodable.

@@ -52,8 +52,8 @@ func TestCompareCommandCarriesOutVerdict(t *testing.T) {
 		Columns       []struct {
 			Column     string `json:"column"`
 			Candidates []struct {
-				Name    string  `json:"name"`
-				Winner  bool    `json:"winner"`
+				Name    string `json:"name"`
+				Winner  bool   `json:"winner"`
 				Primary struct {
 					Mean float64 `json:"mean"`
 				} `json:"primary"`
@@ -120,4 +120,77 @@ func TestCompareCommandCarriesOutVerdict(t *testing.T) {
 		t.Errorf("%d columns encoded, want 2", len(mf.Columns))
 	}
 	t.Logf("winners %v; command: %s", winners, v.EncodeCommand)
+}
+
+// TestScanCommandCarriesOutSuggestions: scan ends with the encode command
+// of its suggestions; run as it is, it encodes each suggested column as
+// suggested, leaving out the target and the columns to drop.
+func TestScanCommandCarriesOutSuggestions(t *testing.T) {
+	if _, err := exec.LookPath("sh"); err != nil {
+		t.Skip("no sh here")
+	}
+	dir := t.TempDir()
+	in := filepath.Join(dir, "shipments.parquet")
+	w, err := tableio.Create(in, parcels.Schema(), tableio.WriteOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := parcels.Generate(parcels.Config{Rows: 5000, Seed: 2, Postcodes: 800, Accounts: 1500}, w); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	res := mustRun(t, "scan", in, "--target", "late")
+	suggested := map[string]string{}
+	var name, command string
+	lines := strings.Split(res.stdout, "\n")
+	for i, l := range lines {
+		if f := strings.Fields(l); len(f) > 1 && !strings.HasPrefix(l, " ") && strings.HasPrefix(f[1], "[") {
+			name = f[0]
+		}
+		if s, ok := strings.CutPrefix(l, "  suggested: "); ok {
+			suggested[name], _, _ = strings.Cut(s, " ")
+		}
+		if l == "to encode as suggested:" && i+1 < len(lines) {
+			command = strings.TrimSpace(lines[i+1])
+		}
+	}
+	if command == "" || len(suggested) < 6 {
+		t.Fatalf("no encode command, or suggestions for %d columns, in:\n%s", len(suggested), res.stdout)
+	}
+	args := shellWords(t, command)
+	mustRun(t, args[1:]...)
+	b, err := os.ReadFile(filepath.Join(dir, "shipments_tables", "manifest.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var mf struct {
+		Columns []struct {
+			Name      string `json:"name"`
+			Encodings []struct {
+				Encoding string `json:"encoding"`
+			} `json:"encodings"`
+		} `json:"columns"`
+	}
+	if err := json.Unmarshal(b, &mf); err != nil {
+		t.Fatal(err)
+	}
+	encoded := map[string]bool{}
+	for _, c := range mf.Columns {
+		var encs []string
+		for _, e := range c.Encodings {
+			encs = append(encs, e.Encoding)
+		}
+		if got := strings.Join(encs, "+"); got != suggested[c.Name] {
+			t.Errorf("%s encoded as %s; scan suggested %s", c.Name, got, suggested[c.Name])
+		}
+		encoded[c.Name] = true
+	}
+	for col, s := range suggested {
+		want := col != "late" && s != "drop" && s != "numeric"
+		if encoded[col] != want {
+			t.Errorf("%s (suggested %s): encoded %v, want %v", col, s, encoded[col], want)
+		}
+	}
 }

@@ -5,6 +5,7 @@ import (
 	"sort"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/method"
 	"manyfold/io/table"
 )
 
@@ -20,7 +21,7 @@ type Profile struct {
 	Cover10   float64      `json:"share_rows_top_10"`
 	Cover100  float64      `json:"share_rows_top_100"`
 	Cover1000 float64      `json:"share_rows_top_1000"`
-	Suggest   string       `json:"suggested"`
+	Suggest   string       `json:"suggested"` // an encoding list in encode's grammar, or drop, or numeric
 	Reason    string       `json:"reason"`
 }
 
@@ -122,7 +123,8 @@ func Scan(r table.Reader, cols []int, top int, progress func(int64)) ([]Profile,
 //     hierarchical prior if its prefixes mean something;
 //  3. a numeric column with more than 1000 levels: a measurement, not a
 //     category: use it as a number;
-//  4. at most 30 levels: one-hot (topk with k = the level count);
+//  4. at most 30 levels: a code each (topk with k = the level count;
+//     onehot for a linear model);
 //  5. the top 100 levels cover at least 95% of rows: topk:100;
 //  6. at least half the levels are seen once: target mean with strong
 //     smoothing plus freq (the frequency tells rare from common);
@@ -135,11 +137,11 @@ func suggest(p *Profile) (string, string) {
 	case p.Distinct == 1:
 		return "drop", "a single level carries no information"
 	case int64(p.Distinct) == nonNull:
-		return "drop", "every row has its own level (an identifier): no statistic of a level reaches new rows; if its prefixes form a hierarchy, try target with --prior-by prefix=N"
+		return "drop", "every row has its own level (an identifier): no statistic of a level reaches new rows; if its prefixes form a hierarchy, try target:eb:prior=prefixN"
 	case p.Type != "text" && p.Distinct > 1000:
 		return "numeric", fmt.Sprintf("a %s column with %d distinct values is a measurement: use it as a number", p.Type, p.Distinct)
 	case p.Distinct <= 30:
-		return fmt.Sprintf("topk:%d", p.Distinct), fmt.Sprintf("%d levels: one code each (one-hot in a linear model)", p.Distinct)
+		return fmt.Sprintf("topk:%d", p.Distinct), fmt.Sprintf("%d levels: one code each (onehot:%d for a linear model)", p.Distinct, p.Distinct)
 	case p.Cover100 >= 0.95:
 		k := min(100, p.Distinct)
 		if k < 100 {
@@ -147,7 +149,24 @@ func suggest(p *Profile) (string, string) {
 		}
 		return "topk:100", fmt.Sprintf("the top 100 levels cover %.1f%% of rows; the rest share the other code", 100*p.Cover100)
 	case p.SeenOnce >= 0.5:
-		return "target+freq", fmt.Sprintf("%.0f%% of levels are seen once: smoothed out-of-fold target mean, with the frequency to tell rare levels from common ones", 100*p.SeenOnce)
+		return "target:eb+freq", fmt.Sprintf("%.0f%% of levels are seen once: smoothed out-of-fold target mean, with the frequency to tell rare levels from common ones", 100*p.SeenOnce)
 	}
-	return "target+freq", fmt.Sprintf("%d levels with repeats: smoothed out-of-fold target mean plus frequency", p.Distinct)
+	return "target:eb+freq", fmt.Sprintf("%d levels with repeats: smoothed out-of-fold target mean plus frequency", p.Distinct)
+}
+
+// SuggestedPlan returns the per-column plan of the profiles whose
+// suggestion is an encoding (not drop or numeric), leaving out the target.
+func SuggestedPlan(ps []Profile, target string) method.Plan {
+	var plan method.Plan
+	for _, p := range ps {
+		if p.Name == target {
+			continue
+		}
+		encs, err := method.ParseList(p.Suggest)
+		if err != nil {
+			continue // drop, numeric
+		}
+		plan.PerColumn = append(plan.PerColumn, method.ColumnEncodings{Column: p.Name, Encodings: encs})
+	}
+	return plan
 }

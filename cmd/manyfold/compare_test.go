@@ -88,7 +88,7 @@ func TestCompareCSVAndReport(t *testing.T) {
 	}{
 		{[]string{"compare", csv, "--columns", "postcode"}, exitUsage, "--target"},
 		{[]string{"compare", csv, "--target", "late", "--columns", "postcod"}, exitUsage, "postcode"},
-		{[]string{"compare", csv, "--target", "late", "--columns", "postcode", "--candidates", "onehot"}, exitUsage, "onehot"},
+		{[]string{"compare", csv, "--target", "late", "--columns", "postcode", "--candidates", "onehots"}, exitUsage, "onehots"},
 		{[]string{"compare", csv, "--target", "late", "--columns", "postcode", "--folds", "1"}, exitUsage, "--folds"},
 		{[]string{"compare", csv, "--target", "late", "--columns", "postcode", "--json", filepath.Join(dir, "no", "x.json")}, exitOutput, "x.json"},
 		{[]string{"compare", filepath.Join(dir, "missing.csv"), "--target", "late", "--columns", "postcode"}, exitInput, "missing.csv"},

@@ -44,6 +44,9 @@ type Col struct {
 	Fits []method.Fitted
 	// info is what the encodings see of the column.
 	info *method.Column
+	// supervised: the column's statistics hold the target (an encoding of
+	// it reads the target); otherwise they hold row counts only.
+	supervised bool
 
 	Order   []uint32  // slots in canonical order (Stats.Sorted), once order has run
 	ordered sync.Once // guards Order
@@ -124,7 +127,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if i == tcol {
 			return nil, usageErr("column %q is the target; it cannot be encoded", name)
 		}
-		m.Cols = append(m.Cols, &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i})
+		m.Cols = append(m.Cols, &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i, supervised: needTarget && sp.columnSupervised(len(m.Cols))})
 	}
 	var order *orderCheck
 	if sp.OrderBy != "" {
@@ -167,7 +170,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 			if i == tcol {
 				return nil, usageErr("prior=column:%s is the target", name)
 			}
-			parent := &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i}
+			parent := &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i, supervised: true}
 			at := len(all)
 			for ci, c := range m.Cols {
 				if sp.prior(ci).Column == name {
@@ -191,6 +194,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	var pending *batchCounts // the batch whose rows are still to be counted
 	step := 0
 	originSet := false
+	classes := 0 // class labels met so far
 	if err := table.ForEach(r, func(b *table.Batch) error {
 		if order != nil {
 			if err := order.check(b); err != nil {
@@ -209,6 +213,9 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 				task = colstats.Regression
 			}
 			for _, c := range all {
+				if !c.supervised {
+					task = colstats.Binary // row counts only
+				}
 				c.St = colstats.New(task, sp.folds(), 0, 1024)
 			}
 			for _, c := range m.Cols {
@@ -236,9 +243,12 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 				}
 			}
 			if !regress {
-				if n := len(tr.order); n > m.Cols[0].St.Classes {
+				if n := len(tr.order); n > classes {
+					classes = n
 					for _, c := range all {
-						c.St.AddClasses(n)
+						if c.supervised {
+							c.St.AddClasses(n)
+						}
 					}
 				}
 			} else {
@@ -289,7 +299,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if pending != nil {
 			last := pending
 			for ci := range all {
-				tasks = append(tasks, func() { m.count(all[ci], last, ci, tr != nil, regress) })
+				tasks = append(tasks, func() { m.count(all[ci], last, ci, tr != nil && all[ci].supervised, regress) })
 			}
 		}
 		each(len(tasks), opt.Threads, func(i int) { tasks[i]() })
@@ -303,7 +313,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		return nil, err
 	}
 	if pending != nil {
-		each(len(all), opt.Threads, func(ci int) { m.count(all[ci], pending, ci, tr != nil, regress) })
+		each(len(all), opt.Threads, func(ci int) { m.count(all[ci], pending, ci, tr != nil && all[ci].supervised, regress) })
 	}
 	if m.Rows == 0 || m.Cols[0].St == nil {
 		return nil, &table.DataError{File: opt.File, Err: errors.New("the table has no rows")}
@@ -328,7 +338,11 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if len(labels) < 2 {
 			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: fmt.Errorf("target has a single class %q; there is nothing to learn", labels[0])}
 		}
-		each(len(all), opt.Threads, func(i int) { all[i].St.PermuteClasses(pos) })
+		each(len(all), opt.Threads, func(i int) {
+			if all[i].supervised {
+				all[i].St.PermuteClasses(pos)
+			}
+		})
 		m.Task = colstats.Binary
 		if len(labels) > 2 {
 			m.Task = colstats.Multiclass
@@ -352,7 +366,9 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		}
 	}
 	for ci, c := range m.Cols {
-		c.St.Task = m.Task
+		if c.supervised {
+			c.St.Task = m.Task
+		}
 		if n := sp.prior(ci).Prefix; n > 0 && tr != nil {
 			c.rollup(n)
 		}
@@ -521,7 +537,7 @@ func (m *Model) derive(i int, c *Col, supervised bool) {
 	if c.Parent != nil && c.Parent.info == nil {
 		m.describe(c.Parent, supervised, nil)
 	}
-	m.describe(c, supervised, c.Parent)
+	m.describe(c, supervised && c.supervised, c.Parent)
 	c.Fits = make([]method.Fitted, 0, len(m.Spec.EncodingsOf(i)))
 	for _, e := range m.Spec.EncodingsOf(i) {
 		c.Fits = append(c.Fits, e.Fit(c.info))

@@ -70,6 +70,7 @@ func LoadTables(dir string) (*Model, error) {
 // then its table and its parent levels' table, each value checked.
 func (m *Model) loadColumn(dir string, i int, mc *ManifestCol, supervised bool) (*Col, error) {
 	k, _ := table.ParseKind(mc.Type) // checked
+	supervised = supervised && m.Spec.columnSupervised(i)
 	c := m.newLoaded(mc.Name, k, supervised)
 	if mc.ParentTable != "" {
 		c.Parent = m.newLoaded(mc.Name+" parents", table.String, supervised)
@@ -133,9 +134,13 @@ func (m *Model) newLoaded(name string, k table.Kind, supervised bool) *Col {
 	if !supervised {
 		task = colstats.Binary
 	}
-	st := colstats.New(task, 1, len(m.Classes), 1024)
+	classes := len(m.Classes)
+	if !supervised {
+		classes = 0
+	}
+	st := colstats.New(task, 1, classes, 1024)
 	st.Origin = m.Origin
-	return &Col{Name: name, Kind: k, St: st, Keep: []bool{false}}
+	return &Col{Name: name, Kind: k, St: st, Keep: []bool{false}, supervised: supervised}
 }
 
 // readManifest reads and decodes the manifest of dir: a regular file of at

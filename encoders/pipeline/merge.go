@@ -31,8 +31,8 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 		out.Rows += m.Rows
 		out.Missing += m.Missing
 	}
-	supervised := base.Cols[0].info.Supervised
 	for ci, bc := range base.Cols {
+		supervised := bc.info.Supervised
 		task := base.Task
 		if !supervised {
 			task = colstats.Binary
@@ -44,7 +44,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 				return nil, err
 			}
 		}
-		c := &Col{Name: bc.Name, Kind: bc.Kind, Index: bc.Index, St: st}
+		c := &Col{Name: bc.Name, Kind: bc.Kind, Index: bc.Index, St: st, supervised: supervised}
 		prior := base.Spec.prior(ci)
 		if prior.Prefix > 0 && supervised {
 			c.rollup(prior.Prefix)
@@ -63,6 +63,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 				shards = append(shards, m.Cols[ci])
 			}
 			st.Parents = mergeNests(st, ps, shards)
+			c.nest = st.Parents
 		}
 		out.derive(ci, c, supervised)
 		out.Cols = append(out.Cols, c)

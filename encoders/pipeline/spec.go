@@ -71,6 +71,17 @@ func (sp *Spec) supervised() bool {
 	return false
 }
 
+// columnSupervised reports whether an encoding of column i reads the
+// target.
+func (sp *Spec) columnSupervised(i int) bool {
+	for _, e := range sp.encs[i] {
+		if e.Needs().Target {
+			return true
+		}
+	}
+	return false
+}
+
 // needsValues reports whether an encoding of column i reads its values.
 func (sp *Spec) needsValues(i int) bool {
 	for _, e := range sp.encs[i] {

@@ -118,7 +118,7 @@ func (m *Model) Manifest() (Manifest, error) {
 	for _, f := range m.Input {
 		mf.Input = append(mf.Input, ManifestField{Name: f.Name, Type: f.Kind.String()})
 	}
-	if m.Cols[0].info.Supervised {
+	if sp.Target != "" && (m.supervised() || sp.FoldBy.Needs().Class) {
 		mf.Task = m.Task.String()
 		mf.Classes = m.Classes
 	} else {
@@ -532,4 +532,14 @@ func (m *Model) CheckInput(file string, s *table.Schema, dir string) error {
 		}
 	}
 	return nil
+}
+
+// supervised reports whether a column's statistics hold the target.
+func (m *Model) supervised() bool {
+	for _, c := range m.Cols {
+		if c.info.Supervised {
+			return true
+		}
+	}
+	return false
 }

@@ -199,3 +199,17 @@ func parseUint(name, s string, lo, hi uint64) (uint64, error) {
 // SplitCandidates splits a comma-separated list of encoding lists (each
 // joined by '+'), keeping the comma of blend=K,F inside its piece.
 func SplitCandidates(s string) []string { return splitList(s, ",") }
+
+// noRepeats refuses a parameter given twice (by its name, the part before
+// '=').
+func noRepeats(args []string) error {
+	seen := map[string]bool{}
+	for _, a := range args {
+		name, _, _ := strings.Cut(a, "=")
+		if seen[name] {
+			return fmt.Errorf("parameter %q is given twice", name)
+		}
+		seen[name] = true
+	}
+	return nil
+}

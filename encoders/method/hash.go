@@ -34,6 +34,9 @@ const MaxBuckets = 1<<63 - 1
 
 func (hashMethod) Parse(args []string) (Encoding, error) {
 	e := &hashEnc{buckets: 1024}
+	if err := noRepeats(args); err != nil {
+		return nil, err
+	}
 	for i, a := range args {
 		switch {
 		case i == 0 && a != "" && a[0] >= '0' && a[0] <= '9':

@@ -71,6 +71,9 @@ func (m targetMethod) Parse(args []string) (Encoding, error) {
 				return nil, fmt.Errorf("prior=%s: want prior=prefixN or prior=column:COL", v)
 			}
 		case a == "logodds":
+			if e.logodds {
+				return nil, errors.New("logodds is given twice")
+			}
 			e.logodds = true
 		default:
 			return nil, fmt.Errorf("unknown parameter %q (want eb, m=NUM, blend=K,F, prior=prefixN, prior=column:COL or logodds)", a)

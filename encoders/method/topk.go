@@ -38,6 +38,9 @@ func (topKMethod) Parse(args []string) (Encoding, error) {
 // parseTopK parses [K][:min=N] of topk and onehot.
 func parseTopK(args []string) (k int, min uint64, err error) {
 	k, min = 100, 1
+	if err := noRepeats(args); err != nil {
+		return 0, 0, err
+	}
 	for i, a := range args {
 		switch {
 		case i == 0 && a != "" && a[0] >= '0' && a[0] <= '9':

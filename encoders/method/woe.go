@@ -42,6 +42,9 @@ func (woeMethod) Name() string { return "woe" }
 
 func (woeMethod) Parse(args []string) (Encoding, error) {
 	e := &woeEnc{a: 0.5}
+	if err := noRepeats(args); err != nil {
+		return nil, err
+	}
 	for _, arg := range args {
 		v, ok := strings.CutPrefix(arg, "a=")
 		a, err := strconv.ParseFloat(v, 64)

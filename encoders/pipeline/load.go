@@ -407,6 +407,11 @@ func specFrom(mf *Manifest) (Spec, error) {
 			if e.String() != me.Encoding {
 				return Spec{}, fmt.Errorf("columns[%d].encodings[%d]: %q is not written as manyfold writes it (%q)", i, ei, me.Encoding, e.String())
 			}
+			for _, d := range encs {
+				if d.Method() == e.Method() {
+					return Spec{}, fmt.Errorf("columns[%d].encodings lists %s twice (%s, %s)", i, e.Method().Name(), d, e)
+				}
+			}
 			encs = append(encs, e)
 		}
 		sp.Columns = append(sp.Columns, c.Name)

@@ -378,7 +378,7 @@ func TestLoadDamagedManifest(t *testing.T) {
 		{"encoding twice", nil, edit(func(m map[string]any) {
 			c := column(m, 0)
 			c["encodings"] = append(c["encodings"].([]any), encoding(m, 1))
-		}), []string{"01-pc.parquet", "two of its encodings", `"freq"`}},
+		}), []string{"manifest.json", "columns[0].encodings", "freq twice"}},
 		{"encoding not canonical", nil, setEnc(0, "target"), []string{"columns[0].encodings[0]", `"target" is not written`, "target:eb"}},
 		{"bogus column type", nil, setCol("type", "blob"), []string{"columns[0].type", "blob"}},
 		{"column type other than the input's", nil, setCol("type", "int"), []string{"columns[0].type"}},

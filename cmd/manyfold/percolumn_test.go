@@ -29,12 +29,32 @@ func TestPerColumnEqualsSeparateRuns(t *testing.T) {
 	if err := w.Commit(); err != nil {
 		t.Fatal(err)
 	}
-	type part struct{ col, methods string }
-	parts := []part{
-		{"dest_postcode", "target:m=20+freq:share"},
-		{"sender_account", "woe+hash:64:signed"},
-		{"parcel_type", "topk:6+onehot:6"},
-		{"route", "target:eb:prior=prefix3"},
+	for _, tc := range []struct {
+		target string
+		parts  []part
+	}{
+		{"late", []part{
+			{"dest_postcode", "target:m=20+freq:share"},
+			{"sender_account", "woe+hash:64:signed"},
+			{"parcel_type", "topk:6+onehot:6"},
+			{"route", "target:eb:prior=prefix3"},
+		}},
+		// A regression target, the first column without it.
+		{"cost", []part{
+			{"parcel_type", "topk:6"},
+			{"dest_postcode", "target:m=20+freq"},
+			{"route", "target:eb:prior=prefix3"},
+		}},
+	} {
+		t.Run(tc.target, func(t *testing.T) { perColumnCase(t, dir, in, tc.target, tc.parts) })
+	}
+}
+
+// perColumnCase compares one per-column run with one run per column.
+func perColumnCase(t *testing.T, dir, in, target string, parts []part) {
+	dir = filepath.Join(dir, target)
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
 	}
 	var plan string
 	for i, p := range parts {
@@ -44,11 +64,11 @@ func TestPerColumnEqualsSeparateRuns(t *testing.T) {
 		plan += p.col + "=" + p.methods
 	}
 	all := filepath.Join(dir, "all")
-	mustRun(t, "encode", in, "--target", "late", "--methods", plan, "--seed", "4", "--out", all+".csv", "--tables", all)
+	mustRun(t, "encode", in, "--target", target, "--methods", plan, "--seed", "4", "--out", all+".csv", "--tables", all)
 	whole := readCSVRows(t, all+".csv")
 	for i, p := range parts {
 		one := filepath.Join(dir, p.col)
-		mustRun(t, "encode", in, "--target", "late", "--columns", p.col, "--methods", p.methods, "--seed", "4", "--out", one+".csv", "--tables", one)
+		mustRun(t, "encode", in, "--target", target, "--columns", p.col, "--methods", p.methods, "--seed", "4", "--out", one+".csv", "--tables", one)
 		sep := readCSVRows(t, one+".csv")
 		n := 0
 		for j, name := range sep[0] {
@@ -80,6 +100,9 @@ func TestPerColumnEqualsSeparateRuns(t *testing.T) {
 		}
 	}
 }
+
+// part is one column and its encodings.
+type part struct{ col, methods string }
 
 // isInput reports whether name is a column of the generated input.
 func isInput(name string) bool { return parcels.Schema().Index(name) >= 0 }

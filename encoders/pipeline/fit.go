@@ -94,23 +94,70 @@ type FitOptions struct {
 const presizeRows = 50000
 
 // Fit reads every batch of r (the first pass) and gathers the statistics of
-// the spec's columns. It does not close r.
+// the spec's columns, in three stages: newFitter finds the columns it
+// reads, pass counts every row, and finish settles the target's classes,
+// the hierarchical priors and each encoding's fit. It does not close r.
 func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	if err := sp.Validate(); err != nil {
 		return nil, err
 	}
-	schema := r.Schema()
+	f, err := newFitter(r.Schema(), sp, opt)
+	if err != nil {
+		return nil, err
+	}
+	if err := f.pass(r); err != nil {
+		return nil, err
+	}
+	return f.finish()
+}
+
+// fitter is the state of a fit: the columns it gathers and, during the
+// pass, the batch whose rows are still to be counted.
+type fitter struct {
+	m      *Model
+	sp     *Spec
+	opt    FitOptions
+	schema *table.Schema
+	// all holds the encoded columns, then the parent levels of column
+	// priors (prior=column:COL), each gathered like an encoded column.
+	all   []*Col
+	slots []levelSlots
+	tcol  int // the target's position, -1 when no encoding or fold rule reads it
+	tr    *targetReader
+	task  colstats.Task // Regression once a numeric target is detected (or given)
+	fa    *foldAssigner
+	order *orderCheck
+
+	// The pass: the row count when known before reading, whether each
+	// column's level table was sized, second slot buffers, the counts of
+	// the last two batches, the class labels met so far.
+	total     int64
+	estimate  table.RowEstimator
+	sized     []bool
+	spare     [][]int32
+	counts    [2]batchCounts
+	pending   *batchCounts
+	step      int
+	decided   bool
+	originSet bool
+	classes   int
+}
+
+// newFitter finds every column the fit reads in schema, and the target
+// reader and fold assigner.
+func newFitter(schema *table.Schema, sp Spec, opt FitOptions) (*fitter, error) {
+	f := &fitter{sp: &sp, opt: opt, schema: schema, tcol: -1}
 	m := &Model{Spec: sp, Input: append([]table.Field(nil), schema.Fields...), threads: opt.Threads}
+	f.m, f.sp = m, &m.Spec
 	needTarget := sp.supervised() || sp.FoldBy.Needs().Class
-	tcol := -1
 	if sp.Target != "" {
-		tcol = schema.Index(sp.Target)
-		if tcol < 0 {
+		f.tcol = schema.Index(sp.Target)
+		if f.tcol < 0 {
 			return nil, &ColumnError{File: opt.File, Flag: "--target", Name: sp.Target, Have: schema.Names()}
 		}
 	}
 	if !needTarget {
-		tcol = -1
+		f.tcol = -1
 	}
 	gcol := -1
 	if g := sp.groupColumn(); g != "" {
@@ -124,197 +171,219 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		if i < 0 {
 			return nil, &ColumnError{File: opt.File, Flag: "--columns", Name: name, Have: schema.Names()}
 		}
-		if i == tcol {
+		if i == f.tcol {
 			return nil, usageErr("column %q is the target; it cannot be encoded", name)
 		}
 		m.Cols = append(m.Cols, &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i, supervised: needTarget && sp.columnSupervised(len(m.Cols))})
 	}
-	var order *orderCheck
 	if sp.OrderBy != "" {
 		i := schema.Index(sp.OrderBy)
 		if i < 0 {
 			return nil, &ColumnError{File: opt.File, Flag: "--order-by", Name: sp.OrderBy, Have: schema.Names()}
 		}
 		k := schema.Fields[i].Kind
-		order = &orderCheck{file: opt.File, name: sp.OrderBy, col: i, numeric: k == table.Int64 || k == table.Float64}
+		f.order = &orderCheck{file: opt.File, name: sp.OrderBy, col: i, numeric: k == table.Int64 || k == table.Float64}
 	}
 	if sp.FoldBy.Needs().Total && sp.folds() > 1 && opt.TotalRows <= 0 {
 		return nil, fmt.Errorf("the fold rule %s needs the row count of the input", sp.FoldBy)
 	}
-
-	var tr *targetReader
-	regress := false
-	decided := false
-	if tcol >= 0 {
-		tr = newTargetReader(opt.File, sp.Target, tcol, schema.Fields[tcol].Kind, sp.Task, nil)
+	if f.tcol >= 0 {
+		f.tr = newTargetReader(opt.File, sp.Target, f.tcol, schema.Fields[f.tcol].Kind, sp.Task, nil)
 		if sp.Task != "" {
-			regress = tr.regress
-			decided = true
+			f.decided = true
+			if f.tr.regress {
+				f.task = colstats.Regression
+			}
 		}
 	}
-	fa := newFoldAssigner(&sp, gcol, opt.TotalRows)
-	slots := make([]levelSlots, len(m.Cols))
-	for i, c := range m.Cols {
-		slots[i] = levelSlots{col: c.Index, nullSlot: 0, settle: true}
+	f.fa = newFoldAssigner(f.sp, gcol, opt.TotalRows)
+	f.all = m.Cols
+	for _, c := range m.Cols {
+		f.slots = append(f.slots, levelSlots{col: c.Index, nullSlot: 0, settle: true})
 	}
-	// With a column prior (prior=column:COL) the parent levels are that
-	// column's values, gathered like an encoded column's and shared by
-	// every column with that prior.
-	all := m.Cols
-	if tcol >= 0 {
-		for _, name := range sp.priorColumns() {
-			i := schema.Index(name)
-			if i < 0 {
-				return nil, &ColumnError{File: opt.File, Flag: "prior=column:" + name, Name: name, Have: schema.Names()}
-			}
-			if i == tcol {
-				return nil, usageErr("prior=column:%s is the target", name)
-			}
-			parent := &Col{Name: name, Kind: schema.Fields[i].Kind, Index: i, supervised: true}
-			at := len(all)
-			for ci, c := range m.Cols {
-				if sp.prior(ci).Column == name {
-					c.Parent, c.parentAt, c.nest = parent, at, []int32{}
-				}
-			}
-			all = append(all[:len(all):len(all)], parent)
-			slots = append(slots, levelSlots{col: i, settle: true})
+	if f.tcol >= 0 {
+		if err := f.addParents(); err != nil {
+			return nil, err
 		}
 	}
+	return f, nil
+}
 
-	// The row count, when the reader knows it before reading (Parquet).
-	total := opt.TotalRows
-	if rc, ok := r.(table.RowCounter); ok && total <= 0 {
-		total = rc.NumRows()
+// addParents adds the parent levels of every column prior
+// (prior=column:COL): that column's values, gathered like an encoded
+// column's and shared by every column with that prior.
+func (f *fitter) addParents() error {
+	m, sp := f.m, f.sp
+	for _, name := range sp.priorColumns() {
+		i := f.schema.Index(name)
+		if i < 0 {
+			return &ColumnError{File: f.opt.File, Flag: "prior=column:" + name, Name: name, Have: f.schema.Names()}
+		}
+		if i == f.tcol {
+			return usageErr("prior=column:%s is the target", name)
+		}
+		parent := &Col{Name: name, Kind: f.schema.Fields[i].Kind, Index: i, supervised: true}
+		at := len(f.all)
+		for ci, c := range m.Cols {
+			if sp.prior(ci).Column == name {
+				c.Parent, c.parentAt, c.nest = parent, at, []int32{}
+			}
+		}
+		f.all = append(f.all[:len(f.all):len(f.all)], parent)
+		f.slots = append(f.slots, levelSlots{col: i, settle: true})
 	}
-	estimate, _ := r.(table.RowEstimator)
-	sized := make([]bool, len(all))
-	spare := make([][]int32, len(all)) // second slot buffers, see below
-	counts := [2]batchCounts{newBatchCounts(len(all)), newBatchCounts(len(all))}
-	var pending *batchCounts // the batch whose rows are still to be counted
-	step := 0
-	originSet := false
-	classes := 0 // class labels met so far
-	if err := table.ForEach(r, func(b *table.Batch) error {
-		if order != nil {
-			if err := order.check(b); err != nil {
-				return err
-			}
-		}
-		if !decided {
-			decided = true
-			if tr != nil {
-				regress = detectRegression(b, tcol, schema.Fields[tcol].Kind)
-			}
-		}
-		if m.Cols[0].St == nil {
-			task := colstats.Binary
-			if regress {
-				task = colstats.Regression
-			}
-			for _, c := range all {
-				if !c.supervised {
-					task = colstats.Binary // row counts only
-				}
-				c.St = colstats.New(task, sp.folds(), 0, 1024)
-			}
-			for _, c := range m.Cols {
-				c.replay = newReplay(c.St.NumLevels())
-			}
-		}
-		var cls []int32
-		var vals []float64
-		if tr != nil {
-			tr.regress = regress
-			if err := tr.read(b); err != nil {
-				return err
-			}
-			cls, vals = tr.cls, tr.vals
-			if regress && !originSet {
-				for _, y := range vals {
-					if y == y { // the first known target
-						originSet = true
-						m.Origin = y
-						for _, c := range all {
-							c.St.Origin = y
-						}
-						break
-					}
-				}
-			}
-			if !regress {
-				if n := len(tr.order); n > classes {
-					classes = n
-					for _, c := range all {
-						if c.supervised {
-							c.St.AddClasses(n)
-						}
-					}
-				}
-			} else {
-				cls = nil
-			}
-		}
-		var labels []string
-		if tr != nil {
-			labels = tr.order
-		}
-		fold, err := fa.assign(b, cls, labels)
-		if err != nil {
+	return nil
+}
+
+// pass reads every batch of r and counts its rows.
+func (f *fitter) pass(r table.Reader) error {
+	// The row count, when the reader knows it before reading (Parquet).
+	f.total = f.opt.TotalRows
+	if rc, ok := r.(table.RowCounter); ok && f.total <= 0 {
+		f.total = rc.NumRows()
+	}
+	f.estimate, _ = r.(table.RowEstimator)
+	n := len(f.all)
+	f.sized, f.spare = make([]bool, n), make([][]int32, n)
+	f.counts = [2]batchCounts{newBatchCounts(n), newBatchCounts(n)}
+	if err := table.ForEach(r, f.batch); err != nil {
+		return err
+	}
+	if f.pending != nil {
+		each(len(f.all), f.opt.Threads, func(ci int) { f.count(ci, f.pending) })
+	}
+	return nil
+}
+
+// batch takes one batch of the pass: its targets and folds, the levels of
+// its rows, and the counting of the batch before.
+func (f *fitter) batch(b *table.Batch) error {
+	m, sp := f.m, f.sp
+	if f.order != nil {
+		if err := f.order.check(b); err != nil {
 			return err
 		}
-		seen := m.Rows + int64(b.Rows)
-		// Stage 1 of this batch (interning its levels) runs beside stage 2
-		// of the last one (counting its rows), column by column: the two
-		// touch different parts of a column's statistics (Stats.InternBatch),
-		// so that an id column's interning, the longest task, need not
-		// wait for anything else. Every column still sees its batches in
-		// file order, so the result does not depend on the threads.
-		next := &counts[step%2]
-		step++
-		next.take(b.Rows, cls, vals, fold)
-		tasks := make([]func(), 0, 2*len(all))
-		for _, ci := range byLevels(all) {
-			tasks = append(tasks, func() {
-				st := all[ci].St
-				next.slots[ci] = slots[ci].fill(b, st, true)
-				next.levels[ci] = st.Levels.Len()
-				// The next fill writes other memory.
-				slots[ci].slots, spare[ci] = spare[ci], next.slots[ci][:cap(next.slots[ci])]
-				if !sized[ci] && (seen >= presizeRows || seen == total) {
-					// A column whose levels are nearly all distinct so far
-					// (an id) gets its level table sized for every row now,
-					// rather than doubled again and again.
-					sized[ci] = true
-					want := total
-					if want <= 0 && estimate != nil {
-						want = estimate.EstimateRows() * 21 / 20
-					}
-					if want > 0 && float64(st.Levels.Len()) >= 0.9*float64(seen) {
-						st.Levels.Reserve(int(want) + 1)
-					}
-				}
-			})
+	}
+	if !f.decided {
+		f.decided = true
+		if f.tr != nil && detectRegression(b, f.tcol, f.schema.Fields[f.tcol].Kind) {
+			f.task = colstats.Regression
 		}
-		if pending != nil {
-			last := pending
-			for ci := range all {
-				tasks = append(tasks, func() { m.count(all[ci], last, ci, tr != nil && all[ci].supervised, regress) })
+	}
+	if m.Cols[0].St == nil {
+		for _, c := range f.all {
+			task := f.task
+			if !c.supervised {
+				task = colstats.Binary // row counts only
+			}
+			c.St = colstats.New(task, sp.folds(), 0, 1024)
+		}
+		for _, c := range m.Cols {
+			c.replay = newReplay(c.St.NumLevels())
+		}
+	}
+	cls, vals, labels, err := f.targets(b)
+	if err != nil {
+		return err
+	}
+	fold, err := f.fa.assign(b, cls, labels)
+	if err != nil {
+		return err
+	}
+	seen := m.Rows + int64(b.Rows)
+	// Stage 1 of this batch (interning its levels) runs beside stage 2
+	// of the last one (counting its rows), column by column: the two
+	// touch different parts of a column's statistics (Stats.InternBatch),
+	// so that an id column's interning, the longest task, need not
+	// wait for anything else. Every column still sees its batches in
+	// file order, so the result does not depend on the threads.
+	next := &f.counts[f.step%2]
+	f.step++
+	next.take(b.Rows, cls, vals, fold)
+	tasks := make([]func(), 0, 2*len(f.all))
+	for _, ci := range byLevels(f.all) {
+		tasks = append(tasks, func() { f.intern(ci, b, next, seen) })
+	}
+	if last := f.pending; last != nil {
+		for ci := range f.all {
+			tasks = append(tasks, func() { f.count(ci, last) })
+		}
+	}
+	each(len(tasks), f.opt.Threads, func(i int) { tasks[i]() })
+	f.pending = next
+	m.Rows += int64(b.Rows)
+	if f.opt.Progress != nil {
+		f.opt.Progress(m.Rows)
+	}
+	return nil
+}
+
+// targets reads the batch's target: class numbers or values (nil without a
+// target), and the class labels met so far. It takes the first known
+// value of a numeric target as every column's origin, and widens the
+// columns' class counts as new classes appear.
+func (f *fitter) targets(b *table.Batch) (cls []int32, vals []float64, labels []string, err error) {
+	tr := f.tr
+	if tr == nil {
+		return nil, nil, nil, nil
+	}
+	tr.regress = f.task == colstats.Regression
+	if err := tr.read(b); err != nil {
+		return nil, nil, nil, err
+	}
+	if tr.regress {
+		if !f.originSet {
+			for _, y := range tr.vals {
+				if y == y { // the first known target
+					f.originSet = true
+					f.m.Origin = y
+					for _, c := range f.all {
+						c.St.Origin = y
+					}
+					break
+				}
 			}
 		}
-		each(len(tasks), opt.Threads, func(i int) { tasks[i]() })
-		pending = next
-		m.Rows += int64(b.Rows)
-		if opt.Progress != nil {
-			opt.Progress(m.Rows)
+		return nil, tr.vals, tr.order, nil
+	}
+	if n := len(tr.order); n > f.classes {
+		f.classes = n
+		for _, c := range f.all {
+			if c.supervised {
+				c.St.AddClasses(n)
+			}
 		}
-		return nil
-	}); err != nil {
-		return nil, err
 	}
-	if pending != nil {
-		each(len(all), opt.Threads, func(ci int) { m.count(all[ci], pending, ci, tr != nil && all[ci].supervised, regress) })
+	return tr.cls, nil, tr.order, nil
+}
+
+// intern maps the rows of column ci in b to level slots (stage 1 of a
+// batch), and sizes the level table of a column whose levels are nearly
+// all distinct so far (an id) for every row, rather than doubling it again
+// and again.
+func (f *fitter) intern(ci int, b *table.Batch, next *batchCounts, seen int64) {
+	st := f.all[ci].St
+	next.slots[ci] = f.slots[ci].fill(b, st, true)
+	next.levels[ci] = st.Levels.Len()
+	// The next fill writes other memory.
+	f.slots[ci].slots, f.spare[ci] = f.spare[ci], next.slots[ci][:cap(next.slots[ci])]
+	if !f.sized[ci] && (seen >= presizeRows || seen == f.total) {
+		f.sized[ci] = true
+		want := f.total
+		if want <= 0 && f.estimate != nil {
+			want = f.estimate.EstimateRows() * 21 / 20
+		}
+		if want > 0 && float64(st.Levels.Len()) >= 0.9*float64(seen) {
+			st.Levels.Reserve(int(want) + 1)
+		}
 	}
+}
+
+// finish settles what the pass leaves: the row and target counts, the
+// task and its classes (in sorted order), the hierarchical priors, and
+// each column's seen flags and encodings' fits.
+func (f *fitter) finish() (*Model, error) {
+	m, sp, opt, tr, all := f.m, f.sp, f.opt, f.tr, f.all
 	if m.Rows == 0 || m.Cols[0].St == nil {
 		return nil, &table.DataError{File: opt.File, Err: errors.New("the table has no rows")}
 	}
@@ -330,7 +399,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	switch {
 	case tr == nil:
 		m.Task = colstats.Binary // no target: only unsupervised methods
-	case regress:
+	case f.task == colstats.Regression:
 		m.Task = colstats.Regression
 	default:
 		labels, pos := sortedClasses(tr.order, tr.numeric)
@@ -352,10 +421,12 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 		}
 		m.Pos = len(labels) - 1
 	}
-	for _, p := range all[len(m.Cols):] {
-		p.St.Task = m.Task
+	for _, c := range all {
+		if c.supervised {
+			c.St.Task = m.Task
+		}
 	}
-	for _, c := range m.Cols {
+	for ci, c := range m.Cols {
 		if c.nest != nil {
 			for l, p := range c.nest {
 				if p == noParent {
@@ -363,11 +434,6 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 				}
 			}
 			c.St.Parents = c.nest
-		}
-	}
-	for ci, c := range m.Cols {
-		if c.supervised {
-			c.St.Task = m.Task
 		}
 		if n := sp.prior(ci).Prefix; n > 0 && tr != nil {
 			c.rollup(n)
@@ -386,7 +452,7 @@ func Fit(r table.Reader, sp Spec, opt FitOptions) (*Model, error) {
 	if err := m.checkTask(); err != nil {
 		return nil, usageErr("%s: %v", opt.File, err)
 	}
-	m.deriveAll(tr != nil, opt.Threads)
+	m.deriveAll(opt.Threads)
 	return m, nil
 }
 
@@ -414,7 +480,7 @@ func (c *Col) rollup(n int) {
 		}
 		return b
 	})
-	c.Parent = &Col{Name: c.Name + " prefix", St: ps}
+	c.Parent = &Col{Name: c.Name + " prefix", St: ps, supervised: c.supervised}
 	c.ParentOf = of
 	c.St.Parents = of
 }
@@ -458,9 +524,10 @@ const (
 	mixedParents = -1
 )
 
-// count adds the rows of a batch to column c's statistics: stage 2 of the
-// fit (see Fit), after its levels were interned.
-func (m *Model) count(c *Col, bc *batchCounts, ci int, supervised, regress bool) {
+// count adds the rows of a batch to the statistics of column ci: stage 2
+// of a batch (see batch), after its levels were interned.
+func (f *fitter) count(ci int, bc *batchCounts) {
+	c := f.all[ci]
 	st := c.St
 	st.Settle(bc.levels[ci])
 	ls := bc.slots[ci]
@@ -484,11 +551,11 @@ func (m *Model) count(c *Col, bc *batchCounts, ci int, supervised, regress bool)
 		c.replay = nil
 	}
 	switch {
-	case !supervised:
+	case f.tr == nil || !c.supervised:
 		for _, l := range ls {
 			st.AddRow(int(l))
 		}
-	case regress:
+	case f.task == colstats.Regression:
 		for i, l := range ls {
 			if y := bc.vals[i]; y == y {
 				st.AddValue(int(l), int(bc.fold[i]), y)
@@ -523,21 +590,21 @@ func byLevels(cols []*Col) []int {
 // several columns may share (column priors) first, then the columns, each
 // of which writes only its own Col, so the result does not depend on the
 // number of threads.
-func (m *Model) deriveAll(supervised bool, threads int) {
+func (m *Model) deriveAll(threads int) {
 	for _, c := range m.Cols {
 		if c.Parent != nil && c.Parent.info == nil {
-			m.describe(c.Parent, supervised, nil)
+			m.describe(c.Parent, nil)
 		}
 	}
-	each(len(m.Cols), threads, func(i int) { m.derive(i, m.Cols[i], supervised) })
+	each(len(m.Cols), threads, func(i int) { m.derive(i, m.Cols[i]) })
 }
 
 // derive computes the seen flags of column i and fits its encodings.
-func (m *Model) derive(i int, c *Col, supervised bool) {
+func (m *Model) derive(i int, c *Col) {
 	if c.Parent != nil && c.Parent.info == nil {
-		m.describe(c.Parent, supervised, nil)
+		m.describe(c.Parent, nil)
 	}
-	m.describe(c, supervised && c.supervised, c.Parent)
+	m.describe(c, c.Parent)
 	c.Fits = make([]method.Fitted, 0, len(m.Spec.EncodingsOf(i)))
 	for _, e := range m.Spec.EncodingsOf(i) {
 		c.Fits = append(c.Fits, e.Fit(c.info))
@@ -546,7 +613,7 @@ func (m *Model) derive(i int, c *Col, supervised bool) {
 
 // describe computes the seen flags and row total of c and what the
 // encodings see of it.
-func (m *Model) describe(c *Col, supervised bool, parent *Col) {
+func (m *Model) describe(c *Col, parent *Col) {
 	sp := &m.Spec
 	st := c.St
 	n := st.NumLevels()
@@ -567,13 +634,13 @@ func (m *Model) describe(c *Col, supervised bool, parent *Col) {
 	if sp.NullsUnseen {
 		c.Keep[0] = false
 	}
-	m.setInfo(c, supervised, parent)
+	m.setInfo(c, parent)
 }
 
 // setInfo sets what the encodings see of c.
-func (m *Model) setInfo(c *Col, supervised bool, parent *Col) {
+func (m *Model) setInfo(c *Col, parent *Col) {
 	c.info = &method.Column{Name: c.Name, St: c.St, Keep: c.Keep, Total: c.total, Distinct: c.distinct(),
-		Supervised: supervised, Task: m.Task, Classes: m.Classes, Pos: m.Pos, ParentOf: c.ParentOf, Order: c.order}
+		Supervised: c.supervised, Task: m.Task, Classes: m.Classes, Pos: m.Pos, ParentOf: c.ParentOf, Order: c.order}
 	if parent != nil {
 		c.info.Parent = parent.info
 	}

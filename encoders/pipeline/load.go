@@ -79,9 +79,9 @@ func (m *Model) loadColumn(dir string, i int, mc *ManifestCol, supervised bool) 
 		}
 	}
 	if c.Parent != nil {
-		m.setInfo(c.Parent, supervised, nil)
+		m.setInfo(c.Parent, nil)
 	}
-	m.setInfo(c, supervised, c.Parent)
+	m.setInfo(c, c.Parent)
 	for ei, e := range m.Spec.EncodingsOf(i) {
 		f, err := e.Load(c.info, mc.Encodings[ei].Fit)
 		if err != nil {

@@ -57,7 +57,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 					return nil, err
 				}
 			}
-			c.Parent = &Col{Name: prior.Column, St: ps}
+			c.Parent = &Col{Name: prior.Column, St: ps, supervised: true}
 			var shards []*Col
 			for _, m := range models {
 				shards = append(shards, m.Cols[ci])
@@ -65,7 +65,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 			st.Parents = mergeNests(st, ps, shards)
 			c.nest = st.Parents
 		}
-		out.derive(ci, c, supervised)
+		out.derive(ci, c)
 		out.Cols = append(out.Cols, c)
 	}
 	return out, nil

@@ -57,7 +57,7 @@ func runApply(args []string) error {
 	if file == "-" {
 		name = "stdin"
 	}
-	o, err := openOutput(file, name, of.out, ropts, wopts, m, true, nil, func(s *table.Schema) error {
+	o, err := openOutput(file, name, of.out, ropts, wopts, m, pipeline.NewRows, nil, func(s *table.Schema) error {
 		return m.CheckInput(name, s, *tables)
 	})
 	if err != nil {
@@ -66,7 +66,7 @@ func runApply(args []string) error {
 	defer o.close()
 	w := o.w
 	pr := newProgress("apply")
-	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Apply: true, Progress: pr.update, Threads: of.threads, Input: o.full})
+	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Use: pipeline.NewRows, Progress: pr.update, Threads: of.threads, Input: o.full})
 	pr.done()
 	if err != nil {
 		w.Abort()

@@ -180,7 +180,7 @@ func runEncode(args []string) (err error) {
 		return err
 	}
 
-	o, err := openOutput(path, name, of.out, ropts, wopts, m, false, keepList, nil)
+	o, err := openOutput(path, name, of.out, ropts, wopts, m, pipeline.Training, keepList, nil)
 	if err != nil {
 		return err
 	}

@@ -87,7 +87,7 @@ func vetNested(file string, r table.Reader, sp *pipeline.Spec, format tableio.Fo
 	if keep != nil {
 		suggest = sp.Keep
 	}
-	return keep, checkNestedOutput(file, keptNested(nested, keep), suggest, format, false)
+	return keep, checkNestedOutput(file, keptNested(nested, keep), suggest, format, pipeline.Training)
 }
 
 // keptNested returns the nested columns that an output keeps, placed among
@@ -113,7 +113,7 @@ func keptNested(nested []pqio.Nested, keep []string) []pqio.Nested {
 // checkNestedOutput refuses kept nested columns when the output is not
 // Parquet, naming them and saying how to leave them out: with --keep and
 // the flat columns to keep, suggest.
-func checkNestedOutput(file string, kept []pqio.Nested, suggest []string, format tableio.Format, apply bool) error {
+func checkNestedOutput(file string, kept []pqio.Nested, suggest []string, format tableio.Format, use pipeline.Use) error {
 	if len(kept) == 0 || format == tableio.Parquet {
 		return nil
 	}
@@ -126,7 +126,7 @@ func checkNestedOutput(file string, kept []pqio.Nested, suggest []string, format
 	if len(names) > 1 {
 		what, them = "columns "+strings.Join(names, ", ")+" are", "them"
 	}
-	if apply {
+	if use == pipeline.NewRows {
 		return usagef("%s: the nested Parquet %s written back by apply, and %s output cannot hold %s: write a Parquet output, which copies %s as %s",
 			file, what, kind, them, them, map[string]string{"it": "it is", "them": "they are"}[them])
 	}

@@ -29,7 +29,7 @@ type output struct {
 // as given; nil: every column is kept), and only into a Parquet output.
 // check, when not nil, vets the input's schema first. The caller calls
 // close and commits or aborts w.
-func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio.WriteOptions, m *pipeline.Model, apply bool, keep []string, check func(*table.Schema) error) (*output, error) {
+func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio.WriteOptions, m *pipeline.Model, use pipeline.Use, keep []string, check func(*table.Schema) error) (*output, error) {
 	r, err := tableio.Open(path, ropts)
 	if err != nil {
 		return nil, err
@@ -44,13 +44,13 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 			return fail(err)
 		}
 	}
-	schema, kept, _, err := m.OutputSchema(name, o.full, apply)
+	schema, kept, _, err := m.OutputSchema(name, o.full, use)
 	if err != nil {
 		return fail(err)
 	}
 	format := outputFormat(out, wopts)
 	nested := keptNested(nestedOf(r), keep)
-	if err := checkNestedOutput(name, nested, o.full.Names(), format, apply); err != nil {
+	if err := checkNestedOutput(name, nested, o.full.Names(), format, use); err != nil {
 		return fail(err)
 	}
 	if _, isParquet := r.(*pqio.Reader); isParquet && format == tableio.Parquet && len(kept)+len(nested) > 0 {
@@ -60,7 +60,7 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 		copied := make([]bool, len(schema.Fields))
 		any := false
 		read := map[string]bool{}
-		for _, c := range m.EncodeReads(apply) {
+		for _, c := range m.EncodeReads(use) {
 			read[c] = true
 		}
 		for i, k := range kept {

@@ -101,13 +101,13 @@ func runJob(t *testing.T, header []string, rows [][]string, columns []string, me
 		}
 		return m
 	}
-	encode := func(m *pipeline.Model, in, out string, apply bool) csvTable {
+	encode := func(m *pipeline.Model, in, out string, use pipeline.Use) csvTable {
 		r, err := tableio.Open(in, tableio.ReadOptions{})
 		if err != nil {
 			t.Fatal(err)
 		}
 		defer r.Close()
-		schema, _, _, err := m.OutputSchema(in, r.Schema(), apply)
+		schema, _, _, err := m.OutputSchema(in, r.Schema(), use)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -115,7 +115,7 @@ func runJob(t *testing.T, header []string, rows [][]string, columns []string, me
 		if err != nil {
 			t.Fatal(err)
 		}
-		if _, err := m.Encode(r, w, pipeline.EncodeOptions{File: in, Apply: apply}); err != nil {
+		if _, err := m.Encode(r, w, pipeline.EncodeOptions{File: in, Use: use}); err != nil {
 			w.Abort()
 			t.Fatal(err)
 		}
@@ -138,17 +138,17 @@ func runJob(t *testing.T, header []string, rows [][]string, columns []string, me
 	in := write("train.csv", rows)
 	m := fit(in)
 	j := job{header: header, rows: rows}
-	j.train = encode(m, in, filepath.Join(dir, "train_out.csv"), false)
-	j.apply = encode(save(m, "tables"), in, filepath.Join(dir, "apply_out.csv"), true)
+	j.train = encode(m, in, filepath.Join(dir, "train_out.csv"), pipeline.Training)
+	j.apply = encode(save(m, "tables"), in, filepath.Join(dir, "apply_out.csv"), pipeline.NewRows)
 	half := len(rows) / 2
 	a := save(fit(write("a.csv", rows[:half])), "ta")
 	b := save(fit(write("b.csv", rows[half:])), "tb")
-	j.half = encode(a, in, filepath.Join(dir, "half_out.csv"), true)
+	j.half = encode(a, in, filepath.Join(dir, "half_out.csv"), pipeline.NewRows)
 	merged, err := pipeline.Merge([]*pipeline.Model{a, b}, []string{"ta", "tb"}, 0)
 	if err != nil {
 		t.Fatal(err)
 	}
-	j.merged = encode(save(merged, "tm"), in, filepath.Join(dir, "merged_out.csv"), true)
+	j.merged = encode(save(merged, "tm"), in, filepath.Join(dir, "merged_out.csv"), pipeline.NewRows)
 	return j
 }
 

@@ -129,7 +129,7 @@ func TestOneHotParquetIsCompact(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer r.Close()
-	schema, _, _, err := m.OutputSchema(in, r.Schema(), true)
+	schema, _, _, err := m.OutputSchema(in, r.Schema(), pipeline.NewRows)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -141,7 +141,7 @@ func TestOneHotParquetIsCompact(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, err := m.Encode(r, w, pipeline.EncodeOptions{File: in, Apply: true}); err != nil {
+	if _, err := m.Encode(r, w, pipeline.EncodeOptions{File: in, Use: pipeline.NewRows}); err != nil {
 		t.Fatal(err)
 	}
 	if err := w.Commit(); err != nil {

@@ -9,12 +9,8 @@ import (
 
 // EncodeOptions configures the second pass.
 type EncodeOptions struct {
-	File string
-	// Apply encodes every row as a new row: with the values fitted on all
-	// training rows, unseen levels getting the prior, the other code, 0 and
-	// their bucket. Without it the spec's scheme gives training rows their
-	// out-of-fold values.
-	Apply    bool
+	File     string
+	Use      Use // Training (the default) or NewRows
 	Progress func(rows int64)
 	Threads  int // columns processed at once; below 2 means one at a time
 	// Input, when not nil, is the input's full schema, of which r yields
@@ -23,6 +19,18 @@ type EncodeOptions struct {
 	// them from the input itself.
 	Input *table.Schema
 }
+
+// Use says which rows a pass encodes.
+type Use uint8
+
+// The uses. Training encodes the table the model was fitted on, each row
+// by the spec's scheme (k-fold: from the other folds). NewRows encodes
+// every row as a new row (apply): with the values fitted on all training
+// rows, an unseen level getting the prior, the other code, 0, its bucket.
+const (
+	Training Use = iota
+	NewRows
+)
 
 // Summary describes an encoding pass.
 type Summary struct {
@@ -41,7 +49,7 @@ type outCol struct {
 
 // OutputSchema returns the schema of the encoded table: the kept input
 // columns in their order, then the encoded columns, then the fold column.
-func (m *Model) OutputSchema(file string, in *table.Schema, apply bool) (*table.Schema, []int, []outCol, error) {
+func (m *Model) OutputSchema(file string, in *table.Schema, use Use) (*table.Schema, []int, []outCol, error) {
 	var kept []int
 	switch {
 	case m.Spec.KeepAll:
@@ -71,7 +79,7 @@ func (m *Model) OutputSchema(file string, in *table.Schema, apply bool) (*table.
 			outs = append(outs, oc)
 		}
 	}
-	if !apply && m.Spec.FoldColumn != "" {
+	if use == Training && m.Spec.FoldColumn != "" {
 		outs = append(outs, outCol{fields: []table.Field{{Name: m.Spec.FoldColumn, Kind: table.Int64}}, col: -1})
 	}
 	seen := map[string]bool{}
@@ -92,185 +100,215 @@ func (m *Model) OutputSchema(file string, in *table.Schema, apply bool) (*table.
 
 // Encode reads every batch of r (the second pass) and writes the kept
 // columns and the encoded columns to w. r must hold the table the model was
-// fitted on (training pass) or a table with the same columns (Apply). It
-// closes neither r nor w.
+// fitted on (Training) or a table with the same columns (NewRows). It
+// closes neither r nor w. Its stages: newEncodePass finds the columns and
+// readies each encoding's encoder, then batch encodes and writes one batch
+// at a time.
 func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summary, error) {
-	schema := r.Schema()
-	sum := Summary{Unseen: make([]int64, len(m.Cols))}
+	e, err := m.newEncodePass(r.Schema(), opt)
+	if err != nil {
+		return Summary{Unseen: make([]int64, len(m.Cols))}, err
+	}
+	e.w = w
+	if err := table.ForEach(r, e.batch); err != nil {
+		return e.sum, err
+	}
+	if e.tr != nil {
+		e.sum.Missing = e.tr.missing
+	}
+	if e.training && e.sum.Rows != m.Rows {
+		return e.sum, fmt.Errorf("%s: the second pass read %d rows, the first %d; the file changed while it was read", opt.File, e.sum.Rows, m.Rows)
+	}
+	return e.sum, nil
+}
+
+// encodePass is the state of an encoding pass.
+type encodePass struct {
+	m        *Model
+	opt      EncodeOptions
+	w        table.Writer
+	training bool
+	sum      Summary
+	keptAt   []int // per kept column, its position in the batches, or -1
+	idx      []int // per encoded column, its position in the batches, or -1 (replayed)
+	tr       *targetReader
+	fa       *foldAssigner
+	slots    []levelSlots // per encoded column
+	pslots   []levelSlots // per encoded column: its parent levels
+	rows     []method.Rows
+	encoders [][]method.Encoder
+	// first[ci] lists the column's encodings in the order they run: those
+	// that read the target first, as they may read each row's level rows
+	// on the way and leave them for the others (method.Rows.LevelRows).
+	first  [][]int
+	at     [][]int // position of each encoding's first output in the batch
+	foldAt int     // position of the fold column, or -1
+	out    *table.Batch
+}
+
+// newEncodePass finds the columns the pass reads and writes in schema and
+// readies each encoding's encoder.
+func (m *Model) newEncodePass(schema *table.Schema, opt EncodeOptions) (*encodePass, error) {
 	full := schema
 	if opt.Input != nil {
 		full = opt.Input
 	}
-	_, kept, outs, err := m.OutputSchema(opt.File, full, opt.Apply)
+	_, kept, outs, err := m.OutputSchema(opt.File, full, opt.Use)
 	if err != nil {
-		return sum, err
-	}
-	// kept[i] indexes the full schema; keptAt[i] the batches, or -1 for
-	// a column the batches do not hold.
-	keptAt := make([]int, len(kept))
-	for i, k := range kept {
-		keptAt[i] = schema.Index(full.Fields[k].Name)
+		return nil, err
 	}
 	sp := &m.Spec
-	training := !opt.Apply
+	e := &encodePass{m: m, opt: opt, training: opt.Use == Training, foldAt: -1}
+	e.sum.Unseen = make([]int64, len(m.Cols))
+	// kept[i] indexes the full schema; keptAt[i] the batches, or -1 for
+	// a column the batches do not hold.
+	e.keptAt = make([]int, len(kept))
+	for i, k := range kept {
+		e.keptAt[i] = schema.Index(full.Fields[k].Name)
+	}
 	pass := method.Apply
-	if training {
+	if e.training {
 		pass = sp.Scheme
 	}
-	idx := make([]int, len(m.Cols))
+	e.idx = make([]int, len(m.Cols))
 	for i, c := range m.Cols {
-		idx[i] = schema.Index(c.Name)
-		if idx[i] < 0 && !(training && m.replays(i)) {
-			return sum, &ColumnError{File: opt.File, Flag: "the mapping tables", Name: c.Name, Have: schema.Names()}
+		e.idx[i] = schema.Index(c.Name)
+		if e.idx[i] < 0 && !(e.training && m.replays(i)) {
+			return nil, &ColumnError{File: opt.File, Flag: "the mapping tables", Name: c.Name, Have: schema.Names()}
 		}
 	}
-	var tr *targetReader
-	var fa *foldAssigner
-	if training {
+	if e.training {
 		if sp.Target != "" && (sp.supervised() || sp.FoldBy.Needs().Class) {
 			tcol := schema.Index(sp.Target)
-			tr = newTargetReader(opt.File, sp.Target, tcol, schema.Fields[tcol].Kind, m.Task.String(), m.Classes)
+			e.tr = newTargetReader(opt.File, sp.Target, tcol, schema.Fields[tcol].Kind, m.Task.String(), m.Classes)
 		}
 		gcol := -1
 		if g := sp.groupColumn(); g != "" {
 			gcol = schema.Index(g)
 		}
-		fa = newFoldAssigner(sp, gcol, m.Rows)
+		e.fa = newFoldAssigner(sp, gcol, m.Rows)
 	}
-	slots := make([]levelSlots, len(m.Cols))
-	pslots := make([]levelSlots, len(m.Cols))
-	rows := make([]method.Rows, len(m.Cols))
-	encoders := make([][]method.Encoder, len(m.Cols))
-	// first[ci] lists the column's encodings in the order they run: those
-	// that read the target first, as they may read each row's level rows
-	// on the way and leave them for the others (method.Rows.LevelRows).
-	first := make([][]int, len(m.Cols))
-	at := make([][]int, len(m.Cols)) // position of each encoding's first output
+	n := len(m.Cols)
+	e.slots, e.pslots, e.rows = make([]levelSlots, n), make([]levelSlots, n), make([]method.Rows, n)
+	e.encoders, e.first, e.at = make([][]method.Encoder, n), make([][]int, n), make([][]int, n)
 	for i, c := range m.Cols {
-		slots[i] = levelSlots{col: idx[i]}
-		if training && m.replays(i) {
-			slots[i].replay = c.replay.start()
+		e.slots[i] = levelSlots{col: e.idx[i]}
+		if e.training && m.replays(i) {
+			e.slots[i].replay = c.replay.start()
 		}
 		if c.Parent != nil {
 			if pc := sp.prior(i).Column; pc != "" {
 				pcol := schema.Index(pc)
 				if pcol < 0 {
-					return sum, &ColumnError{File: opt.File, Flag: "prior=column:" + pc, Name: pc, Have: schema.Names()}
+					return nil, &ColumnError{File: opt.File, Flag: "prior=column:" + pc, Name: pc, Have: schema.Names()}
 				}
-				pslots[i] = levelSlots{col: pcol}
+				e.pslots[i] = levelSlots{col: pcol}
 			} else {
-				pslots[i] = levelSlots{col: idx[i], prefix: sp.prior(i).Prefix}
+				e.pslots[i] = levelSlots{col: e.idx[i], prefix: sp.prior(i).Prefix}
 			}
 		}
-		at[i] = make([]int, len(c.Fits))
+		e.at[i] = make([]int, len(c.Fits))
 		for ei, f := range c.Fits {
-			encoders[i] = append(encoders[i], f.Encoder(pass))
+			e.encoders[i] = append(e.encoders[i], f.Encoder(pass))
 			if sp.EncodingsOf(i)[ei].Needs().Target {
-				first[i] = append(first[i], ei)
+				e.first[i] = append(e.first[i], ei)
 			}
 		}
 		for ei := range c.Fits {
 			if !sp.EncodingsOf(i)[ei].Needs().Target {
-				first[i] = append(first[i], ei)
+				e.first[i] = append(e.first[i], ei)
 			}
 		}
 	}
-	foldAt := -1
 	pos := len(kept)
 	for _, oc := range outs {
 		if oc.col < 0 {
-			foldAt = pos
+			e.foldAt = pos
 		} else {
-			at[oc.col][oc.enc] = pos
+			e.at[oc.col][oc.enc] = pos
 		}
 		pos += len(oc.fields)
 	}
-	batch := &table.Batch{Cols: make([]table.Column, pos)}
-	if err := table.ForEach(r, func(b *table.Batch) error {
-		n := b.Rows
-		var cls []int32
-		var vals []float64
-		var fold []int32
-		if training {
-			if tr != nil {
-				if err := tr.read(b); err != nil {
-					return err
-				}
-				if tr.regress {
-					vals = tr.vals
-				} else {
-					cls = tr.cls
-				}
-			}
-			var labels []string
-			if tr != nil {
-				labels = tr.order
-			}
-			fold, err = fa.assign(b, cls, labels)
-			if err != nil {
+	e.out = &table.Batch{Cols: make([]table.Column, pos)}
+	return e, nil
+}
+
+// batch encodes one batch and writes it.
+func (e *encodePass) batch(b *table.Batch) error {
+	m, n, out := e.m, b.Rows, e.out
+	var cls []int32
+	var vals []float64
+	var fold []int32
+	if e.training {
+		if e.tr != nil {
+			if err := e.tr.read(b); err != nil {
 				return err
 			}
-		}
-		for i, k := range keptAt {
-			if k < 0 {
-				batch.Cols[i] = table.Column{}
-				continue
-			}
-			batch.Cols[i] = b.Cols[k]
-		}
-		for ci := range m.Cols {
-			if slots[ci].col < 0 && !slots[ci].replay.has(n) {
-				return &table.DataError{File: opt.File, Row: b.FirstRow, Err: fmt.Errorf("the second pass read more rows than the first, %d; the file changed while it was read", m.Rows)}
+			if e.tr.regress {
+				vals = e.tr.vals
+			} else {
+				cls = e.tr.cls
 			}
 		}
-		each(len(m.Cols), opt.Threads, func(ci int) {
-			c := m.Cols[ci]
-			rw := &rows[ci]
-			rw.Reset(n)
-			rw.Slots = slots[ci].fill(b, c.St, false)
-			rw.ParentSlots = nil
-			if c.Parent != nil {
-				rw.ParentSlots = pslots[ci].fill(b, c.Parent.St, false)
-			}
-			rw.Fold, rw.Cls, rw.Vals, rw.Values = fold, cls, vals, nil
-			if idx[ci] >= 0 {
-				rw.Values = &b.Cols[idx[ci]]
-			}
-			for _, l := range rw.Slots {
-				if l < 0 || !c.Keep[l] {
-					sum.Unseen[ci]++
-				}
-			}
-			for _, ei := range first[ci] {
-				k := at[ci][ei]
-				encoders[ci][ei].Encode(rw, batch.Cols[k:k+len(c.Fits[ei].Outputs())])
-			}
-		})
-		if foldAt >= 0 {
-			in := ints(&batch.Cols[foldAt], n)
-			for i, f := range fold {
-				in[i] = int64(f)
-			}
+		var labels []string
+		if e.tr != nil {
+			labels = e.tr.order
 		}
-		batch.Rows, batch.FirstRow, batch.Lines = n, b.FirstRow, b.Lines
-		if err := w.Write(batch); err != nil {
+		var err error
+		if fold, err = e.fa.assign(b, cls, labels); err != nil {
 			return err
 		}
-		sum.Rows += int64(n)
-		if opt.Progress != nil {
-			opt.Progress(sum.Rows)
+	}
+	for i, k := range e.keptAt {
+		if k < 0 {
+			out.Cols[i] = table.Column{}
+			continue
 		}
-		return nil
-	}); err != nil {
-		return sum, err
+		out.Cols[i] = b.Cols[k]
 	}
-	if tr != nil {
-		sum.Missing = tr.missing
+	for ci := range m.Cols {
+		if e.slots[ci].col < 0 && !e.slots[ci].replay.has(n) {
+			return &table.DataError{File: e.opt.File, Row: b.FirstRow, Err: fmt.Errorf("the second pass read more rows than the first, %d; the file changed while it was read", m.Rows)}
+		}
 	}
-	if training && sum.Rows != m.Rows {
-		return sum, fmt.Errorf("%s: the second pass read %d rows, the first %d; the file changed while it was read", opt.File, sum.Rows, m.Rows)
+	each(len(m.Cols), e.opt.Threads, func(ci int) {
+		c := m.Cols[ci]
+		rw := &e.rows[ci]
+		rw.Reset(n)
+		rw.Slots = e.slots[ci].fill(b, c.St, false)
+		rw.ParentSlots = nil
+		if c.Parent != nil {
+			rw.ParentSlots = e.pslots[ci].fill(b, c.Parent.St, false)
+		}
+		rw.Fold, rw.Cls, rw.Vals, rw.Values = fold, cls, vals, nil
+		if e.idx[ci] >= 0 {
+			rw.Values = &b.Cols[e.idx[ci]]
+		}
+		for _, l := range rw.Slots {
+			if l < 0 || !c.Keep[l] {
+				e.sum.Unseen[ci]++
+			}
+		}
+		for _, ei := range e.first[ci] {
+			k := e.at[ci][ei]
+			e.encoders[ci][ei].Encode(rw, out.Cols[k:k+len(c.Fits[ei].Outputs())])
+		}
+	})
+	if e.foldAt >= 0 {
+		in := ints(&out.Cols[e.foldAt], n)
+		for i, f := range fold {
+			in[i] = int64(f)
+		}
 	}
-	return sum, nil
+	out.Rows, out.FirstRow, out.Lines = n, b.FirstRow, b.Lines
+	if err := e.w.Write(out); err != nil {
+		return err
+	}
+	e.sum.Rows += int64(n)
+	if e.opt.Progress != nil {
+		e.opt.Progress(e.sum.Rows)
+	}
+	return nil
 }
 
 // replays says whether the training pass takes column i's level slots
@@ -282,15 +320,15 @@ func (m *Model) replays(i int) bool {
 
 // EncodeReads returns the names of the input columns that Encode reads
 // from its batches, besides the kept ones: the encoded columns, the target
-// and the prior and group columns. In the training pass (apply false) an
+// and the prior and group columns. In the training pass (Training) an
 // encoded column whose level slots the fit recorded is left out, unless its
 // values are hashed or cut to a prefix prior: a reader restricted to these
 // columns (Select) does not decode it a second time.
-func (m *Model) EncodeReads(apply bool) []string {
+func (m *Model) EncodeReads(use Use) []string {
 	sp := &m.Spec
 	var names []string
 	for i, c := range m.Cols {
-		if apply || !m.replays(i) || sp.needsValues(i) || sp.prior(i).Prefix > 0 {
+		if use == NewRows || !m.replays(i) || sp.needsValues(i) || sp.prior(i).Prefix > 0 {
 			names = append(names, c.Name)
 		}
 	}

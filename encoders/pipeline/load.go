@@ -26,7 +26,7 @@ import (
 const maxManifestBytes = 64 << 20
 
 // LoadTables reads a tables directory written by SaveTables into a model
-// that encodes new rows (EncodeOptions.Apply) and merges with others.
+// that encodes new rows (NewRows) and merges with others.
 //
 // Nothing in the directory is trusted: the manifest must hold every field
 // SaveTables writes, each within its domain and consistent with the others;

@@ -64,7 +64,7 @@ func loadAndApply(t *testing.T, dir, in string) {
 		return
 	}
 	var out collect
-	if _, err := m.Encode(r, &out, EncodeOptions{File: in, Apply: true}); err != nil {
+	if _, err := m.Encode(r, &out, EncodeOptions{File: in, Use: NewRows}); err != nil {
 		return
 	}
 	if _, err := Merge([]*Model{m, m}, []string{dir, dir}, 0); err != nil {

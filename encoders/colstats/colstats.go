@@ -543,7 +543,7 @@ func (s *Stats) fitMask(o, pos int, sm Smoothing, use []bool, exclude int, keep 
 	var tot Agg
 	var mo smooth.Moments
 	var nm smooth.NestedMoments
-	nested := s.Parents != nil && sm.Kind == "auto"
+	nested := s.Parents != nil && sm.Kind == SmoothEB
 	n := s.n
 	if order != nil {
 		n = len(order)
@@ -570,7 +570,7 @@ func (s *Stats) fitMask(o, pos int, sm Smoothing, use []bool, exclude int, keep 
 		}
 	}
 	m := math.NaN()
-	if sm.Kind == "auto" {
+	if sm.Kind == SmoothEB {
 		if nested {
 			m, _, _ = nm.Estimate()
 		} else {
@@ -580,11 +580,25 @@ func (s *Stats) fitMask(o, pos int, sm Smoothing, use []bool, exclude int, keep 
 	return fitted(tot, m, sm, s.Origin)
 }
 
+// SmoothKind names a way of pulling a level's mean towards its prior.
+type SmoothKind uint8
+
+// The smoothings: the m-estimate with m estimated by empirical Bayes, the
+// m-estimate with a given m, the sigmoid blend.
+const (
+	SmoothEB SmoothKind = iota
+	SmoothM
+	SmoothBlend
+)
+
+// String returns eb, m or blend.
+func (k SmoothKind) String() string { return [...]string{"eb", "m", "blend"}[k] }
+
 // Smoothing names how a level's mean is pulled towards its prior.
 type Smoothing struct {
-	Kind string  // "auto", "m" or "blend"
-	M    float64 // m-estimate weight (Kind "m")
-	K, F float64 // blend midpoint and steepness (Kind "blend")
+	Kind SmoothKind
+	M    float64 // m-estimate weight (SmoothM)
+	K, F float64 // blend midpoint and steepness (SmoothBlend)
 	// Interior keeps a class rate strictly inside (0, 1), for a log-odds
 	// output: in the blend (whose weight rounds to 1 for large n) and in
 	// an m-estimate with m = 0, a level's own rate enters as
@@ -600,7 +614,7 @@ type Smoothing struct {
 // the smoothing weight that encode a level's statistic.
 type Fitted struct {
 	Prior float64
-	M     float64 // the m in use: given, or estimated (auto); NaN for blend
+	M     float64 // the m in use: given, or estimated (SmoothEB); NaN for a blend
 	Sm    Smoothing
 	// Origin is the Stats' Origin: the statistics Encode takes are sums
 	// about it, while Prior and the encoded values are the target's own.
@@ -608,9 +622,10 @@ type Fitted struct {
 }
 
 // Encode returns the smoothed mean of a level with statistic a: the
-// m-estimate (s + m*p)/(n + m) (Cestnik 1990) for "m" and "auto", the
-// sigmoid blend lambda*s/n + (1-lambda)*p (Micci-Barreca 2001) for "blend".
-// A level with no rows gets the prior. With an infinite m (auto found no
+// m-estimate (s + m*p)/(n + m) (Cestnik 1990) for SmoothM and SmoothEB, the
+// sigmoid blend lambda*s/n + (1-lambda)*p (Micci-Barreca 2001) for
+// SmoothBlend.
+// A level with no rows gets the prior. With an infinite m (empirical Bayes found no
 // between-level variance) every level gets the prior.
 //
 // With an Origin o (regression), a holds sums about o, and the value is
@@ -621,19 +636,19 @@ func (ft *Fitted) Encode(a Agg) float64 {
 	if a.N == 0 {
 		return ft.Prior
 	}
-	if ft.Sm.Kind != "blend" && math.IsInf(ft.M, 1) {
+	if ft.Sm.Kind != SmoothBlend && math.IsInf(ft.M, 1) {
 		return ft.Prior
 	}
 	if ft.Sm.Interior {
 		return ft.interior(a)
 	}
 	if o := ft.Origin; o != 0 {
-		if ft.Sm.Kind == "blend" {
+		if ft.Sm.Kind == SmoothBlend {
 			return o + smooth.Blend(a.Sum, a.N, ft.Sm.K, ft.Sm.F, ft.Prior-o)
 		}
 		return o + smooth.MEstimate(a.Sum, a.N, ft.M, ft.Prior-o)
 	}
-	if ft.Sm.Kind == "blend" {
+	if ft.Sm.Kind == SmoothBlend {
 		return smooth.Blend(a.Sum, a.N, ft.Sm.K, ft.Sm.F, ft.Prior)
 	}
 	return smooth.MEstimate(a.Sum, a.N, ft.M, ft.Prior)
@@ -648,7 +663,7 @@ func (ft *Fitted) Encode(a Agg) float64 {
 // fitting rows); a log-odds output still clips the prior's own edge cases.
 func (ft *Fitted) interior(a Agg) float64 {
 	r := (a.Sum + 0.5) / (a.N + 1)
-	if ft.Sm.Kind == "blend" {
+	if ft.Sm.Kind == SmoothBlend {
 		lambda := smooth.BlendWeight(a.N, ft.Sm.K, ft.Sm.F)
 		return lambda*r + (1-lambda)*ft.Prior
 	}
@@ -661,12 +676,12 @@ func (ft *Fitted) interior(a Agg) float64 {
 // FitFolds returns the fits of every output o that derive-style callers
 // need: full[o] is Fit(o, -1, pos, sm, keep, order) and byFold[e][o] is
 // Fit(o, e, pos, sm, keep, nil) for every fold e (byFold is nil with one
-// fold). For classification with "m" or "blend" smoothing a fit depends
+// fold). For classification with SmoothM or SmoothBlend a fit depends
 // only on the per-fold totals of the counts, which are integers and sum
 // exactly in any order: FitFolds then takes one sequential pass over the
 // count cells (CellTotals, O(levels*Folds*Classes), no random access)
 // instead of Outputs*(Folds+1) passes over the levels, with bit-identical
-// results. "auto" and regression sum float moments in a fixed order and
+// results. SmoothEB and regression sum float moments in a fixed order and
 // take the Fit path.
 func (s *Stats) FitFolds(pos int, sm Smoothing, keep []bool, order []uint32) (full []Fitted, byFold [][]Fitted) {
 	k, outs := s.Folds, s.Outputs()
@@ -677,7 +692,7 @@ func (s *Stats) FitFolds(pos int, sm Smoothing, keep []bool, order []uint32) (fu
 			byFold[e] = make([]Fitted, outs)
 		}
 	}
-	if s.Task == Regression || sm.Kind == "auto" {
+	if s.Task == Regression || sm.Kind == SmoothEB {
 		for o := 0; o < outs; o++ {
 			full[o] = s.Fit(o, -1, pos, sm, keep, order)
 		}
@@ -725,7 +740,7 @@ func (s *Stats) CellTotals() []uint64 {
 }
 
 // Fit computes the prior (the mean target of the fitting rows) and, for
-// auto smoothing, the empirical-Bayes m over the levels, for output o over
+// SmoothEB, the empirical-Bayes m over the levels, for output o over
 // all folds but exclude. keep reports which level slots count as seen
 // (nil: all); levels left out still count towards the prior. order gives
 // the slots in the order their statistics are summed (nil: slot order); a
@@ -736,7 +751,7 @@ func (s *Stats) Fit(o, exclude, pos int, sm Smoothing, keep []bool, order []uint
 }
 
 // fitted returns the fit of the fitting rows' total tot, taken about
-// origin, with the empirical-Bayes m estimated (used by "auto").
+// origin, with the empirical-Bayes m estimated (used by SmoothEB).
 func fitted(tot Agg, estimated float64, sm Smoothing, origin float64) Fitted {
 	ft := Fitted{Sm: sm, M: math.NaN(), Origin: origin}
 	if tot.N > 0 {
@@ -748,9 +763,9 @@ func fitted(tot Agg, estimated float64, sm Smoothing, origin float64) Fitted {
 		ft.Prior = math.NaN()
 	}
 	switch sm.Kind {
-	case "m":
+	case SmoothM:
 		ft.M = sm.M
-	case "auto":
+	case SmoothEB:
 		ft.M = estimated
 	}
 	return ft

@@ -79,7 +79,7 @@ func TestOutOfFoldWorkedExample(t *testing.T) {
 	for _, r := range rows {
 		s.AddClass(s.Level([]byte(r.lv)), r.f, r.y)
 	}
-	sm := Smoothing{Kind: "m", M: 1}
+	sm := Smoothing{Kind: SmoothM, M: 1}
 	want := map[int]map[string]float64{0: {"A": 5.0 / 6, "B": 1.0 / 6}, 1: {"A": 0.5, "B": 0.5}}
 	for f, lv := range want {
 		ft := s.Fit(0, f, 1, sm, nil, nil)
@@ -129,16 +129,16 @@ func TestAddClassesAndPermute(t *testing.T) {
 }
 
 func TestEncodeEdgeCases(t *testing.T) {
-	ft := Fitted{Prior: 0.3, M: math.Inf(1), Sm: Smoothing{Kind: "auto"}}
+	ft := Fitted{Prior: 0.3, M: math.Inf(1), Sm: Smoothing{Kind: SmoothEB}}
 	if v := ft.Encode(Agg{N: 10, Sum: 10}); v != 0.3 {
 		t.Errorf("infinite m gave %v, want the prior", v)
 	}
-	ft = Fitted{Prior: 0.3, M: 2, Sm: Smoothing{Kind: "m", M: 2}}
+	ft = Fitted{Prior: 0.3, M: 2, Sm: Smoothing{Kind: SmoothM, M: 2}}
 	if v := ft.Encode(Agg{}); v != 0.3 {
 		t.Errorf("empty level gave %v, want the prior", v)
 	}
 	// Cestnik 1990 m-estimate, computed: s=3, n=4, m=2, p=0.5 -> 2/3.
-	ft = Fitted{Prior: 0.5, M: 2, Sm: Smoothing{Kind: "m", M: 2}}
+	ft = Fitted{Prior: 0.5, M: 2, Sm: Smoothing{Kind: SmoothM, M: 2}}
 	if v := ft.Encode(Agg{N: 4, Sum: 3}); math.Abs(v-2.0/3) > 1e-15 {
 		t.Errorf("m-estimate = %v, want 2/3", v)
 	}
@@ -171,7 +171,7 @@ func TestTargetMask(t *testing.T) {
 					t.Errorf("%s: TargetMask(%d, use %v) = %+v, want Target(exclude %d) = %+v", task, l, use, got, ex, want)
 				}
 			}
-			for _, sm := range []Smoothing{{Kind: "auto"}, {Kind: "m", M: 1}} {
+			for _, sm := range []Smoothing{{Kind: SmoothEB}, {Kind: SmoothM, M: 1}} {
 				got, want := s.FitMask(0, 1, sm, use, nil, nil), s.Fit(0, ex, 1, sm, nil, nil)
 				if !(got.Prior == want.Prior && (got.M == want.M || math.IsNaN(got.M) && math.IsNaN(want.M) || math.IsInf(got.M, 1) && math.IsInf(want.M, 1))) {
 					t.Errorf("%s %s: FitMask(use %v) = %+v, want %+v", task, sm.Kind, use, got, want)
@@ -299,7 +299,7 @@ func testSorted(t *testing.T, n int, gen func(i int) []byte) {
 func TestFitFoldsMatchesFit(t *testing.T) {
 	rng := rand.New(rand.NewPCG(3, 5))
 	for _, task := range []Task{Binary, Multiclass, Regression} {
-		for _, sm := range []Smoothing{{Kind: "m", M: 20}, {Kind: "blend", K: 5, F: 2}, {Kind: "auto"}} {
+		for _, sm := range []Smoothing{{Kind: SmoothM, M: 20}, {Kind: SmoothBlend, K: 5, F: 2}, {Kind: SmoothEB}} {
 			const k = 4
 			classes := 2
 			if task == Multiclass {

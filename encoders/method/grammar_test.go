@@ -16,12 +16,12 @@ func TestParseSmoothing(t *testing.T) {
 		want colstats.Smoothing
 		ok   bool
 	}{
-		{"eb", colstats.Smoothing{Kind: smoothEB}, true},
-		{"m=20", colstats.Smoothing{Kind: "m", M: 20}, true},
-		{"m=0.5", colstats.Smoothing{Kind: "m", M: 0.5}, true},
-		{"m=0", colstats.Smoothing{Kind: "m", M: 0}, true},
-		{"blend=20,10", colstats.Smoothing{Kind: "blend", K: 20, F: 10}, true},
-		{"blend=-3,0", colstats.Smoothing{Kind: "blend", K: -3, F: 0}, true},
+		{"eb", colstats.Smoothing{Kind: colstats.SmoothEB}, true},
+		{"m=20", colstats.Smoothing{Kind: colstats.SmoothM, M: 20}, true},
+		{"m=0.5", colstats.Smoothing{Kind: colstats.SmoothM, M: 0.5}, true},
+		{"m=0", colstats.Smoothing{Kind: colstats.SmoothM, M: 0}, true},
+		{"blend=20,10", colstats.Smoothing{Kind: colstats.SmoothBlend, K: 20, F: 10}, true},
+		{"blend=-3,0", colstats.Smoothing{Kind: colstats.SmoothBlend, K: -3, F: 0}, true},
 		{"auto", colstats.Smoothing{}, false},
 		{"m=-1", colstats.Smoothing{}, false},
 		{"m=x", colstats.Smoothing{}, false},

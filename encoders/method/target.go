@@ -38,7 +38,7 @@ func (targetMethod) Summary() string {
 func (targetMethod) Name() string { return "target" }
 
 func (m targetMethod) Parse(args []string) (Encoding, error) {
-	e := &targetEnc{sm: colstats.Smoothing{Kind: smoothEB}}
+	e := &targetEnc{sm: colstats.Smoothing{Kind: colstats.SmoothEB}}
 	smSet := false
 	for i := 0; i < len(args); i++ {
 		a := args[i]
@@ -83,20 +83,17 @@ func (m targetMethod) Parse(args []string) (Encoding, error) {
 	return e, nil
 }
 
-// smoothEB is colstats' name of the empirical-Bayes m.
-const smoothEB = "auto"
-
 // ParseSmoothing parses eb, m=NUM or blend=K,F.
 func ParseSmoothing(s string) (colstats.Smoothing, error) {
 	switch {
 	case s == "eb":
-		return colstats.Smoothing{Kind: smoothEB}, nil
+		return colstats.Smoothing{Kind: colstats.SmoothEB}, nil
 	case strings.HasPrefix(s, "m="):
 		m, err := strconv.ParseFloat(s[2:], 64)
 		if err != nil || !(m >= 0) || math.IsInf(m, 1) {
 			return colstats.Smoothing{}, fmt.Errorf("%s: m must be a finite number >= 0", s)
 		}
-		return colstats.Smoothing{Kind: "m", M: m}, nil
+		return colstats.Smoothing{Kind: colstats.SmoothM, M: m}, nil
 	case strings.HasPrefix(s, "blend="):
 		ks, fs, ok := strings.Cut(s[6:], ",")
 		k, err1 := strconv.ParseFloat(ks, 64)
@@ -104,7 +101,7 @@ func ParseSmoothing(s string) (colstats.Smoothing, error) {
 		if !ok || err1 != nil || err2 != nil || math.IsNaN(k) || math.IsInf(k, 0) || !(f >= 0) || math.IsInf(f, 1) {
 			return colstats.Smoothing{}, fmt.Errorf("%s: want blend=K,F with finite K and F >= 0", s)
 		}
-		return colstats.Smoothing{Kind: "blend", K: k, F: f}, nil
+		return colstats.Smoothing{Kind: colstats.SmoothBlend, K: k, F: f}, nil
 	}
 	return colstats.Smoothing{}, fmt.Errorf("smoothing %q: want eb, m=NUM or blend=K,F", s)
 }
@@ -112,9 +109,9 @@ func ParseSmoothing(s string) (colstats.Smoothing, error) {
 // smoothingString is the grammar's text of a smoothing.
 func smoothingString(s colstats.Smoothing) string {
 	switch s.Kind {
-	case "m":
+	case colstats.SmoothM:
 		return "m=" + formatFloat(s.M)
-	case "blend":
+	case colstats.SmoothBlend:
 		return "blend=" + formatFloat(s.K) + "," + formatFloat(s.F)
 	}
 	return "eb"
@@ -197,7 +194,7 @@ func (e *targetEnc) fit(c *Column) *targetFit {
 	// depend on their order (empirical-Bayes moments, regression sums);
 	// otherwise it is sorted when the mapping tables are written.
 	var order []uint32
-	if c.St.Task == colstats.Regression || e.sm.Kind == smoothEB {
+	if c.St.Task == colstats.Regression || e.sm.Kind == colstats.SmoothEB {
 		order = c.Order()
 	}
 	full, byFold := c.St.FitFolds(c.Pos, e.sm, c.Keep, order)
@@ -610,9 +607,9 @@ func (e *targetEnc) load(c *Column, prior, ms []*float64, outs int, rate bool, p
 			return nil, fmt.Errorf("%s[%d] is %g, not a rate", priorName, o, *p)
 		case m != nil && !(*m >= 0):
 			return nil, fmt.Errorf("%s[%d] is %g; want a number >= 0 or null (infinite)", mName, o, *m)
-		case e.sm.Kind == "m" && (m == nil || *m != e.sm.M):
+		case e.sm.Kind == colstats.SmoothM && (m == nil || *m != e.sm.M):
 			return nil, fmt.Errorf("%s[%d] is %s, but the smoothing is m=%g", mName, o, optText(m), e.sm.M)
-		case e.sm.Kind == "blend" && m != nil:
+		case e.sm.Kind == colstats.SmoothBlend && m != nil:
 			return nil, fmt.Errorf("%s[%d] is %g, but the smoothing is a blend, which has no m", mName, o, *m)
 		}
 		mv := math.Inf(1)

@@ -848,7 +848,7 @@ func (ev *evaluator) shrinkage(cs *colState) []ShrinkPoint {
 	for i := range all {
 		all[i] = true
 	}
-	ft := cs.st.FitMask(0, ev.pos, colstats.Smoothing{Kind: "auto"}, all, nil, cs.order) // target:eb
+	ft := cs.st.FitMask(0, ev.pos, colstats.Smoothing{Kind: colstats.SmoothEB}, all, nil, cs.order)
 	const points = 400
 	step := max(1, len(cs.order)/points)
 	var out []ShrinkPoint

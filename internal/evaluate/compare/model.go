@@ -70,7 +70,16 @@ func (ev *evaluator) designs(cs *colState, cand Candidate, f int) (dtr, dte *lin
 		var ind [][]int32     // per coded output, per row: the indicator column, -1 none
 		nind := 0
 		for _, e := range cand.Encodings {
-			fit := e.Fit(cs.view(ev, f, e.Needs().Prior))
+			view := cs.view(ev, f, e.Needs().Prior)
+			fit := e.Fit(view)
+			// A prefix prior's parent level of each row.
+			r.ParentSlots = nil
+			if view.ParentOf != nil {
+				r.ParentSlots = make([]int32, r.N)
+				for i, l := range r.Slots {
+					r.ParentSlots[i] = view.ParentOf[l]
+				}
+			}
 			outs := fit.Outputs()
 			dst := make([]table.Column, len(outs))
 			fit.Encoder(set.pass).Encode(r, dst)

@@ -311,7 +311,7 @@ func (r *Reader) start(opts Options) error {
 	}
 	for {
 		r.hdr.reset()
-		st, err := r.parse(true, 0)
+		st, err := r.parse(headerRecord, 0)
 		if st == stMore {
 			if err := r.more(); err != nil {
 				return err
@@ -463,7 +463,7 @@ func (r *Reader) infer(n int, overridden []bool) {
 		if rows+2 > r.rowCap {
 			r.growRows(rows)
 		}
-		st, _ := r.parse(false, rows)
+		st, _ := r.parse(dataRecord, rows)
 		if st == stRow {
 			rows++
 			r.pos, r.line = r.next, r.nextLine
@@ -568,7 +568,7 @@ func (r *Reader) Next() (*table.Batch, error) {
 		if rows+2 > r.rowCap {
 			r.growRows(rows)
 		}
-		st, err := r.parse(false, rows)
+		st, err := r.parse(dataRecord, rows)
 		if st == stRow {
 			r.lines = append(r.lines, r.recLine)
 			r.batchBytes += r.next - r.pos
@@ -739,7 +739,7 @@ func (r *Reader) rollback(rows int) {
 func (r *Reader) more() error {
 	if r.end-r.pos > r.maxRecord {
 		if r.openQuote >= 0 {
-			return r.dataErr(false, r.openField, r.pos, r.line, r.openQuote,
+			return r.dataErr(dataRecord, r.openField, r.pos, r.line, r.openQuote,
 				"quote opened here is not closed within "+sizeText(r.maxRecord), false)
 		}
 		return &table.DataError{File: r.name, Line: r.line,
@@ -835,17 +835,31 @@ func lineEnd(buf []byte, p int) int {
 	return len(buf)
 }
 
+// record says which record parse reads, which decides where its fields go
+// and how its errors read.
+type record uint8
+
+const (
+	// dataRecord is a row of the table: the selected fields are appended
+	// to the batch's columns, and the record must have the header's field
+	// count.
+	dataRecord record = iota
+	// headerRecord is the first record: every field goes to r.hdr, and an
+	// error names the header field (or, without a header, colN).
+	headerRecord
+)
+
 // parse parses the record at r.pos, first consuming blank lines (in a
 // one-column table a blank line is a record). On stRow the record's values
-// have been appended to the selected columns (in header mode, every field
-// to r.hdr) and r.next, r.nextLine and r.recLine are set; the caller
+// have been appended to the selected columns (for the header record, every
+// field to r.hdr) and r.next, r.nextLine and r.recLine are set; the caller
 // commits them. On stMore or stErr the caller rolls back the columns.
-func (r *Reader) parse(hdr bool, row int) (status, error) {
+func (r *Reader) parse(rec record, row int) (status, error) {
 	buf := r.buf[:r.end]
 	d := r.delim
 	p := r.pos
 	r.openQuote = -1
-	if hdr || r.ncols != 1 {
+	if rec == headerRecord || r.ncols != 1 {
 		for p < len(buf) {
 			c := buf[p]
 			if c == '\n' {
@@ -888,7 +902,7 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 	fi := 0
 	for {
 		var c *colBuf
-		if hdr {
+		if rec == headerRecord {
 			c = &r.hdr
 			if row = fi; fi+2 > len(c.offs) {
 				c.grow(fi)
@@ -906,12 +920,12 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 				fe = p + j
 			}
 			if r.nul < fe || fe-p > r.maxField {
-				if err := r.fieldErr(hdr, fi, rs, line, p, fe, j < 0); err != nil {
+				if err := r.fieldErr(rec, fi, rs, line, p, fe, j < 0); err != nil {
 					return stErr, err
 				}
 			}
 			if qp < fe {
-				return stErr, r.dataErr(hdr, fi, rs, line, qp,
+				return stErr, r.dataErr(rec, fi, rs, line, qp,
 					"\" inside an unquoted field (quote the whole field and double the \")", true)
 			}
 			if c != nil {
@@ -939,7 +953,7 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 				if le < len(buf) {
 					next++
 				}
-				return r.endRecord(hdr, fi, line, extra, next)
+				return r.endRecord(rec, fi, line, extra, next)
 			}
 			p = fe + 1
 			fi++
@@ -952,7 +966,7 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 			i := bytes.IndexByte(buf[s:], '"')
 			if i < 0 {
 				if r.nul < len(buf) || len(buf)-q > r.maxField {
-					if err := r.fieldErr(hdr, fi, rs, line, q, len(buf), false); err != nil {
+					if err := r.fieldErr(rec, fi, rs, line, q, len(buf), false); err != nil {
 						return stErr, err
 					}
 				}
@@ -960,11 +974,11 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 					r.openQuote, r.openField = q, fi
 					return stMore, nil
 				}
-				return stErr, r.dataErr(hdr, fi, rs, line, q, "quote opened here is never closed", false)
+				return stErr, r.dataErr(rec, fi, rs, line, q, "quote opened here is never closed", false)
 			}
 			e := s + i
 			if r.nul < e || e+1-q > r.maxField {
-				if err := r.fieldErr(hdr, fi, rs, line, q, e+1, false); err != nil {
+				if err := r.fieldErr(rec, fi, rs, line, q, e+1, false); err != nil {
 					return stErr, err
 				}
 			}
@@ -983,7 +997,7 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 				if c != nil {
 					c.put(row, false)
 				}
-				return r.endRecord(hdr, fi, line, extra, n)
+				return r.endRecord(rec, fi, line, extra, n)
 			}
 			b := buf[n]
 			if b == '"' {
@@ -1001,14 +1015,14 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 				if c != nil {
 					c.put(row, false)
 				}
-				return r.endRecord(hdr, fi, line, extra, n+1)
+				return r.endRecord(rec, fi, line, extra, n+1)
 			}
 			if b == '\r' {
 				if n+1 < len(buf) && buf[n+1] == '\n' {
 					if c != nil {
 						c.put(row, false)
 					}
-					return r.endRecord(hdr, fi, line, extra, n+2)
+					return r.endRecord(rec, fi, line, extra, n+2)
 				}
 				if n+1 == len(buf) {
 					if !r.eof {
@@ -1018,14 +1032,14 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 					if c != nil {
 						c.put(row, false)
 					}
-					return r.endRecord(hdr, fi, line, extra, n+1)
+					return r.endRecord(rec, fi, line, extra, n+1)
 				}
-				if hdr && !r.noHeader {
+				if rec == headerRecord && !r.noHeader {
 					at := line + int64(bytes.Count(buf[rs:n], nlSep))
 					return stErr, &table.DataError{File: r.name, Line: at, Err: r.bareCRErr(fi)}
 				}
 			}
-			return stErr, r.dataErr(hdr, fi, rs, line, n,
+			return stErr, r.dataErr(rec, fi, rs, line, n,
 				"unexpected "+showByte(b)+" after a closing quote (a quoted field must end at a delimiter or line end)", true)
 		}
 		if c != nil {
@@ -1043,16 +1057,16 @@ func (r *Reader) parse(hdr bool, row int) (status, error) {
 // bytes up to fe (or more) when it holds a NUL byte or is longer than the
 // limit, and nil otherwise. crlf says that a CR ending the field is a line
 // end's and does not count.
-func (r *Reader) fieldErr(hdr bool, fi, rs int, line int64, fs, fe int, crlf bool) error {
+func (r *Reader) fieldErr(rec record, fi, rs int, line int64, fs, fe int, crlf bool) error {
 	if r.nul < fe {
-		return r.dataErr(hdr, fi, rs, line, r.nul, "NUL byte (0x00): the file looks binary, not CSV text", true)
+		return r.dataErr(rec, fi, rs, line, r.nul, "NUL byte (0x00): the file looks binary, not CSV text", true)
 	}
 	n := fe - fs
 	if crlf && n > 0 && r.buf[fe-1] == '\r' {
 		n--
 	}
 	if n > r.maxField {
-		err := r.dataErr(hdr, fi, rs, line, fs,
+		err := r.dataErr(rec, fi, rs, line, fs,
 			"field longer than "+sizeText(r.maxField)+" (the limit; raise it with --max-field-bytes)", true)
 		if de, ok := err.(*table.DataError); ok {
 			de.Err = &limitError{de.Err}
@@ -1082,8 +1096,8 @@ func indexOrLen(b []byte, c byte) int {
 
 // endRecord checks the field count of a record whose last field has index
 // fi and records where the next record starts.
-func (r *Reader) endRecord(hdr bool, fi int, line int64, extra, next int) (status, error) {
-	if nf := fi + 1; !hdr && nf != r.ncols {
+func (r *Reader) endRecord(rec record, fi int, line int64, extra, next int) (status, error) {
+	if nf := fi + 1; rec == dataRecord && nf != r.ncols {
 		what := "header has"
 		if r.noHeader {
 			what = "first row has"
@@ -1100,7 +1114,7 @@ func (r *Reader) endRecord(hdr bool, fi int, line int64, extra, next int) (statu
 
 // dataErr builds the error for bad bytes at position at of the record that
 // starts at rs on line line, in field fi.
-func (r *Reader) dataErr(hdr bool, fi, rs int, line int64, at int, msg string, withByte bool) error {
+func (r *Reader) dataErr(rec record, fi, rs int, line int64, at int, msg string, withByte bool) error {
 	seg := r.buf[rs:at]
 	line += int64(bytes.Count(seg, nlSep))
 	if withByte {
@@ -1109,16 +1123,16 @@ func (r *Reader) dataErr(hdr bool, fi, rs int, line int64, at int, msg string, w
 	}
 	e := &table.DataError{File: r.name, Line: line, Err: errors.New(msg)}
 	switch {
-	case hdr && !r.noHeader:
+	case rec == headerRecord && !r.noHeader:
 		e.Err = fmt.Errorf("header field %d: %s", fi+1, msg)
-	case hdr:
+	case rec == headerRecord:
 		e.Column = "col" + strconv.Itoa(fi+1)
 	case fi >= r.ncols:
 		e.Err = fmt.Errorf("field %d: %s", fi+1, msg)
 	default:
 		e.Column = r.fields[fi].Name
 	}
-	if !hdr {
+	if rec == dataRecord {
 		e.Row = r.rowsDone + int64(len(r.lines)) + 1
 	}
 	return e

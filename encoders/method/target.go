@@ -435,15 +435,13 @@ func (te *targetEncoder) next(l, o int, t target) float64 {
 func (f *targetFit) TableColumns() []table.Field { return f.Outputs() }
 
 func (f *targetFit) FillTable(lv *Levels, dst []table.Column) {
+	if f.parent != nil || f.tmean != nil {
+		f.fillValues(lv, dst)
+		return
+	}
 	c := f.c
 	for o := range f.full {
 		out := floats(&dst[o], len(lv.Slots))
-		if f.parent != nil || f.tmean != nil {
-			for i, l := range lv.Slots {
-				out[i] = f.fullValue(o, l)
-			}
-			continue
-		}
 		ft := &f.full[o]
 		for i := range lv.Slots {
 			if i == 0 && lv.Unkept0 {
@@ -451,6 +449,17 @@ func (f *targetFit) FillTable(lv *Levels, dst []table.Column) {
 				continue
 			}
 			out[i] = ft.Encode(lv.Agg(i, o, c.Pos, c.Task))
+		}
+	}
+}
+
+// fillValues fills each output's column with the full-data value of the
+// levels of lv, one level at a time (fullValue).
+func (f *targetFit) fillValues(lv *Levels, dst []table.Column) {
+	for o := range f.full {
+		out := floats(&dst[o], len(lv.Slots))
+		for i, l := range lv.Slots {
+			out[i] = f.fullValue(o, l)
 		}
 	}
 }
@@ -520,15 +529,7 @@ func (f *targetFit) Finish() error {
 // parent levels' own values, in the parent table.
 func (f *targetFit) ParentTableColumns() []table.Field { return f.Outputs() }
 
-func (f *targetFit) FillParentTable(lv *Levels, dst []table.Column) {
-	p := f.parent
-	for o := range p.full {
-		out := floats(&dst[o], len(lv.Slots))
-		for i, l := range lv.Slots {
-			out[i] = p.fullValue(o, l)
-		}
-	}
-}
+func (f *targetFit) FillParentTable(lv *Levels, dst []table.Column) { f.parent.fillValues(lv, dst) }
 
 func (f *targetFit) LoadParentTable(slots []int32, src []table.Column) error {
 	return f.parent.loadValues(slots, src)

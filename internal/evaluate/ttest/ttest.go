@@ -153,32 +153,24 @@ func betaCF(x, a, b float64) float64 {
 	}
 	d = 1 / d
 	h := d
+	// step takes one term num of the fraction and returns the factor it
+	// multiplies h by.
+	step := func(num float64) float64 {
+		d = 1 + num*d
+		if math.Abs(d) < tiny {
+			d = tiny
+		}
+		c = 1 + num/c
+		if math.Abs(c) < tiny {
+			c = tiny
+		}
+		d = 1 / d
+		return d * c
+	}
 	for m := 1; m <= 300; m++ {
 		fm := float64(m)
-		// Even step.
-		num := fm * (b - fm) * x / ((a + 2*fm - 1) * (a + 2*fm))
-		d = 1 + num*d
-		if math.Abs(d) < tiny {
-			d = tiny
-		}
-		c = 1 + num/c
-		if math.Abs(c) < tiny {
-			c = tiny
-		}
-		d = 1 / d
-		h *= d * c
-		// Odd step.
-		num = -(a + fm) * (a + b + fm) * x / ((a + 2*fm) * (a + 2*fm + 1))
-		d = 1 + num*d
-		if math.Abs(d) < tiny {
-			d = tiny
-		}
-		c = 1 + num/c
-		if math.Abs(c) < tiny {
-			c = tiny
-		}
-		d = 1 / d
-		del := d * c
+		h *= step(fm * (b - fm) * x / ((a + 2*fm - 1) * (a + 2*fm)))              // even term
+		del := step(-(a + fm) * (a + b + fm) * x / ((a + 2*fm) * (a + 2*fm + 1))) // odd term
 		h *= del
 		if math.Abs(del-1) < 1e-15 {
 			break

@@ -12,6 +12,7 @@ import (
 
 	"manyfold/encoders/pipeline"
 	"manyfold/internal/hugemem"
+	"manyfold/internal/param"
 	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
 	"manyfold/io/pqio"
@@ -160,6 +161,12 @@ type renamed struct {
 func (e *renamed) Error() string { return strings.ReplaceAll(e.err.Error(), e.from, e.to) }
 func (e *renamed) Unwrap() error { return e.err }
 
+// Spell returns the message with the parameters spelled by spell, the
+// input renamed.
+func (e *renamed) Spell(spell param.Speller) string {
+	return strings.ReplaceAll(spelled(e.err, spell), e.from, e.to)
+}
+
 // spoolInput prepares an input that is read more than once: standard input
 // ("-") is spooled to a temporary file. It returns the path to read, the
 // name to use in messages, and done, which the command calls with its error
@@ -191,7 +198,7 @@ func selectColumns(file, flag string, s *table.Schema, names []string) ([]int, e
 	for _, n := range names {
 		i := s.Index(n)
 		if i < 0 {
-			return nil, &pipeline.ColumnError{File: file, Flag: flag, Name: n, Have: s.Names()}
+			return nil, &pipeline.ColumnError{File: file, By: flag, Name: n, Have: s.Names()}
 		}
 		idx = append(idx, i)
 	}

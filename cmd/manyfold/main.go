@@ -34,15 +34,19 @@ import (
 	"runtime/metrics"
 	"runtime/pprof"
 	"runtime/trace"
+	"strings"
 	"syscall"
 
 	"github.com/spf13/pflag"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/internal/evaluate/compare"
 	"manyfold/internal/guard"
+	"manyfold/internal/param"
 	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
 	"manyfold/io/table"
+	"manyfold/io/tableio"
 )
 
 // Exit codes, documented in the README and in the package comment.
@@ -160,7 +164,7 @@ func run(args []string) int {
 			if errors.Is(err, pflag.ErrHelp) {
 				return exitOK
 			}
-			fmt.Fprintln(os.Stderr, "manyfold "+c.name+": "+err.Error())
+			fmt.Fprintln(os.Stderr, "manyfold "+c.name+": "+spelled(err, flagOf))
 			var p *guard.Panic
 			if errors.As(err, &p) && os.Getenv("MANYFOLD_DEBUG") != "" {
 				os.Stderr.Write(p.Stack)
@@ -197,6 +201,49 @@ func stopOnSignals() {
 		fmt.Fprintf(os.Stderr, "manyfold: stopped by %v; temporary files removed\n", s)
 		os.Exit(128 + int(s.(syscall.Signal)))
 	}()
+}
+
+// flags spells the parameters that the libraries' messages name
+// (param.Name) as the flags that set them, so that a message reads as the
+// command line the user typed.
+var flags = map[param.Name]string{
+	pipeline.ParamTarget:       "--target",
+	pipeline.ParamColumns:      "--columns",
+	pipeline.ParamEncodings:    "--methods",
+	pipeline.ParamTask:         "--task",
+	pipeline.ParamFolds:        "--folds",
+	pipeline.ParamGroup:        "--fold-by group",
+	pipeline.ParamScheme:       "--scheme",
+	pipeline.ParamMinLevelRows: "--min-level-rows",
+	pipeline.ParamKeep:         "--keep",
+	pipeline.ParamOrderBy:      "--order-by",
+	pipeline.ParamThreads:      "--threads",
+	compare.ParamInnerFolds:    "--inner-folds",
+	compare.ParamLambda:        "--lambda",
+	compare.ParamWith:          "--with",
+	compare.ParamSample:        "--sample",
+	compare.ParamCandidates:    "--candidates",
+	csvio.ParamMaxFieldBytes:   "--max-field-bytes",
+	csvio.ParamTypes:           "--type",
+	tableio.ParamFormat:        "--format",
+}
+
+// flagOf is the param.Speller of the command line: a parameter's flag.
+func flagOf(n param.Name) string { return flags[n] }
+
+// spelled returns err's message with the parameters that a library's
+// message names (a param.Spellable error in its chain, whose message the
+// wrappers repeat) spelled by spell.
+func spelled(err error, spell param.Speller) string {
+	msg := err.Error()
+	var s interface {
+		error
+		param.Spellable
+	}
+	if errors.As(err, &s) {
+		msg = strings.Replace(msg, s.Error(), s.Spell(spell), 1)
+	}
+	return msg
 }
 
 // usageError is a mistake on the command line.

@@ -60,7 +60,7 @@ func (m *Model) OutputSchema(file string, in *table.Schema, use Use) (*table.Sch
 		for _, name := range m.Spec.Keep {
 			i := in.Index(name)
 			if i < 0 {
-				return nil, nil, nil, &ColumnError{File: file, Flag: "--keep", Name: name, Have: in.Names()}
+				return nil, nil, nil, &ColumnError{File: file, Param: ParamKeep, Name: name, Have: in.Names()}
 			}
 			kept = append(kept, i)
 		}
@@ -89,7 +89,7 @@ func (m *Model) OutputSchema(file string, in *table.Schema, use Use) (*table.Sch
 	for _, o := range outs {
 		for _, f := range o.fields {
 			if seen[f.Name] {
-				return nil, nil, nil, usageErr("output column %q would appear twice; drop the input column with --keep or rename it", f.Name)
+				return nil, nil, nil, usageErr("output column %q would appear twice; drop the input column with %s or rename it", f.Name, ParamKeep)
 			}
 			seen[f.Name] = true
 			out.Fields = append(out.Fields, f)
@@ -174,7 +174,7 @@ func (m *Model) newEncodePass(schema *table.Schema, opt EncodeOptions) (*encodeP
 	for i, c := range m.Cols {
 		e.idx[i] = schema.Index(c.Name)
 		if e.idx[i] < 0 && !(e.training && m.replays(i)) {
-			return nil, &ColumnError{File: opt.File, Flag: "the mapping tables", Name: c.Name, Have: schema.Names()}
+			return nil, &ColumnError{File: opt.File, By: "the mapping tables", Name: c.Name, Have: schema.Names()}
 		}
 	}
 	if e.training {
@@ -200,7 +200,7 @@ func (m *Model) newEncodePass(schema *table.Schema, opt EncodeOptions) (*encodeP
 			if pc := sp.prior(i).Column; pc != "" {
 				pcol := schema.Index(pc)
 				if pcol < 0 {
-					return nil, &ColumnError{File: opt.File, Flag: "prior=column:" + pc, Name: pc, Have: schema.Names()}
+					return nil, &ColumnError{File: opt.File, By: "prior=column:" + pc, Name: pc, Have: schema.Names()}
 				}
 				e.pslots[i] = levelSlots{col: pcol}
 			} else {

@@ -10,6 +10,7 @@ import (
 	"manyfold/encoders/method"
 	"manyfold/internal/guard"
 	"manyfold/internal/hugemem"
+	"manyfold/internal/param"
 	"manyfold/io/table"
 )
 
@@ -78,7 +79,7 @@ type Col struct {
 // FitOptions carries what Fit needs beyond the Spec.
 type FitOptions struct {
 	File      string // for error messages
-	TotalRows int64  // rows in the table, when known (needed for --fold-by ordered)
+	TotalRows int64  // rows in the table, when known (needed for the fold rule ordered)
 	Threads   int    // columns processed at once; below 2 means one at a time
 	Progress  func(rows int64)
 	// Tables says that the caller writes the mapping tables, which list
@@ -153,7 +154,7 @@ func newFitter(schema *table.Schema, sp Spec, opt FitOptions) (*fitter, error) {
 	if sp.Target != "" {
 		f.tcol = schema.Index(sp.Target)
 		if f.tcol < 0 {
-			return nil, &ColumnError{File: opt.File, Flag: "--target", Name: sp.Target, Have: schema.Names()}
+			return nil, &ColumnError{File: opt.File, Param: ParamTarget, Name: sp.Target, Have: schema.Names()}
 		}
 	}
 	if !needTarget {
@@ -163,13 +164,13 @@ func newFitter(schema *table.Schema, sp Spec, opt FitOptions) (*fitter, error) {
 	if g := sp.groupColumn(); g != "" {
 		gcol = schema.Index(g)
 		if gcol < 0 {
-			return nil, &ColumnError{File: opt.File, Flag: "--fold-by group", Name: g, Have: schema.Names()}
+			return nil, &ColumnError{File: opt.File, Param: ParamGroup, Name: g, Have: schema.Names()}
 		}
 	}
 	for _, name := range sp.Columns {
 		i := schema.Index(name)
 		if i < 0 {
-			return nil, &ColumnError{File: opt.File, Flag: "--columns", Name: name, Have: schema.Names()}
+			return nil, &ColumnError{File: opt.File, Param: ParamColumns, Name: name, Have: schema.Names()}
 		}
 		if i == f.tcol {
 			return nil, usageErr("column %q is the target; it cannot be encoded", name)
@@ -179,7 +180,7 @@ func newFitter(schema *table.Schema, sp Spec, opt FitOptions) (*fitter, error) {
 	if sp.OrderBy != "" {
 		i := schema.Index(sp.OrderBy)
 		if i < 0 {
-			return nil, &ColumnError{File: opt.File, Flag: "--order-by", Name: sp.OrderBy, Have: schema.Names()}
+			return nil, &ColumnError{File: opt.File, Param: ParamOrderBy, Name: sp.OrderBy, Have: schema.Names()}
 		}
 		k := schema.Fields[i].Kind
 		f.order = &orderCheck{file: opt.File, name: sp.OrderBy, col: i, numeric: k == table.Int64 || k == table.Float64}
@@ -217,7 +218,7 @@ func (f *fitter) addParents() error {
 	for _, name := range sp.priorColumns() {
 		i := f.schema.Index(name)
 		if i < 0 {
-			return &ColumnError{File: f.opt.File, Flag: "prior=column:" + name, Name: name, Have: f.schema.Names()}
+			return &ColumnError{File: f.opt.File, By: "prior=column:" + name, Name: name, Have: f.schema.Names()}
 		}
 		if i == f.tcol {
 			return usageErr("prior=column:%s is the target", name)
@@ -394,7 +395,7 @@ func (f *fitter) finish() (*Model, error) {
 		}
 	}
 	if sp.folds() > 1 && m.Rows < int64(sp.folds()) {
-		return nil, usageErr("--folds %d is more than the %d rows of %s", sp.folds(), m.Rows, opt.File)
+		return nil, usageErr("%s %d is more than the %d rows of %s", ParamFolds, sp.folds(), m.Rows, opt.File)
 	}
 	switch {
 	case tr == nil:
@@ -417,7 +418,7 @@ func (f *fitter) finish() (*Model, error) {
 			m.Task = colstats.Multiclass
 		}
 		if sp.Task == "binary" && len(labels) > 2 {
-			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: fmt.Errorf("--task binary but the target has %d classes", len(labels))}
+			return nil, &table.DataError{File: opt.File, Column: sp.Target, Err: param.Errorf("%s binary but the target has %d classes", ParamTask, len(labels))}
 		}
 		m.Pos = len(labels) - 1
 	}
@@ -673,17 +674,26 @@ func (m *Model) OutputNames() []string {
 // the null level included when it has rows.
 func (m *Model) Levels(i int) int { return m.Cols[i].distinct() }
 
-// ColumnError reports a column named on the command line that the input
-// does not have, with the closest names it does have.
+// ColumnError reports a column that a parameter of the job (or the
+// mapping tables) names and the input does not have, with the closest
+// names it does have.
 type ColumnError struct {
-	File string
-	Flag string
-	Name string
-	Have []string
+	File  string
+	Param param.Name // the parameter that names the column (ParamTarget, ParamColumns, ...), or ""
+	By    string     // what names it when no parameter does: "the mapping tables in DIR", "prior=column:route"
+	Name  string
+	Have  []string
 }
 
-func (e *ColumnError) Error() string {
-	msg := fmt.Sprintf("%s: %s names column %q, which the file does not have", e.File, e.Flag, e.Name)
+func (e *ColumnError) Error() string { return e.Spell(nil) }
+
+// Spell returns the message with the parameter spelled by spell.
+func (e *ColumnError) Spell(spell param.Speller) string {
+	by := e.By
+	if e.Param != "" {
+		by = param.Spell(spell, e.Param)
+	}
+	msg := fmt.Sprintf("%s: %s names column %q, which the file does not have", e.File, by, e.Name)
 	if near := Closest(e.Name, e.Have, 3); len(near) > 0 {
 		msg += "; closest: " + joinQuoted(near)
 	}
@@ -731,7 +741,7 @@ func (oc *orderCheck) check(b *table.Batch) error {
 		}
 		if bad {
 			e := &table.DataError{File: oc.file, Row: b.FirstRow + int64(i), Column: oc.name,
-				Err: fmt.Errorf("the file is not sorted by this column (--order-by): %q comes after %q", oc.cur, oc.last)}
+				Err: param.Errorf("the file is not sorted by this column (%s): %q comes after %q", ParamOrderBy, oc.cur, oc.last)}
 			if b.Lines != nil {
 				e.Line = b.Lines[i]
 			}

@@ -6,6 +6,7 @@ import (
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/method"
+	"manyfold/internal/param"
 )
 
 // Merge combines models loaded from mapping tables fitted with the same
@@ -26,7 +27,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 			return nil, &ManifestError{Dir: names[i], Msg: err.Error() + " than " + names[0] + "; only tables fitted with the same parameters merge"}
 		}
 		if m.Spec.MinLevelRows > 0 {
-			return nil, &ManifestError{Dir: names[i], Msg: fmt.Sprintf("fitted with --min-level-rows %d, so its small levels are missing; merge tables fitted with --min-level-rows 0", m.Spec.MinLevelRows)}
+			return nil, &ManifestError{Dir: names[i], Err: param.Errorf("fitted with %s %d, so its small levels are missing; merge tables fitted with %s 0", ParamMinLevelRows, m.Spec.MinLevelRows, ParamMinLevelRows)}
 		}
 		out.Rows += m.Rows
 		out.Missing += m.Missing

@@ -10,6 +10,7 @@ import (
 
 	"manyfold/encoders/colstats"
 	"manyfold/folds"
+	"manyfold/internal/param"
 	"manyfold/io/table"
 )
 
@@ -337,11 +338,11 @@ func (tr *targetReader) read(b *table.Batch) error {
 		k, ok := tr.labels[string(key)]
 		if !ok {
 			if len(tr.order) >= MaxClasses {
-				hint := ""
+				var hint param.Text
 				if tr.numeric && !tr.fixed {
-					hint = "; for a numeric target give --task regression"
+					hint = param.Textf("; for a numeric target give %s regression", ParamTask)
 				}
-				return tr.dataErr(b, i, fmt.Errorf("target has more than %d classes%s", MaxClasses, hint))
+				return tr.dataErr(b, i, param.Errorf("target has more than %d classes%v", MaxClasses, hint))
 			}
 			k = len(tr.order)
 			tr.labels[string(key)] = k

@@ -5,18 +5,34 @@
 package pipeline
 
 import (
-	"fmt"
 	"slices"
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/method"
 	"manyfold/folds"
+	"manyfold/internal/param"
 	"manyfold/io/table"
 )
 
 // MaxClasses is the largest number of target classes a classification
 // target may have.
 const MaxClasses = 64
+
+// Parameters of a job that the package's messages name (param.Name): the
+// Spec's fields, and the group column of the fold rule group=COL.
+const (
+	ParamTarget       param.Name = "target"
+	ParamColumns      param.Name = "columns"
+	ParamEncodings    param.Name = "encodings"
+	ParamTask         param.Name = "task"
+	ParamFolds        param.Name = "folds"
+	ParamGroup        param.Name = "fold rule group"
+	ParamScheme       param.Name = "scheme"
+	ParamMinLevelRows param.Name = "min level rows"
+	ParamKeep         param.Name = "keep"
+	ParamOrderBy      param.Name = "order by"
+	ParamThreads      param.Name = "threads"
+)
 
 // Spec holds every parameter of an encoding job. Its zero value is not
 // valid; start from DefaultSpec.
@@ -150,16 +166,16 @@ func (sp *Spec) Validate() error {
 			return usageErr("the columns to encode and the per-column encodings name different columns")
 		}
 	} else if len(sp.Encodings.All) == 0 {
-		return usageErr("no encodings: give --methods")
+		return usageErr("no encodings: give %s", ParamEncodings)
 	}
 	if len(sp.Columns) == 0 {
-		return usageErr("no columns to encode: give --columns")
+		return usageErr("no columns to encode: give %s", ParamColumns)
 	}
 	seen := map[string]bool{}
 	sp.encs = make([][]method.Encoding, len(sp.Columns))
 	for i, c := range sp.Columns {
 		if seen[c] {
-			return usageErr("column %q is named twice in --columns", c)
+			return usageErr("column %q is named twice in %s", c, ParamColumns)
 		}
 		seen[c] = true
 		sp.encs[i] = sp.Encodings.All
@@ -188,23 +204,23 @@ func (sp *Spec) Validate() error {
 		}
 	}
 	if sp.supervised() && sp.Target == "" {
-		return usageErr("the target encodings need --target")
+		return usageErr("the target encodings need %s", ParamTarget)
 	}
 	if sp.Scheme == method.Apply {
-		return usageErr("unknown --scheme (want kfold, loo, ordered, none)")
+		return usageErr("unknown %s (want kfold, loo, ordered, none)", ParamScheme)
 	}
 	if sp.Scheme == method.KFold && (sp.Folds < 2 || sp.Folds > MaxFolds) {
-		return usageErr("--folds %d: want 2 to %d (for leave-one-out give --scheme loo)", sp.Folds, MaxFolds)
+		return usageErr("%s %d: want 2 to %d (for leave-one-out give %s loo)", ParamFolds, sp.Folds, MaxFolds, ParamScheme)
 	}
 	if sp.FoldBy == nil {
 		return usageErr("no fold rule")
 	}
 	if sp.FoldBy.Needs().Class && sp.Target == "" {
-		return usageErr("the fold rule %s needs --target", sp.FoldBy)
+		return usageErr("the fold rule %s needs %s", sp.FoldBy, ParamTarget)
 	}
 	if sp.Task != "" {
 		if _, err := colstats.ParseTask(sp.Task); err != nil {
-			return usageErr("--task: %v", err)
+			return usageErr("%s: %v", ParamTask, err)
 		}
 	}
 	return nil
@@ -212,18 +228,18 @@ func (sp *Spec) Validate() error {
 
 // Limits of the numeric parameters, checked by Validate before any data is
 // read. A level keeps a counter per fold and class, so memory grows with
-// --folds; bucket numbers are written as 64-bit signed integers.
+// the folds; bucket numbers are written as 64-bit signed integers.
 const MaxFolds = 100
 
-// CheckThreads checks a --threads value, the same for every command.
+// CheckThreads checks a number of threads, the same for every command.
 func CheckThreads(n int) error {
 	if n < 1 {
-		return usageErr("--threads %d: want at least 1", n)
+		return usageErr("%s %d: want at least 1", ParamThreads, n)
 	}
 	return nil
 }
 
-// groupColumn returns the column named by --fold-by group=COL, or "".
+// groupColumn returns the column named by the fold rule group=COL, or "".
 func (sp *Spec) groupColumn() string {
 	if sp.FoldBy != nil {
 		return sp.FoldBy.Needs().Group
@@ -240,13 +256,20 @@ func (sp *Spec) folds() int {
 	return 1
 }
 
-// UsageError is a mistake in the job's parameters or column names.
-type UsageError struct{ Msg string }
+// UsageError is a mistake in the job's parameters or column names. Its
+// message names the parameters in the package's words (ParamFolds: "folds
+// 1: want 2 to 100"); a command spells them as its flags (Spell).
+type UsageError struct{ Msg param.Text }
 
-func (e *UsageError) Error() string { return e.Msg }
+func (e *UsageError) Error() string { return e.Msg.String() }
 
+// Spell returns the message with each parameter spelled by spell.
+func (e *UsageError) Spell(spell param.Speller) string { return e.Msg.Spell(spell) }
+
+// usageErr returns a UsageError of a format and its arguments, among which
+// a param.Name names a parameter.
 func usageErr(format string, a ...any) error {
-	return &UsageError{Msg: fmt.Sprintf(format, a...)}
+	return &UsageError{Msg: param.Textf(format, a...)}
 }
 
 // FitColumns returns the positions in s of the columns the fit reads: the
@@ -297,7 +320,7 @@ func (sp *Spec) CheckOutputNames(file string, s *table.Schema) error {
 	}
 	for _, n := range names {
 		if kept[n] {
-			return usageErr("%s: output column %q would appear twice: the input has it; drop it with --keep or rename it", file, n)
+			return usageErr("%s: output column %q would appear twice: the input has it; drop it with %s or rename it", file, n, ParamKeep)
 		}
 	}
 	return nil

@@ -12,7 +12,9 @@ import (
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/method"
+	"manyfold/internal/param"
 	"manyfold/io/atomicfile"
+	"manyfold/io/csvio"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
@@ -89,13 +91,23 @@ type ManifestEnc struct {
 	Fit      json.RawMessage `json:"fit,omitempty"`
 }
 
-// ManifestError reports mapping tables that cannot serve the input.
+// ManifestError reports mapping tables that cannot serve the input: Msg,
+// or Err when the message names parameters (a param.Error).
 type ManifestError struct {
 	Dir string
 	Msg string
+	Err error
 }
 
-func (e *ManifestError) Error() string { return e.Dir + ": " + e.Msg }
+func (e *ManifestError) Error() string {
+	if e.Err != nil {
+		return e.Dir + ": " + e.Err.Error()
+	}
+	return e.Dir + ": " + e.Msg
+}
+
+// Unwrap returns Err.
+func (e *ManifestError) Unwrap() error { return e.Err }
 
 // tableFile names the table of the i-th column: its position and a form of
 // its name safe in any file system.
@@ -519,16 +531,16 @@ func (m *Model) gatherLevels(c *Col, rows []uint32, lv *method.Levels) {
 func (m *Model) CheckInput(file string, s *table.Schema, dir string) error {
 	for _, pc := range m.Spec.priorColumns() {
 		if s.Index(pc) < 0 {
-			return &ColumnError{File: file, Flag: "the mapping tables in " + dir + " (prior=column:" + pc + ")", Name: pc, Have: s.Names()}
+			return &ColumnError{File: file, By: "the mapping tables in " + dir + " (prior=column:" + pc + ")", Name: pc, Have: s.Names()}
 		}
 	}
 	for _, c := range m.Cols {
 		i := s.Index(c.Name)
 		if i < 0 {
-			return &ColumnError{File: file, Flag: "the mapping tables in " + dir, Name: c.Name, Have: s.Names()}
+			return &ColumnError{File: file, By: "the mapping tables in " + dir, Name: c.Name, Have: s.Names()}
 		}
 		if got := s.Fields[i].Kind; got != c.Kind {
-			return &ManifestError{Dir: dir, Msg: fmt.Sprintf("column %q of %s is %s, but the tables were fitted on %s (for CSV, force it with --type %s=%s)", c.Name, file, got, c.Kind, c.Name, c.Kind)}
+			return &ManifestError{Dir: dir, Err: param.Errorf("column %q of %s is %s, but the tables were fitted on %s (for CSV, force it with %s %s=%s)", c.Name, file, got, c.Kind, csvio.ParamTypes, c.Name, c.Kind)}
 		}
 	}
 	return nil

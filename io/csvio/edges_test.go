@@ -125,13 +125,13 @@ func TestFieldLimit(t *testing.T) {
 		{"unquoted at the limit", "id,note\n1," + ok + "\n", "", 1},
 		{"quoted at the limit", "id,note\n1,\"" + ok[2:] + "\"\n", "", 1},
 		{"unquoted over", "id,note\n1,a\n2," + ok + "y\n3,b\n",
-			`s.csv:3: column "note": byte 3: field longer than 100 bytes (the limit; raise it with --max-field-bytes)`, 1},
+			`s.csv:3: column "note": byte 3: field longer than 100 bytes (the limit; raise it with max field bytes)`, 1},
 		{"quoted over", "id,note\n1,a\n2,\"" + ok[1:] + "\"\n",
-			`s.csv:3: column "note": byte 3: field longer than 100 bytes (the limit; raise it with --max-field-bytes)`, 1},
+			`s.csv:3: column "note": byte 3: field longer than 100 bytes (the limit; raise it with max field bytes)`, 1},
 		{"quoted over, doubled quotes", "id,note\n1,a\n2,\"" + strings.Repeat(`""`, 50) + "\"\n",
-			`s.csv:3: column "note": byte 3: field longer than 100 bytes (the limit; raise it with --max-field-bytes)`, 1},
+			`s.csv:3: column "note": byte 3: field longer than 100 bytes (the limit; raise it with max field bytes)`, 1},
 		{"header", "id," + ok + "z\n1,2\n",
-			`s.csv:1: header field 2: byte 4: field longer than 100 bytes (the limit; raise it with --max-field-bytes)`, 0},
+			`s.csv:1: header field 2: byte 4: field longer than 100 bytes (the limit; raise it with max field bytes)`, 0},
 	}
 	for _, tc := range tests {
 		for _, size := range []int{1 << 20, 8} {

@@ -15,6 +15,7 @@ import (
 	"github.com/klauspost/compress/gzip"
 	"github.com/klauspost/compress/zstd"
 
+	"manyfold/internal/param"
 	"manyfold/io/table"
 )
 
@@ -43,6 +44,13 @@ type Options struct {
 	// DefaultMaxFieldBytes.
 	MaxFieldBytes int
 }
+
+// Parameters that the reader's messages name: Options.MaxFieldBytes and
+// Options.Types.
+const (
+	ParamMaxFieldBytes param.Name = "max field bytes"
+	ParamTypes         param.Name = "types"
+)
 
 // DefaultMaxFieldBytes is the longest field a CSV input may hold unless
 // Options.MaxFieldBytes says otherwise: 16 MiB.
@@ -1066,10 +1074,9 @@ func (r *Reader) fieldErr(rec record, fi, rs int, line int64, fs, fe int, crlf b
 		n--
 	}
 	if n > r.maxField {
-		err := r.dataErr(rec, fi, rs, line, fs,
-			"field longer than "+sizeText(r.maxField)+" (the limit; raise it with --max-field-bytes)", true)
+		err := r.dataErr(rec, fi, rs, line, fs, "field longer than "+sizeText(r.maxField), true)
 		if de, ok := err.(*table.DataError); ok {
-			de.Err = &limitError{de.Err}
+			de.Err = &limitError{param.Errorf("%v (the limit; raise it with %s)", de.Err, ParamMaxFieldBytes)}
 		}
 		return err
 	}

@@ -55,7 +55,7 @@ func TestCreateStdout(t *testing.T) {
 			checkTable(t, r, testSchema, testWant)
 		})
 	}
-	if _, err := Create(Stdout, testSchema, WriteOptions{}); err == nil || !strings.Contains(err.Error(), "--format") {
+	if _, err := Create(Stdout, testSchema, WriteOptions{}); err == nil || !strings.Contains(err.Error(), "(format csv, parquet or arrow)") {
 		t.Errorf("standard output without a format: %v", err)
 	}
 }

@@ -13,6 +13,7 @@ import (
 	"path/filepath"
 	"strings"
 
+	"manyfold/internal/param"
 	"manyfold/io/arrowio"
 	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
@@ -183,6 +184,9 @@ func FormatOf(path string) Format {
 	return ""
 }
 
+// ParamFormat names WriteOptions.Format in messages.
+const ParamFormat param.Name = "format"
+
 // WriteOptions configures an output table.
 type WriteOptions struct {
 	Format  Format // "" picks by extension
@@ -220,9 +224,9 @@ func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, erro
 		format = FormatOf(path)
 		if format == "" {
 			if path == Stdout {
-				return nil, fmt.Errorf("standard output: give the output format (--format csv, parquet or arrow)")
+				return nil, param.Errorf("standard output: give the output format (%s csv, parquet or arrow)", ParamFormat)
 			}
-			return nil, fmt.Errorf("%s: cannot tell the output format from the extension (use .csv, .parquet or .arrow, or give --format)", path)
+			return nil, param.Errorf("%s: cannot tell the output format from the extension (use .csv, .parquet or .arrow, or give %s)", path, ParamFormat)
 		}
 	}
 	var f *atomicfile.File

@@ -1,11 +1,9 @@
 package compare
 
 import (
-	"fmt"
 	"strings"
 
 	"manyfold/encoders/method"
-	"manyfold/encoders/pipeline"
 )
 
 // Baseline names a candidate that is not an encoding to choose but a
@@ -42,7 +40,7 @@ const DefaultCandidates = "prior,target:insample,target:eb,freq,topk:100,hash:10
 func ParseCandidates(list string) ([]Candidate, error) {
 	parts := method.SplitCandidates(list)
 	if len(parts) == 0 {
-		return nil, &pipeline.UsageError{Msg: "--candidates: empty list"}
+		return nil, usage("%s: empty list", ParamCandidates)
 	}
 	var out []Candidate
 	seen := map[string]bool{}
@@ -52,7 +50,7 @@ func ParseCandidates(list string) ([]Candidate, error) {
 			return nil, err
 		}
 		if seen[c.Name] {
-			return nil, &pipeline.UsageError{Msg: fmt.Sprintf("--candidates: %s is listed twice", c.Name)}
+			return nil, usage("%s: %s is listed twice", ParamCandidates, c.Name)
 		}
 		seen[c.Name] = true
 		out = append(out, c)
@@ -74,11 +72,11 @@ func ParseCandidate(s string) (Candidate, error) {
 	}
 	encs, err := method.ParseList(s)
 	if err != nil {
-		return Candidate{}, &pipeline.UsageError{Msg: fmt.Sprintf("candidate %q: %v", s, err)}
+		return Candidate{}, usage("candidate %q: %v", s, err)
 	}
 	for _, e := range encs {
 		if p := e.Needs().Prior; p.Column != "" {
-			return Candidate{}, &pipeline.UsageError{Msg: fmt.Sprintf("candidate %q: compare takes prior=prefixN, not a column prior", s)}
+			return Candidate{}, usage("candidate %q: compare takes prior=prefixN, not a column prior", s)
 		}
 	}
 	return Candidate{Name: method.ListString(encs), Encodings: encs}, nil

@@ -16,6 +16,7 @@ import (
 	"manyfold/folds"
 	"manyfold/internal/cmdline"
 	"manyfold/internal/guard"
+	"manyfold/internal/param"
 	"manyfold/io/table"
 )
 
@@ -51,6 +52,17 @@ type Options struct {
 	NoTimings bool    // leave FitSeconds at 0, for byte-identical output
 	Progress  func(rows int64)
 }
+
+// Parameters that the package's messages name (param.Name), besides
+// pipeline's ParamTarget, ParamColumns, ParamTask, ParamFolds (the outer
+// folds) and ParamGroup.
+const (
+	ParamInnerFolds param.Name = "inner folds"
+	ParamLambda     param.Name = "lambda"
+	ParamWith       param.Name = "with"
+	ParamSample     param.Name = "sample"
+	ParamCandidates param.Name = "candidates"
+)
 
 // DefaultLambda is the L2 weight of every model: small enough not to
 // flatten real level effects on a few hundred thousand rows, large enough
@@ -102,24 +114,24 @@ func Run(r table.Reader, opt Options) (*Result, error) {
 // known task and a fold rule compare can follow.
 func (opt *Options) Validate() error {
 	if opt.Folds < 2 || opt.Folds > 50 {
-		return usage("--folds %d: want 2 to 50", opt.Folds)
+		return usage("%s %d: want 2 to 50", pipeline.ParamFolds, opt.Folds)
 	}
 	if opt.InnerFolds < 2 || opt.InnerFolds > 50 {
-		return usage("--inner-folds %d: want 2 to 50", opt.InnerFolds)
+		return usage("%s %d: want 2 to 50", ParamInnerFolds, opt.InnerFolds)
 	}
 	if opt.Lambda < 0 || math.IsNaN(opt.Lambda) || math.IsInf(opt.Lambda, 0) {
-		return usage("--lambda %v: want a number > 0", opt.Lambda)
+		return usage("%s %v: want a number > 0", ParamLambda, opt.Lambda)
 	}
 	if opt.Target == "" {
-		return usage("compare needs --target")
+		return usage("compare needs %s", pipeline.ParamTarget)
 	}
 	if len(opt.Columns) == 0 {
-		return usage("compare needs --columns")
+		return usage("compare needs %s", pipeline.ParamColumns)
 	}
 	switch opt.Task {
 	case "", "binary", "multiclass", "regression":
 	default:
-		return usage("--task %q: want binary, multiclass or regression", opt.Task)
+		return usage("%s %q: want binary, multiclass or regression", pipeline.ParamTask, opt.Task)
 	}
 	rule := opt.foldRule()
 	if rule.Needs().Total {
@@ -154,14 +166,14 @@ func run(r table.Reader, opt Options) (*Result, error) {
 		opt.Lambda = DefaultLambda
 	}
 	schema := r.Schema()
-	find := func(flag, name string) (int, error) {
+	find := func(p param.Name, name string) (int, error) {
 		i := schema.Index(name)
 		if i < 0 {
-			return 0, &pipeline.ColumnError{File: opt.File, Flag: flag, Name: name, Have: schema.Names()}
+			return 0, &pipeline.ColumnError{File: opt.File, Param: p, Name: name, Have: schema.Names()}
 		}
 		return i, nil
 	}
-	tcol, err := find("--target", opt.Target)
+	tcol, err := find(pipeline.ParamTarget, opt.Target)
 	if err != nil {
 		return nil, err
 	}
@@ -170,7 +182,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 	need := []int{tcol}
 	seen := map[string]bool{}
 	for _, c := range opt.Columns {
-		i, err := find("--columns", c)
+		i, err := find(pipeline.ParamColumns, c)
 		if err != nil {
 			return nil, err
 		}
@@ -178,27 +190,27 @@ func run(r table.Reader, opt Options) (*Result, error) {
 			return nil, usage("column %q is the target; it cannot be compared", c)
 		}
 		if seen[c] {
-			return nil, usage("column %q is named twice in --columns", c)
+			return nil, usage("column %q is named twice in %s", c, pipeline.ParamColumns)
 		}
 		seen[c] = true
 		need = append(need, i)
 	}
 	for _, c := range opt.With {
-		i, err := find("--with", c)
+		i, err := find(ParamWith, c)
 		if err != nil {
 			return nil, err
 		}
 		if i == tcol {
-			return nil, usage("--with %q is the target", c)
+			return nil, usage("%s %q is the target", ParamWith, c)
 		}
 		if k := schema.Fields[i].Kind; k != table.Int64 && k != table.Float64 && k != table.Bool && k != table.String {
-			return nil, usage("--with %q is not numeric", c)
+			return nil, usage("%s %q is not numeric", ParamWith, c)
 		}
 		need = append(need, i)
 	}
 	rule := opt.foldRule()
 	if g := rule.Needs().Group; g != "" {
-		i, err := find("--fold-by group", g)
+		i, err := find(pipeline.ParamGroup, g)
 		if err != nil {
 			return nil, err
 		}
@@ -332,7 +344,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 				}
 				v, ok, err := c.Float(i)
 				if err != nil {
-					e := &table.DataError{File: opt.File, Row: b.FirstRow + int64(i), Column: opt.With[wi], Err: fmt.Errorf("--with column: %w", err)}
+					e := &table.DataError{File: opt.File, Row: b.FirstRow + int64(i), Column: opt.With[wi], Err: param.Errorf("%s column: %v", ParamWith, err)}
 					if b.Lines != nil {
 						e.Line = b.Lines[i]
 					}
@@ -378,7 +390,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 			ev.task = colstats.Multiclass
 		}
 		if opt.Task == "binary" && len(labels) > 2 {
-			return nil, &table.DataError{File: opt.File, Column: opt.Target, Err: fmt.Errorf("--task binary but the target has %d classes", len(labels))}
+			return nil, &table.DataError{File: opt.File, Column: opt.Target, Err: param.Errorf("%s binary but the target has %d classes", pipeline.ParamTask, len(labels))}
 		}
 		ev.classes = len(labels)
 		ev.classLabels = labels
@@ -473,8 +485,10 @@ func encodeCommand(res *Result, opt Options) string {
 	return cmdline.Encode(res.File, res.Target, plan, flags...)
 }
 
+// usage returns a usage error of a format and its arguments, among which
+// a param.Name names a parameter.
 func usage(format string, a ...any) error {
-	return &pipeline.UsageError{Msg: fmt.Sprintf(format, a...)}
+	return &pipeline.UsageError{Msg: param.Textf(format, a...)}
 }
 
 // primaryOf names the metric candidates are ranked by.
@@ -556,8 +570,8 @@ func (ev *evaluator) prepare() error {
 	}
 	for f := 0; f < ev.ko; f++ {
 		if len(ev.train[f]) < 2 || len(ev.test[f]) < 1 {
-			return usage("too few rows for %d folds: outer fold %d has %d training and %d held-out rows of the %d the models use (lower --folds or raise --sample)",
-				ev.ko, f+1, len(ev.train[f]), len(ev.test[f]), ev.smp.count)
+			return usage("too few rows for %d folds: outer fold %d has %d training and %d held-out rows of the %d the models use (lower %s or raise %s)",
+				ev.ko, f+1, len(ev.train[f]), len(ev.test[f]), ev.smp.count, pipeline.ParamFolds, ParamSample)
 		}
 	}
 	return nil

@@ -358,8 +358,9 @@ func TestRunErrors(t *testing.T) {
 		{Options{Target: "late", Columns: []string{"b"}, Folds: 2, InnerFolds: 2}, `"b"`},
 		{Options{Target: "lat", Columns: []string{"a"}, Folds: 2, InnerFolds: 2}, "late"},
 		{Options{Target: "late", Columns: []string{"late"}, Folds: 2, InnerFolds: 2}, "is the target"},
-		{Options{Target: "late", Columns: []string{"a"}, Folds: 1, InnerFolds: 2}, "--folds"},
-		{Options{Target: "late", Columns: []string{"a"}, Folds: 2, InnerFolds: 0}, "--inner-folds"},
+		{Options{Target: "late", Columns: []string{"a"}, Folds: 1, InnerFolds: 2}, "folds 1: want 2 to 50"},
+		{Options{Target: "late", Columns: []string{"a"}, Folds: 2, InnerFolds: 0}, "inner folds 0: want 2 to 50"},
+		{Options{Target: "late", Columns: []string{"a"}, With: []string{"w"}, Folds: 2, InnerFolds: 2}, `t.csv: with names column "w"`},
 		{Options{Target: "late", Columns: []string{"a"}, Folds: 40, InnerFolds: 2}, "too few rows"},
 	}
 	for _, tc := range tests {

@@ -8,6 +8,7 @@ import (
 
 	"manyfold/encoders/pipeline"
 	"manyfold/folds"
+	"manyfold/internal/cmdline"
 	"manyfold/internal/evaluate/compare"
 	"manyfold/io/atomicfile"
 	"manyfold/io/tableio"
@@ -151,6 +152,8 @@ func runCompare(args []string) (err error) {
 	if err != nil {
 		return err
 	}
+	res.Tool = "manyfold " + pipeline.Version
+	res.CommandLine = cmdline.Join(append([]string{"manyfold", "compare"}, args...))
 	if err := writeResults(res, *jsonOut, *report); err != nil {
 		return &outputError{err}
 	}

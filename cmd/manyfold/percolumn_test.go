@@ -9,7 +9,6 @@ import (
 	"testing"
 
 	"manyfold/internal/parcels"
-	"manyfold/io/tableio"
 )
 
 // TestPerColumnEqualsSeparateRuns: one run with a list of encodings per
@@ -19,14 +18,7 @@ import (
 func TestPerColumnEqualsSeparateRuns(t *testing.T) {
 	dir := t.TempDir()
 	in := filepath.Join(dir, "shipments.csv")
-	w, err := tableio.Create(in, parcels.Schema(), tableio.WriteOptions{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := parcels.Generate(parcels.Config{Rows: 8000, Seed: 9, Postcodes: 900, Accounts: 2000}, w); err != nil {
-		t.Fatal(err)
-	}
-	if err := w.Commit(); err != nil {
+	if err := generate(in, parcels.Config{Rows: 8000, Seed: 9, Postcodes: 900, Accounts: 2000}); err != nil {
 		t.Fatal(err)
 	}
 	for _, tc := range []struct {

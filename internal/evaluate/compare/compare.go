@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"math"
 	"slices"
-	"sort"
 	"strconv"
 	"sync"
 	"time"
@@ -732,13 +731,26 @@ func (ev *evaluator) column(ci int, name string, st *colstats.Stats) (ColumnResu
 		}
 		cr.Candidates = append(cr.Candidates, r)
 	}
-	rank(cr.Candidates, higherBetter(names[0]))
-	cr.Reading = reading(cr.Candidates, names[0], higherBetter(names[0]))
+	cr.Verdict = judge(cr.Candidates, higherBetter(names[0]), ev.testShare())
+	cr.Winner = cr.Verdict.Winner
+	cr.Reading = cr.Verdict.reading(names[0])
 	cr.RankFreq = rankFrequency(st)
 	if ev.task != colstats.Multiclass {
 		cr.Shrinkage = ev.shrinkage(cs)
 	}
 	return cr, nil
+}
+
+// testShare is the ratio of held-out to training rows of an outer fold,
+// over all folds (1/(k-1) for k equal folds): the correction of the
+// resampled t-test.
+func (ev *evaluator) testShare() float64 {
+	var tr, te int
+	for f := range ev.train {
+		tr += len(ev.train[f])
+		te += len(ev.test[f])
+	}
+	return float64(te) / float64(tr)
 }
 
 // parallel calls f(0..n-1), at most threads at a time; each call writes
@@ -797,30 +809,6 @@ func foldMeanStd(xs []float64) (float64, float64) {
 		ss += (x - mean) * (x - mean)
 	}
 	return mean, math.Sqrt(ss / float64(len(ok)-1))
-}
-
-// rank sorts candidates best first by the primary mean (NaN last, ties in
-// the given order) and marks the best candidate that is not a baseline.
-func rank(cs []CandidateResult, higher bool) {
-	better := func(a, b float64) bool {
-		if math.IsNaN(b) {
-			return !math.IsNaN(a)
-		}
-		if math.IsNaN(a) {
-			return false
-		}
-		if higher {
-			return a > b
-		}
-		return a < b
-	}
-	sort.SliceStable(cs, func(i, j int) bool { return better(cs[i].Primary.Mean, cs[j].Primary.Mean) })
-	for i := range cs {
-		if !cs[i].Baseline && !math.IsNaN(cs[i].Primary.Mean) {
-			cs[i].Winner = true
-			break
-		}
-	}
 }
 
 // rankFrequency returns the rank-frequency curve of the levels, thinned

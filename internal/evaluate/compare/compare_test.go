@@ -130,8 +130,8 @@ func TestLeakIsCaught(t *testing.T) {
 	if w := winner(c); w != nil && w.Baseline {
 		t.Errorf("winner %s is a baseline", w.Name)
 	}
-	if !strings.Contains(c.Reading, "no encoding clearly beats the prior") {
-		t.Errorf("reading %q should say that nothing beats the prior", c.Reading)
+	if c.Winner != nil || !strings.Contains(c.Reading, "no clear winner") {
+		t.Errorf("winner %v, reading %q: nothing should beat the prior", c.Winner, c.Reading)
 	}
 }
 
@@ -256,7 +256,7 @@ func TestSameSeedSameOutput(t *testing.T) {
 	if t3 == t1 {
 		t.Error("another seed gave the same table")
 	}
-	if !strings.Contains(t1, "<- winner") || !strings.Contains(t1, "reading: ") {
+	if !(strings.Contains(t1, "<- winner") || strings.Contains(t1, "no clear winner")) || !strings.Contains(t1, "reading: ") {
 		t.Errorf("table lacks the winner mark or the reading:\n%s", t1)
 	}
 }

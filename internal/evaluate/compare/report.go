@@ -102,6 +102,7 @@ type barChart struct {
 	X0, X1, Y0, Y1 string // plot area: left, right, top, bottom
 	YTicks         []tick
 	AxisTitle      string
+	BarsFrom       string // what the bars' base is, for the caption
 	AxisTitleX     string
 	AxisTitleY     string
 	Bars           []barView
@@ -184,6 +185,8 @@ func buildView(r *Result) reportView {
 	v := reportView{
 		Title: "manyfold compare: " + clean(r.Target) + " in " + clean(r.File),
 		Header: []headerItem{
+			{"Tool", clean(r.Tool)},
+			{"Command", clean(r.CommandLine)},
 			{"File", clean(r.File)},
 			{"Target", clean(r.Target)},
 			{"Task", clean(r.Task)},
@@ -284,13 +287,15 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 		charW  = 6.4 // average width of an 11px label character
 		legend = 28.0
 	)
-	// Labels are rotated when the longest name does not fit its slot.
+	// Labels are rotated when the longest name does not fit its slot; a
+	// rotated label also carries its note, " (best)" or " (baseline)", so
+	// its length counts the note too.
 	maxLen, firstLen := 0, 0
 	for j, cand := range c.Candidates {
-		l := utf8.RuneCountInString(displayName(cand.Name))
+		l := utf8.RuneCountInString(displayName(cand.Name)) + len(barNote(cand))
 		maxLen = max(maxLen, l)
 		if j == 0 {
-			firstLen = l + 7 // the winner's label also says "(best)"
+			firstLen = l
 		}
 	}
 	left := 70.0
@@ -308,7 +313,9 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 	barW := math.Min(slot*0.62, 72)
 	labelH := 34.0
 	if rotate {
-		labelH = 22 + math.Min(float64(maxLen)*charW*0.6, 170)
+		// A label rotated by 35 degrees drops sin(35°) of its length
+		// below the axis: the legend goes below the longest.
+		labelH = 22 + float64(maxLen)*charW*math.Sin(35*math.Pi/180)
 	}
 	y1 := top + plotH
 	height := int(math.Ceil(y1 + labelH + legend + 8))
@@ -325,12 +332,17 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 		Height:  height,
 		HatchID: fmt.Sprintf("hatch-%d", idx+1),
 		X0:      px(left), X1: px(width - right), Y0: px(top), Y1: px(y1),
-		AxisTitle:  clean(r.Metric),
+		AxisTitle:  metricLabel(r.Metric),
 		AxisTitleX: px(16),
 		AxisTitleY: px(top + plotH/2),
 		LegendY:    px(float64(height) - legend/2 - 4),
 	}
 	b.HatchURL = "url(#" + b.HatchID + ")"
+	if lo == 0 {
+		b.BarsFrom = "Bars start at zero."
+	} else {
+		b.BarsFrom = "Bars start at the axis minimum, " + tickLabel(lo, step) + ", not at zero: compare their tops, not their lengths."
+	}
 	if r.HigherBetter {
 		b.AxisTitle += " (higher is better)"
 	} else {
@@ -399,10 +411,8 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 			bv.LabelX, bv.LabelY = px(cx+4), px(y1+14)
 			bv.LabelAnchor = "end"
 			bv.LabelTransform = fmt.Sprintf("rotate(-35 %s %s)", px(cx+4), px(y1+14))
-			if bv.Note != "" {
-				label += " (" + bv.Note + ")"
-				bv.Note = ""
-			}
+			label += barNote(cand)
+			bv.Note = ""
 		} else {
 			bv.LabelX, bv.LabelY = px(cx), px(y1+16)
 			bv.LabelAnchor = "middle"
@@ -433,6 +443,18 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 
 // displayName shortens a very long candidate name for an axis label; the
 // full name stays in the table and the bar's tooltip.
+// barNote is the note a candidate's bar label carries: " (best)" for the
+// winner, " (baseline)" for a baseline.
+func barNote(c CandidateResult) string {
+	switch {
+	case c.Baseline:
+		return " (baseline)"
+	case c.Winner:
+		return " (best)"
+	}
+	return ""
+}
+
 func displayName(s string) string {
 	const limit = 28
 	if utf8.RuneCountInString(s) <= limit {
@@ -612,13 +634,18 @@ func buildTable(r *Result, c *ColumnResult) tableView {
 	}
 	t := tableView{Heads: []string{"candidate"}}
 	for _, n := range names {
-		h := clean(n)
+		h := metricLabel(n)
 		if n == r.Metric {
 			h += " (primary)"
 		}
 		t.Heads = append(t.Heads, h)
 	}
-	t.Heads = append(t.Heads, "train "+clean(r.Metric), "fit seconds", "output columns", "unseen share")
+	timed := hasTimings(c)
+	t.Heads = append(t.Heads, "train "+metricLabel(r.Metric))
+	if timed {
+		t.Heads = append(t.Heads, "fit seconds")
+	}
+	t.Heads = append(t.Heads, "output columns", "unseen share")
 	for _, cand := range c.Candidates {
 		row := tableRow{Kind: "candidate"}
 		name := clean(cand.Name)
@@ -641,14 +668,25 @@ func buildTable(r *Result, c *ColumnResult) tableView {
 			}
 			row.Cells = append(row.Cells, cell)
 		}
-		row.Cells = append(row.Cells,
-			meanStd(cand.TrainPrimary.Mean, cand.TrainPrimary.Std),
-			strconv.FormatFloat(cand.FitSeconds, 'f', 2, 64),
-			strconv.Itoa(cand.OutputColumns),
-			percent(cand.UnseenShare))
+		row.Cells = append(row.Cells, meanStd(cand.TrainPrimary.Mean, cand.TrainPrimary.Std))
+		if timed {
+			row.Cells = append(row.Cells, strconv.FormatFloat(cand.FitSeconds, 'f', 2, 64))
+		}
+		row.Cells = append(row.Cells, strconv.Itoa(cand.OutputColumns), percent(cand.UnseenShare))
 		t.Rows = append(t.Rows, row)
 	}
 	return t
+}
+
+// hasTimings reports whether the column's candidates were timed
+// (--timings): only then are fit seconds shown.
+func hasTimings(c *ColumnResult) bool {
+	for _, k := range c.Candidates {
+		if k.FitSeconds > 0 {
+			return true
+		}
+	}
+	return false
 }
 
 // ---- formatting ----
@@ -855,9 +893,9 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 <header>
 <h1>{{.Title}}</h1>
 <dl class="meta">
-{{- range .Header}}
+{{- range .Header}}{{if .Value}}
 <dt>{{.Key}}</dt><dd>{{.Value}}</dd>
-{{- end}}
+{{- end}}{{end}}
 </dl>
 {{- if .Columns}}
 <nav><ul>
@@ -914,7 +952,7 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 <text x="{{.TextX}}" y="{{.TextY}}">{{.Label}}</text>
 {{- end}}
 </svg>
-<figcaption>Mean {{.AxisTitle}} over the outer folds; the whisker spans ±1 standard deviation and the dots are the single folds. Bars start at the axis minimum, so compare their tops, not their lengths from zero.</figcaption>
+<figcaption>Mean {{.AxisTitle}} over the outer folds; the whisker spans ±1 standard deviation and the dots are the single folds. {{.BarsFrom}}</figcaption>
 </figure>
 {{- end}}
 <div class="pair">

@@ -6,6 +6,11 @@ package compare
 
 // Result is the outcome of one comparison run.
 type Result struct {
+	Tool string `json:"tool,omitempty"` // the tool and its version, set by the command
+	// CommandLine is the command that ran, quoted for a shell: the report's
+	// header shows it; the JSON does not, as it must not change with the
+	// output paths.
+	CommandLine  string         `json:"-"`
 	File         string         `json:"file"`
 	Target       string         `json:"target"`
 	Task         string         `json:"task"`          // binary, multiclass, regression
@@ -33,6 +38,10 @@ type ColumnResult struct {
 	Levels     int               `json:"levels"`
 	Candidates []CandidateResult `json:"candidates"`
 	Reading    string            `json:"reading"` // one line: what the result means
+	// Winner is the candidate that beats the prior and the runner-up by
+	// the verdict's test, null when none does ("no clear winner").
+	Winner  *string `json:"winner"`
+	Verdict Verdict `json:"verdict"`
 	// RankFreq is the rank-frequency curve of the column's levels: the row
 	// count of the level at each rank (1-based), thinned to a few hundred
 	// points spread evenly on a log scale of the rank.
@@ -61,7 +70,8 @@ type ShrinkPoint struct {
 type CandidateResult struct {
 	Name     string    `json:"name"`     // e.g. target:eb, topk:100, hash:1024, prior, target:insample
 	Baseline bool      `json:"baseline"` // the prior alone, or the leaky in-sample target mean
-	Winner   bool      `json:"winner"`   // the best candidate that is not a baseline
+	Winner   bool      `json:"winner"`   // the clear winner of the column (see Verdict)
+	Tie      bool      `json:"tie"`      // the same score on every fold as the best candidate
 	Primary  Stat      `json:"primary"`  // the primary metric over the outer folds
 	PerFold  []float64 `json:"per_fold"` // the primary metric on each outer fold
 	Metrics  []Metric  `json:"metrics"`  // every metric of the task

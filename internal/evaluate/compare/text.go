@@ -73,25 +73,38 @@ func WriteText(w io.Writer, r *Result) error {
 				fmt.Fprintf(&head, "  %9s", metricLabel(m.Name))
 			}
 		}
-		fmt.Fprintf(&head, "  %*s  %6s  %6s  %6s", trainW, "train "+metricLabel(r.Metric), "secs", "cols", "unseen")
+		timed := hasTimings(&c)
+		fmt.Fprintf(&head, "  %*s", trainW, "train "+metricLabel(r.Metric))
+		if timed {
+			fmt.Fprintf(&head, "  %6s", "secs")
+		}
+		fmt.Fprintf(&head, "  %6s  %6s", "cols", "unseen")
 		fmt.Fprintln(bw, strings.TrimRight(head.String(), " "))
 		for i, k := range c.Candidates {
 			name := k.Name
+			rank := fmt.Sprintf("%4d", i+1)
 			if k.Baseline {
+				if i == 0 || !c.Candidates[i-1].Baseline {
+					fmt.Fprintln(bw, " baselines (not ranked):")
+				}
 				name += " (baseline)"
+				rank = "   -"
 			}
 			var line strings.Builder
-			fmt.Fprintf(&line, " %4d  %-*s  %-*s", i+1, nameW, name, primW, num(k.Primary.Mean)+" ± "+num(k.Primary.Std))
+			fmt.Fprintf(&line, " %s  %-*s  %-*s", rank, nameW, name, primW, num(k.Primary.Mean)+" ± "+num(k.Primary.Std))
 			for _, m := range k.Metrics[1:] {
 				fmt.Fprintf(&line, "  %9s", num(m.Mean))
 			}
-			secs := "-"
-			if k.FitSeconds > 0 {
-				secs = fmt.Sprintf("%.2f", k.FitSeconds)
+			fmt.Fprintf(&line, "  %*s", trainW, num(k.TrainPrimary.Mean))
+			if timed {
+				fmt.Fprintf(&line, "  %6.2f", k.FitSeconds)
 			}
-			fmt.Fprintf(&line, "  %*s  %6s  %6d  %5.1f%%", trainW, num(k.TrainPrimary.Mean), secs, k.OutputColumns, 100*k.UnseenShare)
-			if k.Winner {
+			fmt.Fprintf(&line, "  %6d  %5.1f%%", k.OutputColumns, 100*k.UnseenShare)
+			switch {
+			case k.Winner:
 				line.WriteString("  <- winner")
+			case k.Tie:
+				line.WriteString("  = tie with the best")
 			}
 			fmt.Fprintln(bw, line.String())
 		}
@@ -101,87 +114,6 @@ func WriteText(w io.Writer, r *Result) error {
 		fmt.Fprintf(bw, "\nto encode each column by its winner:\n  %s\n", r.EncodeCommand)
 	}
 	return bw.Flush()
-}
-
-// reading is the one-line summary of a column's ranked candidates.
-func reading(cs []CandidateResult, metric string, higher bool) string {
-	label := metricLabel(metric)
-	w := -1
-	for i := range cs {
-		if cs[i].Winner {
-			w = i
-			break
-		}
-	}
-	if w < 0 {
-		return "no candidate could be scored on the held-out rows"
-	}
-	win := &cs[w]
-	gain := func(a, b float64) float64 { // how much a is better than b
-		if higher {
-			return a - b
-		}
-		return b - a
-	}
-	// paired compares the winner with o fold by fold: the mean gain and
-	// the standard deviation of the per-fold gains.
-	paired := func(o *CandidateResult) (float64, float64) {
-		var d []float64
-		for f := range win.PerFold {
-			if f < len(o.PerFold) {
-				d = append(d, gain(win.PerFold[f], o.PerFold[f]))
-			}
-		}
-		return foldMeanStd(d)
-	}
-	var parts []string
-	var prior, insample *CandidateResult
-	for i := range cs {
-		switch {
-		case cs[i].Baseline && cs[i].Name == "prior":
-			prior = &cs[i]
-		case cs[i].Baseline && cs[i].Name == "target:insample":
-			insample = &cs[i]
-		}
-	}
-	if prior != nil && !math.IsNaN(prior.Primary.Mean) {
-		if g, sd := paired(prior); !(g > 2*sd && g > 0) {
-			parts = append(parts, fmt.Sprintf("no encoding clearly beats the prior alone (best: %s, %s %s against %s): the column carries little signal a linear model can use",
-				win.Name, label, num(win.Primary.Mean), num(prior.Primary.Mean)))
-		}
-	}
-	var next *CandidateResult
-	for i := w + 1; i < len(cs); i++ {
-		if !cs[i].Baseline && !math.IsNaN(cs[i].Primary.Mean) {
-			next = &cs[i]
-			break
-		}
-	}
-	if len(parts) == 0 {
-		switch {
-		case next == nil:
-			parts = append(parts, fmt.Sprintf("%s is the only encoding scored", win.Name))
-		default:
-			g, sd := paired(next)
-			if sd > 0 && g < 2*sd {
-				parts = append(parts, fmt.Sprintf("%s and %s are within the fold-to-fold spread (%.4f %s apart, spread %.4f): either will do",
-					win.Name, next.Name, g, label, sd))
-			} else if sd > 0 {
-				parts = append(parts, fmt.Sprintf("%s beats %s by %.4f %s, %.1f times the fold-to-fold spread", win.Name, next.Name, g, label, g/sd))
-			} else {
-				parts = append(parts, fmt.Sprintf("%s beats %s by %.4f %s on every fold alike", win.Name, next.Name, g, label))
-			}
-		}
-		if prior != nil {
-			g, _ := paired(prior)
-			parts = append(parts, fmt.Sprintf("%.4f %s better than the prior alone", g, label))
-		}
-	}
-	if insample != nil && !math.IsNaN(insample.TrainPrimary.Mean) {
-		parts = append(parts, fmt.Sprintf("the in-sample mean scores %s on its own training rows but %s held out (never use it)",
-			num(insample.TrainPrimary.Mean), num(insample.Primary.Mean)))
-	}
-	return strings.Join(parts, "; ")
 }
 
 // WriteJSON writes the result as indented JSON; metrics that are not

@@ -44,16 +44,17 @@ for rows in "${ROWS[@]}"; do
 			# shellcheck disable=SC2086 # METHODS may hold several words
 			/usr/bin/time -f '%e %M' -o "$WORK/t.txt" "$WORK/manyfold-$side" encode "$d/shipments.parquet" --target late \
 				--columns dest_postcode,sender_account,shipment_id --methods $m --folds 5 --seed 3 --fold-column fold \
-				--out "$WORK/out/o.parquet" --tables "$WORK/out/t" --threads 2 >/dev/null
+				--out "$WORK/out/o.parquet" --tables "$WORK/out/t" --threads 2 >/dev/null 2>&1
 			echo "$rows $side $(cat "$WORK/t.txt")" | tee -a "$WORK/results.txt"
 		done
 	done
 done
 echo "medians (rows, build, wall s, peak RSS KB):"
+median() { sort -n | awk '{ v[NR] = $1 } END { if (NR % 2) print v[(NR + 1) / 2]; else print (v[NR / 2] + v[NR / 2 + 1]) / 2 }'; }
 for rows in "${ROWS[@]}"; do
 	for side in A B; do
-		awk -v r="$rows" -v s="$side" '$1 == r && $2 == s { w[n] = $3; m[n] = $4; n++ }
-			END { asort(w); asort(m); i = int((n + 1) / 2); j = int(n / 2) + 1
-				printf "%s %s %.2f %d\n", r, s, (w[i] + w[j]) / 2, (m[i] + m[j]) / 2 }' "$WORK/results.txt"
+		w=$(awk -v r="$rows" -v s="$side" '$1 == r && $2 == s { print $3 }' "$WORK/results.txt" | median)
+		m=$(awk -v r="$rows" -v s="$side" '$1 == r && $2 == s { print $4 }' "$WORK/results.txt" | median)
+		echo "$rows $side $w $m"
 	done
 done

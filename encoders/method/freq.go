@@ -95,13 +95,13 @@ func (f *freqFit) Encode(r *Rows, dst []table.Column) {
 		return 0
 	}
 	if f.e.share {
-		out := floats(&dst[0], r.N)
+		out := dst[0].ResetFloats(r.N)
 		for i := range out {
 			out[i] = value(i)
 		}
 		return
 	}
-	out := ints(&dst[0], r.N)
+	out := dst[0].ResetInts(r.N)
 	for i := range out {
 		out[i] = int64(value(i))
 	}
@@ -112,7 +112,7 @@ func (f *freqFit) TableColumns() []table.Field {
 }
 
 func (f *freqFit) FillTable(lv *Levels, dst []table.Column) {
-	out := floats(&dst[0], len(lv.Slots))
+	out := dst[0].ResetFloats(len(lv.Slots))
 	for i, l := range lv.Slots {
 		switch {
 		case f.stored != nil:

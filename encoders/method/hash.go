@@ -116,10 +116,10 @@ func (f *hashFit) Encoder(Pass) Encoder { return f }
 
 func (f *hashFit) Encode(r *Rows, dst []table.Column) {
 	src := r.Values
-	bucket := ints(&dst[0], r.N)
+	bucket := dst[0].ResetInts(r.N)
 	var sign []int64
 	if f.e.signed {
-		sign = ints(&dst[1], r.N)
+		sign = dst[1].ResetInts(r.N)
 	}
 	var scratch []byte
 	for i := 0; i < r.N; i++ {
@@ -143,7 +143,7 @@ func (f *hashFit) TableColumns() []table.Field {
 }
 
 func (f *hashFit) FillTable(lv *Levels, dst []table.Column) {
-	out := ints(&dst[0], len(lv.Slots))
+	out := dst[0].ResetInts(len(lv.Slots))
 	for i := range lv.Slots {
 		out[i] = int64(f.bucket(lv.Bytes(i)))
 	}

@@ -94,7 +94,7 @@ func (f *oneHotFit) Encoder(Pass) Encoder { return f }
 func (f *oneHotFit) Encode(r *Rows, dst []table.Column) {
 	cols := make([][]int64, f.n)
 	for j := range cols {
-		cols[j] = ints(&dst[j], r.N)
+		cols[j] = dst[j].ResetInts(r.N)
 		clear(cols[j])
 	}
 	for i, l := range r.Slots {

@@ -280,11 +280,11 @@ type targetEncoder struct {
 func (te *targetEncoder) Encode(r *Rows, dst []table.Column) {
 	f := te.f
 	if te.pass == KFold && f.fast() {
-		te.encodeFolds(r, floats(&dst[0], r.N))
+		te.encodeFolds(r, dst[0].ResetFloats(r.N))
 		return
 	}
 	for o := range f.full {
-		te.encodeOutput(r, o, floats(&dst[o], r.N))
+		te.encodeOutput(r, o, dst[o].ResetFloats(r.N))
 	}
 }
 
@@ -441,7 +441,7 @@ func (f *targetFit) FillTable(lv *Levels, dst []table.Column) {
 	}
 	c := f.c
 	for o := range f.full {
-		out := floats(&dst[o], len(lv.Slots))
+		out := dst[o].ResetFloats(len(lv.Slots))
 		ft := &f.full[o]
 		for i := range lv.Slots {
 			if i == 0 && lv.Unkept0 {
@@ -457,7 +457,7 @@ func (f *targetFit) FillTable(lv *Levels, dst []table.Column) {
 // levels of lv, one level at a time (fullValue).
 func (f *targetFit) fillValues(lv *Levels, dst []table.Column) {
 	for o := range f.full {
-		out := floats(&dst[o], len(lv.Slots))
+		out := dst[o].ResetFloats(len(lv.Slots))
 		for i, l := range lv.Slots {
 			out[i] = f.fullValue(o, l)
 		}
@@ -651,24 +651,6 @@ type ParentTabler interface {
 	ParentTableColumns() []table.Field
 	FillParentTable(lv *Levels, dst []table.Column)
 	LoadParentTable(slots []int32, src []table.Column) error
-}
-
-func floats(c *table.Column, n int) []float64 {
-	c.Form, c.Nulls = table.FormFloat64, nil
-	if cap(c.Floats) < n {
-		c.Floats = make([]float64, n)
-	}
-	c.Floats = c.Floats[:n]
-	return c.Floats
-}
-
-func ints(c *table.Column, n int) []int64 {
-	c.Form, c.Nulls = table.FormInt64, nil
-	if cap(c.Ints) < n {
-		c.Ints = make([]int64, n)
-	}
-	c.Ints = c.Ints[:n]
-	return c.Ints
 }
 
 func (e *targetEnc) Names() []string { return []string{"tmean"} }

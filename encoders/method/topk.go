@@ -124,7 +124,7 @@ func (f *topKFit) Outputs() []table.Field {
 func (f *topKFit) Encoder(Pass) Encoder { return f }
 
 func (f *topKFit) Encode(r *Rows, dst []table.Column) {
-	out := ints(&dst[0], r.N)
+	out := dst[0].ResetInts(r.N)
 	for i, l := range r.Slots {
 		out[i] = f.code(l)
 	}
@@ -135,7 +135,7 @@ func (f *topKFit) TableColumns() []table.Field {
 }
 
 func (f *topKFit) FillTable(lv *Levels, dst []table.Column) {
-	out := ints(&dst[0], len(lv.Slots))
+	out := dst[0].ResetInts(len(lv.Slots))
 	for i, l := range lv.Slots {
 		out[i] = int64(f.codes[l])
 	}

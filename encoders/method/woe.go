@@ -158,7 +158,7 @@ type woeEncoder struct {
 
 func (we *woeEncoder) Encode(r *Rows, dst []table.Column) {
 	f, c := we.f, we.f.c
-	out := floats(&dst[0], r.N)
+	out := dst[0].ResetFloats(r.N)
 	for i := 0; i < r.N; i++ {
 		l := int(r.Slots[i])
 		if l < 0 || !c.Keep[l] {
@@ -200,7 +200,7 @@ func (we *woeEncoder) Encode(r *Rows, dst []table.Column) {
 func (f *woeFit) TableColumns() []table.Field { return f.Outputs() }
 
 func (f *woeFit) FillTable(lv *Levels, dst []table.Column) {
-	out := floats(&dst[0], len(lv.Slots))
+	out := dst[0].ResetFloats(len(lv.Slots))
 	for i, l := range lv.Slots {
 		if f.stored != nil {
 			out[i] = f.stored[l]

@@ -295,7 +295,7 @@ func (e *encodePass) batch(b *table.Batch) error {
 		}
 	})
 	if e.foldAt >= 0 {
-		in := ints(&out.Cols[e.foldAt], n)
+		in := out.Cols[e.foldAt].ResetInts(n)
 		for i, f := range fold {
 			in[i] = int64(f)
 		}
@@ -338,24 +338,6 @@ func (m *Model) EncodeReads(use Use) []string {
 		}
 	}
 	return names
-}
-
-func floats(c *table.Column, n int) []float64 {
-	c.Form, c.Nulls = table.FormFloat64, nil
-	if cap(c.Floats) < n {
-		c.Floats = make([]float64, n)
-	}
-	c.Floats = c.Floats[:n]
-	return c.Floats
-}
-
-func ints(c *table.Column, n int) []int64 {
-	c.Form, c.Nulls = table.FormInt64, nil
-	if cap(c.Ints) < n {
-		c.Ints = make([]int64, n)
-	}
-	c.Ints = c.Ints[:n]
-	return c.Ints
 }
 
 // GroupColumn returns the column whose values make the folds (--fold-by

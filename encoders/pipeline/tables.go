@@ -434,7 +434,7 @@ func (m *Model) saveCol(path string, c *Col, parent bool) error {
 			}
 		}
 		if parentRow != nil {
-			pr := ints(&b.Cols[len(b.Cols)-1], n)
+			pr := b.Cols[len(b.Cols)-1].ResetInts(n)
 			for i, l := range lv.Slots {
 				pr[i] = parentRow[l]
 			}

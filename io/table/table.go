@@ -164,6 +164,28 @@ func (c *Column) Len() int {
 }
 
 // IsNull reports whether row i is null.
+// ResetFloats makes c a float64 column of n values without nulls, reusing
+// its storage, and returns the values to fill.
+func (c *Column) ResetFloats(n int) []float64 {
+	c.Form, c.Nulls = FormFloat64, nil
+	if cap(c.Floats) < n {
+		c.Floats = make([]float64, n)
+	}
+	c.Floats = c.Floats[:n]
+	return c.Floats
+}
+
+// ResetInts makes c an int64 column of n values without nulls, reusing its
+// storage, and returns the values to fill.
+func (c *Column) ResetInts(n int) []int64 {
+	c.Form, c.Nulls = FormInt64, nil
+	if cap(c.Ints) < n {
+		c.Ints = make([]int64, n)
+	}
+	c.Ints = c.Ints[:n]
+	return c.Ints
+}
+
 func (c *Column) IsNull(i int) bool { return c.Nulls != nil && c.Nulls[i] }
 
 // Bytes returns the text of row i when the column is in text or dictionary

@@ -57,6 +57,7 @@ func runCompare(args []string) (err error) {
 	target := fs.String("target", "", "target column")
 	columns := fs.StringSlice("columns", nil, "categorical columns to compare, comma separated")
 	cands := fs.String("candidates", compare.DefaultCandidates, "candidates, comma separated")
+	joint := fs.Bool("joint", false, "also score one model over every column's winning encodings together, against the best column alone")
 	task := fs.String("task", "", "binary, multiclass or regression (default: detected from the target)")
 	nfolds := fs.Int("folds", 5, "outer folds")
 	inner := fs.Int("inner-folds", 5, "inner folds for the training rows' target statistics")
@@ -94,7 +95,7 @@ func runCompare(args []string) (err error) {
 	opts := compare.Options{
 		Target: *target, Task: *task, Columns: *columns, Candidates: list,
 		Folds: *nfolds, InnerFolds: *inner, Seed: *seed, FoldBy: rule, With: *with, Sample: *sample,
-		Lambda: *lambda, Threads: *threads, NoTimings: !*timings,
+		Lambda: *lambda, Threads: *threads, NoTimings: !*timings, Joint: *joint,
 	}
 	if err := opts.Validate(); err != nil {
 		return err

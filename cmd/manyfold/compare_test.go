@@ -49,7 +49,7 @@ func TestCompareSameSeed(t *testing.T) {
 	if err := json.Unmarshal(ja, &res); err != nil {
 		t.Fatal(err)
 	}
-	if res.Task != "binary" || res.Metric != "auc" || len(res.Columns) != 2 || len(res.Columns[0].Candidates) != 6 {
+	if res.Task != "binary" || res.Metric != "auc" || len(res.Columns) != 2 || len(res.Columns[0].Candidates) != 7 {
 		t.Errorf("JSON: %+v", res)
 	}
 	for _, want := range []string{"== dest_postcode:", "== sender_account:", "reading: ", "prior (baseline)", "target:insample (baseline)", "baselines (not ranked):"} {

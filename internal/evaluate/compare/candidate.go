@@ -29,9 +29,10 @@ type Candidate struct {
 // winner).
 func (c Candidate) IsBaseline() bool { return c.Baseline != NotBaseline }
 
-// DefaultCandidates is the default list: each method once, plus the two
-// baselines.
-const DefaultCandidates = "prior,target:insample,target:eb,freq,topk:100,hash:1024"
+// DefaultCandidates is the default list: the two baselines, the target
+// mean, frequency, top-k codes and hash buckets each alone, and the target
+// mean with the frequency together, which scan suggests for most columns.
+const DefaultCandidates = "prior,target:insample,target:eb,target:eb+freq,freq,topk:100,hash:1024"
 
 // ParseCandidates parses a comma-separated list of candidates, each a
 // baseline (prior, target:insample) or a list of encodings joined by '+'

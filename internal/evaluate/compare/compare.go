@@ -49,7 +49,10 @@ type Options struct {
 	Lambda    float64 // L2 weight of the models; 0 means DefaultLambda
 	Threads   int     // models fitted at once; the result does not depend on it
 	NoTimings bool    // leave FitSeconds at 0, for byte-identical output
-	Progress  func(rows int64)
+	// Joint also fits one model over every column's winning encodings
+	// together, on the same folds (Result.Joint).
+	Joint    bool
+	Progress func(rows int64)
 }
 
 // Parameters that the package's messages name (param.Name), besides
@@ -412,6 +415,13 @@ func run(r table.Reader, opt Options) (*Result, error) {
 		res.Columns = append(res.Columns, cr)
 	}
 	res.EncodeCommand = encodeCommand(res, opt)
+	if opt.Joint {
+		j, err := ev.joint(res)
+		if err != nil {
+			return nil, err
+		}
+		res.Joint = j
+	}
 	return res, nil
 }
 
@@ -534,8 +544,9 @@ type evaluator struct {
 	// useIn[f][g]: those whose inner fold is not g either.
 	useOut [][]bool
 	useIn  [][][]bool
-	train  [][]int // per outer fold: the sample rows it trains on
-	test   [][]int // per outer fold: its held-out sample rows
+	states []*colState // per column, with Options.Joint
+	train  [][]int     // per outer fold: the sample rows it trains on
+	test   [][]int     // per outer fold: its held-out sample rows
 }
 
 func (ev *evaluator) prepare() error {
@@ -675,6 +686,9 @@ type foldScore struct {
 
 func (ev *evaluator) column(ci int, name string, st *colstats.Stats) (ColumnResult, error) {
 	cs := &colState{st: st, order: st.Sorted(), slot: ev.smp.slot[ci], views: make([]foldView, ev.ko)}
+	if ev.opt.Joint {
+		ev.states = append(ev.states, cs)
+	}
 	n := st.NumLevels()
 	cs.foldRows = make([][]uint64, ev.ko)
 	for f := range cs.foldRows {

@@ -317,7 +317,7 @@ func TestParseCandidates(t *testing.T) {
 		want []string
 		err  bool
 	}{
-		{in: DefaultCandidates, want: []string{"prior", "target:insample", "target:eb", "freq", "topk:100", "hash:1024"}},
+		{in: DefaultCandidates, want: []string{"prior", "target:insample", "target:eb", "target:eb+freq", "freq", "topk:100", "hash:1024"}},
 		{in: "target,topk,hash", want: []string{"target:eb", "topk:100", "hash:1024"}},
 		{in: "target:blend=20,10,target:m=50", want: []string{"target:blend=20,10", "target:m=50"}},
 		{in: "target:blend=20,10:prior=prefix3,freq", want: []string{"target:blend=20,10:prior=prefix3", "freq"}},
@@ -414,5 +414,33 @@ func TestPrefixPriorCarriesHierarchy(t *testing.T) {
 	t.Logf("RMSE: target:eb %.4f, target:eb:prior=prefix2 %.4f", plain.Primary.Mean, prefix.Primary.Mean)
 	if prefix.Primary.Mean > 1.2 || plain.Primary.Mean < 2.5 {
 		t.Errorf("RMSE with the prefix prior %.4f (want about 1, below 1.2), without %.4f (want about 3, above 2.5)", prefix.Primary.Mean, plain.Primary.Mean)
+	}
+}
+
+// TestJointModel: on the parcel table, whose late deliveries depend on the
+// postcode and on the account independently, one model over both
+// columns' winners beats the better column alone, and the joint reading's
+// figures are the JSON's.
+func TestJointModel(t *testing.T) {
+	path := parcelsFile(t, parcels.Config{Rows: 30000, Seed: 5, Postcodes: 2000, Accounts: 3000})
+	cands, _ := ParseCandidates("prior,target:eb,freq")
+	res := runFile(t, path, Options{Target: "late", Columns: []string{"dest_postcode", "sender_account"}, Candidates: cands,
+		Folds: 5, InnerFolds: 3, Seed: 2, NoTimings: true, Joint: true})
+	j := res.Joint
+	if j == nil || len(j.Columns) != 2 || j.OverBestColumn == nil {
+		t.Fatalf("joint result %+v", j)
+	}
+	t.Logf("%s", j.Reading)
+	if !(j.OverBestColumn.Low > 0) {
+		t.Errorf("the joint model gains %.4f AUC over %s (interval %.4f to %.4f); want a gain whose interval lies above 0",
+			j.OverBestColumn.Mean, j.OverBestColumn.Over, j.OverBestColumn.Low, j.OverBestColumn.High)
+	}
+	if !strings.Contains(j.Reading, num(j.Primary.Mean)) || !strings.Contains(j.Reading, num(j.OverBestColumn.Low)) {
+		t.Errorf("reading %q lacks the JSON's figures", j.Reading)
+	}
+	// Without --joint there is none.
+	res = runFile(t, path, Options{Target: "late", Columns: []string{"dest_postcode"}, Candidates: cands, Folds: 3, InnerFolds: 3, Seed: 2, NoTimings: true})
+	if res.Joint != nil {
+		t.Error("a joint result without Joint")
 	}
 }

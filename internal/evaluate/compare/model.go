@@ -34,12 +34,19 @@ func (ev *evaluator) run(cs *colState, cand Candidate, f int) (fs foldScore) {
 	}
 	fs.outCols = dtr.NDense - len(ev.smp.with) + dtr.NInd
 	fs.seconds = measure(start)
+	fs.train, fs.test, fs.err = ev.score(dtr, dte, train, test)
+	return fs
+}
+
+// score imputes the --with columns' empty values, standardises both
+// designs on the training rows, fits the task's model and returns the
+// metrics on the training and the held-out rows.
+func (ev *evaluator) score(dtr, dte *linear.Design, train, test []int) (tr, te []float64, err error) {
 	ev.impute(dtr, dte, dtr.NDense-len(ev.smp.with))
 	sd := linear.FitStandardizer(dtr)
 	sd.Apply(dtr)
 	sd.Apply(dte)
-	fs.train, fs.test, fs.err = ev.fitScore(dtr, dte, train, test)
-	return fs
+	return ev.fitScore(dtr, dte, train, test)
 }
 
 // designs encodes the training and the held-out rows of outer fold f with
@@ -55,64 +62,90 @@ func (ev *evaluator) run(cs *colState, cand Candidate, f int) (fs foldScore) {
 // levels (method.Coded: top-k codes, hash buckets), which becomes one
 // indicator column per code.
 func (ev *evaluator) designs(cs *colState, cand Candidate, f int) (dtr, dte *linear.Design, err error) {
+	var out [2]*linear.Design
+	for k, set := range ev.sets(cand, f) {
+		var fs features
+		if err := ev.encodeSet(cs, cand, f, set.rows, set.pass, &fs); err != nil {
+			return nil, nil, err
+		}
+		out[k] = ev.design(set.rows, fs.dense, fs.ind, fs.nind)
+	}
+	return out[0], out[1], nil
+}
+
+// rowSet is the sample rows of one side of an outer fold and the pass
+// that encodes them.
+type rowSet struct {
+	rows []int
+	pass method.Pass
+}
+
+// sets returns outer fold f's training rows, encoded by the k-fold pass
+// (apply's for the in-sample baseline), and its held-out rows, encoded by
+// apply's.
+func (ev *evaluator) sets(cand Candidate, f int) [2]rowSet {
 	trainPass := method.KFold
 	if cand.Baseline == InSampleBaseline {
 		trainPass = method.Apply
 	}
-	sets := []struct {
-		rows []int
-		pass method.Pass
-	}{{ev.train[f], trainPass}, {ev.test[f], method.Apply}}
-	var out [2]*linear.Design
-	for k, set := range sets {
-		r := ev.sampleRows(cs, set.rows, cand.Encodings)
-		var dense [][]float64 // per dense feature, per row
-		var ind [][]int32     // per coded output, per row: the indicator column, -1 none
-		nind := 0
-		for _, e := range cand.Encodings {
-			view := cs.view(ev, f, e.Needs().Prior)
-			fit := e.Fit(view)
-			// A prefix prior's parent level of each row.
-			r.ParentSlots = nil
-			if view.ParentOf != nil {
-				r.ParentSlots = make([]int32, r.N)
-				for i, l := range r.Slots {
-					r.ParentSlots[i] = view.ParentOf[l]
-				}
-			}
-			outs := fit.Outputs()
-			dst := make([]table.Column, len(outs))
-			fit.Encoder(set.pass).Encode(r, dst)
-			n, first := 0, int64(0)
-			if c, ok := fit.(method.Coded); ok {
-				n, first = c.Codes()
-			}
-			if nind+n > maxIndicators {
-				return nil, nil, fmt.Errorf("%s: %d indicator columns; a model takes at most %d", e, nind+n, maxIndicators)
-			}
-			for o := range outs {
-				if o == 0 && n > 0 {
-					col := make([]int32, r.N)
-					for i, v := range dst[0].Ints {
-						col[i] = -1
-						if v >= first && v-first < int64(n) {
-							col[i] = int32(nind + int(v-first))
-						}
-					}
-					ind = append(ind, col)
-					nind += n
-					continue
-				}
-				x := make([]float64, r.N)
-				for i := range x {
-					x[i], _, _ = dst[o].Float(i)
-				}
-				dense = append(dense, x)
+	return [2]rowSet{{ev.train[f], trainPass}, {ev.test[f], method.Apply}}
+}
+
+// features are a model's columns before the design is built: dense
+// features (per feature, per row) and coded outputs (per output, per row:
+// the indicator column, -1 none), nind indicator columns in all.
+type features struct {
+	dense [][]float64
+	ind   [][]int32
+	nind  int
+}
+
+// encodeSet adds to fs the outputs of the candidate's encodings, fitted on
+// outer fold f's view of the column, for the sample rows rows by pass.
+func (ev *evaluator) encodeSet(cs *colState, cand Candidate, f int, rows []int, pass method.Pass, fs *features) error {
+	r := ev.sampleRows(cs, rows, cand.Encodings)
+	for _, e := range cand.Encodings {
+		view := cs.view(ev, f, e.Needs().Prior)
+		fit := e.Fit(view)
+		// A prefix prior's parent level of each row.
+		r.ParentSlots = nil
+		if view.ParentOf != nil {
+			r.ParentSlots = make([]int32, r.N)
+			for i, l := range r.Slots {
+				r.ParentSlots[i] = view.ParentOf[l]
 			}
 		}
-		out[k] = ev.design(set.rows, dense, ind, nind)
+		outs := fit.Outputs()
+		dst := make([]table.Column, len(outs))
+		fit.Encoder(pass).Encode(r, dst)
+		n, first := 0, int64(0)
+		if c, ok := fit.(method.Coded); ok {
+			n, first = c.Codes()
+		}
+		if fs.nind+n > maxIndicators {
+			return fmt.Errorf("%s: %d indicator columns; a model takes at most %d", e, fs.nind+n, maxIndicators)
+		}
+		for o := range outs {
+			if o == 0 && n > 0 {
+				col := make([]int32, r.N)
+				for i, v := range dst[0].Ints {
+					col[i] = -1
+					if v >= first && v-first < int64(n) {
+						col[i] = int32(fs.nind + int(v-first))
+					}
+				}
+				fs.ind = append(fs.ind, col)
+				fs.nind += n
+				continue
+			}
+			x := make([]float64, r.N)
+			for i := range x {
+				x[i], _, _ = dst[o].Float(i)
+			}
+			fs.dense = append(fs.dense, x)
+		}
 	}
-	return out[0], out[1], nil
+	return nil
 }
 
 // maxIndicators bounds a model's indicator columns (top-k codes, hash

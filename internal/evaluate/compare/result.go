@@ -30,6 +30,8 @@ type Result struct {
 	// EncodeCommand is the manyfold encode command that carries out the
 	// verdict: each column with a winner encoded by it ("" for none).
 	EncodeCommand string `json:"encode_command"`
+	// Joint is the model over every column's winner at once (--joint).
+	Joint *JointResult `json:"joint,omitempty"`
 }
 
 // ColumnResult holds the candidates of one categorical column, best first.

@@ -110,6 +110,13 @@ func WriteText(w io.Writer, r *Result) error {
 		}
 		fmt.Fprintf(bw, "reading: %s\n", c.Reading)
 	}
+	if j := r.Joint; j != nil {
+		fmt.Fprintf(bw, "\n== joint: one model over every column's winner ==\n")
+		if len(j.Metrics) > 0 {
+			fmt.Fprintf(bw, " %s: %s %s ± %s\n", j.Encodings, metricLabel(r.Metric), num(j.Primary.Mean), num(j.Primary.Std))
+		}
+		fmt.Fprintf(bw, "reading: %s\n", j.Reading)
+	}
 	if r.EncodeCommand != "" {
 		fmt.Fprintf(bw, "\nto encode each column by its winner:\n  %s\n", r.EncodeCommand)
 	}

@@ -16,7 +16,7 @@ import (
 const Level = 0.05
 
 // testName says which test the verdict uses.
-const testName = "corrected resampled t-test (Nadeau and Bengio, Machine Learning 52, 2003) over the outer folds, 95% intervals"
+const testName = "corrected resampled t-test (Nadeau and Bengio, Machine Learning 52, 2003) over the outer folds, 95% intervals; the winner is the simplest candidate the test cannot tell from the best, when it beats the prior"
 
 // Gain is one candidate's gain over another over the outer folds, in the
 // primary metric, positive when it is better (higher AUC, lower RMSE).
@@ -33,12 +33,20 @@ type Gain struct {
 type Verdict struct {
 	Test  string  `json:"test"`
 	Level float64 `json:"level"`
-	// Winner is the best candidate when it beats both the prior and the
-	// runner-up by the test; null otherwise ("no clear winner").
-	Winner       *string  `json:"winner"`
-	Best         string   `json:"best"` // the best candidate that is not a baseline ("" when none was scored)
-	BestMean     float64  `json:"best_mean"`
-	OverPrior    *Gain    `json:"over_prior"`     // the best against the prior baseline
+	// Winner is the choice when it beats the prior by the test; null
+	// otherwise ("no clear winner").
+	Winner   *string `json:"winner"`
+	Best     string  `json:"best"` // the best candidate that is not a baseline ("" when none was scored)
+	BestMean float64 `json:"best_mean"`
+	// Equivalent lists the candidates the test cannot tell from the best
+	// (the 95% interval of the best's gain over them reaches 0), and
+	// Choice is the simplest of the best and those: the one with the
+	// fewest model columns, so that an encoding that adds nothing
+	// measurable (target:eb+freq beside target:eb) is not chosen. It is
+	// the best itself when the best beats every other candidate.
+	Equivalent   []string `json:"equivalent"`
+	Choice       string   `json:"choice"`
+	OverPrior    *Gain    `json:"over_prior"`     // the choice against the prior baseline
 	OverRunnerUp *Gain    `json:"over_runner_up"` // the best against the next candidate
 	Ties         []string `json:"ties"`           // candidates with the best's score on every fold
 	// The in-sample baseline's score on its own training rows and held
@@ -123,9 +131,6 @@ func judge(cs []CandidateResult, higher bool, testShare float64) Verdict {
 		return v
 	}
 	v.Best, v.BestMean = best.Name, best.Primary.Mean
-	if prior != nil {
-		v.OverPrior = gain(best, prior)
-	}
 	for i := range cs {
 		c := &cs[i]
 		if c.Baseline || c == best || math.IsNaN(c.Primary.Mean) {
@@ -143,11 +148,30 @@ func judge(cs []CandidateResult, higher bool, testShare float64) Verdict {
 	if len(v.Ties) > 0 {
 		v.OverRunnerUp = gain(best, &cs[slices.IndexFunc(cs, func(c CandidateResult) bool { return c.Name == v.Ties[0] })])
 	}
-	beats := func(g *Gain) bool { return g == nil || (g.Low > 0 && !g.Identical) }
-	if prior != nil && beats(v.OverPrior) && beats(v.OverRunnerUp) {
-		name := best.Name
+	// The candidates the test cannot tell from the best (exact ties
+	// included); the choice is the simplest of them, the one with the
+	// fewest model columns (then the better ranked).
+	choice := best
+	for i := range cs {
+		c := &cs[i]
+		if c.Baseline || c == best || math.IsNaN(c.Primary.Mean) {
+			continue
+		}
+		if g := gain(best, c); g.Identical || !(g.Low > 0) {
+			v.Equivalent = append(v.Equivalent, c.Name)
+			if c.OutputColumns < choice.OutputColumns {
+				choice = c
+			}
+		}
+	}
+	v.Choice = choice.Name
+	if prior != nil {
+		v.OverPrior = gain(choice, prior)
+	}
+	if prior != nil && v.OverPrior.Low > 0 && !v.OverPrior.Identical {
+		name := choice.Name
 		v.Winner = &name
-		best.Winner = true
+		choice.Winner = true
 	}
 	return v
 }
@@ -166,16 +190,19 @@ func (v *Verdict) reading(metric string) string {
 		return fmt.Sprintf("%s %s by %s %s (95%% interval %s to %s, p %s)", verb(x.Mean), x.Over, num(math.Abs(x.Mean)), label, num(x.Low), num(x.High), pval(x.P))
 	}
 	var parts []string
-	if v.Winner != nil {
+	switch {
+	case v.Winner != nil && len(v.Equivalent) == 0:
 		parts = append(parts, "winner "+*v.Winner)
-	} else {
+	case v.Winner != nil:
+		parts = append(parts, fmt.Sprintf("winner %s, the simplest of the %d candidates the test cannot tell from the best (%s)", *v.Winner, len(v.Equivalent)+1, strings.Join(append([]string{v.Best}, v.Equivalent...), ", ")))
+	default:
 		parts = append(parts, "no clear winner (best "+v.Best+")")
 	}
 	if v.OverPrior != nil {
-		parts = append(parts, g(v.OverPrior))
+		parts = append(parts, v.Choice+" "+g(v.OverPrior))
 	}
 	if v.OverRunnerUp != nil {
-		parts = append(parts, g(v.OverRunnerUp))
+		parts = append(parts, v.Best+" "+g(v.OverRunnerUp))
 	}
 	if v.Winner == nil && v.OverPrior != nil && !(v.OverPrior.Low > 0) {
 		parts = append(parts, "the column carries little signal a linear model can use")

@@ -1,0 +1,131 @@
+package compare
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"strings"
+
+	"manyfold/internal/evaluate/ttest"
+)
+
+// JointResult is one model over every column's winning encodings at once,
+// scored on the same outer folds as the columns one at a time: what the set
+// of encodings buys beyond its best column alone.
+type JointResult struct {
+	Columns   []string  `json:"columns"`   // the columns with a winner, in the order given
+	Encodings string    `json:"encodings"` // their winners, in encode's per-column grammar
+	Primary   Stat      `json:"primary"`
+	PerFold   []float64 `json:"per_fold"`
+	Metrics   []Metric  `json:"metrics"`
+	// BestColumn is the column whose winner alone scores best, and
+	// OverBestColumn the joint model's gain over it by the verdict's test.
+	BestColumn     string `json:"best_column"`
+	OverBestColumn *Gain  `json:"over_best_column"`
+	Reading        string `json:"reading"`
+}
+
+// MarshalJSON writes non-finite per-fold values as null.
+func (j JointResult) MarshalJSON() ([]byte, error) {
+	type plain JointResult
+	per := make([]jsonNum, len(j.PerFold))
+	for i, v := range j.PerFold {
+		per[i] = jsonNum(v)
+	}
+	return json.Marshal(struct {
+		plain
+		PerFold []jsonNum `json:"per_fold"`
+	}{plain(j), per})
+}
+
+// joint fits, on each outer fold, one model over the winners of every
+// column that has one (each encoding fitted on its own column's view of the
+// fold, as alone), and compares it with the best of those columns alone.
+// With fewer than two winners there is nothing to join: the reading says
+// so and no model is fitted.
+func (ev *evaluator) joint(res *Result) (*JointResult, error) {
+	j := &JointResult{}
+	var states []*colState
+	var cands []Candidate
+	var plan []string
+	best := -1
+	higher := res.HigherBetter
+	for ci, c := range res.Columns {
+		if c.Winner == nil {
+			continue
+		}
+		cand, err := ParseCandidate(*c.Winner)
+		if err != nil {
+			return nil, err
+		}
+		states, cands = append(states, ev.states[ci]), append(cands, cand)
+		j.Columns = append(j.Columns, c.Column)
+		plan = append(plan, c.Column+"="+cand.Name)
+		if best < 0 || better(c.Verdict.BestMean, res.Columns[best].Verdict.BestMean, higher) {
+			best = ci
+		}
+	}
+	j.Encodings = strings.Join(plan, ",")
+	if len(states) < 2 {
+		j.Reading = fmt.Sprintf("%d column(s) with a winner: nothing to join", len(states))
+		return j, nil
+	}
+	names := metricNames(ev.task)
+	scores := make([]foldScore, ev.ko)
+	parallel(ev.ko, ev.opt.Threads, func(f int) {
+		var sides [2]features
+		for k, set := range ev.sets(Candidate{}, f) {
+			for i, cs := range states {
+				if err := ev.encodeSet(cs, cands[i], f, set.rows, set.pass, &sides[k]); err != nil {
+					scores[f].err = err
+					return
+				}
+			}
+		}
+		dtr := ev.design(ev.train[f], sides[0].dense, sides[0].ind, sides[0].nind)
+		dte := ev.design(ev.test[f], sides[1].dense, sides[1].ind, sides[1].nind)
+		scores[f].train, scores[f].test, scores[f].err = ev.score(dtr, dte, ev.train[f], ev.test[f])
+	})
+	per := make([][]float64, len(names))
+	for f, s := range scores {
+		if s.err != nil {
+			return nil, fmt.Errorf("the joint model, outer fold %d: %w", f+1, s.err)
+		}
+		for m := range names {
+			per[m] = append(per[m], s.test[m])
+		}
+	}
+	for m, nm := range names {
+		mean, std := foldMeanStd(per[m])
+		j.Metrics = append(j.Metrics, Metric{Name: nm, Stat: Stat{mean, std}})
+	}
+	j.Primary, j.PerFold = j.Metrics[0].Stat, per[0]
+	bc := &res.Columns[best]
+	j.BestColumn = bc.Column
+	for _, k := range bc.Candidates {
+		if k.Winner {
+			x, y := j.PerFold, k.PerFold
+			if !higher {
+				x, y = y, x
+			}
+			r := ttest.Corrected(x, y, ev.testShare(), Level)
+			j.OverBestColumn = &Gain{Over: bc.Column + "=" + k.Name, Mean: r.Diff, Low: r.Low, High: r.Hi, P: r.P, Identical: r.Identical}
+		}
+	}
+	g := j.OverBestColumn
+	label := metricLabel(names[0])
+	j.Reading = fmt.Sprintf("one model over %d columns' winners scores %s %s; it %s %s alone by %s %s (95%% interval %s to %s, p %s)",
+		len(states), label, num(j.Primary.Mean), verb(g.Mean), g.Over, num(math.Abs(g.Mean)), label, num(g.Low), num(g.High), pval(g.P))
+	return j, nil
+}
+
+// better reports whether a is a better value of a metric than b.
+func better(a, b float64, higher bool) bool {
+	if math.IsNaN(b) {
+		return !math.IsNaN(a)
+	}
+	if higher {
+		return a > b
+	}
+	return a < b
+}

@@ -59,7 +59,7 @@ type inputFlags struct {
 const maxFieldLimit = 1 << 30
 
 func (f *inputFlags) add(fs *pflag.FlagSet) {
-	fs.StringVar(&f.delim, "delimiter", ",", "CSV field delimiter: , ; tab or |")
+	fs.StringVar(&f.delim, "delimiter", "", "CSV field delimiter: , ; tab or | (default: tab for a .tsv file, , otherwise)")
 	fs.BoolVar(&f.noHeader, "no-header", false, "CSV input has no header row; columns are named col1, col2, ...")
 	fs.StringSliceVar(&f.types, "type", nil, "override an inferred CSV column type, COL=text|int|float|bool (repeatable)")
 	fs.IntVar(&f.maxField, "max-field-bytes", csvio.DefaultMaxFieldBytes, "longest CSV field accepted, in bytes as written (1 to 1073741824); a longer one is an error")
@@ -68,6 +68,8 @@ func (f *inputFlags) add(fs *pflag.FlagSet) {
 func (f *inputFlags) options() (tableio.ReadOptions, error) {
 	var o csvio.Options
 	switch f.delim {
+	case "":
+		// 0: the input's extension decides (tableio.DelimiterOf).
 	case ",", "comma":
 		o.Delimiter = ','
 	case ";", "semicolon":

@@ -6,12 +6,15 @@ package tableio
 import (
 	"bufio"
 	"bytes"
+	"compress/gzip"
 	"errors"
 	"fmt"
 	"io"
 	"os"
 	"path/filepath"
 	"strings"
+
+	"github.com/klauspost/compress/zstd"
 
 	"manyfold/internal/param"
 	"manyfold/io/arrowio"
@@ -32,7 +35,8 @@ const (
 )
 
 // ReadOptions configures how a table is read. The CSV options apply to CSV
-// input only.
+// input only; a CSV.Delimiter of 0 means the one the file's extension
+// implies (DelimiterOf: a tab for .tsv, otherwise a comma).
 type ReadOptions struct {
 	CSV csvio.Options
 }
@@ -140,7 +144,11 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 		fh.Close()
 		return nil, fmt.Errorf("read %s: %w", path, err)
 	}
-	r, err := csvio.NewReader(fh, path, opts.CSV)
+	co := opts.CSV
+	if co.Delimiter == 0 {
+		co.Delimiter = DelimiterOf(path)
+	}
+	r, err := csvio.NewReader(fh, path, co)
 	if err != nil {
 		fh.Close()
 		return nil, err
@@ -170,18 +178,66 @@ func (c *closeBoth) Close() error {
 }
 
 // FormatOf names the output format for a path from its extension: .csv
-// (also .tsv, .txt, optionally followed by nothing else), .parquet or .pq,
-// .arrow, .ipc or .feather. It returns "" for an unknown extension.
+// (also .tsv, .txt, each optionally followed by .gz or .zst, see
+// CompressionOf), .parquet or .pq, .arrow, .ipc or .feather. It returns ""
+// for an unknown extension, and for a compressed one other than CSV's.
 func FormatOf(path string) Format {
-	switch strings.ToLower(filepath.Ext(path)) {
+	base, c := splitCompression(path)
+	switch strings.ToLower(filepath.Ext(base)) {
 	case ".csv", ".tsv", ".txt":
 		return CSV
 	case ".parquet", ".pq":
-		return Parquet
+		if c == "" {
+			return Parquet
+		}
 	case ".arrow", ".ipc", ".feather":
-		return Arrow
+		if c == "" {
+			return Arrow
+		}
 	}
 	return ""
+}
+
+// Compression is how a CSV output is compressed, named by its extension.
+type Compression string
+
+// The compressions of CSV output.
+const (
+	Uncompressed Compression = ""
+	Gzip         Compression = "gzip" // .gz, from the standard library
+	Zstd         Compression = "zstd" // .zst or .zstd
+)
+
+// CompressionOf names the compression a path's last extension asks for:
+// Gzip for .gz, Zstd for .zst or .zstd, Uncompressed otherwise. Input needs
+// no such name: the CSV reader recognises compressed input by its bytes.
+func CompressionOf(path string) Compression {
+	_, c := splitCompression(path)
+	return c
+}
+
+// splitCompression returns path without a compression extension, and the
+// compression that extension names.
+func splitCompression(path string) (string, Compression) {
+	ext := filepath.Ext(path)
+	switch strings.ToLower(ext) {
+	case ".gz":
+		return strings.TrimSuffix(path, ext), Gzip
+	case ".zst", ".zstd":
+		return strings.TrimSuffix(path, ext), Zstd
+	}
+	return path, Uncompressed
+}
+
+// DelimiterOf returns the delimiter a path's extension implies: a tab for
+// .tsv (also .tsv.gz, .tsv.zst), 0 (the CSV default, a comma) otherwise.
+// Open and Create use it when the options give no delimiter.
+func DelimiterOf(path string) byte {
+	base, _ := splitCompression(path)
+	if strings.EqualFold(filepath.Ext(base), ".tsv") {
+		return '\t'
+	}
+	return 0
 }
 
 // ParamFormat names WriteOptions.Format in messages.
@@ -189,7 +245,10 @@ const ParamFormat param.Name = "format"
 
 // WriteOptions configures an output table.
 type WriteOptions struct {
-	Format  Format // "" picks by extension
+	Format Format // "" picks by extension
+	// CSV configures a CSV output; a Delimiter of 0 means the one the
+	// path's extension implies (DelimiterOf). A CSV path ending in .gz or
+	// .zst is written compressed (CompressionOf).
 	CSV     csvio.WriterOptions
 	Parquet pqio.WriterOptions
 	// Input names the table being written (the input file) in the
@@ -208,7 +267,8 @@ type WriteOptions struct {
 type Output struct {
 	table.Writer
 	file   *atomicfile.File
-	closed bool // the writer is closed
+	z      io.WriteCloser // the compressor between the writer and file, or nil
+	closed bool           // the writer is closed
 }
 
 // Stdout is the output path that writes to standard output. Its format
@@ -240,9 +300,21 @@ func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, erro
 	}
 	var err error
 	var w table.Writer
+	var z io.WriteCloser
 	switch format {
 	case CSV:
-		w, err = csvio.NewWriter(f, schema, opts.CSV)
+		co := opts.CSV
+		if co.Delimiter == 0 {
+			co.Delimiter = DelimiterOf(path)
+		}
+		var dst io.Writer = f
+		if z, err = compressor(f, CompressionOf(path)); err != nil {
+			break
+		}
+		if z != nil {
+			dst = z
+		}
+		w, err = csvio.NewWriter(dst, schema, co)
 	case Parquet:
 		po := opts.Parquet
 		if po.Input == "" {
@@ -259,7 +331,20 @@ func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, erro
 		f.Abort()
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
-	return &Output{Writer: w, file: f}, nil
+	return &Output{Writer: w, file: f, z: z}, nil
+}
+
+// compressor returns the writer that compresses into f as c says, or nil
+// for Uncompressed. Both compressors write one frame (gzip member, zstd
+// frame) that their readers, ours included, read whole.
+func compressor(f io.Writer, c Compression) (io.WriteCloser, error) {
+	switch c {
+	case Gzip:
+		return gzip.NewWriter(f), nil
+	case Zstd:
+		return zstd.NewWriter(f, zstd.WithEncoderConcurrency(1))
+	}
+	return nil, nil
 }
 
 // Ready completes the table (closes the writer) and makes the file
@@ -268,7 +353,11 @@ func Create(path string, schema *table.Schema, opts WriteOptions) (*Output, erro
 func (o *Output) Ready() error {
 	if !o.closed {
 		o.closed = true
-		if err := o.Writer.Close(); err != nil {
+		err := o.Writer.Close()
+		if err == nil && o.z != nil {
+			err = o.z.Close()
+		}
+		if err != nil {
 			o.file.Abort()
 			return fmt.Errorf("write %s: %w", o.file.Path(), err)
 		}

@@ -61,7 +61,11 @@ func TestFormatOf(t *testing.T) {
 		{"shipments.arrow", Arrow},
 		{"shipments.ipc", Arrow},
 		{"shipments.feather", Arrow},
-		{"shipments.csv.gz", ""}, // the last extension decides
+		{"shipments.csv.gz", CSV},
+		{"shipments.TSV.zst", CSV},
+		{"shipments.csv.zstd", CSV},
+		{"shipments.parquet.gz", ""}, // only CSV is compressed whole
+		{"shipments.gz", ""},
 		{"shipments.json", ""},
 		{"shipments", ""},
 		{"dir.parquet/shipments", ""},

@@ -1,7 +1,8 @@
 // Package metrics scores predictions for manyfold's compare command: binary
 // log loss, Brier score and ROC AUC; RMSE, MAE and R² for a numeric target;
 // multi-class log loss, accuracy and one-vs-rest AUC; and the mean and
-// standard deviation of per-fold scores.
+// standard deviation of per-fold scores. AUCCounts and SquaredErrors score
+// rows that are not held at once (the drift report of manyfold apply).
 //
 // Common edge cases, unless a function's comment says otherwise: empty
 // input, or two slices of different lengths, gives NaN; a NaN anywhere in the
@@ -117,9 +118,7 @@ func aucSorted(rows []scored) float64 {
 		}
 		return 0
 	})
-	// Walk the groups of tied scores from the lowest: each positive of a
-	// group beats every negative below it and ties half of the group's.
-	var wins, below, negs, poss float64
+	var w mannWhitney
 	for i := 0; i < len(rows); {
 		j := i
 		var p, n float64
@@ -130,16 +129,75 @@ func aucSorted(rows []scored) float64 {
 				n++
 			}
 		}
-		wins += p*below + 0.5*p*n
-		below += n
-		negs += n
-		poss += p
+		w.add(p, n)
 		i = j
 	}
-	if poss == 0 || negs == 0 {
+	return w.auc()
+}
+
+// mannWhitney counts the wins of AUC's Mann-Whitney form over groups of
+// tied scores taken from the lowest score up: each positive of a group
+// beats every negative below it and ties half of the group's.
+type mannWhitney struct{ wins, below, negs, poss float64 }
+
+// add counts the next group: p positives and n negatives of one score.
+func (w *mannWhitney) add(p, n float64) {
+	w.wins += p*w.below + 0.5*p*n
+	w.below += n
+	w.negs += n
+	w.poss += p
+}
+
+// auc returns the AUC of the groups added; NaN when a class is absent.
+func (w *mannWhitney) auc() float64 {
+	if w.poss == 0 || w.negs == 0 {
 		return math.NaN()
 	}
-	return wins / (poss * negs)
+	return w.wins / (w.poss * w.negs)
+}
+
+// AUCCounts returns the AUC of AUC for rows given by their distinct
+// scores: score[i] is held by pos[i] positive and neg[i] negative rows. It
+// equals AUC over the rows themselves, and costs O(k log k) for k
+// distinct scores whatever the number of rows, so a caller can count the
+// rows of a pass by score and keep only the counts. Equal scores given
+// more than once are one group. The counts are exact while the products
+// of positives and negatives stay below 2^52.
+//
+// Edge cases: NaN when the lengths differ, a count is negative or NaN, a
+// score is NaN, or a class has no rows.
+func AUCCounts(score, pos, neg []float64) float64 {
+	if len(score) != len(pos) || len(score) != len(neg) {
+		return math.NaN()
+	}
+	idx := make([]int, len(score))
+	for i := range idx {
+		if math.IsNaN(score[i]) || !(pos[i] >= 0) || !(neg[i] >= 0) {
+			return math.NaN()
+		}
+		idx[i] = i
+	}
+	slices.SortFunc(idx, func(a, b int) int {
+		switch {
+		case score[a] < score[b]:
+			return -1
+		case score[a] > score[b]:
+			return 1
+		}
+		return 0
+	})
+	var w mannWhitney
+	for i := 0; i < len(idx); {
+		j := i
+		var p, n float64
+		for ; j < len(idx) && score[idx[j]] == score[idx[i]]; j++ {
+			p += pos[idx[j]]
+			n += neg[idx[j]]
+		}
+		w.add(p, n)
+		i = j
+	}
+	return w.auc()
 }
 
 // RMSE returns the root mean squared error sqrt((1/N) Σ (yhat_i - y_i)²).
@@ -149,12 +207,34 @@ func RMSE(y, yhat []float64) float64 {
 	if len(y) == 0 || len(y) != len(yhat) {
 		return math.NaN()
 	}
-	var s float64
+	var s SquaredErrors
 	for i, yi := range y {
-		d := yhat[i] - yi
-		s += d * d
+		s.Add(yi, yhat[i])
 	}
-	return math.Sqrt(s / float64(len(y)))
+	return s.RMSE()
+}
+
+// SquaredErrors accumulates the squared errors of RMSE one row at a time,
+// for rows that are not held at once (a pass over a file): RMSE returns
+// what RMSE over the rows added, in the order added, returns.
+type SquaredErrors struct {
+	Sum float64 // Σ (yhat_i - y_i)²
+	N   int64   // rows added
+}
+
+// Add adds the row of target y and prediction yhat.
+func (s *SquaredErrors) Add(y, yhat float64) {
+	d := yhat - y
+	s.Sum += d * d
+	s.N++
+}
+
+// RMSE returns sqrt(Sum / N); NaN when no row was added.
+func (s *SquaredErrors) RMSE() float64 {
+	if s.N == 0 {
+		return math.NaN()
+	}
+	return math.Sqrt(s.Sum / float64(s.N))
 }
 
 // MAE returns the mean absolute error (1/N) Σ |yhat_i - y_i|.

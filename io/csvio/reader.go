@@ -11,6 +11,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"sync/atomic"
 
 	"github.com/klauspost/compress/gzip"
 	"github.com/klauspost/compress/zstd"
@@ -206,6 +207,10 @@ type Reader struct {
 	// (0 otherwise) and the bytes of the rows delivered so far.
 	size      int64
 	bytesDone int64
+	// For InputBytes: the bytes read from the input as stored (counted
+	// by countingReader) and its size when it is a regular file.
+	inputRead atomic.Int64
+	inputSize int64
 
 	batchRows  int
 	rowCap     int   // rows every column has room for
@@ -268,6 +273,12 @@ func checkDelimiter(d byte) (byte, error) {
 
 // open recognises compressed input and fills the buffer.
 func (r *Reader) open(src io.Reader) error {
+	if f, ok := src.(*os.File); ok {
+		if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {
+			r.inputSize = st.Size()
+		}
+	}
+	src = &countingReader{r: src, n: &r.inputRead}
 	var head [4]byte
 	n, err := io.ReadFull(src, head[:])
 	if err != nil && err != io.EOF && err != io.ErrUnexpectedEOF {
@@ -289,11 +300,7 @@ func (r *Reader) open(src io.Reader) error {
 		r.src, r.closer, r.codec = zr, zr.IOReadCloser(), "zstd"
 	default:
 		r.src = in
-		if f, ok := src.(*os.File); ok {
-			if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {
-				r.size = st.Size()
-			}
-		}
+		r.size = r.inputSize
 	}
 	size := bufSize
 	if size < 8 {
@@ -708,6 +715,27 @@ func (r *Reader) EstimateRows() int64 {
 		return 0
 	}
 	return int64(float64(r.size) * float64(r.rowsDone) / float64(r.bytesDone))
+}
+
+// InputBytes returns the bytes read from the input so far, as stored
+// (compressed bytes for compressed input), and the input's size when it is
+// a regular file (0 otherwise); see table.InputCounter. Safe to call while
+// another goroutine reads.
+func (r *Reader) InputBytes() (read, size int64) {
+	return r.inputRead.Load(), r.inputSize
+}
+
+// countingReader counts the bytes read through it, one atomic add per
+// Read (of a buffer's worth, not per row).
+type countingReader struct {
+	r io.Reader
+	n *atomic.Int64
+}
+
+func (c *countingReader) Read(p []byte) (int, error) {
+	n, err := c.r.Read(p)
+	c.n.Add(int64(n))
+	return n, err
 }
 
 // Close releases the decompressor, if any. It does not close the

@@ -1,0 +1,41 @@
+package table
+
+// InputCounter is implemented by readers that can tell how far through
+// their input they are in bytes (CSV): InputBytes returns the bytes read
+// from the input so far (of the file as stored, so compressed bytes for a
+// compressed file) and the input's size, 0 when it is not known (standard
+// input). It may be called from any goroutine while another reads, and is
+// cheap (an atomic load): a progress display calls it a few times a
+// second, never per row.
+type InputCounter interface {
+	InputBytes() (read, size int64)
+}
+
+// Wrapper is implemented by readers that wrap another one (ReadAhead, a
+// reader that closes the file under it, one that adds derived columns):
+// Unwrap returns the reader underneath, so that Find can reach what only it
+// implements. The reader returned is for inspection (its row count, its
+// input counter), never to read from.
+type Wrapper interface {
+	Unwrap() Reader
+}
+
+// Find returns the first reader among r and the readers it wraps
+// (Wrapper) that implements T.
+func Find[T any](r Reader) (T, bool) {
+	for r != nil {
+		if t, ok := r.(T); ok {
+			return t, true
+		}
+		w, ok := r.(Wrapper)
+		if !ok {
+			break
+		}
+		r = w.Unwrap()
+	}
+	var zero T
+	return zero, false
+}
+
+// Unwrap returns the reader read ahead, for inspection only.
+func (a *readAhead) Unwrap() Reader { return a.r }

@@ -52,7 +52,23 @@ type Options struct {
 	// Joint also fits one model over every column's winning encodings
 	// together, on the same folds (Result.Joint).
 	Joint    bool
-	Progress func(rows int64)
+	Progress func(rows int64) // rows read so far, after each batch of the pass over the table
+	// Models, when not nil, is called as the model phase goes: at the
+	// start of each column, then after each model is fitted and scored
+	// (one call at a time, from the goroutine that fitted it).
+	Models func(ModelStep)
+}
+
+// ModelStep places the model phase of a comparison: the column whose
+// candidates are being scored, the candidate under way and the models
+// fitted so far, of every column (Options.Models). The joint model of
+// Options.Joint is not counted.
+type ModelStep struct {
+	Column             string
+	ColumnNum, Columns int // the column's place, from 1, among the columns compared
+	Candidate          int // the candidate under way, from 1: one more than the candidates scored on every outer fold
+	Candidates         int
+	ModelsDone, Models int // models fitted, of columns x candidates x outer folds
 }
 
 // Parameters that the package's messages name (param.Name), besides
@@ -708,9 +724,11 @@ func (ev *evaluator) column(ci int, name string, st *colstats.Stats) (ColumnResu
 			jobs = append(jobs, job{c, f})
 		}
 	}
+	step := ev.modelSteps(ci, name)
 	parallel(len(jobs), ev.opt.Threads, func(i int) {
 		j := jobs[i]
 		scores[j.cand][j.fold] = ev.run(cs, cands[j.cand], j.fold)
+		step()
 	})
 	cr := ColumnResult{Column: name, Levels: st.Levels.Len()}
 	if st.RowCount(0) > 0 {
@@ -753,6 +771,30 @@ func (ev *evaluator) column(ci int, name string, st *colstats.Stats) (ColumnResu
 		cr.Shrinkage = ev.shrinkage(cs)
 	}
 	return cr, nil
+}
+
+// modelSteps reports the start of column ci's models to Options.Models
+// and returns the function each model calls when it is done (a no-op
+// without Options.Models).
+func (ev *evaluator) modelSteps(ci int, name string) func() {
+	if ev.opt.Models == nil {
+		return func() {}
+	}
+	nc, ncand := len(ev.opt.Columns), len(ev.opt.Candidates)
+	var mu sync.Mutex
+	done := 0 // models of this column
+	report := func() {
+		ev.opt.Models(ModelStep{Column: name, ColumnNum: ci + 1, Columns: nc,
+			Candidate: min(ncand, done/ev.ko+1), Candidates: ncand,
+			ModelsDone: ci*ncand*ev.ko + done, Models: nc * ncand * ev.ko})
+	}
+	report()
+	return func() {
+		mu.Lock()
+		defer mu.Unlock()
+		done++
+		report()
+	}
 }
 
 // testShare is the ratio of held-out to training rows of an outer fold,

@@ -6,7 +6,6 @@ import (
 	"os"
 	"runtime"
 	"strings"
-	"time"
 
 	"github.com/spf13/pflag"
 
@@ -15,6 +14,7 @@ import (
 	"manyfold/internal/param"
 	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
+	"manyfold/io/derive"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
@@ -231,38 +231,6 @@ func spool(path string) (string, func(), error) {
 	return f.Name(), func() { atomicfile.Remove(f.Name()) }, nil
 }
 
-// progress prints a rows-read line on standard error when it is a
-// terminal, at most ten times a second, and nothing otherwise.
-type progress struct {
-	label string
-	on    bool
-	last  time.Time
-	start time.Time
-}
-
-func newProgress(label string) *progress {
-	p := &progress{label: label, start: time.Now()}
-	if fi, err := os.Stderr.Stat(); err == nil && fi.Mode()&os.ModeCharDevice != 0 && os.Getenv("TERM") != "dumb" {
-		p.on = true
-	}
-	return p
-}
-
-func (p *progress) update(rows int64) {
-	if !p.on || time.Since(p.last) < 100*time.Millisecond {
-		return
-	}
-	p.last = time.Now()
-	rate := float64(rows) / time.Since(p.start).Seconds()
-	fmt.Fprintf(os.Stderr, "\r%s: %d rows (%.1f M rows/s)   ", p.label, rows, rate/1e6)
-}
-
-func (p *progress) done() {
-	if p.on && !p.last.IsZero() {
-		fmt.Fprint(os.Stderr, "\r\033[K")
-	}
-}
-
 // sameFile reports whether two paths name the same existing file.
 func sameFile(a, b string) bool {
 	fa, err := os.Stat(a)
@@ -322,4 +290,29 @@ func diskSize(path string) int64 {
 		}
 	}
 	return size
+}
+
+// openTable opens the table at path and adds the derived columns that
+// names ask for: crosses (origin*destination) and conditions (delay>15),
+// see io/derive. A name that is neither a column nor a derived one is left
+// for the caller to report.
+func openTable(path string, ropts tableio.ReadOptions, names []string) (table.Reader, error) {
+	r, err := tableio.Open(path, ropts)
+	if err != nil {
+		return nil, err
+	}
+	w, err := derive.Wrap(r, names)
+	if err != nil {
+		r.Close()
+		return nil, usagef("%s: %v", path, err)
+	}
+	return w, nil
+}
+
+// specNames lists every column an encoding job names: the encoded
+// columns, the target, the prior and group columns and --order-by.
+func specNames(sp *pipeline.Spec) []string {
+	names := append([]string{}, sp.Columns...)
+	names = append(names, sp.Target, sp.GroupColumn(), sp.OrderBy)
+	return append(names, sp.PriorColumns()...)
 }

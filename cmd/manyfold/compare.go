@@ -11,6 +11,7 @@ import (
 	"manyfold/internal/cmdline"
 	"manyfold/internal/evaluate/compare"
 	"manyfold/io/atomicfile"
+	"manyfold/io/derive"
 	"manyfold/io/tableio"
 )
 
@@ -145,9 +146,20 @@ func runCompare(args []string) (err error) {
 			return err
 		}
 	}
+	// Column patterns, then the crosses and conditions the run names.
+	if opts.Columns, err = derive.Expand(opts.Columns, r.Schema(), opts.Target); err != nil {
+		r.Close()
+		return usagef("--columns: %v", err)
+	}
+	wr, err := derive.Wrap(r, append(append([]string{}, opts.Columns...), opts.Target, rule.Needs().Group))
+	if err != nil {
+		r.Close()
+		return usagef("%s: %v", name, err)
+	}
+	r = wr
 	defer r.Close()
-	pr := newProgress("compare")
-	opts.File, opts.TotalRows, opts.Progress = name, total, pr.update
+	pr := newProgress("compare", r)
+	opts.File, opts.TotalRows, opts.Progress, opts.Models = name, total, pr.update, pr.models
 	res, err := compare.Run(r, opts)
 	pr.done()
 	if err != nil {

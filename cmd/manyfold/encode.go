@@ -14,6 +14,7 @@ import (
 	"manyfold/folds"
 	"manyfold/internal/guard"
 	"manyfold/io/atomicfile"
+	"manyfold/io/derive"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -139,6 +140,19 @@ func runEncode(args []string) (err error) {
 	if err != nil {
 		return err
 	}
+	// Column patterns (dest_*, !dest_city) against the file's columns,
+	// never the target or the fold column; then the crosses and
+	// conditions the job names.
+	if sp.Columns, err = derive.Expand(sp.Columns, r.Schema(), sp.Target, sp.FoldColumn); err != nil {
+		r.Close()
+		return usagef("--columns: %v", err)
+	}
+	wr, err := derive.Wrap(r, specNames(&sp))
+	if err != nil {
+		r.Close()
+		return usagef("%s: %v", name, err)
+	}
+	r = wr
 	keepList, err := vetNested(name, r, &sp, outputFormat(of.out, wopts))
 	if err != nil {
 		r.Close()
@@ -163,7 +177,7 @@ func runEncode(args []string) (err error) {
 			return err
 		}
 	}
-	pr := newProgress("fit")
+	pr := newProgress("fit", r)
 	r = table.ReadAhead(r)
 	region := trace.StartRegion(context.Background(), "fit")
 	var m *pipeline.Model
@@ -201,7 +215,7 @@ func runEncode(args []string) (err error) {
 		}()
 		tablesDone <- s
 	})
-	pr = newProgress("encode")
+	pr = newProgress("encode", o.r)
 	region = trace.StartRegion(context.Background(), "encode")
 	var sum pipeline.Summary
 	phase("encode", func() {
@@ -228,6 +242,13 @@ func runEncode(args []string) (err error) {
 		}
 		return &outputError{saved.err}
 	}
+	// The training scores, known now, go into the staged manifest (for
+	// apply --report).
+	if err := saved.st.RecordScores(sum.Scores); err != nil {
+		w.Abort()
+		saved.st.Abort()
+		return &outputError{err}
+	}
 	// The output and the tables are one unit: both are made durable
 	// first, then the output is renamed into place and the tables
 	// directory swapped for the old one.
@@ -244,6 +265,9 @@ func runEncode(args []string) (err error) {
 		if i < len(m.Cols)-1 {
 			fmt.Fprint(os.Stderr, ",")
 		}
+	}
+	if t := m.TargetSummary(); t != "" {
+		fmt.Fprintf(os.Stderr, "; %s", t)
 	}
 	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", outName(of.out), *tables)
 	return nil

@@ -5,6 +5,7 @@ import (
 	"strings"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/derive"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
@@ -18,7 +19,7 @@ import (
 // nestedOf returns the nested top-level columns of a Parquet input (none
 // for other formats).
 func nestedOf(r table.Reader) []pqio.Nested {
-	if pr, ok := r.(*pqio.Reader); ok {
+	if pr, ok := derive.Base(r).(*pqio.Reader); ok {
 		return pr.Nested()
 	}
 	return nil

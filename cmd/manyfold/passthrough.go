@@ -5,6 +5,7 @@ import (
 	"fmt"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/derive"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
@@ -30,7 +31,7 @@ type output struct {
 // check, when not nil, vets the input's schema first. The caller calls
 // close and commits or aborts w.
 func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio.WriteOptions, m *pipeline.Model, use pipeline.Use, keep []string, check func(*table.Schema) error) (*output, error) {
-	r, err := tableio.Open(path, ropts)
+	r, err := openTable(path, ropts, specNames(&m.Spec))
 	if err != nil {
 		return nil, err
 	}
@@ -53,7 +54,7 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 	if err := checkNestedOutput(name, nested, o.full.Names(), format, use); err != nil {
 		return fail(err)
 	}
-	if _, isParquet := r.(*pqio.Reader); isParquet && format == tableio.Parquet && len(kept)+len(nested) > 0 {
+	if _, isParquet := derive.Base(r).(*pqio.Reader); isParquet && format == tableio.Parquet && len(kept)+len(nested) > 0 {
 		if o.src, err = pqio.OpenSource(path); err != nil {
 			return fail(err)
 		}

@@ -9,6 +9,7 @@ import (
 	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 	"manyfold/internal/cmdline"
+	"manyfold/io/derive"
 	"manyfold/io/pqio"
 	"manyfold/io/tableio"
 )
@@ -47,9 +48,19 @@ func runScan(args []string) error {
 	if err != nil {
 		return err
 	}
+	names, err := derive.Expand(*columns, r.Schema())
+	if err != nil {
+		r.Close()
+		return usagef("--columns: %v", err)
+	}
+	wr, err := derive.Wrap(r, append(names, *target))
+	if err != nil {
+		r.Close()
+		return usagef("%s: %v", file, err)
+	}
+	r = wr
 	defer r.Close()
 	s := r.Schema()
-	names := *columns
 	// Nested columns (lists, maps, structs) are listed as not encodable
 	// when every column is profiled.
 	nested := nestedOf(r)
@@ -72,7 +83,7 @@ func runScan(args []string) error {
 	for i := range sel {
 		sel[i] = i
 	}
-	pr := newProgress("scan")
+	pr := newProgress("scan", r)
 	profiles, err := pipeline.Scan(r, sel, *top, pr.update)
 	pr.done()
 	if err != nil {

@@ -53,8 +53,10 @@ func (m *Model) OutputSchema(file string, in *table.Schema, use Use) (*table.Sch
 	var kept []int
 	switch {
 	case m.Spec.KeepAll:
-		for i := range in.Fields {
-			kept = append(kept, i)
+		for i, f := range in.Fields {
+			if !f.Derived { // a cross or a condition is not the file's
+				kept = append(kept, i)
+			}
 		}
 	default:
 		for _, name := range m.Spec.Keep {

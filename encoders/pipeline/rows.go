@@ -189,6 +189,7 @@ type targetReader struct {
 	vals    []float64
 	missing int64
 	fixed   bool // task given by the user: do not switch
+	binary  bool // task given as binary: a third class is an error
 	// The first values met and their classes, so that a target of few
 	// distinct values is not parsed, formatted and looked up by label on
 	// every row: integers, and texts (a CSV's "0" and "1").
@@ -210,7 +211,7 @@ const MaxTarget = 1e150
 // appearance.
 func newTargetReader(file, name string, col int, kind table.Kind, task string, classes []string) *targetReader {
 	tr := &targetReader{file: file, name: name, col: col, labels: map[string]int{},
-		numeric: kind == table.Int64 || kind == table.Float64, fixed: task != ""}
+		numeric: kind == table.Int64 || kind == table.Float64, fixed: task != "", binary: task == colstats.Binary.String()}
 	if task == colstats.Regression.String() {
 		tr.regress = true
 		if kind == table.String {
@@ -337,6 +338,9 @@ func (tr *targetReader) read(b *table.Batch) error {
 		}
 		k, ok := tr.labels[string(key)]
 		if !ok {
+			if tr.binary && len(tr.order) == 2 {
+				return tr.dataErr(b, i, param.Errorf("%s binary, but the target has a third value %q besides %q and %q", ParamTask, key, tr.order[0], tr.order[1]))
+			}
 			if len(tr.order) >= MaxClasses {
 				var hint param.Text
 				if tr.numeric && !tr.fixed {

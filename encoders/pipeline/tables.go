@@ -555,3 +555,49 @@ func (m *Model) supervised() bool {
 	}
 	return false
 }
+
+// TargetSummary says what the fit decided of the target, for the command's
+// summary line: the task, and for classification each class with its share
+// of the rows whose target is known (the positive class of a binary target
+// named as such), a class of fewer than 10 rows or under 0.1% flagged as
+// perhaps a stray value. "" without a target.
+func (m *Model) TargetSummary() string {
+	if m.Spec.Target == "" || !(m.supervised() || m.Spec.FoldBy.Needs().Class) {
+		return ""
+	}
+	s := "target " + m.Spec.Target + ": " + m.Task.String()
+	var counts []uint64
+	for _, c := range m.Cols {
+		if c.supervised && m.Task != colstats.Regression {
+			tot := c.St.CellTotals()
+			counts = make([]uint64, c.St.Classes)
+			for i, n := range tot {
+				counts[i%c.St.Classes] += n
+			}
+			break
+		}
+	}
+	if counts == nil || len(counts) != len(m.Classes) {
+		return s
+	}
+	var all uint64
+	for _, n := range counts {
+		all += n
+	}
+	var parts []string
+	for i := len(m.Classes) - 1; i >= 0; i-- { // the positive class first
+		n := counts[i]
+		part := fmt.Sprintf("%s (%.1f%%, %d rows)", m.Classes[i], 100*float64(n)/float64(all), n)
+		if n < 10 || float64(n) < 0.001*float64(all) {
+			part = fmt.Sprintf("%s (%d rows: a stray value?)", m.Classes[i], n)
+		}
+		if i == m.Pos && m.Task == colstats.Binary {
+			part = "positive class " + part
+		}
+		parts = append(parts, part)
+	}
+	if m.Task == colstats.Multiclass {
+		s += fmt.Sprintf(", %d classes", len(m.Classes))
+	}
+	return s + ", " + strings.Join(parts, ", ")
+}

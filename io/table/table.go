@@ -66,6 +66,10 @@ type Field struct {
 	// from the file's schema (CSV: always true); writers use it to declare
 	// the output column.
 	Nullable bool
+	// Derived marks a column computed from others (a cross, a condition;
+	// see io/derive), not read from the file: it is not written back as a
+	// kept input column.
+	Derived bool
 }
 
 // Schema is the ordered list of a table's columns.

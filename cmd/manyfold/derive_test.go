@@ -200,3 +200,33 @@ func TestDerivedColumnsEverywhere(t *testing.T) {
 		}
 	}
 }
+
+// TestWarnings: encode warns of a hash with far too few buckets (the
+// chance that a level shares its bucket, 1-(1-1/B)^(n-1), is 0.99 for 300
+// levels in 64 buckets), of a target mean on a column of singletons
+// without a minimum of rows or a hierarchy, and of a numeric column with
+// more than 1000 distinct values encoded as categories; and is silent
+// where none applies.
+func TestWarnings(t *testing.T) {
+	dir := t.TempDir()
+	var b strings.Builder
+	b.WriteString("account,weight,zone,late\n")
+	for i := 0; i < 1500; i++ {
+		b.WriteString("A" + strconv.Itoa(i) + "," + strconv.Itoa(i*7) + ",Z" + strconv.Itoa(i%300) + "," + strconv.Itoa(i%2) + "\n")
+	}
+	in := writeFile(t, dir, "w.csv", b.String())
+	res := mustRun(t, "encode", in, "--target", "late", "--methods", "account=target:eb,weight=freq,zone=hash:64", "--out", filepath.Join(dir, "o.csv"), "--tables", filepath.Join(dir, "t"))
+	for _, want := range []string{
+		`warning: column "account": target:eb: 100% of its 1500 levels are seen once`,
+		`warning: column "weight" is int with 1500 distinct values, encoded as categories`,
+		`warning: column "zone": hash:64: 300 levels in 64 buckets, a level shares its bucket with probability 0.99`,
+	} {
+		if !strings.Contains(res.stderr, want) {
+			t.Errorf("stderr lacks %q:\n%s", want, res.stderr)
+		}
+	}
+	quiet := mustRun(t, "encode", in, "--target", "late", "--methods", "zone=target:eb+hash:4096", "--out", filepath.Join(dir, "o2.csv"), "--tables", filepath.Join(dir, "t2"))
+	if strings.Contains(quiet.stderr, "warning:") {
+		t.Errorf("a warning where none applies:\n%s", quiet.stderr)
+	}
+}

@@ -270,6 +270,9 @@ func runEncode(args []string) (err error) {
 		fmt.Fprintf(os.Stderr, "; %s", t)
 	}
 	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", outName(of.out), *tables)
+	for _, w := range m.Warnings() {
+		fmt.Fprintf(os.Stderr, "warning: %s\n", w)
+	}
 	return nil
 }
 

@@ -187,3 +187,17 @@ func (e *hashEnc) Names() []string {
 
 // Codes gives the buckets 0..B-1.
 func (f *hashFit) Codes() (int, int64) { return int(f.e.buckets), 0 }
+
+// sharedWarn is the expected share of levels sharing their bucket past
+// which a hash is reported as having far too few buckets.
+const sharedWarn = 0.5
+
+// Warnings reports a hash whose levels mostly share a bucket: the chance
+// that a level shares its bucket, 1-(1-1/B)^(n-1), above sharedWarn.
+func (f *hashFit) Warnings() []string {
+	n, b := float64(f.c.Distinct), float64(f.e.buckets)
+	if p := hashenc.SharedChance(n, b); p > sharedWarn {
+		return []string{fmt.Sprintf("%s: %d levels in %d buckets, a level shares its bucket with probability %.2f; give more buckets", f.e, f.c.Distinct, f.e.buckets, p)}
+	}
+	return nil
+}

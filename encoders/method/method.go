@@ -268,3 +268,9 @@ func (lv *Levels) Agg(i, o, pos int, task colstats.Task) colstats.Agg {
 type Coded interface {
 	Codes() (n int, first int64)
 }
+
+// Warner is a Fitted that has something to tell the user about its fit
+// (a hash with far too few buckets, say), one line each.
+type Warner interface {
+	Warnings() []string
+}

@@ -654,3 +654,32 @@ type ParentTabler interface {
 }
 
 func (e *targetEnc) Names() []string { return []string{"tmean"} }
+
+// singletonWarn is the share of a column's levels seen once past which a
+// target mean without a hierarchy is reported.
+const singletonWarn = 0.9
+
+// Warnings reports a target mean on a column of nearly all singletons with
+// neither a minimum of rows per level nor a hierarchical prior: its levels
+// carry almost no statistic to new rows, and their means are a row's own
+// label pulled towards the prior.
+func (f *targetFit) Warnings() []string {
+	c := f.c
+	if f.parent != nil || c.St == nil || c.Distinct < 100 {
+		return nil
+	}
+	once, kept := 0, 0
+	for l, k := range c.Keep {
+		if !k {
+			continue
+		}
+		kept++
+		if c.St.RowCount(l) == 1 {
+			once++
+		}
+	}
+	if kept < c.Distinct || float64(once) < singletonWarn*float64(kept) {
+		return nil // levels were left out (--min-level-rows), or few are singletons
+	}
+	return []string{fmt.Sprintf("%s: %.0f%% of its %d levels are seen once; consider a minimum of rows per level or a hierarchical prior (prior=prefixN)", f.e, 100*float64(once)/float64(kept), kept)}
+}

@@ -28,14 +28,10 @@ type JointResult struct {
 // MarshalJSON writes non-finite per-fold values as null.
 func (j JointResult) MarshalJSON() ([]byte, error) {
 	type plain JointResult
-	per := make([]jsonNum, len(j.PerFold))
-	for i, v := range j.PerFold {
-		per[i] = jsonNum(v)
-	}
 	return json.Marshal(struct {
 		plain
 		PerFold []jsonNum `json:"per_fold"`
-	}{plain(j), per})
+	}{plain(j), jsonNums(j.PerFold)})
 }
 
 // joint fits, on each outer fold, one model over the winners of every

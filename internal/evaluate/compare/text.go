@@ -158,12 +158,17 @@ func (s Stat) MarshalJSON() ([]byte, error) {
 // MarshalJSON writes non-finite per-fold values as null.
 func (c CandidateResult) MarshalJSON() ([]byte, error) {
 	type plain CandidateResult
-	per := make([]jsonNum, len(c.PerFold))
-	for i, v := range c.PerFold {
-		per[i] = jsonNum(v)
-	}
 	return json.Marshal(struct {
 		plain
 		PerFold []jsonNum `json:"per_fold"`
-	}{plain(c), per})
+	}{plain(c), jsonNums(c.PerFold)})
+}
+
+// jsonNums converts per-fold values for MarshalJSON (non-finite as null).
+func jsonNums(xs []float64) []jsonNum {
+	out := make([]jsonNum, len(xs))
+	for i, v := range xs {
+		out[i] = jsonNum(v)
+	}
+	return out
 }

@@ -171,23 +171,24 @@ func (c *Column) Len() int {
 // ResetFloats makes c a float64 column of n values without nulls, reusing
 // its storage, and returns the values to fill.
 func (c *Column) ResetFloats(n int) []float64 {
-	c.Form, c.Nulls = FormFloat64, nil
-	if cap(c.Floats) < n {
-		c.Floats = make([]float64, n)
-	}
-	c.Floats = c.Floats[:n]
+	c.Form, c.Nulls, c.Floats = FormFloat64, nil, resize(c.Floats, n)
 	return c.Floats
 }
 
 // ResetInts makes c an int64 column of n values without nulls, reusing its
 // storage, and returns the values to fill.
 func (c *Column) ResetInts(n int) []int64 {
-	c.Form, c.Nulls = FormInt64, nil
-	if cap(c.Ints) < n {
-		c.Ints = make([]int64, n)
-	}
-	c.Ints = c.Ints[:n]
+	c.Form, c.Nulls, c.Ints = FormInt64, nil, resize(c.Ints, n)
 	return c.Ints
+}
+
+// resize returns s with length n, reallocated only when its capacity is
+// short.
+func resize[T any](s []T, n int) []T {
+	if cap(s) < n {
+		return make([]T, n)
+	}
+	return s[:n]
 }
 
 func (c *Column) IsNull(i int) bool { return c.Nulls != nil && c.Nulls[i] }

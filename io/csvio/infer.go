@@ -10,31 +10,57 @@ import (
 // nulls: int, float or bool when every value has that form (see the
 // package doc), text otherwise or when every value is null.
 func inferKind(c *colBuf, rows int) table.Kind {
-	isInt, isFloat, isBool, seen := true, true, true, false
-	for i := 0; i < rows && (isInt || isFloat || isBool); i++ {
-		if c.nulls[i] {
-			continue
-		}
-		v := c.value(i)
-		seen = true
-		if isInt && !intText(v) {
-			isInt = false
-		}
-		if isFloat && (!floatText(v) || bigInt(v)) {
-			isFloat = false
-		}
-		if isBool && !boolText(v) {
-			isBool = false
+	var in Inference
+	for i := 0; i < rows && in.open(); i++ {
+		if !c.nulls[i] {
+			in.Add(c.value(i))
 		}
 	}
+	return in.Kind()
+}
+
+// Inference infers a column's kind from its non-null values, given one at
+// a time, as NewReader infers it from its sample (see the package doc):
+// int, float or bool when every value has that form, text otherwise or
+// when no value was given. The zero Inference has seen no value. Other
+// readers of text (ndjson) use it so that their kinds agree with CSV's.
+type Inference struct {
+	notInt, notFloat, notBool, seen bool
+}
+
+// Add counts the non-null value v, as written.
+func (in *Inference) Add(v []byte) {
+	in.seen = true
+	if !in.notInt && !intText(v) {
+		in.notInt = true
+	}
+	if !in.notFloat && (!floatText(v) || bigInt(v)) {
+		in.notFloat = true
+	}
+	if !in.notBool && !boolText(v) {
+		in.notBool = true
+	}
+}
+
+// AddText counts a value that is text whatever its bytes (a quoted string
+// of a format that types its values), which makes the column text.
+func (in *Inference) AddText() {
+	in.seen, in.notInt, in.notFloat, in.notBool = true, true, true, true
+}
+
+// open reports whether a value could still change the kind.
+func (in *Inference) open() bool { return !in.notInt || !in.notFloat || !in.notBool }
+
+// Kind returns the kind of the values counted so far.
+func (in *Inference) Kind() table.Kind {
 	switch {
-	case !seen:
+	case !in.seen:
 		return table.String
-	case isInt:
+	case !in.notInt:
 		return table.Int64
-	case isFloat:
+	case !in.notFloat:
 		return table.Float64
-	case isBool:
+	case !in.notBool:
 		return table.Bool
 	}
 	return table.String

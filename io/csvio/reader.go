@@ -682,8 +682,17 @@ func (e *KindError) Error() string { return e.Err.Error() }
 // Unwrap returns the parser's error.
 func (e *KindError) Unwrap() error { return e.Err }
 
-// checkValue reports whether v reads as a value of kind: the quick forms
-// of inference first, then the parsers the writers use.
+// CheckValue returns the error of a value v that does not read as kind
+// (nil for table.String) as the writers parse it, and that NewReader's
+// batches report as a *KindError: the quick forms of inference first, then
+// the parsers the writers use.
+func CheckValue(kind table.Kind, v []byte) error { return checkValue(kind, v) }
+
+// ValueKind returns the kind the value v alone would be inferred as (the
+// KindError's Is).
+func ValueKind(v []byte) table.Kind { return valueKind(v) }
+
+// checkValue is CheckValue.
 func checkValue(kind table.Kind, v []byte) error {
 	switch kind {
 	case table.Int64:

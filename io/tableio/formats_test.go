@@ -11,6 +11,7 @@ import (
 	"github.com/klauspost/compress/zstd"
 
 	"manyfold/io/csvio"
+	"manyfold/io/table"
 )
 
 // writeTable writes testBatch to path (format by extension) and returns
@@ -150,6 +151,73 @@ func TestDelimiterOf(t *testing.T) {
 	} {
 		if got := DelimiterOf(path); got != want {
 			t.Errorf("DelimiterOf(%q) = %q, want %q", path, got, want)
+		}
+	}
+}
+
+// ndjsonTable is testWant as newline-delimited JSON: null, missing keys,
+// escapes, and a blank line.
+const ndjsonTable = `{"postcode":null,"parcels":3,"cost":4.25,"late":true}
+{"postcode":"PC-10452","cost":0.1,"late":false}
+
+{"postcode":"","parcels":-12,"cost":null,"late":true}
+  {"late":null,"postcode":"PC-00501","parcels":0,"cost":-7.5}
+{"postcode":"PC-7, rear","parcels":null,"cost":1e+21}
+`
+
+// TestNDJSONRoundTrip opens newline-delimited JSON by extension (.jsonl,
+// .ndjson, whatever the content) and by content (a .txt name), writes it
+// as CSV and reads that back: the same values each time.
+func TestNDJSONRoundTrip(t *testing.T) {
+	dir := t.TempDir()
+	for _, name := range []string{"t.jsonl", "t.NDJSON", "t.txt"} {
+		t.Run(name, func(t *testing.T) {
+			path := filepath.Join(dir, name)
+			if err := os.WriteFile(path, []byte(ndjsonTable), 0o644); err != nil {
+				t.Fatal(err)
+			}
+			r, err := Open(path, ReadOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			checkTable(t, r, testSchema, testWant)
+			r.Close()
+
+			r, err = Open(path, ReadOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			out := filepath.Join(dir, name+".csv")
+			w, err := Create(out, r.Schema(), WriteOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := table.ForEach(r, w.Write); err != nil {
+				t.Fatal(err)
+			}
+			r.Close()
+			if err := w.Commit(); err != nil {
+				t.Fatal(err)
+			}
+			readBack(t, out, ReadOptions{})
+		})
+	}
+	// An .ndjson name with CSV content is read as NDJSON, and says so.
+	path := filepath.Join(dir, "csv.ndjson")
+	if err := os.WriteFile(path, []byte("a,b\n1,2\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := Open(path, ReadOptions{}); err == nil || !strings.Contains(err.Error(), "not start with {") {
+		t.Errorf("CSV in an .ndjson file: %v", err)
+	}
+}
+
+func TestDetectNDJSON(t *testing.T) {
+	for head, want := range map[string]Format{
+		`{"a":1}`: NDJSON, " \r\n\t{": NDJSON, "\xef\xbb\xbf{": NDJSON, "a,{b}\n": CSV, "[{\"a\":1}]": CSV,
+	} {
+		if got, err := Detect([]byte(head)); got != want || err != nil {
+			t.Errorf("Detect(%q) = %q, %v; want %q", head, got, err, want)
 		}
 	}
 }

@@ -20,6 +20,7 @@ import (
 	"manyfold/io/arrowio"
 	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
+	"manyfold/io/ndjson"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
 )
@@ -32,19 +33,26 @@ const (
 	CSV     Format = "csv"
 	Parquet Format = "parquet"
 	Arrow   Format = "arrow"
+	// NDJSON is newline-delimited JSON, one object a line (input only;
+	// see io/ndjson).
+	NDJSON Format = "ndjson"
 )
 
 // ReadOptions configures how a table is read. The CSV options apply to CSV
 // input only; a CSV.Delimiter of 0 means the one the file's extension
-// implies (DelimiterOf: a tab for .tsv, otherwise a comma).
+// implies (DelimiterOf: a tab for .tsv, otherwise a comma). NDJSON input
+// takes its types, sample, batch size and line limit (MaxFieldBytes) from
+// the CSV options too.
 type ReadOptions struct {
 	CSV csvio.Options
 }
 
 // Detect reads the first bytes of r and names the format: Parquet for the
 // magic "PAR1", Arrow for "ARROW1" (file) or an IPC stream's continuation
-// marker, CSV otherwise (including gzip or zstd compressed text, which the
-// CSV reader unpacks). An empty input gives table.ErrEmpty.
+// marker, NDJSON for text whose first byte other than white space (and a
+// UTF-8 byte order mark) is {, CSV otherwise (including gzip or zstd
+// compressed text, which the CSV reader unpacks). An empty input gives
+// table.ErrEmpty.
 func Detect(head []byte) (Format, error) {
 	switch {
 	case len(head) == 0:
@@ -59,7 +67,27 @@ func Detect(head []byte) (Format, error) {
 	if looksBinary(head) {
 		return "", table.ErrUnknownFormat
 	}
+	if t := bytes.TrimLeft(bytes.TrimPrefix(head, []byte("\xef\xbb\xbf")), " \t\r\n"); len(t) > 0 && t[0] == '{' {
+		return NDJSON, nil
+	}
 	return CSV, nil
+}
+
+// isNDJSON reports whether path's extension says newline-delimited JSON:
+// .ndjson or .jsonl.
+func isNDJSON(path string) bool {
+	switch strings.ToLower(filepath.Ext(path)) {
+	case ".ndjson", ".jsonl":
+		return true
+	}
+	return false
+}
+
+// openNDJSON reads newline-delimited JSON from r with the CSV options
+// that apply to it.
+func openNDJSON(r io.Reader, name string, o csvio.Options) (*ndjson.Reader, error) {
+	return ndjson.NewReader(r, name, ndjson.Options{Types: o.Types, TypesIfPresent: o.TypesIfPresent,
+		SampleRows: o.SampleRows, BatchRows: o.BatchRows, MaxLineBytes: o.MaxFieldBytes})
 }
 
 // looksBinary reports whether head holds bytes that text never does: a NUL,
@@ -93,14 +121,15 @@ type inputError struct{ msg string }
 func (e *inputError) Error() string { return e.msg }
 func (e *inputError) Unwrap() error { return table.ErrUnknownFormat }
 
-// Open opens the table at path ("-" for standard input, read as CSV or an
-// Arrow IPC stream).
+// Open opens the table at path ("-" for standard input, read as CSV,
+// NDJSON or an Arrow IPC stream). A file named .ndjson or .jsonl is read as
+// NDJSON unless its bytes say Parquet or Arrow.
 func Open(path string, opts ReadOptions) (table.Reader, error) {
 	name := path
 	if path == "-" {
 		name = "stdin"
 		br := bufio.NewReaderSize(os.Stdin, 1<<16)
-		head, _ := br.Peek(8)
+		head, _ := br.Peek(512)
 		f, err := Detect(head)
 		if err != nil {
 			return nil, fmt.Errorf("%s: %w", name, err)
@@ -108,6 +137,8 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 		switch f {
 		case CSV:
 			return csvio.NewReader(br, name, opts.CSV)
+		case NDJSON:
+			return openNDJSON(br, name, opts.CSV)
 		case Arrow:
 			return arrowio.NewReader(br, name)
 		}
@@ -143,6 +174,14 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 	if _, err := fh.Seek(0, io.SeekStart); err != nil {
 		fh.Close()
 		return nil, fmt.Errorf("read %s: %w", path, err)
+	}
+	if format == NDJSON || isNDJSON(path) {
+		r, err := openNDJSON(fh, path, opts.CSV)
+		if err != nil {
+			fh.Close()
+			return nil, err
+		}
+		return &closeBoth{Reader: r, f: fh}, nil
 	}
 	co := opts.CSV
 	if co.Delimiter == 0 {

@@ -65,7 +65,7 @@ func runApply(args []string) error {
 	}
 	defer o.close()
 	w := o.w
-	pr := newProgress("apply")
+	pr := newProgress("apply", o.r)
 	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Use: pipeline.NewRows, Progress: pr.update, Threads: of.threads, Input: o.full})
 	pr.done()
 	if err != nil {

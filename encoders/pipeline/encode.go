@@ -18,6 +18,9 @@ type EncodeOptions struct {
 	// not yield are written as empty columns, for a writer that copies
 	// them from the input itself.
 	Input *table.Schema
+	// Drift, for a pass of new rows (NewRows), gathers what its drift
+	// report needs (NewDrift).
+	Drift *Drift
 }
 
 // Use says which rows a pass encodes.
@@ -37,6 +40,9 @@ type Summary struct {
 	Rows    int64
 	Missing int64   // rows with an unknown target (training pass)
 	Unseen  []int64 // per column: rows whose level was unseen or left out
+	// Scores holds, after a training pass, each column's Score (nil for a
+	// column not scored), which StagedTables.RecordScores records.
+	Scores []*Score
 }
 
 // outCol is one encoding's output columns and how to fill them: encoding
@@ -121,6 +127,9 @@ func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summa
 	if e.training && e.sum.Rows != m.Rows {
 		return e.sum, fmt.Errorf("%s: the second pass read %d rows, the first %d; the file changed while it was read", opt.File, e.sum.Rows, m.Rows)
 	}
+	if e.obs != nil {
+		e.obs.finish(&e.sum)
+	}
 	return e.sum, nil
 }
 
@@ -146,6 +155,7 @@ type encodePass struct {
 	at     [][]int // position of each encoding's first output in the batch
 	foldAt int     // position of the fold column, or -1
 	out    *table.Batch
+	obs    observer // sees each encoded batch (score.go), or nil
 }
 
 // newEncodePass finds the columns the pass reads and writes in schema and
@@ -232,6 +242,9 @@ func (m *Model) newEncodePass(schema *table.Schema, opt EncodeOptions) (*encodeP
 		pos += len(oc.fields)
 	}
 	e.out = &table.Batch{Cols: make([]table.Column, pos)}
+	if e.obs, err = m.newObserver(schema, opt, e.at); err != nil {
+		return nil, err
+	}
 	return e, nil
 }
 
@@ -273,6 +286,11 @@ func (e *encodePass) batch(b *table.Batch) error {
 			return &table.DataError{File: e.opt.File, Row: b.FirstRow, Err: fmt.Errorf("the second pass read more rows than the first, %d; the file changed while it was read", m.Rows)}
 		}
 	}
+	if e.obs != nil {
+		if err := e.obs.batch(b); err != nil {
+			return err
+		}
+	}
 	each(len(m.Cols), e.opt.Threads, func(ci int) {
 		c := m.Cols[ci]
 		rw := &e.rows[ci]
@@ -294,6 +312,9 @@ func (e *encodePass) batch(b *table.Batch) error {
 		for _, ei := range e.first[ci] {
 			k := e.at[ci][ei]
 			e.encoders[ci][ei].Encode(rw, out.Cols[k:k+len(c.Fits[ei].Outputs())])
+		}
+		if e.obs != nil {
+			e.obs.column(ci, rw, out.Cols)
 		}
 	})
 	if e.foldAt >= 0 {

@@ -35,10 +35,27 @@ const maxManifestBytes = 64 << 20
 // columns and types the fit implies and values within their domains. Any
 // other directory gives a ManifestError naming the field or file.
 func LoadTables(dir string) (*Model, error) {
+	m, _, err := LoadTablesManifest(dir)
+	return m, err
+}
+
+// LoadTablesManifest is LoadTables, and returns the manifest it read and
+// checked too (what a model does not keep, such as each column's
+// TrainingScore).
+func LoadTablesManifest(dir string) (*Model, *Manifest, error) {
 	mf, err := readManifest(dir)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
+	m, err := loadChecked(dir, mf)
+	if err != nil {
+		return nil, nil, err
+	}
+	return m, mf, nil
+}
+
+// loadChecked checks the manifest mf of dir and loads the tables it lists.
+func loadChecked(dir string, mf *Manifest) (*Model, error) {
 	sp, err := mf.check()
 	if err != nil {
 		return nil, &ManifestError{Dir: dir, Msg: ManifestName + ": " + err.Error()}
@@ -334,6 +351,9 @@ func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstat
 	if err := checkSum(at+".table_xxh64", c.TableSum); err != nil {
 		return err
 	}
+	if err := mf.checkScore(i, task, supervised, sp); err != nil {
+		return err
+	}
 	if supervised {
 		for ei, e := range sp.EncodingsOf(i) {
 			if err := e.Check(task, len(mf.Classes)); err != nil {
@@ -354,6 +374,30 @@ func (mf *Manifest) checkColumn(i int, kinds map[string]table.Kind, task colstat
 		return err
 	}
 	return checkSum(at+".parent_table_xxh64", c.ParentSum)
+}
+
+// checkScore checks columns[i].training_score: recorded only for a column
+// with a target encoding of a binary or regression target, an AUC within
+// [0, 1] or an RMSE of at least 0, finite.
+func (mf *Manifest) checkScore(i int, task colstats.Task, supervised bool, sp *Spec) error {
+	v := mf.Columns[i].TrainingScore
+	if v == nil {
+		return nil
+	}
+	at := fmt.Sprintf("columns[%d].training_score %g", i, *v)
+	target := false
+	for _, e := range sp.EncodingsOf(i) {
+		target = target || e.Method().Name() == "target"
+	}
+	switch metric := metricOf(task); {
+	case !supervised || !target || metric == "":
+		return fmt.Errorf("%s, but the column has no target encoding of a binary or regression target", at)
+	case metric == MetricAUC && !(*v >= 0 && *v <= 1):
+		return fmt.Errorf("%s: want an AUC within [0, 1]", at)
+	case metric == MetricRMSE && !(*v >= 0 && !math.IsInf(*v, 0)):
+		return fmt.Errorf("%s: want an RMSE of at least 0, finite", at)
+	}
+	return nil
 }
 
 // checkTableName checks that the table named at field is a plain file name

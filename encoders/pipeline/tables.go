@@ -83,6 +83,14 @@ type ManifestCol struct {
 	// Encodings lists the column's encodings in the grammar, each with
 	// what its fit recorded (a prior, a smoothing weight).
 	Encodings []ManifestEnc `json:"encodings"`
+	// TrainingScore is the Score of the column's target mean against the
+	// target over the training rows with a known target, computed from the
+	// training pass's out-of-fold values: the AUC for a binary target, the
+	// RMSE for regression. apply's drift report sets the score on new rows
+	// against it. Absent without a target encoding, for a multi-class
+	// target, for tables written without a training pass (merge) and for
+	// a column of more distinct encoded values than maxScoreValues.
+	TrainingScore *float64 `json:"training_score,omitempty"`
 }
 
 // ManifestEnc is one encoding of a column.

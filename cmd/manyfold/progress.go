@@ -28,7 +28,7 @@ type progress struct {
 	start time.Time
 	last  time.Time
 	drawn bool
-	model int // compare's column in the model phase, from 1; 0 before
+	model int                // compare's column in the model phase, from 1; 0 before
 	total int64              // rows of the input; 0 when not known
 	input table.InputCounter // bytes read of the input's size; nil when not known
 }

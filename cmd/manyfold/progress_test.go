@@ -86,7 +86,8 @@ func TestProgressDraws(t *testing.T) {
 		p.update(1000)
 		clock.t = clock.t.Add(50 * time.Millisecond)
 		p.update(2000) // too soon: not drawn
-		if got := b.String(); got != "\r"+c.want+"\033[K" { // no rate yet: no time has passed
+		// Drawn once, without a rate: no time had passed.
+		if got := b.String(); got != "\r"+c.want+"\033[K" {
 			t.Errorf("%s: drew %q, want the line %q once", c.path, got, c.want)
 		}
 		clock.t = clock.t.Add(2 * time.Second)

@@ -123,6 +123,7 @@ type barView struct {
 	HasErr                           bool
 	ErrX, ErrY0, ErrY1, CapX0, CapX1 string
 	ValueX, ValueY, ValueText        string
+	ValueAnchor, ValueTransform      string
 	LabelX, LabelY, Label            string
 	LabelAnchor, LabelTransform      string
 	LabelWeight                      string
@@ -282,7 +283,6 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 	const (
 		width  = 760
 		right  = 16.0
-		top    = 24.0
 		plotH  = 250.0
 		charW  = 6.4 // average width of an 11px label character
 		legend = 28.0
@@ -311,6 +311,13 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 		}
 	}
 	barW := math.Min(slot*0.62, 72)
+	valueW, rotateValues := valueLabels(c.Candidates, slot)
+	top := 24.0
+	if rotateValues {
+		// An upright value label reaches valueW above its bar's top (and
+		// 5 more): the plot starts low enough for the highest bar's.
+		top = valueW + 12
+	}
 	labelH := 34.0
 	if rotate {
 		// A label rotated by 35 degrees drops sin(35°) of its length
@@ -373,6 +380,7 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 			Y: px(y1 - h), H: px(h),
 			ValueX:      px(cx),
 			ValueText:   sig4(m),
+			ValueAnchor: "middle",
 			LabelWeight: "normal",
 		}
 		switch {
@@ -406,6 +414,13 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 			topY = math.Min(topY, fy)
 		}
 		bv.ValueY = px(math.Max(topY-5, 10))
+		if rotateValues {
+			// Upright, reading upwards from 5 px above the bar's top; the
+			// glyphs lie left of the baseline, so it sits 4 px right of
+			// the centre.
+			bv.ValueX, bv.ValueY, bv.ValueAnchor = px(cx+4), px(topY-5), "start"
+			bv.ValueTransform = fmt.Sprintf("rotate(-90 %s %s)", bv.ValueX, bv.ValueY)
+		}
 		label := displayName(bv.Name)
 		if rotate {
 			bv.LabelX, bv.LabelY = px(cx+4), px(y1+14)
@@ -441,8 +456,20 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 	return b
 }
 
-// displayName shortens a very long candidate name for an axis label; the
-// full name stays in the table and the bar's tooltip.
+// valueLabels returns the estimated width of the widest bar value label
+// and whether the labels are set upright: when the widest, with a 4 px gap,
+// is wider than a bar's slot, labels side by side at equal heights would
+// overlap.
+func valueLabels(cands []CandidateResult, slot float64) (width float64, upright bool) {
+	const valueCharW = 6.7 // a figure of the 10.5px value font: 0.64 em, the widest common sans
+	n := 0
+	for _, c := range cands {
+		n = max(n, utf8.RuneCountInString(sig4(c.Primary.Mean)))
+	}
+	width = float64(n) * valueCharW
+	return width, width+4 > slot
+}
+
 // barNote is the note a candidate's bar label carries: " (best)" for the
 // winner, " (baseline)" for a baseline.
 func barNote(c CandidateResult) string {
@@ -455,6 +482,8 @@ func barNote(c CandidateResult) string {
 	return ""
 }
 
+// displayName shortens a very long candidate name for an axis label; the
+// full name stays in the table and the bar's tooltip.
 func displayName(s string) string {
 	const limit = 28
 	if utf8.RuneCountInString(s) <= limit {
@@ -867,9 +896,9 @@ svg .level { fill: #1f5fa8; fill-opacity: 0.35; stroke: #1f5fa8; stroke-width: 0
 .pair figure { flex: 1 1 360px; max-width: 460px; }
 .none { color: #666666; font-style: italic; }
 table { border-collapse: collapse; font-size: 0.88em; font-variant-numeric: tabular-nums; margin: 0.3em 0 0.6em; break-inside: avoid; page-break-inside: avoid; }
-th, td { border-bottom: 1px solid #dddddd; padding: 4px 10px; text-align: right; white-space: nowrap; }
-th:first-child, td:first-child { text-align: left; white-space: normal; overflow-wrap: break-word; min-width: 10em; }
-th { background: #f2f2f2; font-weight: 600; }
+th, td { border-bottom: 1px solid #dddddd; padding: 4px 8px; text-align: right; white-space: nowrap; }
+th:first-child, td:first-child { text-align: left; white-space: normal; overflow-wrap: anywhere; min-width: 8em; }
+th { background: #f2f2f2; font-weight: 600; white-space: normal; vertical-align: bottom; }
 tr.winner td { font-weight: 700; background: #eef4fb; }
 tr.baseline td { color: #666666; font-style: italic; }
 .candidates { break-inside: avoid; page-break-inside: avoid; }
@@ -936,7 +965,7 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 {{- range .Folds}}
 <circle class="fold" cx="{{.X}}" cy="{{.Y}}" r="{{.R}}"></circle>
 {{- end}}
-<text class="value" x="{{.ValueX}}" y="{{.ValueY}}" text-anchor="middle">{{.ValueText}}</text>
+<text class="value" x="{{.ValueX}}" y="{{.ValueY}}" text-anchor="{{.ValueAnchor}}"{{if .ValueTransform}} transform="{{.ValueTransform}}"{{end}}>{{.ValueText}}</text>
 <text x="{{.LabelX}}" y="{{.LabelY}}" text-anchor="{{.LabelAnchor}}" font-weight="{{.LabelWeight}}"{{if .LabelTransform}} transform="{{.LabelTransform}}"{{end}}>{{.Label}}</text>
 {{- if .Note}}
 <text class="note" x="{{.LabelX}}" y="{{.NoteY}}" text-anchor="middle">{{.Note}}</text>

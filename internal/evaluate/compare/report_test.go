@@ -3,10 +3,12 @@ package compare
 import (
 	"bytes"
 	"encoding/xml"
+	"fmt"
 	"io"
 	"math"
 	"os"
 	"path/filepath"
+	"regexp"
 	"strconv"
 	"strings"
 	"testing"
@@ -700,5 +702,214 @@ func TestReportFormatting(t *testing.T) {
 	}
 	if got := clean("a\x00b\x1fc\xffd\te"); got != "a\uFFFDb\uFFFDc\uFFFDd\te" {
 		t.Errorf("clean = %q", got)
+	}
+}
+
+// manyCandidates returns a binary result whose one column has n candidates
+// of nearly equal AUC, so their value labels stand side by side at one
+// height, as with 20 settings of one method.
+func manyCandidates(n int) *Result {
+	r := binaryResult()
+	col := &r.Columns[0]
+	col.Candidates = nil
+	for i := range n {
+		m := 0.6054 - 0.0002*float64(i)
+		col.Candidates = append(col.Candidates, cand("target:m="+strconv.Itoa(i+1), m, 0.003, false, i == 0))
+	}
+	col.Candidates = append(col.Candidates, cand("prior", 0.5, 0, true, false))
+	r.Columns = r.Columns[:1]
+	return r
+}
+
+// valueBox is the box a bar's value label covers in the chart's units,
+// from its anchor, its text-anchor and its rotation, with every character
+// as wide as a figure of the widest common sans (0.64 em; headless
+// Chromium's DejaVu Sans measured in bench/report-check.sh) and the glyphs
+// 0.93 em above and 0.24 em below the baseline.
+func valueBox(t *testing.T, n *node) (x0, y0, x1, y1 float64) {
+	t.Helper()
+	const size = 10.5
+	x, _ := strconv.ParseFloat(n.attrs["x"], 64)
+	y, _ := strconv.ParseFloat(n.attrs["y"], 64)
+	w := float64(len([]rune(n.allText()))) * 0.64 * size
+	up, down := 0.93*size, 0.24*size
+	switch tr := n.attrs["transform"]; {
+	case tr == "" && n.attrs["text-anchor"] == "middle":
+		return x - w/2, y - up, x + w/2, y + down
+	case tr == fmt.Sprintf("rotate(-90 %s %s)", n.attrs["x"], n.attrs["y"]) && n.attrs["text-anchor"] == "start":
+		// Reading upwards: the text runs from the anchor up, its glyphs
+		// left of the baseline.
+		return x - up, y - w, x + down, y
+	default:
+		t.Fatalf("value label %q: anchor %q, transform %q", n.allText(), n.attrs["text-anchor"], n.attrs["transform"])
+	}
+	return
+}
+
+// TestReportValueLabelsApart checks the rule that sets the bars' value
+// labels upright when they do not fit side by side (valueLabels): with 24
+// candidates of nearly equal scores no two labels overlap and every label
+// lies inside the chart, and with 5 the labels stay level.
+func TestReportValueLabelsApart(t *testing.T) {
+	for _, n := range []int{4, 23, 40} {
+		t.Run(strconv.Itoa(n+1)+" candidates", func(t *testing.T) {
+			var buf bytes.Buffer
+			if err := WriteReportTo(&buf, manyCandidates(n)); err != nil {
+				t.Fatal(err)
+			}
+			html := parseXML(t, buf.Bytes())
+			svg := html.all(elem("svg", "metric-chart"))[0]
+			vb := strings.Fields(svg.attrs["viewBox"])
+			w, _ := strconv.ParseFloat(vb[2], 64)
+			h, _ := strconv.ParseFloat(vb[3], 64)
+			labels := svg.all(elem("text", "value"))
+			if len(labels) != n+1 {
+				t.Fatalf("%d value labels, want %d", len(labels), n+1)
+			}
+			upright := 0
+			type box struct{ x0, y0, x1, y1 float64 }
+			var boxes []box
+			for _, l := range labels {
+				if l.attrs["transform"] != "" {
+					upright++
+				}
+				x0, y0, x1, y1 := valueBox(t, l)
+				if x0 < 0 || y0 < 0 || x1 > w || y1 > h {
+					t.Errorf("value label %q at (%.1f %.1f)-(%.1f %.1f) leaves the %gx%g chart", l.allText(), x0, y0, x1, y1, w, h)
+				}
+				boxes = append(boxes, box{x0, y0, x1, y1})
+			}
+			for i := 1; i < len(boxes); i++ {
+				a, b := boxes[i-1], boxes[i]
+				if a.x1 > b.x0 && b.x1 > a.x0 && a.y1 > b.y0 && b.y1 > a.y0 {
+					t.Errorf("value labels %q and %q overlap: x %.1f-%.1f and %.1f-%.1f", labels[i-1].allText(), labels[i].allText(), a.x0, a.x1, b.x0, b.x1)
+				}
+			}
+			if n == 4 && upright != 0 {
+				t.Errorf("%d upright value labels with 5 bars, want none", upright)
+			}
+			if n > 4 && upright != len(labels) {
+				t.Errorf("%d of %d value labels upright", upright, len(labels))
+			}
+		})
+	}
+}
+
+// cssValue returns the value of property prop in the report stylesheet's
+// first rule whose selector is sel, or "".
+func cssValue(t *testing.T, sel, prop string) string {
+	t.Helper()
+	m := regexp.MustCompile(`(?m)^` + regexp.QuoteMeta(sel) + ` \{([^}]*)\}`).FindStringSubmatch(reportHTML)
+	if m == nil {
+		t.Fatalf("no rule %q in the stylesheet", sel)
+	}
+	for _, d := range strings.Split(m[1], ";") {
+		if k, v, ok := strings.Cut(d, ":"); ok && strings.TrimSpace(k) == prop {
+			return strings.TrimSpace(v)
+		}
+	}
+	return ""
+}
+
+// textWidth is a generous width of s in pixels at font size px in bold
+// (the winner's row): figures and letters 0.7 em, as the bold figures of
+// DejaVu Sans, the widest common sans and headless Chromium's on Debian.
+func textWidth(s string, px float64) float64 {
+	em := 0.0
+	for _, r := range s {
+		switch r {
+		case '.', ',', ':', ' ':
+			em += 0.38
+		case '±':
+			em += 0.84
+		case '%', '–':
+			em += 1.0
+		default:
+			em += 0.7
+		}
+	}
+	return em * px
+}
+
+// TestReportTableFitsPage checks the stylesheet rules that let the
+// candidates table fit a page 1,280 px wide (bench/report-check.sh measures
+// it in a browser): the header cells wrap between words and the candidate
+// column anywhere, so the table's narrowest width, every number cell on one
+// line, stays within the body's text column, for the widest table (three
+// metrics, the train score, --timings' fit seconds) with a long name.
+func TestReportTableFitsPage(t *testing.T) {
+	r := regressionResult()
+	metrics := func(m float64) []Metric {
+		return []Metric{{Name: "rmse", Stat: Stat{m, 0.291}}, {Name: "mae", Stat: Stat{m * 0.7, 0.205}}, {Name: "r2", Stat: Stat{0.4312, 0.0123}}}
+	}
+	col := &r.Columns[0]
+	col.Candidates = []CandidateResult{
+		cand("target:blend=20,10:prior=prefix3+freq+topk:100+hash:1024:signed:seed=7", 14.71, 0.291, false, true, metrics(14.71)...),
+		cand("target:insample", 15.02, 0.288, true, false, metrics(15.02)...),
+	}
+	for i := range col.Candidates {
+		col.Candidates[i].OutputColumns = 1127
+		col.Candidates[i].UnseenShare = 0.1286
+	}
+	var buf bytes.Buffer
+	if err := WriteReportTo(&buf, r); err != nil {
+		t.Fatal(err)
+	}
+	html := parseXML(t, buf.Bytes())
+	table := html.all(elem("table", ""))[0]
+	rows := table.all(elem("tr", ""))
+	heads := rows[0].all(elem("th", ""))
+	if len(heads) != 8 {
+		t.Fatalf("%d columns, want the widest table's 8", len(heads))
+	}
+
+	px := func(v, unit string, em float64) float64 {
+		f, err := strconv.ParseFloat(strings.TrimSuffix(v, unit), 64)
+		if err != nil || !strings.HasSuffix(v, unit) {
+			t.Fatalf("%q is not in %s", v, unit)
+		}
+		return f * em
+	}
+	column := px(cssValue(t, "body", "max-width"), "px", 1)
+	font := 16 * px(cssValue(t, "table", "font-size"), "em", 1)
+	pad := strings.Fields(cssValue(t, "th, td", "padding"))
+	padX := 2 * px(pad[len(pad)-1], "px", 1)
+	// A cell's narrowest width: its longest word where it wraps between
+	// words, nothing where it wraps anywhere, else all of its text.
+	minWidth := func(text, wrap string) float64 {
+		switch wrap {
+		case "anywhere":
+			return 0
+		case "words":
+			w := 0.0
+			for _, word := range strings.Fields(text) {
+				w = math.Max(w, textWidth(word, font))
+			}
+			return w
+		}
+		return textWidth(text, font)
+	}
+	first := "th:first-child, td:first-child"
+	nameWrap, headWrap := "words", ""
+	if cssValue(t, first, "overflow-wrap") == "anywhere" {
+		nameWrap = "anywhere"
+	}
+	if cssValue(t, "th", "white-space") == "normal" {
+		headWrap = "words"
+	}
+	least := 0.0
+	for c := range heads {
+		w, hw, cw := 0.0, headWrap, "" // number cells stay on one line
+		if c == 0 {
+			w, hw, cw = px(cssValue(t, first, "min-width"), "em", font), nameWrap, nameWrap
+		}
+		w = math.Max(w, minWidth(heads[c].allText(), hw))
+		for _, row := range rows[1:] {
+			w = math.Max(w, minWidth(row.all(elem("td", ""))[c].allText(), cw))
+		}
+		least += w + padX
+	}
+	if least > column {
+		t.Errorf("the table needs at least %.0f px, the text column is %.0f px", least, column)
 	}
 }

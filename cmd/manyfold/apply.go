@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
 	"manyfold/io/table"
 )
@@ -19,6 +20,16 @@ training rows, and for a level the tables do not hold (unseen, or left out
 by --min-level-rows) the prior (or its parent's value with a hierarchical
 prior), the top-k "other" code 0, frequency 0, and its hash bucket.
 All input columns are written back, then the encoded columns.
+
+--report FILE also writes how FILE drifted from the training rows, per
+encoded column (JSON; an HTML page when FILE ends in .html; give --report
+twice for both): the share of rows and of levels unseen in training, the
+unseen levels with the most rows (those with at least --min-level-rows
+rows), the population stability index of the level distribution and,
+where FILE holds the target, the target mean's AUC or RMSE against its
+training value. --fail-on holds those figures to thresholds: when a column
+exceeds one, the output and the report are still written, each figure
+over its threshold is printed, and apply exits 7.
 `
 
 func runApply(args []string) error {
@@ -28,6 +39,9 @@ func runApply(args []string) error {
 	tables := fs.String("tables", "", "directory of mapping tables written by manyfold encode")
 	var of outputFlags
 	of.add(fs)
+	reports := fs.StringArray("report", nil, "write the drift report to this file: JSON, or HTML for .html (repeat for both)")
+	minRows := fs.Uint64("min-level-rows", 10, "the report lists an unseen level only with at least this many rows (never fewer than the fit's --min-level-rows)")
+	failOn := fs.String("fail-on", "", "exit 7 when a column's drift exceeds a threshold: unseen=SHARE, levels=SHARE, psi=X, auc_drop=X, rmse_rise=X, separated by commas")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -47,10 +61,18 @@ func runApply(args []string) error {
 	if err != nil {
 		return err
 	}
-	reserveHeap(file, *tables)
-	m, err := pipeline.LoadTables(*tables)
+	th, err := checkReportFlags(file, of.out, *reports, *failOn)
 	if err != nil {
 		return err
+	}
+	reserveHeap(file, *tables)
+	m, mf, err := pipeline.LoadTablesManifest(*tables)
+	if err != nil {
+		return err
+	}
+	var drift *pipeline.Drift
+	if len(*reports) > 0 || *failOn != "" {
+		drift = newDrift(m, mf, *minRows)
 	}
 	ropts.CSV.TypesIfPresent = fittedKinds(m)
 	name := file
@@ -66,13 +88,26 @@ func runApply(args []string) error {
 	defer o.close()
 	w := o.w
 	pr := newProgress("apply", o.r)
-	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Use: pipeline.NewRows, Progress: pr.update, Threads: of.threads, Input: o.full})
+	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Use: pipeline.NewRows, Progress: pr.update, Threads: of.threads, Input: o.full, Drift: drift})
 	pr.done()
 	if err != nil {
 		w.Abort()
 		return fittedKindError(err, ropts.CSV, *tables)
 	}
-	if err := w.Commit(); err != nil {
+	var failed []pipeline.Breach
+	var outs []atomicfile.Output
+	if drift != nil {
+		rep := drift.Report()
+		rep.Tables = *tables
+		failed = rep.Check(th)
+		if outs, err = createDriftReports(rep, *reports); err != nil {
+			w.Abort()
+			return err
+		}
+	}
+	// The output and the reports are one unit: all are written in full
+	// before any is moved into place.
+	if err := atomicfile.CommitAll(append([]atomicfile.Output{w}, outs...)...); err != nil {
 		return commitError(err)
 	}
 	fmt.Fprintf(os.Stderr, "applied %s to %d rows in %.1fs;", *tables, sum.Rows, time.Since(start).Seconds())
@@ -86,8 +121,54 @@ func runApply(args []string) error {
 			fmt.Fprint(os.Stderr, ",")
 		}
 	}
-	fmt.Fprintf(os.Stderr, "; wrote %s\n", outName(of.out))
+	fmt.Fprintf(os.Stderr, "; wrote %s", outName(of.out))
+	for _, r := range *reports {
+		fmt.Fprintf(os.Stderr, " and %s", r)
+	}
+	fmt.Fprintln(os.Stderr)
+	for _, b := range failed {
+		fmt.Fprintln(os.Stderr, "manyfold apply: "+breachLine(b))
+	}
+	if len(failed) > 0 {
+		return &driftError{failed}
+	}
 	return nil
+}
+
+// checkReportFlags vets --report and --fail-on before any data is read: a
+// report is neither the input nor the output nor named twice, and the
+// thresholds parse.
+func checkReportFlags(file, out string, reports []string, failOn string) (pipeline.Thresholds, error) {
+	for i, r := range reports {
+		switch {
+		case r == "" || r == "-":
+			return pipeline.Thresholds{}, usagef("--report %q: give a file name", r)
+		case file != "-" && sameFile(file, r):
+			return pipeline.Thresholds{}, usagef("--report %s is the input file; choose another path", r)
+		case sameOutput(r, out):
+			return pipeline.Thresholds{}, usagef("--report and --out both name %s; give two files", r)
+		}
+		for _, q := range reports[:i] {
+			if sameOutput(q, r) {
+				return pipeline.Thresholds{}, usagef("--report names %s twice", r)
+			}
+		}
+	}
+	th, err := pipeline.ParseThresholds(failOn)
+	if err != nil {
+		return th, usagef("--fail-on %v", err)
+	}
+	return th, nil
+}
+
+// newDrift returns the gatherer of apply's drift report from the tables of
+// m and their manifest mf (each column's training score).
+func newDrift(m *pipeline.Model, mf *pipeline.Manifest, minRows uint64) *pipeline.Drift {
+	training := make([]*float64, len(mf.Columns))
+	for i, c := range mf.Columns {
+		training[i] = c.TrainingScore
+	}
+	return pipeline.NewDrift(m, pipeline.DriftOptions{MinLevelRows: minRows, Training: training})
 }
 
 // fittedKinds returns the kinds the mapping tables' columns were fitted on,

@@ -18,7 +18,8 @@
 // empty, a directory, unknown format, corrupt, Parquet on standard
 // input); 4 bad data in the input (ragged row, bad quote, bad target); 5
 // output cannot be written; 6 mapping tables that cannot serve (wrong
-// version, other columns or types); 130 and 143 stopped by SIGINT or
+// version, other columns or types); 7 drift over --fail-on (apply: the
+// output and the report were written); 130 and 143 stopped by SIGINT or
 // SIGTERM, with the temporary files removed.
 package main
 
@@ -58,6 +59,7 @@ const (
 	exitData     = 4
 	exitOutput   = 5
 	exitMismatch = 6
+	exitDrift    = 7 // drift over --fail-on: apply wrote its output and report
 )
 
 const usage = `manyfold: compact numeric encodings of high-cardinality categorical columns
@@ -75,8 +77,9 @@ FILE is CSV (optionally gzip or zstd compressed), Parquet or Arrow IPC; "-" read
 Run "manyfold COMMAND --help" for a command's flags.
 
 Exit codes: 0 ok, 1 unexpected failure, 2 usage, 3 unreadable input, 4 bad data,
-5 output not written, 6 mapping tables that do not fit the input, 130 and 143
-stopped by SIGINT or SIGTERM (temporary files removed).
+5 output not written, 6 mapping tables that do not fit the input, 7 drift over
+--fail-on (apply), 130 and 143 stopped by SIGINT or SIGTERM (temporary files
+removed).
 `
 
 type command struct {
@@ -268,9 +271,12 @@ func exitCode(err error) int {
 	var me *pipeline.ManifestError
 	var oe *outputError
 	var gp *guard.Panic
+	var dr *driftError
 	switch {
 	case errors.As(err, &gp):
 		return exitFailure
+	case errors.As(err, &dr):
+		return exitDrift
 	case errors.As(err, &ue), errors.As(err, &pu), errors.As(err, &ce), errors.Is(err, csvio.ErrTypeColumn):
 		return exitUsage
 	case errors.As(err, &oe), isWriteError(err):

@@ -11,9 +11,13 @@
 //     whenever the dictionary does (a delta or a replacement in a stream);
 //   - int8 to int64 and uint8 to uint64: int (a uint64 above the int64 range
 //     is a data error);
-//   - date32, date64, time32, time64, timestamp and duration: int, holding the
-//     stored integer (days, milliseconds or the type's unit since the epoch
-//     or midnight) with no conversion;
+//   - date32 and date64: text, the ISO 8601 date (2026-12-04);
+//   - timestamp: text, the ISO 8601 date and time (table.AppendTimestamp:
+//     the fraction of a second only when not zero, to at most the unit's
+//     digits; a Z when the type has a time zone, the instant shown in UTC;
+//     no zone for a timestamp without one, a wall clock time);
+//   - time32, time64 and duration: int, holding the stored integer (the
+//     type's unit since midnight, or the duration) with no conversion;
 //   - float16, float32, float64: float;
 //   - bool: bool;
 //   - null: text, every row null.

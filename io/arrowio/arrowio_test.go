@@ -11,6 +11,7 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+	"time"
 
 	"github.com/apache/arrow/go/v17/arrow"
 	"github.com/apache/arrow/go/v17/arrow/array"
@@ -105,7 +106,9 @@ func buildArray(t testing.TB, mem memory.Allocator, dt arrow.DataType, vals []an
 			cells[i].text = strconv.Itoa(v.(int))
 		case *array.TimestampBuilder:
 			b.Append(arrow.Timestamp(v.(int)))
-			cells[i].text = strconv.Itoa(v.(int))
+			// eventSchema's timestamps: milliseconds of no zone, a wall
+			// clock time (ISO 8601 without Z), from the standard library.
+			cells[i].text = time.UnixMilli(int64(v.(int))).UTC().Format("2006-01-02T15:04:05.999999999")
 		case *array.Float32Builder:
 			b.Append(float32(num(v)))
 			cells[i].text = string(table.AppendFloat(nil, float64(float32(num(v)))))
@@ -256,10 +259,10 @@ var eventSchema = arrow.NewSchema([]arrow.Field{
 }, nil)
 
 var eventForms = []table.Form{table.FormDict, table.FormText, table.FormText, table.FormInt64, table.FormFloat64,
-	table.FormBool, table.FormFloat64, table.FormInt64, table.FormInt64, table.FormDict, table.FormText}
+	table.FormBool, table.FormFloat64, table.FormText, table.FormInt64, table.FormDict, table.FormText}
 
 var eventKinds = []table.Kind{table.String, table.String, table.String, table.Int64, table.Float64,
-	table.Bool, table.Float64, table.Int64, table.Int64, table.String, table.String}
+	table.Bool, table.Float64, table.String, table.Int64, table.String, table.String}
 
 var routes = []string{"R-North-7", "R-Harbour-2", "R-Ring-11"}
 var parcelTypes = []string{"letter", "small", "", "pallet"}

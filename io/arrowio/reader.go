@@ -5,6 +5,7 @@ import (
 	"io"
 	"math"
 	"strconv"
+	"time"
 
 	"github.com/apache/arrow/go/v17/arrow"
 	"github.com/apache/arrow/go/v17/arrow/array"
@@ -91,8 +92,10 @@ func kindOf(dt arrow.DataType) (table.Kind, error) {
 		return table.String, nil
 	case arrow.INT8, arrow.INT16, arrow.INT32, arrow.INT64,
 		arrow.UINT8, arrow.UINT16, arrow.UINT32, arrow.UINT64,
-		arrow.DATE32, arrow.DATE64, arrow.TIME32, arrow.TIME64, arrow.TIMESTAMP, arrow.DURATION:
+		arrow.TIME32, arrow.TIME64, arrow.DURATION:
 		return table.Int64, nil
+	case arrow.DATE32, arrow.DATE64, arrow.TIMESTAMP:
+		return table.String, nil // ISO 8601 text (timeText)
 	case arrow.FLOAT16, arrow.FLOAT32, arrow.FLOAT64:
 		return table.Float64, nil
 	case arrow.BOOL:
@@ -298,15 +301,25 @@ func (r *reader) convert(arr arrow.Array, st *colState, col *table.Column, name 
 		}
 		return r.setInts(col, widen(st, v), n, name)
 	case *array.Date32:
-		return r.setInts(col, widen(st, a.Date32Values()), n, name)
+		v := a.Date32Values()
+		return r.timeText(st, col, n, name, func(dst []byte, i int) []byte { return table.AppendDate(dst, int64(v[i])) })
 	case *array.Date64:
-		return r.setInts(col, widen(st, a.Date64Values()), n, name)
+		v := a.Date64Values()
+		return r.timeText(st, col, n, name, func(dst []byte, i int) []byte {
+			return table.AppendDate(dst, floorDiv(int64(v[i]), 86_400_000))
+		})
 	case *array.Time32:
 		return r.setInts(col, widen(st, a.Time32Values()), n, name)
 	case *array.Time64:
 		return r.setInts(col, widen(st, a.Time64Values()), n, name)
 	case *array.Timestamp:
-		return r.setInts(col, widen(st, a.TimestampValues()), n, name)
+		v := a.TimestampValues()
+		dt := a.DataType().(*arrow.TimestampType)
+		perSecond := int64(time.Second / dt.Unit.Multiplier())
+		utc := dt.TimeZone != "" // an instant; without a zone, a wall clock time
+		return r.timeText(st, col, n, name, func(dst []byte, i int) []byte {
+			return table.AppendTimestamp(dst, int64(v[i]), perSecond, utc)
+		})
 	case *array.Duration:
 		return r.setInts(col, widen(st, a.DurationValues()), n, name)
 	case *array.Float64:
@@ -502,6 +515,27 @@ func viewTextLimit(d arrow.ArrayData) int {
 		}
 	}
 	return int(min(1<<20+viewTextPerByte*size, math.MaxInt32))
+}
+
+// timeText sets col to the ISO 8601 text of a date or timestamp array's
+// rows (appendRow), empty at the null rows.
+func (r *reader) timeText(st *colState, col *table.Column, n int, name string, appendRow func([]byte, int) []byte) error {
+	nulls := col.Nulls
+	return r.textCopy(st, col, n, name, math.MaxInt32, func(dst []byte, i int) []byte {
+		if nulls != nil && nulls[i] {
+			return dst
+		}
+		return appendRow(dst, i)
+	})
+}
+
+// floorDiv returns a/b rounded down (b > 0).
+func floorDiv(a, b int64) int64 {
+	q := a / b
+	if a%b < 0 {
+		q--
+	}
+	return q
 }
 
 func (r *reader) setInts(col *table.Column, v []int64, n int, name string) error {

@@ -8,11 +8,13 @@ import (
 	"bytes"
 	"context"
 	"fmt"
+	"hash/fnv"
 	"io"
 	"os"
 	"path/filepath"
 	"strconv"
 	"testing"
+	"time"
 
 	"github.com/apache/arrow/go/v17/arrow"
 	"github.com/apache/arrow/go/v17/arrow/array"
@@ -266,13 +268,14 @@ type flightStats struct {
 	delaySum    int64
 	delayNulls  int64
 	distanceSum int64
-	dateSum     int64
+	dateSum     uint64 // the sum of the dates' texts' FNV-1a hashes
 }
 
 // TestFlightsAgainstArrow reads the open flights table (3 million rows)
 // with pqio and with Arrow's reader: the row count, per-origin and
-// per-destination counts, and the sums of delay, distance and date must
-// agree exactly.
+// per-destination counts, and the sums of delay and distance must agree
+// exactly, and the date's ISO 8601 texts (pqio's, and Arrow's timestamps
+// formatted by the standard library) too.
 func TestFlightsAgainstArrow(t *testing.T) {
 	path := openDataPath(t, "flights-3m.parquet")
 	r, err := Open(path)
@@ -284,7 +287,7 @@ func TestFlightsAgainstArrow(t *testing.T) {
 		t.Fatalf("NumRows = %d, want 3,000,000 (datapackage.json of vega-datasets 3.2.1 names the file flights_3m)", r.NumRows())
 	}
 	wantFields := []table.Field{
-		{Name: "date", Kind: table.Int64, Nullable: true},
+		{Name: "date", Kind: table.String, Nullable: true},
 		{Name: "delay", Kind: table.Int64, Nullable: true},
 		{Name: "distance", Kind: table.Int64, Nullable: true},
 		{Name: "origin", Kind: table.String, Nullable: true},
@@ -315,7 +318,7 @@ func TestFlightsAgainstArrow(t *testing.T) {
 				ours.distanceSum += dist.Ints[i]
 			}
 			if !date.IsNull(i) {
-				ours.dateSum += date.Ints[i]
+				ours.dateSum += textHash(string(date.Bytes(i)))
 			}
 			if !dest.IsNull(i) {
 				ours.perDest[string(dest.Bytes(i))]++
@@ -352,6 +355,15 @@ func TestFlightsAgainstArrow(t *testing.T) {
 	arrowRead(t, nil, path, nil, func(rec arrow.Record) {
 		theirs.rows += rec.NumRows()
 		date := rec.Column(0).(*array.Timestamp)
+		dt := date.DataType().(*arrow.TimestampType)
+		toTime, err := dt.GetToTimeFunc()
+		if err != nil {
+			t.Fatal(err)
+		}
+		layout := time.RFC3339Nano // adjusted to UTC: a Z
+		if dt.TimeZone == "" {
+			layout = "2006-01-02T15:04:05.999999999" // a wall clock time (this file's): no zone
+		}
 		delay := rec.Column(1).(*array.Int64)
 		dist := rec.Column(2).(*array.Int64)
 		// The file's Arrow schema gives large strings; take either kind.
@@ -367,7 +379,7 @@ func TestFlightsAgainstArrow(t *testing.T) {
 				theirs.distanceSum += dist.Value(i)
 			}
 			if !date.IsNull(i) {
-				theirs.dateSum += int64(date.Value(i))
+				theirs.dateSum += textHash(toTime(date.Value(i)).UTC().Format(layout))
 			}
 			if !origin.IsNull(i) {
 				theirs.perOrigin[origin.Value(i)]++
@@ -389,6 +401,13 @@ func TestFlightsAgainstArrow(t *testing.T) {
 	compareCounts(t, "origin", ours.perOrigin, theirs.perOrigin)
 	compareCounts(t, "destination", ours.perDest, theirs.perDest)
 	t.Logf("3,000,000 rows, %d origins, delay sum %d, %d null delays", len(ours.perOrigin), ours.delaySum, ours.delayNulls)
+}
+
+// textHash is the FNV-1a hash of s.
+func textHash(s string) uint64 {
+	h := fnv.New64a()
+	h.Write([]byte(s))
+	return h.Sum64()
 }
 
 // stringArray is what Arrow's String and LargeString arrays share.

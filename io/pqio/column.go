@@ -5,10 +5,10 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"strconv"
 
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/deprecated"
+	"github.com/parquet-go/parquet-go/encoding"
 
 	"manyfold/io/table"
 )
@@ -172,6 +172,29 @@ func (c *colReader) nextPage() error {
 	}
 	c.dpg = false
 	var have int
+	switch {
+	case l.toText != nil: // integers read as text
+		var v []int64
+		v, c.intBuf, have = intValues(data, l.phys, nvals, c.intBuf)
+		c.utext, c.offBuf = intTexts(c.utext, c.offBuf, v, l.toText)
+		c.text, c.toffs = c.utext, c.offBuf
+	default:
+		var err error
+		if have, err = c.plainValues(data, nvals); err != nil {
+			return err
+		}
+	}
+	if have < nvals {
+		return fmt.Errorf("%w: page holds %d values where its levels promise %d", table.ErrCorrupt, have, nvals)
+	}
+	return nil
+}
+
+// plainValues sets the page's values from data, a page that is not
+// dictionary encoded, and returns how many it holds (at least nvals, or
+// the page is corrupt).
+func (c *colReader) plainValues(data encoding.Values, nvals int) (have int, err error) {
+	l := c.leaf
 	switch l.phys {
 	case parquet.ByteArray:
 		c.text, c.toffs = data.ByteArray()
@@ -179,7 +202,7 @@ func (c *colReader) nextPage() error {
 	case parquet.FixedLenByteArray:
 		b, size := data.FixedLenByteArray()
 		if size <= 0 {
-			return fmt.Errorf("%w: fixed-length values of size %d", table.ErrCorrupt, size)
+			return 0, fmt.Errorf("%w: fixed-length values of size %d", table.ErrCorrupt, size)
 		}
 		have = len(b) / size
 		c.offBuf = fixedOffsets(c.offBuf, min(have, nvals), size)
@@ -199,23 +222,8 @@ func (c *colReader) nextPage() error {
 		}
 		c.intBuf, c.ints = buf, buf
 	case parquet.Int64:
-		if l.uint64s {
-			v := data.Int64()
-			have = len(v)
-			c.utext, c.offBuf = unsignedTexts(c.utext, c.offBuf, v[:min(have, nvals)])
-			c.text, c.toffs = c.utext, c.offBuf
-			break
-		}
 		c.ints = data.Int64()
 		have = len(c.ints)
-	case parquet.Int96:
-		v := data.Int96()
-		have = len(v)
-		buf := grow(c.intBuf, min(have, nvals))
-		for i := range buf {
-			buf[i] = int96Nanos(v[i])
-		}
-		c.intBuf, c.ints = buf, buf
 	case parquet.Float:
 		v := data.Float()
 		have = len(v)
@@ -236,10 +244,7 @@ func (c *colReader) nextPage() error {
 		}
 		c.boolBuf, c.bools = buf, buf
 	}
-	if have < nvals {
-		return fmt.Errorf("%w: page holds %d values where its levels promise %d", table.ErrCorrupt, have, nvals)
-	}
-	return nil
+	return have, nil
 }
 
 // maxIndex returns the largest of idx as unsigned values (a negative
@@ -278,12 +283,12 @@ func (c *colReader) loadDict(d parquet.Dictionary) error {
 				return fmt.Errorf("%w: dictionary of %d fixed-length values holds %d bytes", table.ErrCorrupt, n, len(b))
 			}
 			offs = fixedOffsets(nil, n, size)
-		case parquet.Int64: // unsigned
-			v := data.Int64()
-			if len(v) < n {
-				return errShortDict(n, len(v))
+		case parquet.Int32, parquet.Int64, parquet.Int96: // dates, timestamps, unsigned
+			v, _, have := intValues(data, c.leaf.phys, n, nil)
+			if have < n || c.leaf.toText == nil {
+				return errShortDict(n, have)
 			}
-			b, offs = unsignedTexts(nil, nil, v[:n])
+			b, offs = intTexts(nil, nil, v, c.leaf.toText)
 		default:
 			return fmt.Errorf("%w: dictionary of physical type %v in a text column", table.ErrCorrupt, c.leaf.phys)
 		}
@@ -317,8 +322,6 @@ func (c *colReader) loadDict(d parquet.Dictionary) error {
 			return dictValues(c.dictInts, data.Int32(), conv)
 		case parquet.Int64:
 			return dictValues(c.dictInts, data.Int64(), func(v int64) int64 { return v })
-		case parquet.Int96:
-			return dictValues(c.dictInts, data.Int96(), int96Nanos)
 		}
 	case table.Float64:
 		c.dictFloats = grow(c.dictFloats, n)
@@ -362,17 +365,6 @@ func errShortDict(want, have int) error {
 func int96Nanos(v deprecated.Int96) int64 {
 	nanos := int64(uint64(v[1])<<32 | uint64(v[0]))
 	return (int64(v[2])-julianUnixEpoch)*86400_000_000_000 + nanos
-}
-
-// unsignedTexts writes the unsigned decimal text of each of v into text
-// and their offsets (len(v)+1) into offs, reusing both buffers.
-func unsignedTexts(text []byte, offs []uint32, v []int64) ([]byte, []uint32) {
-	text, offs = text[:0], append(offs[:0], 0)
-	for _, x := range v {
-		text = strconv.AppendUint(text, uint64(x), 10)
-		offs = append(offs, uint32(len(text)))
-	}
-	return text, offs
 }
 
 // fixedOffsets returns the offsets of n values of the given size.

@@ -11,14 +11,23 @@
 //
 //   - BYTE_ARRAY (strings, enums, JSON, raw bytes) and FIXED_LEN_BYTE_ARRAY
 //     (their raw bytes) give text;
-//   - INT32 and INT64 give int, whatever their logical type: a date is its
-//     day number, a timestamp or time its integer count of units, a decimal
-//     its unscaled integer; an unsigned 32-bit integer keeps its value;
+//   - INT32 and INT64 give int, except the dates, timestamps and unsigned
+//     64-bit integers below: a time of day is its integer count of units, a
+//     decimal its unscaled integer; an unsigned 32-bit integer keeps its
+//     value;
+//   - a DATE (logical or converted type) gives text, its ISO 8601 date
+//     (2026-12-04); a TIMESTAMP (logical type of any unit, or the
+//     TIMESTAMP_MILLIS and TIMESTAMP_MICROS converted types) and the legacy
+//     INT96 timestamp give text, ISO 8601 date and time with the fraction
+//     of a second only when it is not zero, to at most the unit's digits,
+//     trailing zeros dropped, and a Z when the timestamp is adjusted to UTC
+//     (2026-12-04T17:58:01Z, 2026-12-04T17:58:01.25Z; a local wall clock
+//     time has no zone: 2026-12-04T17:58:01). A Parquet output that copies
+//     such a column chunk by chunk (WriterOptions.Copy) keeps its type;
 //   - an unsigned 64-bit integer (INT64 with the unsigned integer logical
 //     type or the UINT_64 converted type) gives text, its unsigned decimal,
 //     as values above 2^63-1 do not fit an int: its levels are the texts a
 //     CSV file of the same numbers holds;
-//   - the legacy INT96 timestamp gives int, nanoseconds since 1970-01-01;
 //   - FLOAT and DOUBLE give float;
 //   - BOOLEAN gives bool.
 //
@@ -102,7 +111,9 @@ type leaf struct {
 	maxDef  byte
 	phys    parquet.Kind
 	uint32s bool // INT32 holding unsigned values
-	uint64s bool // INT64 holding unsigned values, read as their decimal text
+	// toText, when set, reads an integer column as text: unsigned 64-bit
+	// integers as decimals, dates and timestamps as ISO 8601 (timeText).
+	toText textOf
 }
 
 // Reader reads a Parquet file as a table. It implements table.Reader.
@@ -268,16 +279,12 @@ func (r *Reader) readSchema() error {
 			l.kind = table.String
 		case parquet.FixedLenByteArray:
 			l.kind = table.String
-		case parquet.Int32:
+		case parquet.Int32, parquet.Int64, parquet.Int96:
 			l.kind = table.Int64
-			l.uint32s = isUnsigned(t)
-		case parquet.Int64:
-			l.kind = table.Int64
-			if l.uint64s = isUnsigned(t); l.uint64s {
+			l.uint32s = l.phys == parquet.Int32 && isUnsigned(t)
+			if l.toText = timeText(t, l.phys); l.toText != nil {
 				l.kind = table.String
 			}
-		case parquet.Int96:
-			l.kind = table.Int64
 		case parquet.Float, parquet.Double:
 			l.kind = table.Float64
 		case parquet.Boolean:

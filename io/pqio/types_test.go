@@ -18,7 +18,7 @@ type typedRow struct {
 	I32Dict int32            `parquet:"i32d,dict"`    // INT32, dictionary pages
 	F32     *float32         `parquet:"f32,optional"` // FLOAT
 	F64Dict float64          `parquet:"f64d,dict"`    // DOUBLE, dictionary pages
-	Day     int32            `parquet:"day,date"`     // INT32 DATE: its day number
+	Day     int32            `parquet:"day,date"`     // INT32 DATE: ISO 8601 text
 	Micros  int64            `parquet:"ts,timestamp(microsecond)"`
 	Legacy  deprecated.Int96 `parquet:"legacy"`    // INT96 timestamp
 	Tags    []string         `parquet:"tags,list"` // a list: left out
@@ -57,9 +57,9 @@ func TestReadTypes(t *testing.T) {
 		{Name: "i32d", Kind: table.Int64},
 		{Name: "f32", Kind: table.Float64, Nullable: true},
 		{Name: "f64d", Kind: table.Float64},
-		{Name: "day", Kind: table.Int64},
-		{Name: "ts", Kind: table.Int64},
-		{Name: "legacy", Kind: table.Int64},
+		{Name: "day", Kind: table.String},
+		{Name: "ts", Kind: table.String},
+		{Name: "legacy", Kind: table.String},
 		{Name: "flag", Kind: table.Bool, Nullable: true},
 		{Name: "route", Kind: table.String, Nullable: true},
 	}
@@ -93,9 +93,9 @@ func TestReadTypes(t *testing.T) {
 		{{text: "-5"}, {text: "-5"}},
 		{{text: "1.5"}, {null: true}},
 		{{text: "0.25"}, {text: "0.25"}},
-		{{text: "19000"}, {text: "-1"}},
-		{{text: "1700000000000000"}, {text: "-1"}},
-		{{text: "86400000000005"}, {text: "0"}}, // computed from the INT96 layout: 1 day in ns, plus 5
+		{{text: "2022-01-08"}, {text: "1969-12-31"}},                               // day 19000 (Python's datetime.date(1970,1,1)+timedelta(days=19000)), day -1
+		{{text: "2023-11-14T22:13:20Z"}, {text: "1969-12-31T23:59:59.999999Z"}},    // 1.7e15 µs; -1 µs
+		{{text: "1970-01-02T00:00:00.000000005Z"}, {text: "1970-01-01T00:00:00Z"}}, // computed from the INT96 layout: 1 day in ns, plus 5
 		{{text: "true"}, {null: true}},
 		{{text: "north-7"}, {null: true}},
 	}

@@ -228,6 +228,7 @@ var flags = map[param.Name]string{
 	compare.ParamCandidates:    "--candidates",
 	csvio.ParamMaxFieldBytes:   "--max-field-bytes",
 	csvio.ParamTypes:           "--type",
+	csvio.ParamDelimiter:       "--delimiter",
 	tableio.ParamFormat:        "--format",
 }
 

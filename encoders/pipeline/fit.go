@@ -11,7 +11,9 @@ import (
 	"manyfold/internal/guard"
 	"manyfold/internal/hugemem"
 	"manyfold/internal/param"
+	"manyfold/io/csvio"
 	"manyfold/io/table"
+	"manyfold/io/tableio"
 )
 
 // Model is a fitted encoding job: the statistics of every column and the
@@ -696,6 +698,13 @@ func (e *ColumnError) Spell(spell param.Speller) string {
 	msg := fmt.Sprintf("%s: %s names column %q, which the file does not have", e.File, by, e.Name)
 	if near := Closest(e.Name, e.Have, 3); len(near) > 0 {
 		msg += "; closest: " + joinQuoted(near)
+	}
+	if f := tableio.FormatOf(e.File); len(e.Have) == 1 && f != tableio.Parquet && f != tableio.Arrow {
+		// A CSV header read as one column holding ; or a tab: the
+		// delimiter was probably another.
+		if d := csvio.GuessDelimiter(e.Have[0]); d != 0 {
+			msg += " (its header is one column: " + csvio.DelimiterHint(d).Spell(spell) + ")"
+		}
 	}
 	return msg
 }

@@ -53,6 +53,41 @@ const (
 	ParamTypes         param.Name = "types"
 )
 
+// ParamDelimiter names Options.Delimiter in messages (the delimiter
+// guess, DelimiterHint).
+const ParamDelimiter param.Name = "delimiter"
+
+// GuessDelimiter returns the delimiter that a header read as one column
+// named header most likely meant: of ';', tab, '|' and ',', the one it
+// holds most often (the first of them on a tie), or 0 when it holds none.
+// A one-column header cannot hold the delimiter it was read with, so any
+// of them it holds is another.
+func GuessDelimiter(header string) byte {
+	best, most := byte(0), 0
+	for _, d := range []byte{';', '\t', '|', ','} {
+		if n := strings.Count(header, string(d)); n > most {
+			best, most = d, n
+		}
+	}
+	return best
+}
+
+// DelimiterHint is the advice for a table whose header is one column
+// holding delimiter d: "did you mean delimiter ';'?" (a tab as tab), the
+// parameter spelled as the caller spells it.
+func DelimiterHint(d byte) param.Text {
+	v := "'" + string(d) + "'"
+	if d == '\t' {
+		v = "tab"
+	}
+	return param.Textf("did you mean %s %s?", ParamDelimiter, v)
+}
+
+// DelimiterGuess returns GuessDelimiter of the header when the table has
+// one column (and a header), 0 otherwise: a caller may warn that the table
+// read fine as one column but was probably meant to have more.
+func (r *Reader) DelimiterGuess() byte { return r.guess }
+
 // DefaultMaxFieldBytes is the longest field a CSV input may hold unless
 // Options.MaxFieldBytes says otherwise: 16 MiB.
 const DefaultMaxFieldBytes = 16 << 20
@@ -192,6 +227,7 @@ type Reader struct {
 	openField  int
 	nf         int // fields in the parsed record
 	headerLine int64
+	guess      byte // GuessDelimiter of a one-column header, or 0
 
 	fields   []table.Field // the full schema
 	ncols    int
@@ -343,6 +379,9 @@ func (r *Reader) start(opts Options) error {
 	}
 	r.headerLine = r.recLine
 	n := r.nf
+	if n == 1 && !r.noHeader {
+		r.guess = GuessDelimiter(string(r.hdr.value(0)))
+	}
 	if !r.noHeader {
 		if err := r.checkBareCR(n); err != nil {
 			return err
@@ -1146,8 +1185,11 @@ func (r *Reader) endRecord(rec record, fi int, line int64, extra, next int) (sta
 		if r.noHeader {
 			what = "first row has"
 		}
-		return stErr, &table.DataError{File: r.name, Line: line, Row: r.rowsDone + int64(len(r.lines)) + 1,
-			Err: fmt.Errorf("%d fields, %s %d", nf, what, r.ncols)}
+		var err error = fmt.Errorf("%d fields, %s %d", nf, what, r.ncols)
+		if r.guess != 0 {
+			err = param.Errorf("%v (the header is one column, %q: %s)", err, r.fields[0].Name, DelimiterHint(r.guess))
+		}
+		return stErr, &table.DataError{File: r.name, Line: line, Row: r.rowsDone + int64(len(r.lines)) + 1, Err: err}
 	}
 	r.next = next
 	r.nf = fi + 1

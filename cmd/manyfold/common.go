@@ -21,15 +21,12 @@ import (
 )
 
 // newFlags returns a flag set that reports errors instead of exiting and
-// prints the command's usage text for --help.
+// prints the command's help for --help (commandUsage: text, the flags with
+// their defaults, the exit codes).
 func newFlags(name, text string) *pflag.FlagSet {
 	fs := pflag.NewFlagSet(name, pflag.ContinueOnError)
 	fs.SortFlags = false
-	fs.Usage = func() {
-		fmt.Fprint(os.Stdout, text)
-		fmt.Fprintln(os.Stdout, "\nFlags:")
-		fmt.Fprint(os.Stdout, fs.FlagUsages())
-	}
+	fs.Usage = func() { fmt.Fprint(os.Stdout, commandUsage(fs, text)) }
 	fs.SetOutput(io.Discard)
 	return fs
 }
@@ -41,7 +38,7 @@ func parseFlags(fs *pflag.FlagSet, args []string) error {
 		if err == pflag.ErrHelp {
 			return err // pflag has printed the usage
 		}
-		return usagef("%v (see manyfold %s --help)", err, fs.Name())
+		return usagef("%s (see manyfold %s --help)", unknownFlag(fs, err), fs.Name())
 	}
 	return nil
 }
@@ -112,7 +109,7 @@ type outputFlags struct {
 
 func (f *outputFlags) add(fs *pflag.FlagSet) {
 	fs.StringVar(&f.out, "out", "", "encoded table: .parquet, .csv or .arrow; - for standard output (with --format)")
-	fs.StringVar(&f.format, "format", "", "output format, overriding the extension: parquet, csv, arrow")
+	fs.StringVar(&f.format, "format", "", "output format, overriding the extension: parquet, csv, arrow (default: from --out's extension)")
 	fs.StringVar(&f.compression, "compression", "snappy", "Parquet output compression: snappy, zstd, none")
 	fs.IntVar(&f.threads, "threads", runtime.NumCPU(), "cores to use: columns encoded at once, and reading, encoding and writing side by side (the output is the same for any number)")
 }

@@ -62,7 +62,26 @@ const (
 	exitDrift    = 7 // drift over --fail-on: apply wrote its output and report
 )
 
-const usage = `manyfold: compact numeric encodings of high-cardinality categorical columns
+// exitCodes are the exit codes and what each means: the one list that
+// the help of manyfold and of each command prints (exitCodesText); the
+// README's "Exit codes" says the same at length (TestExitCodesInREADME).
+var exitCodes = []struct {
+	code    int
+	meaning string
+}{
+	{exitOK, "success"},
+	{exitFailure, "unexpected failure: an internal error (MANYFOLD_DEBUG=1 adds the stack)"},
+	{exitUsage, "usage: bad flags, an unknown column, an output that is the input"},
+	{exitInput, "the input cannot be read as a table (missing, empty, unknown format, corrupt)"},
+	{exitData, "bad data in the input (ragged row, bad quote, bad target)"},
+	{exitOutput, "an output cannot be written"},
+	{exitMismatch, "mapping tables that cannot serve the input (version, columns, types)"},
+	{exitDrift, "drift over --fail-on (apply: the output and the report were written)"},
+	{128 + int(syscall.SIGINT), "stopped by SIGINT (temporary files removed)"},
+	{128 + int(syscall.SIGTERM), "stopped by SIGTERM (temporary files removed)"},
+}
+
+var usage = `manyfold: compact numeric encodings of high-cardinality categorical columns
 
 Usage:
   manyfold scan FILE [flags]         profile the categorical columns of a table
@@ -71,16 +90,12 @@ Usage:
   manyfold merge DIR DIR... [flags]  merge mapping tables fitted on shards of one table
   manyfold compare FILE [flags]      rank encodings of each column by nested cross-validation
   manyfold demo [flags]              the whole job on a generated parcel-network table
-  manyfold version
+  manyfold version                   the version (also --version)
 
 FILE is CSV (optionally gzip or zstd compressed), Parquet or Arrow IPC; "-" reads standard input.
-Run "manyfold COMMAND --help" for a command's flags.
+Run "manyfold help COMMAND" (or "manyfold COMMAND --help") for a command's help and flags.
 
-Exit codes: 0 ok, 1 unexpected failure, 2 usage, 3 unreadable input, 4 bad data,
-5 output not written, 6 mapping tables that do not fit the input, 7 drift over
---fail-on (apply), 130 and 143 stopped by SIGINT or SIGTERM (temporary files
-removed).
-`
+` + exitCodesText()
 
 type command struct {
 	name string
@@ -147,6 +162,9 @@ func recordRun(env string, start func(io.Writer) error, stop func()) {
 
 // run executes a command line and returns the exit code.
 func run(args []string) int {
+	if len(args) > 1 && args[0] == "help" {
+		args = []string{args[1], "--help"} // manyfold help CMD: CMD's help
+	}
 	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
 		fmt.Fprint(os.Stdout, usage)
 		if len(args) == 0 {
@@ -175,7 +193,7 @@ func run(args []string) int {
 			return exitCode(err)
 		}
 	}
-	fmt.Fprintf(os.Stderr, "manyfold: unknown command %q\n\n%s", args[0], usage)
+	fmt.Fprintf(os.Stderr, "manyfold: %s\n\n%s", unknownCommand(args[0]), usage)
 	return exitUsage
 }
 

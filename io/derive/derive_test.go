@@ -148,7 +148,7 @@ func TestExpand(t *testing.T) {
 		{[]string{"dest_*", "!dest_city"}, "dest_zone,dest_code", false},
 		{[]string{"*"}, "dest_zone,dest_city,dest_code,origin", false}, // never the target or the fold column
 		{[]string{"origin*dest_zone"}, "origin*dest_zone", false},      // a cross, not a glob
-		{[]string{"origin", "origin"}, "origin,origin", false}, // for the caller to refuse
+		{[]string{"origin", "origin"}, "origin,origin", false},         // for the caller to refuse
 		{[]string{"origin", "o*"}, "origin", false},
 		{[]string{"nothing_*"}, "", true},
 		{[]string{"[x"}, "", true},

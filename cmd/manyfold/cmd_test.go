@@ -352,6 +352,10 @@ func TestDemo(t *testing.T) {
 	if len(named) != 4 {
 		t.Fatalf("demo names %d files (%v), want 4", len(named), named)
 	}
+	// The demo shows good practice: none of its own choices draws a warning.
+	if strings.Contains(res.stdout+res.stderr, "warning:") {
+		t.Errorf("the demo warns:\n%s%s", res.stdout, res.stderr)
+	}
 	for _, p := range named {
 		if _, err := os.Stat(p); err != nil {
 			t.Errorf("demo names %s: %v", p, err)

@@ -50,9 +50,9 @@ func runDemo(args []string) error {
 	tables := filepath.Join(*dir, "tables")
 	applied := filepath.Join(*dir, "new_shipments_encoded.csv")
 	steps := [][]string{
-		{"scan", train, "--columns", "dest_postcode,sender_account,route,parcel_type", "--top", "3"},
+		{"scan", train, "--columns", "dest_postcode,sender_account,route,parcel_type,weight_kg", "--top", "3", "--target", "late"},
 		{"encode", train, "--target", "late", "--columns", "dest_postcode,sender_account,route",
-			"--methods", "target:eb+freq+topk:100+hash:1024", "--folds", "5", "--seed", "1", "--fold-column", "fold",
+			"--methods", "target:eb+freq+topk:100+hash:65536", "--folds", "5", "--seed", "1", "--fold-column", "fold",
 			"--out", encoded, "--tables", tables},
 		{"apply", fresh, "--tables", tables, "--out", applied},
 	}

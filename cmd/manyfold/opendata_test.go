@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -58,5 +59,42 @@ func TestScanZipcodes(t *testing.T) {
 	// 50 states, DC and territories: a few dozen levels, one code each.
 	if st := out.Columns[1]; st.Distinct < 50 || st.Distinct > 70 || st.Suggested == "drop" {
 		t.Errorf("state: %d distinct, suggested %q", st.Distinct, st.Suggested)
+	}
+}
+
+// TestScanFlights profiles the open flights table (vega-datasets 3.2.1,
+// flights-3m.parquet) with a derived target: the delay in minutes, early
+// arrivals below zero, is a number and not 867 codes; the departure time is
+// a time, not 213,834 levels; the target is not given an encoding, and the
+// encode command names it only as the target.
+func TestScanFlights(t *testing.T) {
+	path := openData(t, "flights-3m.parquet")
+	res := runCLI(t, "scan", path, "--target", "delay>15", "--json")
+	if res.code != 0 {
+		t.Fatalf("exit %d: %s", res.code, res.stderr)
+	}
+	var out struct {
+		Columns []struct {
+			Name      string `json:"name"`
+			Suggested string `json:"suggested"`
+			Reason    string `json:"reason"`
+		} `json:"columns"`
+		Command string `json:"encode_command"`
+	}
+	if err := json.Unmarshal([]byte(res.stdout), &out); err != nil {
+		t.Fatalf("scan --json: %v\n%s", err, res.stdout)
+	}
+	want := map[string]string{"date": "time", "delay": "numeric", "distance": "numeric", "origin": "topk:100", "destination": "topk:100", "delay>15": "target"}
+	for _, c := range out.Columns {
+		if c.Suggested != want[c.Name] {
+			t.Errorf("%s: suggested %s (%s), want %s", c.Name, c.Suggested, c.Reason, want[c.Name])
+		}
+		delete(want, c.Name)
+	}
+	if len(want) > 0 {
+		t.Errorf("columns not profiled: %v", want)
+	}
+	if !strings.Contains(out.Command, "--methods origin=topk:100,destination=topk:100 ") || strings.Count(out.Command, "delay>15") != 1 {
+		t.Errorf("encode command %q", out.Command)
 	}
 }

@@ -89,6 +89,7 @@ func runScan(args []string) error {
 	if err != nil {
 		return err
 	}
+	pipeline.MarkTarget(profiles, *target)
 	command := ""
 	if plan := pipeline.SuggestedPlan(profiles, *target); plan.PerColumn != nil {
 		t := *target
@@ -169,7 +170,7 @@ func printProfiles(ps []pipeline.Profile) {
 			}
 			b.WriteString("\n")
 		}
-		fmt.Fprintf(&b, "  suggested: %s (%s)\n", p.Suggest, p.Reason)
+		fmt.Fprintf(&b, "  suggested: %s\n  why: %s\n", p.Suggest, p.Reason)
 	}
 	os.Stdout.WriteString(b.String())
 }

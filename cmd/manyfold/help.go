@@ -113,8 +113,8 @@ func defaultText(f *pflag.Flag, required bool) string {
 }
 
 // unknownFlag adds to pflag's error for a flag fs does not have the
-// closest flag's name, if one is close (pipeline.Closest, as for column
-// names): "unknown flag: --colums; did you mean --columns?".
+// closest flag's name, if one is close (closeName): "unknown flag:
+// --colums; did you mean --columns?".
 func unknownFlag(fs *pflag.FlagSet, err error) string {
 	var ne *pflag.NotExistError
 	if !errors.As(err, &ne) || ne.GetSpecifiedShortnames() != "" {
@@ -126,10 +126,22 @@ func unknownFlag(fs *pflag.FlagSet, err error) string {
 			names = append(names, f.Name)
 		}
 	})
-	if c := pipeline.Closest(ne.GetSpecifiedName(), names, 1); len(c) > 0 {
-		return fmt.Sprintf("%v; did you mean --%s?", err, c[0])
+	if c, ok := closeName(ne.GetSpecifiedName(), names); ok {
+		return fmt.Sprintf("%v; did you mean --%s?", err, c)
 	}
 	return err.Error()
+}
+
+// closeName returns the name of names closest to name, when it is within
+// max(2, len(name)/3) edits: closer than Closest's bound, made for column
+// names, since among a command's few short names or flags one is always
+// within half a word's edits (--out is not a misspelled --rows).
+func closeName(name string, names []string) (string, bool) {
+	c := pipeline.Closest(name, names, 1)
+	if len(c) == 0 || pipeline.EditDistance(name, c[0]) > max(2, len(name)/3) {
+		return "", false
+	}
+	return c[0], true
 }
 
 // unknownCommand is the message for a command manyfold does not have,
@@ -140,10 +152,8 @@ func unknownCommand(name string) string {
 		names = append(names, c.name)
 	}
 	msg := fmt.Sprintf("unknown command %q", name)
-	// Closer than Closest's bound, made for column names: of six short
-	// names, one is always within half a word's edits.
-	if c := pipeline.Closest(name, names, 1); len(c) > 0 && pipeline.EditDistance(name, c[0]) <= max(2, len(name)/3) {
-		msg += fmt.Sprintf("; did you mean %s?", c[0])
+	if c, ok := closeName(name, names); ok {
+		msg += fmt.Sprintf("; did you mean %s?", c)
 	}
 	return msg
 }

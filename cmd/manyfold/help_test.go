@@ -142,6 +142,7 @@ func TestDidYouMean(t *testing.T) {
 		{[]string{"compare", "x.csv", "--inner-fold", "3"}, "did you mean --inner-folds?", ""},
 		{[]string{"apply", "x.csv", "--tabels", "t"}, "did you mean --tables?", ""},
 		{[]string{"scan", "x.csv", "--zzzzzzzzzzzz"}, "unknown flag: --zzzzzzzzzzzz (see", "did you mean"},
+		{[]string{"demo", "--out", "d"}, "unknown flag: --out (see", "did you mean"}, // 3 edits from --rows and --dir: no guess
 	}
 	for _, c := range cases {
 		res := runCLI(t, c.args...)

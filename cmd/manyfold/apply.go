@@ -39,6 +39,7 @@ func runApply(args []string) error {
 	tables := fs.String("tables", "", "directory of mapping tables written by manyfold encode")
 	var of outputFlags
 	of.add(fs)
+	jsonOut := fs.Bool("json", false, "also print the run's summary (rows, encodings, unseen shares, drift over --fail-on) as one JSON document on standard output")
 	reports := fs.StringArray("report", nil, "write the drift report to this file: JSON, or HTML for .html (repeat for both)")
 	minRows := fs.Uint64("min-level-rows", 10, "the report lists an unseen level only with at least this many rows (never fewer than the fit's --min-level-rows)")
 	failOn := fs.String("fail-on", "", "exit 7 when a column's drift exceeds a threshold: unseen=SHARE, levels=SHARE, psi=X, auc_drop=X, rmse_rise=X, separated by commas")
@@ -50,6 +51,9 @@ func runApply(args []string) error {
 	}
 	if *tables == "" || of.out == "" {
 		return usagef("apply needs --tables and --out")
+	}
+	if err := checkJSONFlag(*jsonOut, of.out); err != nil {
+		return err
 	}
 	file := fs.Arg(0)
 	wopts, err := of.options(file)
@@ -110,13 +114,10 @@ func runApply(args []string) error {
 	if err := atomicfile.CommitAll(append([]atomicfile.Output{w}, outs...)...); err != nil {
 		return commitError(err)
 	}
-	fmt.Fprintf(os.Stderr, "applied %s to %d rows in %.1fs;", *tables, sum.Rows, time.Since(start).Seconds())
+	elapsed := time.Since(start)
+	fmt.Fprintf(os.Stderr, "applied %s to %d rows in %.1fs;", *tables, sum.Rows, elapsed.Seconds())
 	for i, c := range m.Cols {
-		share := 0.0
-		if sum.Rows > 0 {
-			share = float64(sum.Unseen[i]) / float64(sum.Rows)
-		}
-		fmt.Fprintf(os.Stderr, " %s %.1f%% unseen", c.Name, 100*share)
+		fmt.Fprintf(os.Stderr, " %s %.1f%% unseen", c.Name, 100*unseenShare(sum, i))
 		if i < len(m.Cols)-1 {
 			fmt.Fprint(os.Stderr, ",")
 		}
@@ -129,10 +130,41 @@ func runApply(args []string) error {
 	for _, b := range failed {
 		fmt.Fprintln(os.Stderr, "manyfold apply: "+breachLine(b))
 	}
+	if *jsonOut {
+		if err := applyJSON(m, name, of.out, *tables, *reports, sum, elapsed, failed).print(); err != nil {
+			return err
+		}
+	}
 	if len(failed) > 0 {
 		return &driftError{failed}
 	}
 	return nil
+}
+
+// unseenShare is the share of the rows of a pass whose level of column i
+// was unseen in training (or left out of the tables), 0 without rows.
+func unseenShare(sum pipeline.Summary, i int) float64 {
+	if sum.Rows == 0 {
+		return 0
+	}
+	return float64(sum.Unseen[i]) / float64(sum.Rows)
+}
+
+// applyJSON is apply's --json document: what encode's has too, and the
+// reports written, each column's unseen rows and the drift figures over
+// their --fail-on thresholds.
+func applyJSON(m *pipeline.Model, input, out, tables string, reports []string, sum pipeline.Summary, elapsed time.Duration, failed []pipeline.Breach) *runJSON {
+	d := newRunJSON(m, input, out, tables, sum.Rows, elapsed)
+	d.Reports = reports
+	for i := range d.Columns {
+		share := unseenShare(sum, i)
+		d.Columns[i].UnseenRows, d.Columns[i].UnseenShare = &sum.Unseen[i], &share
+	}
+	if failed == nil {
+		failed = []pipeline.Breach{}
+	}
+	d.Failed = &failed
+	return d
 }
 
 // checkReportFlags vets --report and --fail-on before any data is read: a

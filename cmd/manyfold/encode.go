@@ -68,6 +68,7 @@ func runEncode(args []string) (err error) {
 	tables := fs.String("tables", "", "directory for the mapping tables")
 	var of outputFlags
 	of.add(fs)
+	jsonOut := fs.Bool("json", false, "also print what was decided (task, classes, encodings, warnings) as one JSON document on standard output")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -77,6 +78,9 @@ func runEncode(args []string) (err error) {
 	file := fs.Arg(0)
 	if of.out == "" || *tables == "" {
 		return usagef("encode needs --out and --tables")
+	}
+	if err := checkJSONFlag(*jsonOut, of.out); err != nil {
+		return err
 	}
 	sp.Target, sp.Columns, sp.Task = *target, *columns, *task
 	if sp.Encodings, err = method.ParsePlan(*methods); err != nil {
@@ -259,7 +263,8 @@ func runEncode(args []string) (err error) {
 	if sum.Missing > 0 {
 		fmt.Fprintf(os.Stderr, " (%d with an empty target: encoded, not counted)", sum.Missing)
 	}
-	fmt.Fprintf(os.Stderr, " in %.1fs;", time.Since(start).Seconds())
+	elapsed := time.Since(start)
+	fmt.Fprintf(os.Stderr, " in %.1fs;", elapsed.Seconds())
 	for i, c := range m.Cols {
 		fmt.Fprintf(os.Stderr, " %s %d levels", c.Name, m.Levels(i))
 		if i < len(m.Cols)-1 {
@@ -270,10 +275,33 @@ func runEncode(args []string) (err error) {
 		fmt.Fprintf(os.Stderr, "; %s", t)
 	}
 	fmt.Fprintf(os.Stderr, "; wrote %s and %s\n", outName(of.out), *tables)
-	for _, w := range m.Warnings() {
+	warnings := m.Warnings()
+	for _, w := range warnings {
 		fmt.Fprintf(os.Stderr, "warning: %s\n", w)
 	}
+	if *jsonOut {
+		return encodeJSON(m, name, of.out, *tables, sum, elapsed, warnings).print()
+	}
 	return nil
+}
+
+// encodeJSON is encode's --json document: what apply's has too, and the
+// rows with an empty target, the classes, each column's levels and the
+// warnings.
+func encodeJSON(m *pipeline.Model, input, out, tables string, sum pipeline.Summary, elapsed time.Duration, warnings []string) *runJSON {
+	d := newRunJSON(m, input, out, tables, sum.Rows, elapsed)
+	d.TargetMissingRows = &sum.Missing
+	classes := m.TargetClasses()
+	if classes == nil {
+		classes = []pipeline.ClassRows{}
+	}
+	d.Classes = &classes
+	for i := range d.Columns {
+		n := m.Levels(i)
+		d.Columns[i].Levels = &n
+	}
+	d.Warnings = append(d.Warnings, warnings...)
+	return d
 }
 
 // removedFlags are encode's flags that became parameters of an encoding

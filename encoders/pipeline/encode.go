@@ -82,7 +82,7 @@ func (m *Model) OutputSchema(file string, in *table.Schema, use Use) (*table.Sch
 		for ei, f := range c.Fits {
 			oc := outCol{col: ci, enc: ei}
 			for _, o := range f.Outputs() {
-				oc.fields = append(oc.fields, table.Field{Name: c.Name + "_" + o.Name, Kind: o.Kind})
+				oc.fields = append(oc.fields, table.Field{Name: outputName(c, o.Name), Kind: o.Kind})
 			}
 			outs = append(outs, oc)
 		}

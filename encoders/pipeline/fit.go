@@ -662,11 +662,9 @@ func (c *Col) distinct() int {
 // OutputNames returns the names of the encoded columns in output order.
 func (m *Model) OutputNames() []string {
 	var out []string
-	for _, c := range m.Cols {
-		for _, f := range c.Fits {
-			for _, o := range f.Outputs() {
-				out = append(out, c.Name+"_"+o.Name)
-			}
+	for ci, c := range m.Cols {
+		for ei := range c.Fits {
+			out = append(out, m.EncodingOutputs(ci, ei)...)
 		}
 	}
 	return out

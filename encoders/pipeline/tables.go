@@ -570,34 +570,24 @@ func (m *Model) supervised() bool {
 // named as such), a class of fewer than 10 rows or under 0.1% flagged as
 // perhaps a stray value. "" without a target.
 func (m *Model) TargetSummary() string {
-	if m.Spec.Target == "" || !(m.supervised() || m.Spec.FoldBy.Needs().Class) {
+	if !m.TargetUsed() {
 		return ""
 	}
 	s := "target " + m.Spec.Target + ": " + m.Task.String()
-	var counts []uint64
-	for _, c := range m.Cols {
-		if c.supervised && m.Task != colstats.Regression {
-			tot := c.St.CellTotals()
-			counts = make([]uint64, c.St.Classes)
-			for i, n := range tot {
-				counts[i%c.St.Classes] += n
-			}
-			break
-		}
-	}
-	if counts == nil || len(counts) != len(m.Classes) {
+	classes := m.TargetClasses()
+	if classes == nil {
 		return s
 	}
-	var all uint64
-	for _, n := range counts {
-		all += n
+	var all int64
+	for _, c := range classes {
+		all += c.Rows
 	}
 	var parts []string
-	for i := len(m.Classes) - 1; i >= 0; i-- { // the positive class first
-		n := counts[i]
-		part := fmt.Sprintf("%s (%.1f%%, %d rows)", m.Classes[i], 100*float64(n)/float64(all), n)
-		if n < 10 || float64(n) < 0.001*float64(all) {
-			part = fmt.Sprintf("%s (%d rows: a stray value?)", m.Classes[i], n)
+	for i := len(classes) - 1; i >= 0; i-- { // the positive class first
+		c := classes[i]
+		part := fmt.Sprintf("%s (%.1f%%, %d rows)", c.Class, 100*float64(c.Rows)/float64(all), c.Rows)
+		if c.Stray {
+			part = fmt.Sprintf("%s (%s: a stray value?)", c.Class, plural(c.Rows, "row"))
 		}
 		if i == m.Pos && m.Task == colstats.Binary {
 			part = "positive class " + part

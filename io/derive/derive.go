@@ -94,25 +94,35 @@ func parse(name string, base *table.Schema) (column, table.Kind, bool, error) {
 		}
 		return c, table.String, true, nil
 	}
+	col, op, val, ok := SplitCondition(name)
+	i := base.Index(col)
+	if !ok || i < 0 {
+		return column{}, 0, false, nil
+	}
+	c := column{name: name, parts: []int{i}, op: op, text: val}
+	if v, err := strconv.ParseFloat(val, 64); err == nil && !math.IsNaN(v) {
+		c.num, c.val = true, v
+	} else if op != "=" && op != "!=" {
+		return column{}, 0, false, fmt.Errorf("condition %q: %q is not a number; a text compares with = or != only", name, val)
+	}
+	return c, table.Int64, true, nil
+}
+
+// SplitCondition splits a condition, COL OP VALUE (delay>15), into its
+// column, operator and value, spaces around each trimmed, at the first
+// operator of >= <= != > < = that name holds; ok is false when it holds
+// none or a side is empty. Whether COL is a column is the caller's
+// question.
+func SplitCondition(name string) (col, op, value string, ok bool) {
 	for _, op := range ops {
 		col, val, found := strings.Cut(name, op)
 		if !found {
 			continue
 		}
 		col, val = strings.TrimSpace(col), strings.TrimSpace(val)
-		i := base.Index(col)
-		if i < 0 || val == "" {
-			return column{}, 0, false, nil
-		}
-		c := column{name: name, parts: []int{i}, op: op, text: val}
-		if v, err := strconv.ParseFloat(val, 64); err == nil && !math.IsNaN(v) {
-			c.num, c.val = true, v
-		} else if op != "=" && op != "!=" {
-			return column{}, 0, false, fmt.Errorf("condition %q: %q is not a number; a text compares with = or != only", name, val)
-		}
-		return c, table.Int64, true, nil
+		return col, op, val, col != "" && val != ""
 	}
-	return column{}, 0, false, nil
+	return "", "", "", false
 }
 
 // Base returns the reader under r's derived columns, or r.

@@ -79,6 +79,7 @@ func (f *inputFlags) options() (tableio.ReadOptions, error) {
 		return tableio.ReadOptions{}, usagef("--delimiter %q: want , ; tab or |", f.delim)
 	}
 	o.NoHeader = f.noHeader
+	o.OneColumn = oneColumn.note
 	if f.maxField < 1 || f.maxField > maxFieldLimit {
 		return tableio.ReadOptions{}, usagef("--max-field-bytes %d: want 1 to %d", f.maxField, maxFieldLimit)
 	}

@@ -199,9 +199,17 @@ func run(args []string) int {
 
 // runCommand runs a command; a panic, on its goroutine or carried from a
 // worker's (guard.Group), becomes a *guard.Panic error, and the temporary
-// files that the command's aborts did not remove are removed.
+// files that the command's aborts did not remove are removed. A command
+// that succeeds then warns of the CSV inputs that read as one column
+// holding another delimiter (oneColumn).
 func runCommand(c command, args []string) (err error) {
 	defer atomicfile.RemoveTracked()
+	oneColumn.reset()
+	defer func() {
+		if err == nil {
+			oneColumn.print(os.Stderr)
+		}
+	}()
 	defer guard.Catch(&err)
 	return c.run(args)
 }

@@ -44,6 +44,12 @@ type Options struct {
 	// and column, found before more of it is read. Values below 1 mean
 	// DefaultMaxFieldBytes.
 	MaxFieldBytes int
+	// OneColumn, when set, is called once the header and the sample have
+	// been read, if the header is one column that holds another
+	// delimiter (DelimiterGuess): the table reads without error, but was
+	// probably meant to have more columns. It gets the input's name, the
+	// header and the delimiter guessed.
+	OneColumn func(file, header string, guess byte)
 }
 
 // Parameters that the reader's messages name: Options.MaxFieldBytes and
@@ -438,6 +444,9 @@ func (r *Reader) start(opts Options) error {
 		sample = defaultSampleRows
 	}
 	r.infer(sample, overridden)
+	if r.guess != 0 && opts.OneColumn != nil {
+		opts.OneColumn(r.name, r.fields[0].Name, r.guess)
+	}
 	return nil
 }
 

@@ -12,6 +12,7 @@ import (
 	"manyfold/internal/evaluate/compare"
 	"manyfold/io/atomicfile"
 	"manyfold/io/derive"
+	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
 
@@ -137,7 +138,7 @@ func runCompare(args []string) (err error) {
 	// Parquet knows its row count; for other input a cheap first pass
 	// counts the rows so that --sample can be turned into a share.
 	var total int64
-	if _, ok := r.(interface{ NumRows() int64 }); !ok && *sample > 0 {
+	if table.RowCount(r) < 0 && *sample > 0 {
 		r.Close()
 		if total, err = countRows(path, ropts); err != nil {
 			return err

@@ -230,3 +230,34 @@ func TestWarnings(t *testing.T) {
 		t.Errorf("a warning where none applies:\n%s", quiet.stderr)
 	}
 }
+
+// TestCompareSamplesUnderDerivedColumns: --sample bounds the model rows of
+// a Parquet input with a derived target and a cross as it does with plain
+// columns (the derived reader hid the file's row count, and every row went
+// to the models).
+func TestCompareSamplesUnderDerivedColumns(t *testing.T) {
+	dir := t.TempDir()
+	mustRun(t, "demo", "--rows", "6000", "--dir", dir)
+	for _, c := range [][]string{{"late", "route", "shipments.parquet"}, {"cost>20", "route*parcel_type", "shipments.parquet"}, {"cost>20", "route*parcel_type", "shipments.csv"}} {
+		in := filepath.Join(dir, c[2])
+		if c[2] == "shipments.csv" {
+			mustRun(t, "encode", filepath.Join(dir, "shipments.parquet"), "--target", "late", "--columns", "route", "--out", in, "--tables", filepath.Join(dir, "t"))
+		}
+		js := filepath.Join(dir, "c.json")
+		mustRun(t, "compare", in, "--target", c[0], "--columns", c[1], "--candidates", "prior,target:eb", "--folds", "3", "--inner-folds", "2", "--sample", "2000", "--json", js)
+		var res struct {
+			Rows      int64 `json:"rows"`
+			ModelRows int64 `json:"model_rows"`
+		}
+		data, err := os.ReadFile(js)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := json.Unmarshal(data, &res); err != nil {
+			t.Fatal(err)
+		}
+		if res.Rows != 6000 || res.ModelRows < 1600 || res.ModelRows > 2400 {
+			t.Errorf("%s --target %s --columns %s: %d rows, %d model rows; want 6000 and about 2000", c[2], c[0], c[1], res.Rows, res.ModelRows)
+		}
+	}
+}

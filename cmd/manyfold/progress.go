@@ -54,7 +54,7 @@ func startProgress(w io.Writer, on bool, label string, r table.Reader, now func(
 	if r == nil || !on {
 		return p
 	}
-	if p.total = rowsOf(r); p.total > 0 {
+	if p.total = table.RowCount(r); p.total > 0 {
 		return p
 	}
 	if ic, ok := table.Find[table.InputCounter](r); ok {
@@ -63,24 +63,6 @@ func startProgress(w io.Writer, on bool, label string, r table.Reader, now func(
 		}
 	}
 	return p
-}
-
-// rowsOf returns the rows of r or of a reader it wraps, from the input's
-// metadata (table.RowCounter), or 0 when none knows them. A wrapper that
-// counts rows only when the reader under it does (ReadAhead) says -1, so
-// the search goes on under it.
-func rowsOf(r table.Reader) int64 {
-	for r != nil {
-		if rc, ok := r.(table.RowCounter); ok && rc.NumRows() > 0 {
-			return rc.NumRows()
-		}
-		w, ok := r.(table.Wrapper)
-		if !ok {
-			break
-		}
-		r = w.Unwrap()
-	}
-	return 0
 }
 
 // update is the phase's Progress callback: rows read so far.

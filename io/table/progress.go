@@ -39,3 +39,21 @@ func Find[T any](r Reader) (T, bool) {
 
 // Unwrap returns the reader read ahead, for inspection only.
 func (a *readAhead) Unwrap() Reader { return a.r }
+
+// RowCount returns the table's row count when r or a reader it wraps knows
+// it before reading (RowCounter: a Parquet file's metadata), or -1.
+func RowCount(r Reader) int64 {
+	for r != nil {
+		if rc, ok := r.(RowCounter); ok {
+			if n := rc.NumRows(); n >= 0 {
+				return n
+			}
+		}
+		w, ok := r.(Wrapper)
+		if !ok {
+			break
+		}
+		r = w.Unwrap()
+	}
+	return -1
+}

@@ -253,9 +253,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 	}
 	total := opt.TotalRows
 	if total <= 0 {
-		if nr, ok := r.(interface{ NumRows() int64 }); ok {
-			total = nr.NumRows()
-		}
+		total = table.RowCount(r)
 	}
 	var threshold uint64 = sampleSpan // keep all
 	if opt.Sample > 0 && total > opt.Sample {

@@ -12,7 +12,8 @@
 #            body's text column (a long command line, say);
 #   table    the candidates table is no wider than its box (its right edge
 #            within the .candidates block); the line also gives the width
-#            the table cannot shrink below (its min-content width);
+#            the table cannot shrink below (its min-content width); the
+#            joint model's table (--joint) likewise;
 #   overlap  in the bar chart, no two text elements overlap (rotated x-axis
 #            labels with their " (best)" / " (baseline)" notes, the bars'
 #            value labels, the tick labels, the axis title and the legend),
@@ -34,7 +35,7 @@
 #
 # The cases are generated with the manyfold built from this tree: the demo
 # table (manyfold demo --rows 50000), compared on its four columns for the
-# binary target late (AUC); dest_postcode with long candidate names; the
+# binary target late (AUC), with --joint; dest_postcode with long candidate names; the
 # regression target cost on the four columns (RMSE); the multiclass target
 # parcel_type with --timings (log loss, and the table's extra column); and
 # route with 22 candidates of nearly equal AUC (narrow slots: upright value
@@ -100,7 +101,7 @@ else
 			die "manyfold compare $* failed (see $work/$name.txt)"
 		reports+=("$name.html")
 	}
-	run demo --target late --columns dest_postcode,sender_account,route,parcel_type
+	run demo --target late --columns dest_postcode,sender_account,route,parcel_type --joint
 	run long-names --target late --columns dest_postcode \
 		--candidates prior,target:insample,target:blend=20,10:prior=prefix3,target:eb+freq+topk:100,hash:1024:signed:seed=7,onehot:6
 	run regression --target cost --columns dest_postcode,sender_account,route,parcel_type
@@ -267,6 +268,9 @@ function run() {
     if (!svg) { fail(where + ": no bar chart"); continue; }
     checkChart(svg, where);
     checkCaption(svg.closest("figure"), svg, where);
+  }
+  for (const sec of doc.querySelectorAll("section.joint")) {
+    if (sec.querySelector(".candidates table")) checkTable(sec, '"joint"');
   }
 }
 

@@ -44,7 +44,6 @@ func (ev *evaluator) joint(res *Result) (*JointResult, error) {
 	var states []*colState
 	var cands []Candidate
 	var plan []string
-	best := -1
 	higher := res.HigherBetter
 	for ci, c := range res.Columns {
 		if c.Winner == nil {
@@ -57,9 +56,6 @@ func (ev *evaluator) joint(res *Result) (*JointResult, error) {
 		states, cands = append(states, ev.states[ci]), append(cands, cand)
 		j.Columns = append(j.Columns, c.Column)
 		plan = append(plan, c.Column+"="+cand.Name)
-		if best < 0 || better(c.Verdict.BestMean, res.Columns[best].Verdict.BestMean, higher) {
-			best = ci
-		}
 	}
 	j.Encodings = strings.Join(plan, ",")
 	if len(states) < 2 {
@@ -96,23 +92,49 @@ func (ev *evaluator) joint(res *Result) (*JointResult, error) {
 		j.Metrics = append(j.Metrics, Metric{Name: nm, Stat: Stat{mean, std}})
 	}
 	j.Primary, j.PerFold = j.Metrics[0].Stat, per[0]
-	bc := &res.Columns[best]
+	bc := &res.Columns[bestColumn(res.Columns, higher)]
+	k := winnerOf(bc)
 	j.BestColumn = bc.Column
-	for _, k := range bc.Candidates {
-		if k.Winner {
-			x, y := j.PerFold, k.PerFold
-			if !higher {
-				x, y = y, x
-			}
-			r := ttest.Corrected(x, y, ev.testShare(), Level)
-			j.OverBestColumn = &Gain{Over: bc.Column + "=" + k.Name, Mean: r.Diff, Low: r.Low, High: r.Hi, P: r.P, Identical: r.Identical}
-		}
+	x, y := j.PerFold, k.PerFold
+	if !higher {
+		x, y = y, x
 	}
+	r := ttest.Corrected(x, y, ev.testShare(), Level)
+	j.OverBestColumn = &Gain{Over: bc.Column + "=" + k.Name, Mean: r.Diff, Low: r.Low, High: r.Hi, P: r.P, Identical: r.Identical}
 	g := j.OverBestColumn
 	label := metricLabel(names[0])
 	j.Reading = fmt.Sprintf("one model over %d columns' winners scores %s %s; it %s %s alone by %s %s (95%% interval %s to %s, p %s)",
 		len(states), label, num(j.Primary.Mean), verb(g.Mean), g.Over, num(math.Abs(g.Mean)), label, num(g.Low), num(g.High), pval(g.P))
 	return j, nil
+}
+
+// winnerOf returns the column's winning candidate, nil when it has none.
+func winnerOf(c *ColumnResult) *CandidateResult {
+	for i := range c.Candidates {
+		if c.Candidates[i].Winner {
+			return &c.Candidates[i]
+		}
+	}
+	return nil
+}
+
+// bestColumn returns the index of the column whose winner scores best
+// alone (the first of equals), -1 when no column has a winner. It is the
+// winner's score that counts, not the column's best candidate's, as the
+// joint model joins the winners.
+func bestColumn(cols []ColumnResult, higher bool) int {
+	best := -1
+	var bestMean float64
+	for i := range cols {
+		w := winnerOf(&cols[i])
+		if w == nil {
+			continue
+		}
+		if best < 0 || better(w.Primary.Mean, bestMean, higher) {
+			best, bestMean = i, w.Primary.Mean
+		}
+	}
+	return best
 }
 
 // better reports whether a is a better value of a metric than b.

@@ -71,7 +71,16 @@ type reportView struct {
 	Header    []headerItem
 	Command   string // the encode command that carries out the verdict
 	Columns   []columnView
+	Joint     *jointView // the model over every column's winner (--joint)
 	Generator string
+}
+
+// jointView is the joint model's section: its scores and those of each
+// column's winner alone on the same folds, in the text's figures.
+type jointView struct {
+	Encodings string
+	Table     tableView // nil rows when fewer than two columns had a winner
+	Reading   string
 }
 
 type headerItem struct{ Key, Value string }
@@ -164,8 +173,13 @@ type tableView struct {
 }
 
 type tableRow struct {
-	Kind  string // winner, baseline, candidate
+	Kind  string // winner, tie, baseline, candidate; joint for the joint model
 	Cells []string
+	// Group, when set, heads a group of rows that starts here (the
+	// baselines, apart from the ranked candidates); Span is the table's
+	// column count, which its heading cell spans.
+	Group string
+	Span  int
 }
 
 // ---- building the view ----
@@ -191,9 +205,10 @@ func buildView(r *Result) reportView {
 			{"File", clean(r.File)},
 			{"Target", clean(r.Target)},
 			{"Task", clean(r.Task)},
-			{"Primary metric", clean(r.Metric) + " (" + dir + ")"},
+			{"Primary metric", metricLabel(clean(r.Metric)) + " (" + dir + ")"},
 			{"Folds", fmt.Sprintf("%d outer × %d inner", r.Folds, r.InnerFolds)},
 			{"Fold rule", clean(r.FoldBy)},
+			{"Test", testName},
 			{"Seed", strconv.FormatUint(r.Seed, 10)},
 			{"Rows", groupDigits(r.Rows)},
 			{"Model rows", groupDigits(r.ModelRows)},
@@ -205,7 +220,60 @@ func buildView(r *Result) reportView {
 	for i := range r.Columns {
 		v.Columns = append(v.Columns, buildColumn(r, i))
 	}
+	v.Joint = buildJoint(r)
 	return v
+}
+
+// buildJoint is the joint model's section, nil without --joint: a table of
+// every metric, the joint model first, then each joined column's winner
+// alone (the best column marked), with the figures as the text prints
+// them (four decimals), and the joint reading, which gives the gain over
+// the best column with its interval and p-value.
+func buildJoint(r *Result) *jointView {
+	j := r.Joint
+	if j == nil {
+		return nil
+	}
+	jv := &jointView{Encodings: clean(j.Encodings), Reading: clean(j.Reading)}
+	if len(j.Metrics) == 0 {
+		return jv
+	}
+	jv.Table.Heads = []string{"model"}
+	for _, m := range j.Metrics {
+		h := metricLabel(m.Name)
+		if m.Name == r.Metric {
+			h += " mean ± sd"
+		}
+		jv.Table.Heads = append(jv.Table.Heads, h)
+	}
+	row := func(kind, name string, ms []Metric) tableRow {
+		tr := tableRow{Kind: kind, Cells: []string{name}}
+		for _, m := range j.Metrics {
+			cell := "–"
+			if i := slices.IndexFunc(ms, func(x Metric) bool { return x.Name == m.Name }); i >= 0 {
+				cell = num(ms[i].Mean) + " ± " + num(ms[i].Std)
+			}
+			tr.Cells = append(tr.Cells, cell)
+		}
+		return tr
+	}
+	jv.Table.Rows = append(jv.Table.Rows, row("joint", fmt.Sprintf("one model over the %d winners", len(j.Columns)), j.Metrics))
+	for _, col := range j.Columns {
+		ci := slices.IndexFunc(r.Columns, func(c ColumnResult) bool { return c.Column == col })
+		if ci < 0 {
+			continue
+		}
+		w := winnerOf(&r.Columns[ci])
+		if w == nil {
+			continue
+		}
+		name := clean(col + "=" + w.Name + " alone")
+		if col == j.BestColumn {
+			name += " (best column)"
+		}
+		jv.Table.Rows = append(jv.Table.Rows, row("candidate", name, w.Metrics))
+	}
+	return jv
 }
 
 func buildColumn(r *Result, i int) columnView {
@@ -675,16 +743,22 @@ func buildTable(r *Result, c *ColumnResult) tableView {
 		t.Heads = append(t.Heads, "fit seconds")
 	}
 	t.Heads = append(t.Heads, "output columns", "unseen share")
-	for _, cand := range c.Candidates {
+	for i, cand := range c.Candidates {
 		row := tableRow{Kind: "candidate"}
 		name := clean(cand.Name)
 		switch {
 		case cand.Baseline:
 			row.Kind = "baseline"
 			name += " (baseline)"
+			if i == 0 || !c.Candidates[i-1].Baseline {
+				row.Group, row.Span = "baselines (not ranked)", len(t.Heads)
+			}
 		case cand.Winner:
 			row.Kind = "winner"
 			name += " (best)"
+		case cand.Tie:
+			row.Kind = "tie"
+			name += " (tie with the best)"
 		}
 		row.Cells = append(row.Cells, name)
 		for _, n := range names {
@@ -875,7 +949,7 @@ h3 { font-size: 1em; margin: 1.2em 0 0.3em; color: #333333; }
 .meta dt { color: #555555; }
 .meta dd { margin: 0; overflow-wrap: anywhere; }
 nav ul { margin: 0.2em 0 1em; padding-left: 1.2em; }
-section.column { border-top: 2px solid #d8d8d8; padding-top: 1em; margin-top: 1.6em; }
+section.column, section.joint, section.next { border-top: 2px solid #d8d8d8; padding-top: 1em; margin-top: 1.6em; }
 .levels { color: #555555; margin: 0 0 0.6em; }
 figure { margin: 0.4em 0 1em; break-inside: avoid; page-break-inside: avoid; }
 figcaption { font-size: 0.85em; color: #444444; margin-top: 0.2em; }
@@ -899,8 +973,9 @@ table { border-collapse: collapse; font-size: 0.88em; font-variant-numeric: tabu
 th, td { border-bottom: 1px solid #dddddd; padding: 4px 8px; text-align: right; white-space: nowrap; }
 th:first-child, td:first-child { text-align: left; white-space: normal; overflow-wrap: anywhere; min-width: 8em; }
 th { background: #f2f2f2; font-weight: 600; white-space: normal; vertical-align: bottom; }
-tr.winner td { font-weight: 700; background: #eef4fb; }
+tr.winner td, tr.joint td { font-weight: 700; background: #eef4fb; }
 tr.baseline td { color: #666666; font-style: italic; }
+th.group { background: #ffffff; color: #555555; font-weight: 600; text-align: left; padding-top: 10px; }
 .candidates { break-inside: avoid; page-break-inside: avoid; }
 .reading { margin: 0.4em 0 0; padding: 0.5em 0.8em; border-left: 4px solid #1f5fa8; background: #f6f8fb; }
 footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
@@ -909,11 +984,11 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
   body { max-width: none; padding: 0; font-size: 10pt; }
   nav { display: none; }
   section.column { border-top: none; margin-top: 0; }
-  section.column + section.column { break-before: page; page-break-before: always; }
+  section.column + section.column, section.joint { break-before: page; page-break-before: always; }
   svg.metric-chart { width: 100%; }
   .pair { flex-wrap: nowrap; }
   .pair figure { flex: 1 1 50%; max-width: 50%; }
-  tr.winner td, th, .reading { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
+  tr.winner td, tr.joint td, th, .reading { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
   figure svg { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
 }
 </style>
@@ -931,12 +1006,15 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 {{- range .Columns}}
 <li><a href="#{{.Anchor}}">{{.Name}}</a></li>
 {{- end}}
+{{- if .Joint}}
+<li><a href="#joint">joint model</a></li>
+{{- end}}
+{{- if .Command}}
+<li><a href="#next">the encode command</a></li>
+{{- end}}
 </ul></nav>
 {{- else}}
 <p class="none">No categorical columns were compared.</p>
-{{- end}}
-{{- if .Command}}
-<p class="command">To encode each column by its winner: <code>{{.Command}}</code></p>
 {{- end}}
 </header>
 {{- range .Columns}}
@@ -1053,6 +1131,9 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 <thead><tr>{{range .Table.Heads}}<th>{{.}}</th>{{end}}</tr></thead>
 <tbody>
 {{- range .Table.Rows}}
+{{- if .Group}}
+<tr><th class="group" colspan="{{.Span}}">{{.Group}}</th></tr>
+{{- end}}
 <tr class="{{.Kind}}">{{range .Cells}}<td>{{.}}</td>{{end}}</tr>
 {{- end}}
 </tbody>
@@ -1061,6 +1142,31 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 <p class="reading">{{.Reading}}</p>
 {{- end}}
 </div>
+</section>
+{{- end}}
+{{- with .Joint}}
+<section class="joint" id="joint">
+<h2>Joint: one model over every column's winner</h2>
+<p class="levels">{{.Encodings}}, scored on the same outer folds as each column alone</p>
+{{- if .Table.Rows}}
+<div class="candidates">
+<table>
+<thead><tr>{{range .Table.Heads}}<th>{{.}}</th>{{end}}</tr></thead>
+<tbody>
+{{- range .Table.Rows}}
+<tr class="{{.Kind}}">{{range .Cells}}<td>{{.}}</td>{{end}}</tr>
+{{- end}}
+</tbody>
+</table>
+</div>
+{{- end}}
+<p class="reading">{{.Reading}}</p>
+</section>
+{{- end}}
+{{- if .Command}}
+<section class="next" id="next">
+<h2>Next</h2>
+<p class="command">To encode each column by its winner: <code>{{.Command}}</code></p>
 </section>
 {{- end}}
 <footer>Written by manyfold compare. Scores are means over the outer folds; every encoder was fitted inside the training folds only.</footer>

@@ -27,11 +27,13 @@ type Result struct {
 	Lambda       float64        `json:"lambda"`            // L2 weight of the models
 	With         []string       `json:"with"`              // numeric columns added to every model
 	Columns      []ColumnResult `json:"columns"`
-	// EncodeCommand is the manyfold encode command that carries out the
-	// verdict: each column with a winner encoded by it ("" for none).
-	EncodeCommand string `json:"encode_command"`
 	// Joint is the model over every column's winner at once (--joint).
 	Joint *JointResult `json:"joint,omitempty"`
+	// EncodeCommand is the manyfold encode command that carries out the
+	// verdict: each column with a winner encoded by it ("" for none). It
+	// is the JSON's last field, as the command ends the text and the
+	// report.
+	EncodeCommand string `json:"encode_command"`
 }
 
 // ColumnResult holds the candidates of one categorical column, best first.

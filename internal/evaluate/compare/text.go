@@ -52,6 +52,7 @@ func WriteText(w io.Writer, r *Result) error {
 	fmt.Fprintf(bw, "manyfold compare: %s, target %s (%s; ranked by held-out %s, %s)\n", r.File, r.Target, r.Task, metricLabel(r.Metric), dir)
 	fmt.Fprintf(bw, "nested cross-validation: %d outer x %d inner folds (fold rule %s), seed %d; statistics over %d rows, models on %d of them; L2 lambda %g\n",
 		r.Folds, r.InnerFolds, r.FoldBy, r.Seed, r.Rows, r.ModelRows, r.Lambda)
+	fmt.Fprintf(bw, "test: %s\n", testName)
 	if r.DroppedRows > 0 {
 		fmt.Fprintf(bw, "%d rows with an empty target left out\n", r.DroppedRows)
 	}
@@ -153,6 +154,17 @@ func (s Stat) MarshalJSON() ([]byte, error) {
 		Mean jsonNum `json:"mean"`
 		Std  jsonNum `json:"std"`
 	}{jsonNum(s.Mean), jsonNum(s.Std)})
+}
+
+// MarshalJSON writes the metric's name with its mean and std (non-finite
+// as null): without it Stat's method, promoted through the embedding,
+// would write the figures without the name.
+func (m Metric) MarshalJSON() ([]byte, error) {
+	return json.Marshal(struct {
+		Name string  `json:"name"`
+		Mean jsonNum `json:"mean"`
+		Std  jsonNum `json:"std"`
+	}{m.Name, jsonNum(m.Mean), jsonNum(m.Std)})
 }
 
 // MarshalJSON writes non-finite per-fold values as null.

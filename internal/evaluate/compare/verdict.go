@@ -101,7 +101,7 @@ func judge(cs []CandidateResult, higher bool, testShare float64) Verdict {
 		}
 		return 0
 	})
-	v := Verdict{Test: testName, Level: Level}
+	v := Verdict{Test: testName, Level: Level, Equivalent: []string{}, Ties: []string{}} // [] in the JSON, not null
 	gain := func(a, b *CandidateResult) *Gain {
 		x, y := a.PerFold, b.PerFold
 		if !higher {

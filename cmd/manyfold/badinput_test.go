@@ -268,6 +268,9 @@ func TestBadEncode(t *testing.T) {
 		{"scan unknown column", func(t *testing.T, dir string) []string {
 			return []string{"scan", csvWith(goodCSV)(t, dir), "--columns", "postcode,sendr"}
 		}, exitUsage, []string{"shipments.csv", `--columns names column "sendr"`, `closest: "sender"`}},
+		{"scan unknown target", func(t *testing.T, dir string) []string {
+			return []string{"scan", csvWith(goodCSV)(t, dir), "--columns", "postcode", "--target", "lates"}
+		}, exitUsage, []string{"shipments.csv", `--target names column "lates"`, `closest: "late"`}},
 		{"encode unknown column", func(t *testing.T, dir string) []string {
 			return encodeArgs(dir, csvWith(goodCSV)(t, dir), "--target", "late", "--columns", "postcod")
 		}, exitUsage, []string{"shipments.csv", `--columns names column "postcod"`, `closest: "postcode"`}},

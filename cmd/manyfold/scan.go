@@ -61,6 +61,11 @@ func runScan(args []string) error {
 	r = wr
 	defer r.Close()
 	s := r.Schema()
+	if *target != "" {
+		if _, err := selectColumns(file, "--target", s, []string{*target}); err != nil {
+			return err
+		}
+	}
 	// Nested columns (lists, maps, structs) are listed as not encodable
 	// when every column is profiled.
 	nested := nestedOf(r)

@@ -82,9 +82,9 @@ type CandidateResult struct {
 	// TrainPrimary is the primary metric on the training rows themselves,
 	// which shows how far the in-sample baseline flatters itself.
 	TrainPrimary  Stat    `json:"train_primary"`
-	FitSeconds    float64 `json:"fit_seconds"`    // fitting and encoding, summed over folds
-	OutputColumns int     `json:"output_columns"` // columns the encoder adds (indicators for top-k and hash)
-	UnseenShare   float64 `json:"unseen_share"`   // held-out rows whose level was not seen in training
+	FitSeconds    float64 `json:"fit_seconds,omitempty"` // fitting and encoding, summed over folds (--timings only)
+	OutputColumns int     `json:"output_columns"`        // columns the encoder adds (indicators for top-k and hash)
+	UnseenShare   float64 `json:"unseen_share"`          // held-out rows whose level was not seen in training
 }
 
 // Metric is a named metric over the outer folds.

@@ -521,3 +521,40 @@ func TestBestColumnByWinner(t *testing.T) {
 		}
 	}
 }
+
+// TestTimingsOnlyWithFlag: the fit seconds appear in the text, the JSON
+// and the report only when timed (--timings), and then for every
+// candidate.
+func TestTimingsOnlyWithFlag(t *testing.T) {
+	cands, err := ParseCandidates("prior,target:eb,freq")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, timed := range []bool{false, true} {
+		res, err := Run(csvReader(t, verdictCSV(5)), Options{Target: "late", Columns: []string{"a"}, Candidates: cands,
+			Folds: 3, InnerFolds: 2, Seed: 1, NoTimings: !timed})
+		if err != nil {
+			t.Fatal(err)
+		}
+		var tb, jb, hb bytes.Buffer
+		if err := WriteText(&tb, res); err != nil {
+			t.Fatal(err)
+		}
+		if err := WriteJSON(&jb, res); err != nil {
+			t.Fatal(err)
+		}
+		if err := WriteReportTo(&hb, res); err != nil {
+			t.Fatal(err)
+		}
+		text, js, report := tb.String(), jb.String(), hb.String()
+		if got := strings.Contains(text, "  secs  "); got != timed {
+			t.Errorf("timed %v: the text has a secs column: %v\n%s", timed, got, text)
+		}
+		if got := strings.Count(js, `"fit_seconds": `); (got > 0) != timed || (timed && got != len(cands)) {
+			t.Errorf("timed %v: %d fit_seconds in the JSON, want %d", timed, got, map[bool]int{true: len(cands)}[timed])
+		}
+		if got := strings.Contains(report, "<th>fit seconds</th>"); got != timed {
+			t.Errorf("timed %v: the report has a fit seconds column: %v", timed, got)
+		}
+	}
+}

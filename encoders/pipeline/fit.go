@@ -240,12 +240,15 @@ func (f *fitter) addParents() error {
 
 // pass reads every batch of r and counts its rows.
 func (f *fitter) pass(r table.Reader) error {
-	// The row count, when the reader knows it before reading (Parquet).
+	// The row count, when a reader knows it before reading (Parquet), or
+	// its estimate part way through (CSV), for sizing the level table of
+	// a nearly unique column at once (intern): found under the readers
+	// that wrap the file's (ReadAhead, derived columns).
 	f.total = f.opt.TotalRows
-	if rc, ok := r.(table.RowCounter); ok && f.total <= 0 {
-		f.total = rc.NumRows()
+	if f.total <= 0 {
+		f.total = table.RowCount(r)
 	}
-	f.estimate, _ = r.(table.RowEstimator)
+	f.estimate, _ = table.Find[table.RowEstimator](r)
 	n := len(f.all)
 	f.sized, f.spare = make([]bool, n), make([][]int32, n)
 	f.counts = [2]batchCounts{newBatchCounts(n), newBatchCounts(n)}

@@ -83,9 +83,10 @@ func (a *readAhead) NumRows() int64 {
 	return -1
 }
 
-// EstimateRows returns the estimate of the reader read ahead, or 0.
+// EstimateRows returns the estimate of the reader read ahead or of one it
+// wraps (Find), or 0.
 func (a *readAhead) EstimateRows() int64 {
-	if re, ok := a.r.(RowEstimator); ok {
+	if re, ok := Find[RowEstimator](a.r); ok {
 		return re.EstimateRows()
 	}
 	return 0

@@ -183,6 +183,9 @@ func spoolInput(file string) (path, name string, done func(error) error, err err
 	}
 	done = func(err error) error {
 		cleanup()
+		if path != file {
+			oneColumn.rename(path, "stdin")
+		}
 		if err != nil && path != file {
 			return &renamed{err: err, from: path, to: "stdin"}
 		}

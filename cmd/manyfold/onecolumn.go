@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 	"slices"
+	"strings"
 	"sync"
 
 	"manyfold/io/csvio"
@@ -39,6 +40,16 @@ func (n *oneColumnNotes) reset() {
 	n.mu.Lock()
 	defer n.mu.Unlock()
 	n.files, n.lines = nil, nil
+}
+
+// rename makes the warnings name a spooled input (standard input read
+// from a temporary file) by the name the user gave.
+func (n *oneColumnNotes) rename(from, to string) {
+	n.mu.Lock()
+	defer n.mu.Unlock()
+	for i, l := range n.lines {
+		n.lines[i] = strings.ReplaceAll(l, from, to)
+	}
 }
 
 // print writes the warnings, one line each.

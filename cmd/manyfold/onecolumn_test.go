@@ -59,6 +59,11 @@ func TestOneColumnWarning(t *testing.T) {
 	if res.code != exitOK || res.stderr != warning("stdin", `"city;delay;late"`, "';'") {
 		t.Errorf("scan -: exit %d, stderr %q", res.code, res.stderr)
 	}
+	// encode spools standard input and names it as given.
+	res = runStdin(t, []byte(rows(";")), "encode", "-", "--columns", "*", "--methods", "freq", "--out", filepath.Join(dir, "stdin.csv"), "--tables", filepath.Join(dir, "tstdin"))
+	if res.code != exitOK || count(res.stderr) != 1 || !strings.HasSuffix(res.stderr, warning("stdin", `"city;delay;late"`, "';'")) {
+		t.Errorf("encode -: exit %d, stderr %q", res.code, res.stderr)
+	}
 	// encode reads the file twice and warns once; apply warns too.
 	out, tables := filepath.Join(dir, "enc.csv"), filepath.Join(dir, "tables")
 	res = mustRun(t, "encode", semi, "--columns", "*", "--methods", "freq", "--out", out, "--tables", tables)

@@ -171,7 +171,7 @@ func writeTruncatedParquet(t *testing.T, path string) {
 var inputKinds = []inputKind{
 	{"missing file", "missing.csv", func(*testing.T, string) {}, exitInput, []string{"no such file"}},
 	{"empty file", "zero.csv", textInput(""), exitInput, []string{"file is empty"}},
-	{"binary junk", "junk.bin", textInput(string(junk())), exitInput, []string{"not a CSV, Parquet or Arrow IPC file"}},
+	{"binary junk", "junk.bin", textInput(string(junk())), exitInput, []string{"not a CSV, NDJSON, Parquet or Arrow IPC file"}},
 	{"ragged row", "ragged.csv", textInput(raggedCSV), exitData, []string{":3: 2 fields, header has 3"}},
 	{"unterminated quote", "quote.csv", textInput(openQuoteCSV), exitData, []string{":3: ", `column "postcode"`, "never closed"}},
 	{"duplicate header name", "dup.csv", textInput(dupNameCSV), exitData, []string{":1: ", `column "postcode"`, "named twice", "columns 1 and 3"}},

@@ -92,7 +92,8 @@ Usage:
   manyfold demo [flags]              the whole job on a generated parcel-network table
   manyfold version                   the version (also --version)
 
-FILE is CSV (optionally gzip or zstd compressed), Parquet or Arrow IPC; "-" reads standard input.
+FILE is CSV or newline-delimited JSON (either optionally gzip or zstd
+compressed), Parquet or Arrow IPC; "-" reads standard input.
 Run "manyfold help COMMAND" (or "manyfold COMMAND --help") for a command's help and flags.
 
 ` + exitCodesText()

@@ -313,6 +313,36 @@ func checkDelimiter(d byte) (byte, error) {
 	return 0, fmt.Errorf("delimiter %q is not supported (use , ; | or tab)", d)
 }
 
+// Decompress returns a reader of src's bytes decompressed when they start
+// with gzip's or zstd's magic bytes, with the decompressor's closer and the
+// codec's name ("gzip", "zstd"), or src itself, a nil closer and "". name
+// is the input's name for errors, which wrap table.ErrCorrupt. It reads
+// the first four bytes of src. The NDJSON reader reads compressed input
+// through it too.
+func Decompress(src io.Reader, name string) (io.Reader, io.Closer, string, error) {
+	var head [4]byte
+	n, err := io.ReadFull(src, head[:])
+	if err != nil && err != io.EOF && err != io.ErrUnexpectedEOF {
+		return nil, nil, "", &table.DataError{File: name, Err: fmt.Errorf("reading: %w", err)}
+	}
+	in := io.MultiReader(bytes.NewReader(append([]byte(nil), head[:n]...)), src)
+	switch {
+	case bytes.HasPrefix(head[:n], gzipMagic):
+		zr, err := gzip.NewReader(in)
+		if err != nil {
+			return nil, nil, "", &table.DataError{File: name, Err: fmt.Errorf("%w (gzip: %v)", table.ErrCorrupt, err)}
+		}
+		return zr, zr, "gzip", nil
+	case bytes.HasPrefix(head[:n], zstdMagic):
+		zr, err := zstd.NewReader(in)
+		if err != nil {
+			return nil, nil, "", &table.DataError{File: name, Err: fmt.Errorf("%w (zstd: %v)", table.ErrCorrupt, err)}
+		}
+		return zr, zr.IOReadCloser(), "zstd", nil
+	}
+	return in, nil, "", nil
+}
+
 // open recognises compressed input and fills the buffer.
 func (r *Reader) open(src io.Reader) error {
 	if f, ok := src.(*os.File); ok {
@@ -321,27 +351,12 @@ func (r *Reader) open(src io.Reader) error {
 		}
 	}
 	src = &countingReader{r: src, n: &r.inputRead}
-	var head [4]byte
-	n, err := io.ReadFull(src, head[:])
-	if err != nil && err != io.EOF && err != io.ErrUnexpectedEOF {
-		return &table.DataError{File: r.name, Err: fmt.Errorf("reading: %w", err)}
+	dec, closer, codec, err := Decompress(src, r.name)
+	if err != nil {
+		return err
 	}
-	in := io.MultiReader(bytes.NewReader(append([]byte(nil), head[:n]...)), src)
-	switch {
-	case bytes.HasPrefix(head[:n], gzipMagic):
-		zr, err := gzip.NewReader(in)
-		if err != nil {
-			return &table.DataError{File: r.name, Err: fmt.Errorf("%w (gzip: %v)", table.ErrCorrupt, err)}
-		}
-		r.src, r.closer, r.codec = zr, zr, "gzip"
-	case bytes.HasPrefix(head[:n], zstdMagic):
-		zr, err := zstd.NewReader(in)
-		if err != nil {
-			return &table.DataError{File: r.name, Err: fmt.Errorf("%w (zstd: %v)", table.ErrCorrupt, err)}
-		}
-		r.src, r.closer, r.codec = zr, zr.IOReadCloser(), "zstd"
-	default:
-		r.src = in
+	r.src, r.closer, r.codec = dec, closer, codec
+	if codec == "" {
 		r.size = r.inputSize
 	}
 	size := bufSize

@@ -49,7 +49,7 @@ func (e *DataError) Unwrap() error { return e.Err }
 // Errors that readers wrap when a file cannot be read as a table at all.
 var (
 	// ErrUnknownFormat: the file is neither CSV, Parquet nor Arrow IPC.
-	ErrUnknownFormat = errors.New("not a CSV, Parquet or Arrow IPC file")
+	ErrUnknownFormat = errors.New("not a CSV, NDJSON, Parquet or Arrow IPC file")
 	// ErrEmpty: the file holds no bytes, or no header.
 	ErrEmpty = errors.New("file is empty")
 	// ErrCorrupt: the file claims a format but its structure is broken

@@ -221,3 +221,76 @@ func TestDetectNDJSON(t *testing.T) {
 		}
 	}
 }
+
+// TestCompressedNDJSON: NDJSON compressed with gzip or zstd is read as
+// NDJSON, whether its name says so (t.ndjson.gz) or only its decompressed
+// bytes do (t.gz), from a file and from standard input; a compressed CSV
+// file is still CSV.
+func TestCompressedNDJSON(t *testing.T) {
+	dir := t.TempDir()
+	gz := func(b []byte) []byte {
+		var buf bytes.Buffer
+		w := gzip.NewWriter(&buf)
+		w.Write(b)
+		w.Close()
+		return buf.Bytes()
+	}
+	zs := func(b []byte) []byte {
+		var buf bytes.Buffer
+		w, _ := zstd.NewWriter(&buf)
+		w.Write(b)
+		w.Close()
+		return buf.Bytes()
+	}
+	for _, c := range []struct {
+		name string
+		data []byte
+	}{
+		{"t.ndjson.gz", gz([]byte(ndjsonTable))},
+		{"t.gz", gz([]byte(ndjsonTable))},
+		{"t.jsonl.zst", zs([]byte(ndjsonTable))},
+		{"t.zst", zs([]byte(ndjsonTable))},
+	} {
+		path := filepath.Join(dir, c.name)
+		if err := os.WriteFile(path, c.data, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		r, err := Open(path, ReadOptions{})
+		if err != nil {
+			t.Fatalf("%s: %v", c.name, err)
+		}
+		checkTable(t, r, testSchema, testWant)
+		if err := r.Close(); err != nil {
+			t.Errorf("%s: close: %v", c.name, err)
+		}
+		in, err := os.Open(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		old := os.Stdin
+		os.Stdin = in
+		r, err = Open("-", ReadOptions{})
+		os.Stdin = old
+		if err != nil {
+			t.Fatalf("%s on standard input: %v", c.name, err)
+		}
+		checkTable(t, r, testSchema, testWant)
+		r.Close()
+		in.Close()
+	}
+	// A compressed CSV file stays CSV, with a name or without.
+	for _, name := range []string{"c.csv.gz", "c.gz"} {
+		path := filepath.Join(dir, name)
+		if err := os.WriteFile(path, gz([]byte("a,b\n1,x\n")), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		r, err := Open(path, ReadOptions{})
+		if err != nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		if got := strings.Join(r.Schema().Names(), ","); got != "a,b" {
+			t.Errorf("%s: columns %s, want a,b", name, got)
+		}
+		r.Close()
+	}
+}

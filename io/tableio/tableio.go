@@ -1,6 +1,7 @@
 // Package tableio opens tables for reading and creates them for writing,
-// choosing CSV, Parquet or Arrow IPC from the file's content (reading) or
-// its extension (writing).
+// choosing CSV, NDJSON (read only), Parquet or Arrow IPC from the file's
+// content and name (reading; CSV and NDJSON may be compressed with gzip or
+// zstd) or its extension (writing).
 package tableio
 
 import (
@@ -93,7 +94,7 @@ func openNDJSON(r io.Reader, name string, o csvio.Options) (*ndjson.Reader, erro
 // looksBinary reports whether head holds bytes that text never does: a NUL,
 // or other control bytes, outside gzip and zstd headers.
 func looksBinary(head []byte) bool {
-	if bytes.HasPrefix(head, []byte{0x1f, 0x8b}) || bytes.HasPrefix(head, []byte{0x28, 0xb5, 0x2f, 0xfd}) {
+	if compressed(head) {
 		return false
 	}
 	n := len(head)
@@ -133,6 +134,9 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 		f, err := Detect(head)
 		if err != nil {
 			return nil, fmt.Errorf("%s: %w", name, err)
+		}
+		if f == CSV && compressed(head) && compressedNDJSON(head) {
+			return openCompressedNDJSON(br, nil, name, opts.CSV)
 		}
 		switch f {
 		case CSV:
@@ -175,6 +179,9 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 		fh.Close()
 		return nil, fmt.Errorf("read %s: %w", path, err)
 	}
+	if base, _ := splitCompression(path); format == CSV && compressed(head[:n]) && (compressedNDJSON(head[:n]) || isNDJSON(base)) {
+		return openCompressedNDJSON(fh, fh, path, opts.CSV)
+	}
 	if format == NDJSON || isNDJSON(path) {
 		r, err := openNDJSON(fh, path, opts.CSV)
 		if err != nil {
@@ -195,9 +202,57 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 	return &closeBoth{Reader: r, f: fh}, nil
 }
 
+// compressed reports whether head starts with gzip's or zstd's magic
+// bytes.
+func compressed(head []byte) bool {
+	return bytes.HasPrefix(head, []byte{0x1f, 0x8b}) || bytes.HasPrefix(head, []byte{0x28, 0xb5, 0x2f, 0xfd})
+}
+
+// compressedNDJSON reports whether head, the first bytes of a compressed
+// input, decompress to bytes that begin as NDJSON does.
+func compressedNDJSON(head []byte) bool {
+	dec, closer, _, err := csvio.Decompress(bytes.NewReader(head), "")
+	if err != nil {
+		return false
+	}
+	defer closer.Close()
+	buf := make([]byte, 512)
+	n, _ := io.ReadFull(dec, buf)
+	f, err := Detect(buf[:n])
+	return err == nil && f == NDJSON
+}
+
+// openCompressedNDJSON reads the compressed NDJSON in src (at its start)
+// through its decompressor; f, when not nil, is the file to close with it,
+// and is closed on an error.
+func openCompressedNDJSON(src io.Reader, f *os.File, name string, o csvio.Options) (table.Reader, error) {
+	fail := func(err error) (table.Reader, error) {
+		if f != nil {
+			f.Close()
+		}
+		return nil, err
+	}
+	dec, closer, _, err := csvio.Decompress(src, name)
+	if err != nil {
+		return fail(err)
+	}
+	r, err := openNDJSON(dec, name, o)
+	if err != nil {
+		closer.Close()
+		return fail(err)
+	}
+	c := &closeBoth{Reader: r, dec: closer}
+	if f != nil {
+		c.f = f
+	}
+	return c, nil
+}
+
+// closeBoth closes the file (and the decompressor) under a reader.
 type closeBoth struct {
 	table.Reader
-	f *os.File
+	f   io.Closer
+	dec io.Closer // nil when none
 }
 
 // EstimateRows passes on the CSV reader's estimate of the rows.
@@ -210,8 +265,13 @@ func (c *closeBoth) EstimateRows() int64 {
 
 func (c *closeBoth) Close() error {
 	err := c.Reader.Close()
-	if err2 := c.f.Close(); err == nil {
-		err = err2
+	for _, cl := range []io.Closer{c.dec, c.f} {
+		if cl == nil {
+			continue
+		}
+		if err2 := cl.Close(); err == nil {
+			err = err2
+		}
 	}
 	return err
 }

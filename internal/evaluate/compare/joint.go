@@ -25,13 +25,33 @@ type JointResult struct {
 	Reading        string `json:"reading"`
 }
 
-// MarshalJSON writes non-finite per-fold values as null.
+// MarshalJSON writes non-finite per-fold values as null; when no model
+// was fitted (fewer than two winners) primary is null and the lists are
+// empty, so that no score of 0 is read where there is none.
 func (j JointResult) MarshalJSON() ([]byte, error) {
-	type plain JointResult
+	var primary *Stat
+	if len(j.Metrics) > 0 {
+		primary = &j.Primary
+	}
 	return json.Marshal(struct {
-		plain
-		PerFold []jsonNum `json:"per_fold"`
-	}{plain(j), jsonNums(j.PerFold)})
+		Columns        []string  `json:"columns"`
+		Encodings      string    `json:"encodings"`
+		Primary        *Stat     `json:"primary"`
+		PerFold        []jsonNum `json:"per_fold"`
+		Metrics        []Metric  `json:"metrics"`
+		BestColumn     string    `json:"best_column"`
+		OverBestColumn *Gain     `json:"over_best_column"`
+		Reading        string    `json:"reading"`
+	}{orEmpty(j.Columns), j.Encodings, primary, jsonNums(j.PerFold), orEmpty(j.Metrics), j.BestColumn, j.OverBestColumn, j.Reading})
+}
+
+// orEmpty returns xs, or an empty slice for nil, so that the JSON has []
+// and not null.
+func orEmpty[T any](xs []T) []T {
+	if xs == nil {
+		return []T{}
+	}
+	return xs
 }
 
 // joint fits, on each outer fold, one model over the winners of every

@@ -70,6 +70,7 @@ type reportView struct {
 	Title     string
 	Header    []headerItem
 	Command   string // the encode command that carries out the verdict
+	NoCommand string // what the last section says when there is none
 	Columns   []columnView
 	Joint     *jointView // the model over every column's winner (--joint)
 	Generator string
@@ -215,6 +216,7 @@ func buildView(r *Result) reportView {
 			{"Numeric columns added", with},
 		},
 		Command:   r.EncodeCommand,
+		NoCommand: noCommand,
 		Generator: "manyfold compare",
 	}
 	for i := range r.Columns {
@@ -1009,9 +1011,7 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 {{- if .Joint}}
 <li><a href="#joint">joint model</a></li>
 {{- end}}
-{{- if .Command}}
 <li><a href="#next">the encode command</a></li>
-{{- end}}
 </ul></nav>
 {{- else}}
 <p class="none">No categorical columns were compared.</p>
@@ -1163,10 +1163,14 @@ footer { margin-top: 2em; font-size: 0.8em; color: #777777; }
 <p class="reading">{{.Reading}}</p>
 </section>
 {{- end}}
-{{- if .Command}}
+{{- if .Columns}}
 <section class="next" id="next">
 <h2>Next</h2>
+{{- if .Command}}
 <p class="command">To encode each column by its winner: <code>{{.Command}}</code></p>
+{{- else}}
+<p class="command">{{.NoCommand}}</p>
+{{- end}}
 </section>
 {{- end}}
 <footer>Written by manyfold compare. Scores are means over the outer folds; every encoder was fitted inside the training folds only.</footer>

@@ -120,9 +120,14 @@ func WriteText(w io.Writer, r *Result) error {
 	}
 	if r.EncodeCommand != "" {
 		fmt.Fprintf(bw, "\nto encode each column by its winner:\n  %s\n", r.EncodeCommand)
+	} else if len(r.Columns) > 0 {
+		fmt.Fprintf(bw, "\n%s\n", noCommand)
 	}
 	return bw.Flush()
 }
+
+// noCommand ends the text and the report when no column has a winner.
+const noCommand = "no column has a clear winner: no encode command to run"
 
 // WriteJSON writes the result as indented JSON; metrics that are not
 // finite (an AUC on a fold with one class) are written as null.

@@ -558,3 +558,55 @@ func TestTimingsOnlyWithFlag(t *testing.T) {
 		}
 	}
 }
+
+// TestNoWinnerSaysNoCommand: when no column has a clear winner the text
+// and the report end by saying there is no encode command, and the JSON's
+// encode_command is empty.
+func TestNoWinnerSaysNoCommand(t *testing.T) {
+	r := binaryResult()
+	r.EncodeCommand = ""
+	var tb, jb, hb bytes.Buffer
+	if err := WriteText(&tb, r); err != nil {
+		t.Fatal(err)
+	}
+	if err := WriteJSON(&jb, r); err != nil {
+		t.Fatal(err)
+	}
+	if err := WriteReportTo(&hb, r); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.HasSuffix(tb.String(), "\n\n"+noCommand+"\n") {
+		t.Errorf("the text does not end with %q:\n%s", noCommand, tb.String())
+	}
+	if doc := jsonDoc(t, jb.Bytes()); doc["encode_command"] != "" {
+		t.Errorf("encode_command %v, want empty", doc["encode_command"])
+	}
+	secs := parseXML(t, hb.Bytes()).all(elem("section", "next"))
+	if len(secs) != 1 || strings.TrimSpace(secs[0].all(elem("p", "command"))[0].allText()) != noCommand {
+		t.Errorf("the report's last section does not say %q", noCommand)
+	}
+}
+
+// TestJointNothingToJoinJSON: with fewer than two winners the joint
+// object has no score (primary null) and empty lists, not a score of 0.
+func TestJointNothingToJoinJSON(t *testing.T) {
+	r := &Result{Joint: &JointResult{Reading: "0 column(s) with a winner: nothing to join"}}
+	var b bytes.Buffer
+	if err := WriteJSON(&b, r); err != nil {
+		t.Fatal(err)
+	}
+	j := jsonDoc(t, b.Bytes())["joint"].(map[string]any)
+	for _, k := range []string{"columns", "metrics", "per_fold"} {
+		if l, ok := j[k].([]any); !ok || len(l) != 0 {
+			t.Errorf("%s: %v, want []", k, j[k])
+		}
+	}
+	if p, ok := j["primary"]; !ok || p != nil {
+		t.Errorf("primary %v, want null", j["primary"])
+	}
+	// A joint model that was fitted keeps its score.
+	_, _, js, _ := verdictOutputs(t)
+	if p, ok := jsonDoc(t, js)["joint"].(map[string]any)["primary"].(map[string]any); !ok || p["mean"].(float64) <= 0.5 {
+		t.Errorf("the fitted joint model's primary is %v", p)
+	}
+}

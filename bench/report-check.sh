@@ -15,7 +15,7 @@
 #            the table cannot shrink below (its min-content width); the
 #            joint model's table (--joint) likewise;
 #   overlap  in the bar chart, no two text elements overlap (rotated x-axis
-#            labels with their " (best)" / " (baseline)" notes, the bars'
+#            labels with their " (winner)" / " (baseline)" notes, the bars'
 #            value labels, the tick labels, the axis title and the legend),
 #            no text overlaps a bar, a whisker, a fold dot, a legend swatch or
 #            an axis line, and every text lies inside the chart; the boxes

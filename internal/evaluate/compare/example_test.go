@@ -34,8 +34,8 @@ func routeTable() string {
 
 // Run scores each candidate encoding of a column on held-out folds, beside
 // the prior baseline (the overall late rate), and names the winner: the
-// best candidate when it beats both the prior and the runner-up on the
-// outer folds. Here the route carries the target (a late rate of 0.9 on
+// simplest of the candidates the corrected resampled t-test over the outer
+// folds cannot tell from the best, when it beats the prior. Here the route carries the target (a late rate of 0.9 on
 // five routes, 0.1 on the others, as TestExampleRouteRates checks) and
 // hash:1 carries nothing: one bucket holds every route, so its model
 // predicts one value for every row and its AUC is 0.5 on every fold (every

@@ -137,7 +137,7 @@ type barView struct {
 	LabelX, LabelY, Label            string
 	LabelAnchor, LabelTransform      string
 	LabelWeight                      string
-	Note                             string // "baseline" or "best", under the name
+	Note                             string // "baseline" or "winner", under the name
 	NoteY                            string
 	Folds                            []point
 }
@@ -358,7 +358,7 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 		legend = 28.0
 	)
 	// Labels are rotated when the longest name does not fit its slot; a
-	// rotated label also carries its note, " (best)" or " (baseline)", so
+	// rotated label also carries its note, " (winner)" or " (baseline)", so
 	// its length counts the note too.
 	maxLen, firstLen := 0, 0
 	for j, cand := range c.Candidates {
@@ -457,7 +457,7 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 		case cand.Baseline:
 			bv.Kind, bv.Fill, bv.Stroke, bv.Note = "baseline", b.HatchURL, "#6b6b6b", "baseline"
 		case cand.Winner:
-			bv.Kind, bv.Fill, bv.Stroke, bv.Note, bv.LabelWeight = "winner", colorWinner, colorStroke, "best", "bold"
+			bv.Kind, bv.Fill, bv.Stroke, bv.Note, bv.LabelWeight = "winner", colorWinner, colorStroke, "winner", "bold"
 		}
 		bv.Tip = bv.Name + ": " + meanStd(m, cand.Primary.Std)
 		topY := y1 - h
@@ -508,7 +508,7 @@ func buildBars(r *Result, c *ColumnResult, idx int) barChart {
 	}
 
 	items := []struct{ fill, stroke, label string }{
-		{colorWinner, colorStroke, "best candidate"},
+		{colorWinner, colorStroke, "winner"},
 		{colorCandidate, "#5d7fa6", "other candidates"},
 		{b.HatchURL, "#6b6b6b", "baselines"},
 		{"", "", "● outer folds   ┃ ±1 standard deviation"},
@@ -540,14 +540,14 @@ func valueLabels(cands []CandidateResult, slot float64) (width float64, upright 
 	return width, width+4 > slot
 }
 
-// barNote is the note a candidate's bar label carries: " (best)" for the
+// barNote is the note a candidate's bar label carries: " (winner)" for the
 // winner, " (baseline)" for a baseline.
 func barNote(c CandidateResult) string {
 	switch {
 	case c.Baseline:
 		return " (baseline)"
 	case c.Winner:
-		return " (best)"
+		return " (winner)"
 	}
 	return ""
 }
@@ -757,7 +757,7 @@ func buildTable(r *Result, c *ColumnResult) tableView {
 			}
 		case cand.Winner:
 			row.Kind = "winner"
-			name += " (best)"
+			name += " (winner)"
 		case cand.Tie:
 			row.Kind = "tie"
 			name += " (tie with the best)"

@@ -610,3 +610,36 @@ func TestJointNothingToJoinJSON(t *testing.T) {
 		t.Errorf("the fitted joint model's primary is %v", p)
 	}
 }
+
+// TestReportWinnerNamedWinner: the report calls the winner the winner, as
+// the text does ("<- winner"): it is the simplest candidate the test cannot
+// tell from the best, not always the best ranked, so "best" beside it would
+// contradict the ranking above it.
+func TestReportWinnerNamedWinner(t *testing.T) {
+	_, _, _, report := verdictOutputs(t)
+	html := parseXML(t, report)
+	if strings.Contains(html.allText(), "(best)") || strings.Contains(html.allText(), "best candidate") {
+		t.Error("the report calls a candidate best")
+	}
+	for i, sec := range html.all(elem("section", "column")) {
+		rows := sec.all(elem("tr", "winner"))
+		var labels []string
+		for _, tx := range sec.all(elem("text", "")) {
+			if strings.Contains(tx.allText(), "winner") {
+				labels = append(labels, tx.allText())
+			}
+		}
+		if i == 2 { // noise: no winner, only the legend names one
+			if len(rows) != 0 || len(labels) != 1 {
+				t.Errorf("column %d: %d winner rows, %d texts naming the winner: %q", i, len(rows), len(labels), labels)
+			}
+			continue
+		}
+		if len(rows) != 1 || !strings.HasSuffix(rows[0].all(elem("td", ""))[0].allText(), " (winner)") {
+			t.Errorf("column %d: the winner's row is not marked (winner)", i)
+		}
+		if len(labels) != 2 { // the bar's label or note, and the legend
+			t.Errorf("column %d: texts naming the winner %q, want the bar's and the legend's", i, labels)
+		}
+	}
+}

@@ -7,11 +7,9 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"sort"
 	"strconv"
 	"strings"
-	"sync/atomic"
 
 	"github.com/klauspost/compress/gzip"
 	"github.com/klauspost/compress/zstd"
@@ -249,10 +247,9 @@ type Reader struct {
 	// (0 otherwise) and the bytes of the rows delivered so far.
 	size      int64
 	bytesDone int64
-	// For InputBytes: the bytes read from the input as stored (counted
-	// by countingReader) and its size when it is a regular file.
-	inputRead atomic.Int64
-	inputSize int64
+	// For InputBytes: the bytes read from the input as stored and its
+	// size when it is a regular file.
+	input table.InputCount
 
 	batchRows  int
 	rowCap     int   // rows every column has room for
@@ -345,19 +342,13 @@ func Decompress(src io.Reader, name string) (io.Reader, io.Closer, string, error
 
 // open recognises compressed input and fills the buffer.
 func (r *Reader) open(src io.Reader) error {
-	if f, ok := src.(*os.File); ok {
-		if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {
-			r.inputSize = st.Size()
-		}
-	}
-	src = &countingReader{r: src, n: &r.inputRead}
-	dec, closer, codec, err := Decompress(src, r.name)
+	dec, closer, codec, err := Decompress(r.input.Count(src), r.name)
 	if err != nil {
 		return err
 	}
 	r.src, r.closer, r.codec = dec, closer, codec
 	if codec == "" {
-		r.size = r.inputSize
+		_, r.size = r.input.InputBytes()
 	}
 	size := bufSize
 	if size < 8 {
@@ -793,22 +784,7 @@ func (r *Reader) EstimateRows() int64 {
 // (compressed bytes for compressed input), and the input's size when it is
 // a regular file (0 otherwise); see table.InputCounter. Safe to call while
 // another goroutine reads.
-func (r *Reader) InputBytes() (read, size int64) {
-	return r.inputRead.Load(), r.inputSize
-}
-
-// countingReader counts the bytes read through it, one atomic add per
-// Read (of a buffer's worth, not per row).
-type countingReader struct {
-	r io.Reader
-	n *atomic.Int64
-}
-
-func (c *countingReader) Read(p []byte) (int, error) {
-	n, err := c.r.Read(p)
-	c.n.Add(int64(n))
-	return n, err
-}
+func (r *Reader) InputBytes() (read, size int64) { return r.input.InputBytes() }
 
 // Close releases the decompressor, if any. It does not close the
 // io.Reader given to NewReader.

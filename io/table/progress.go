@@ -1,5 +1,11 @@
 package table
 
+import (
+	"io"
+	"os"
+	"sync/atomic"
+)
+
 // InputCounter is implemented by readers that can tell how far through
 // their input they are in bytes (CSV): InputBytes returns the bytes read
 // from the input so far (of the file as stored, so compressed bytes for a
@@ -9,6 +15,40 @@ package table
 // second, never per row.
 type InputCounter interface {
 	InputBytes() (read, size int64)
+}
+
+// InputCount counts the bytes read from an input for an InputCounter: one
+// atomic add per Read, a buffer's worth, never per row. The zero value is
+// ready; Count starts it.
+type InputCount struct {
+	read atomic.Int64
+	size int64
+}
+
+// Count returns a reader of src that counts into c the bytes read through
+// it. When src is a regular file, its size is the input's size.
+func (c *InputCount) Count(src io.Reader) io.Reader {
+	if f, ok := src.(*os.File); ok {
+		if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {
+			c.size = st.Size()
+		}
+	}
+	return countingReader{src, &c.read}
+}
+
+// InputBytes returns the bytes read so far and the input's size, 0 when
+// it is not known.
+func (c *InputCount) InputBytes() (read, size int64) { return c.read.Load(), c.size }
+
+type countingReader struct {
+	r io.Reader
+	n *atomic.Int64
+}
+
+func (c countingReader) Read(p []byte) (int, error) {
+	n, err := c.r.Read(p)
+	c.n.Add(int64(n))
+	return n, err
 }
 
 // Wrapper is implemented by readers that wrap another one (ReadAhead, a

@@ -183,12 +183,14 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 		return openCompressedNDJSON(fh, fh, path, opts.CSV)
 	}
 	if format == NDJSON || isNDJSON(path) {
-		r, err := openNDJSON(fh, path, opts.CSV)
+		c := &closeBoth{f: fh, count: new(table.InputCount)}
+		r, err := openNDJSON(c.count.Count(fh), path, opts.CSV)
 		if err != nil {
 			fh.Close()
 			return nil, err
 		}
-		return &closeBoth{Reader: r, f: fh}, nil
+		c.Reader = r
+		return c, nil
 	}
 	co := opts.CSV
 	if co.Delimiter == 0 {
@@ -232,7 +234,8 @@ func openCompressedNDJSON(src io.Reader, f *os.File, name string, o csvio.Option
 		}
 		return nil, err
 	}
-	dec, closer, _, err := csvio.Decompress(src, name)
+	count := new(table.InputCount)
+	dec, closer, _, err := csvio.Decompress(count.Count(src), name)
 	if err != nil {
 		return fail(err)
 	}
@@ -241,7 +244,7 @@ func openCompressedNDJSON(src io.Reader, f *os.File, name string, o csvio.Option
 		closer.Close()
 		return fail(err)
 	}
-	c := &closeBoth{Reader: r, dec: closer}
+	c := &closeBoth{Reader: r, dec: closer, count: count}
 	if f != nil {
 		c.f = f
 	}
@@ -251,8 +254,21 @@ func openCompressedNDJSON(src io.Reader, f *os.File, name string, o csvio.Option
 // closeBoth closes the file (and the decompressor) under a reader.
 type closeBoth struct {
 	table.Reader
-	f   io.Closer
-	dec io.Closer // nil when none
+	f     io.Closer
+	dec   io.Closer         // nil when none
+	count *table.InputCount // the file's bytes read, when the reader does not count them (NDJSON)
+}
+
+// InputBytes returns the bytes read of the file as stored and its size:
+// counted here for NDJSON, by the CSV reader for CSV.
+func (c *closeBoth) InputBytes() (read, size int64) {
+	if c.count != nil {
+		return c.count.InputBytes()
+	}
+	if ic, ok := table.Find[table.InputCounter](c.Reader); ok {
+		return ic.InputBytes()
+	}
+	return 0, 0
 }
 
 // EstimateRows passes on the CSV reader's estimate of the rows.

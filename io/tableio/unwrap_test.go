@@ -35,7 +35,24 @@ func TestInputBytes(t *testing.T) {
 	if err := os.WriteFile(gz, z.Bytes(), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	for _, path := range []string{plain, gz} {
+	// The same rows as newline-delimited JSON, plain and compressed.
+	var nj bytes.Buffer
+	for i := 0; i < 300000; i++ {
+		fmt.Fprintf(&nj, "{\"id\":\"shipment-%07d\",\"late\":%d}\n", i, i%2)
+	}
+	ndjson := filepath.Join(dir, "big.ndjson")
+	if err := os.WriteFile(ndjson, nj.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	z.Reset()
+	zw = gzip.NewWriter(&z)
+	zw.Write(nj.Bytes())
+	zw.Close()
+	ndjsonGz := filepath.Join(dir, "big.ndjson.gz")
+	if err := os.WriteFile(ndjsonGz, z.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, path := range []string{plain, gz, ndjson, ndjsonGz} {
 		fi, _ := os.Stat(path)
 		r, err := Open(path, ReadOptions{})
 		if err != nil {
@@ -50,7 +67,7 @@ func TestInputBytes(t *testing.T) {
 			t.Fatal(err)
 		}
 		read, size := ic.InputBytes()
-		if size != fi.Size() || read <= 0 || (path == plain && read >= size) {
+		if size != fi.Size() || read <= 0 || ((path == plain || path == ndjson) && read >= size) {
 			t.Errorf("%s after one batch: read %d of %d; want part of %d", path, read, size, fi.Size())
 		}
 		for {

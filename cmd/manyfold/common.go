@@ -214,12 +214,12 @@ func spool(path string) (string, func(), error) {
 	if path != "-" {
 		return path, func() {}, nil
 	}
-	f, err := os.CreateTemp("", "manyfold-stdin-*")
+	// Tracked from its creation, so that a run stopped by a signal
+	// removes it.
+	f, err := atomicfile.CreateTemp("", "manyfold-stdin-")
 	if err != nil {
 		return "", nil, err
 	}
-	// Tracked, so that a run stopped by a signal removes it.
-	atomicfile.Track(f.Name())
 	if _, err := io.Copy(f, os.Stdin); err != nil {
 		f.Close()
 		atomicfile.Remove(f.Name())

@@ -202,21 +202,38 @@ func unwrapPath(err error) error {
 	return err
 }
 
+// CreateTemp creates a new file named prefix plus a random suffix in dir
+// (the system's temporary directory when dir is ""), tracked, so that
+// Cleanup removes it if a signal stops the run: a scratch file, such as a
+// copy of standard input, that is removed with Remove when done.
+func CreateTemp(dir, prefix string) (*os.File, error) {
+	if dir == "" {
+		dir = os.TempDir()
+	}
+	f, _, err := createTemp(dir, prefix, 0o600)
+	return f, err
+}
+
 // createTemp creates a new file named prefix plus a random suffix in dir
-// with permissions perm (less the umask), and tracks it.
+// with permissions perm (less the umask), and tracks it. The file is
+// created and tracked under the registry's lock, so that a signal's
+// Cleanup either finds it tracked or runs before it exists.
 func createTemp(dir, prefix string, perm os.FileMode) (*os.File, string, error) {
 	for try := 0; ; try++ {
 		name := filepath.Join(dir, prefix+randomSuffix())
-		f, err := os.OpenFile(name, os.O_RDWR|os.O_CREATE|os.O_EXCL, perm)
+		var f *os.File
+		err := commitLock(func() error {
+			var err error
+			if f, err = os.OpenFile(name, os.O_RDWR|os.O_CREATE|os.O_EXCL, perm); err == nil {
+				trackLocked(name)
+			}
+			return err
+		})
 		if errors.Is(err, os.ErrExist) && try < 100 {
 			continue
 		}
 		if err != nil {
 			return nil, "", err
-		}
-		if !Track(name) {
-			f.Close()
-			return nil, "", errClosed
 		}
 		return f, name, nil
 	}

@@ -3,6 +3,8 @@ package atomicfile
 import (
 	"os"
 	"path/filepath"
+	"slices"
+	"strings"
 	"testing"
 )
 
@@ -113,5 +115,24 @@ func TestCommitAllChecksTablesFirst(t *testing.T) {
 	}
 	if _, err := os.Stat(out); err == nil {
 		t.Errorf("the output was committed although its tables were not")
+	}
+}
+
+// TestCreateTempTracked: a scratch file is tracked from its creation (so
+// a signal's Cleanup removes it) and Remove removes and forgets it.
+func TestCreateTempTracked(t *testing.T) {
+	dir := t.TempDir()
+	f, err := CreateTemp(dir, "scratch-")
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	name := f.Name()
+	if filepath.Dir(name) != dir || !strings.HasPrefix(filepath.Base(name), "scratch-") || !slices.Contains(Tracked(), name) {
+		t.Fatalf("%s: want a tracked file scratch-* in %s (tracked: %v)", name, dir, Tracked())
+	}
+	Remove(name)
+	if _, err := os.Stat(name); !os.IsNotExist(err) || slices.Contains(Tracked(), name) {
+		t.Errorf("%s after Remove: %v, tracked %v", name, err, slices.Contains(Tracked(), name))
 	}
 }

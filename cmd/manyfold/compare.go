@@ -50,6 +50,13 @@ many rows), so compare runs on files larger than memory. Rows whose target is
 empty are left out. Output: a table on stdout, best first, the winner marked,
 with a one-line reading per column; --json and --report write the result as
 JSON and as a self-contained HTML page.
+
+The verdict: each gain is tested by the corrected resampled t-test over the
+outer folds (Nadeau and Bengio, 2003), given with its 95% interval and
+p-value. The winner is the simplest candidate the test cannot tell from the
+best, and only when it beats the prior; otherwise "no clear winner" (the
+JSON's winner is null). The output ends with the manyfold encode command
+that encodes each column by its winner.
 `
 
 func runCompare(args []string) (err error) {

@@ -187,3 +187,16 @@ func manifestEncodings(t *testing.T, dir string) map[string]string {
 	}
 	return out
 }
+
+// TestCompareHelpStatesVerdict: compare's help says how the verdict is
+// reached (the test, its interval, the winner's rule, null when none) and
+// that the output ends with the encode command.
+func TestCompareHelpStatesVerdict(t *testing.T) {
+	res := runCLI(t, "compare", "--help")
+	help := strings.Join(strings.Fields(res.stdout), " ")
+	for _, want := range []string{"corrected resampled t-test", "95% interval", "p-value", "the simplest candidate the test cannot tell from the best", "only when it beats the prior", `"no clear winner"`, "winner is null", "ends with the manyfold encode command"} {
+		if !strings.Contains(help, want) {
+			t.Errorf("compare's help lacks %q", want)
+		}
+	}
+}

@@ -4,6 +4,7 @@ import (
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
+	"maps"
 	"math"
 	"os"
 	"path/filepath"
@@ -428,4 +429,64 @@ func nestedKeys(v any) []string {
 		}
 	}
 	return out
+}
+
+// TestStrayClasses: a class is flagged as perhaps a stray value only where
+// it may have turned a binary target into a multi-class one: a tiny class
+// beside much larger ones of a target of three classes or more; not the
+// rare positive class of a binary target, nor the classes of a small table.
+func TestStrayClasses(t *testing.T) {
+	cases := []struct {
+		name   string
+		counts map[string]int // rows of each class
+		stray  []string
+	}{
+		{"a stray value", map[string]int{"0": 70, "1": 30, "maybe": 1}, []string{"maybe"}},
+		{"two stray values", map[string]int{"0": 700, "1": 300, "maybe": 2, "n/a": 1}, []string{"maybe", "n/a"}},
+		{"a small table", map[string]int{"0": 2, "1": 2}, nil},
+		{"a small three-class table", map[string]int{"a": 3, "b": 2, "c": 1}, nil},
+		{"a rare positive class", map[string]int{"0": 9995, "1": 5}, nil},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			dir := t.TempDir()
+			var b strings.Builder
+			b.WriteString("route,y\n")
+			i := 0
+			for _, class := range slices.Sorted(maps.Keys(c.counts)) {
+				for range c.counts[class] {
+					fmt.Fprintf(&b, "R%d,%s\n", i%7, class)
+					i++
+				}
+			}
+			in := writeFile(t, dir, "s.csv", b.String())
+			res := mustRun(t, "encode", in, "--target", "y", "--columns", "route", "--folds", "2", "--json", "--out", filepath.Join(dir, "o.csv"), "--tables", filepath.Join(dir, "t"))
+			var doc struct {
+				Classes []struct {
+					Class string `json:"class"`
+					Rows  int    `json:"rows"`
+					Stray bool   `json:"stray"`
+				} `json:"classes"`
+			}
+			if err := json.Unmarshal([]byte(res.stdout), &doc); err != nil {
+				t.Fatal(err)
+			}
+			var stray []string
+			for _, cl := range doc.Classes {
+				if cl.Rows != c.counts[cl.Class] {
+					t.Errorf("class %s: %d rows, want %d", cl.Class, cl.Rows, c.counts[cl.Class])
+				}
+				if cl.Stray {
+					stray = append(stray, cl.Class)
+				}
+			}
+			slices.Sort(stray)
+			if len(doc.Classes) != len(c.counts) || !slices.Equal(stray, c.stray) {
+				t.Errorf("classes %+v: stray %v, want %v", doc.Classes, stray, c.stray)
+			}
+			if got := strings.Count(res.stderr, "a stray value?"); got != len(c.stray) {
+				t.Errorf("summary flags %d classes, want %d: %s", got, len(c.stray), res.stderr)
+			}
+		})
+	}
 }

@@ -12,9 +12,13 @@ type ClassRows struct {
 	Class string  `json:"class"`
 	Rows  int64   `json:"rows"`  // rows of the class
 	Share float64 `json:"share"` // of the rows whose target is known
-	// Stray flags a class of fewer than strayRows rows or under
-	// strayShare of the rows: perhaps a stray value that turned a binary
-	// target into a multi-class one.
+	// Stray flags a class that is perhaps a stray value that turned a
+	// binary target into a multi-class one: of a target of three classes
+	// or more, a class of fewer than strayRows rows or under strayShare
+	// of the rows, with at most 1/strayRatio of the largest class's rows.
+	// Of a binary target no class is flagged (a rare positive class is
+	// what many binary targets have), nor are classes all alike small (a
+	// small table).
 	Stray bool `json:"stray"`
 }
 
@@ -22,6 +26,7 @@ type ClassRows struct {
 const (
 	strayRows  = 10
 	strayShare = 0.001
+	strayRatio = 20
 )
 
 // TargetUsed reports whether the fit read the target: a target is named
@@ -53,13 +58,16 @@ func (m *Model) TargetClasses() []ClassRows {
 	if counts == nil || len(counts) != len(m.Classes) {
 		return nil
 	}
-	var all uint64
+	var all, most uint64
 	for _, n := range counts {
 		all += n
+		most = max(most, n)
 	}
 	out := make([]ClassRows, len(counts))
 	for i, n := range counts {
-		out[i] = ClassRows{Class: m.Classes[i], Rows: int64(n), Stray: n < strayRows || float64(n) < strayShare*float64(all)}
+		small := n < strayRows || float64(n) < strayShare*float64(all)
+		stray := len(counts) > 2 && small && n*strayRatio <= most
+		out[i] = ClassRows{Class: m.Classes[i], Rows: int64(n), Stray: stray}
 		if all > 0 {
 			out[i].Share = float64(n) / float64(all)
 		}

@@ -63,8 +63,8 @@ func runCompare(args []string) (err error) {
 	fs := newFlags("compare", compareUsage)
 	var in inputFlags
 	in.add(fs)
-	target := fs.String("target", "", "target column")
-	columns := fs.StringSlice("columns", nil, "categorical columns to compare, comma separated")
+	target := fs.String("target", "", "target column, or a condition on one that makes a binary target (delay>15)")
+	columns := fs.StringSlice("columns", nil, "categorical columns to compare, comma separated: names, patterns (dest_*, !dest_city) and crosses (origin*destination)")
 	cands := fs.String("candidates", compare.DefaultCandidates, "candidates, comma separated")
 	joint := fs.Bool("joint", false, "also score one model over every column's winning encodings together, against the best column alone")
 	task := fs.String("task", "", "binary, multiclass or regression (default: detected from the target)")

@@ -52,8 +52,8 @@ func runEncode(args []string) (err error) {
 	var in inputFlags
 	in.add(fs)
 	sp := pipeline.DefaultSpec()
-	target := fs.String("target", "", "target column (needed by the target method)")
-	columns := fs.StringSlice("columns", nil, "categorical columns to encode, comma separated")
+	target := fs.String("target", "", "target column, or a condition on one that makes a binary target (delay>15); needed by the target and woe methods")
+	columns := fs.StringSlice("columns", nil, "categorical columns to encode, comma separated: names, patterns (dest_*, !dest_city) and crosses (origin*destination)")
 	methods := fs.String("methods", "target:eb", "encodings, joined by '+' (target:eb+freq), for every column or per column (col=target:eb+freq,col2=topk:6); see above")
 	task := fs.String("task", "", "binary, multiclass or regression (default: detected from the target)")
 	fs.IntVar(&sp.Folds, "folds", 5, "folds for out-of-fold statistics")

@@ -29,7 +29,7 @@ func runScan(args []string) error {
 	fs := newFlags("scan", scanUsage)
 	var in inputFlags
 	in.add(fs)
-	columns := fs.StringSlice("columns", nil, "columns to profile (default: all)")
+	columns := fs.StringSlice("columns", nil, "columns to profile, comma separated: names, patterns (dest_*, !dest_city) and crosses (origin*destination) (default: all)")
 	top := fs.Int("top", 5, "how many of the most frequent levels to list")
 	target := fs.String("target", "", "the target column: left out of the suggestions, named in the encode command")
 	asJSON := fs.Bool("json", false, "print JSON instead of text")

@@ -2,7 +2,6 @@ package main
 
 import (
 	"bufio"
-	"encoding/json"
 	"fmt"
 	"html/template"
 	"io"
@@ -12,6 +11,7 @@ import (
 	"unicode"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/internal/jsonout"
 	"manyfold/io/atomicfile"
 )
 
@@ -75,11 +75,11 @@ func createDriftReports(rep *pipeline.DriftReport, paths []string) ([]atomicfile
 
 // writeDriftJSON writes the report as indented JSON.
 func writeDriftJSON(w io.Writer, rep *pipeline.DriftReport) error {
-	data, err := json.MarshalIndent(rep, "", "  ")
+	data, err := jsonout.Marshal(rep)
 	if err != nil {
 		return err
 	}
-	_, err = w.Write(append(data, '\n'))
+	_, err = w.Write(data)
 	return err
 }
 

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"encoding/json"
 	"fmt"
 	"os"
 	"strings"
@@ -9,6 +8,7 @@ import (
 	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 	"manyfold/internal/cmdline"
+	"manyfold/internal/jsonout"
 	"manyfold/io/derive"
 	"manyfold/io/pqio"
 	"manyfold/io/tableio"
@@ -104,13 +104,16 @@ func runScan(args []string) error {
 		command = cmdline.Encode(file, t, plan)
 	}
 	if *asJSON {
-		enc := json.NewEncoder(os.Stdout)
-		enc.SetIndent("", "  ")
 		doc := map[string]any{"file": file, "columns": profiles, "encode_command": command}
 		if len(nested) > 0 {
 			doc["not_encodable"] = notEncodable(nested)
 		}
-		return enc.Encode(doc)
+		b, err := jsonout.Marshal(doc)
+		if err != nil {
+			return err
+		}
+		_, err = os.Stdout.Write(b)
+		return err
 	}
 	printProfiles(profiles)
 	printNested(nested)

@@ -1,13 +1,12 @@
 package main
 
 import (
-	"bytes"
-	"encoding/json"
 	"math"
 	"os"
 	"time"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/internal/jsonout"
 	"manyfold/io/derive"
 	"manyfold/io/tableio"
 )
@@ -118,13 +117,10 @@ func checkJSONFlag(on bool, out string) error {
 
 // print writes the document to standard output.
 func (d *runJSON) print() error {
-	var b bytes.Buffer
-	enc := json.NewEncoder(&b)
-	enc.SetEscapeHTML(false) // delay>15 as written
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(d); err != nil {
+	b, err := jsonout.Marshal(d)
+	if err != nil {
 		return err
 	}
-	_, err := os.Stdout.Write(b.Bytes())
+	_, err = os.Stdout.Write(b)
 	return err
 }

@@ -1,7 +1,6 @@
 package pipeline
 
 import (
-	"encoding/json"
 	"fmt"
 	"math"
 	"os"
@@ -11,7 +10,6 @@ import (
 	"manyfold/encoders/method"
 	"manyfold/internal/evaluate/metrics"
 	"manyfold/internal/strictjson"
-	"manyfold/io/atomicfile"
 	"manyfold/io/table"
 )
 
@@ -233,19 +231,7 @@ func (s *StagedTables) RecordScores(scores []*Score) error {
 			mf.Columns[i].TrainingScore = &v
 		}
 	}
-	data, err = json.MarshalIndent(mf, "", "  ")
-	if err != nil {
-		return err
-	}
-	f, err := atomicfile.Create(path)
-	if err != nil {
-		return fmt.Errorf("tables: %w", err)
-	}
-	if _, err := f.Write(append(data, '\n')); err != nil {
-		f.Abort()
-		return fmt.Errorf("tables: %w", err)
-	}
-	return f.Commit()
+	return writeManifest(path, &mf)
 }
 
 // newObserver returns the observer of a pass over batches of schema: the

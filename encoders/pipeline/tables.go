@@ -12,6 +12,7 @@ import (
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/method"
+	"manyfold/internal/jsonout"
 	"manyfold/internal/param"
 	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
@@ -273,17 +274,22 @@ func (m *Model) writeTables(dir string) error {
 			}
 		}
 	}
-	data, err := json.MarshalIndent(mf, "", "  ")
+	return writeManifest(filepath.Join(dir, ManifestName), mf)
+}
+
+// writeManifest writes the manifest mf at path, whole or not at all.
+func writeManifest(path string, mf any) error {
+	data, err := jsonout.Marshal(mf)
 	if err != nil {
-		return err
+		return fmt.Errorf("tables: %w", err)
 	}
-	f, err := atomicfile.Create(filepath.Join(dir, ManifestName))
+	f, err := atomicfile.Create(path)
 	if err != nil {
-		return err
+		return fmt.Errorf("tables: %w", err)
 	}
-	if _, err := f.Write(append(data, '\n')); err != nil {
+	if _, err := f.Write(data); err != nil {
 		f.Abort()
-		return err
+		return fmt.Errorf("tables: %w", err)
 	}
 	return f.Commit()
 }

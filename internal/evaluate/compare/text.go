@@ -7,6 +7,8 @@ import (
 	"io"
 	"math"
 	"strings"
+
+	"manyfold/internal/jsonout"
 )
 
 // metricLabel is the display name of a metric.
@@ -129,14 +131,14 @@ func WriteText(w io.Writer, r *Result) error {
 // noCommand ends the text and the report when no column has a winner.
 const noCommand = "no column has a clear winner: no encode command to run"
 
-// WriteJSON writes the result as indented JSON; metrics that are not
+// WriteJSON writes the result as indented JSON (jsonout's form: delay>15
+// as written); metrics that are not
 // finite (an AUC on a fold with one class) are written as null.
 func WriteJSON(w io.Writer, r *Result) error {
-	b, err := json.MarshalIndent(r, "", "  ")
+	b, err := jsonout.Marshal(r)
 	if err != nil {
 		return err
 	}
-	b = append(b, '\n')
 	_, err = w.Write(b)
 	return err
 }

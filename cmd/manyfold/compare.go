@@ -36,7 +36,9 @@ folds; classification targets only). ordered is refused: compare's nested
 folds cannot keep the row order.
 
 Candidates (--candidates, comma separated): prior (baseline: no information
-from the column), target:insample (baseline: the raw level mean fitted on
+from the column; always scored, added when not listed, as the verdict
+measures every gain against it), target:insample (baseline: the raw level
+mean fitted on
 the training rows themselves; it leaks, and is shown so the gap is seen),
 or encodings in encode's grammar (see manyfold encode --help), several
 joined by '+' to feed one model together (target:eb+freq). A column prior

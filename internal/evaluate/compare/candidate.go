@@ -1,6 +1,7 @@
 package compare
 
 import (
+	"slices"
 	"strings"
 
 	"manyfold/encoders/method"
@@ -57,6 +58,18 @@ func ParseCandidates(list string) ([]Candidate, error) {
 		out = append(out, c)
 	}
 	return out, nil
+}
+
+// withPrior returns cands with the prior baseline appended when the list
+// lacks it: the verdict measures every gain against the prior, so without
+// it no column could have a winner.
+func withPrior(cands []Candidate) []Candidate {
+	for _, c := range cands {
+		if c.Baseline == PriorBaseline {
+			return cands
+		}
+	}
+	return append(slices.Clip(cands), Candidate{Name: "prior", Baseline: PriorBaseline})
 }
 
 // ParseCandidate parses one candidate: prior, target:insample, or

@@ -25,7 +25,7 @@ type Options struct {
 	Target     string      // target column
 	Task       string      // "" detects; binary, multiclass or regression
 	Columns    []string    // categorical columns, each compared on its own
-	Candidates []Candidate // nil: DefaultCandidates
+	Candidates []Candidate // nil: DefaultCandidates; the prior is added when missing
 	Folds      int         // outer folds (>= 2)
 	InnerFolds int         // inner folds for the training rows' target statistics (>= 2)
 	Seed       uint64      // fixes the outer, inner and sample assignments
@@ -123,6 +123,7 @@ func Run(r table.Reader, opt Options) (*Result, error) {
 	if opt.Candidates == nil {
 		opt.Candidates, _ = ParseCandidates(DefaultCandidates)
 	}
+	opt.Candidates = withPrior(opt.Candidates)
 	return run(r, opt)
 }
 

@@ -643,3 +643,32 @@ func TestReportWinnerNamedWinner(t *testing.T) {
 		}
 	}
 }
+
+// TestPriorAlwaysScored: a candidate list without the prior gets it, so
+// that the verdict can name a winner (it measures the gain over the prior);
+// the list given is not changed.
+func TestPriorAlwaysScored(t *testing.T) {
+	cands, err := ParseCandidates("target:eb,freq")
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := Run(csvReader(t, verdictCSV(5)), Options{Target: "late", Columns: []string{"a"}, Candidates: cands,
+		Folds: 3, InnerFolds: 2, Seed: 1, NoTimings: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := res.Columns[0]
+	var names []string
+	for _, k := range c.Candidates {
+		names = append(names, k.Name)
+	}
+	if !slices.Equal(names, []string{"target:eb", "freq", "prior"}) || !c.Candidates[2].Baseline {
+		t.Errorf("candidates %v, want target:eb, freq and the prior baseline", names)
+	}
+	if c.Winner == nil || *c.Winner != "target:eb" || c.Verdict.OverPrior == nil {
+		t.Errorf("winner %v, over the prior %+v; reading %q", c.Winner, c.Verdict.OverPrior, c.Reading)
+	}
+	if len(cands) != 2 {
+		t.Errorf("the caller's list grew to %d", len(cands))
+	}
+}

@@ -72,12 +72,22 @@ type Stats struct {
 	// cls: rows of level l in fold f of class c at cell f*C+c
 	// (classification), one byte per cell until a count passes 254 (see
 	// classCells);
-	// cnt, sum, sumSq.row(l)[f]: rows of level l in fold f whose target is
-	// known, the sum and the sum of squares of their target (regression),
-	// 20 bytes per level and fold.
+	// cnt.row(l)[f]: rows of level l in fold f whose target is known
+	// (regression); raw and pool, their exact sums as they are added, and
+	// once sealed sum and sumSq, the sum and the sum of squares of their
+	// target about Origin, rounded, and full, the level's two sums over
+	// all folds (see exact.go): 28 bytes per level and fold, 16 per level,
+	// and the exact sums of the cells of two rows or more.
 	cls        classCells[uint8]
 	cnt        perLevel[uint32]
+	raw        perLevel[float64]
+	pool       []cellSums
 	sum, sumSq perLevel[float64]
+	full       perLevel[float64]
+	// exact: raw and pool hold the cells' exact sums (false for
+	// statistics read back rounded from mapping tables, and for compare's
+	// views); sealed: sum, sumSq and full are set (Seal).
+	exact, sealed bool
 
 	// Origin is, for a regression target, the value its sums are taken
 	// about: the cells hold sum(y - Origin) and sum((y - Origin)^2). A
@@ -100,7 +110,7 @@ type Stats struct {
 
 // New returns empty statistics for k folds.
 func New(task Task, k, classes int, sizeHint int) *Stats {
-	s := &Stats{Task: task, Folds: k, Levels: levels.New(sizeHint)}
+	s := &Stats{Task: task, Folds: k, Levels: levels.New(sizeHint), exact: task == Regression}
 	if task != Regression {
 		s.Classes = classes
 	}
@@ -135,12 +145,16 @@ func (s *Stats) grow(n int) {
 	s.n = n
 	s.rows.grow(n)
 	if s.Task == Regression {
-		s.cnt.width, s.sum.width, s.sumSq.width = s.Folds, s.Folds, s.Folds
 		sh := chunkShift(s.Folds)
-		s.cnt.bits, s.sum.bits, s.sumSq.bits = sh, sh, sh
+		s.cnt.width, s.raw.width = s.Folds, s.Folds
+		s.cnt.bits, s.raw.bits = sh, sh
 		s.cnt.grow(n)
-		s.sum.grow(n)
-		s.sumSq.grow(n)
+		if s.exact {
+			s.raw.grow(n)
+		}
+		if s.sealed {
+			s.growSealed()
+		}
 	} else {
 		if s.cls.width != s.Folds*s.Classes {
 			s.cls = newClassCells[uint8](s.Folds * s.Classes)
@@ -245,16 +259,6 @@ func (s *Stats) AddClass(l, f, c int) {
 	s.cls.inc(l, f*s.Classes+c)
 }
 
-// AddValue counts a row of level l in fold f with numeric target y: its
-// cells add y - Origin and its square.
-func (s *Stats) AddValue(l, f int, y float64) {
-	s.rows.inc(l)
-	s.cnt.row(l)[f]++
-	d := y - s.Origin
-	s.sum.row(l)[f] += d
-	s.sumSq.row(l)[f] += d * d
-}
-
 // SetClass sets the count of class c of level l in fold f (for statistics
 // read back from mapping tables), leaving RowCount(l) as it was.
 func (s *Stats) SetClass(l, f, c int, v uint32) {
@@ -264,8 +268,14 @@ func (s *Stats) SetClass(l, f, c int, v uint32) {
 }
 
 // SetValue sets the row count, target sum and sum of squares of level l in
-// fold f of a regression target, the sums taken about Origin.
+// fold f of a regression target, the sums taken about Origin and rounded
+// (statistics read back from mapping tables, to be applied): the
+// statistics hold no exact sums then, and are sealed.
 func (s *Stats) SetValue(l, f int, n uint32, sum, sumSq float64) {
+	if !s.sealed {
+		s.exact, s.sealed = false, true
+		s.growSealed()
+	}
 	s.cnt.row(l)[f], s.sum.row(l)[f], s.sumSq.row(l)[f] = n, sum, sumSq
 }
 
@@ -493,6 +503,14 @@ func (s *Stats) targetMask(l, o, pos int, use []bool, exclude int) Agg {
 	var a Agg
 	if s.Task == Regression {
 		cnt, sum, sq := s.cnt.row(l), s.sum.row(l), s.sumSq.row(l)
+		if use == nil && exclude < 0 && s.full.chunks != nil {
+			for _, c := range cnt {
+				a.N += float64(c)
+			}
+			full := s.full.row(l)
+			a.Sum, a.SumSq = full[0], full[1]
+			return a
+		}
 		for f := 0; f < s.Folds; f++ {
 			if (use == nil || use[f]) && f != exclude {
 				a.N += float64(cnt[f])
@@ -773,7 +791,9 @@ func fitted(tot Agg, estimated float64, sm Smoothing, origin float64) Fitted {
 
 // Merge adds the statistics of o into s. Both must have the same task and
 // folds; classes are matched by slot, so both must list classes in the same
-// order (see the mapping package, which merges by class label).
+// order (see the mapping package, which merges by class label). A
+// regression target's sums add exactly; s must not be sealed, and is
+// sealed by the caller once every merge is done.
 func (s *Stats) Merge(o *Stats) error {
 	if s.Task != o.Task || s.Folds != o.Folds {
 		return fmt.Errorf("cannot merge %s statistics with %d folds into %s with %d", o.Task, o.Folds, s.Task, s.Folds)
@@ -1193,33 +1213,20 @@ func (s *Stats) Rollup(parent func([]byte) []byte) (*Stats, []int32) {
 		p.rows.add(d, s.rows.get(l))
 		p.addLevel(d, s, l)
 	}
+	if s.sealed {
+		p.Seal()
+	}
 	return p, of
 }
 
 // addLevel adds the per-fold target statistics of level l of o to level d
-// of s (same task and folds; o's classes are the first of s's).
-//
-// For regression, o's sums are taken about o.Origin: when that differs
-// from s.Origin by e, a cell of n rows and sums (S, Q) about o.Origin holds
-// (S + n e, Q + 2 e S + n e^2) about s.Origin (the sums expanded).
+// of s (same task and folds; o's classes are the first of s's). A
+// regression target's cells add exactly (addCell), moved from o.Origin to
+// s.Origin; s must not be sealed.
 func (s *Stats) addLevel(d int, o *Stats, l int) {
 	if s.Task == Regression {
-		dc, ds, dq := s.cnt.row(d), s.sum.row(d), s.sumSq.row(d)
-		oc, os, oq := o.cnt.row(l), o.sum.row(l), o.sumSq.row(l)
-		e := o.Origin - s.Origin
 		for f := 0; f < s.Folds; f++ {
-			dc[f] += oc[f]
-			if e == 0 {
-				ds[f] += os[f]
-				dq[f] += oq[f]
-				continue
-			}
-			n := float64(oc[f])
-			ds[f] += os[f] + n*e
-			// A sum of squares: the expansion's terms can cancel to a
-			// little below 0 by rounding when the values sit at the
-			// receiver's origin.
-			dq[f] = max(dq[f]+oq[f]+2*e*os[f]+n*e*e, 0)
+			s.addCell(d, f, o, l)
 		}
 		return
 	}

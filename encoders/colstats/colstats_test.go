@@ -164,6 +164,7 @@ func TestTargetMask(t *testing.T) {
 				s.AddClass(l, r.f, r.y)
 			}
 		}
+		s.Seal()
 		for ex := -1; ex < 2; ex++ {
 			use := []bool{ex != 0, ex != 1}
 			for l := 0; l < s.NumLevels(); l++ {
@@ -314,6 +315,7 @@ func TestFitFoldsMatchesFit(t *testing.T) {
 					s.AddClass(l, rng.IntN(k), rng.IntN(classes))
 				}
 			}
+			s.Seal()
 			keep := make([]bool, s.NumLevels())
 			for l := range keep {
 				keep[l] = l%5 != 0
@@ -474,7 +476,7 @@ func BenchmarkTableGathers(b *testing.B) {
 // TestMergeMovesOrigin: statistics whose sums are taken about different
 // origins merge into the sums about the receiver's origin, as if every row
 // had been added to it (the expansion of sum((y - a)^k) about another
-// origin, k = 1, 2).
+// origin, k = 1, 2), bit for bit: the sums are exact until sealed.
 func TestMergeMovesOrigin(t *testing.T) {
 	ys := []float64{1e8 + 0.5, 1e8 - 1.25, 1e8 + 2, 1e8 + 0.75, 1e8 - 0.5}
 	whole := New(Regression, 1, 0, 4)
@@ -493,8 +495,10 @@ func TestMergeMovesOrigin(t *testing.T) {
 	if err := a.Merge(b); err != nil {
 		t.Fatal(err)
 	}
+	whole.Seal()
+	a.Seal()
 	want, got := whole.Target(1, 0, -1, 0), a.Target(1, 0, -1, 0)
-	if got.N != want.N || math.Abs(got.Sum-want.Sum) > 1e-9 || math.Abs(got.SumSq-want.SumSq) > 1e-9 {
+	if got != want {
 		t.Errorf("merged statistics about %g = %+v, want %+v", a.Origin, got, want)
 	}
 }
@@ -508,6 +512,7 @@ func TestMemoryLinearInFolds(t *testing.T) {
 	runtime.ReadMemStats(&before)
 	s := New(Regression, 20000, 0, 0)
 	s.AddValue(s.Level([]byte("R1")), 19999, 2.5)
+	s.Seal()
 	if a := s.Target(1, 0, 3, 0); a.N != 1 || a.Sum != 2.5 {
 		t.Fatalf("Target = %+v, want the one row", a)
 	}

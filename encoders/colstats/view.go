@@ -11,9 +11,10 @@ package colstats
 // the methods fit it as they fit k folds (a training row of inner fold g
 // from the groups other than g, a held-out row from all). Each group's
 // sums are added in fold order, so the result does not depend on anything
-// but s and group.
+// but s and group. A regression target's sums are s's rounded ones (s
+// must be sealed), added in floating point: the result has no exact sums.
 func (s *Stats) Collapse(group []int, k int) *Stats {
-	c := &Stats{Task: s.Task, Folds: k, Classes: s.Classes, Levels: s.Levels, Origin: s.Origin}
+	c := &Stats{Task: s.Task, Folds: k, Classes: s.Classes, Levels: s.Levels, Origin: s.Origin, sealed: s.Task == Regression}
 	c.grow(s.n)
 	for l := 0; l < s.n; l++ {
 		if s.Task == Regression {

@@ -3,6 +3,7 @@ package exactsum
 import (
 	"math"
 	"math/big"
+	"math/bits"
 )
 
 // TwoSum returns s = fl(a + b) and its error t, with s + t = a + b exactly
@@ -40,6 +41,9 @@ const (
 // (below 2^-480 or above 2^500 in magnitude) take an arbitrary-precision
 // path, exact too.
 func AddDiff(sum, sq *Sum, y, o float64) {
+	if addDiffInt(sum, sq, y, o) {
+		return
+	}
 	s, t := TwoSum(y, -o)
 	a := math.Abs(s)
 	if a > hugeFactor || (a != 0 && a < tinyFactor) || (t != 0 && math.Abs(t) < tinyFactor) {
@@ -59,6 +63,77 @@ func AddDiff(sum, sq *Sum, y, o float64) {
 		sq.Add(p)
 		sq.Add(e)
 	}
+}
+
+// addDiffInt is AddDiff's common case, in integers: with y = my 2^ey and
+// o = mo 2^eo, y - o = D 2^E exactly for E = min(ey, eo) and D = my
+// 2^(ey-E) - mo 2^(eo-E), and (y - o)^2 = D^2 2^2E; one term is added to
+// each sum. It reports false, adding nothing, when D would pass 94 bits
+// (its square 188), for AddDiff's general path.
+func addDiffInt(sum, sq *Sum, y, o float64) bool {
+	ny, my, ey := split(y)
+	no, mo, eo := split(o)
+	switch {
+	case my == 0 && mo == 0:
+		return true
+	case my == 0:
+		ey = eo
+	case mo == 0:
+		eo = ey
+	}
+	e := min(ey, eo)
+	sy, so := uint(ey-e), uint(eo-e)
+	if sy > 41 || so > 41 { // 53 + 41 = 94 bits
+		return false
+	}
+	// |y| and |o| as 128-bit integers at 2^e; D = y - o, signed.
+	yl, yh := my<<sy, my>>(64-sy)
+	ol, oh := mo<<so, mo>>(64-so)
+	if sy == 0 {
+		yh = 0
+	}
+	if so == 0 {
+		oh = 0
+	}
+	if ny {
+		yl, yh = neg2(yl, yh)
+	}
+	if !no { // subtract o
+		ol, oh = neg2(ol, oh)
+	}
+	var c uint64
+	dl, c := bits.Add64(yl, ol, 0)
+	dh, _ := bits.Add64(yh, oh, c)
+	neg := int64(dh) < 0
+	if neg {
+		dl, dh = neg2(dl, dh)
+	}
+	if dl|dh == 0 {
+		return true
+	}
+	if bits.Len64(dh) > 30 {
+		return false
+	}
+	// D^2 = dl^2 + 2 dl dh 2^64 + dh^2 2^128.
+	h1, l1 := bits.Mul64(dl, dl)
+	h2, l2 := bits.Mul64(dl, dh)
+	h2, l2 = h2<<1|l2>>63, l2<<1
+	var q [3]uint64
+	q[0] = l1
+	q[1], c = bits.Add64(h1, l2, 0)
+	q[2] = h2 + dh*dh + c
+	d := [3]uint64{dl, dh}
+	sum.addInt(neg, d, bitLen(d), e)
+	sq.addInt(false, q, bitLen(q), 2*e)
+	return true
+}
+
+// neg2 returns the two's complement negation of the 128-bit (lo, hi).
+func neg2(lo, hi uint64) (uint64, uint64) {
+	var b uint64
+	lo, b = bits.Sub64(0, lo, 0)
+	hi, _ = bits.Sub64(0, hi, b)
+	return lo, hi
 }
 
 // addDiffBig is AddDiff in arbitrary precision.

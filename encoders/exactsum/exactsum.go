@@ -68,34 +68,54 @@ func (s *Sum) Add(x float64) {
 	if m == 0 {
 		return
 	}
-	// The common case, inline: the term lies at or above the sum's last
-	// bit, within the headroom, and the sum is below 2^188 (its top word
-	// within ±2^60).
-	up := e - s.exp
-	top := int64(s.w[2])
-	if s.big == nil && up >= 0 && int(up)+bits.Len64(m) <= headroom && top < 1<<60 && top >= -1<<60 && !isZero(s.w) {
-		var t [3]uint64
-		r := uint(up) % 64
-		switch up / 64 {
-		case 0:
-			t[0], t[1] = m<<r, m>>(64-r)
-		case 1:
-			t[1], t[2] = m<<r, m>>(64-r)
-		default:
-			t[2] = m << r
+	// The common cases, inline: the sum is below 2^188 (its top word
+	// within ±2^60) and the term fits beside it, at or above its last bit
+	// or after shifting the sum up to the term's.
+	if top := int64(s.w[2]); s.big == nil && top < 1<<60 && top >= -1<<60 {
+		if isZero(s.w) {
+			s.w, s.exp = signed(neg, [3]uint64{m}), e
+			return
 		}
-		if neg {
-			s.w = sub(s.w, t)
-		} else {
-			s.w = add(s.w, t)
+		up := e - s.exp
+		if up < 0 && bitLen(abs(s.w))-int(up) <= headroom {
+			s.w = shl(s.w, uint(-up))
+			s.exp, up = e, 0
 		}
-		return
+		if up >= 0 && int(up)+bits.Len64(m) <= headroom {
+			var t [3]uint64
+			r := uint(up) % 64
+			switch up / 64 {
+			case 0:
+				t[0], t[1] = m<<r, m>>(64-r)
+			case 1:
+				t[1], t[2] = m<<r, m>>(64-r)
+			default:
+				t[2] = m << r
+			}
+			s.w = addSigned(s.w, t, neg)
+			return
+		}
 	}
 	s.addInt(neg, [3]uint64{m}, bits.Len64(m), e)
 }
 
 // addInt adds (-1)^neg * mag * 2^e, where mag has at most nb bits.
 func (s *Sum) addInt(neg bool, mag [3]uint64, nb int, e int32) {
+	if top := int64(s.w[2]); s.big == nil && top < 1<<60 && top >= -1<<60 {
+		if isZero(s.w) && nb <= headroom {
+			s.w, s.exp = signed(neg, mag), e
+			return
+		}
+		up := e - s.exp
+		if up < 0 && bitLen(abs(s.w))-int(up) <= headroom {
+			s.w = shl(s.w, uint(-up))
+			s.exp, up = e, 0
+		}
+		if up >= 0 && int(up)+nb <= headroom {
+			s.w = addSigned(s.w, shl(mag, uint(up)), neg)
+			return
+		}
+	}
 	if s.big != nil {
 		s.addBig(neg, toBig(mag), e)
 		return
@@ -339,15 +359,31 @@ func bitLen(w [3]uint64) int {
 	return bits.Len64(w[0])
 }
 
+// shl returns w shifted left by n bits (n < 192), without branches on n:
+// each result word is read from w padded with zero words below.
 func shl(w [3]uint64, n uint) [3]uint64 {
-	for n >= 64 {
-		w = [3]uint64{0, w[0], w[1]}
-		n -= 64
+	x := [6]uint64{0, 0, 0, w[0], w[1], w[2]} // x[3+i] = w[i]
+	k, r := n/64%3, n%64
+	return [3]uint64{
+		x[3-k]<<r | x[2-k]>>(64-r),
+		x[4-k]<<r | x[3-k]>>(64-r),
+		x[5-k]<<r | x[4-k]>>(64-r),
 	}
-	if n == 0 {
-		return w
+}
+
+// addSigned returns a + t, or a - t if neg, with the sign applied without
+// a branch (two's complement: a + (t XOR -1) + 1).
+func addSigned(a, t [3]uint64, neg bool) [3]uint64 {
+	var m uint64
+	if neg {
+		m = ^uint64(0)
 	}
-	return [3]uint64{w[0] << n, w[1]<<n | w[0]>>(64-n), w[2]<<n | w[1]>>(64-n)}
+	var c uint64
+	var r [3]uint64
+	r[0], c = bits.Add64(a[0], t[0]^m, m&1)
+	r[1], c = bits.Add64(a[1], t[1]^m, c)
+	r[2], _ = bits.Add64(a[2], t[2]^m, c)
+	return r
 }
 
 func shr(w [3]uint64, n uint) [3]uint64 {

@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/big"
 	"math/rand/v2"
+	"strconv"
 	"testing"
 )
 
@@ -229,5 +230,71 @@ func BenchmarkAddDiff(b *testing.B) {
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		AddDiff(&s, &q, ys[i&4095], ys[0])
+	}
+}
+
+func TestTextRoundTrip(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 12))
+	for name, xs := range termSets(rng) {
+		var s Sum
+		for _, x := range xs {
+			s.Add(x)
+		}
+		txt := string(s.AppendText(nil))
+		var d Sum
+		if err := d.ParseText(txt); err != nil {
+			t.Fatalf("%s: %q: %v", name, txt, err)
+		}
+		if !d.Equal(&s) || string(d.AppendText(nil)) != txt {
+			t.Errorf("%s: %q does not round-trip", name, txt)
+		}
+		// The text is a hexadecimal floating-point literal: parsed as a
+		// float64 by strconv (the standard library) it rounds as Float64.
+		if f, err := strconv.ParseFloat(txt, 64); err == nil && f != s.Float64() {
+			t.Errorf("%s: %q parses as %v, Float64 gives %v", name, txt, f, s.Float64())
+		}
+	}
+	var s Sum
+	s.Add(12.375)
+	if got := string(s.AppendText(nil)); got != "0x63p-3" {
+		t.Errorf("12.375 is %q, want 0x63p-3 (99/8)", got)
+	}
+	for _, bad := range []string{"", "0x", "0x0p1", "0x2p1", "0X1p1", "0x1P1", "0x1p+1", "0x1p01", "-0", "0x1", "0xAp1", "1p1", "0x1p99999", "0x1p-0"} {
+		var d Sum
+		if err := d.ParseText(bad); err == nil {
+			t.Errorf("%q parsed", bad)
+		}
+	}
+}
+
+// FuzzParseText: any text either parses to a value whose text is the same,
+// or is refused; never a panic.
+func FuzzParseText(f *testing.F) {
+	for _, s := range []string{"0", "0x63p-3", "-0x1p-1074", "0x1fffffffffffffp971"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		var d Sum
+		if err := d.ParseText(s); err != nil {
+			return
+		}
+		if got := string(d.AppendText(nil)); got != s {
+			t.Fatalf("%q re-formats as %q", s, got)
+		}
+	})
+}
+
+// BenchmarkAdd: one exact addition of a price in cents (go test -run '^$'
+// -bench 'Add$' ./encoders/exactsum).
+func BenchmarkAdd(b *testing.B) {
+	rng := rand.New(rand.NewPCG(9, 10))
+	ys := make([]float64, 4096)
+	for i := range ys {
+		ys[i] = float64(rng.IntN(1000000)) / 100
+	}
+	var s Sum
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		s.Add(ys[i&4095])
 	}
 }

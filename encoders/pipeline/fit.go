@@ -32,6 +32,9 @@ type Model struct {
 	Cols   []*Col
 
 	threads int // FitOptions.Threads: mapping tables written at once
+	// exact: loading keeps a regression target's exact sums from the
+	// tables (LoadTables, for Merge); apply reads the rounded ones only.
+	exact bool
 }
 
 // Col is the fitted state of one encoded column.
@@ -407,6 +410,11 @@ func (f *fitter) finish() (*Model, error) {
 		m.Task = colstats.Binary // no target: only unsupervised methods
 	case f.task == colstats.Regression:
 		m.Task = colstats.Regression
+		each(len(all), opt.Threads, func(i int) {
+			if all[i].supervised {
+				all[i].St.Seal() // the exact cell sums rounded, once
+			}
+		})
 	default:
 		labels, pos := sortedClasses(tr.order, tr.numeric)
 		m.Classes = labels

@@ -8,12 +8,14 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 
 	"github.com/cespare/xxhash/v2"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/exactsum"
 	"manyfold/encoders/method"
 	"manyfold/folds"
 	"manyfold/internal/strictjson"
@@ -34,33 +36,43 @@ const maxManifestBytes = 64 << 20
 // path, no symbolic link), with the checksum the manifest records, the
 // columns and types the fit implies and values within their domains. Any
 // other directory gives a ManifestError naming the field or file.
+//
+// LoadTables keeps a regression target's exact sums (the tables'
+// target_sum_exact and target_sumsq_exact, each checked against its
+// rounded value), which Merge needs to add them bit for bit; tables
+// written before they existed give their rounded sums, added as if exact.
 func LoadTables(dir string) (*Model, error) {
-	m, _, err := LoadTablesManifest(dir)
-	return m, err
+	mf, err := readManifest(dir)
+	if err != nil {
+		return nil, err
+	}
+	return loadChecked(dir, mf, true)
 }
 
-// LoadTablesManifest is LoadTables, and returns the manifest it read and
-// checked too (what a model does not keep, such as each column's
-// TrainingScore).
+// LoadTablesManifest is LoadTables for apply: it returns the manifest it
+// read and checked too (what a model does not keep, such as each column's
+// TrainingScore), and keeps only the rounded sums of a regression target
+// (a table's exact sums are checked for their type, not read).
 func LoadTablesManifest(dir string) (*Model, *Manifest, error) {
 	mf, err := readManifest(dir)
 	if err != nil {
 		return nil, nil, err
 	}
-	m, err := loadChecked(dir, mf)
+	m, err := loadChecked(dir, mf, false)
 	if err != nil {
 		return nil, nil, err
 	}
 	return m, mf, nil
 }
 
-// loadChecked checks the manifest mf of dir and loads the tables it lists.
-func loadChecked(dir string, mf *Manifest) (*Model, error) {
+// loadChecked checks the manifest mf of dir and loads the tables it lists,
+// with a regression target's exact sums if exact.
+func loadChecked(dir string, mf *Manifest, exact bool) (*Model, error) {
 	sp, err := mf.check()
 	if err != nil {
 		return nil, &ManifestError{Dir: dir, Msg: ManifestName + ": " + err.Error()}
 	}
-	m := &Model{Spec: sp, Classes: mf.Classes, Rows: mf.Rows, Missing: mf.Missing, Origin: mf.Origin}
+	m := &Model{Spec: sp, Classes: mf.Classes, Rows: mf.Rows, Missing: mf.Missing, Origin: mf.Origin, exact: exact}
 	if math.IsNaN(m.Origin) || math.IsInf(m.Origin, 0) || (m.Origin != 0 && mf.Task != colstats.Regression.String()) {
 		return nil, &ManifestError{Dir: dir, Msg: ManifestName + fmt.Sprintf(": target_origin %g: want a finite number, and 0 unless the task is regression", m.Origin)}
 	}
@@ -587,6 +599,20 @@ func (m *Model) loadTable(dir, name, sum string, c *Col, parent bool, stored int
 		return bad("%v", err)
 	}
 	got := r.Schema()
+	exact := -1 // the column of target_sum_exact, if the table has it
+	if i := want.Index("target_sum_exact"); i >= 0 {
+		if got.Index("target_sum_exact") < 0 {
+			// A table written before the exact sums: rounded sums only.
+			want.Fields = slices.Delete(want.Fields, i, i+2)
+			for k := range encs {
+				if encs[k][1] > i {
+					encs[k][0], encs[k][1] = encs[k][0]-2, encs[k][1]-2
+				}
+			}
+		} else {
+			exact = i
+		}
+	}
 	if len(got.Fields) != len(want.Fields) {
 		return bad("table has %d columns, the manifest implies %d", len(got.Fields), len(want.Fields))
 	}
@@ -604,7 +630,7 @@ func (m *Model) loadTable(dir, name, sum string, c *Col, parent bool, stored int
 	if parent {
 		of = c.Parent
 	}
-	tl := tableLoad{m: m, c: of, fits: c.Fits, encs: encs, parent: parent, nested: !parent && c.nest != nil && of.info.Supervised, names: want.Fields}
+	tl := tableLoad{m: m, c: of, fits: c.Fits, encs: encs, parent: parent, nested: !parent && c.nest != nil && of.info.Supervised, names: want.Fields, exact: exact >= 0}
 	if err := table.ForEach(r, tl.batch); err != nil {
 		var me *ManifestError
 		if errors.As(err, &me) {
@@ -619,6 +645,7 @@ func (m *Model) loadTable(dir, name, sum string, c *Col, parent bool, stored int
 	if tl.nested {
 		c.nest = tl.parentRow
 	}
+	of.St.Seal() // the exact sums read for a merge
 	of.rowSlots = tl.slots
 	of.total = float64(tl.total)
 	of.info.Keep, of.info.Total, of.info.Distinct = of.Keep, of.total, of.distinct()
@@ -641,6 +668,7 @@ type tableLoad struct {
 	total     uint64  // fitting rows of the levels read
 	null      bool    // the null level was read
 	kept      int     // levels read that count as seen
+	exact     bool    // the table has a regression target's exact sums
 }
 
 // batch loads the rows of one batch.
@@ -648,8 +676,14 @@ func (tl *tableLoad) batch(b *table.Batch) error {
 	for k := 1; k < len(b.Cols); k++ {
 		col := &b.Cols[k]
 		form := table.FormFloat64
-		if tl.names[k].Kind == table.Int64 {
+		switch tl.names[k].Kind {
+		case table.Int64:
 			form = table.FormInt64
+		case table.String:
+			form = table.FormText
+			if col.Form == table.FormDict {
+				form = table.FormDict
+			}
 		}
 		if col.Form != form || col.Len() < b.Rows {
 			return tl.errf(0, "column %q does not hold %d values of type %s", tl.names[k].Name, b.Rows, tl.names[k].Kind)
@@ -697,6 +731,23 @@ func (tl *tableLoad) errf(i int, format string, a ...any) error {
 	return &ManifestError{Msg: fmt.Sprintf("row %d: ", tl.row+int64(i)+1) + fmt.Sprintf(format, a...)}
 }
 
+// exactSums reads the exact sums of level l (row i) from their text, each
+// of which must round to the sum stored beside it.
+func (tl *tableLoad) exactSums(l int, n uint32, sum, sumSq float64, sumText, sqText []byte, i int) error {
+	var s, q exactsum.Sum
+	if err := s.ParseText(string(sumText)); err != nil {
+		return tl.errf(i, "target_sum_exact %.40q: %v", sumText, err)
+	}
+	if err := q.ParseText(string(sqText)); err != nil {
+		return tl.errf(i, "target_sumsq_exact %.40q: %v", sqText, err)
+	}
+	if math.Float64bits(s.Float64()) != math.Float64bits(sum) || math.Float64bits(q.Float64()) != math.Float64bits(sumSq) || q.Float64() < 0 {
+		return tl.errf(i, "target_sum_exact and target_sumsq_exact round to %g and %g, not to target_sum %g and target_sumsq %g", s.Float64(), q.Float64(), sum, sumSq)
+	}
+	tl.c.St.SetExact(l, 0, n, &s, &q)
+	return nil
+}
+
 // level loads the level and the statistics of row i of b.
 func (tl *tableLoad) level(b *table.Batch, i int) error {
 	m, c, st := tl.m, tl.c, tl.c.St
@@ -738,7 +789,15 @@ func (tl *tableLoad) level(b *table.Batch, i int) error {
 			if math.IsNaN(sum) || math.IsInf(sum, 0) || !(sumSq >= 0) || math.IsInf(sumSq, 0) {
 				return tl.errf(i, "target_sum %g, target_sumsq %g: want finite sums, of squares at least 0", sum, sumSq)
 			}
-			st.SetValue(l, 0, uint32(tn), sum, sumSq)
+			if !tl.exact || !m.exact {
+				if tl.exact {
+					next()
+					next()
+				}
+				st.SetValue(l, 0, uint32(tn), sum, sumSq)
+			} else if err := tl.exactSums(l, uint32(tn), sum, sumSq, next().Bytes(i), next().Bytes(i), i); err != nil {
+				return err
+			}
 		} else {
 			var all int64
 			for cl := range m.Classes {

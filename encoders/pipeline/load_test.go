@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"syscall"
 	"testing"
@@ -217,6 +218,12 @@ func parquetTable(fields ...table.Field) func(t *testing.T, path string) {
 // rewriteTable reads the first column's table, lets f change its batches,
 // and writes it back (with its checksum in the manifest).
 func rewriteTable(f func(b *table.Batch)) func(t *testing.T, dir string) {
+	return rewriteTableSchema(nil, f)
+}
+
+// rewriteTableSchema is rewriteTable that may change the schema too (fs,
+// nil: none) before the batches are written.
+func rewriteTableSchema(fs func(s *table.Schema), f func(b *table.Batch)) func(t *testing.T, dir string) {
 	return replaceTable(func(t *testing.T, path string) {
 		t.Helper()
 		r, err := tableio.Open(path, tableio.ReadOptions{})
@@ -250,6 +257,9 @@ func rewriteTable(f func(b *table.Batch)) func(t *testing.T, dir string) {
 		r.Close()
 		for _, b := range batches {
 			f(b)
+		}
+		if fs != nil {
+			fs(&s)
 		}
 		os.Remove(path)
 		out, err := tableio.Create(path, &s, tableio.WriteOptions{Format: tableio.Parquet})
@@ -466,6 +476,14 @@ func TestLoadDamagedTables(t *testing.T) {
 		{"counts above the rows", nil, rewriteTable(func(b *table.Batch) { b.Cols[3].Ints[1] += 100 }), []string{"01-pc.parquet"}},
 		{"tmean not a rate", nil, rewriteTable(func(b *table.Batch) { b.Cols[5].Floats[1] = 7 }), []string{"01-pc.parquet", "tmean"}},
 		{"freq negative", nil, rewriteTable(func(b *table.Batch) { b.Cols[6].Floats[1] = -1 }), []string{"01-pc.parquet", "freq"}},
+		// A regression target's table: level, rows, target_rows, target_sum,
+		// target_sumsq, target_sum_exact, target_sumsq_exact, ...
+		{"exact sum not the rounded one", regressionSpec, rewriteTable(func(b *table.Batch) { setText(&b.Cols[5], b.Rows, 1, "0x1p-20") }),
+			[]string{"01-pc.parquet", "row 2", "target_sum_exact"}},
+		{"exact sum not canonical", regressionSpec, rewriteTable(func(b *table.Batch) { setText(&b.Cols[6], b.Rows, 1, "0x2p0") }),
+			[]string{"01-pc.parquet", "row 2", "target_sumsq_exact", "0x2p0"}},
+		{"exact sum too long", regressionSpec, rewriteTable(func(b *table.Batch) { setText(&b.Cols[5], b.Rows, 1, "0x"+strings.Repeat("f", 5000)+"p0") }),
+			[]string{"01-pc.parquet", "target_sum_exact"}},
 		{"parent path", nil, setCol("table", "../01-pc.parquet"), []string{"columns[0].table", "plain file name"}},
 		{"absolute path", nil, func(t *testing.T, dir string) {
 			edit(func(m map[string]any) { column(m, 0)["table"] = target(dir) })(t, dir)
@@ -505,6 +523,49 @@ func TestLoadDamagedTables(t *testing.T) {
 		}, []string{ManifestName, "bytes"}},
 	}
 	runLoadCases(t, cases)
+}
+
+// regressionSpec is the loader's job with the numeric target weight.
+func regressionSpec(tb testing.TB) Spec {
+	sp := planSpec(tb, "target:eb+freq")
+	sp.Target = "weight"
+	return sp
+}
+
+// TestLoadWithoutExactSums: a regression target's tables written before
+// they carried exact sums (no target_sum_exact, target_sumsq_exact) still
+// load, for apply and for a merge, with their rounded sums.
+func TestLoadWithoutExactSums(t *testing.T) {
+	dir := fitTablesDir(t, regressionSpec(t))
+	whole, err := LoadTables(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rewriteTableSchema(func(s *table.Schema) {
+		if s.Fields[5].Name != "target_sum_exact" || s.Fields[6].Name != "target_sumsq_exact" {
+			t.Fatalf("fields %v", s.Names())
+		}
+		s.Fields = slices.Delete(s.Fields, 5, 7)
+	}, func(b *table.Batch) { b.Cols = slices.Delete(b.Cols, 5, 7) })(t, dir)
+	old, _, err := LoadTablesManifest(dir)
+	if err != nil {
+		t.Fatalf("apply's load: %v", err)
+	}
+	oldExact, err := LoadTables(dir)
+	if err != nil {
+		t.Fatalf("merge's load: %v", err)
+	}
+	for l := 0; l < whole.Cols[0].St.NumLevels(); l++ {
+		want := whole.Cols[0].St.Target(l, 0, -1, 0)
+		for _, m := range []*Model{old, oldExact} {
+			if got := m.Cols[0].St.Target(l, 0, -1, 0); got != want {
+				t.Errorf("level %d: %+v, want %+v", l, got, want)
+			}
+		}
+	}
+	if _, err := Merge([]*Model{oldExact, oldExact}, []string{dir, dir}, 0); err != nil {
+		t.Fatalf("merge: %v", err)
+	}
 }
 
 // TestLoadParentTables checks the hierarchical prior's tables: a parent

@@ -14,10 +14,10 @@ import (
 // per-level statistics add (colstats.Stats.Merge), and every derived value
 // (prior, smoothing weight, frequency, top-k code, hierarchical parents) is
 // computed again from the sums. The result equals the tables fitted on the
-// whole table when the shards kept every level (--min-level-rows 0); target
-// sums of a regression target may differ in the last bits, since floating
-// point addition depends on order. minRows applies --min-level-rows to the
-// merged tables.
+// whole table when the shards kept every level (--min-level-rows 0), bit
+// for bit: a regression target's sums add exactly (the tables carry them,
+// encoders/exactsum). minRows applies --min-level-rows to the merged
+// tables.
 func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 	base := models[0]
 	out := &Model{Spec: base.Spec, Input: base.Input, Task: base.Task, Classes: base.Classes, Pos: base.Pos, Origin: base.Origin}
@@ -45,6 +45,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 				return nil, err
 			}
 		}
+		st.Seal()
 		c := &Col{Name: bc.Name, Kind: bc.Kind, Index: bc.Index, St: st, supervised: supervised}
 		prior := base.Spec.prior(ci)
 		if prior.Prefix > 0 && supervised {
@@ -58,6 +59,7 @@ func Merge(models []*Model, names []string, minRows uint64) (*Model, error) {
 					return nil, err
 				}
 			}
+			ps.Seal()
 			c.Parent = &Col{Name: prior.Column, St: ps, supervised: true}
 			var shards []*Col
 			for _, m := range models {

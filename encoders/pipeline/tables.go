@@ -325,6 +325,8 @@ func (m *Model) tableSchema(c *Col, parent bool) (s *table.Schema, encs [][2]int
 		if m.Task == colstats.Regression {
 			add("target_sum", table.Float64)
 			add("target_sumsq", table.Float64)
+			add("target_sum_exact", table.String)
+			add("target_sumsq_exact", table.String)
 		} else {
 			for _, cl := range m.Classes {
 				add("count_"+cl, table.Int64)
@@ -411,6 +413,7 @@ func (m *Model) saveCol(path string, c *Col, parent bool) error {
 	const chunk = 1 << 16
 	b := &table.Batch{Cols: make([]table.Column, len(schema.Fields))}
 	var lv method.Levels
+	var exact [2]table.Column
 	for start := 0; start < len(order); start += chunk {
 		m.gatherLevels(of, order[start:min(start+chunk, len(order))], &lv)
 		n := len(lv.Slots)
@@ -432,6 +435,9 @@ func (m *Model) saveCol(path string, c *Col, parent bool) error {
 			if m.Task == colstats.Regression {
 				putFloats(lv.Sum)
 				putFloats(lv.SumSq)
+				exactTexts(of.St, lv.Slots, exact[:])
+				b.Cols[j], b.Cols[j+1] = exact[0], exact[1]
+				j += 2
 			} else {
 				for _, cnt := range lv.Counts {
 					putInts(cnt)
@@ -460,6 +466,23 @@ func (m *Model) saveCol(path string, c *Col, parent bool) error {
 		}
 	}
 	return out.Commit()
+}
+
+// exactTexts sets cols to the exact target sums of the level slots, about
+// the origin, in exactsum's text form: target_sum_exact and
+// target_sumsq_exact, which a merge adds bit for bit.
+func exactTexts(st *colstats.Stats, slots []int, cols []table.Column) {
+	for k := range cols {
+		c := &cols[k]
+		c.Form, c.Data, c.Offsets, c.Nulls = table.FormText, c.Data[:0], append(c.Offsets[:0], 0), nil
+	}
+	for _, l := range slots {
+		s, q := st.ExactTarget(l)
+		cols[0].Data = s.AppendText(cols[0].Data)
+		cols[0].Offsets = append(cols[0].Offsets, int32(len(cols[0].Data)))
+		cols[1].Data = q.AppendText(cols[1].Data)
+		cols[1].Offsets = append(cols[1].Offsets, int32(len(cols[1].Data)))
+	}
 }
 
 // gatherLevels fills lv with the levels of c among the slots rows (in

@@ -391,6 +391,9 @@ func run(r table.Reader, opt Options) (*Result, error) {
 	ev := &evaluator{opt: opt, smp: smp, ko: ko, ki: ki}
 	if targets.Regression() {
 		ev.task = colstats.Regression
+		for _, st := range sts {
+			st.Seal() // the exact cell sums rounded, once
+		}
 	} else {
 		labels, perm := targets.Classes()
 		if len(labels) < 2 {

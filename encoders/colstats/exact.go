@@ -1,0 +1,201 @@
+package colstats
+
+import (
+	"math"
+
+	"manyfold/encoders/exactsum"
+)
+
+// A regression target's cells are summed exactly (encoders/exactsum), so
+// that they do not depend on the order of the rows: a table cut into
+// shards, fitted shard by shard and merged, gives the same bits as the
+// whole table read once. Each cell holds sum(y - Origin) and
+// sum((y - Origin)^2) as exact values, rounded once when the pass ends
+// (Seal), to the nearest float64.
+//
+// While rows are added, a cell keeps its row count (cnt) and one float64
+// (raw): the row's target itself while the cell has one row, which is
+// exact as it is; from the second row on, the index of its exact sums in
+// pool, boxed in the payload of a NaN (a target is never NaN). A nearly
+// unique id column thus costs 8 bytes more a cell, and only cells of two
+// rows or more cost their exact sums (about 80 bytes).
+//
+// Seal rounds every cell into sum and sumSq (what Target and the fits
+// read), and each level's total over the folds, rounded from its exact
+// value too, into full: the full-data statistic of a level is the same
+// whether the level's rows were counted in one pass or merged from
+// shards, which a sum of its rounded fold cells would not be.
+
+// cellSums are the exact sums of a cell of two rows or more.
+type cellSums struct{ sum, sq exactsum.Sum }
+
+const (
+	boxTag  = 0x7ff8_0000_0000_0000 // a quiet NaN
+	boxMask = 1<<51 - 1
+)
+
+func box(i int) float64        { return math.Float64frombits(boxTag | uint64(i)) }
+func isBox(v float64) bool     { return v != v }
+func unbox(v float64) int      { return int(math.Float64bits(v) & boxMask) }
+func (s *Stats) cellPool() int { s.pool = append(s.pool, cellSums{}); return len(s.pool) - 1 }
+
+// pooled returns the exact sums of cell (l, f), moving a cell of one row
+// (or none) into the pool first.
+func (s *Stats) pooled(l, f int) *cellSums {
+	r := &s.raw.row(l)[f]
+	if isBox(*r) {
+		return &s.pool[unbox(*r)]
+	}
+	i := s.cellPool()
+	if s.cnt.row(l)[f] > 0 {
+		p := &s.pool[i]
+		exactsum.AddDiff(&p.sum, &p.sq, *r, s.Origin)
+	}
+	*r = box(i)
+	return &s.pool[i]
+}
+
+// AddValue counts a row of level l in fold f with numeric target y: its
+// cell adds y - Origin and its square, exactly. Origin must be set before
+// the first row, and the statistics not yet sealed.
+func (s *Stats) AddValue(l, f int, y float64) {
+	s.rows.inc(l)
+	c := &s.cnt.row(l)[f]
+	if *c == 0 && !isBox(s.raw.row(l)[f]) {
+		s.raw.row(l)[f] = y
+	} else {
+		p := s.pooled(l, f)
+		exactsum.AddDiff(&p.sum, &p.sq, y, s.Origin)
+	}
+	*c++
+}
+
+// SetExact sets the cell of level l in fold f of a regression target to n
+// rows whose exact sums about Origin are sum and sq (statistics read back
+// from mapping tables, to be merged), leaving RowCount(l) as it was.
+func (s *Stats) SetExact(l, f int, n uint32, sum, sq *exactsum.Sum) {
+	p := s.pooled(l, f)
+	p.sum.Set(sum)
+	p.sq.Set(sq)
+	s.cnt.row(l)[f] = n
+}
+
+// addCell adds to cell (l, f) of s the cell (ol, f) of o, exactly; o's
+// sums are about o.Origin and are moved to s.Origin (exactsum.Recenter).
+// Statistics without exact sums (read back rounded) add their rounded
+// sums as if exact.
+func (s *Stats) addCell(l, f int, o *Stats, ol int) {
+	n := o.cnt.row(ol)[f]
+	if n == 0 {
+		return
+	}
+	var src cellSums
+	switch {
+	case !o.exact:
+		src.sum.Add(o.sum.row(ol)[f])
+		src.sq.Add(o.sumSq.row(ol)[f])
+	case !isBox(o.raw.row(ol)[f]):
+		y := o.raw.row(ol)[f]
+		if s.cnt.row(l)[f] == 0 && !isBox(s.raw.row(l)[f]) {
+			s.raw.row(l)[f] = y // one row: the target itself
+			s.cnt.row(l)[f] = 1
+			return
+		}
+		exactsum.AddDiff(&src.sum, &src.sq, y, s.Origin)
+		p := s.pooled(l, f)
+		p.sum.AddSum(&src.sum)
+		p.sq.AddSum(&src.sq)
+		s.cnt.row(l)[f] += n
+		return
+	default:
+		op := &o.pool[unbox(o.raw.row(ol)[f])]
+		src.sum.Set(&op.sum)
+		src.sq.Set(&op.sq)
+	}
+	exactsum.Recenter(uint64(n), &src.sum, &src.sq, o.Origin, s.Origin)
+	p := s.pooled(l, f)
+	p.sum.AddSum(&src.sum)
+	p.sq.AddSum(&src.sq)
+	s.cnt.row(l)[f] += n
+}
+
+// exactCell adds the exact sums of cell (l, f) to sum and sq.
+func (s *Stats) exactCell(l, f int, sum, sq *exactsum.Sum) {
+	if s.cnt.row(l)[f] == 0 {
+		return
+	}
+	if !s.exact {
+		sum.Add(s.sum.row(l)[f])
+		sq.Add(s.sumSq.row(l)[f])
+		return
+	}
+	r := s.raw.row(l)[f]
+	if !isBox(r) {
+		exactsum.AddDiff(sum, sq, r, s.Origin)
+		return
+	}
+	p := &s.pool[unbox(r)]
+	sum.AddSum(&p.sum)
+	sq.AddSum(&p.sq)
+}
+
+// ExactTarget returns the exact sums about Origin of the target of level
+// l over all folds: what a mapping table records beside the rounded ones.
+func (s *Stats) ExactTarget(l int) (sum, sq exactsum.Sum) {
+	for f := 0; f < s.Folds; f++ {
+		s.exactCell(l, f, &sum, &sq)
+	}
+	return sum, sq
+}
+
+// Seal ends the adding of a regression target's rows: every cell's exact
+// sums are rounded into the sums Target and the fits read, and each
+// level's total over the folds is rounded from its exact value. Later
+// rows cannot be added; merges and roll-ups still read the exact sums. A
+// no-op for classification and for sealed statistics.
+func (s *Stats) Seal() {
+	if s.Task != Regression || s.sealed {
+		return
+	}
+	s.sealed = true
+	s.growSealed()
+	for l := 0; l < s.n; l++ {
+		cnt, raw := s.cnt.row(l), s.raw.row(l)
+		sum, sq, full := s.sum.row(l), s.sumSq.row(l), s.full.row(l)
+		cells, last := 0, 0
+		for f := range cnt {
+			if cnt[f] == 0 {
+				continue
+			}
+			cells, last = cells+1, f
+			if isBox(raw[f]) {
+				p := &s.pool[unbox(raw[f])]
+				sum[f], sq[f] = p.sum.Float64(), p.sq.Float64()
+			} else {
+				sum[f], sq[f] = exactsum.Diff(raw[f], s.Origin)
+			}
+		}
+		switch cells {
+		case 0:
+		case 1:
+			full[0], full[1] = sum[last], sq[last]
+		default:
+			a, b := s.ExactTarget(l)
+			full[0], full[1] = a.Float64(), b.Float64()
+		}
+	}
+}
+
+// growSealed makes room in the rounded sums for every level slot.
+func (s *Stats) growSealed() {
+	if s.sum.width == 0 {
+		sh := chunkShift(s.Folds)
+		s.sum.width, s.sumSq.width, s.full.width = s.Folds, s.Folds, 2
+		s.sum.bits, s.sumSq.bits = sh, sh
+	}
+	s.sum.grow(s.n)
+	s.sumSq.grow(s.n)
+	if s.exact {
+		s.full.grow(s.n)
+	}
+}

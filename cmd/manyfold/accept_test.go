@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -97,5 +98,71 @@ func TestDerivedTargetInApplyReport(t *testing.T) {
 	want := pairAUC(parseFloats(t, enc.col(t, "route_from*route_to_tmean")), label, "1")
 	if s := c.Score; s.Metric != "auc" || s.Output != "route_from*route_to_tmean" || s.Rows != 600 || math.Abs(s.New-want) > 1e-12 {
 		t.Errorf("score %+v; recomputed AUC %.17g over 600 rows", *s, want)
+	}
+}
+
+// TestEncodePatternSelectsSeveral: a pattern that selects more columns
+// than --columns has entries (dest_* selects dest_zone and dest_city)
+// encodes each of them; encode validated the encodings against the list as
+// written, before the pattern was expanded, and panicked.
+func TestEncodePatternSelectsSeveral(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "ship.csv", acceptCSV())
+	for _, cols := range []string{"dest_*", "route_*,dest_zone", "*"} {
+		out := filepath.Join(dir, "o.csv")
+		res := runCLI(t, "encode", in, "--target", "delay>15", "--columns", cols, "--out", out, "--tables", filepath.Join(dir, "t"))
+		if res.code != exitOK {
+			t.Errorf("encode --columns %s: exit %d: %s", cols, res.code, res.stderr)
+			continue
+		}
+		header := strings.Join(readCSVRows(t, out)[0], ",")
+		for _, want := range []string{"dest_zone_tmean", "dest_city_tmean"} {
+			if cols != "route_*,dest_zone" && !strings.Contains(header, want) {
+				t.Errorf("encode --columns %s: header %s lacks %s", cols, header, want)
+			}
+		}
+		// The column the target is computed from is never selected.
+		if strings.Contains(header, "delay_") {
+			t.Errorf("encode --columns %s under --target delay>15 encoded delay: %s", cols, header)
+		}
+	}
+}
+
+// TestDerivedTargetSourceNotSelected: under --target delay>15, a pattern
+// never selects delay (compare scored it as a category and named it the
+// winner at AUC 1), and scan marks delay as the target's.
+func TestDerivedTargetSourceNotSelected(t *testing.T) {
+	dir := t.TempDir()
+	in := writeFile(t, dir, "ship.csv", acceptCSV())
+	js := filepath.Join(dir, "c.json")
+	res := runCLI(t, "compare", in, "--target", "delay>15", "--columns", "*", "--folds", "3", "--json", js)
+	if res.code != exitOK {
+		t.Fatalf("compare: exit %d: %s", res.code, res.stderr)
+	}
+	b, err := os.ReadFile(js)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc struct {
+		Columns []struct {
+			Column string `json:"column"`
+		} `json:"columns"`
+	}
+	if err := json.Unmarshal(b, &doc); err != nil {
+		t.Fatal(err)
+	}
+	var names []string
+	for _, c := range doc.Columns {
+		names = append(names, c.Column)
+	}
+	if len(names) != 4 || slices.Contains(names, "delay") {
+		t.Errorf("compare --columns '*' under delay>15 compared %v, want the four columns but delay", names)
+	}
+	res = runCLI(t, "scan", in, "--target", "delay>15")
+	if res.code != exitOK {
+		t.Fatalf("scan: exit %d: %s", res.code, res.stderr)
+	}
+	if !strings.Contains(res.stdout, "computed from") || strings.Contains(res.stdout, "delay=") {
+		t.Errorf("scan does not mark delay as the target's column, or encodes it:\n%s", res.stdout)
 	}
 }

@@ -151,6 +151,12 @@ func runEncode(args []string) (err error) {
 		r.Close()
 		return usagef("--columns: %v", err)
 	}
+	// The encodings of each column, now that the patterns are columns (a
+	// pattern may name several).
+	if err := sp.Validate(); err != nil {
+		r.Close()
+		return err
+	}
 	wr, err := derive.Wrap(r, specNames(&sp))
 	if err != nil {
 		r.Close()

@@ -65,8 +65,9 @@ func TestScanZipcodes(t *testing.T) {
 // TestScanFlights profiles the open flights table (vega-datasets 3.2.1,
 // flights-3m.parquet) with a derived target: the delay in minutes, early
 // arrivals below zero, is a number and not 867 codes; the departure time is
-// a time, not 213,834 levels; the target is not given an encoding, and the
-// encode command names it only as the target.
+// a time, not 213,834 levels; the target is not given an encoding, nor is
+// the delay it is computed from, and the encode command names it only as
+// the target.
 func TestScanFlights(t *testing.T) {
 	path := openData(t, "flights-3m.parquet")
 	res := runCLI(t, "scan", path, "--target", "delay>15", "--json")
@@ -84,7 +85,7 @@ func TestScanFlights(t *testing.T) {
 	if err := json.Unmarshal([]byte(res.stdout), &out); err != nil {
 		t.Fatalf("scan --json: %v\n%s", err, res.stdout)
 	}
-	want := map[string]string{"date": "time", "delay": "numeric", "distance": "numeric", "origin": "topk:100", "destination": "topk:100", "delay>15": "target"}
+	want := map[string]string{"date": "time", "delay": "target", "distance": "numeric", "origin": "topk:100", "destination": "topk:100", "delay>15": "target"}
 	for _, c := range out.Columns {
 		if c.Suggested != want[c.Name] {
 			t.Errorf("%s: suggested %s (%s), want %s", c.Name, c.Suggested, c.Reason, want[c.Name])
@@ -96,5 +97,10 @@ func TestScanFlights(t *testing.T) {
 	}
 	if !strings.Contains(out.Command, "--methods origin=topk:100,destination=topk:100 ") || strings.Count(out.Command, "delay>15") != 1 {
 		t.Errorf("encode command %q", out.Command)
+	}
+	// Without that target the delay is a number.
+	res = runCLI(t, "scan", path, "--columns", "delay", "--json")
+	if res.code != 0 || !strings.Contains(res.stdout, `"suggested": "numeric"`) {
+		t.Errorf("scan --columns delay: exit %d, want the suggestion numeric:\n%s", res.code, res.stdout)
 	}
 }

@@ -94,7 +94,7 @@ func runScan(args []string) error {
 	if err != nil {
 		return err
 	}
-	pipeline.MarkTarget(profiles, *target)
+	pipeline.MarkTarget(profiles, *target, derive.Sources(*target)...)
 	command := ""
 	if plan := pipeline.SuggestedPlan(profiles, *target); plan.PerColumn != nil {
 		t := *target

@@ -3,6 +3,7 @@ package pipeline
 import (
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strconv"
 
@@ -277,11 +278,16 @@ func suggest(p *Profile, sh levelShape) (string, string) {
 }
 
 // MarkTarget gives the profile of the target column the suggestion
-// "target": it is what the encodings predict, not a column to encode.
-func MarkTarget(ps []Profile, target string) {
+// "target": it is what the encodings predict, not a column to encode. The
+// columns a derived target is computed from (delay of delay>15) are
+// marked too: encoding them would hand the model its own label.
+func MarkTarget(ps []Profile, target string, sources ...string) {
 	for i := range ps {
-		if target != "" && ps[i].Name == target {
+		switch {
+		case target != "" && ps[i].Name == target:
 			ps[i].Suggest, ps[i].Reason = "target", "the target column: the encodings of the other columns predict it"
+		case slices.Contains(sources, ps[i].Name):
+			ps[i].Suggest, ps[i].Reason = "target", "the column the target "+target+" is computed from: encoding it would leak the label"
 		}
 	}
 }
@@ -291,7 +297,7 @@ func MarkTarget(ps []Profile, target string) {
 func SuggestedPlan(ps []Profile, target string) method.Plan {
 	var plan method.Plan
 	for _, p := range ps {
-		if p.Name == target {
+		if p.Name == target || p.Suggest == "target" {
 			continue
 		}
 		encs, err := method.ParseList(p.Suggest)

@@ -324,9 +324,12 @@ func (w *Reader) Close() error { return w.base.Close() }
 // patterns' order: a name as it is, a glob (filepath.Match: dest_*) every
 // matching column in schema order not named already, and !PATTERN removes the
 // columns it matches from those named before it. never lists columns a
-// pattern never selects (the target, the fold column); a plain name is
-// kept as given, for the caller to report if the table lacks it.
+// pattern never selects (the target, the fold column); a condition among
+// them (delay>15) keeps its column out too, as encoding it would leak the
+// label. A plain name is kept as given, for the caller to report if the
+// table lacks it.
 func Expand(patterns []string, schema *table.Schema, never ...string) ([]string, error) {
+	never = withSources(never)
 	var out []string
 	for _, p := range patterns {
 		if neg, ok := strings.CutPrefix(p, "!"); ok {
@@ -359,6 +362,25 @@ func Expand(patterns []string, schema *table.Schema, never ...string) ([]string,
 		}
 	}
 	return out, nil
+}
+
+// withSources returns names with the column of each condition among them
+// added (delay for delay>15).
+func withSources(names []string) []string {
+	out := slices.Clip(names)
+	for _, n := range names {
+		out = append(out, Sources(n)...)
+	}
+	return out
+}
+
+// Sources returns the columns the derived target name is computed from:
+// the column of a condition (delay for delay>15), none for a plain name.
+func Sources(name string) []string {
+	if col, _, _, ok := SplitCondition(name); ok {
+		return []string{col}
+	}
+	return nil
 }
 
 // isGlob tells a glob with '*' (dest_*) from a cross (a*b): a name whose

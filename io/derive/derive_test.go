@@ -158,4 +158,15 @@ func TestExpand(t *testing.T) {
 			t.Errorf("Expand(%q) = %q, %v; want %q", c.in, got, err, c.want)
 		}
 	}
+	// A derived target keeps the column it is computed from out of every
+	// pattern: origin=ATL is the label, encoding origin would leak it.
+	if got, err := Expand([]string{"*"}, s, "origin=ATL", "fold"); err != nil || strings.Join(got, ",") != "late,dest_zone,dest_city,dest_code" {
+		t.Errorf("Expand(*) under the target origin=ATL = %q, %v", got, err)
+	}
+	if got := Sources("delay>=15"); len(got) != 1 || got[0] != "delay" {
+		t.Errorf("Sources(delay>=15) = %q", got)
+	}
+	if got := Sources("late"); got != nil {
+		t.Errorf("Sources(late) = %q", got)
+	}
 }

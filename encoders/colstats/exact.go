@@ -34,25 +34,41 @@ const (
 	boxMask = 1<<51 - 1
 )
 
-func box(i int) float64        { return math.Float64frombits(boxTag | uint64(i)) }
-func isBox(v float64) bool     { return v != v }
-func unbox(v float64) int      { return int(math.Float64bits(v) & boxMask) }
-func (s *Stats) cellPool() int { s.pool = append(s.pool, cellSums{}); return len(s.pool) - 1 }
+func box(i int) float64    { return math.Float64frombits(boxTag | uint64(i)) }
+func isBox(v float64) bool { return v != v }
+func unbox(v float64) int  { return int(math.Float64bits(v) & boxMask) }
+
+// poolChunk is the cells of a chunk of the pool (2^12): the pool grows a
+// chunk at a time, so growing never copies the cells before.
+const poolChunk = 12
+
+// cellPool adds an empty cell to the pool and returns its index.
+func (s *Stats) cellPool() int {
+	i := s.pooledCells
+	if i>>poolChunk == len(s.pool) {
+		s.pool = append(s.pool, make([]cellSums, 1<<poolChunk))
+	}
+	s.pooledCells++
+	return i
+}
+
+// poolAt returns the cell of index i of the pool.
+func (s *Stats) poolAt(i int) *cellSums { return &s.pool[i>>poolChunk][i&(1<<poolChunk-1)] }
 
 // pooled returns the exact sums of cell (l, f), moving a cell of one row
 // (or none) into the pool first.
 func (s *Stats) pooled(l, f int) *cellSums {
 	r := &s.raw.row(l)[f]
 	if isBox(*r) {
-		return &s.pool[unbox(*r)]
+		return s.poolAt(unbox(*r))
 	}
 	i := s.cellPool()
 	if s.cnt.row(l)[f] > 0 {
-		p := &s.pool[i]
+		p := s.poolAt(i)
 		exactsum.AddDiff(&p.sum, &p.sq, *r, s.Origin)
 	}
 	*r = box(i)
-	return &s.pool[i]
+	return s.poolAt(i)
 }
 
 // AddValue counts a row of level l in fold f with numeric target y: its
@@ -108,7 +124,7 @@ func (s *Stats) addCell(l, f int, o *Stats, ol int) {
 		s.cnt.row(l)[f] += n
 		return
 	default:
-		op := &o.pool[unbox(o.raw.row(ol)[f])]
+		op := o.poolAt(unbox(o.raw.row(ol)[f]))
 		src.sum.Set(&op.sum)
 		src.sq.Set(&op.sq)
 	}
@@ -134,7 +150,7 @@ func (s *Stats) exactCell(l, f int, sum, sq *exactsum.Sum) {
 		exactsum.AddDiff(sum, sq, r, s.Origin)
 		return
 	}
-	p := &s.pool[unbox(r)]
+	p := s.poolAt(unbox(r))
 	sum.AddSum(&p.sum)
 	sq.AddSum(&p.sq)
 }
@@ -142,8 +158,23 @@ func (s *Stats) exactCell(l, f int, sum, sq *exactsum.Sum) {
 // ExactTarget returns the exact sums about Origin of the target of level
 // l over all folds: what a mapping table records beside the rounded ones.
 func (s *Stats) ExactTarget(l int) (sum, sq exactsum.Sum) {
-	for f := 0; f < s.Folds; f++ {
-		s.exactCell(l, f, &sum, &sq)
+	if !s.exact {
+		for f := 0; f < s.Folds; f++ {
+			s.exactCell(l, f, &sum, &sq)
+		}
+		return sum, sq
+	}
+	cnt, raw := s.cnt.row(l), s.raw.row(l)
+	for f, c := range cnt {
+		switch r := raw[f]; {
+		case c == 0:
+		case !isBox(r):
+			exactsum.AddDiff(&sum, &sq, r, s.Origin)
+		default:
+			p := s.poolAt(unbox(r))
+			sum.AddSum(&p.sum)
+			sq.AddSum(&p.sq)
+		}
 	}
 	return sum, sq
 }
@@ -169,7 +200,7 @@ func (s *Stats) Seal() {
 			}
 			cells, last = cells+1, f
 			if isBox(raw[f]) {
-				p := &s.pool[unbox(raw[f])]
+				p := s.poolAt(unbox(raw[f]))
 				sum[f], sq[f] = p.sum.Float64(), p.sq.Float64()
 			} else {
 				sum[f], sq[f] = exactsum.Diff(raw[f], s.Origin)

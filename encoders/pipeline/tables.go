@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime/trace"
+	"slices"
 	"strings"
 
 	"manyfold/encoders/colstats"
@@ -474,7 +475,7 @@ func (m *Model) saveCol(path string, c *Col, parent bool) error {
 func exactTexts(st *colstats.Stats, slots []int, cols []table.Column) {
 	for k := range cols {
 		c := &cols[k]
-		c.Form, c.Data, c.Offsets, c.Nulls = table.FormText, c.Data[:0], append(c.Offsets[:0], 0), nil
+		c.Form, c.Data, c.Offsets, c.Nulls = table.FormText, slices.Grow(c.Data[:0], 32*len(slots)), append(slices.Grow(c.Offsets[:0], len(slots)+1), 0), nil
 	}
 	for _, l := range slots {
 		s, q := st.ExactTarget(l)

@@ -2,6 +2,8 @@ package colstats
 
 import (
 	"math"
+	"runtime"
+	"sync"
 
 	"manyfold/encoders/exactsum"
 )
@@ -158,25 +160,57 @@ func (s *Stats) exactCell(l, f int, sum, sq *exactsum.Sum) {
 // ExactTarget returns the exact sums about Origin of the target of level
 // l over all folds: what a mapping table records beside the rounded ones.
 func (s *Stats) ExactTarget(l int) (sum, sq exactsum.Sum) {
-	if !s.exact {
-		for f := 0; f < s.Folds; f++ {
-			s.exactCell(l, f, &sum, &sq)
-		}
-		return sum, sq
-	}
-	cnt, raw := s.cnt.row(l), s.raw.row(l)
-	for f, c := range cnt {
-		switch r := raw[f]; {
-		case c == 0:
-		case !isBox(r):
-			exactsum.AddDiff(&sum, &sq, r, s.Origin)
-		default:
-			p := s.poolAt(unbox(r))
-			sum.AddSum(&p.sum)
-			sq.AddSum(&p.sq)
-		}
+	for f := 0; f < s.Folds; f++ {
+		s.exactCell(l, f, &sum, &sq)
 	}
 	return sum, sq
+}
+
+// ExactTargets calls each(i, sum, sq) with the exact sums of level ls[i],
+// as ExactTarget gives them, for every i in order. It reads the levels'
+// cells a group at a time in a loop that does nothing else, so that the
+// cache misses of levels scattered over memory (ls in canonical order)
+// overlap, then computes the sums from the copies.
+func (s *Stats) ExactTargets(ls []int, each func(i int, sum, sq *exactsum.Sum)) {
+	const group = 256
+	k := s.Folds
+	cnt := make([]uint32, group*k)
+	raw := make([]float64, group*k)
+	var sum, sq exactsum.Sum // one of each, reused: each takes their address
+	for from := 0; from < len(ls); from += group {
+		part := ls[from:min(from+group, len(ls))]
+		if s.exact {
+			for j, l := range part {
+				for f, c := range s.cnt.row(l) {
+					cnt[j*k+f] = c
+				}
+			}
+			for j, l := range part {
+				for f, r := range s.raw.row(l) {
+					raw[j*k+f] = r
+				}
+			}
+		}
+		for j, l := range part {
+			sum, sq = exactsum.Sum{}, exactsum.Sum{}
+			if !s.exact {
+				sum, sq = s.ExactTarget(l)
+			} else {
+				for f, c := range cnt[j*k : (j+1)*k] {
+					switch r := raw[j*k+f]; {
+					case c == 0:
+					case !isBox(r):
+						exactsum.AddDiff(&sum, &sq, r, s.Origin)
+					default:
+						p := s.poolAt(unbox(r))
+						sum.AddSum(&p.sum)
+						sq.AddSum(&p.sq)
+					}
+				}
+			}
+			each(from+j, &sum, &sq)
+		}
+	}
 }
 
 // Seal ends the adding of a regression target's rows: every cell's exact
@@ -190,7 +224,26 @@ func (s *Stats) Seal() {
 	}
 	s.sealed = true
 	s.growSealed()
-	for l := 0; l < s.n; l++ {
+	// Levels are sealed independently: a large column's levels are split
+	// among goroutines (the result does not depend on how).
+	parts := 1
+	if s.n >= 1<<20 {
+		parts = min(runtime.GOMAXPROCS(0), 8)
+	}
+	var wg sync.WaitGroup
+	for p := range parts {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			s.sealLevels(p*s.n/parts, (p+1)*s.n/parts)
+		}()
+	}
+	wg.Wait()
+}
+
+// sealLevels seals the levels from <= l < to.
+func (s *Stats) sealLevels(from, to int) {
+	for l := from; l < to; l++ {
 		cnt, raw := s.cnt.row(l), s.raw.row(l)
 		sum, sq, full := s.sum.row(l), s.sumSq.row(l), s.full.row(l)
 		cells, last := 0, 0

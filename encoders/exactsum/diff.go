@@ -71,20 +71,32 @@ func AddDiff(sum, sq *Sum, y, o float64) {
 // each sum. It reports false, adding nothing, when D would pass 94 bits
 // (its square 188), for AddDiff's general path.
 func addDiffInt(sum, sq *Sum, y, o float64) bool {
+	neg, d, q, e, ok := diffInt(y, o)
+	if ok && !isZero(d) {
+		sum.addInt(neg, d, bitLen(d), e)
+		sq.addInt(false, q, bitLen(q), 2*e)
+	}
+	return ok
+}
+
+// diffInt returns y - o = (-1)^neg d 2^e and (y - o)^2 = q 2^2e as
+// integers (addDiffInt's arithmetic); ok is false when d would pass 94
+// bits.
+func diffInt(y, o float64) (neg bool, d, q [3]uint64, e int32, ok bool) {
 	ny, my, ey := split(y)
 	no, mo, eo := split(o)
 	switch {
 	case my == 0 && mo == 0:
-		return true
+		return false, d, q, 0, true
 	case my == 0:
 		ey = eo
 	case mo == 0:
 		eo = ey
 	}
-	e := min(ey, eo)
+	e = min(ey, eo)
 	sy, so := uint(ey-e), uint(eo-e)
 	if sy > 41 || so > 41 { // 53 + 41 = 94 bits
-		return false
+		return false, d, q, 0, false
 	}
 	// |y| and |o| as 128-bit integers at 2^e; D = y - o, signed.
 	yl, yh := my<<sy, my>>(64-sy)
@@ -104,28 +116,21 @@ func addDiffInt(sum, sq *Sum, y, o float64) bool {
 	var c uint64
 	dl, c := bits.Add64(yl, ol, 0)
 	dh, _ := bits.Add64(yh, oh, c)
-	neg := int64(dh) < 0
+	neg = int64(dh) < 0
 	if neg {
 		dl, dh = neg2(dl, dh)
 	}
-	if dl|dh == 0 {
-		return true
-	}
 	if bits.Len64(dh) > 30 {
-		return false
+		return false, d, q, 0, false
 	}
 	// D^2 = dl^2 + 2 dl dh 2^64 + dh^2 2^128.
 	h1, l1 := bits.Mul64(dl, dl)
 	h2, l2 := bits.Mul64(dl, dh)
 	h2, l2 = h2<<1|l2>>63, l2<<1
-	var q [3]uint64
 	q[0] = l1
 	q[1], c = bits.Add64(h1, l2, 0)
 	q[2] = h2 + dh*dh + c
-	d := [3]uint64{dl, dh}
-	sum.addInt(neg, d, bitLen(d), e)
-	sq.addInt(false, q, bitLen(q), 2*e)
-	return true
+	return neg, [3]uint64{dl, dh}, q, e, true
 }
 
 // neg2 returns the two's complement negation of the 128-bit (lo, hi).
@@ -156,6 +161,12 @@ func Diff(y, o float64) (sum, sq float64) {
 	s, t := TwoSum(y, -o)
 	if t == 0 && math.Abs(s) <= hugeFactor && (s == 0 || math.Abs(s) >= tinyFactor) {
 		return s, s * s
+	}
+	if neg, d, q, e, ok := diffInt(y, o); ok {
+		if isZero(d) {
+			return 0, 0
+		}
+		return round3(neg, d, e), round3(false, q, 2*e)
 	}
 	var a, b Sum
 	AddDiff(&a, &b, y, o)

@@ -221,40 +221,36 @@ func (s *Sum) Float64() float64 {
 	if isZero(s.w) {
 		return 0
 	}
-	neg := int64(s.w[2]) < 0
-	mag := abs(s.w)
+	return round3(int64(s.w[2]) < 0, abs(s.w), s.exp)
+}
+
+// round3 returns (-1)^neg * mag * 2^exp rounded to the nearest float64,
+// ties to even (mag not 0).
+func round3(neg bool, mag [3]uint64, exp int32) float64 {
 	p := bitLen(mag) - 1 // the top bit
-	var mant uint64
-	if p <= 52 {
-		mant = mag[0]
-	} else {
+	mant, shift := mag[0], 0
+	if p > 52 {
 		r := uint(p - 52)
 		mant = shr(mag, r)[0]
-		half := bit(mag, r-1)
-		if half && (mant&1 != 0 || anyBelow(mag, r-1)) {
+		if bit(mag, r-1) && (mant&1 != 0 || anyBelow(mag, r-1)) {
 			mant++
 			if mant == 1<<53 {
 				mant >>= 1
-				p++
+				r++
 			}
 		}
-		p -= 52
-		// mant * 2^(exp + p) now, p the shift applied.
-		top := int(s.exp) + p + 52
-		if top < -1022 || top > 1023 {
-			return bigFloat(signedBig(s.w), s.exp)
-		}
-		f := math.Ldexp(float64(mant), int(s.exp)+p)
+		shift = int(r)
+	}
+	// mant * 2^(exp + shift), mant below 2^53: exact unless the result
+	// leaves the normal range.
+	if top := int(exp) + shift + bits.Len64(mant) - 1; top < -1022 || top > 1023 {
+		b := toBig(mag)
 		if neg {
-			f = -f
+			b.Neg(b)
 		}
-		return f
+		return bigFloat(b, exp)
 	}
-	top := int(s.exp) + p
-	if top < -1022 || top > 1023 {
-		return bigFloat(signedBig(s.w), s.exp)
-	}
-	f := math.Ldexp(float64(mant), int(s.exp))
+	f := math.Ldexp(float64(mant), int(exp)+shift)
 	if neg {
 		f = -f
 	}

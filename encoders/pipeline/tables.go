@@ -12,6 +12,7 @@ import (
 	"strings"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/exactsum"
 	"manyfold/encoders/method"
 	"manyfold/internal/jsonout"
 	"manyfold/internal/param"
@@ -477,13 +478,12 @@ func exactTexts(st *colstats.Stats, slots []int, cols []table.Column) {
 		c := &cols[k]
 		c.Form, c.Data, c.Offsets, c.Nulls = table.FormText, slices.Grow(c.Data[:0], 32*len(slots)), append(slices.Grow(c.Offsets[:0], len(slots)+1), 0), nil
 	}
-	for _, l := range slots {
-		s, q := st.ExactTarget(l)
+	st.ExactTargets(slots, func(_ int, s, q *exactsum.Sum) {
 		cols[0].Data = s.AppendText(cols[0].Data)
 		cols[0].Offsets = append(cols[0].Offsets, int32(len(cols[0].Data)))
 		cols[1].Data = q.AppendText(cols[1].Data)
 		cols[1].Offsets = append(cols[1].Offsets, int32(len(cols[1].Data)))
-	}
+	})
 }
 
 // gatherLevels fills lv with the levels of c among the slots rows (in

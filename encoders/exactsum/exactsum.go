@@ -148,8 +148,7 @@ func (s *Sum) addInt(neg bool, mag [3]uint64, nb int, e int32) {
 		s.addBig(neg, toBig(mag), e)
 		return
 	}
-	t := signed(neg, shl(mag, uint(up)))
-	s.w = add(s.w, t)
+	s.w = addSigned(s.w, shl(mag, uint(up)), neg)
 }
 
 // AddSum adds the value of o.
@@ -325,24 +324,6 @@ func signed(neg bool, mag [3]uint64) [3]uint64 {
 		return neg3(mag)
 	}
 	return mag
-}
-
-func add(a, b [3]uint64) [3]uint64 {
-	var c uint64
-	var r [3]uint64
-	r[0], c = bits.Add64(a[0], b[0], 0)
-	r[1], c = bits.Add64(a[1], b[1], c)
-	r[2], _ = bits.Add64(a[2], b[2], c)
-	return r
-}
-
-func sub(a, b [3]uint64) [3]uint64 {
-	var c uint64
-	var r [3]uint64
-	r[0], c = bits.Sub64(a[0], b[0], 0)
-	r[1], c = bits.Sub64(a[1], b[1], c)
-	r[2], _ = bits.Sub64(a[2], b[2], c)
-	return r
 }
 
 func bitLen(w [3]uint64) int {

@@ -21,6 +21,15 @@ func ratSum(xs []float64) *big.Rat {
 	return r
 }
 
+// sumOf returns the exact sum of xs.
+func sumOf(xs []float64) *Sum {
+	var s Sum
+	for _, x := range xs {
+		s.Add(x)
+	}
+	return &s
+}
+
 func ratFloat(r *big.Rat) float64 {
 	f, _ := r.Float64()
 	return f
@@ -54,10 +63,7 @@ func termSets(rng *rand.Rand) map[string][]float64 {
 func TestSumMatchesRationals(t *testing.T) {
 	rng := rand.New(rand.NewPCG(1, 2))
 	for name, xs := range termSets(rng) {
-		var s Sum
-		for _, x := range xs {
-			s.Add(x)
-		}
+		s := sumOf(xs)
 		want := ratFloat(ratSum(xs))
 		if got := s.Float64(); got != want && !(math.IsInf(got, 1) && name == "overflow") {
 			t.Errorf("%s: %v, rationals give %v", name, got, want)
@@ -66,11 +72,7 @@ func TestSumMatchesRationals(t *testing.T) {
 			t.Errorf("overflow: %v, want +Inf", s.Float64())
 		}
 	}
-	var s Sum
-	for _, x := range []float64{1e16, 1, -1e16} {
-		s.Add(x)
-	}
-	if s.Float64() != 1 {
+	if s := sumOf([]float64{1e16, 1, -1e16}); s.Float64() != 1 {
 		t.Errorf("1e16 + 1 - 1e16 = %v, want 1", s.Float64())
 	}
 }
@@ -160,16 +162,13 @@ func TestRecenter(t *testing.T) {
 func TestBinaryRoundTrip(t *testing.T) {
 	rng := rand.New(rand.NewPCG(7, 8))
 	for name, xs := range termSets(rng) {
-		var s Sum
-		for _, x := range xs {
-			s.Add(x)
-		}
+		s := sumOf(xs)
 		b := s.AppendBinary(nil)
 		var d Sum
 		if err := d.Decode(b); err != nil {
 			t.Fatalf("%s: %v", name, err)
 		}
-		if !d.Equal(&s) || !bytes.Equal(d.AppendBinary(nil), b) {
+		if !d.Equal(s) || !bytes.Equal(d.AppendBinary(nil), b) {
 			t.Errorf("%s: round trip changed the value", name)
 		}
 	}
@@ -236,16 +235,13 @@ func BenchmarkAddDiff(b *testing.B) {
 func TestTextRoundTrip(t *testing.T) {
 	rng := rand.New(rand.NewPCG(11, 12))
 	for name, xs := range termSets(rng) {
-		var s Sum
-		for _, x := range xs {
-			s.Add(x)
-		}
+		s := sumOf(xs)
 		txt := string(s.AppendText(nil))
 		var d Sum
 		if err := d.ParseText(txt); err != nil {
 			t.Fatalf("%s: %q: %v", name, txt, err)
 		}
-		if !d.Equal(&s) || string(d.AppendText(nil)) != txt {
+		if !d.Equal(s) || string(d.AppendText(nil)) != txt {
 			t.Errorf("%s: %q does not round-trip", name, txt)
 		}
 		// The text is a hexadecimal floating-point literal: parsed as a

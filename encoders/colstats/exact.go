@@ -166,12 +166,13 @@ func (s *Stats) ExactTarget(l int) (sum, sq exactsum.Sum) {
 	return sum, sq
 }
 
-// ExactTargets calls each(i, sum, sq) with the exact sums of level ls[i],
-// as ExactTarget gives them, for every i in order. It reads the levels'
+// ExactTargets calls each(i, n, sum, sq) with the rows of known target n
+// and the exact sums of level ls[i], as ExactTarget gives them, for every
+// i in order. It reads the levels'
 // cells a group at a time in a loop that does nothing else, so that the
 // cache misses of levels scattered over memory (ls in canonical order)
 // overlap, then computes the sums from the copies.
-func (s *Stats) ExactTargets(ls []int, each func(i int, sum, sq *exactsum.Sum)) {
+func (s *Stats) ExactTargets(ls []int, each func(i int, n uint64, sum, sq *exactsum.Sum)) {
 	const group = 256
 	k := s.Folds
 	cnt := make([]uint32, group*k)
@@ -193,10 +194,15 @@ func (s *Stats) ExactTargets(ls []int, each func(i int, sum, sq *exactsum.Sum)) 
 		}
 		for j, l := range part {
 			sum, sq = exactsum.Sum{}, exactsum.Sum{}
+			var n uint64
 			if !s.exact {
 				sum, sq = s.ExactTarget(l)
+				for _, c := range s.cnt.row(l) {
+					n += uint64(c)
+				}
 			} else {
 				for f, c := range cnt[j*k : (j+1)*k] {
+					n += uint64(c)
 					switch r := raw[j*k+f]; {
 					case c == 0:
 					case !isBox(r):
@@ -208,7 +214,7 @@ func (s *Stats) ExactTargets(ls []int, each func(i int, sum, sq *exactsum.Sum)) 
 					}
 				}
 			}
-			each(from+j, &sum, &sq)
+			each(from+j, n, &sum, &sq)
 		}
 	}
 }

@@ -417,7 +417,7 @@ func (m *Model) saveCol(path string, c *Col, parent bool) error {
 	var lv method.Levels
 	var exact [2]table.Column
 	for start := 0; start < len(order); start += chunk {
-		m.gatherLevels(of, order[start:min(start+chunk, len(order))], &lv)
+		m.gatherLevels(of, order[start:min(start+chunk, len(order))], &lv, exact[:])
 		n := len(lv.Slots)
 		if n == 0 {
 			continue
@@ -437,7 +437,6 @@ func (m *Model) saveCol(path string, c *Col, parent bool) error {
 			if m.Task == colstats.Regression {
 				putFloats(lv.Sum)
 				putFloats(lv.SumSq)
-				exactTexts(of.St, lv.Slots, exact[:])
 				b.Cols[j], b.Cols[j+1] = exact[0], exact[1]
 				j += 2
 			} else {
@@ -470,22 +469,6 @@ func (m *Model) saveCol(path string, c *Col, parent bool) error {
 	return out.Commit()
 }
 
-// exactTexts sets cols to the exact target sums of the level slots, about
-// the origin, in exactsum's text form: target_sum_exact and
-// target_sumsq_exact, which a merge adds bit for bit.
-func exactTexts(st *colstats.Stats, slots []int, cols []table.Column) {
-	for k := range cols {
-		c := &cols[k]
-		c.Form, c.Data, c.Offsets, c.Nulls = table.FormText, slices.Grow(c.Data[:0], 32*len(slots)), append(slices.Grow(c.Offsets[:0], len(slots)+1), 0), nil
-	}
-	st.ExactTargets(slots, func(_ int, s, q *exactsum.Sum) {
-		cols[0].Data = s.AppendText(cols[0].Data)
-		cols[0].Offsets = append(cols[0].Offsets, int32(len(cols[0].Data)))
-		cols[1].Data = q.AppendText(cols[1].Data)
-		cols[1].Offsets = append(cols[1].Offsets, int32(len(cols[1].Data)))
-	})
-}
-
 // gatherLevels fills lv with the levels of c among the slots rows (in
 // canonical order) that its mapping table stores, and their statistics.
 // The null level is stored even when nulls are treated as unseen, so that
@@ -493,8 +476,9 @@ func exactTexts(st *colstats.Stats, slots []int, cols []table.Column) {
 // at a time, each by a loop that does little more than fetch one value per
 // level: in canonical order the levels' statistics are scattered over
 // memory, and loops this small let the processor wait for many of them at
-// once.
-func (m *Model) gatherLevels(c *Col, rows []uint32, lv *method.Levels) {
+// once. For a regression target, exact (two columns) receives each level's
+// exact sums as text.
+func (m *Model) gatherLevels(c *Col, rows []uint32, lv *method.Levels, exact []table.Column) {
 	st := c.St
 	sel := lv.Slots[:0]
 	for _, l32 := range rows {
@@ -528,11 +512,24 @@ func (m *Model) gatherLevels(c *Col, rows []uint32, lv *method.Levels) {
 	}
 	lv.TargetRows = grow(lv.TargetRows)
 	if m.Task == colstats.Regression {
+		// One read of each level's cells gives its exact sums, their text
+		// (target_sum_exact, target_sumsq_exact) and, rounded, the
+		// full-data sums the statistics hold (Seal rounds them from the
+		// same exact total).
 		lv.Sum, lv.SumSq = growF(lv.Sum), growF(lv.SumSq)
+		for k := range exact {
+			c := &exact[k]
+			c.Form, c.Data, c.Offsets, c.Nulls = table.FormText, slices.Grow(c.Data[:0], 32*n), append(slices.Grow(c.Offsets[:0], n+1), 0), nil
+		}
+		st.ExactTargets(sel, func(i int, rows uint64, s, q *exactsum.Sum) {
+			lv.TargetRows[i], lv.Sum[i], lv.SumSq[i] = int64(rows), s.Float64(), q.Float64()
+			exact[0].Data = s.AppendText(exact[0].Data)
+			exact[0].Offsets = append(exact[0].Offsets, int32(len(exact[0].Data)))
+			exact[1].Data = q.AppendText(exact[1].Data)
+			exact[1].Offsets = append(exact[1].Offsets, int32(len(exact[1].Data)))
+		})
 		for i, l := range sel {
-			a := st.Target(l, 0, -1, m.Pos)
 			lv.Rows[i] = int64(st.RowCount(l))
-			lv.TargetRows[i], lv.Sum[i], lv.SumSq[i] = int64(a.N), a.Sum, a.SumSq
 		}
 		return
 	}

@@ -5,6 +5,7 @@ import (
 	"strings"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/dataset"
 	"manyfold/io/derive"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -19,8 +20,11 @@ import (
 // nestedOf returns the nested top-level columns of a Parquet input (none
 // for other formats).
 func nestedOf(r table.Reader) []pqio.Nested {
-	if pr, ok := derive.Base(r).(*pqio.Reader); ok {
-		return pr.Nested()
+	switch b := derive.Base(r).(type) {
+	case *pqio.Reader:
+		return b.Nested()
+	case *dataset.Reader:
+		return b.Nested()
 	}
 	return nil
 }

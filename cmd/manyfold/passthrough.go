@@ -5,6 +5,7 @@ import (
 	"fmt"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/dataset"
 	"manyfold/io/derive"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -54,8 +55,8 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 	if err := checkNestedOutput(name, nested, o.full.Names(), format, use); err != nil {
 		return fail(err)
 	}
-	if _, isParquet := derive.Base(r).(*pqio.Reader); isParquet && format == tableio.Parquet && len(kept)+len(nested) > 0 {
-		if o.src, err = pqio.OpenSource(path); err != nil {
+	if parts := parquetParts(r, path); parts != nil && format == tableio.Parquet && len(kept)+len(nested) > 0 {
+		if o.src, err = pqio.OpenSources(parts); err != nil {
 			return fail(err)
 		}
 		copied := make([]bool, len(schema.Fields))
@@ -108,6 +109,26 @@ func openOutput(path, name, out string, ropts tableio.ReadOptions, wopts tableio
 	o.r = table.ReadAhead(o.r)
 	o.w.Writer = table.WriteBehind(o.w.Writer)
 	return o, nil
+}
+
+// parquetParts returns the Parquet files the table r (opened from path)
+// reads, in order: path itself, or a dataset's files when they are all
+// Parquet; nil otherwise.
+func parquetParts(r table.Reader, path string) []string {
+	switch b := derive.Base(r).(type) {
+	case *pqio.Reader:
+		return []string{path}
+	case *dataset.Reader:
+		var parts []string
+		for _, f := range b.Files() {
+			if !tableio.IsParquet(f.Path) {
+				return nil
+			}
+			parts = append(parts, f.Path)
+		}
+		return parts
+	}
+	return nil
 }
 
 // close closes the reader and the source (not the output).

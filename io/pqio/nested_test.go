@@ -190,7 +190,7 @@ func TestNestedColumnsCopied(t *testing.T) {
 		if len(ti.paths) != len(to.paths) || !slices.EqualFunc(ti.elems, to.elems, func(a, b format.SchemaElement) bool { return a.Name == b.Name }) {
 			t.Fatalf("%s: schema subtree differs", name)
 		}
-		for g := range s.meta.RowGroups {
+		for g := range s.parts[0].meta.RowGroups {
 			for l := range ti.paths {
 				a, b := chunkBytes(t, s, g, ti.first+l), chunkBytes(t, ro, g, to.first+l)
 				if !bytes.Equal(a, b) {
@@ -217,10 +217,10 @@ func TestNestedColumnsCopied(t *testing.T) {
 // chunkBytes returns the bytes of leaf column col's chunk in row group g.
 func chunkBytes(t *testing.T, s *Source, g, col int) []byte {
 	t.Helper()
-	md := s.meta.RowGroups[g].Columns[col].MetaData
+	md := s.parts[0].meta.RowGroups[g].Columns[col].MetaData
 	start, size := chunkRange(&md)
 	b := make([]byte, size)
-	if _, err := s.f.ReadAt(b, start); err != nil {
+	if _, err := s.parts[0].f.ReadAt(b, start); err != nil {
 		t.Fatal(err)
 	}
 	return b

@@ -1,10 +1,12 @@
 package pqio
 
 import (
+	"errors"
 	"fmt"
 	"hash/crc32"
 	"io"
 	"os"
+	"reflect"
 
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/encoding/thrift"
@@ -13,14 +15,29 @@ import (
 	"manyfold/io/table"
 )
 
-// Source is a Parquet file whose column chunks a writer copies into its
-// output as they are, still encoded and compressed, instead of decoding and
-// encoding their values again. A writer given a Source writes row groups of
-// the Source's row group sizes, so that every copied chunk lands in a row
-// group of the same rows. Pages are copied byte for byte when their codec
-// is the output's, and otherwise decompressed and compressed again with the
+// Source is one Parquet file, or several with the same columns read one
+// after the other (the parts of a dataset, OpenSources), whose column
+// chunks a writer copies into its output as they are, still encoded and
+// compressed, instead of decoding and encoding their values again. A writer
+// given a Source writes row groups of the Source's row group sizes (every
+// part's, in order), so that every copied chunk lands in a row group of the
+// same rows. Pages are copied byte for byte when their codec is the
+// output's, and otherwise decompressed and compressed again with the
 // output's codec, page by page, their values untouched.
 type Source struct {
+	name   string // the first part's path, or "N files from PATH"
+	parts  []*sourceFile
+	groups []groupRef // every part's row groups, in order
+	rows   int64
+	cols   map[string]*topColumn // the first part's top-level columns, by name
+	differ map[string]string     // a column whose layout differs in a later part: that part
+}
+
+// groupRef is row group g of part p.
+type groupRef struct{ p, g int32 }
+
+// sourceFile is one part of a Source.
+type sourceFile struct {
 	name string
 	f    *os.File
 	size int64 // of the file
@@ -29,7 +46,51 @@ type Source struct {
 }
 
 // OpenSource opens the Parquet file at path as a Source.
-func OpenSource(path string) (*Source, error) {
+func OpenSource(path string) (*Source, error) { return OpenSources([]string{path}) }
+
+// OpenSources opens the Parquet files at paths as one Source, their rows
+// one file after the other. A column is copied only when every file lays
+// it out alike (the same schema subtree at the same leaf position);
+// CanCopy refuses the others.
+func OpenSources(paths []string) (*Source, error) {
+	if len(paths) == 0 {
+		return nil, errors.New("a Source of no files")
+	}
+	s := &Source{name: paths[0], differ: map[string]string{}}
+	if len(paths) > 1 {
+		s.name = fmt.Sprintf("%d files from %s", len(paths), paths[0])
+	}
+	for i, path := range paths {
+		sf, err := openSourceFile(path)
+		if err != nil {
+			s.Close()
+			return nil, err
+		}
+		s.parts = append(s.parts, sf)
+		for g := range sf.meta.RowGroups {
+			s.groups = append(s.groups, groupRef{int32(i), int32(g)})
+		}
+		s.rows += sf.meta.NumRows
+		if i == 0 {
+			s.cols = sf.cols
+			continue
+		}
+		for name, t := range s.cols {
+			if _, ok := s.differ[name]; !ok && !sameLayout(t, sf.cols[name]) {
+				s.differ[name] = path
+			}
+		}
+	}
+	return s, nil
+}
+
+// sameLayout reports whether two files hold a top-level column alike.
+func sameLayout(a, b *topColumn) bool {
+	return b != nil && a.first == b.first && reflect.DeepEqual(a.elems, b.elems) && reflect.DeepEqual(a.paths, b.paths)
+}
+
+// openSourceFile opens one part of a Source.
+func openSourceFile(path string) (*sourceFile, error) {
 	f, size, err := openSized(path)
 	if err != nil {
 		return nil, err
@@ -43,7 +104,7 @@ func OpenSource(path string) (*Source, error) {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w: %v", path, table.ErrCorrupt, err)
 	}
-	s := &Source{name: path, f: f, size: size, meta: pf.Metadata(), cols: map[string]*topColumn{}}
+	s := &sourceFile{name: path, f: f, size: size, meta: pf.Metadata(), cols: map[string]*topColumn{}}
 	if err := checkRowCounts(s.meta); err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)
@@ -72,27 +133,63 @@ func openFooter(f *os.File, size int64) (pf *parquet.File, err error) {
 	return parquet.OpenFile(f, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true), parquet.ReadBufferSize(4096))
 }
 
-// Close closes the file.
-func (s *Source) Close() error { return s.f.Close() }
+// Close closes the files.
+func (s *Source) Close() error {
+	var first error
+	for _, p := range s.parts {
+		if err := p.f.Close(); err != nil && first == nil {
+			first = err
+		}
+	}
+	return first
+}
 
-// Name returns the file's path.
+// Name returns the file's path (the first file's, with their number, for
+// several).
 func (s *Source) Name() string { return s.name }
 
-// NumRows returns the file's row count.
-func (s *Source) NumRows() int64 { return s.meta.NumRows }
+// NumRows returns the row count of every file.
+func (s *Source) NumRows() int64 { return s.rows }
+
+// numGroups returns the number of row groups of every file.
+func (s *Source) numGroups() int { return len(s.groups) }
+
+// groupRows returns the rows of row group g (counted across the files).
+func (s *Source) groupRows(g int) int64 {
+	r := s.groups[g]
+	return s.parts[r.p].meta.RowGroups[r.g].NumRows
+}
+
+// ordered reports whether the file of row group g declares its columns'
+// orders (without them, chunk statistics' min and max have no defined
+// meaning).
+func (s *Source) ordered(g int) bool { return len(s.parts[s.groups[g].p].meta.ColumnOrders) > 0 }
+
+// copyChunk writes the chunk of leaf column col of row group g (counted
+// across the files); see sourceFile.copyChunk.
+func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int, out codec) (format.ColumnChunk, int64, error) {
+	r := s.groups[g]
+	return s.parts[r.p].copyChunk(w, off, col, path, int(r.g), out)
+}
 
 // CanCopy reports whether the top-level column of that name can be
 // copied: every chunk of its leaf columns (one for a flat column, one per
-// leaf of a nested one) whole and unencrypted. It reads the page headers of
-// every chunk and checks that they fill the chunk and hold its values.
+// leaf of a nested one), in every file, whole and unencrypted, and laid out
+// alike in every file. It reads the page headers of every chunk and checks
+// that they fill the chunk and hold its values.
 func (s *Source) CanCopy(name string) error {
 	t, ok := s.cols[name]
 	if !ok {
 		return fmt.Errorf("%s: no top-level column %q", s.name, name)
 	}
-	for l := range t.paths {
-		if err := s.canCopyLeaf(name, t.first+l); err != nil {
-			return err
+	if p, ok := s.differ[name]; ok {
+		return fmt.Errorf("%s: column %q is laid out otherwise than in %s", p, name, s.parts[0].name)
+	}
+	for _, p := range s.parts {
+		for l := range t.paths {
+			if err := p.canCopyLeaf(name, t.first+l); err != nil {
+				return err
+			}
 		}
 	}
 	return nil
@@ -100,7 +197,7 @@ func (s *Source) CanCopy(name string) error {
 
 // canCopyLeaf checks the chunks of leaf column col, part of the top-level
 // column name.
-func (s *Source) canCopyLeaf(name string, col int) error {
+func (s *sourceFile) canCopyLeaf(name string, col int) error {
 	for g := range s.meta.RowGroups {
 		rg := &s.meta.RowGroups[g]
 		if col >= len(rg.Columns) {
@@ -147,7 +244,7 @@ const maxHeader = 16 << 20
 // start+size) of a chunk of codec cid, its encoded length and position,
 // and checks that the pages fill the range exactly and that their sizes
 // are within the limits of checkSizes. Errors name the page (1-based).
-func (s *Source) walk(start, size int64, cid format.CompressionCodec, f func(h *format.PageHeader, hlen int, pos int64) error) error {
+func (s *sourceFile) walk(start, size int64, cid format.CompressionCodec, f func(h *format.PageHeader, hlen int, pos int64) error) error {
 	end := start + size
 	if start < 4 || size < 0 || start > s.size || size > s.size-start {
 		return fmt.Errorf("%w: column chunk of %d bytes at byte %d, in a file of %d", table.ErrCorrupt, size, start, s.size)
@@ -169,10 +266,10 @@ func (s *Source) walk(start, size int64, cid format.CompressionCodec, f func(h *
 	return nil
 }
 
-// copyChunk writes the chunk of leaf column col (at path in the schema, its
+// copyChunk writes the chunk of leaf column col of the file (at path in the schema, its
 // first element the top-level column's name) in row group g to w at offset
 // off, with codec out, and returns its metadata for the output's footer.
-func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int, out codec) (format.ColumnChunk, int64, error) {
+func (s *sourceFile) copyChunk(w io.Writer, off int64, col int, path []string, g int, out codec) (format.ColumnChunk, int64, error) {
 	name := path[0]
 	cc := s.meta.RowGroups[g].Columns[col]
 	md := cc.MetaData
@@ -267,7 +364,7 @@ func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int
 
 // copyPages copies the pages of the byte range [start, start+size) to w as
 // they are, after checking each page's CRC.
-func (s *Source) copyPages(w io.Writer, start, size int64, cid format.CompressionCodec) error {
+func (s *sourceFile) copyPages(w io.Writer, start, size int64, cid format.CompressionCodec) error {
 	var page []byte
 	return s.walk(start, size, cid, func(h *format.PageHeader, hlen int, pos int64) error {
 		// The header and the body in one read.

@@ -131,12 +131,12 @@ func TestCopyChunks(t *testing.T) {
 				// output's codec.
 				meta := r.pf.Metadata()
 				r.Close()
-				if len(meta.RowGroups) != len(s.meta.RowGroups) {
-					t.Fatalf("%d row groups, the source has %d", len(meta.RowGroups), len(s.meta.RowGroups))
+				if len(meta.RowGroups) != len(s.parts[0].meta.RowGroups) {
+					t.Fatalf("%d row groups, the source has %d", len(meta.RowGroups), len(s.parts[0].meta.RowGroups))
 				}
 				for g, rg := range meta.RowGroups {
-					if rg.NumRows != s.meta.RowGroups[g].NumRows {
-						t.Fatalf("row group %d: %d rows, the source's %d", g, rg.NumRows, s.meta.RowGroups[g].NumRows)
+					if rg.NumRows != s.parts[0].meta.RowGroups[g].NumRows {
+						t.Fatalf("row group %d: %d rows, the source's %d", g, rg.NumRows, s.parts[0].meta.RowGroups[g].NumRows)
 					}
 					for _, cc := range rg.Columns {
 						if cc.MetaData.Codec != codecs[comp].id {
@@ -227,7 +227,7 @@ func TestCanCopyChecksPages(t *testing.T) {
 		if err := s.CanCopy("c1"); err != nil {
 			t.Fatalf("undamaged: %v", err)
 		}
-		damage.f(&s.meta.RowGroups[1].Columns[1].MetaData)
+		damage.f(&s.parts[0].meta.RowGroups[1].Columns[1].MetaData)
 		err = s.CanCopy("c1")
 		if err == nil || !strings.Contains(err.Error(), `"c1"`) {
 			t.Errorf("%s: CanCopy = %v, want an error naming the column", damage.name, err)

@@ -263,7 +263,7 @@ func (w *writer) copyColumn(rg *format.RowGroup, t *topColumn) error {
 		if err != nil {
 			return fmt.Errorf("%s: copying: %w", w.name, err)
 		}
-		if len(w.src.meta.ColumnOrders) == 0 {
+		if !w.src.ordered(w.rg) {
 			// Without the source's column orders its min_value and
 			// max_value have no defined meaning; the output declares
 			// type-defined orders, so they are dropped.
@@ -290,10 +290,10 @@ func (w *writer) target() (int, error) {
 	if w.src == nil {
 		return w.rgRows, nil
 	}
-	if w.rg >= len(w.src.meta.RowGroups) {
-		return 0, fmt.Errorf("%s: more rows than %s holds (%d)", w.name, w.src.name, w.src.meta.NumRows)
+	if w.rg >= w.src.numGroups() {
+		return 0, fmt.Errorf("%s: more rows than %s holds (%d)", w.name, w.src.name, w.src.NumRows())
 	}
-	return int(w.src.meta.RowGroups[w.rg].NumRows), nil
+	return int(w.src.groupRows(w.rg)), nil
 }
 
 // Write appends the rows of b.
@@ -601,11 +601,11 @@ func (w *writer) Close() error {
 
 func (w *writer) close() error {
 	if w.src != nil {
-		if w.rows != w.src.meta.NumRows {
-			return fmt.Errorf("%s: %d rows written, %s holds %d", w.name, w.rows, w.src.name, w.src.meta.NumRows)
+		if w.rows != w.src.NumRows() {
+			return fmt.Errorf("%s: %d rows written, %s holds %d", w.name, w.rows, w.src.name, w.src.NumRows())
 		}
 		// The open row group, and any empty ones after it.
-		for w.rg < len(w.src.meta.RowGroups) {
+		for w.rg < w.src.numGroups() {
 			if err := w.flushRowGroup(); err != nil {
 				return err
 			}

@@ -21,6 +21,7 @@ import (
 	"manyfold/io/arrowio"
 	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
+	"manyfold/io/dataset"
 	"manyfold/io/ndjson"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -123,7 +124,9 @@ func (e *inputError) Error() string { return e.msg }
 func (e *inputError) Unwrap() error { return table.ErrUnknownFormat }
 
 // Open opens the table at path ("-" for standard input, read as CSV,
-// NDJSON or an Arrow IPC stream). A file named .ndjson or .jsonl is read as
+// NDJSON or an Arrow IPC stream). A directory, or a glob pattern that names
+// no file, is a dataset: its files read as one table (see package
+// dataset), each opened as a file is here. A file named .ndjson or .jsonl is read as
 // NDJSON unless its bytes say Parquet or Arrow.
 func Open(path string, opts ReadOptions) (table.Reader, error) {
 	name := path
@@ -147,6 +150,18 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 			return arrowio.NewReader(br, name)
 		}
 		return nil, fmt.Errorf("%s: %w", name, ErrParquetStdin)
+	}
+	if dataset.Is(path) {
+		files, err := dataset.List(path)
+		if err != nil {
+			return nil, err
+		}
+		return dataset.New(files, func(p string) (table.Reader, error) {
+			if dataset.Is(p) { // a file that is a pattern, or a race
+				return nil, fmt.Errorf("%s: %w", p, ErrDirectory)
+			}
+			return Open(p, opts)
+		})
 	}
 	fh, err := os.Open(path)
 	if err != nil {
@@ -202,6 +217,22 @@ func Open(path string, opts ReadOptions) (table.Reader, error) {
 		return nil, err
 	}
 	return &closeBoth{Reader: r, f: fh}, nil
+}
+
+// IsParquet reports whether the file at path starts with Parquet's magic
+// bytes.
+func IsParquet(path string) bool {
+	f, err := os.Open(path)
+	if err != nil {
+		return false
+	}
+	defer f.Close()
+	head := make([]byte, 4)
+	if _, err := io.ReadFull(f, head); err != nil {
+		return false
+	}
+	format, err := Detect(head)
+	return err == nil && format == Parquet
 }
 
 // compressed reports whether head starts with gzip's or zstd's magic

@@ -1,0 +1,179 @@
+// Package dataset reads a table stored as many files (the parts a
+// distributed engine writes: a directory of part-*.parquet files, maybe in
+// hive-style key=value folders, or a glob of them) as one table: the files'
+// rows one file after the other, in the order of their paths, with the
+// folders' key=value pairs as text columns.
+//
+// A directory is walked recursively. Files and folders whose names start
+// with "_" or "." are skipped: engines keep their markers, logs and
+// checksums there (_SUCCESS, _delta_log, .part-00000.crc; common practice,
+// not a standard). A folder named key=value gives every file beneath it a
+// column key holding value, unescaped from the URL-style escapes engines
+// write (%2F for a slash); the value __HIVE_DEFAULT_PARTITION__ is a null
+// (the convention of hive-style layouts, common practice).
+package dataset
+
+import (
+	"errors"
+	"fmt"
+	"io/fs"
+	"net/url"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+
+	"manyfold/io/table"
+)
+
+// File is one part of a dataset: its path and the key=value pairs of the
+// folders above it, outermost first.
+type File struct {
+	Path string
+	Keys []Key
+	Size int64 // bytes on disk
+}
+
+// Key is one folder's key=value pair. Null marks the hive-style null
+// partition.
+type Key struct {
+	Name, Value string
+	Null        bool
+}
+
+// nullPartition is the folder value that stands for a null key.
+const nullPartition = "__HIVE_DEFAULT_PARTITION__"
+
+// ErrNoFiles is returned by List for a directory or pattern without table
+// files; it wraps table.ErrEmpty.
+var ErrNoFiles = fmt.Errorf("%w: no table files", table.ErrEmpty)
+
+// IsPattern reports whether path holds a glob metacharacter (*, ? or [),
+// as filepath.Match reads them.
+func IsPattern(path string) bool { return strings.ContainsAny(path, "*?[") }
+
+// Is reports whether path names a dataset: a directory, or a pattern that
+// is not itself the name of a file.
+func Is(path string) bool {
+	fi, err := os.Stat(path)
+	if err == nil {
+		return fi.IsDir()
+	}
+	return IsPattern(path)
+}
+
+// List returns the files of the dataset at path (a directory or a glob
+// pattern; a pattern's matches that are directories are walked too), in
+// the byte order of their paths. Every file must hold the same folder keys
+// in the same order. A directory or pattern with no files gives ErrNoFiles.
+func List(path string) ([]File, error) {
+	var roots []string
+	if fi, err := os.Stat(path); err == nil && fi.IsDir() {
+		roots = []string{path}
+	} else {
+		m, err := filepath.Glob(path)
+		if err != nil {
+			return nil, fmt.Errorf("%s: %w", path, err)
+		}
+		roots = m
+	}
+	var files []File
+	for _, root := range roots {
+		if skipped(filepath.Base(root)) && root != path {
+			continue
+		}
+		err := filepath.WalkDir(root, func(p string, d fs.DirEntry, err error) error {
+			if err != nil {
+				return err
+			}
+			if p != root && skipped(d.Name()) {
+				if d.IsDir() {
+					return filepath.SkipDir
+				}
+				return nil
+			}
+			if d.IsDir() {
+				return nil
+			}
+			fi, err := os.Stat(p) // a link to a file counts as the file
+			if err != nil {
+				return err
+			}
+			if !fi.Mode().IsRegular() {
+				return nil
+			}
+			keys, err := folderKeys(path, root, p)
+			if err != nil {
+				return err
+			}
+			files = append(files, File{Path: p, Keys: keys, Size: fi.Size()})
+			return nil
+		})
+		if err != nil {
+			return nil, fmt.Errorf("%s: %w", path, err)
+		}
+	}
+	if len(files) == 0 {
+		return nil, fmt.Errorf("%s: %w", path, ErrNoFiles)
+	}
+	slices.SortFunc(files, func(a, b File) int { return strings.Compare(a.Path, b.Path) })
+	files = slices.CompactFunc(files, func(a, b File) bool { return a.Path == b.Path })
+	for _, f := range files[1:] {
+		if !sameKeys(f.Keys, files[0].Keys) {
+			return nil, fmt.Errorf("%s: %w: folder keys %s, but %s has %s", f.Path, table.ErrCorrupt, keyNames(f.Keys), files[0].Path, keyNames(files[0].Keys))
+		}
+	}
+	return files, nil
+}
+
+// skipped reports whether a file or folder name is an engine's own (a
+// leading _ or .).
+func skipped(name string) bool { return strings.HasPrefix(name, "_") || strings.HasPrefix(name, ".") }
+
+// folderKeys returns the key=value pairs of the folders between the
+// dataset's root (the directory given, or the fixed part of a pattern)
+// and the file p.
+func folderKeys(path, root, p string) ([]Key, error) {
+	base := path
+	if IsPattern(path) {
+		base = filepath.Dir(path)
+		for IsPattern(base) {
+			base = filepath.Dir(base)
+		}
+	}
+	rel, err := filepath.Rel(base, filepath.Dir(p))
+	if err != nil || rel == "." {
+		return nil, nil
+	}
+	var keys []Key
+	for _, part := range strings.Split(rel, string(filepath.Separator)) {
+		name, value, ok := strings.Cut(part, "=")
+		if !ok || name == "" {
+			continue
+		}
+		k, err1 := url.PathUnescape(name)
+		v, err2 := url.PathUnescape(value)
+		if err := errors.Join(err1, err2); err != nil {
+			return nil, fmt.Errorf("folder %q: %w", part, err)
+		}
+		keys = append(keys, Key{Name: k, Value: v, Null: value == nullPartition})
+	}
+	return keys, nil
+}
+
+// sameKeys reports whether two files have the same folder key names.
+func sameKeys(a, b []Key) bool {
+	return slices.EqualFunc(a, b, func(x, y Key) bool { return x.Name == y.Name })
+}
+
+// keyNames lists key names for a message.
+func keyNames(keys []Key) string {
+	if len(keys) == 0 {
+		return "none"
+	}
+	names := make([]string, len(keys))
+	for i, k := range keys {
+		names[i] = k.Name
+	}
+	return strings.Join(names, ", ")
+}

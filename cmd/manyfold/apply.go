@@ -175,8 +175,8 @@ func checkReportFlags(file, out string, reports []string, failOn string) (pipeli
 		switch {
 		case r == "" || r == "-":
 			return pipeline.Thresholds{}, usagef("--report %q: give a file name", r)
-		case file != "-" && sameFile(file, r):
-			return pipeline.Thresholds{}, usagef("--report %s is the input file; choose another path", r)
+		case reads(file, r):
+			return pipeline.Thresholds{}, usagef("--report %s is the input file or among its files; choose another path", r)
 		case sameOutput(r, out):
 			return pipeline.Thresholds{}, usagef("--report and --out both name %s; give two files", r)
 		}

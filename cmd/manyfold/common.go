@@ -120,8 +120,8 @@ func (f *outputFlags) add(fs *pflag.FlagSet) {
 // in them is a usage error reported at once rather than after a pass over a
 // large input.
 func (f *outputFlags) options(input string) (tableio.WriteOptions, error) {
-	if input != "-" && sameFile(input, f.out) {
-		return tableio.WriteOptions{}, usagef("--out %s is the input file; choose another path", f.out)
+	if reads(input, f.out) {
+		return tableio.WriteOptions{}, usagef("--out %s is the input file or among its files; choose another path", f.out)
 	}
 	format := tableio.Format(f.format)
 	switch format {

@@ -115,8 +115,8 @@ func runCompare(args []string) (err error) {
 		return err
 	}
 	for _, p := range []string{*jsonOut, *report} {
-		if p != "" && file != "-" && sameFile(file, p) {
-			return usagef("%s is the input file; choose another path", p)
+		if reads(file, p) {
+			return usagef("%s is the input file or among its files; choose another path", p)
 		}
 	}
 	if sameOutput(*jsonOut, *report) {

@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"manyfold/encoders/pipeline"
+	"manyfold/io/dataset"
 	"manyfold/io/tableio"
 )
 
@@ -25,10 +26,48 @@ func checkTablesFlag(tables, input, out string) error {
 	if input != "" && input != "-" && within(input, tables) {
 		return usagef("the input %s is inside --tables %s, which the mapping tables replace whole; give another --tables", input, tables)
 	}
+	if input != "" && input != "-" && reads(input, tables) {
+		return usagef("--tables %s is inside the input %s, whose files are all read; give another --tables", tables, input)
+	}
 	if err := pipeline.CheckTablesDir(tables); err != nil {
 		return usagef("--tables %v", err)
 	}
 	return nil
+}
+
+// reads reports whether the input (a file, or a dataset: a directory or a
+// glob pattern, see package dataset) reads path or would read it once it
+// is written: path is the input file, lies in the input directory, or
+// matches the pattern or lies in a folder that matches it.
+func reads(input, path string) bool {
+	if input == "-" || path == "" || path == tableio.Stdout {
+		return false
+	}
+	if !dataset.Is(input) {
+		return sameFile(input, path)
+	}
+	if !dataset.IsPattern(input) || isDir(input) {
+		return within(path, input)
+	}
+	abs, err1 := filepath.Abs(input)
+	p, err2 := filepath.Abs(path)
+	if err1 != nil || err2 != nil {
+		return false
+	}
+	for q := p; ; q = filepath.Dir(q) {
+		if ok, _ := filepath.Match(abs, q); ok {
+			return true
+		}
+		if q == filepath.Dir(q) {
+			return false
+		}
+	}
+}
+
+// isDir reports whether path is a directory.
+func isDir(path string) bool {
+	fi, err := os.Stat(path)
+	return err == nil && fi.IsDir()
 }
 
 // within reports whether path is dir or lies under it.

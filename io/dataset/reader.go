@@ -37,6 +37,8 @@ type Reader struct {
 	out    table.Batch
 	ids    map[uint64]uint64 // the current file's Dict IDs, renumbered
 	nextID uint64
+	seen   [][]table.Field // per file, its columns as first opened
+	floats [][]float64     // per column, integers widened to floats
 	nested []pqio.Nested
 	cols   []int          // the columns read: sel, or every position
 	keyCol []table.Column // per key, the current file's value
@@ -49,20 +51,26 @@ type Reader struct {
 
 // New opens the dataset of files with open (which opens one file as a
 // table), checks that every file has the columns of the first, and returns
-// the reader. A file with a column missing, added or of another kind is an
-// error naming both files and the column.
+// the reader. A file with a column missing, added, renamed or of another
+// kind is an error naming the file and the column, with two exceptions: a
+// column of integers in one file and of floats in another is a float
+// column (CSV infers each file's kinds from its own values), and a file
+// without rows (its kinds inferred from nothing) takes the others' kinds.
 func New(files []File, open func(path string) (table.Reader, error)) (*Reader, error) {
 	if len(files) == 0 {
 		return nil, ErrNoFiles
 	}
 	d := &Reader{files: files, open: open, rows: make([]int64, len(files)), ids: map[uint64]uint64{}}
+	d.seen = make([][]table.Field, len(files))
 	for i, f := range files {
 		r, err := open(f.Path)
 		if err != nil {
 			return nil, err
 		}
-		s := r.Schema()
-		d.rows[i] = table.RowCount(r)
+		d.seen[i] = append([]table.Field(nil), r.Schema().Fields...)
+		if d.rows[i] = table.RowCount(r); d.rows[i] < 0 && isEmpty(r) {
+			d.rows[i] = 0
+		}
 		var nested []pqio.Nested
 		if pr, ok := table.Find[*pqio.Reader](r); ok {
 			nested = pr.Nested()
@@ -77,13 +85,9 @@ func New(files []File, open func(path string) (table.Reader, error)) (*Reader, e
 			return nil, fmt.Errorf("%s: %w: folder keys %s, but %s has %s", f.Path, table.ErrCorrupt, keyNames(f.Keys), files[0].Path, keyNames(files[0].Keys))
 		}
 		d.size += f.Size
-		if i == 0 {
-			d.schema.Fields = append([]table.Field(nil), s.Fields...)
-			continue
-		}
-		if err := d.check(f.Path, s); err != nil {
-			return nil, err
-		}
+	}
+	if err := d.merge(); err != nil {
+		return nil, err
 	}
 	d.width = len(d.schema.Fields)
 	for _, k := range files[0].Keys {
@@ -105,26 +109,55 @@ func New(files []File, open func(path string) (table.Reader, error)) (*Reader, e
 	return d, nil
 }
 
-// check compares a file's columns with the dataset's (the first file's).
-func (d *Reader) check(path string, s *table.Schema) error {
+// merge sets the dataset's columns from the files': the first file's
+// names, every file's (with rows) kinds, widened from integers to floats
+// where files differ so, and nullable where any file's is.
+func (d *Reader) merge() error {
 	first := d.files[0].Path
-	for j, f := range s.Fields {
-		if j >= len(d.schema.Fields) {
-			return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: a column %s does not have", table.ErrCorrupt, first)}
+	d.schema.Fields = append([]table.Field(nil), d.seen[0]...)
+	kindFrom := make([]int, len(d.schema.Fields)) // the file whose kind a column has
+	for i, fields := range d.seen {
+		path := d.files[i].Path
+		for j, f := range fields {
+			if j >= len(d.schema.Fields) {
+				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: a column %s does not have", table.ErrCorrupt, first)}
+			}
+			w := &d.schema.Fields[j]
+			if f.Name != w.Name {
+				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: column %d is %q in %s", table.ErrCorrupt, j+1, w.Name, first)}
+			}
+			w.Nullable = w.Nullable || f.Nullable
+			switch k := f.Kind; {
+			case k == w.Kind || d.rows[i] == 0 || widens(k, w.Kind):
+			case d.rows[kindFrom[j]] == 0 || widens(w.Kind, k):
+				w.Kind, kindFrom[j] = k, i
+			default:
+				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: %s here, %s in %s", table.ErrCorrupt, k, w.Kind, d.files[kindFrom[j]].Path)}
+			}
 		}
-		w := &d.schema.Fields[j]
-		if f.Name != w.Name {
-			return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: column %d is %q in %s", table.ErrCorrupt, j+1, w.Name, first)}
+		if len(fields) < len(d.schema.Fields) {
+			return &table.DataError{File: path, Column: d.schema.Fields[len(fields)].Name, Err: fmt.Errorf("%w: missing here, present in %s", table.ErrCorrupt, first)}
 		}
-		if f.Kind != w.Kind {
-			return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: %s here, %s in %s", table.ErrCorrupt, f.Kind, w.Kind, first)}
-		}
-		w.Nullable = w.Nullable || f.Nullable
 	}
-	if len(s.Fields) < len(d.schema.Fields) {
-		return &table.DataError{File: path, Column: d.schema.Fields[len(s.Fields)].Name, Err: fmt.Errorf("%w: missing here, present in %s", table.ErrCorrupt, first)}
+	// A kind set by a later file is checked against the earlier ones.
+	for i, fields := range d.seen {
+		for j, f := range fields {
+			if w := d.schema.Fields[j]; f.Kind != w.Kind && d.rows[i] != 0 && !widens(f.Kind, w.Kind) {
+				return &table.DataError{File: d.files[i].Path, Column: f.Name, Err: fmt.Errorf("%w: %s here, %s in %s", table.ErrCorrupt, f.Kind, w.Kind, d.files[kindFrom[j]].Path)}
+			}
+		}
 	}
 	return nil
+}
+
+// widens reports whether a column of kind from in one file and of kind to
+// in another is a column of kind to: integers among floats.
+func widens(from, to table.Kind) bool { return from == table.Int64 && to == table.Float64 }
+
+// isEmpty reports whether r holds no rows (it reads its first batch).
+func isEmpty(r table.Reader) bool {
+	_, err := r.Next()
+	return err == io.EOF
 }
 
 // nestedNames lists nested columns for a message.
@@ -253,11 +286,9 @@ func (d *Reader) openFile() error {
 	if err != nil {
 		return err
 	}
-	if d.at > 0 {
-		if err := d.check(f.Path, r.Schema()); err != nil {
-			r.Close()
-			return err
-		}
+	if !slices.EqualFunc(r.Schema().Fields, d.seen[d.at], func(a, b table.Field) bool { return a.Name == b.Name && a.Kind == b.Kind }) {
+		r.Close()
+		return fmt.Errorf("%s: %w: its columns changed while the dataset was read", f.Path, table.ErrCorrupt)
 	}
 	if d.sel != nil {
 		if err := r.Select(d.fsel); err != nil {
@@ -290,7 +321,11 @@ func (d *Reader) batch(b *table.Batch, first int64) *table.Batch {
 	for _, c := range d.cols {
 		if c < d.width {
 			out.Cols = append(out.Cols, b.Cols[fi])
-			d.renumber(&out.Cols[len(out.Cols)-1])
+			col := &out.Cols[len(out.Cols)-1]
+			d.renumber(col)
+			if col.Form == table.FormInt64 && d.schema.Fields[c].Kind == table.Float64 {
+				d.widen(col, c)
+			}
 			fi++
 			continue
 		}
@@ -312,6 +347,20 @@ func (d *Reader) keyColumn(k, rows int) table.Column {
 		c.Nulls = d.trues[:rows]
 	}
 	return c
+}
+
+// widen turns a column of integers into floats (a column that other files
+// hold as floats).
+func (d *Reader) widen(col *table.Column, c int) {
+	if d.floats == nil {
+		d.floats = make([][]float64, d.width)
+	}
+	f := d.floats[c][:0]
+	for _, v := range col.Ints {
+		f = append(f, float64(v))
+	}
+	d.floats[c] = f
+	col.Form, col.Floats, col.Ints = table.FormFloat64, f, nil
 }
 
 // renumber gives a file's dictionary an ID of the dataset's own, the same

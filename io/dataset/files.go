@@ -46,7 +46,12 @@ const nullPartition = "__HIVE_DEFAULT_PARTITION__"
 
 // ErrNoFiles is returned by List for a directory or pattern without table
 // files; it wraps table.ErrEmpty.
-var ErrNoFiles = fmt.Errorf("%w: no table files", table.ErrEmpty)
+var ErrNoFiles error = noFiles{}
+
+type noFiles struct{}
+
+func (noFiles) Error() string { return "holds no table files" }
+func (noFiles) Unwrap() error { return table.ErrEmpty }
 
 // IsPattern reports whether path holds a glob metacharacter (*, ? or [),
 // as filepath.Match reads them.

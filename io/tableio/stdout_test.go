@@ -94,12 +94,14 @@ func TestCreateOverFIFO(t *testing.T) {
 	}
 }
 
-// TestOpenUnreadable: a directory, and Parquet on standard input, are
-// inputs that cannot be read as a table (table.ErrUnknownFormat, exit 3).
+// TestOpenUnreadable: a directory without table files (a dataset of
+// none: table.ErrEmpty), and Parquet on standard input
+// (table.ErrUnknownFormat), are inputs that cannot be read as a table
+// (exit 3).
 func TestOpenUnreadable(t *testing.T) {
 	dir := t.TempDir()
 	_, err := Open(dir, ReadOptions{})
-	if !errors.Is(err, ErrDirectory) || !errors.Is(err, table.ErrUnknownFormat) || !strings.Contains(err.Error(), dir+": is a directory") {
+	if !errors.Is(err, table.ErrEmpty) || err.Error() != dir+": holds no table files" {
 		t.Errorf("a directory: %v", err)
 	}
 	path := filepath.Join(dir, "t.parquet")

@@ -44,6 +44,7 @@ type Reader struct {
 	keyCol []table.Column // per key, the current file's value
 	zeros  []int32
 	trues  []bool
+	row    int64 // rows returned
 	done   int64 // rows of the files read to the end
 	bytes  int64 // bytes of the files read to the end
 	size   int64 // bytes of every file
@@ -91,7 +92,9 @@ func New(files []File, open func(path string) (table.Reader, error)) (*Reader, e
 	}
 	d.width = len(d.schema.Fields)
 	for _, k := range files[0].Keys {
-		if d.schema.Index(k.Name) >= 0 {
+		if i := d.schema.Index(k.Name); i >= d.width {
+			return nil, fmt.Errorf("%s: %w: folder key %q is given twice", files[0].Path, table.ErrCorrupt, k.Name)
+		} else if i >= 0 {
 			return nil, fmt.Errorf("%s: %w: folder key %q is also a column of the files", files[0].Path, table.ErrCorrupt, k.Name)
 		}
 		nullable := false
@@ -198,16 +201,17 @@ func (d *Reader) Select(cols []int) error {
 	if d.cur != nil || d.at > 0 {
 		return errors.New("dataset: Select after Next")
 	}
-	d.fsel = d.fsel[:0]
+	var fsel []int
 	for _, c := range cols {
 		if c < 0 || c >= len(d.schema.Fields) {
 			return fmt.Errorf("dataset: no column %d", c)
 		}
 		if c < d.width {
-			d.fsel = append(d.fsel, c)
+			fsel = append(fsel, c)
 		}
 	}
-	d.sel = append([]int(nil), cols...)
+	// Not nil, even for no columns: nil is every column.
+	d.sel, d.fsel = append([]int{}, cols...), fsel
 	d.cols = d.sel
 	return nil
 }
@@ -265,14 +269,15 @@ func (d *Reader) Next() (*table.Batch, error) {
 			d.cur.Close()
 			d.cur = nil
 			d.bytes += d.files[d.at].Size
+			d.done = d.row
 			d.at++
 			continue
 		}
 		if err != nil {
 			return nil, err
 		}
-		first := d.done + 1
-		d.done += int64(b.Rows)
+		first := d.row + 1
+		d.row += int64(b.Rows)
 		return d.batch(b, first), nil
 	}
 	return nil, io.EOF
@@ -286,9 +291,9 @@ func (d *Reader) openFile() error {
 	if err != nil {
 		return err
 	}
-	if !slices.EqualFunc(r.Schema().Fields, d.seen[d.at], func(a, b table.Field) bool { return a.Name == b.Name && a.Kind == b.Kind }) {
+	if col, ok := changedColumn(r.Schema().Fields, d.seen[d.at]); ok {
 		r.Close()
-		return fmt.Errorf("%s: %w: its columns changed while the dataset was read", f.Path, table.ErrCorrupt)
+		return &table.DataError{File: f.Path, Column: col, Err: fmt.Errorf("%w: the file's columns changed while the dataset was read", table.ErrCorrupt)}
 	}
 	if d.sel != nil {
 		if err := r.Select(d.fsel); err != nil {
@@ -309,6 +314,20 @@ func (d *Reader) openFile() error {
 		d.keyCol[k] = c
 	}
 	return nil
+}
+
+// changedColumn names the first column of now that differs from was in
+// name or kind, or that one of them lacks; ok is false when none does.
+func changedColumn(now, was []table.Field) (name string, ok bool) {
+	for j := range max(len(now), len(was)) {
+		switch {
+		case j >= len(now):
+			return was[j].Name, true
+		case j >= len(was) || now[j].Name != was[j].Name || now[j].Kind != was[j].Kind:
+			return now[j].Name, true
+		}
+	}
+	return "", false
 }
 
 // batch returns b renumbered into the dataset's rows, with its

@@ -8,16 +8,24 @@ import (
 	"strings"
 
 	"manyfold/encoders/method"
+	"manyfold/io/dataset"
 )
 
 // Encode returns the manyfold encode command that encodes the columns of
 // file with plan (its per-column form when the columns differ), target
 // the target column ("" for none), then flags as given, writing
-// STEM_encoded.EXT and the mapping tables STEM_tables beside file.
+// STEM_encoded.EXT and the mapping tables STEM_tables beside file (for a
+// dataset, a directory or a pattern: DIR_encoded.parquet and DIR_tables
+// beside the folder that holds its files).
 func Encode(file, target string, plan method.Plan, flags ...string) string {
 	ext := filepath.Ext(file)
 	stem := strings.TrimSuffix(file, ext)
-	if ext == "" || file == "-" {
+	switch {
+	case file == "-":
+		stem, ext = "encoded", ".parquet"
+	case dataset.Is(file):
+		stem, ext = dataset.Root(file), ".parquet"
+	case ext == "":
 		stem, ext = "encoded", ".parquet"
 	}
 	args := []string{"manyfold", "encode", file}

@@ -72,19 +72,17 @@ func Is(path string) bool {
 // the byte order of their paths. Every file must hold the same folder keys
 // in the same order. A directory or pattern with no files gives ErrNoFiles.
 func List(path string) ([]File, error) {
-	var roots []string
-	if fi, err := os.Stat(path); err == nil && fi.IsDir() {
-		roots = []string{path}
-	} else {
+	roots, base := []string{path}, path
+	if fi, err := os.Stat(path); err != nil || !fi.IsDir() {
 		m, err := filepath.Glob(path)
 		if err != nil {
 			return nil, fmt.Errorf("%s: %w", path, err)
 		}
-		roots = m
+		roots, base = m, patternBase(path)
 	}
 	var files []File
 	for _, root := range roots {
-		if skipped(filepath.Base(root)) && root != path {
+		if root != path && skippedMatch(base, path, root) {
 			continue
 		}
 		err := filepath.WalkDir(root, func(p string, d fs.DirEntry, err error) error {
@@ -107,7 +105,7 @@ func List(path string) ([]File, error) {
 			if !fi.Mode().IsRegular() {
 				return nil
 			}
-			keys, err := folderKeys(path, root, p)
+			keys, err := folderKeys(base, p)
 			if err != nil {
 				return err
 			}
@@ -131,21 +129,57 @@ func List(path string) ([]File, error) {
 	return files, nil
 }
 
+// Root returns the folder a dataset's files lie under: the directory path
+// names, or the longest leading folder of a pattern that holds no
+// metacharacter. Folder keys are read below it.
+func Root(path string) string {
+	if !IsPattern(path) {
+		return filepath.Clean(path)
+	}
+	base := filepath.Dir(path)
+	for IsPattern(base) {
+		base = filepath.Dir(base)
+	}
+	return base
+}
+
 // skipped reports whether a file or folder name is an engine's own (a
 // leading _ or .).
 func skipped(name string) bool { return strings.HasPrefix(name, "_") || strings.HasPrefix(name, ".") }
 
-// folderKeys returns the key=value pairs of the folders between the
-// dataset's root (the directory given, or the fixed part of a pattern)
-// and the file p.
-func folderKeys(path, root, p string) ([]Key, error) {
-	base := path
-	if IsPattern(path) {
-		base = filepath.Dir(path)
-		for IsPattern(base) {
-			base = filepath.Dir(base)
+// patternBase returns the fixed part of a pattern: the folders before its
+// first element with a metacharacter.
+func patternBase(pattern string) string {
+	base := filepath.Dir(pattern)
+	for IsPattern(base) {
+		base = filepath.Dir(base)
+	}
+	return base
+}
+
+// skippedMatch reports whether a match of pattern (whose fixed part is
+// base) is an engine's entry or lies in one: whether a name that one of
+// the pattern's wildcard elements matched is skipped. Names the pattern
+// spells out are kept.
+func skippedMatch(base, pattern, match string) bool {
+	pr, err1 := filepath.Rel(base, pattern)
+	mr, err2 := filepath.Rel(base, match)
+	ps, ms := strings.Split(pr, string(filepath.Separator)), strings.Split(mr, string(filepath.Separator))
+	if err1 != nil || err2 != nil || len(ps) != len(ms) {
+		return skipped(filepath.Base(match))
+	}
+	for i, name := range ms {
+		if IsPattern(ps[i]) && skipped(name) {
+			return true
 		}
 	}
+	return false
+}
+
+// folderKeys returns the key=value pairs of the folders between the
+// dataset's root base (the directory given, or the fixed part of a
+// pattern) and the file p.
+func folderKeys(base, p string) ([]Key, error) {
 	rel, err := filepath.Rel(base, filepath.Dir(p))
 	if err != nil || rel == "." {
 		return nil, nil

@@ -6,7 +6,10 @@
 // (folds.Row(foldSeed, row, k)) for the SQL peer, which joins it by
 // position.
 //
-//	gen --rows 1000000 --dir DATA [--seed 11] [--no-shipment-id] [--formats parquet,csv]
+// With --parts N it also writes the same rows as N Parquet files, a
+// dataset in DATA/shipments.parts.
+//
+//	gen --rows 1000000 --dir DATA [--seed 11] [--no-shipment-id] [--formats parquet,csv] [--parts N]
 package main
 
 import (
@@ -34,18 +37,19 @@ func main() {
 	k := flag.Int("folds", 5, "manyfold --folds")
 	noFolds := flag.Bool("no-folds-file", false, "do not write folds.parquet")
 	repeat := flag.Int64("repeat", 1, "write the first rows/repeat rows this many times (the same levels, more rows)")
+	parts := flag.Int("parts", 0, "also write the Parquet table as this many files, shipments.parts/part-NNNNN.parquet (a dataset)")
 	flag.Parse()
 	if *repeat < 1 || *rows%*repeat != 0 {
 		fmt.Fprintf(os.Stderr, "gen: --repeat %d must be at least 1 and divide --rows %d\n", *repeat, *rows)
 		os.Exit(2)
 	}
-	if err := run(*rows, *seed, *dir, *formats, *noID, *foldSeed, *k, !*noFolds, *repeat); err != nil {
+	if err := run(*rows, *seed, *dir, *formats, *noID, *foldSeed, *k, !*noFolds, *repeat, *parts); err != nil {
 		fmt.Fprintln(os.Stderr, "gen:", err)
 		os.Exit(1)
 	}
 }
 
-func run(rows int64, seed uint64, dir, formats string, noID bool, foldSeed uint64, k int, writeFolds bool, repeat int64) error {
+func run(rows int64, seed uint64, dir, formats string, noID bool, foldSeed uint64, k int, writeFolds bool, repeat int64, parts int) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return err
 	}
@@ -65,6 +69,13 @@ func run(rows int64, seed uint64, dir, formats string, noID bool, foldSeed uint6
 			return err
 		}
 		fmt.Fprintf(os.Stderr, "gen: %s (%d rows) in %.1fs\n", path, rows, time.Since(start).Seconds())
+	}
+	if parts > 0 {
+		start := time.Now()
+		if err := writeParts(filepath.Join(dir, "shipments.parts"), parts, rows, seed, noID); err != nil {
+			return err
+		}
+		fmt.Fprintf(os.Stderr, "gen: %d parts (%d rows) in %.1fs\n", parts, rows, time.Since(start).Seconds())
 	}
 	if writeFolds {
 		path := filepath.Join(dir, "folds.parquet")
@@ -102,6 +113,72 @@ func writeTable(path string, rows int64, seed uint64, noID bool, repeat int64) e
 		}
 	}
 	return out.Commit()
+}
+
+// writeParts writes the table as n Parquet files in dir, each of about
+// rows/n rows (cut at the generator's batches), in row order.
+func writeParts(dir string, n int, rows int64, seed uint64, noID bool) error {
+	if err := os.RemoveAll(dir); err != nil {
+		return err
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return err
+	}
+	schema := parcels.Schema()
+	if noID {
+		schema = &table.Schema{Fields: schema.Fields[1:]}
+	}
+	p := &partWriter{dir: dir, schema: schema, n: n, quota: rows / int64(n)}
+	var w table.Writer = p
+	if noID {
+		w = &dropFirst{w: p}
+	}
+	if err := parcels.Generate(config(rows, seed), w); err != nil {
+		if p.out != nil {
+			p.out.Abort()
+		}
+		return err
+	}
+	return w.Close()
+}
+
+// partWriter writes batches into part files, the next part once a part
+// holds its quota of rows (the last takes the rest).
+type partWriter struct {
+	dir    string
+	schema *table.Schema
+	n      int
+	quota  int64
+	part   int
+	rows   int64 // in the open part
+	out    *tableio.Output
+}
+
+func (p *partWriter) Write(b *table.Batch) error {
+	if p.out != nil && p.rows >= p.quota && p.part < p.n {
+		if err := p.out.Commit(); err != nil {
+			return err
+		}
+		p.out = nil
+	}
+	if p.out == nil {
+		var err error
+		path := filepath.Join(p.dir, fmt.Sprintf("part-%05d.parquet", p.part))
+		if p.out, err = tableio.Create(path, p.schema, tableio.WriteOptions{Parquet: pqio.WriterOptions{RowGroupRows: 1 << 20}}); err != nil {
+			return err
+		}
+		p.part++
+		p.rows = 0
+	}
+	p.rows += int64(b.Rows)
+	return p.out.Write(b)
+}
+
+func (p *partWriter) Close() error {
+	if p.out == nil {
+		return nil
+	}
+	return p.out.Commit()
 }
 
 // dropFirst passes batches on without their first column.

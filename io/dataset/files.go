@@ -72,13 +72,13 @@ func Is(path string) bool {
 // the byte order of their paths. Every file must hold the same folder keys
 // in the same order. A directory or pattern with no files gives ErrNoFiles.
 func List(path string) ([]File, error) {
-	roots, base := []string{path}, path
+	roots, base := []string{path}, Root(path)
 	if fi, err := os.Stat(path); err != nil || !fi.IsDir() {
 		m, err := filepath.Glob(path)
 		if err != nil {
 			return nil, fmt.Errorf("%s: %w", path, err)
 		}
-		roots, base = m, patternBase(path)
+		roots = m
 	}
 	var files []File
 	for _, root := range roots {
@@ -130,10 +130,11 @@ func List(path string) ([]File, error) {
 }
 
 // Root returns the folder a dataset's files lie under: the directory path
-// names, or the longest leading folder of a pattern that holds no
-// metacharacter. Folder keys are read below it.
+// names (even one whose name holds a metacharacter), or the longest
+// leading folder of a pattern that holds no metacharacter. Folder keys are
+// read below it.
 func Root(path string) string {
-	if !IsPattern(path) {
+	if fi, err := os.Stat(path); (err == nil && fi.IsDir()) || !IsPattern(path) {
 		return filepath.Clean(path)
 	}
 	base := filepath.Dir(path)
@@ -146,16 +147,6 @@ func Root(path string) string {
 // skipped reports whether a file or folder name is an engine's own (a
 // leading _ or .).
 func skipped(name string) bool { return strings.HasPrefix(name, "_") || strings.HasPrefix(name, ".") }
-
-// patternBase returns the fixed part of a pattern: the folders before its
-// first element with a metacharacter.
-func patternBase(pattern string) string {
-	base := filepath.Dir(pattern)
-	for IsPattern(base) {
-		base = filepath.Dir(base)
-	}
-	return base
-}
 
 // skippedMatch reports whether a match of pattern (whose fixed part is
 // base) is an engine's entry or lies in one: whether a name that one of

@@ -228,6 +228,14 @@ func TestDatasetRefusals(t *testing.T) {
 	if r.code != exitInput || !strings.Contains(r.stderr, odd) || !strings.Contains(r.stderr, "late") || strings.Count(strings.TrimSpace(r.stderr), "\n") != 0 {
 		t.Errorf("a part whose column is text: exit %d, %q", r.code, r.stderr)
 	}
+	// A ragged row makes the part infer other kinds: the row is named,
+	// not the kinds.
+	os.Remove(odd)
+	writeFile(t, dir, "part-00009.csv", "postcode,sender,route,parcel_type,late,cost\nPC1,ACC-1,R1,small,1,3.5,9\n")
+	r = runCLI(t, "scan", dir)
+	if r.code != exitData || !strings.Contains(r.stderr, odd+":2: 7 fields, header has 6") {
+		t.Errorf("a ragged part: exit %d, %q", r.code, r.stderr)
+	}
 	empty := filepath.Join(root, "empty")
 	os.MkdirAll(filepath.Join(empty, "_temporary"), 0o755)
 	r = runCLI(t, "scan", empty)

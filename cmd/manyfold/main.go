@@ -93,7 +93,9 @@ Usage:
   manyfold version                   the version (also --version)
 
 FILE is CSV or newline-delimited JSON (either optionally gzip or zstd
-compressed), Parquet or Arrow IPC; "-" reads standard input.
+compressed), Parquet or Arrow IPC; "-" reads standard input; a directory or
+a quoted pattern ('parts/*.parquet') reads its files as one table, in path
+order, key=value folders as columns.
 Run "manyfold help COMMAND" (or "manyfold COMMAND --help") for a command's help and flags.
 
 ` + exitCodesText()

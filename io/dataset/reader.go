@@ -88,7 +88,7 @@ func New(files []File, open func(path string) (table.Reader, error)) (*Reader, e
 		d.size += f.Size
 	}
 	if err := d.merge(); err != nil {
-		return nil, err
+		return nil, d.dataErrorFirst(err)
 	}
 	d.width = len(d.schema.Fields)
 	for _, k := range files[0].Keys {
@@ -123,11 +123,11 @@ func (d *Reader) merge() error {
 		path := d.files[i].Path
 		for j, f := range fields {
 			if j >= len(d.schema.Fields) {
-				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: a column %s does not have", table.ErrCorrupt, first)}
+				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("a column %s does not have (%w)", first, ErrParts)}
 			}
 			w := &d.schema.Fields[j]
 			if f.Name != w.Name {
-				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: column %d is %q in %s", table.ErrCorrupt, j+1, w.Name, first)}
+				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("column %d is %q in %s (%w)", j+1, w.Name, first, ErrParts)}
 			}
 			w.Nullable = w.Nullable || f.Nullable
 			switch k := f.Kind; {
@@ -135,22 +135,53 @@ func (d *Reader) merge() error {
 			case d.rows[kindFrom[j]] == 0 || widens(w.Kind, k):
 				w.Kind, kindFrom[j] = k, i
 			default:
-				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%w: %s here, %s in %s", table.ErrCorrupt, k, w.Kind, d.files[kindFrom[j]].Path)}
+				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%s here, %s in %s (%w)", k, w.Kind, d.files[kindFrom[j]].Path, ErrParts)}
 			}
 		}
 		if len(fields) < len(d.schema.Fields) {
-			return &table.DataError{File: path, Column: d.schema.Fields[len(fields)].Name, Err: fmt.Errorf("%w: missing here, present in %s", table.ErrCorrupt, first)}
+			return &table.DataError{File: path, Column: d.schema.Fields[len(fields)].Name, Err: fmt.Errorf("missing here, present in %s (%w)", first, ErrParts)}
 		}
 	}
 	// A kind set by a later file is checked against the earlier ones.
 	for i, fields := range d.seen {
 		for j, f := range fields {
 			if w := d.schema.Fields[j]; f.Kind != w.Kind && d.rows[i] != 0 && !widens(f.Kind, w.Kind) {
-				return &table.DataError{File: d.files[i].Path, Column: f.Name, Err: fmt.Errorf("%w: %s here, %s in %s", table.ErrCorrupt, f.Kind, w.Kind, d.files[kindFrom[j]].Path)}
+				return &table.DataError{File: d.files[i].Path, Column: f.Name, Err: fmt.Errorf("%s here, %s in %s (%w)", f.Kind, w.Kind, d.files[kindFrom[j]].Path, ErrParts)}
 			}
 		}
 	}
 	return nil
+}
+
+// ErrParts is wrapped by the errors of files whose columns differ from
+// the other files' of their dataset; it wraps table.ErrCorrupt.
+var ErrParts error = partsError{}
+
+type partsError struct{}
+
+func (partsError) Error() string { return "every file of a dataset must hold the same columns" }
+func (partsError) Unwrap() error { return table.ErrCorrupt }
+
+// dataErrorFirst returns, for err naming a file whose columns differ, the
+// first error that reading the file gives, if any: a CSV file's ragged
+// row makes it infer other kinds, and the row says more than the kinds.
+func (d *Reader) dataErrorFirst(err error) error {
+	var de *table.DataError
+	if !errors.As(err, &de) {
+		return err
+	}
+	r, oerr := d.open(de.File)
+	if oerr != nil {
+		return oerr
+	}
+	defer r.Close()
+	for {
+		if _, rerr := r.Next(); rerr == io.EOF {
+			return err
+		} else if rerr != nil {
+			return rerr
+		}
+	}
 }
 
 // widens reports whether a column of kind from in one file and of kind to

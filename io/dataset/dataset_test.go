@@ -224,6 +224,7 @@ func TestList(t *testing.T) {
 		name  string
 		files []string // relative to the root; each holds a few bytes
 		dirs  []string // empty folders
+		links []string // symbolic links, each "LINK TARGET" (the target relative to the link's folder)
 		path  string   // relative to the root ("" for the root itself)
 		want  []string // relative paths, each followed by " " and its keys
 		err   error    // an error it wraps, when the listing fails
@@ -360,6 +361,27 @@ func TestList(t *testing.T) {
 			want:  []string{"run=[1]/k=1/p.csv k=1"},
 		},
 		{
+			name:  "root is a link to a directory",
+			files: []string{"real/k=1/p.csv", "real/_SUCCESS"},
+			links: []string{"latest real"},
+			path:  "latest",
+			want:  []string{"latest/k=1/p.csv k=1"},
+		},
+		{
+			name:  "pattern's matches are links to directories",
+			files: []string{"store/a/p.csv", "store/b/p.csv"},
+			links: []string{"ds/k=1 ../store/a", "ds/k=2 ../store/b"},
+			path:  "ds/k=*",
+			want:  []string{"ds/k=1/p.csv k=1", "ds/k=2/p.csv k=2"},
+		},
+		{
+			name:  "links to files",
+			files: []string{"store/a.csv"},
+			links: []string{"ds/k=1/p.csv ../../store/a.csv"},
+			path:  "ds",
+			want:  []string{"ds/k=1/p.csv k=1"},
+		},
+		{
 			name:  "root given itself starts with _",
 			files: []string{"_out/p.csv"},
 			path:  "_out",
@@ -374,6 +396,16 @@ func TestList(t *testing.T) {
 			for _, d := range tc.dirs {
 				if err := os.MkdirAll(filepath.Join(root, d), 0o755); err != nil {
 					t.Fatal(err)
+				}
+			}
+			for _, l := range tc.links {
+				link, target, _ := strings.Cut(l, " ")
+				link = filepath.Join(root, filepath.FromSlash(link))
+				if err := os.MkdirAll(filepath.Dir(link), 0o755); err != nil {
+					t.Fatal(err)
+				}
+				if err := os.Symlink(filepath.FromSlash(target), link); err != nil {
+					t.Skipf("symbolic links: %v", err)
 				}
 			}
 			path := filepath.Join(root, filepath.FromSlash(tc.path))

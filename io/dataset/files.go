@@ -85,11 +85,12 @@ func List(path string) ([]File, error) {
 		if root != path && skippedMatch(base, path, root) {
 			continue
 		}
-		err := filepath.WalkDir(root, func(p string, d fs.DirEntry, err error) error {
+		top := walkRoot(root)
+		err := filepath.WalkDir(top, func(p string, d fs.DirEntry, err error) error {
 			if err != nil {
 				return err
 			}
-			if p != root && skipped(d.Name()) {
+			if p != top && skipped(d.Name()) {
 				if d.IsDir() {
 					return filepath.SkipDir
 				}
@@ -142,6 +143,21 @@ func Root(path string) string {
 		base = filepath.Dir(base)
 	}
 	return base
+}
+
+// walkRoot returns root as filepath.WalkDir is to be given it: a link to
+// a directory (a "latest" link to the last run's output) with a trailing
+// separator, which makes its target the directory walked (WalkDir follows
+// no link, not even its root's). The files' paths still start with root.
+// Links to directories below the root are not followed.
+func walkRoot(root string) string {
+	if fi, err := os.Lstat(root); err != nil || fi.Mode()&fs.ModeSymlink == 0 {
+		return root
+	}
+	if fi, err := os.Stat(root); err == nil && fi.IsDir() {
+		return root + string(filepath.Separator)
+	}
+	return root
 }
 
 // skipped reports whether a file or folder name is an engine's own (a

@@ -10,6 +10,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/parquet-go/parquet-go"
+
 	"manyfold/io/csvio"
 	"manyfold/io/dataset"
 	"manyfold/io/pqio"
@@ -847,6 +849,12 @@ func TestReaderNullable(t *testing.T) {
 // TestReaderSelect selects file and key columns in any order, key columns
 // first, key columns only and none at all.
 func TestReaderSelect(t *testing.T) {
+	for _, ext := range []string{"parquet", "csv"} {
+		t.Run(ext, func(t *testing.T) { testReaderSelect(t, ext) })
+	}
+}
+
+func testReaderSelect(t *testing.T, ext string) {
 	root := t.TempDir()
 	fields := []table.Field{fieldsAB[0], fieldsAB[1], {Name: "c", Kind: table.Float64, Nullable: true}}
 	rows := func(tag string, n int) [][]string {
@@ -856,9 +864,9 @@ func TestReaderSelect(t *testing.T) {
 		}
 		return out
 	}
-	writePart(t, root, part{path: "y=2023/m=1/p.parquet", fields: fields, rows: rows("a", 3)})
-	writePart(t, root, part{path: "y=2023/m=2/p.parquet", fields: fields, rows: nil})
-	writePart(t, root, part{path: "y=2024/m=__HIVE_DEFAULT_PARTITION__/p.parquet", fields: fields, rows: rows("b", 2), rg: 1})
+	writePart(t, root, part{path: "y=2023/m=1/p." + ext, fields: fields, rows: rows("a", 3)})
+	writePart(t, root, part{path: "y=2023/m=2/p." + ext, fields: fields, rows: nil})
+	writePart(t, root, part{path: "y=2024/m=__HIVE_DEFAULT_PARTITION__/p." + ext, fields: fields, rows: rows("b", 2), rg: 1})
 	files, err := dataset.List(root)
 	if err != nil {
 		t.Fatal(err)
@@ -892,9 +900,11 @@ func TestReaderSelect(t *testing.T) {
 				t.Fatalf("schema %v, want %v", got, names)
 			}
 			got := readAll(t, d)
-			// A batch a row group; the empty file has none.
-			if !slices.Equal(got.batches, []int{3, 1, 1}) {
-				t.Errorf("batches %v, want [3 1 1]", got.batches)
+			// A batch a row group (the empty file has none), or a
+			// batch a CSV file.
+			want := map[string][]int{"parquet": {3, 1, 1}, "csv": {3, 2}}[ext]
+			if !slices.Equal(got.batches, want) {
+				t.Errorf("batches %v, want %v", got.batches, want)
 			}
 			for i, c := range sel {
 				if !slices.Equal(got.cols[i], all.cols[c]) {
@@ -1118,5 +1128,60 @@ func TestReaderDictIDs(t *testing.T) {
 	}
 	if a7.ID != 7 || b7.ID != 7 || a8.ID != 8 {
 		t.Errorf("the files' dictionaries were changed: IDs %d %d %d", a7.ID, b7.ID, a8.ID)
+	}
+}
+
+// tagged and plain are rows of Parquet parts with and without a nested
+// column (a list), written by parquet-go.
+type tagged struct {
+	ID   int64    `parquet:"id"`
+	Tags []string `parquet:"tags,list"`
+	City string   `parquet:"city"`
+}
+
+type plain struct {
+	ID   int64  `parquet:"id"`
+	City string `parquet:"city"`
+}
+
+// writeRows writes rows as a Parquet file at path with parquet-go.
+func writeRows[T any](t *testing.T, path string, rows []T) {
+	t.Helper()
+	if err := parquet.WriteFile(path, rows); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// TestReaderNested: the parts' nested columns (not read, copied whole by a
+// Parquet output) must be the same in every part.
+func TestReaderNested(t *testing.T) {
+	root := t.TempDir()
+	writeRows(t, filepath.Join(root, "p0.parquet"), []tagged{{1, []string{"a"}, "x"}, {2, nil, "y"}})
+	writeRows(t, filepath.Join(root, "p1.parquet"), []tagged{{3, []string{"b", "c"}, "z"}})
+	files, err := dataset.List(root)
+	if err != nil {
+		t.Fatal(err)
+	}
+	d, err := dataset.New(files, openFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n := d.Nested(); !slices.Equal(n, []pqio.Nested{{Name: "tags", Kind: "list", Before: 1}}) {
+		t.Errorf("Nested %v", n)
+	}
+	got := readAll(t, d)
+	d.Close()
+	if !slices.Equal(got.names, []string{"id", "city"}) || !slices.Equal(got.cols[1], []string{"x", "y", "z"}) {
+		t.Errorf("%v %q", got.names, got.cols)
+	}
+
+	p2 := filepath.Join(root, "p2.parquet")
+	writeRows(t, p2, []plain{{4, "w"}})
+	if files, err = dataset.List(root); err != nil {
+		t.Fatal(err)
+	}
+	_, err = dataset.New(files, openFile)
+	if !errors.Is(err, table.ErrCorrupt) || !strings.Contains(err.Error(), p2) || !strings.Contains(err.Error(), "tags") {
+		t.Errorf("New with a part without the nested column: %v, want ErrCorrupt naming %s and tags", err, p2)
 	}
 }

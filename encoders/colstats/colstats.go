@@ -38,7 +38,12 @@ const (
 var taskNames = [...]string{Binary: "binary", Multiclass: "multiclass", Regression: "regression"}
 
 // String returns binary, multiclass or regression.
-func (t Task) String() string { return taskNames[t] }
+func (t Task) String() string {
+	if int(t) < len(taskNames) {
+		return taskNames[t]
+	}
+	return fmt.Sprintf("task(%d)", uint8(t))
+}
 
 // ParseTask parses a task name.
 func ParseTask(s string) (Task, error) {

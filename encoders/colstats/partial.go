@@ -1,0 +1,267 @@
+package colstats
+
+import (
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"math"
+	"math/bits"
+
+	"manyfold/encoders/exactsum"
+	"manyfold/encoders/levels"
+)
+
+// The partial form of statistics: the levels of one partition of a
+// column's statistics, as a shard of a table sends them to be merged with
+// the other shards' (a stage of a sharded fit, see package pipeline's
+// shards.go). A level's partition is the top bits of the XXH64 hash of its
+// bytes (levels.Hash): the level table indexes by the low bits, and
+// partitioning by them too would crowd each partition's levels into a
+// fraction of its table's slots. The null level is in partition 0.
+//
+// Layout, every integer an unsigned varint unless said otherwise:
+//
+//	"MFP1"                          magic
+//	task (1 byte), folds, classes   as Stats (classes 0 for regression)
+//	origin                          8 bytes, little-endian float64 bits
+//	levels                          the number of levels that follow
+//	per level:
+//	  key                           0 for the null level, else len(bytes)+1, then the bytes
+//	  rows                          the level's rows outside its cells (see Stats.rows)
+//	  cells                         the number of non-empty folds that follow
+//	  per non-empty fold:
+//	    fold
+//	    classification: classes counts
+//	    regression: n, then sum and sum of squares about origin, each as
+//	      its length and exactsum's canonical binary form
+//	  extra                         its length, then the caller's bytes
+//
+// Levels appear in slot order, which is the shard's first-seen order: the
+// form is the same for the same rows read the same way, and merging does
+// not depend on it.
+
+// partialMagic starts every partial.
+var partialMagic = []byte("MFP1")
+
+// ErrPartial is the error of bytes that are not a partial of the
+// statistics they are merged into.
+var ErrPartial = errors.New("not partial statistics of this column")
+
+// Partition returns the partition, of parts (a power of two), of a level's
+// bytes; the null level (nil) is in partition 0.
+func Partition(b []byte, null bool, parts int) int {
+	if null || parts <= 1 {
+		return 0
+	}
+	return int(levels.Hash(b) >> (64 - bits.TrailingZeros(uint(parts))))
+}
+
+// AppendPartial appends to b the partial form of the levels of partition
+// part of parts (a power of two, 1 for every level), with each level's
+// extra bytes (extra may be nil). The statistics must not be sealed.
+func (s *Stats) AppendPartial(b []byte, part, parts int, extra func(b []byte, l int) []byte) []byte {
+	b = append(b, partialMagic...)
+	b = append(b, byte(s.Task))
+	b = binary.AppendUvarint(b, uint64(s.Folds))
+	b = binary.AppendUvarint(b, uint64(s.Classes))
+	b = binary.LittleEndian.AppendUint64(b, math.Float64bits(s.Origin))
+	var ls []int
+	for l := 0; l < s.n; l++ {
+		if s.RowCount(l) > 0 && Partition(s.Bytes(l), l == 0, parts) == part {
+			ls = append(ls, l)
+		}
+	}
+	b = binary.AppendUvarint(b, uint64(len(ls)))
+	var scratch []byte
+	for _, l := range ls {
+		if l == 0 {
+			b = append(b, 0)
+		} else {
+			k := s.Bytes(l)
+			b = binary.AppendUvarint(b, uint64(len(k))+1)
+			b = append(b, k...)
+		}
+		b = binary.AppendUvarint(b, s.rows.get(l))
+		b = s.appendCells(b, l)
+		scratch = scratch[:0]
+		if extra != nil {
+			scratch = extra(scratch, l)
+		}
+		b = binary.AppendUvarint(b, uint64(len(scratch)))
+		b = append(b, scratch...)
+	}
+	return b
+}
+
+// appendCells appends the non-empty folds of level l.
+func (s *Stats) appendCells(b []byte, l int) []byte {
+	filled := 0
+	for f := 0; f < s.Folds; f++ {
+		if s.cellRows(l, f) > 0 {
+			filled++
+		}
+	}
+	b = binary.AppendUvarint(b, uint64(filled))
+	var sum, sq exactsum.Sum
+	var buf []byte
+	for f := 0; f < s.Folds; f++ {
+		n := s.cellRows(l, f)
+		if n == 0 {
+			continue
+		}
+		b = binary.AppendUvarint(b, uint64(f))
+		if s.Task != Regression {
+			for c := 0; c < s.Classes; c++ {
+				b = binary.AppendUvarint(b, s.cls.get(l, f*s.Classes+c))
+			}
+			continue
+		}
+		b = binary.AppendUvarint(b, n)
+		sum, sq = exactsum.Sum{}, exactsum.Sum{}
+		s.exactCell(l, f, &sum, &sq)
+		for _, v := range []*exactsum.Sum{&sum, &sq} {
+			buf = v.AppendBinary(buf[:0])
+			b = binary.AppendUvarint(b, uint64(len(buf)))
+			b = append(b, buf...)
+		}
+	}
+	return b
+}
+
+// cellRows returns the rows counted in cell (l, f): of known target.
+func (s *Stats) cellRows(l, f int) uint64 {
+	if s.Task == Regression {
+		return uint64(s.cnt.row(l)[f])
+	}
+	var n uint64
+	for c := 0; c < s.Classes; c++ {
+		n += s.cls.get(l, f*s.Classes+c)
+	}
+	return n
+}
+
+// partialReader reads a partial's fields, every length checked against
+// the bytes left.
+type partialReader struct {
+	b   []byte
+	err error
+}
+
+func (r *partialReader) uvarint(max uint64) uint64 {
+	if r.err != nil {
+		return 0
+	}
+	v, n := binary.Uvarint(r.b)
+	if n <= 0 || v > max {
+		r.err = ErrPartial
+		return 0
+	}
+	r.b = r.b[n:]
+	return v
+}
+
+func (r *partialReader) bytes(n uint64) []byte {
+	if r.err != nil {
+		return nil
+	}
+	if n > uint64(len(r.b)) {
+		r.err = ErrPartial
+		return nil
+	}
+	out := r.b[:n]
+	r.b = r.b[n:]
+	return out
+}
+
+// MergePartial adds the levels of a partial (AppendPartial) to s: the same
+// task, folds and classes (classes in the same order), a regression
+// target's sums moved exactly from the partial's origin to s's. extra,
+// when not nil, is given each level's slot in s and its extra bytes. s
+// must not be sealed. Bytes that are not such a partial give an error
+// wrapping ErrPartial, and allocate no more than they hold.
+func (s *Stats) MergePartial(b []byte, extra func(l int, data []byte) error) error {
+	r := &partialReader{b: b}
+	if string(r.bytes(uint64(len(partialMagic)))) != string(partialMagic) || r.err != nil {
+		return fmt.Errorf("%w: no magic bytes", ErrPartial)
+	}
+	tb := r.bytes(1)
+	folds := r.uvarint(math.MaxInt32)
+	classes := r.uvarint(math.MaxInt32)
+	ob := r.bytes(8)
+	if r.err != nil {
+		return r.err
+	}
+	if task := Task(tb[0]); task != s.Task || folds != uint64(s.Folds) || classes != uint64(s.Classes) {
+		return fmt.Errorf("%w: %s with %d folds and %d classes, not %s with %d and %d", ErrPartial, Task(tb[0]), folds, classes, s.Task, s.Folds, s.Classes)
+	}
+	origin := math.Float64frombits(binary.LittleEndian.Uint64(ob))
+	if math.IsNaN(origin) || math.IsInf(origin, 0) {
+		return fmt.Errorf("%w: origin %v", ErrPartial, origin)
+	}
+	// Every level takes at least 4 bytes (key, rows, cells, extra).
+	n := r.uvarint(uint64(len(r.b)) / 4)
+	for i := uint64(0); i < n && r.err == nil; i++ {
+		if err := s.mergeLevel(r, origin, extra); err != nil {
+			return err
+		}
+	}
+	if r.err == nil && len(r.b) != 0 {
+		r.err = fmt.Errorf("%w: %d bytes after the last level", ErrPartial, len(r.b))
+	}
+	return r.err
+}
+
+// mergeLevel reads one level of a partial into s.
+func (s *Stats) mergeLevel(r *partialReader, origin float64, extra func(l int, data []byte) error) error {
+	key := r.uvarint(uint64(len(r.b)))
+	d := 0
+	if key > 0 {
+		k := r.bytes(key - 1)
+		if r.err != nil {
+			return r.err
+		}
+		d = s.Level(k)
+	}
+	s.rows.add(d, r.uvarint(math.MaxUint64))
+	cells := r.uvarint(uint64(s.Folds))
+	last := -1
+	for j := uint64(0); j < cells && r.err == nil; j++ {
+		f := int(r.uvarint(uint64(s.Folds - 1)))
+		if f <= last && r.err == nil {
+			return fmt.Errorf("%w: folds out of order", ErrPartial)
+		}
+		last = f
+		if s.Task != Regression {
+			for c := 0; c < s.Classes; c++ {
+				s.cls.add(d, f*s.Classes+c, r.uvarint(math.MaxUint64))
+			}
+			continue
+		}
+		cnt := r.uvarint(math.MaxUint32)
+		var src cellSums
+		for _, v := range []*exactsum.Sum{&src.sum, &src.sq} {
+			if err := v.Decode(r.bytes(r.uvarint(exactsum.MaxEncodedLen))); err != nil && r.err == nil {
+				r.err = fmt.Errorf("%w: %w", ErrPartial, err)
+			}
+		}
+		if r.err != nil {
+			return r.err
+		}
+		if cnt == 0 || uint64(s.cnt.row(d)[f])+cnt > math.MaxUint32 {
+			return fmt.Errorf("%w: a cell of %d rows", ErrPartial, cnt)
+		}
+		exactsum.Recenter(cnt, &src.sum, &src.sq, origin, s.Origin)
+		p := s.pooled(d, f)
+		p.sum.AddSum(&src.sum)
+		p.sq.AddSum(&src.sq)
+		s.cnt.row(d)[f] += uint32(cnt)
+	}
+	data := r.bytes(r.uvarint(uint64(len(r.b))))
+	if r.err != nil {
+		return r.err
+	}
+	if extra != nil {
+		return extra(d, data)
+	}
+	return nil
+}

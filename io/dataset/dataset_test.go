@@ -1185,3 +1185,31 @@ func TestReaderNested(t *testing.T) {
 		t.Errorf("New with a part without the nested column: %v, want ErrCorrupt naming %s and tags", err, p2)
 	}
 }
+
+// TestReaderNextAfterClose: Next after Close is an error, not the rows of
+// the closed file again from its start.
+func TestReaderNextAfterClose(t *testing.T) {
+	root := t.TempDir()
+	writePart(t, root, part{path: "a.parquet", fields: fieldsAB, rows: rowsOf("a", 4), rg: 2})
+	writePart(t, root, part{path: "b.parquet", fields: fieldsAB, rows: rowsOf("b", 2)})
+	files, err := dataset.List(root)
+	if err != nil {
+		t.Fatal(err)
+	}
+	d, err := dataset.New(files, openFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := d.Next(); err != nil {
+		t.Fatal(err)
+	}
+	if err := d.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if b, err := d.Next(); err == nil {
+		t.Errorf("Next after Close: a batch of %d rows from row %d, want an error", b.Rows, b.FirstRow)
+	}
+	if err := d.Close(); err != nil {
+		t.Errorf("Close again: %v", err)
+	}
+}

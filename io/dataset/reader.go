@@ -48,6 +48,7 @@ type Reader struct {
 	done   int64 // rows of the files read to the end
 	bytes  int64 // bytes of the files read to the end
 	size   int64 // bytes of every file
+	closed bool
 }
 
 // New opens the dataset of files with open (which opens one file as a
@@ -289,6 +290,9 @@ func (d *Reader) EstimateRows() int64 {
 // Next returns the next batch of the current file, opening the files in
 // turn; io.EOF after the last.
 func (d *Reader) Next() (*table.Batch, error) {
+	if d.closed {
+		return nil, errors.New("dataset: Next after Close")
+	}
 	for d.at < len(d.files) {
 		if d.cur == nil {
 			if err := d.openFile(); err != nil {
@@ -430,8 +434,9 @@ func (d *Reader) renumber(c *table.Column) {
 	c.Dict = &dict
 }
 
-// Close closes the file being read.
+// Close closes the file being read; Next fails after it.
 func (d *Reader) Close() error {
+	d.closed = true
 	if d.cur == nil {
 		return nil
 	}

@@ -564,9 +564,7 @@ func (s *Stats) FitMask(o, pos int, sm Smoothing, use, keep []bool, order []uint
 // fitMask is FitMask over the folds f with use[f] (nil: every fold) and f
 // != exclude.
 func (s *Stats) fitMask(o, pos int, sm Smoothing, use []bool, exclude int, keep []bool, order []uint32) Fitted {
-	var tot Agg
-	var mo smooth.Moments
-	var nm smooth.NestedMoments
+	var acc fitAcc
 	nested := s.Parents != nil && sm.Kind == SmoothEB
 	n := s.n
 	if order != nil {
@@ -577,31 +575,50 @@ func (s *Stats) fitMask(o, pos int, sm Smoothing, use []bool, exclude int, keep 
 		if order != nil {
 			l = int(order[i])
 		}
-		a := s.targetMask(l, o, pos, use, exclude)
-		tot.N += a.N
-		tot.Sum += a.Sum
-		if a.N > 0 && (keep == nil || keep[l]) {
-			ls := smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq}
-			if nested {
-				p := -1
-				if l < len(s.Parents) {
-					p = int(s.Parents[l])
-				}
-				nm.Add(ls, p)
-			} else {
-				mo.Add(ls)
+		s.fitAdd(&acc, l, o, pos, use, exclude, keep, nested)
+	}
+	return s.fitEnd(&acc, sm, nested)
+}
+
+// fitAcc gathers a fit over the levels: the fitting rows' total and the
+// moments of the levels' means for empirical Bayes.
+type fitAcc struct {
+	tot Agg
+	mo  smooth.Moments
+	nm  smooth.NestedMoments
+}
+
+// fitAdd adds level l's statistics of output o, over the folds f with
+// use[f] (nil: every fold) and f != exclude, to acc.
+func (s *Stats) fitAdd(acc *fitAcc, l, o, pos int, use []bool, exclude int, keep []bool, nested bool) {
+	a := s.targetMask(l, o, pos, use, exclude)
+	acc.tot.N += a.N
+	acc.tot.Sum += a.Sum
+	if a.N > 0 && (keep == nil || keep[l]) {
+		ls := smooth.LevelStats{N: a.N, Sum: a.Sum, SumSq: a.SumSq}
+		if nested {
+			p := -1
+			if l < len(s.Parents) {
+				p = int(s.Parents[l])
 			}
+			acc.nm.Add(ls, p)
+		} else {
+			acc.mo.Add(ls)
 		}
 	}
+}
+
+// fitEnd returns the fit gathered in acc.
+func (s *Stats) fitEnd(acc *fitAcc, sm Smoothing, nested bool) Fitted {
 	m := math.NaN()
 	if sm.Kind == SmoothEB {
 		if nested {
-			m, _, _ = nm.Estimate()
+			m, _, _ = acc.nm.Estimate()
 		} else {
-			m, _, _ = mo.Estimate()
+			m, _, _ = acc.mo.Estimate()
 		}
 	}
-	return fitted(tot, m, sm, s.Origin)
+	return fitted(acc.tot, m, sm, s.Origin)
 }
 
 // SmoothKind names a way of pulling a level's mean towards its prior.
@@ -699,8 +716,9 @@ func (ft *Fitted) interior(a Agg) float64 {
 
 // FitFolds returns the fits of every output o that derive-style callers
 // need: full[o] is Fit(o, -1, pos, sm, keep, order) and byFold[e][o] is
-// Fit(o, e, pos, sm, keep, nil) for every fold e (byFold is nil with one
-// fold). For classification with SmoothM or SmoothBlend a fit depends
+// Fit(o, e, pos, sm, keep, order) for every fold e (byFold is nil with one
+// fold): with a canonical order, none depends on the order in which levels
+// were first seen (a table read in shards gives the same fits). For classification with SmoothM or SmoothBlend a fit depends
 // only on the per-fold totals of the counts, which are integers and sum
 // exactly in any order: FitFolds then takes one sequential pass over the
 // count cells (CellTotals, O(levels*Folds*Classes), no random access)
@@ -717,12 +735,34 @@ func (s *Stats) FitFolds(pos int, sm Smoothing, keep []bool, order []uint32) (fu
 		}
 	}
 	if s.Task == Regression || sm.Kind == SmoothEB {
-		for o := 0; o < outs; o++ {
-			full[o] = s.Fit(o, -1, pos, sm, keep, order)
+		// One pass over the levels in order gathers every fit: the same
+		// sums, in the same order, as a pass per fit, each level's cells
+		// read once.
+		acc := make([]fitAcc, (k+1)*outs) // [(e+1)*outs+o], e = -1 for full
+		nested := s.Parents != nil && sm.Kind == SmoothEB
+		n := s.n
+		if order != nil {
+			n = len(order)
 		}
-		for e := range byFold {
-			for o := 0; o < outs; o++ {
-				byFold[e][o] = s.Fit(o, e, pos, sm, keep, nil)
+		last := -1
+		if byFold != nil {
+			last = k - 1
+		}
+		for i := 0; i < n; i++ {
+			l := i
+			if order != nil {
+				l = int(order[i])
+			}
+			for e := -1; e <= last; e++ {
+				for o := 0; o < outs; o++ {
+					s.fitAdd(&acc[(e+1)*outs+o], l, o, pos, nil, e, keep, nested)
+				}
+			}
+		}
+		for o := 0; o < outs; o++ {
+			full[o] = s.fitEnd(&acc[o], sm, nested)
+			for e := range byFold {
+				byFold[e][o] = s.fitEnd(&acc[(e+1)*outs+o], sm, nested)
 			}
 		}
 		return full, byFold

@@ -21,6 +21,12 @@ type EncodeOptions struct {
 	// Drift, for a pass of new rows (NewRows), gathers what its drift
 	// report needs (NewDrift).
 	Drift *Drift
+	// Part marks r as one shard of the table the model was fitted on (a
+	// sharded fit, see Assemble), whose rows are numbered from Offset+1
+	// (ShardPlan.First less 1): their folds are those rows' of the whole
+	// table, and their count is not checked against the fit's.
+	Part   bool
+	Offset int64
 }
 
 // Use says which rows a pass encodes.
@@ -113,18 +119,21 @@ func (m *Model) OutputSchema(file string, in *table.Schema, use Use) (*table.Sch
 // readies each encoding's encoder, then batch encodes and writes one batch
 // at a time.
 func (m *Model) Encode(r table.Reader, w table.Writer, opt EncodeOptions) (Summary, error) {
+	if opt.Part && opt.Offset > 0 {
+		r = &offsetReader{Reader: r, off: opt.Offset}
+	}
 	e, err := m.newEncodePass(r.Schema(), opt)
 	if err != nil {
 		return Summary{Unseen: make([]int64, len(m.Cols))}, err
 	}
 	e.w = w
 	if err := table.ForEach(r, e.batch); err != nil {
-		return e.sum, err
+		return e.sum, shardRow(err, opt.Offset)
 	}
 	if e.tr != nil {
 		e.sum.Missing = e.tr.missing
 	}
-	if e.training && e.sum.Rows != m.Rows {
+	if e.training && !opt.Part && e.sum.Rows != m.Rows {
 		return e.sum, fmt.Errorf("%s: the second pass read %d rows, the first %d; the file changed while it was read", opt.File, e.sum.Rows, m.Rows)
 	}
 	if e.obs != nil {

@@ -267,7 +267,7 @@ func (f *fitter) pass(r table.Reader) error {
 // batch takes one batch of the pass: its targets and folds, the levels of
 // its rows, and the counting of the batch before.
 func (f *fitter) batch(b *table.Batch) error {
-	m, sp := f.m, f.sp
+	m := f.m
 	if f.order != nil {
 		if err := f.order.check(b); err != nil {
 			return err
@@ -280,16 +280,7 @@ func (f *fitter) batch(b *table.Batch) error {
 		}
 	}
 	if m.Cols[0].St == nil {
-		for _, c := range f.all {
-			task := f.task
-			if !c.supervised {
-				task = colstats.Binary // row counts only
-			}
-			c.St = colstats.New(task, sp.folds(), 0, 1024)
-		}
-		for _, c := range m.Cols {
-			c.replay = newReplay(c.St.NumLevels())
-		}
+		f.newStats()
 	}
 	cls, vals, labels, err := f.targets(b)
 	if err != nil {
@@ -325,6 +316,24 @@ func (f *fitter) batch(b *table.Batch) error {
 		f.opt.Progress(m.Rows)
 	}
 	return nil
+}
+
+// newStats creates every column's statistics, once the task is known:
+// row counts only for a column whose encodings do not read the target.
+func (f *fitter) newStats() {
+	for _, c := range f.all {
+		task := f.task
+		if !c.supervised {
+			task = colstats.Binary // row counts only
+		}
+		c.St = colstats.New(task, f.sp.folds(), 0, 1024)
+		if f.originSet && c.supervised {
+			c.St.Origin = f.m.Origin // a shard's, from its plan
+		}
+	}
+	for _, c := range f.m.Cols {
+		c.replay = newReplay(c.St.NumLevels())
+	}
 }
 
 // targets reads the batch's target: class numbers or values (nil without a

@@ -1,0 +1,519 @@
+package pipeline
+
+import (
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"io"
+
+	"manyfold/encoders/colstats"
+	"manyfold/encoders/method"
+	"manyfold/folds"
+	"manyfold/internal/param"
+	"manyfold/io/table"
+)
+
+// A sharded fit: the statistics of a table cut into shards (files, row
+// groups), gathered shard by shard wherever the shards are (the workers of
+// a distributed engine), merged, and used to encode each shard, with
+// outputs and mapping tables byte for byte those of Fit and Encode over
+// the shards' rows read as one table, the shards in order.
+//
+//	stage 0   Survey(shard)                      -> ShardFacts, a few bytes
+//	plan      PlanShards(facts...)               -> ShardPlan: row numbers, task, origin, classes
+//	stage 1   FitShard(shard, plan).Partial(p)   -> one partial per partition p
+//	merge     MergePartials(partials of p)       -> the partition's statistics
+//	model     Assemble(plan, partitions)         -> *Model, as Fit returns it
+//	stage 2   Model.Encode(shard, Offset: plan.First[i]-1), Model.SaveTables
+//
+// What the one-pass fit decides as it reads (the task, from the first
+// batch of a target; the origin of a regression target's sums, its first
+// known value; the class labels and their order) comes from the plan, so
+// every shard counts its rows as the one pass would. Folds are drawn from
+// row numbers counted across the shards. Statistics add exactly (class
+// counts, exact sums of a regression target), so neither the order of the
+// shards' partials nor their grouping changes a bit.
+//
+// Not yet sharded: the ordered scheme and --order-by (a row's value depends
+// on every row before it, in other shards too), and stratified folds (a
+// row's fold depends on its rank within its class across the shards).
+
+// ShardFacts is what stage 0 learns of one shard: its rows and what the
+// one-pass fit decides from its target.
+type ShardFacts struct {
+	Rows    int64
+	Missing int64 // rows whose target is unknown
+	// Detected: the shard has a row (Batched), and its first batch makes
+	// the target a regression target (detectRegression).
+	Batched, Regression bool
+	// First is the shard's first known target value, when HasFirst (a
+	// numeric target).
+	First    float64
+	HasFirst bool
+	// Labels are the class labels met, in order of appearance; Many is set
+	// when there were more than MaxClasses (then Labels stops).
+	Labels []string
+	Many   bool
+}
+
+// Survey reads a shard (stage 0): its rows and, when the spec reads a
+// target, the facts of its target. Only the target column is read.
+func Survey(r table.Reader, sp Spec, file string) (ShardFacts, error) {
+	var sf ShardFacts
+	if err := sp.Validate(); err != nil {
+		return sf, err
+	}
+	schema := &table.Schema{Fields: append([]table.Field(nil), r.Schema().Fields...)}
+	tcol := -1
+	if sp.Target != "" && (sp.supervised() || sp.FoldBy.Needs().Class) {
+		if tcol = schema.Index(sp.Target); tcol < 0 {
+			return sf, &ColumnError{File: file, Param: ParamTarget, Name: sp.Target, Have: schema.Names()}
+		}
+		if err := r.Select([]int{tcol}); err != nil {
+			return sf, err
+		}
+	} else if len(schema.Fields) > 0 {
+		if err := r.Select([]int{0}); err != nil { // the rows only
+			return sf, err
+		}
+	}
+	var cls, num *targetReader
+	if tcol >= 0 {
+		kind := schema.Fields[tcol].Kind
+		if sp.Task != colstats.Regression.String() {
+			cls = newTargetReader(file, sp.Target, 0, kind, sp.Task, nil)
+		}
+		if kind == table.Int64 || kind == table.Float64 || sp.Task == colstats.Regression.String() {
+			num = newTargetReader(file, sp.Target, 0, kind, colstats.Regression.String(), nil)
+		}
+	}
+	err := table.ForEach(r, func(b *table.Batch) error {
+		sf.Rows += int64(b.Rows)
+		if tcol < 0 {
+			return nil
+		}
+		if !sf.Batched {
+			sf.Batched = true
+			sf.Regression = detectRegression(b, 0, schema.Fields[tcol].Kind)
+		}
+		if num != nil {
+			if err := num.read(b); err != nil {
+				if cls == nil {
+					return err
+				}
+				num = nil // text in a numeric column: a classification target
+			} else if !sf.HasFirst {
+				for _, y := range num.vals {
+					if y == y {
+						sf.First, sf.HasFirst = y, true
+						break
+					}
+				}
+			}
+		}
+		if cls != nil && !sf.Many {
+			if err := cls.read(b); err != nil {
+				if num == nil || sp.Task != "" {
+					return err
+				}
+				// The batch reads as numbers: its values are more
+				// classes than a classification target may have.
+				sf.Many = true
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return sf, err
+	}
+	switch {
+	case num != nil:
+		sf.Missing = num.missing
+	case cls != nil:
+		sf.Missing = cls.missing
+	}
+	if cls != nil {
+		sf.Labels = cls.order
+	}
+	return sf, nil
+}
+
+// ShardPlan is what every shard's fit and encode take from all the
+// shards' facts (PlanShards).
+type ShardPlan struct {
+	Spec  Spec
+	First []int64 // per shard, the row number (from 1) of its first row
+	Rows  int64   // rows of every shard
+
+	missing    int64
+	task       colstats.Task // Regression, or Binary for classification
+	decided    bool          // the task is known (no target: false)
+	origin     float64
+	hasOrigin  bool
+	classes    []string // sorted
+	numericCls bool
+}
+
+// PlanShards combines the facts of every shard, in shard order, into the
+// plan of a sharded fit of the spec over a table of that schema (any
+// shard's, with the derived columns; file names the table in messages).
+func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) (*ShardPlan, error) {
+	if err := sp.Validate(); err != nil {
+		return nil, err
+	}
+	switch {
+	case sp.Scheme == method.Ordered:
+		return nil, usageErr("%s ordered is not yet available in a sharded fit", ParamScheme)
+	case sp.OrderBy != "":
+		return nil, usageErr("%s is not yet available in a sharded fit", ParamOrderBy)
+	case sp.FoldBy.Name() == (folds.StratifiedRule{}).Name():
+		return nil, usageErr("the fold rule stratified is not yet available in a sharded fit")
+	}
+	p := &ShardPlan{Spec: sp, First: make([]int64, len(facts))}
+	var order []string
+	seen, many := map[string]bool{}, false
+	for i, f := range facts {
+		p.First[i] = p.Rows + 1
+		p.Rows += f.Rows
+		p.missing += f.Missing
+		if f.Batched && !p.decided {
+			p.decided = true
+			if f.Regression {
+				p.task = colstats.Regression
+			}
+		}
+		if f.HasFirst && !p.hasOrigin {
+			p.origin, p.hasOrigin = f.First, true
+		}
+		for _, l := range f.Labels {
+			if !seen[l] {
+				seen[l] = true
+				order = append(order, l)
+			}
+		}
+		many = many || f.Many
+	}
+	switch sp.Task {
+	case colstats.Regression.String():
+		p.task, p.decided = colstats.Regression, true
+	case "":
+	default:
+		p.task, p.decided = colstats.Binary, true
+	}
+	if t := schema.Index(sp.Target); t >= 0 {
+		k := schema.Fields[t].Kind
+		p.numericCls = k == table.Int64 || k == table.Float64
+	}
+	if p.decided && p.task != colstats.Regression {
+		if many || len(order) > MaxClasses {
+			return nil, &table.DataError{File: file, Column: sp.Target, Err: param.Errorf("target has more than %d classes", MaxClasses)}
+		}
+		p.classes, _ = sortedClasses(order, p.numericCls)
+	}
+	return p, nil
+}
+
+// offsetReader numbers the rows of a shard from its place in the table:
+// the batches of r with FirstRow moved on by the rows before the shard.
+type offsetReader struct {
+	table.Reader
+	off int64
+	b   table.Batch
+}
+
+func (o *offsetReader) Next() (*table.Batch, error) {
+	b, err := o.Reader.Next()
+	if err == io.EOF {
+		return nil, err
+	}
+	if err != nil {
+		return nil, &readError{err} // the reader's rows are the shard's own
+	}
+	o.b = *b
+	o.b.FirstRow = b.FirstRow + o.off
+	return &o.b, nil
+}
+
+// readError is an error of the shard's reader, passed on by an
+// offsetReader: its rows are numbered in the shard already.
+type readError struct{ err error }
+
+func (e *readError) Error() string { return e.err.Error() }
+func (e *readError) Unwrap() error { return e.err }
+
+// shardRow gives a data error found in the rows of a shard read through
+// an offsetReader (off rows before it) the shard's own row number back;
+// an error of the shard's reader is returned as the reader gave it.
+func shardRow(err error, off int64) error {
+	var re *readError
+	if errors.As(err, &re) {
+		return re.err
+	}
+	var de *table.DataError
+	if off > 0 && errors.As(err, &de) && de.Row > off {
+		de.Row -= off
+	}
+	return err
+}
+
+// Unwrap returns the shard's reader, for inspection (table.Find).
+func (o *offsetReader) Unwrap() table.Reader { return o.Reader }
+
+// ShardStats are the statistics of one shard (stage 1), to be cut into
+// partitions (Partial).
+type ShardStats struct {
+	f *fitter
+}
+
+// FitShard counts the rows of shard i of the plan (stage 1): the rows are
+// numbered from plan.First[i], and the task, origin and classes are the
+// plan's. opt.File names the shard in messages.
+func FitShard(r table.Reader, plan *ShardPlan, i int, opt FitOptions) (*ShardStats, error) {
+	opt.TotalRows = plan.Rows
+	f, err := newFitter(r.Schema(), plan.Spec, opt)
+	if err != nil {
+		return nil, err
+	}
+	f.preset(plan)
+	if err := f.pass(&offsetReader{Reader: r, off: plan.First[i] - 1}); err != nil {
+		return nil, shardRow(err, plan.First[i]-1)
+	}
+	f.ensureStats()
+	for _, c := range f.m.Cols {
+		c.replay = nil
+	}
+	return &ShardStats{f: f}, nil
+}
+
+// preset gives the fitter what a one-pass fit decides as it reads, from
+// the plan.
+func (f *fitter) preset(plan *ShardPlan) {
+	if f.tr == nil {
+		return
+	}
+	f.decided = true
+	f.task = plan.task
+	task := colstats.Regression.String()
+	if plan.task != colstats.Regression {
+		task = colstats.Binary.String()
+		if len(plan.classes) > 2 {
+			task = colstats.Multiclass.String()
+		}
+	}
+	f.tr = newTargetReader(f.opt.File, f.sp.Target, f.tcol, f.schema.Fields[f.tcol].Kind, task, plan.classes)
+	f.tr.numeric = f.tr.numeric || plan.numericCls
+	if plan.hasOrigin {
+		f.originSet, f.m.Origin = true, plan.origin
+	}
+}
+
+// ensureStats creates the statistics of every column that has none (a
+// shard without rows, an assembly).
+func (f *fitter) ensureStats() {
+	if f.m.Cols[0].St != nil {
+		return
+	}
+	f.newStats()
+	if f.tr != nil && f.task != colstats.Regression {
+		for _, c := range f.all {
+			if c.supervised {
+				c.St.AddClasses(len(f.tr.order))
+			}
+		}
+	}
+}
+
+// shardMagic starts a shard's partial: the partials of every column
+// gathered, each a colstats partial.
+var shardMagic = []byte("MFS1")
+
+// Partial returns the shard's statistics of the levels of partition part
+// of parts (a power of two from 1 to 65,536): for every column the fit
+// gathers, its colstats partial (colstats.AppendPartial), each level with
+// the parent of its rows under a column prior.
+func (ss *ShardStats) Partial(part, parts int) ([]byte, error) {
+	if parts < 1 || parts > 1<<16 || parts&(parts-1) != 0 || part < 0 || part >= parts {
+		return nil, fmt.Errorf("partition %d of %d: want a power of two of partitions up to 65536", part, parts)
+	}
+	f := ss.f
+	return f.appendPartials(part, parts, func(ci int, c *Col) func([]byte, int) []byte {
+		parent := f.all[c.parentAt].St
+		return func(b []byte, l int) []byte {
+			if l >= len(c.nest) {
+				return b
+			}
+			switch p := c.nest[l]; {
+			case p == mixedParents || p == noParent:
+				return b // several parents: no bytes
+			case p == 0:
+				return append(b, 1) // the null parent
+			default:
+				return append(append(b, 2), parent.Bytes(int(p))...)
+			}
+		}
+	}), nil
+}
+
+// appendPartials returns the partial of partition part of parts of every
+// column the fit gathers; extra gives, for a column with a column prior,
+// the writer of each level's parent.
+func (f *fitter) appendPartials(part, parts int, extra func(ci int, c *Col) func([]byte, int) []byte) []byte {
+	b := append([]byte(nil), shardMagic...)
+	b = binary.AppendUvarint(b, uint64(len(f.all)))
+	var col []byte
+	for ci, c := range f.all {
+		var x func([]byte, int) []byte
+		if c.nest != nil {
+			x = extra(ci, c)
+		}
+		col = c.St.AppendPartial(col[:0], part, parts, x)
+		b = binary.AppendUvarint(b, uint64(len(col)))
+		b = append(b, col...)
+	}
+	return b
+}
+
+// ErrShardPartial is the error of bytes that are not a partial of this
+// plan's statistics.
+var ErrShardPartial = errors.New("not partial statistics of this job")
+
+// gather merges partials into the statistics of the fitter's columns,
+// keeping each level's parent key (nest) in keys.
+func (f *fitter) gather(partials [][]byte, keys [][][]byte) error {
+	for pi, b := range partials {
+		if len(b) < len(shardMagic) || string(b[:len(shardMagic)]) != string(shardMagic) {
+			return fmt.Errorf("partial %d: %w", pi+1, ErrShardPartial)
+		}
+		b = b[len(shardMagic):]
+		n, k := binary.Uvarint(b)
+		if k <= 0 || n != uint64(len(f.all)) {
+			return fmt.Errorf("partial %d: %w: %d columns, the job gathers %d", pi+1, ErrShardPartial, n, len(f.all))
+		}
+		b = b[k:]
+		for ci, c := range f.all {
+			size, k := binary.Uvarint(b)
+			if k <= 0 || size > uint64(len(b)-k) {
+				return fmt.Errorf("partial %d, column %q: %w", pi+1, c.Name, ErrShardPartial)
+			}
+			col := b[k : k+int(size)]
+			b = b[k+int(size):]
+			var extra func(int, []byte) error
+			if c.nest != nil {
+				extra = func(l int, data []byte) error { return mergeParentKey(&keys[ci], l, data) }
+			}
+			if err := c.St.MergePartial(col, extra); err != nil {
+				return fmt.Errorf("partial %d, column %q: %w: %w", pi+1, c.Name, ErrShardPartial, err)
+			}
+		}
+		if len(b) != 0 {
+			return fmt.Errorf("partial %d: %w: bytes after the last column", pi+1, ErrShardPartial)
+		}
+	}
+	return nil
+}
+
+// mixedKey marks a level whose rows had several parents.
+var mixedKey = []byte{}
+
+// mergeParentKey records the parent key of level slot l: the same key
+// again keeps it, another one (or none: several) makes it mixed. keys
+// grows to hold l.
+func mergeParentKey(keys *[][]byte, l int, data []byte) error {
+	if len(data) > 0 && data[0] != 1 && data[0] != 2 {
+		return fmt.Errorf("%w: a parent of kind %d", ErrShardPartial, data[0])
+	}
+	for len(*keys) <= l {
+		*keys = append(*keys, nil)
+	}
+	k := *keys
+	switch cur := k[l]; {
+	case cur == nil:
+		if len(data) == 0 {
+			k[l] = mixedKey
+		} else {
+			k[l] = append([]byte(nil), data...)
+		}
+	case len(cur) == 0, string(cur) == string(data):
+	default:
+		k[l] = mixedKey
+	}
+	return nil
+}
+
+// Assemble merges the partials of every shard and partition (any number,
+// in any order and grouping: MergePartials' outputs or stage 1's) into the
+// model Fit would return over the table: schema is the table's (with its
+// derived columns), opt as Fit's.
+func Assemble(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions) (*Model, error) {
+	f, keys, err := gatherPartials(plan, schema, partials, opt)
+	if err != nil {
+		return nil, err
+	}
+	for ci, c := range f.all {
+		if c.nest == nil {
+			continue
+		}
+		parent := f.all[c.parentAt].St
+		c.nest = make([]int32, c.St.NumLevels())
+		for l := range c.nest {
+			c.nest[l] = mixedParents
+			var k []byte
+			if l < len(keys[ci]) {
+				k = keys[ci][l]
+			}
+			switch {
+			case len(k) == 0:
+			case k[0] == 1:
+				c.nest[l] = 0
+			default:
+				if p := parent.Lookup(k[1:]); p >= 0 {
+					c.nest[l] = int32(p)
+				}
+			}
+		}
+	}
+	f.m.Rows = plan.Rows
+	if f.tr != nil {
+		f.tr.missing = plan.missing
+	}
+	for _, c := range f.m.Cols {
+		c.replay = nil
+	}
+	return f.finish()
+}
+
+// gatherPartials returns a fitter of the plan whose columns hold the
+// partials merged, and each level's parent key (keys, per column).
+func gatherPartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions) (*fitter, [][][]byte, error) {
+	opt.TotalRows = plan.Rows
+	f, err := newFitter(schema, plan.Spec, opt)
+	if err != nil {
+		return nil, nil, err
+	}
+	f.preset(plan)
+	f.ensureStats()
+	keys := make([][][]byte, len(f.all))
+	if err := f.gather(partials, keys); err != nil {
+		return nil, nil, err
+	}
+	return f, keys, nil
+}
+
+// MergePartials merges partials of one partition (from every shard, or
+// merged before) into one, as a merge step of a distributed engine does:
+// Assemble gives the same model from the merged partial as from those it
+// merged.
+func MergePartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions) ([]byte, error) {
+	f, keys, err := gatherPartials(plan, schema, partials, opt)
+	if err != nil {
+		return nil, err
+	}
+	return f.appendPartials(0, 1, func(ci int, c *Col) func([]byte, int) []byte {
+		return func(b []byte, l int) []byte {
+			if l < len(keys[ci]) && len(keys[ci][l]) > 0 {
+				return append(b, keys[ci][l]...)
+			}
+			return b
+		}
+	}), nil
+}

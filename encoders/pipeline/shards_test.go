@@ -1,0 +1,278 @@
+package pipeline_test
+
+import (
+	"bytes"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"testing"
+
+	"manyfold/encoders/method"
+	"manyfold/encoders/pipeline"
+	"manyfold/folds"
+	"manyfold/io/table"
+	"manyfold/io/tableio"
+)
+
+// shipmentsText is a CSV of n shipments: postcode (some null), sender,
+// route, parcel type, late (0/1) and cost with cents (so that float sums
+// of it depend on their order).
+func shipmentsText(n int) string {
+	var b strings.Builder
+	b.WriteString("postcode,sender,route,parcel_type,late,cost\n")
+	types := []string{"letter", "small", "medium", "bulky"}
+	for i := 0; i < n; i++ {
+		pc := fmt.Sprintf("PC%03d", (i*7)%23+(i%5)*(i%3))
+		if i%9 == 0 {
+			pc = ""
+		}
+		cost := math.Round((2.5+float64((i*17)%40)/4)*110+float64(i)) / 100
+		fmt.Fprintf(&b, "%s,ACC-%d,R%d-%d,%s,%d,%s\n", pc, (i*i+3)%11, i%4, (i/3)%5, types[(i/2+i%3)%4], (i*13+i/5)%3%2, strconv.FormatFloat(cost, 'f', -1, 64))
+	}
+	return b.String()
+}
+
+// splitText cuts a CSV's rows into shards of the given sizes, each with
+// the header, written as files in dir; it returns their paths.
+func splitText(t *testing.T, dir, csv string, sizes []int) []string {
+	t.Helper()
+	lines := strings.SplitAfter(strings.TrimSuffix(csv, "\n"), "\n")
+	header, body := lines[0], lines[1:]
+	var paths []string
+	at := 0
+	for i, n := range sizes {
+		text := header + strings.Join(body[at:at+n], "")
+		if !strings.HasSuffix(text, "\n") {
+			text += "\n"
+		}
+		at += n
+		p := filepath.Join(dir, fmt.Sprintf("part-%02d.csv", i))
+		if err := os.WriteFile(p, []byte(text), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		paths = append(paths, p)
+	}
+	return paths
+}
+
+// unevenSizes cuts n rows into k shards of growing sizes, the second one
+// empty when k > 2.
+func unevenSizes(n, k int) []int {
+	sizes, total := make([]int, k), 0
+	for i := range sizes {
+		sizes[i] = i + 1
+		if k > 2 && i == 1 {
+			sizes[i] = 0
+		}
+		total += sizes[i]
+	}
+	left := n
+	for i := range sizes {
+		sizes[i] = n * sizes[i] / total
+		left -= sizes[i]
+	}
+	sizes[k-1] += left
+	return sizes
+}
+
+func open(t *testing.T, path string) table.Reader {
+	t.Helper()
+	r, err := tableio.Open(path, tableio.ReadOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r
+}
+
+// encodeTo encodes the table at path with m into a CSV file out.
+func encodeTo(t *testing.T, m *pipeline.Model, path, out string, opt pipeline.EncodeOptions) {
+	t.Helper()
+	r := open(t, path)
+	defer r.Close()
+	schema, _, _, err := m.OutputSchema(path, r.Schema(), pipeline.Training)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := tableio.Create(out, schema, tableio.WriteOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	opt.File = path
+	if _, err := m.Encode(r, w, opt); err != nil {
+		w.Abort()
+		t.Fatalf("encode %s: %v", path, err)
+	}
+	if err := w.Commit(); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// shardedModel runs the sharded fit over the shards: stage 0, the plan,
+// stage 1 cut into parts partitions, the merge of each partition, and the
+// assembly.
+func shardedModel(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*pipeline.Model, *pipeline.ShardPlan) {
+	t.Helper()
+	facts := make([]pipeline.ShardFacts, len(shards))
+	for i, p := range shards {
+		r := open(t, p)
+		var err error
+		if facts[i], err = pipeline.Survey(r, sp, p); err != nil {
+			t.Fatalf("survey %s: %v", p, err)
+		}
+		r.Close()
+	}
+	r := open(t, shards[0])
+	schema := &table.Schema{Fields: append([]table.Field(nil), r.Schema().Fields...)}
+	r.Close()
+	plan, err := pipeline.PlanShards(sp, schema, facts, "the shards")
+	if err != nil {
+		t.Fatal(err)
+	}
+	byPart := make([][][]byte, parts)
+	for i, p := range shards {
+		r := open(t, p)
+		ss, err := pipeline.FitShard(r, plan, i, pipeline.FitOptions{File: p, Threads: 2})
+		r.Close()
+		if err != nil {
+			t.Fatalf("stage 1 of %s: %v", p, err)
+		}
+		for part := range byPart {
+			b, err := ss.Partial(part, parts)
+			if err != nil {
+				t.Fatal(err)
+			}
+			byPart[part] = append(byPart[part], b)
+		}
+	}
+	var merged [][]byte
+	for part := range byPart {
+		b, err := pipeline.MergePartials(plan, schema, byPart[part], pipeline.FitOptions{})
+		if err != nil {
+			t.Fatalf("merge of partition %d: %v", part, err)
+		}
+		merged = append(merged, b)
+	}
+	m, err := pipeline.Assemble(plan, schema, merged, pipeline.FitOptions{File: "the shards", Threads: 2, Tables: true})
+	if err != nil {
+		t.Fatalf("assemble: %v", err)
+	}
+	return m, plan
+}
+
+// TestShardedFitSameAsOnePass: the sharded fit (stage 0, plan, stage 1 in
+// partitions, merge, assembly, stage 2 shard by shard) over 1, 2, 8 and 13
+// shards of uneven sizes, one empty, writes the outputs (concatenated in
+// shard order) and mapping tables of Fit and Encode over the whole table,
+// byte for byte: binary, multi-class and regression targets, the k-fold,
+// leave-one-out and in-sample schemes, row and group folds, every method
+// and both priors.
+func TestShardedFitSameAsOnePass(t *testing.T) {
+	dir := t.TempDir()
+	csv := shipmentsText(1501)
+	whole := filepath.Join(dir, "whole.csv")
+	if err := os.WriteFile(whole, []byte(csv), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	const rest = "+freq+topk:4+hash:32+onehot:3"
+	jobs := []struct {
+		name, target, plan, scheme, foldBy string
+	}{
+		{"binary kfold", "late", "target:eb+woe" + rest, "kfold", "rows"},
+		{"binary kfold column prior", "late", "postcode=target:eb:prior=column:route" + rest + ",sender=target:m=2" + rest + ",route=freq", "kfold", "rows"},
+		{"binary loo", "late", "target:m=2" + rest, "loo", "rows"},
+		{"binary none prefix prior", "late", "target:blend=2,1:prior=prefix3" + rest, "none", "rows"},
+		{"regression kfold", "cost", "target:eb" + rest, "kfold", "rows"},
+		{"regression loo group", "cost", "target:m=2" + rest, "loo", "group=sender"},
+		{"regression prefix prior", "cost", "target:eb:prior=prefix3" + rest, "kfold", "rows"},
+		{"regression column prior", "cost", "postcode=target:eb:prior=column:route" + rest + ",sender=target:eb" + rest, "kfold", "ordered"},
+		{"multi-class kfold", "parcel_type", "target:eb" + rest, "kfold", "rows"},
+		{"multi-class loo", "parcel_type", "target:m=3" + rest, "loo", "group=route"},
+		{"no target", "", "freq+topk:4+hash:32", "kfold", "rows"},
+	}
+	for _, job := range jobs {
+		t.Run(job.name, func(t *testing.T) {
+			sp := pipeline.DefaultSpec()
+			sp.Target, sp.Folds, sp.Seed = job.target, 3, 7
+			var err error
+			if sp.Encodings, err = method.ParsePlan(job.plan); err != nil {
+				t.Fatal(err)
+			}
+			if sp.Encodings.PerColumn == nil {
+				sp.Columns = []string{"postcode", "sender", "route"}
+			}
+			sp.Scheme, _ = method.ParseScheme(job.scheme)
+			if sp.FoldBy, err = folds.ParseRule(job.foldBy); err != nil {
+				t.Fatal(err)
+			}
+			r := open(t, whole)
+			m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: whole, Threads: 2, Tables: true, TotalRows: 1501})
+			r.Close()
+			if err != nil {
+				t.Fatal(err)
+			}
+			wantOut := filepath.Join(dir, job.name+".csv")
+			encodeTo(t, m, whole, wantOut, pipeline.EncodeOptions{Threads: 2})
+			wantTables := filepath.Join(dir, job.name+".tables")
+			if err := m.SaveTables(wantTables); err != nil {
+				t.Fatal(err)
+			}
+			want, _ := os.ReadFile(wantOut)
+			for _, k := range []int{1, 2, 8, 13} {
+				sdir := filepath.Join(dir, fmt.Sprintf("%s-%d", job.name, k))
+				os.MkdirAll(sdir, 0o755)
+				shards := splitText(t, sdir, csv, unevenSizes(1501, k))
+				sm, plan := shardedModel(t, sp, shards, 4)
+				var got []byte
+				for i, p := range shards {
+					out := filepath.Join(sdir, fmt.Sprintf("out-%02d.csv", i))
+					encodeTo(t, sm, p, out, pipeline.EncodeOptions{Threads: 2, Part: true, Offset: plan.First[i] - 1})
+					b, _ := os.ReadFile(out)
+					if i > 0 {
+						b = b[bytes.IndexByte(b, '\n')+1:] // the header once
+					}
+					got = append(got, b...)
+				}
+				if !bytes.Equal(got, want) {
+					t.Errorf("%d shards: the outputs differ from the one pass's (%d and %d bytes)%s", k, len(got), len(want), firstDiff(got, want))
+				}
+				tables := filepath.Join(sdir, "tables")
+				if err := sm.SaveTables(tables); err != nil {
+					t.Fatal(err)
+				}
+				sameFiles(t, tables, wantTables)
+			}
+		})
+	}
+}
+
+// firstDiff describes the first line where two texts differ.
+func firstDiff(a, b []byte) string {
+	la, lb := strings.Split(string(a), "\n"), strings.Split(string(b), "\n")
+	for i := range min(len(la), len(lb)) {
+		if la[i] != lb[i] {
+			return fmt.Sprintf("; line %d:\n%s\n%s", i+1, la[i], lb[i])
+		}
+	}
+	return ""
+}
+
+// sameFiles checks that two directories hold the same files, byte for
+// byte.
+func sameFiles(t *testing.T, a, b string) {
+	t.Helper()
+	ea, _ := os.ReadDir(a)
+	eb, _ := os.ReadDir(b)
+	if len(ea) != len(eb) {
+		t.Fatalf("%s holds %d files, %s %d", a, len(ea), b, len(eb))
+	}
+	for i := range ea {
+		x, _ := os.ReadFile(filepath.Join(a, ea[i].Name()))
+		y, _ := os.ReadFile(filepath.Join(b, eb[i].Name()))
+		if ea[i].Name() != eb[i].Name() || !bytes.Equal(x, y) {
+			t.Errorf("%s and %s differ%s", filepath.Join(a, ea[i].Name()), filepath.Join(b, eb[i].Name()), firstDiff(x, y))
+		}
+	}
+}

@@ -449,6 +449,9 @@ func Assemble(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitO
 	if err != nil {
 		return nil, err
 	}
+	if err := f.checkRows(plan.Rows); err != nil {
+		return nil, err
+	}
 	for ci, c := range f.all {
 		if c.nest == nil {
 			continue
@@ -480,6 +483,26 @@ func Assemble(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitO
 		c.replay = nil
 	}
 	return f.finish()
+}
+
+// checkRows checks that the levels of every column the fitter gathers
+// hold the plan's rows, each row in one level: a shard's partial missing or
+// given twice (a task of the engine run again) would change them.
+func (f *fitter) checkRows(rows int64) error {
+	for _, c := range f.all {
+		left := uint64(rows)
+		for l := 0; l < c.St.NumLevels(); l++ {
+			n := c.St.RowCount(l)
+			if n > left {
+				return fmt.Errorf("column %q: %w: its levels hold more than the plan's %d rows; a shard's partial is given twice", c.Name, ErrShardPartial, rows)
+			}
+			left -= n
+		}
+		if left != 0 {
+			return fmt.Errorf("column %q: %w: its levels hold %d rows, the plan %d; a shard's partial is missing", c.Name, ErrShardPartial, uint64(rows)-left, rows)
+		}
+	}
+	return nil
 }
 
 // gatherPartials returns a fitter of the plan whose columns hold the

@@ -429,3 +429,82 @@ func TestAssembleOrderFree(t *testing.T) {
 		})
 	}
 }
+
+// TestAssembleRefusesMissingOrTwice: a shard's partials given twice (a
+// task of a distributed engine run again), or missing, change every
+// column's rows: Assemble refuses them with ErrShardPartial instead of
+// making the model of other rows.
+func TestAssembleRefusesMissingOrTwice(t *testing.T) {
+	dir := t.TempDir()
+	shards := splitText(t, dir, shipmentsText(300), []int{100, 0, 120, 80})
+	for _, sp := range []pipeline.Spec{
+		shardSpec(t, "late", "postcode=target:eb:prior=column:route+freq,sender=target:m=2,route=freq", "kfold", "rows"),
+		shardSpec(t, "cost", "target:eb+freq", "loo", "rows"),
+		shardSpec(t, "", "freq+topk:4", "kfold", "rows"),
+	} {
+		plan := surveyAll(t, sp, shards)
+		schema := schemaOf(t, shards[0])
+		const parts = 2
+		var byShard [][][]byte // [shard][partition]
+		for i, p := range shards {
+			r := open(t, p)
+			ss, err := pipeline.FitShard(r, plan, i, pipeline.FitOptions{File: p})
+			r.Close()
+			if err != nil {
+				t.Fatal(err)
+			}
+			var ps [][]byte
+			for part := 0; part < parts; part++ {
+				b, err := ss.Partial(part, parts)
+				if err != nil {
+					t.Fatal(err)
+				}
+				ps = append(ps, b)
+			}
+			byShard = append(byShard, ps)
+		}
+		all := func(edit func(i, part int) int) [][]byte {
+			var out [][]byte
+			for i, ps := range byShard {
+				for part, b := range ps {
+					for range edit(i, part) {
+						out = append(out, b)
+					}
+				}
+			}
+			return out
+		}
+		// times gives a partial n times where cond holds, else once.
+		times := func(cond bool, n int) int {
+			if cond {
+				return n
+			}
+			return 1
+		}
+		assemble := func(ps [][]byte) error {
+			_, err := pipeline.Assemble(plan, schema, ps, pipeline.FitOptions{File: "the shards"})
+			return err
+		}
+		if err := assemble(all(func(int, int) int { return 1 })); err != nil {
+			t.Fatalf("target %q: every partial once: %v", sp.Target, err)
+		}
+		// The empty shard's partials hold no rows: twice or missing, they
+		// change nothing.
+		if err := assemble(all(func(i, _ int) int { return times(i == 1, 2) })); err != nil {
+			t.Errorf("target %q: the empty shard's partials twice: %v", sp.Target, err)
+		}
+		for _, c := range []struct {
+			name string
+			n    func(i, part int) int
+		}{
+			{"shard 3 twice", func(i, _ int) int { return times(i == 3, 2) }},
+			{"shard 3 missing", func(i, _ int) int { return times(i == 3, 0) }},
+			{"a partition of shard 0 twice", func(i, part int) int { return times(i == 0 && part == 1, 2) }},
+			{"a partition of shard 2 missing", func(i, part int) int { return times(i == 2 && part == 0, 0) }},
+		} {
+			if err := assemble(all(c.n)); !errors.Is(err, pipeline.ErrShardPartial) {
+				t.Errorf("target %q: %s: %v, want an error wrapping ErrShardPartial", sp.Target, c.name, err)
+			}
+		}
+	}
+}

@@ -1,8 +1,10 @@
 package pipeline
 
 import (
+	"encoding/binary"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -10,6 +12,8 @@ import (
 	"testing"
 	"time"
 
+	"manyfold/encoders/colstats"
+	"manyfold/encoders/exactsum"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -116,6 +120,10 @@ func FuzzAssemble(f *testing.F) {
 			f.Add(b, uint8(k), uint8(i))
 		}
 	}
+	kinds, which, data := hostilePartials(f, jobs)
+	for i := range data {
+		f.Add(data[i], kinds[i], which[i])
+	}
 	f.Fuzz(func(t *testing.T, data []byte, kind, which uint8) {
 		job := jobs[int(kind)%len(jobs)]
 		partials := append([][]byte(nil), job.partials...)
@@ -146,3 +154,131 @@ func FuzzAssemble(f *testing.F) {
 
 // assemblePerByte bounds what a byte of a partial may allocate when merged.
 const assemblePerByte = 1024
+
+// rewritePartial reads a shard's partial (Partial's layout: its columns'
+// colstats partials) and writes it again with each field passed through
+// edit, which is given the field's name (rows, count, n, sum, sq), its
+// column, level and cell, and its bytes (a varint, or an exact sum's binary
+// form), and returns the bytes to write; lengths are written anew. The
+// random mutations of a fuzzing engine rarely keep the lengths around a
+// field right: this makes the hostile values a fuzzed partial can hold.
+func rewritePartial(tb testing.TB, b []byte, edit func(field string, col, level, cell int, v []byte) []byte) []byte {
+	tb.Helper()
+	take := func(n int) []byte {
+		if n > len(b) {
+			tb.Fatalf("a partial cut short")
+		}
+		v := b[:n]
+		b = b[n:]
+		return v
+	}
+	uv := func() ([]byte, uint64) {
+		v, k := binary.Uvarint(b)
+		if k <= 0 {
+			tb.Fatalf("a partial's varint")
+		}
+		return take(k), v
+	}
+	out := append([]byte(nil), take(len(shardMagic))...)
+	raw, cols := uv()
+	out = append(out, raw...)
+	for ci := 0; ci < int(cols); ci++ {
+		_, size := uv()
+		end := len(b) - int(size)
+		col := append([]byte(nil), take(4+1)...) // magic, task
+		regression := colstats.Task(col[4]) == colstats.Regression
+		_, folds := uv()
+		_, classes := uv()
+		col = binary.AppendUvarint(binary.AppendUvarint(col, folds), classes)
+		col = append(col, take(8)...)
+		raw, levels := uv()
+		col = append(col, raw...)
+		for l := 0; l < int(levels); l++ {
+			_, key := uv()
+			col = binary.AppendUvarint(col, key)
+			if key > 0 {
+				col = append(col, take(int(key-1))...)
+			}
+			raw, _ := uv()
+			col = append(col, edit("rows", ci, l, -1, raw)...)
+			raw, cells := uv()
+			col = append(col, raw...)
+			for f := 0; f < int(cells); f++ {
+				raw, _ = uv()
+				col = append(col, raw...)
+				if !regression {
+					for range classes {
+						raw, _ := uv()
+						col = append(col, edit("count", ci, l, f, raw)...)
+					}
+					continue
+				}
+				raw, _ = uv()
+				col = append(col, edit("n", ci, l, f, raw)...)
+				for _, name := range []string{"sum", "sq"} {
+					_, n := uv()
+					v := edit(name, ci, l, f, take(int(n)))
+					col = append(binary.AppendUvarint(col, uint64(len(v))), v...)
+				}
+			}
+			_, n := uv()
+			col = append(binary.AppendUvarint(col, n), take(int(n))...)
+		}
+		if len(b) != end {
+			tb.Fatalf("column %d of a partial: %d bytes left", ci, len(b)-end)
+		}
+		out = append(binary.AppendUvarint(out, uint64(len(col))), col...)
+	}
+	if len(b) != 0 {
+		tb.Fatalf("%d bytes after a partial", len(b))
+	}
+	return out
+}
+
+// hostilePartials returns partials of the jobs (kind, which, bytes) that
+// hold values no shard gives: counts that overflow, a cell of more rows
+// than a level may have, sums whose squares are not finite.
+func hostilePartials(tb testing.TB, jobs []assembleJob) (kinds, which []uint8, data [][]byte) {
+	uvarint := func(v uint64) []byte { return binary.AppendUvarint(nil, v) }
+	var huge exactsum.Sum
+	huge.Add(1e300)
+	add := func(kind, i int, edit func(field string, col, level, cell int, v []byte) []byte) {
+		kinds, which = append(kinds, uint8(kind)), append(which, uint8(i))
+		data = append(data, rewritePartial(tb, jobs[kind].partials[i], edit))
+	}
+	first := func(field string, v []byte) func(string, int, int, int, []byte) []byte {
+		done := false
+		return func(f string, col, level, cell int, old []byte) []byte {
+			if f == field && !done {
+				done = true
+				return v
+			}
+			return old
+		}
+	}
+	for kind := range jobs {
+		// The same bytes written again are accepted.
+		add(kind, 0, func(_ string, _, _, _ int, v []byte) []byte { return v })
+		add(kind, 1, first("rows", uvarint(math.MaxUint64)))
+		add(kind, 2, first("rows", uvarint(1<<63)))
+	}
+	add(0, 0, first("count", uvarint(math.MaxUint64)))
+	add(0, 3, first("count", uvarint(1<<40)))
+	// Every count of every level 2^63: a level's counts wrap to 0.
+	add(0, 1, func(f string, _, _, _ int, v []byte) []byte {
+		if f == "count" {
+			return uvarint(1 << 63)
+		}
+		return v
+	})
+	add(1, 0, first("n", uvarint(math.MaxUint32)))
+	add(1, 1, first("sum", huge.AppendBinary(nil)))
+	add(1, 2, first("sq", huge.AppendBinary(nil)))
+	add(1, 3, func(f string, _, _, _ int, v []byte) []byte {
+		if f == "sum" || f == "sq" {
+			return huge.AppendBinary(nil)
+		}
+		return v
+	})
+	return kinds, which, data
+}

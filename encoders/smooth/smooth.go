@@ -8,7 +8,11 @@
 // unless a documented edge case returns the prior first.
 package smooth
 
-import "math"
+import (
+	"math"
+
+	"manyfold/encoders/exactsum"
+)
 
 // MEstimate returns the m-estimate (sum + m*prior) / (n + m) of a level with n
 // rows whose targets add up to sum: the level mean shrunk towards prior with
@@ -208,7 +212,11 @@ func (nm *NestedMoments) Add(s LevelStats, parent int) {
 // rows (N <= L), or no parent with two levels (the denominator is 0), gives
 // m = FallbackM with tau2 NaN; NaN sums give NaN.
 func (nm *NestedMoments) Estimate() (m, sigma2, tau2 float64) {
-	var ssb, df, coef float64
+	// The parents' terms are summed exactly, so that the estimate does
+	// not depend on how the parents are numbered (the order in which
+	// their levels were met, or a sharded fit's merge).
+	var ssbX, coefX exactsum.Sum
+	var df float64
 	for _, g := range nm.groups {
 		if g.l == 0 {
 			continue
@@ -217,10 +225,11 @@ func (nm *NestedMoments) Estimate() (m, sigma2, tau2 float64) {
 		if b < 0 {
 			b = 0 // rounding: a sum of squares
 		}
-		ssb += b
+		ssbX.Add(b)
 		df += float64(g.l - 1)
-		coef += g.n - g.sumSqN/g.n
+		coefX.Add(g.n - g.sumSqN/g.n)
 	}
+	ssb, coef := ssbX.Float64(), coefX.Float64()
 	if nm.n <= float64(nm.l) || df == 0 || !(coef > 0) {
 		sigma2 = math.NaN()
 		if nm.n > float64(nm.l) {

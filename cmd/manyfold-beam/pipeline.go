@@ -1,0 +1,388 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"os"
+	"path"
+	"path/filepath"
+	"slices"
+	"strings"
+
+	"github.com/apache/beam/sdks/v2/go/pkg/beam"
+	"github.com/apache/beam/sdks/v2/go/pkg/beam/io/filesystem"
+	"github.com/apache/beam/sdks/v2/go/pkg/beam/register"
+	"github.com/cespare/xxhash/v2"
+
+	"manyfold/encoders/pipeline"
+	"manyfold/io/table"
+	"manyfold/io/tableio"
+)
+
+func init() {
+	register.DoFn3x1[context.Context, Shard, func([]byte), error](&surveyFn{})
+	register.DoFn4x1[context.Context, Shard, func(*[]byte) bool, func(int, []byte), error](&fitFn{})
+	register.DoFn5x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func([]byte), error](&mergeFn{})
+	register.DoFn5x1[context.Context, Shard, func(*[]byte) bool, func(*[]byte) bool, func(string), error](&encodeFn{})
+	register.DoFn5x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func(string), error](&tablesFn{})
+	register.DoFn3x1[context.Context, int, func(*string) bool, error](&finishFn{})
+	register.Iter1[string]()
+	register.Emitter1[[]byte]()
+	register.Emitter1[string]()
+	register.Emitter2[int, []byte]()
+	register.Iter1[[]byte]()
+	beam.RegisterType(typeOf[Shard]())
+}
+
+// Build adds the sharded encoding job to the pipeline at s: every shard's
+// encoded rows into out (part-NNNNN.EXT, one file a shard, in the shards'
+// order), the mapping tables into tables. It returns the paths written.
+//
+//	shards -> Reshuffle -> survey -> facts (side input of what follows)
+//	shards -> fit -> (partition, partial) -> GroupByKey -> merge -> merged (side input)
+//	shards -> encode (facts, merged) -> out/part-NNNNN.EXT
+//	one    -> tables (facts, merged) -> tables
+func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PCollection {
+	// Without a Reshuffle a runner may fuse the whole graph into one
+	// bundle and run the shards one after another.
+	sc := beam.Reshuffle(s, beam.CreateList(s, shards))
+	facts := beam.ParDo(s.Scope("survey"), &surveyFn{Job: job}, sc)
+	partials := beam.ParDo(s.Scope("fit"), &fitFn{Job: job, Schema: shards[0].Path}, sc, beam.SideInput{Input: facts})
+	merged := beam.ParDo(s.Scope("merge"), &mergeFn{Job: job, Schema: shards[0].Path}, beam.GroupByKey(s, partials), beam.SideInput{Input: facts})
+	written := beam.ParDo(s.Scope("encode"), &encodeFn{Job: job, Schema: shards[0].Path, Out: out}, sc,
+		beam.SideInput{Input: facts}, beam.SideInput{Input: merged})
+	saved := beam.ParDo(s.Scope("tables"), &tablesFn{Job: job, Schema: shards[0].Path, Tables: tables}, beam.Create(s, 0),
+		beam.SideInput{Input: facts}, beam.SideInput{Input: merged})
+	// Once every shard is written: the temporary files of bundles that
+	// failed, or of attempts a runner abandoned, are removed.
+	beam.ParDo0(s.Scope("finish"), &finishFn{Out: out}, beam.Create(s, 0), beam.SideInput{Input: written})
+	return beam.Flatten(s, written, saved)
+}
+
+// surveyFn is stage 0: a shard's facts (pipeline.Survey), as JSON.
+type surveyFn struct{ Job Job }
+
+func (fn *surveyFn) ProcessElement(ctx context.Context, sh Shard, emit func([]byte)) error {
+	sp, err := fn.Job.Spec()
+	if err != nil {
+		return err
+	}
+	r, done, err := open(ctx, &sp, sh.Path)
+	if err != nil {
+		return err
+	}
+	defer done()
+	f, err := pipeline.Survey(r, sp, sh.Path)
+	if err != nil {
+		return err
+	}
+	b, err := json.Marshal(ShardFacts{Index: sh.Index, Facts: f})
+	if err != nil {
+		return err
+	}
+	emit(b)
+	return nil
+}
+
+// readFacts collects the facts of every shard from the side input.
+func readFacts(iter func(*[]byte) bool) ([]ShardFacts, error) {
+	var out []ShardFacts
+	var b []byte
+	for iter(&b) {
+		var f ShardFacts
+		if err := json.Unmarshal(b, &f); err != nil {
+			return nil, fmt.Errorf("a shard's facts: %w", err)
+		}
+		out = append(out, f)
+	}
+	return out, nil
+}
+
+// planOf rebuilds the job's plan on a worker: the spec, the schema (of the
+// first shard, with the derived columns) and every shard's facts.
+func planOf(ctx context.Context, job Job, schemaPath string, facts func(*[]byte) bool) (pipeline.Spec, *pipeline.ShardPlan, error) {
+	sp, err := job.Spec()
+	if err != nil {
+		return sp, nil, err
+	}
+	fs, err := readFacts(facts)
+	if err != nil {
+		return sp, nil, err
+	}
+	schema, err := schemaOf(ctx, &sp, schemaPath)
+	if err != nil {
+		return sp, nil, err
+	}
+	p, err := plan(sp, schema, fs)
+	return sp, p, err
+}
+
+// fitFn is stage 1: a shard's statistics, one partial per partition.
+type fitFn struct {
+	Job    Job
+	Schema string // the shard whose schema the plan takes
+}
+
+func (fn *fitFn) ProcessElement(ctx context.Context, sh Shard, facts func(*[]byte) bool, emit func(int, []byte)) error {
+	sp, p, err := planOf(ctx, fn.Job, fn.Schema, facts)
+	if err != nil {
+		return err
+	}
+	r, done, err := open(ctx, &sp, sh.Path)
+	if err != nil {
+		return err
+	}
+	defer done()
+	ss, err := pipeline.FitShard(r, p, sh.Index, pipeline.FitOptions{File: sh.Path, Threads: 2})
+	if err != nil {
+		return err
+	}
+	for part := 0; part < fn.Job.Partitions; part++ {
+		b, err := ss.Partial(part, fn.Job.Partitions)
+		if err != nil {
+			return err
+		}
+		emit(part, b)
+	}
+	return nil
+}
+
+// mergeFn merges one partition's partials from every shard.
+type mergeFn struct {
+	Job    Job
+	Schema string
+}
+
+func (fn *mergeFn) ProcessElement(ctx context.Context, part int, partials func(*[]byte) bool, facts func(*[]byte) bool, emit func([]byte)) error {
+	sp, p, err := planOf(ctx, fn.Job, fn.Schema, facts)
+	if err != nil {
+		return err
+	}
+	var all [][]byte
+	var b []byte
+	for partials(&b) {
+		all = append(all, slices.Clone(b))
+	}
+	schema, err := schemaOf(ctx, &sp, fn.Schema)
+	if err != nil {
+		return err
+	}
+	m, err := pipeline.MergePartials(p, schema, all, pipeline.FitOptions{})
+	if err != nil {
+		return fmt.Errorf("partition %d: %w", part, err)
+	}
+	emit(m)
+	return nil
+}
+
+// model returns the model assembled from the merged partitions, once per
+// worker for the same job and statistics.
+func model(ctx context.Context, job Job, schemaPath string, facts, merged func(*[]byte) bool) (*pipeline.Model, *pipeline.ShardPlan, error) {
+	var parts [][]byte
+	var b []byte
+	for merged(&b) {
+		parts = append(parts, slices.Clone(b))
+	}
+	// The side input's order is the runner's: sorted, the key does not
+	// depend on it (nor does the model).
+	slices.SortFunc(parts, func(a, b []byte) int { return strings.Compare(string(a), string(b)) })
+	h := xxhash.New()
+	jb, _ := json.Marshal(job)
+	h.Write(jb)
+	h.Write([]byte(schemaPath))
+	for _, p := range parts {
+		h.Write(p)
+	}
+	v, _ := models.LoadOrStore(fmt.Sprintf("%x", h.Sum64()), &modelOnce{})
+	mo := v.(*modelOnce)
+	mo.once.Do(func() {
+		var sp pipeline.Spec
+		sp, mo.plan, mo.err = planOf(ctx, job, schemaPath, facts)
+		if mo.err != nil {
+			return
+		}
+		schema, err := schemaOf(ctx, &sp, schemaPath)
+		if err != nil {
+			mo.err = err
+			return
+		}
+		mo.m, mo.err = pipeline.Assemble(mo.plan, schema, parts, pipeline.FitOptions{File: "the shards", Threads: 2, Tables: true})
+	})
+	return mo.m, mo.plan, mo.err
+}
+
+// encodeFn is stage 2: a shard's rows encoded into out/part-NNNNN.EXT.
+type encodeFn struct {
+	Job    Job
+	Schema string
+	Out    string
+}
+
+// partName is the encoded file of shard i.
+func partName(out string, i int, format string) string {
+	name := fmt.Sprintf("part-%05d.%s", i, format)
+	if strings.Contains(out, "://") {
+		return strings.TrimSuffix(out, "/") + "/" + name
+	}
+	return filepath.Join(out, name)
+}
+
+func (fn *encodeFn) ProcessElement(ctx context.Context, sh Shard, facts, merged func(*[]byte) bool, emit func(string)) error {
+	m, p, err := model(ctx, fn.Job, fn.Schema, facts, merged)
+	if err != nil {
+		return err
+	}
+	final := partName(fn.Out, sh.Index, fn.Job.Format)
+	removeStale(final)
+	err = writeFile(final, func(dst string) error {
+		r, done, err := open(ctx, &m.Spec, sh.Path)
+		if err != nil {
+			return err
+		}
+		defer done()
+		r = &ctxReader{Reader: r, ctx: ctx} // an abandoned bundle stops, its file removed
+		schema, _, _, err := m.OutputSchema(sh.Path, r.Schema(), pipeline.Training)
+		if err != nil {
+			return err
+		}
+		w, err := tableio.Create(dst, schema, tableio.WriteOptions{})
+		if err != nil {
+			return err
+		}
+		if _, err := m.Encode(r, w, pipeline.EncodeOptions{File: sh.Path, Threads: 2, Part: true, Offset: p.First[sh.Index] - 1}); err != nil {
+			w.Abort()
+			return err
+		}
+		if failOnce(final) {
+			w.Abort()
+			return fmt.Errorf("%s: a failure injected once (MANYFOLD_BEAM_FAIL_ONCE)", final)
+		}
+		return w.Commit()
+	})
+	if err != nil {
+		return err
+	}
+	emit(final)
+	return nil
+}
+
+// removeStale removes the temporary files of earlier attempts at the
+// local file final (".NAME.tmp-*", see atomicfile).
+func removeStale(final string) {
+	if strings.Contains(final, "://") {
+		return
+	}
+	stale, _ := filepath.Glob(filepath.Join(filepath.Dir(final), "."+filepath.Base(final)+".tmp-*"))
+	for _, p := range stale {
+		os.Remove(p)
+	}
+}
+
+// finishFn runs once every shard is written (its side input is their
+// paths): it removes the temporary files of attempts that failed or were
+// abandoned.
+type finishFn struct{ Out string }
+
+func (fn *finishFn) ProcessElement(ctx context.Context, _ int, written func(*string) bool) error {
+	var p string
+	for written(&p) {
+		if strings.HasPrefix(filepath.Base(p), "part-") {
+			removeStale(p)
+		}
+	}
+	return nil
+}
+
+// ctxReader stops reading once the bundle's context is done.
+type ctxReader struct {
+	table.Reader
+	ctx context.Context
+}
+
+func (c *ctxReader) Next() (*table.Batch, error) {
+	if err := c.ctx.Err(); err != nil {
+		return nil, err
+	}
+	return c.Reader.Next()
+}
+
+// failOnce reports, the first time it is asked about a path that ends in
+// the suffix MANYFOLD_BEAM_FAIL_ONCE names, that the write should fail (a
+// test's injected fault: the bundle fails once and is retried); a marker
+// file beside the path remembers that it did.
+func failOnce(final string) bool {
+	suffix := os.Getenv("MANYFOLD_BEAM_FAIL_ONCE")
+	if suffix == "" || !strings.HasSuffix(final, suffix) || strings.Contains(final, "://") {
+		return false
+	}
+	marker := final + ".failed-once"
+	f, err := os.OpenFile(marker, os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644)
+	if err != nil {
+		return false // failed before
+	}
+	f.Close()
+	return true
+}
+
+// tablesFn writes the mapping tables from the assembled model.
+type tablesFn struct {
+	Job    Job
+	Schema string
+	Tables string
+}
+
+func (fn *tablesFn) ProcessElement(ctx context.Context, _ int, facts, merged func(*[]byte) bool, emit func(string)) error {
+	m, _, err := model(ctx, fn.Job, fn.Schema, facts, merged)
+	if err != nil {
+		return err
+	}
+	if !strings.Contains(fn.Tables, "://") {
+		if err := m.SaveTables(fn.Tables); err != nil {
+			return err
+		}
+		emit(fn.Tables)
+		return nil
+	}
+	// Another filesystem: the tables written locally, then copied, the
+	// manifest last.
+	d, err := os.MkdirTemp("", "manyfold-tables-*")
+	if err != nil {
+		return err
+	}
+	defer os.RemoveAll(d)
+	local := filepath.Join(d, "t")
+	if err := m.SaveTables(local); err != nil {
+		return err
+	}
+	entries, err := os.ReadDir(local)
+	if err != nil {
+		return err
+	}
+	slices.SortFunc(entries, func(a, b os.DirEntry) int {
+		return boolInt(a.Name() == "manifest.json") - boolInt(b.Name() == "manifest.json")
+	})
+	fs, err := filesystem.New(ctx, fn.Tables)
+	if err != nil {
+		return err
+	}
+	defer fs.Close()
+	for _, e := range entries {
+		data, err := os.ReadFile(filepath.Join(local, e.Name()))
+		if err != nil {
+			return err
+		}
+		if err := filesystem.Write(ctx, fs, strings.TrimSuffix(fn.Tables, "/")+"/"+path.Base(e.Name()), data); err != nil {
+			return err
+		}
+	}
+	emit(fn.Tables)
+	return nil
+}
+
+func boolInt(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
+}

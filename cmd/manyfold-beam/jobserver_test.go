@@ -82,7 +82,7 @@ func TestPipelineOnJobServer(t *testing.T) {
 
 	port := freePort(t)
 	server := exec.Command(prismBin, "--job_port", fmt.Sprint(port), "--serve_http=false")
-	server.Env = env
+	server.Env, server.Dir = env, work // it writes pipeline_options.json where it runs
 	server.SysProcAttr = &syscall.SysProcAttr{Setpgid: true}
 	var serverLog bytes.Buffer
 	server.Stdout, server.Stderr = &serverLog, &serverLog
@@ -116,7 +116,7 @@ func TestPipelineOnJobServer(t *testing.T) {
 		"-input", filepath.Join(data, "part-*.parquet"), "-out", out, "-tables", tables,
 		"-target", job.Target, "-columns", job.Columns, "-methods", job.Methods, "-folds", "5", "-seed", "3",
 		"-partitions", "16", "-format", "csv")
-	run.Env = env
+	run.Env, run.Dir = env, work
 	run.SysProcAttr = &syscall.SysProcAttr{Setpgid: true}
 	log, err := run.CombinedOutput()
 	if err != nil {

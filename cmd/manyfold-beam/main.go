@@ -23,6 +23,7 @@ import (
 	"flag"
 	"fmt"
 	"os"
+	"runtime/pprof"
 	"slices"
 
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
@@ -57,8 +58,15 @@ func init() {
 func main() {
 	flag.Parse()
 	beam.Init()
+	if p := os.Getenv("MANYFOLD_CPUPROFILE"); p != "" {
+		if f, err := os.Create(p); err == nil {
+			pprof.StartCPUProfile(f)
+			defer pprof.StopCPUProfile()
+		}
+	}
 	if err := run(context.Background()); err != nil {
 		fmt.Fprintln(os.Stderr, "manyfold-beam:", err)
+		pprof.StopCPUProfile()
 		os.Exit(1)
 	}
 }

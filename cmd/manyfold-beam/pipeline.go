@@ -138,11 +138,11 @@ func (fn *fitFn) ProcessElement(ctx context.Context, sh Shard, facts func(*[]byt
 	if err != nil {
 		return err
 	}
-	for part := 0; part < fn.Job.Partitions; part++ {
-		b, err := ss.Partial(part, fn.Job.Partitions)
-		if err != nil {
-			return err
-		}
+	parts, err := ss.Partials(fn.Job.Partitions)
+	if err != nil {
+		return err
+	}
+	for part, b := range parts {
 		emit(part, b)
 	}
 	return nil
@@ -182,7 +182,8 @@ func model(ctx context.Context, job Job, schemaPath string, facts, merged func(*
 	var parts [][]byte
 	var b []byte
 	for merged(&b) {
-		parts = append(parts, slices.Clone(b))
+		parts = append(parts, b) // each element decoded into a slice of its own
+		b = nil
 	}
 	// The side input's order is the runner's: sorted, the key does not
 	// depend on it (nor does the model).

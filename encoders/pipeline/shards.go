@@ -330,13 +330,41 @@ var shardMagic = []byte("MFS1")
 // Partial returns the shard's statistics of the levels of partition part
 // of parts (a power of two from 1 to 65,536): for every column the fit
 // gathers, its colstats partial (colstats.AppendPartial), each level with
-// the parent of its rows under a column prior.
+// the parent of its rows under a column prior. Partials gives every
+// partition at once.
 func (ss *ShardStats) Partial(part, parts int) ([]byte, error) {
-	if parts < 1 || parts > 1<<16 || parts&(parts-1) != 0 || part < 0 || part >= parts {
+	if err := checkParts(parts); err != nil || part < 0 || part >= parts {
 		return nil, fmt.Errorf("partition %d of %d: want a power of two of partitions up to 65536", part, parts)
 	}
-	f := ss.f
-	return f.appendPartials(part, parts, func(ci int, c *Col) func([]byte, int) []byte {
+	all, err := ss.f.partials(parts, part)
+	if err != nil {
+		return nil, err
+	}
+	return all[0], nil
+}
+
+// Partials returns Partial(p, parts) for every partition p, each level's
+// partition computed once.
+func (ss *ShardStats) Partials(parts int) ([][]byte, error) {
+	if err := checkParts(parts); err != nil {
+		return nil, err
+	}
+	return ss.f.partials(parts, -1)
+}
+
+// checkParts refuses a number of partitions that is not a power of two
+// from 1 to 65,536.
+func checkParts(parts int) error {
+	if parts < 1 || parts > 1<<16 || parts&(parts-1) != 0 {
+		return fmt.Errorf("%d partitions: want a power of two up to 65536", parts)
+	}
+	return nil
+}
+
+// partials returns the shard's partials of every partition (only is -1) or
+// of partition only.
+func (f *fitter) partials(parts, only int) ([][]byte, error) {
+	return f.appendPartials(parts, only, func(ci int, c *Col) func([]byte, int) []byte {
 		parent := f.all[c.parentAt].St
 		return func(b []byte, l int) []byte {
 			if l >= len(c.nest) {
@@ -354,23 +382,36 @@ func (ss *ShardStats) Partial(part, parts int) ([]byte, error) {
 	}), nil
 }
 
-// appendPartials returns the partial of partition part of parts of every
-// column the fit gathers; extra gives, for a column with a column prior,
-// the writer of each level's parent.
-func (f *fitter) appendPartials(part, parts int, extra func(ci int, c *Col) func([]byte, int) []byte) []byte {
-	b := append([]byte(nil), shardMagic...)
-	b = binary.AppendUvarint(b, uint64(len(f.all)))
-	var col []byte
+// appendPartials returns the partials of every column the fit gathers,
+// for every partition of parts (only -1) or for partition only; extra
+// gives, for a column with a column prior, the writer of each level's
+// parent.
+func (f *fitter) appendPartials(parts, only int, extra func(ci int, c *Col) func([]byte, int) []byte) [][]byte {
+	n := parts
+	if only >= 0 {
+		n = 1
+	}
+	out := make([][]byte, n)
+	for i := range out {
+		out[i] = append(append([]byte(nil), shardMagic...), binary.AppendUvarint(nil, uint64(len(f.all)))...)
+	}
 	for ci, c := range f.all {
 		var x func([]byte, int) []byte
 		if c.nest != nil {
 			x = extra(ci, c)
 		}
-		col = c.St.AppendPartial(col[:0], part, parts, x)
-		b = binary.AppendUvarint(b, uint64(len(col)))
-		b = append(b, col...)
+		var cols [][]byte
+		if only >= 0 {
+			cols = [][]byte{c.St.AppendPartial(nil, only, parts, x)}
+		} else {
+			cols = c.St.Partials(parts, x)
+		}
+		for i, col := range cols {
+			out[i] = binary.AppendUvarint(out[i], uint64(len(col)))
+			out[i] = append(out[i], col...)
+		}
 	}
-	return b
+	return out
 }
 
 // ErrShardPartial is the error of bytes that are not a partial of this
@@ -531,12 +572,12 @@ func MergePartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt
 	if err != nil {
 		return nil, err
 	}
-	return f.appendPartials(0, 1, func(ci int, c *Col) func([]byte, int) []byte {
+	return f.appendPartials(1, 0, func(ci int, c *Col) func([]byte, int) []byte {
 		return func(b []byte, l int) []byte {
 			if l < len(keys[ci]) && len(keys[ci][l]) > 0 {
 				return append(b, keys[ci][l]...)
 			}
 			return b
 		}
-	}), nil
+	})[0], nil
 }

@@ -140,12 +140,17 @@ func shardedModel(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*
 		if err != nil {
 			t.Fatalf("stage 1 of %s: %v", p, err)
 		}
+		all, err := ss.Partials(parts)
+		if err != nil {
+			t.Fatal(err)
+		}
 		for part := range byPart {
-			b, err := ss.Partial(part, parts)
-			if err != nil {
-				t.Fatal(err)
+			if i == 0 { // Partial gives what Partials gives
+				if one, err := ss.Partial(part, parts); err != nil || !bytes.Equal(one, all[part]) {
+					t.Fatalf("Partial(%d, %d) differs from Partials' (%v)", part, parts, err)
+				}
 			}
-			byPart[part] = append(byPart[part], b)
+			byPart[part] = append(byPart[part], all[part])
 		}
 	}
 	var merged [][]byte

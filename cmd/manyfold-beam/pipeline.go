@@ -100,13 +100,19 @@ func readFacts(iter func(*[]byte) bool) ([]ShardFacts, error) {
 }
 
 // planOf rebuilds the job's plan on a worker: the spec, the schema (of the
-// first shard, with the derived columns) and every shard's facts.
+// first shard, with the derived columns) and every shard's facts (the side
+// input).
 func planOf(ctx context.Context, job Job, schemaPath string, facts func(*[]byte) bool) (pipeline.Spec, *pipeline.ShardPlan, error) {
-	sp, err := job.Spec()
-	if err != nil {
-		return sp, nil, err
-	}
 	fs, err := readFacts(facts)
+	if err != nil {
+		return pipeline.Spec{}, nil, err
+	}
+	return planFrom(ctx, job, schemaPath, fs)
+}
+
+// planFrom is planOf with the facts read.
+func planFrom(ctx context.Context, job Job, schemaPath string, facts []ShardFacts) (pipeline.Spec, *pipeline.ShardPlan, error) {
+	sp, err := job.Spec()
 	if err != nil {
 		return sp, nil, err
 	}
@@ -114,7 +120,7 @@ func planOf(ctx context.Context, job Job, schemaPath string, facts func(*[]byte)
 	if err != nil {
 		return sp, nil, err
 	}
-	p, err := plan(sp, schema, fs)
+	p, err := plan(sp, schema, slices.Clone(facts))
 	return sp, p, err
 }
 
@@ -178,28 +184,31 @@ func (fn *mergeFn) ProcessElement(ctx context.Context, part int, partials func(*
 
 // model returns the model assembled from the merged partitions, once per
 // worker for the same job and statistics.
-func model(ctx context.Context, job Job, schemaPath string, facts, merged func(*[]byte) bool) (*pipeline.Model, *pipeline.ShardPlan, error) {
-	var parts [][]byte
-	var b []byte
-	for merged(&b) {
-		parts = append(parts, b) // each element decoded into a slice of its own
-		b = nil
+func model(ctx context.Context, job Job, schemaPath string, factsIter, merged func(*[]byte) bool) (*pipeline.Model, *pipeline.ShardPlan, error) {
+	facts, err := readFacts(factsIter)
+	if err != nil {
+		return nil, nil, err
 	}
-	// The side input's order is the runner's: sorted, the key does not
-	// depend on it (nor does the model).
-	slices.SortFunc(parts, func(a, b []byte) int { return strings.Compare(string(a), string(b)) })
-	h := xxhash.New()
-	jb, _ := json.Marshal(job)
-	h.Write(jb)
-	h.Write([]byte(schemaPath))
-	for _, p := range parts {
-		h.Write(p)
-	}
-	v, _ := models.LoadOrStore(fmt.Sprintf("%x", h.Sum64()), &modelOnce{})
+	// The key: the job, its first shard and every shard's facts. Only the
+	// first bundle of a worker reads the merged statistics (a side input
+	// is fetched as it is iterated: hundreds of megabytes at 10M rows).
+	slices.SortFunc(facts, func(a, b ShardFacts) int { return a.Index - b.Index })
+	kb, _ := json.Marshal(struct {
+		Job    Job
+		Schema string
+		Facts  []ShardFacts
+	}{job, schemaPath, facts})
+	v, _ := models.LoadOrStore(fmt.Sprintf("%x", xxhash.Sum64(kb)), &modelOnce{})
 	mo := v.(*modelOnce)
 	mo.once.Do(func() {
+		var parts [][]byte
+		var b []byte
+		for merged(&b) {
+			parts = append(parts, b) // each element decoded into a slice of its own
+			b = nil
+		}
 		var sp pipeline.Spec
-		sp, mo.plan, mo.err = planOf(ctx, job, schemaPath, facts)
+		sp, mo.plan, mo.err = planFrom(ctx, job, schemaPath, facts)
 		if mo.err != nil {
 			return
 		}

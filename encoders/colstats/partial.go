@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 
 	"manyfold/encoders/exactsum"
 	"manyfold/encoders/levels"
@@ -90,6 +91,17 @@ func (s *Stats) Partials(parts int, extra func(b []byte, l int) []byte) [][]byte
 
 // appendLevels appends the partial form of the levels ls.
 func (s *Stats) appendLevels(b []byte, ls []int32, extra func(b []byte, l int) []byte) []byte {
+	// Room for every level at once (a growing slice copies itself again
+	// and again): its key, counts and a cell or two.
+	per := 8 + 2*s.Folds
+	if s.Task == Regression {
+		per += 24
+	}
+	var keys int
+	for _, l := range ls {
+		keys += len(s.Bytes(int(l)))
+	}
+	b = slices.Grow(b, 32+keys+len(ls)*per)
 	b = append(b, partialMagic...)
 	b = append(b, byte(s.Task))
 	b = binary.AppendUvarint(b, uint64(s.Folds))

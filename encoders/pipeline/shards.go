@@ -391,25 +391,33 @@ func (f *fitter) appendPartials(parts, only int, extra func(ci int, c *Col) func
 	if only >= 0 {
 		n = 1
 	}
-	out := make([][]byte, n)
-	for i := range out {
-		out[i] = append(append([]byte(nil), shardMagic...), binary.AppendUvarint(nil, uint64(len(f.all)))...)
-	}
+	byCol := make([][][]byte, len(f.all))
 	for ci, c := range f.all {
 		var x func([]byte, int) []byte
 		if c.nest != nil {
 			x = extra(ci, c)
 		}
-		var cols [][]byte
 		if only >= 0 {
-			cols = [][]byte{c.St.AppendPartial(nil, only, parts, x)}
+			byCol[ci] = [][]byte{c.St.AppendPartial(nil, only, parts, x)}
 		} else {
-			cols = c.St.Partials(parts, x)
+			byCol[ci] = c.St.Partials(parts, x)
 		}
-		for i, col := range cols {
-			out[i] = binary.AppendUvarint(out[i], uint64(len(col)))
-			out[i] = append(out[i], col...)
+	}
+	out := make([][]byte, n)
+	for i := range out {
+		size := len(shardMagic) + binary.MaxVarintLen64
+		for ci := range byCol {
+			size += binary.MaxVarintLen64 + len(byCol[ci][i])
 		}
+		b := make([]byte, 0, size) // one copy of the columns' partials
+		b = append(b, shardMagic...)
+		b = binary.AppendUvarint(b, uint64(len(f.all)))
+		for ci := range byCol {
+			b = binary.AppendUvarint(b, uint64(len(byCol[ci][i])))
+			b = append(b, byCol[ci][i]...)
+			byCol[ci][i] = nil
+		}
+		out[i] = b
 	}
 	return out
 }

@@ -53,13 +53,7 @@ func freePort(t *testing.T) int {
 // leave (staged binaries, semi-persistent files, processes) is kept in the
 // test's directory and process group, and removed.
 func TestPipelineOnJobServer(t *testing.T) {
-	rows := int64(1_000_000)
-	if testing.Short() {
-		rows = 200_000
-	}
-	k := rows / 1000
-	sizes := []int64{k * 40, 0, k * 90, k * 150, k * 60, k * 200, k * 10, 0}
-	sizes[7] = rows - (sizes[0] + sizes[2] + sizes[3] + sizes[4] + sizes[5] + sizes[6])
+	sizes := testSizes()
 	work := t.TempDir()
 	data := filepath.Join(work, "data")
 	os.MkdirAll(data, 0o755)

@@ -65,6 +65,19 @@ func (w *shardWriter) Close() error {
 	return w.out.Commit()
 }
 
+// testSizes returns the row counts of the tests' 8 shards: 1M rows (200,000
+// with -short), uneven, two shards empty.
+func testSizes() []int64 {
+	rows := int64(1_000_000)
+	if testing.Short() {
+		rows = 200_000
+	}
+	k := rows / 1000
+	sizes := []int64{k * 40, 0, k * 90, k * 150, k * 60, k * 200, k * 10, 0}
+	sizes[7] = rows - (sizes[0] + sizes[2] + sizes[3] + sizes[4] + sizes[5] + sizes[6])
+	return sizes
+}
+
 // writeDataset writes the parcel network's table of sum(sizes) rows as
 // Parquet shards of those sizes (multiples of 1,000) in dir.
 func writeDataset(t testing.TB, dir string, sizes []int64) {
@@ -194,13 +207,7 @@ func runPrism(t testing.TB, job Job, shards []Shard, out, tables string) error {
 // one-machine job over the same rows, byte for byte: binary and regression
 // targets.
 func TestPipelineSameAsOneMachine(t *testing.T) {
-	rows := int64(1_000_000)
-	if testing.Short() {
-		rows = 200_000
-	}
-	k := rows / 1000
-	sizes := []int64{k * 40, 0, k * 90, k * 150, k * 60, k * 200, k * 10, 0}
-	sizes[7] = rows - (sizes[0] + sizes[2] + sizes[3] + sizes[4] + sizes[5] + sizes[6])
+	sizes := testSizes()
 	data := t.TempDir()
 	writeDataset(t, data, sizes)
 	shards, err := listShards(context.Background(), filepath.Join(data, "part-*.parquet"))

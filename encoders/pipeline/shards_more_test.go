@@ -40,28 +40,10 @@ func shardSpec(t *testing.T, target, plan, scheme, foldBy string) pipeline.Spec 
 	return sp
 }
 
-// schemaOf returns the schema of the table at path.
-func schemaOf(t *testing.T, path string) *table.Schema {
-	t.Helper()
-	r := open(t, path)
-	defer r.Close()
-	return &table.Schema{Fields: append([]table.Field(nil), r.Schema().Fields...)}
-}
-
 // surveyAll runs stage 0 over every shard and returns the plan.
 func surveyAll(t *testing.T, sp pipeline.Spec, shards []string) *pipeline.ShardPlan {
 	t.Helper()
-	facts := make([]pipeline.ShardFacts, len(shards))
-	for i, p := range shards {
-		r := open(t, p)
-		var err error
-		facts[i], err = pipeline.Survey(r, sp, p)
-		r.Close()
-		if err != nil {
-			t.Fatalf("survey %s: %v", p, err)
-		}
-	}
-	plan, err := pipeline.PlanShards(sp, schemaOf(t, shards[0]), facts, "the shards")
+	plan, _, err := planShards(t, sp, shards)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -233,17 +215,7 @@ func TestPlanShardsRefuses(t *testing.T) {
 		shards := splitText(t, dir, text.String(), []int{30, 30, 30})
 		sp := shardSpec(t, "label", "target:eb", "kfold", "rows")
 		sp.Columns = []string{"sender"}
-		facts := make([]pipeline.ShardFacts, len(shards))
-		for i, p := range shards {
-			r := open(t, p)
-			var err error
-			facts[i], err = pipeline.Survey(r, sp, p)
-			r.Close()
-			if err != nil {
-				t.Fatalf("survey of %s (30 labels): %v", p, err)
-			}
-		}
-		plan, err := pipeline.PlanShards(sp, schemaOf(t, shards[0]), facts, "the shards")
+		plan, _, err := planShards(t, sp, shards)
 		var de *table.DataError
 		if !errors.As(err, &de) || de.Column != "label" || de.File != "the shards" || plan != nil {
 			t.Fatalf("90 labels over 3 shards: plan %v, error %T %v; want a DataError naming the shards and column label", plan, err, err)
@@ -282,18 +254,7 @@ func TestPlanShardsRefuses(t *testing.T) {
 // stages: Survey, PlanShards, FitShard, Assemble.
 func sharded(t *testing.T, sp pipeline.Spec, shards []string) error {
 	t.Helper()
-	facts := make([]pipeline.ShardFacts, len(shards))
-	for i, p := range shards {
-		r := open(t, p)
-		var err error
-		facts[i], err = pipeline.Survey(r, sp, p)
-		r.Close()
-		if err != nil {
-			return err
-		}
-	}
-	schema := schemaOf(t, shards[0])
-	plan, err := pipeline.PlanShards(sp, schema, facts, "the shards")
+	plan, schema, err := planShards(t, sp, shards)
 	if err != nil {
 		return err
 	}

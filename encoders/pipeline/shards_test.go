@@ -111,24 +111,39 @@ func encodeTo(t *testing.T, m *pipeline.Model, path, out string, opt pipeline.En
 	}
 }
 
-// shardedModel runs the sharded fit over the shards: stage 0, the plan,
-// stage 1 cut into parts partitions, the merge of each partition, and the
-// assembly.
-func shardedModel(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*pipeline.Model, *pipeline.ShardPlan) {
+// schemaOf returns the schema of the table at path.
+func schemaOf(t *testing.T, path string) *table.Schema {
+	t.Helper()
+	r := open(t, path)
+	defer r.Close()
+	return &table.Schema{Fields: append([]table.Field(nil), r.Schema().Fields...)}
+}
+
+// planShards runs stage 0 over every shard and makes the plan; it returns
+// the first error of Survey or PlanShards, and the first shard's schema.
+func planShards(t *testing.T, sp pipeline.Spec, shards []string) (*pipeline.ShardPlan, *table.Schema, error) {
 	t.Helper()
 	facts := make([]pipeline.ShardFacts, len(shards))
 	for i, p := range shards {
 		r := open(t, p)
 		var err error
-		if facts[i], err = pipeline.Survey(r, sp, p); err != nil {
-			t.Fatalf("survey %s: %v", p, err)
-		}
+		facts[i], err = pipeline.Survey(r, sp, p)
 		r.Close()
+		if err != nil {
+			return nil, nil, fmt.Errorf("survey %s: %w", p, err)
+		}
 	}
-	r := open(t, shards[0])
-	schema := &table.Schema{Fields: append([]table.Field(nil), r.Schema().Fields...)}
-	r.Close()
+	schema := schemaOf(t, shards[0])
 	plan, err := pipeline.PlanShards(sp, schema, facts, "the shards")
+	return plan, schema, err
+}
+
+// shardedModel runs the sharded fit over the shards: stage 0, the plan,
+// stage 1 cut into parts partitions, the merge of each partition, and the
+// assembly.
+func shardedModel(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*pipeline.Model, *pipeline.ShardPlan) {
+	t.Helper()
+	plan, schema, err := planShards(t, sp, shards)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -147,7 +147,19 @@ func (s *Stratifier) Next(class int) int { return s.state(class).Next() }
 // the classes. Each call returns a new stream; the caller keeps one per
 // class.
 func (s *Stratifier) Stratum(label string) *Stratum {
-	return &Stratum{s: s, id: xxhash.Sum64String(label), perm: make([]int32, s.k)}
+	return s.StratumFrom(label, 0)
+}
+
+// StratumFrom returns the fold stream of the class whose label is label,
+// positioned after its first rows rows: the stream of a table's part whose
+// earlier parts hold rows rows of the class (a shard of a sharded fit).
+// Its rows get the folds they get in the stream of the whole table.
+func (s *Stratifier) StratumFrom(label string, rows uint64) *Stratum {
+	st := &Stratum{s: s, id: xxhash.Sum64String(label), rows: rows, perm: make([]int32, s.k)}
+	if k := uint64(s.k); rows%k != 0 {
+		s.shuffle(st.perm, st.id, rows/k) // the block it stops within
+	}
+	return st
 }
 
 // Next returns the fold in [0, k) of the class's next row.

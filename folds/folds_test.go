@@ -400,3 +400,24 @@ func TestStratumFollowsLabel(t *testing.T) {
 		t.Errorf("seeds 9 and 10 give one class the same 20 folds")
 	}
 }
+
+// TestStratumFrom: a class's stream started after r rows gives the next
+// rows the folds the whole stream gives them, at every offset within and
+// between blocks (a shard of a sharded fit starts its classes so).
+func TestStratumFrom(t *testing.T) {
+	const k, n = 5, 60
+	s := NewStratifier(11, k)
+	whole := s.Stratum("late")
+	var want []int
+	for range n {
+		want = append(want, whole.Next())
+	}
+	for _, r := range []uint64{0, 1, 4, 5, 6, 23, 59} {
+		st := s.StratumFrom("late", r)
+		for i := int(r); i < n; i++ {
+			if got := st.Next(); got != want[i] {
+				t.Fatalf("started after %d rows: row %d in fold %d, the whole stream's %d", r, i, got, want[i])
+			}
+		}
+	}
+}

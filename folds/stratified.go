@@ -34,6 +34,21 @@ type stratifiedAssigner struct {
 	k      int
 	strat  *Stratifier
 	strata []*Stratum // per class number: its label's fold stream
+	start  map[string]uint64
+}
+
+// StartStrata positions the stratified assigner a (StratifiedRule's) after
+// the rows of each class that come before its rows in the table: start
+// gives them by label (the earlier shards' rows of each class, in a sharded
+// fit), so that its rows get the folds they get in the whole table's
+// stream. It reports whether a is such an assigner; it must be called
+// before the first Assign.
+func StartStrata(a Assigner, start map[string]uint64) bool {
+	sa, ok := a.(*stratifiedAssigner)
+	if ok {
+		sa.start = start
+	}
+	return ok
 }
 
 func (a *stratifiedAssigner) Assign(b Batch, out []int32) error {
@@ -66,7 +81,7 @@ func (a *stratifiedAssigner) stratum(c int32, labels []string) (*Stratum, error)
 		if int(c) >= len(labels) {
 			return nil, fmt.Errorf("fold rule \"stratified\": class %d has no label (%d labels)", c, len(labels))
 		}
-		a.strata[c] = a.strat.Stratum(labels[c])
+		a.strata[c] = a.strat.StratumFrom(labels[c], a.start[labels[c]])
 	}
 	return a.strata[c], nil
 }

@@ -7,7 +7,7 @@
 //
 //	manyfold-beam -input 'DATA/part-*.parquet' -out OUT -tables TABLES \
 //	    -target late -columns dest_postcode,sender_account -methods target:eb+freq \
-//	    [-folds 5] [-seed 0] [-scheme kfold|loo|none] [-fold-by rows|group=COL|ordered] \
+//	    [-folds 5] [-seed 0] [-scheme kfold|loo|none] [-fold-by rows|stratified|group=COL|ordered] \
 //	    [-task binary|multiclass|regression] [-partitions 64] [-format parquet|csv] \
 //	    [Beam's flags: -runner prism|universal|flink|spark|dataflow -endpoint ... -worker_binary ...]
 //
@@ -47,7 +47,7 @@ func init() {
 	flag.StringVar(&job.Columns, "columns", "", "categorical columns to encode, comma separated")
 	flag.StringVar(&job.Methods, "methods", "target:eb", "encodings, as manyfold encode --methods")
 	flag.StringVar(&job.Task, "task", "", "binary, multiclass or regression (default: detected)")
-	flag.StringVar(&job.FoldBy, "fold-by", "rows", "fold rule: rows, group=COL, ordered")
+	flag.StringVar(&job.FoldBy, "fold-by", "rows", "fold rule: rows, stratified, group=COL, ordered")
 	flag.StringVar(&job.Scheme, "scheme", "kfold", "training rows: kfold, loo, none")
 	flag.IntVar(&job.Folds, "folds", 5, "folds for out-of-fold statistics")
 	flag.Uint64Var(&job.Seed, "seed", 0, "seed of the fold assignment")

@@ -260,7 +260,7 @@ func (fn *encodeFn) ProcessElement(ctx context.Context, sh Shard, facts, merged 
 		if err != nil {
 			return err
 		}
-		if _, err := m.Encode(r, w, pipeline.EncodeOptions{File: sh.Path, Threads: 2, Part: true, Offset: p.First[sh.Index] - 1}); err != nil {
+		if _, err := m.Encode(r, w, encodeOptions(p, sh)); err != nil {
 			w.Abort()
 			return err
 		}
@@ -315,6 +315,13 @@ func (c *ctxReader) Next() (*table.Batch, error) {
 		return nil, err
 	}
 	return c.Reader.Next()
+}
+
+// encodeOptions returns the options that encode shard sh of the plan.
+func encodeOptions(p *pipeline.ShardPlan, sh Shard) pipeline.EncodeOptions {
+	o := p.EncodeOptions(sh.Index)
+	o.File, o.Threads = sh.Path, 2
+	return o
 }
 
 // failOnce reports, the first time it is asked about a path that ends in

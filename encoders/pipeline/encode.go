@@ -4,6 +4,7 @@ import (
 	"fmt"
 
 	"manyfold/encoders/method"
+	"manyfold/folds"
 	"manyfold/io/table"
 )
 
@@ -27,6 +28,10 @@ type EncodeOptions struct {
 	// table, and their count is not checked against the fit's.
 	Part   bool
 	Offset int64
+	// Strata, for stratified folds, holds the rows of each class (by
+	// label) before the part's first row. ShardPlan.EncodeOptions sets
+	// Part, Offset and Strata.
+	Strata map[string]uint64
 }
 
 // Use says which rows a pass encodes.
@@ -208,6 +213,9 @@ func (m *Model) newEncodePass(schema *table.Schema, opt EncodeOptions) (*encodeP
 			gcol = schema.Index(g)
 		}
 		e.fa = newFoldAssigner(sp, gcol, m.Rows)
+		if opt.Strata != nil {
+			folds.StartStrata(e.fa.as, opt.Strata)
+		}
 	}
 	n := len(m.Cols)
 	e.slots, e.pslots, e.rows = make([]levelSlots, n), make([]levelSlots, n), make([]method.Rows, n)

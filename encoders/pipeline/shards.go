@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"maps"
 
 	"manyfold/encoders/colstats"
 	"manyfold/encoders/method"
@@ -34,9 +35,10 @@ import (
 // counts, exact sums of a regression target), so neither the order of the
 // shards' partials nor their grouping changes a bit.
 //
+// Stratified folds start each class's fold stream in a shard after the
+// rows of that class in the shards before it (ShardPlan.EncodeOptions).
 // Not yet sharded: the ordered scheme and --order-by (a row's value depends
-// on every row before it, in other shards too), and stratified folds (a
-// row's fold depends on its rank within its class across the shards).
+// on every row before it, in other shards too).
 
 // ShardFacts is what stage 0 learns of one shard: its rows and what the
 // one-pass fit decides from its target.
@@ -50,9 +52,11 @@ type ShardFacts struct {
 	// numeric target).
 	First    float64
 	HasFirst bool
-	// Labels are the class labels met, in order of appearance; Many is set
-	// when there were more than MaxClasses (then Labels stops).
+	// Labels are the class labels met, in order of appearance, and Counts
+	// the rows of each; Many is set when there were more than MaxClasses
+	// (then Labels stops).
 	Labels []string
+	Counts []int64
 	Many   bool
 }
 
@@ -119,6 +123,15 @@ func Survey(r table.Reader, sp Spec, file string) (ShardFacts, error) {
 				// The batch reads as numbers: its values are more
 				// classes than a classification target may have.
 				sf.Many = true
+				return nil
+			}
+			for len(sf.Counts) < len(cls.order) {
+				sf.Counts = append(sf.Counts, 0)
+			}
+			for _, c := range cls.cls {
+				if c >= 0 {
+					sf.Counts[c]++
+				}
 			}
 		}
 		return nil
@@ -152,6 +165,18 @@ type ShardPlan struct {
 	hasOrigin  bool
 	classes    []string // sorted
 	numericCls bool
+	strata     []map[string]uint64 // stratified folds: per shard, each class's rows before it
+}
+
+// EncodeOptions returns the options that make Model.Encode encode shard i
+// of the plan (the part of the table its rows are): Part, Offset and, for
+// stratified folds, Strata.
+func (p *ShardPlan) EncodeOptions(i int) EncodeOptions {
+	o := EncodeOptions{Part: true, Offset: p.First[i] - 1}
+	if p.strata != nil {
+		o.Strata = p.strata[i]
+	}
+	return o
 }
 
 // PlanShards combines the facts of every shard, in shard order, into the
@@ -166,13 +191,21 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 		return nil, usageErr("%s ordered is not yet available in a sharded fit", ParamScheme)
 	case sp.OrderBy != "":
 		return nil, usageErr("%s is not yet available in a sharded fit", ParamOrderBy)
-	case sp.FoldBy.Name() == (folds.StratifiedRule{}).Name():
-		return nil, usageErr("the fold rule stratified is not yet available in a sharded fit")
 	}
 	p := &ShardPlan{Spec: sp, First: make([]int64, len(facts))}
 	var order []string
 	seen, many := map[string]bool{}, false
+	stratified := sp.FoldBy.Name() == (folds.StratifiedRule{}).Name()
+	before := map[string]uint64{} // rows of each class before shard i
 	for i, f := range facts {
+		if stratified {
+			p.strata = append(p.strata, maps.Clone(before))
+			for j, l := range f.Labels {
+				if j < len(f.Counts) {
+					before[l] += uint64(f.Counts[j])
+				}
+			}
+		}
 		p.First[i] = p.Rows + 1
 		p.Rows += f.Rows
 		p.missing += f.Missing
@@ -275,6 +308,9 @@ func FitShard(r table.Reader, plan *ShardPlan, i int, opt FitOptions) (*ShardSta
 		return nil, err
 	}
 	f.preset(plan)
+	if plan.strata != nil {
+		folds.StartStrata(f.fa.as, plan.strata[i])
+	}
 	if err := f.pass(&offsetReader{Reader: r, off: plan.First[i] - 1}); err != nil {
 		return nil, shardRow(err, plan.First[i]-1)
 	}

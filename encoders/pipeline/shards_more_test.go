@@ -98,7 +98,7 @@ func encodeErr(t *testing.T, m *pipeline.Model, plan *pipeline.ShardPlan, path s
 		t.Fatal(err)
 	}
 	defer w.Abort()
-	_, err = m.Encode(r, w, pipeline.EncodeOptions{File: path, Threads: 2, Part: true, Offset: plan.First[i] - 1})
+	_, err = m.Encode(r, w, withThreads(plan.EncodeOptions(i), path))
 	return err
 }
 
@@ -177,7 +177,7 @@ func TestShardErrorsNameShardRow(t *testing.T) {
 }
 
 // TestPlanShardsRefuses: the plan refuses what is not yet sharded (the
-// ordered scheme, an order-by column, stratified folds) and a target of
+// ordered scheme, an order-by column) and a target of
 // more than MaxClasses classes over the shards' union of labels when each
 // shard has fewer; a binary task whose shards hold three labels between
 // them is refused before a model is made.
@@ -191,7 +191,6 @@ func TestPlanShardsRefuses(t *testing.T) {
 	}{
 		{"ordered", func(sp *pipeline.Spec) { sp.Scheme = method.Ordered }},
 		{"order by", func(sp *pipeline.Spec) { sp.OrderBy = "cost" }},
-		{"stratified", func(sp *pipeline.Spec) { sp.FoldBy = folds.StratifiedRule{} }},
 	} {
 		sp := shardSpec(t, "late", "target:eb+freq", "kfold", "rows")
 		c.edit(&sp)
@@ -376,7 +375,7 @@ func TestAssembleOrderFree(t *testing.T) {
 				var got []byte
 				for i, p := range shards {
 					out := filepath.Join(jdir, fmt.Sprintf("%s-%02d.csv", c.name, i))
-					encodeTo(t, sm, p, out, pipeline.EncodeOptions{Threads: 2, Part: true, Offset: plan.First[i] - 1})
+					encodeTo(t, sm, p, out, withThreads(plan.EncodeOptions(i), ""))
 					b, _ := os.ReadFile(out)
 					if i > 0 {
 						b = b[bytes.IndexByte(b, '\n')+1:]

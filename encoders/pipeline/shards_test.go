@@ -210,6 +210,8 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 		{"regression prefix prior", "cost", "target:eb:prior=prefix3" + rest, "kfold", "rows"},
 		{"regression column prior", "cost", "postcode=target:eb:prior=column:route" + rest + ",sender=target:eb" + rest, "kfold", "ordered"},
 		{"regression column prior group", "cost", "postcode=target:eb:prior=column:route+freq,sender=target:m=20,route=target:eb", "kfold", "group=sender"},
+		{"binary stratified", "late", "target:eb" + rest, "kfold", "stratified"},
+		{"multi-class loo stratified", "parcel_type", "target:m=3" + rest, "loo", "stratified"},
 		{"multi-class kfold", "parcel_type", "target:eb" + rest, "kfold", "rows"},
 		{"multi-class loo", "parcel_type", "target:m=3" + rest, "loo", "group=route"},
 		{"no target", "", "freq+topk:4+hash:32", "kfold", "rows"},
@@ -254,7 +256,7 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 				var got []byte
 				for i, p := range shards {
 					out := filepath.Join(sdir, fmt.Sprintf("out-%02d.csv", i))
-					encodeTo(t, sm, p, out, pipeline.EncodeOptions{Threads: 2, Part: true, Offset: plan.First[i] - 1})
+					encodeTo(t, sm, p, out, withThreads(plan.EncodeOptions(i), ""))
 					b, _ := os.ReadFile(out)
 					if i > 0 {
 						b = b[bytes.IndexByte(b, '\n')+1:] // the header once
@@ -272,6 +274,13 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 			}
 		})
 	}
+}
+
+// withThreads returns a shard's encode options with 2 threads and the
+// file named.
+func withThreads(o pipeline.EncodeOptions, file string) pipeline.EncodeOptions {
+	o.Threads, o.File = 2, file
+	return o
 }
 
 // firstDiff describes the first line where two texts differ.

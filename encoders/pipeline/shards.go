@@ -241,6 +241,9 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 		if many || len(order) > MaxClasses {
 			return nil, &table.DataError{File: file, Column: sp.Target, Err: param.Errorf("target has more than %d classes", MaxClasses)}
 		}
+		if sp.Task == colstats.Binary.String() && len(order) > 2 {
+			return nil, &table.DataError{File: file, Column: sp.Target, Err: param.Errorf("%s binary, but the shards' target has %d values between them (%q, %q, %q ...)", ParamTask, len(order), order[0], order[1], order[2])}
+		}
 		p.classes, _ = sortedClasses(order, p.numericCls)
 	}
 	return p, nil

@@ -232,6 +232,10 @@ func TestPlanShardsRefuses(t *testing.T) {
 		sp := shardSpec(t, "label", "target:eb", "kfold", "rows")
 		sp.Columns = []string{"sender"}
 		sp.Task = "binary"
+		// Refused by the plan, before any shard is fitted.
+		if _, _, err := planShards(t, sp, shards); err == nil {
+			t.Error("the plan of a binary task over three labels was made")
+		}
 		if err := sharded(t, sp, shards); err == nil {
 			t.Fatal("a binary task over three labels made a model")
 		} else {

@@ -288,6 +288,14 @@ func (s *Stats) mergeLevel(r *partialReader, origin float64, extra func(l int, d
 			return fmt.Errorf("%w: a cell of %d rows", ErrPartial, cnt)
 		}
 		exactsum.Recenter(cnt, &src.sum, &src.sq, origin, s.Origin)
+		// Sums no table gives, once about this origin: past the float64
+		// range (a target is finite, its square too), a negative sum of
+		// squares, or bits finer than a sum of float64 values has
+		// (multiples of 2^-1074) and of their squares (of 2^-2148). They
+		// would outgrow, or not be, what the binary form reads back.
+		if a, b := src.sum.Float64(), src.sq.Float64(); math.IsInf(a, 0) || math.IsInf(b, 0) || b < 0 || !src.sum.MultipleOf(-1074) || !src.sq.MultipleOf(-2148) {
+			return fmt.Errorf("%w: a cell's sums %g and %g", ErrPartial, a, b)
+		}
 		p := s.pooled(d, f)
 		p.sum.AddSum(&src.sum)
 		p.sq.AddSum(&src.sq)

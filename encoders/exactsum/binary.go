@@ -68,6 +68,18 @@ func (s *Sum) Decode(b []byte) error {
 	return nil
 }
 
+// MultipleOf reports whether s is an integer multiple of 2^exp: a sum of
+// float64 values is a multiple of 2^-1074 (the least subnormal), a sum of
+// their squares of 2^-2148, which a sum read from untrusted bytes can be
+// checked against.
+func (s *Sum) MultipleOf(exp int) bool {
+	v, e := s.mantExp()
+	if v.Sign() == 0 {
+		return true
+	}
+	return int(e)+int(v.TrailingZeroBits()) >= exp
+}
+
 // Equal reports whether s and o hold the same value.
 func (s *Sum) Equal(o *Sum) bool {
 	a, ea := s.mantExp()

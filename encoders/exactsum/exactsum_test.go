@@ -294,3 +294,32 @@ func BenchmarkAdd(b *testing.B) {
 		s.Add(ys[i&4095])
 	}
 }
+
+// TestMultipleOf: a sum is a multiple of 2^exp when its last bit is at
+// exp or above (from the binary expansions of the values, common
+// practice: 1.5 = 2^0 + 2^-1).
+func TestMultipleOf(t *testing.T) {
+	cases := []struct {
+		vals []float64
+		exp  int
+		want bool
+	}{
+		{nil, 0, true},
+		{[]float64{1.5}, -1, true},
+		{[]float64{1.5}, 0, false},
+		{[]float64{6}, 1, true},
+		{[]float64{6}, 2, false},
+		{[]float64{5e-324}, -1074, true},
+		{[]float64{5e-324}, -1073, false},
+		{[]float64{1e300, 5e-324}, -1074, true},
+	}
+	for _, c := range cases {
+		var s Sum
+		for _, v := range c.vals {
+			s.Add(v)
+		}
+		if got := s.MultipleOf(c.exp); got != c.want {
+			t.Errorf("%v a multiple of 2^%d: %v, want %v", c.vals, c.exp, got, c.want)
+		}
+	}
+}

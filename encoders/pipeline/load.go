@@ -744,6 +744,13 @@ func (tl *tableLoad) exactSums(l int, n uint32, sum, sumSq float64, sumText, sqT
 	if math.Float64bits(s.Float64()) != math.Float64bits(sum) || math.Float64bits(q.Float64()) != math.Float64bits(sumSq) || q.Float64() < 0 {
 		return tl.errf(i, "target_sum_exact and target_sumsq_exact round to %g and %g, not to target_sum %g and target_sumsq %g", s.Float64(), q.Float64(), sum, sumSq)
 	}
+	// A sum of float64 values is a multiple of 2^-1074, of their squares
+	// of 2^-2148: finer bits come from no table, and a merge that moves
+	// them to another origin would outgrow what the text form is read back
+	// within.
+	if !s.MultipleOf(-1074) || !q.MultipleOf(-2148) {
+		return tl.errf(i, "target_sum_exact or target_sumsq_exact has bits finer than a sum of float64 values can")
+	}
 	tl.c.St.SetExact(l, 0, n, &s, &q)
 	return nil
 }

@@ -5,9 +5,11 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"math/big"
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"syscall"
 	"testing"
@@ -437,6 +439,21 @@ func TestLoadDamagedManifest(t *testing.T) {
 }
 
 // TestLoadDamagedTables damages or replaces a table file per case.
+// finer returns the exact sum written as text plus 2^-1100: the same
+// rounded value, with a bit no sum of float64 values has (the text form is
+// 0x<odd hex integer>p<exponent>).
+func finer(t *testing.T, text string) string {
+	hex, exp, ok := strings.Cut(strings.TrimPrefix(text, "0x"), "p")
+	m, ok2 := new(big.Int).SetString(hex, 16)
+	e, err := strconv.Atoi(exp)
+	if !ok || !ok2 || err != nil || e < -1100 {
+		t.Fatalf("exact sum %q: not the form expected", text)
+	}
+	m.Lsh(m, uint(e+1100))
+	m.Add(m, big.NewInt(1))
+	return fmt.Sprintf("0x%xp-1100", m)
+}
+
 func TestLoadDamagedTables(t *testing.T) {
 	target := func(dir string) string { return filepath.Join(dir, "01-pc.parquet") }
 	cases := []loadCase{
@@ -482,6 +499,8 @@ func TestLoadDamagedTables(t *testing.T) {
 			[]string{"01-pc.parquet", "row 2", "target_sum_exact"}},
 		{"exact sum not canonical", regressionSpec, rewriteTable(func(b *table.Batch) { setText(&b.Cols[6], b.Rows, 1, "0x2p0") }),
 			[]string{"01-pc.parquet", "row 2", "target_sumsq_exact", "0x2p0"}},
+		{"exact sum finer than float64 sums", regressionSpec, rewriteTable(func(b *table.Batch) { setText(&b.Cols[5], b.Rows, 1, finer(t, string(b.Cols[5].Bytes(1)))) }),
+			[]string{"01-pc.parquet", "row 2", "finer"}},
 		{"exact sum too long", regressionSpec, rewriteTable(func(b *table.Batch) { setText(&b.Cols[5], b.Rows, 1, "0x"+strings.Repeat("f", 5000)+"p0") }),
 			[]string{"01-pc.parquet", "target_sum_exact"}},
 		{"parent path", nil, setCol("table", "../01-pc.parquet"), []string{"columns[0].table", "plain file name"}},

@@ -188,8 +188,8 @@ func shardedModel(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*
 // shards of uneven sizes, one empty, writes the outputs (concatenated in
 // shard order) and mapping tables of Fit and Encode over the whole table,
 // byte for byte: binary, multi-class and regression targets, the k-fold,
-// leave-one-out and in-sample schemes, row and group folds, every method
-// and both priors.
+// leave-one-out and in-sample schemes, row, group, block and stratified
+// folds, every method and both priors.
 func TestShardedFitSameAsOnePass(t *testing.T) {
 	dir := t.TempDir()
 	csv := shipmentsText(1501)

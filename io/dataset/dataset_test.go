@@ -377,6 +377,15 @@ func TestList(t *testing.T) {
 			want:  []string{"ds/k=1/p.csv k=1", "ds/k=2/p.csv k=2"},
 		},
 		{
+			// A "latest" link beside the run it points to: the run's files
+			// once, at their first path.
+			name:  "a match links to another match",
+			files: []string{"out/run1/p.csv", "out/run2/p.csv"},
+			links: []string{"out/latest run2"},
+			path:  "out/*",
+			want:  []string{"out/latest/p.csv ", "out/run1/p.csv "},
+		},
+		{
 			name:  "links to files",
 			files: []string{"store/a.csv"},
 			links: []string{"ds/k=1/p.csv ../../store/a.csv"},

@@ -122,6 +122,21 @@ func List(path string) ([]File, error) {
 	}
 	slices.SortFunc(files, func(a, b File) int { return strings.Compare(a.Path, b.Path) })
 	files = slices.CompactFunc(files, func(a, b File) bool { return a.Path == b.Path })
+	// A file reached twice, through a link to a folder or a file (a
+	// "latest" link beside the run it points to), is read once: at the
+	// first of its paths.
+	seen := map[string]bool{}
+	files = slices.DeleteFunc(files, func(f File) bool {
+		real, err := filepath.EvalSymlinks(f.Path)
+		if err != nil {
+			real = f.Path
+		}
+		if seen[real] {
+			return true
+		}
+		seen[real] = true
+		return false
+	})
 	for _, f := range files[1:] {
 		if !sameKeys(f.Keys, files[0].Keys) {
 			return nil, fmt.Errorf("%s: %w: folder keys %s, but %s has %s", f.Path, table.ErrCorrupt, keyNames(f.Keys), files[0].Path, keyNames(files[0].Keys))

@@ -31,6 +31,7 @@ type Job struct {
 	Seed                                           uint64
 	Partitions                                     int    // a power of two
 	Format                                         string // of the encoded shards: parquet or csv
+	Run                                            string // this run's id (Build), which keys the workers' models
 }
 
 // Spec parses the job.

@@ -1,14 +1,17 @@
 package main
 
 import (
+	"bytes"
 	"context"
-	"encoding/json"
+	"encoding/gob"
 	"fmt"
+	"math/rand/v2"
 	"os"
 	"path"
 	"path/filepath"
 	"slices"
 	"strings"
+	"time"
 
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/io/filesystem"
@@ -44,6 +47,10 @@ func init() {
 //	shards -> encode (facts, merged) -> out/part-NNNNN.EXT
 //	one    -> tables (facts, merged) -> tables
 func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PCollection {
+	// A run of its own: a worker process kept for another run (or a test
+	// that runs the pipeline again over rewritten files) never takes this
+	// run's model for that one's.
+	job.Run = fmt.Sprintf("%x-%x", time.Now().UnixNano(), rand.Uint64())
 	// Without a Reshuffle a runner may fuse the whole graph into one
 	// bundle and run the shards one after another.
 	sc := beam.Reshuffle(s, beam.CreateList(s, shards))
@@ -77,11 +84,13 @@ func (fn *surveyFn) ProcessElement(ctx context.Context, sh Shard, emit func([]by
 	if err != nil {
 		return err
 	}
-	b, err := json.Marshal(ShardFacts{Index: sh.Index, Facts: f})
-	if err != nil {
+	// gob, not JSON: a class label is bytes, which JSON would turn into
+	// UTF-8 (two Latin-1 labels into one).
+	var buf bytes.Buffer
+	if err := gob.NewEncoder(&buf).Encode(ShardFacts{Index: sh.Index, Facts: f}); err != nil {
 		return err
 	}
-	emit(b)
+	emit(buf.Bytes())
 	return nil
 }
 
@@ -91,7 +100,7 @@ func readFacts(iter func(*[]byte) bool) ([]ShardFacts, error) {
 	var b []byte
 	for iter(&b) {
 		var f ShardFacts
-		if err := json.Unmarshal(b, &f); err != nil {
+		if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&f); err != nil {
 			return nil, fmt.Errorf("a shard's facts: %w", err)
 		}
 		out = append(out, f)
@@ -193,12 +202,14 @@ func model(ctx context.Context, job Job, schemaPath string, factsIter, merged fu
 	// first bundle of a worker reads the merged statistics (a side input
 	// is fetched as it is iterated: hundreds of megabytes at 10M rows).
 	slices.SortFunc(facts, func(a, b ShardFacts) int { return a.Index - b.Index })
-	kb, _ := json.Marshal(struct {
+	var kb bytes.Buffer
+	gob.NewEncoder(&kb).Encode(struct {
 		Job    Job
 		Schema string
 		Facts  []ShardFacts
 	}{job, schemaPath, facts})
-	v, _ := models.LoadOrStore(fmt.Sprintf("%x", xxhash.Sum64(kb)), &modelOnce{})
+	key := fmt.Sprintf("%x", xxhash.Sum64(kb.Bytes()))
+	v, _ := models.LoadOrStore(key, &modelOnce{})
 	mo := v.(*modelOnce)
 	mo.once.Do(func() {
 		var parts [][]byte
@@ -219,6 +230,9 @@ func model(ctx context.Context, job Job, schemaPath string, factsIter, merged fu
 		}
 		mo.m, mo.err = pipeline.Assemble(mo.plan, schema, parts, pipeline.FitOptions{File: "the shards", Threads: 2, Tables: true})
 	})
+	if mo.err != nil {
+		models.CompareAndDelete(key, mo) // a later bundle tries again
+	}
 	return mo.m, mo.plan, mo.err
 }
 

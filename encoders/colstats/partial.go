@@ -93,9 +93,11 @@ func (s *Stats) Partials(parts int, extra func(b []byte, l int) []byte) [][]byte
 func (s *Stats) appendLevels(b []byte, ls []int32, extra func(b []byte, l int) []byte) []byte {
 	// Room for every level at once (a growing slice copies itself again
 	// and again): its key, counts and a cell or two.
-	per := 8 + 2*s.Folds
+	// one cell: a fold and its class counts, or n and two exact sums (a
+	// nearly unique id's levels have one; a postcode's more grow it).
+	per := 10 + 1 + s.Classes
 	if s.Task == Regression {
-		per += 24
+		per = 10 + 40
 	}
 	var keys int
 	for _, l := range ls {

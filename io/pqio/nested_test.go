@@ -220,6 +220,9 @@ func chunkBytes(t *testing.T, s *Source, g, col int) []byte {
 	md := s.parts[0].meta.RowGroups[g].Columns[col].MetaData
 	start, size := chunkRange(&md)
 	b := make([]byte, size)
+	if err := s.parts[0].open(); err != nil {
+		t.Fatal(err)
+	}
 	if _, err := s.parts[0].f.ReadAt(b, start); err != nil {
 		t.Fatal(err)
 	}

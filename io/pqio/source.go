@@ -36,11 +36,13 @@ type Source struct {
 // groupRef is row group g of part p.
 type groupRef struct{ p, g int32 }
 
-// sourceFile is one part of a Source.
+// sourceFile is one part of a Source. Its file is open only while it is
+// read (open, close), so that a Source of thousands of parts does not hold
+// thousands of files open.
 type sourceFile struct {
 	name string
-	f    *os.File
-	size int64 // of the file
+	f    *os.File // nil while closed
+	size int64    // of the file
 	meta *format.FileMetaData
 	cols map[string]*topColumn // the top-level columns, flat or nested, by name
 }
@@ -119,7 +121,35 @@ func openSourceFile(path string) (*sourceFile, error) {
 	for i := range tops {
 		s.cols[tops[i].name] = &tops[i]
 	}
-	return s, nil
+	return s, s.close()
+}
+
+// open opens the part's file again, unless it is open; a file whose size
+// changed since its footer was read is refused.
+func (s *sourceFile) open() error {
+	if s.f != nil {
+		return nil
+	}
+	f, size, err := openSized(s.name)
+	if err != nil {
+		return err
+	}
+	if size != s.size {
+		f.Close()
+		return fmt.Errorf("%s: %w: the file changed while it was copied (%d bytes, then %d)", s.name, table.ErrCorrupt, s.size, size)
+	}
+	s.f = f
+	return nil
+}
+
+// close closes the part's file, if it is open.
+func (s *sourceFile) close() error {
+	if s.f == nil {
+		return nil
+	}
+	err := s.f.Close()
+	s.f = nil
+	return err
 }
 
 // openFooter opens the Parquet file f of the given size, turning a panic
@@ -133,11 +163,11 @@ func openFooter(f *os.File, size int64) (pf *parquet.File, err error) {
 	return parquet.OpenFile(f, size, parquet.SkipPageIndex(true), parquet.SkipBloomFilters(true), parquet.ReadBufferSize(4096))
 }
 
-// Close closes the files.
+// Close closes the files still open.
 func (s *Source) Close() error {
 	var first error
 	for _, p := range s.parts {
-		if err := p.f.Close(); err != nil && first == nil {
+		if err := p.close(); err != nil && first == nil {
 			first = err
 		}
 	}
@@ -169,6 +199,11 @@ func (s *Source) ordered(g int) bool { return len(s.parts[s.groups[g].p].meta.Co
 // across the files); see sourceFile.copyChunk.
 func (s *Source) copyChunk(w io.Writer, off int64, col int, path []string, g int, out codec) (format.ColumnChunk, int64, error) {
 	r := s.groups[g]
+	for i, p := range s.parts {
+		if i != int(r.p) {
+			p.close() // one part open at a time: the row groups come in order
+		}
+	}
 	return s.parts[r.p].copyChunk(w, off, col, path, int(r.g), out)
 }
 
@@ -188,8 +223,12 @@ func (s *Source) CanCopy(name string) error {
 	for _, p := range s.parts {
 		for l := range t.paths {
 			if err := p.canCopyLeaf(name, t.first+l); err != nil {
+				p.close()
 				return err
 			}
+		}
+		if len(s.parts) > 1 {
+			p.close()
 		}
 	}
 	return nil
@@ -245,6 +284,9 @@ const maxHeader = 16 << 20
 // and checks that the pages fill the range exactly and that their sizes
 // are within the limits of checkSizes. Errors name the page (1-based).
 func (s *sourceFile) walk(start, size int64, cid format.CompressionCodec, f func(h *format.PageHeader, hlen int, pos int64) error) error {
+	if err := s.open(); err != nil {
+		return err
+	}
 	end := start + size
 	if start < 4 || size < 0 || start > s.size || size > s.size-start {
 		return fmt.Errorf("%w: column chunk of %d bytes at byte %d, in a file of %d", table.ErrCorrupt, size, start, s.size)

@@ -310,13 +310,28 @@ func TestSourcesClose(t *testing.T) {
 	if len(s.parts) != 3 {
 		t.Fatalf("%d parts", len(s.parts))
 	}
+	// A part's file is open only while it is read: none once opened (a
+	// Source of thousands of parts would otherwise hold thousands of
+	// files), one while its chunks are checked.
+	for _, p := range s.parts {
+		if p.f != nil {
+			t.Errorf("%s open after OpenSources", p.name)
+		}
+	}
+	if err := s.parts[1].open(); err != nil {
+		t.Fatal(err)
+	}
+	f := s.parts[1].f
 	if err := s.Close(); err != nil {
 		t.Fatal(err)
 	}
 	for _, p := range s.parts {
-		if _, err := p.f.Stat(); !errors.Is(err, os.ErrClosed) {
-			t.Errorf("%s after Close: Stat %v, want os.ErrClosed", p.name, err)
+		if p.f != nil {
+			t.Errorf("%s open after Close", p.name)
 		}
+	}
+	if _, err := f.Stat(); !errors.Is(err, os.ErrClosed) {
+		t.Errorf("the part's file after Close: Stat %v, want os.ErrClosed", err)
 	}
 
 	bad := filepath.Join(dir, "bad.parquet")

@@ -927,7 +927,7 @@ func testReaderSelect(t *testing.T, ext string) {
 		t.Fatal(err)
 	}
 	defer d.Close()
-	for _, sel := range [][]int{{5}, {-1}, {0, 9}} {
+	for _, sel := range [][]int{{5}, {-1}, {0, 9}, {1, 1}, {0, 3, 3}} { // out of range, or twice (the table.Reader contract)
 		if err := d.Select(sel); err == nil {
 			t.Errorf("Select(%v) accepted", sel)
 		}

@@ -234,9 +234,12 @@ func (d *Reader) Select(cols []int) error {
 		return errors.New("dataset: Select after Next")
 	}
 	var fsel []int
-	for _, c := range cols {
+	for i, c := range cols {
 		if c < 0 || c >= len(d.schema.Fields) {
 			return fmt.Errorf("dataset: no column %d", c)
+		}
+		if slices.Contains(cols[:i], c) {
+			return fmt.Errorf("dataset: column %d selected twice", c)
 		}
 		if c < d.width {
 			fsel = append(fsel, c)

@@ -93,6 +93,7 @@ func runApply(args []string) error {
 	w := o.w
 	pr := newProgress("apply", o.r)
 	sum, err := m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Use: pipeline.NewRows, Progress: pr.update, Threads: of.threads, Input: o.full, Drift: drift})
+	err = locate(err, o.r)
 	pr.done()
 	if err != nil {
 		w.Abort()

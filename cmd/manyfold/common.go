@@ -1,6 +1,7 @@
 package main
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -14,6 +15,7 @@ import (
 	"manyfold/internal/param"
 	"manyfold/io/atomicfile"
 	"manyfold/io/csvio"
+	"manyfold/io/dataset"
 	"manyfold/io/derive"
 	"manyfold/io/pqio"
 	"manyfold/io/table"
@@ -308,6 +310,25 @@ func openTable(path string, ropts tableio.ReadOptions, names []string) (table.Re
 		return nil, usagef("%s: %v", path, err)
 	}
 	return w, nil
+}
+
+// locate gives an error found in a dataset's rows past its readers (it
+// names the dataset and a row counted across the files) the file that
+// holds the row and the row's number there, as a file's own reader names
+// them. Other errors are returned as they are.
+func locate(err error, r table.Reader) error {
+	var de *table.DataError
+	if err == nil || !errors.As(err, &de) || de.Row <= 0 {
+		return err
+	}
+	ds, ok := table.Find[*dataset.Reader](r)
+	if !ok || ds.IsFile(de.File) {
+		return err
+	}
+	if file, row, ok := ds.Locate(de.Row); ok {
+		de.File, de.Row, de.Line = file, row, 0
+	}
+	return err
 }
 
 // specNames lists every column an encoding job names: the encoded

@@ -171,6 +171,7 @@ func runCompare(args []string) (err error) {
 	pr := newProgress("compare", r)
 	opts.File, opts.TotalRows, opts.Progress, opts.Models = name, total, pr.update, pr.models
 	res, err := compare.Run(r, opts)
+	err = locate(err, r)
 	pr.done()
 	if err != nil {
 		return err

@@ -236,6 +236,16 @@ func TestDatasetRefusals(t *testing.T) {
 	if r.code != exitData || !strings.Contains(r.stderr, odd+":2: 7 fields, header has 6") {
 		t.Errorf("a ragged part: exit %d, %q", r.code, r.stderr)
 	}
+	// A bad value found past the readers (a target beyond the bound) is
+	// named by its part and its row there, not the row across the parts.
+	far := filepath.Join(root, "far")
+	os.MkdirAll(far, 0o755)
+	writeFile(t, far, "part-0.csv", "pc,cost\nA,1.5\nB,2.25\nC,1\n")
+	writeFile(t, far, "part-1.csv", "pc,cost\nA,3.5\nB,1e200\n")
+	r = runCLI(t, "encode", far, "--target", "cost", "--columns", "pc", "--out", filepath.Join(root, "far.csv"), "--tables", filepath.Join(root, "far-t"))
+	if want := filepath.Join(far, "part-1.csv") + `: row 2: column "cost"`; r.code != exitData || !strings.Contains(r.stderr, want) {
+		t.Errorf("a target out of bounds in a part: exit %d, %q; want %q", r.code, r.stderr, want)
+	}
 	empty := filepath.Join(root, "empty")
 	os.MkdirAll(filepath.Join(empty, "_temporary"), 0o755)
 	r = runCLI(t, "scan", empty)

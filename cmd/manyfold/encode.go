@@ -193,6 +193,7 @@ func runEncode(args []string) (err error) {
 	var m *pipeline.Model
 	phase("fit", func() {
 		m, err = pipeline.Fit(r, sp, pipeline.FitOptions{File: name, TotalRows: total, Progress: pr.update, Threads: of.threads, Tables: true})
+		err = locate(err, r)
 	})
 	region.End()
 	r.Close()
@@ -230,6 +231,7 @@ func runEncode(args []string) (err error) {
 	var sum pipeline.Summary
 	phase("encode", func() {
 		sum, err = m.Encode(o.r, w, pipeline.EncodeOptions{File: name, Progress: pr.update, Threads: of.threads, Input: o.full})
+		err = locate(err, o.r)
 	})
 	region.End()
 	if err == nil {

@@ -90,6 +90,7 @@ func runScan(args []string) error {
 	}
 	pr := newProgress("scan", r)
 	profiles, err := pipeline.Scan(r, sel, *top, pr.update)
+	err = locate(err, r)
 	pr.done()
 	if err != nil {
 		return err

@@ -1222,3 +1222,41 @@ func TestReaderNextAfterClose(t *testing.T) {
 		t.Errorf("Close again: %v", err)
 	}
 }
+
+// TestReaderLocate: a row counted across the files (as the batches'
+// FirstRow counts) is found in its file, at its row there, past an empty
+// file too; rows not yet read are not.
+func TestReaderLocate(t *testing.T) {
+	root := t.TempDir()
+	var files []dataset.File
+	for i, n := range []int{3, 0, 2, 4} {
+		p := writePart(t, root, part{path: fmt.Sprintf("p%d.parquet", i), fields: fieldsAB, rows: rowsOf("x", n)})
+		files = append(files, dataset.File{Path: p})
+	}
+	d, err := dataset.New(files, openFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer d.Close()
+	if _, _, ok := d.Locate(1); ok {
+		t.Error("a row not read yet was located")
+	}
+	for {
+		if _, err := d.Next(); err != nil {
+			break
+		}
+	}
+	for _, c := range []struct {
+		row  int64
+		file int
+		at   int64
+	}{{1, 0, 1}, {3, 0, 3}, {4, 2, 1}, {5, 2, 2}, {6, 3, 1}, {9, 3, 4}} {
+		path, at, ok := d.Locate(c.row)
+		if !ok || path != files[c.file].Path || at != c.at {
+			t.Errorf("row %d: %s row %d (%v), want %s row %d", c.row, path, at, ok, files[c.file].Path, c.at)
+		}
+	}
+	if _, _, ok := d.Locate(10); ok {
+		t.Error("row 10 of 9 located")
+	}
+}

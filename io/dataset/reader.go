@@ -44,10 +44,11 @@ type Reader struct {
 	keyCol []table.Column // per key, the current file's value
 	zeros  []int32
 	trues  []bool
-	row    int64 // rows returned
-	done   int64 // rows of the files read to the end
-	bytes  int64 // bytes of the files read to the end
-	size   int64 // bytes of every file
+	row    int64   // rows returned
+	starts []int64 // per file opened, the rows before it
+	done   int64   // rows of the files read to the end
+	bytes  int64   // bytes of the files read to the end
+	size   int64   // bytes of every file
 	closed bool
 }
 
@@ -325,6 +326,9 @@ func (d *Reader) Next() (*table.Batch, error) {
 // may have changed since New) and restricts it to the selection.
 func (d *Reader) openFile() error {
 	f := d.files[d.at]
+	for len(d.starts) <= d.at {
+		d.starts = append(d.starts, d.row)
+	}
 	r, err := d.open(f.Path)
 	if err != nil {
 		return err
@@ -435,6 +439,26 @@ func (d *Reader) renumber(c *table.Column) {
 	dict := *c.Dict
 	dict.ID = id
 	c.Dict = &dict
+}
+
+// Locate returns the file that holds row (counted from 1 across the files,
+// as the batches' FirstRow counts) and the row's number in that file, for a
+// row already read: an error found in the rows past the reader names the
+// file and its own row with it.
+func (d *Reader) Locate(row int64) (path string, fileRow int64, ok bool) {
+	if row <= 0 || row > d.row || len(d.starts) == 0 {
+		return "", 0, false
+	}
+	i := len(d.starts) - 1
+	for i > 0 && d.starts[i] >= row {
+		i--
+	}
+	return d.files[i].Path, row - d.starts[i], true
+}
+
+// IsFile reports whether path is one of the dataset's files.
+func (d *Reader) IsFile(path string) bool {
+	return slices.ContainsFunc(d.files, func(f File) bool { return f.Path == path })
 }
 
 // Close closes the file being read; Next fails after it.

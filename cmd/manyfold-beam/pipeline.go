@@ -108,29 +108,36 @@ func readFacts(iter func(*[]byte) bool) ([]ShardFacts, error) {
 	return out, nil
 }
 
-// planOf rebuilds the job's plan on a worker: the spec, the schema (of the
-// first shard, with the derived columns) and every shard's facts (the side
-// input).
-func planOf(ctx context.Context, job Job, schemaPath string, facts func(*[]byte) bool) (pipeline.Spec, *pipeline.ShardPlan, error) {
+// planned is the job as a worker rebuilds it: the spec, the schema (of
+// the first shard, with the derived columns, read once) and the plan.
+type planned struct {
+	sp     pipeline.Spec
+	schema *table.Schema
+	plan   *pipeline.ShardPlan
+}
+
+// planOf rebuilds the job's plan on a worker from every shard's facts
+// (the side input).
+func planOf(ctx context.Context, job Job, schemaPath string, facts func(*[]byte) bool) (planned, error) {
 	fs, err := readFacts(facts)
 	if err != nil {
-		return pipeline.Spec{}, nil, err
+		return planned{}, err
 	}
 	return planFrom(ctx, job, schemaPath, fs)
 }
 
 // planFrom is planOf with the facts read.
-func planFrom(ctx context.Context, job Job, schemaPath string, facts []ShardFacts) (pipeline.Spec, *pipeline.ShardPlan, error) {
-	sp, err := job.Spec()
-	if err != nil {
-		return sp, nil, err
+func planFrom(ctx context.Context, job Job, schemaPath string, facts []ShardFacts) (planned, error) {
+	var pl planned
+	var err error
+	if pl.sp, err = job.Spec(); err != nil {
+		return pl, err
 	}
-	schema, err := schemaOf(ctx, &sp, schemaPath)
-	if err != nil {
-		return sp, nil, err
+	if pl.schema, err = schemaOf(ctx, &pl.sp, schemaPath); err != nil {
+		return pl, err
 	}
-	p, err := plan(sp, schema, slices.Clone(facts))
-	return sp, p, err
+	pl.plan, err = plan(pl.sp, pl.schema, slices.Clone(facts))
+	return pl, err
 }
 
 // fitFn is stage 1: a shard's statistics, one partial per partition.
@@ -140,16 +147,16 @@ type fitFn struct {
 }
 
 func (fn *fitFn) ProcessElement(ctx context.Context, sh Shard, facts func(*[]byte) bool, emit func(int, []byte)) error {
-	sp, p, err := planOf(ctx, fn.Job, fn.Schema, facts)
+	pl, err := planOf(ctx, fn.Job, fn.Schema, facts)
 	if err != nil {
 		return err
 	}
-	r, done, err := open(ctx, &sp, sh.Path)
+	r, done, err := open(ctx, &pl.sp, sh.Path)
 	if err != nil {
 		return err
 	}
 	defer done()
-	ss, err := pipeline.FitShard(r, p, sh.Index, pipeline.FitOptions{File: sh.Path, Threads: 2})
+	ss, err := pipeline.FitShard(r, pl.plan, sh.Index, pipeline.FitOptions{File: sh.Path, Threads: 2})
 	if err != nil {
 		return err
 	}
@@ -170,7 +177,7 @@ type mergeFn struct {
 }
 
 func (fn *mergeFn) ProcessElement(ctx context.Context, part int, partials func(*[]byte) bool, facts func(*[]byte) bool, emit func([]byte)) error {
-	sp, p, err := planOf(ctx, fn.Job, fn.Schema, facts)
+	pl, err := planOf(ctx, fn.Job, fn.Schema, facts)
 	if err != nil {
 		return err
 	}
@@ -179,11 +186,7 @@ func (fn *mergeFn) ProcessElement(ctx context.Context, part int, partials func(*
 	for partials(&b) {
 		all = append(all, slices.Clone(b))
 	}
-	schema, err := schemaOf(ctx, &sp, fn.Schema)
-	if err != nil {
-		return err
-	}
-	m, err := pipeline.MergePartials(p, schema, all, pipeline.FitOptions{})
+	m, err := pipeline.MergePartials(pl.plan, pl.schema, all, pipeline.FitOptions{})
 	if err != nil {
 		return fmt.Errorf("partition %d: %w", part, err)
 	}
@@ -218,17 +221,12 @@ func model(ctx context.Context, job Job, schemaPath string, factsIter, merged fu
 			parts = append(parts, b) // each element decoded into a slice of its own
 			b = nil
 		}
-		var sp pipeline.Spec
-		sp, mo.plan, mo.err = planFrom(ctx, job, schemaPath, facts)
-		if mo.err != nil {
+		var pl planned
+		if pl, mo.err = planFrom(ctx, job, schemaPath, facts); mo.err != nil {
 			return
 		}
-		schema, err := schemaOf(ctx, &sp, schemaPath)
-		if err != nil {
-			mo.err = err
-			return
-		}
-		mo.m, mo.err = pipeline.Assemble(mo.plan, schema, parts, pipeline.FitOptions{File: "the shards", Threads: 2, Tables: true})
+		mo.plan = pl.plan
+		mo.m, mo.err = pipeline.Assemble(pl.plan, pl.schema, parts, pipeline.FitOptions{File: "the shards", Threads: 2, Tables: true})
 	})
 	if mo.err != nil {
 		models.CompareAndDelete(key, mo) // a later bundle tries again

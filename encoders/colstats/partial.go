@@ -62,13 +62,7 @@ func Partition(b []byte, null bool, parts int) int {
 // part of parts (a power of two, 1 for every level), with each level's
 // extra bytes (extra may be nil). The statistics must not be sealed.
 func (s *Stats) AppendPartial(b []byte, part, parts int, extra func(b []byte, l int) []byte) []byte {
-	var ls []int32
-	for l := 0; l < s.n; l++ {
-		if s.RowCount(l) > 0 && Partition(s.Bytes(l), l == 0, parts) == part {
-			ls = append(ls, int32(l))
-		}
-	}
-	return s.appendLevels(b, ls, extra)
+	return append(b, s.Partials(parts, extra)[part]...)
 }
 
 // Partials returns the partial form of every partition of parts (a power

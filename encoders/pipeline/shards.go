@@ -372,38 +372,21 @@ var shardMagic = []byte("MFS1")
 // the parent of its rows under a column prior. Partials gives every
 // partition at once.
 func (ss *ShardStats) Partial(part, parts int) ([]byte, error) {
-	if err := checkParts(parts); err != nil || part < 0 || part >= parts {
+	all, err := ss.Partials(parts)
+	if err != nil || part < 0 || part >= parts {
 		return nil, fmt.Errorf("partition %d of %d: want a power of two of partitions up to 65536", part, parts)
 	}
-	all, err := ss.f.partials(parts, part)
-	if err != nil {
-		return nil, err
-	}
-	return all[0], nil
+	return all[part], nil
 }
 
 // Partials returns Partial(p, parts) for every partition p, each level's
 // partition computed once.
 func (ss *ShardStats) Partials(parts int) ([][]byte, error) {
-	if err := checkParts(parts); err != nil {
-		return nil, err
-	}
-	return ss.f.partials(parts, -1)
-}
-
-// checkParts refuses a number of partitions that is not a power of two
-// from 1 to 65,536.
-func checkParts(parts int) error {
 	if parts < 1 || parts > 1<<16 || parts&(parts-1) != 0 {
-		return fmt.Errorf("%d partitions: want a power of two up to 65536", parts)
+		return nil, fmt.Errorf("%d partitions: want a power of two up to 65536", parts)
 	}
-	return nil
-}
-
-// partials returns the shard's partials of every partition (only is -1) or
-// of partition only.
-func (f *fitter) partials(parts, only int) ([][]byte, error) {
-	return f.appendPartials(parts, only, func(ci int, c *Col) func([]byte, int) []byte {
+	f := ss.f
+	return f.appendPartials(parts, func(ci int, c *Col) func([]byte, int) []byte {
 		parent := f.all[c.parentAt].St
 		return func(b []byte, l int) []byte {
 			if l >= len(c.nest) {
@@ -422,25 +405,17 @@ func (f *fitter) partials(parts, only int) ([][]byte, error) {
 }
 
 // appendPartials returns the partials of every column the fit gathers,
-// for every partition of parts (only -1) or for partition only; extra
-// gives, for a column with a column prior, the writer of each level's
-// parent.
-func (f *fitter) appendPartials(parts, only int, extra func(ci int, c *Col) func([]byte, int) []byte) [][]byte {
+// one for each partition of parts; extra gives, for a column with a column
+// prior, the writer of each level's parent.
+func (f *fitter) appendPartials(parts int, extra func(ci int, c *Col) func([]byte, int) []byte) [][]byte {
 	n := parts
-	if only >= 0 {
-		n = 1
-	}
 	byCol := make([][][]byte, len(f.all))
 	for ci, c := range f.all {
 		var x func([]byte, int) []byte
 		if c.nest != nil {
 			x = extra(ci, c)
 		}
-		if only >= 0 {
-			byCol[ci] = [][]byte{c.St.AppendPartial(nil, only, parts, x)}
-		} else {
-			byCol[ci] = c.St.Partials(parts, x)
-		}
+		byCol[ci] = c.St.Partials(parts, x)
 	}
 	out := make([][]byte, n)
 	for i := range out {
@@ -619,7 +594,7 @@ func MergePartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt
 	if err != nil {
 		return nil, err
 	}
-	return f.appendPartials(1, 0, func(ci int, c *Col) func([]byte, int) []byte {
+	return f.appendPartials(1, func(ci int, c *Col) func([]byte, int) []byte {
 		return func(b []byte, l int) []byte {
 			if l < len(keys[ci]) && len(keys[ci][l]) > 0 {
 				return append(b, keys[ci][l]...)

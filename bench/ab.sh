@@ -10,7 +10,8 @@
 # METHODS_A, METHODS_B (the --methods arguments of each build, default
 # target:m=20+freq; builds before the encoding grammar took
 # "target,freq --smoothing m=20"), TARGET (default late; cost for a
-# regression target). Prints each run's wall seconds and peak
+# regression target), EXTRA (more flags for both builds, for example
+# "--scheme ordered"). Prints each run's wall seconds and peak
 # RSS (GNU time), then the medians.
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
@@ -24,6 +25,7 @@ WORK=${WORK:-/tmp/manyfold-ab}
 METHODS_A=${METHODS_A:-target:m=20+freq}
 METHODS_B=${METHODS_B:-target:m=20+freq}
 TARGET=${TARGET:-late}
+EXTRA=${EXTRA:-}
 mkdir -p "$WORK"
 for side in A B; do
 	rev=$revA
@@ -43,10 +45,10 @@ for rows in "${ROWS[@]}"; do
 			m=$METHODS_A
 			[ $side = B ] && m=$METHODS_B
 			rm -rf "$WORK/out" && mkdir "$WORK/out"
-			# shellcheck disable=SC2086 # METHODS may hold several words
+			# shellcheck disable=SC2086 # METHODS and EXTRA may hold several words
 			/usr/bin/time -f '%e %M' -o "$WORK/t.txt" "$WORK/manyfold-$side" encode "$d/shipments.parquet" --target "$TARGET" \
 				--columns dest_postcode,sender_account,shipment_id --methods $m --folds 5 --seed 3 --fold-column fold \
-				--out "$WORK/out/o.parquet" --tables "$WORK/out/t" --threads 2 >/dev/null 2>&1
+				--out "$WORK/out/o.parquet" --tables "$WORK/out/t" --threads 2 $EXTRA >/dev/null 2>&1
 			echo "$rows $side $(cat "$WORK/t.txt")" | tee -a "$WORK/results.txt"
 		done
 	done

@@ -83,6 +83,11 @@ func (s *Stats) Partials(parts int, extra func(b []byte, l int) []byte) [][]byte
 	return out
 }
 
+// AppendLevels appends the partial form of the levels ls (slots with
+// rows), in that order, without extra bytes: statistics of some levels,
+// as the rows before a shard are sent to it (pipeline.Preceding).
+func (s *Stats) AppendLevels(b []byte, ls []int32) []byte { return s.appendLevels(b, ls, nil) }
+
 // appendLevels appends the partial form of the levels ls.
 func (s *Stats) appendLevels(b []byte, ls []int32, extra func(b []byte, l int) []byte) []byte {
 	// Room for every level at once (a growing slice copies itself again

@@ -263,7 +263,7 @@ func (f *targetFit) fast() bool {
 func (f *targetFit) Encoder(p Pass) Encoder {
 	te := &targetEncoder{f: f, pass: p}
 	if p == Ordered && f.full != nil {
-		te.running = make([]colstats.Agg, f.c.St.NumLevels()*len(f.full))
+		te.running = colstats.NewRunning(f.c.St.NumLevels(), len(f.full), f.c.Task, f.c.St.Origin)
 	}
 	return te
 }
@@ -273,8 +273,16 @@ type targetEncoder struct {
 	f    *targetFit
 	pass Pass
 	// running holds, for the ordered scheme, the statistics of the rows
-	// read so far of every level, at [slot*outputs + o].
-	running []colstats.Agg
+	// read so far of every level and output.
+	running *colstats.Running
+}
+
+// Start starts the ordered scheme's statistics from the rows before the
+// part of the table to be encoded (see Starter).
+func (te *targetEncoder) Start(b Before) {
+	if te.running != nil {
+		b.start(te.running, te.f.c.Pos)
+	}
 }
 
 func (te *targetEncoder) Encode(r *Rows, dst []table.Column) {
@@ -421,13 +429,13 @@ func (te *targetEncoder) next(l, o int, t target) float64 {
 	if l < 0 || !f.c.Keep[l] {
 		return ft.Prior
 	}
-	a := &te.running[l*len(f.full)+o]
-	v := ft.Encode(*a)
-	if t.ok {
-		y := f.contribution(t, o)
-		a.N++
-		a.Sum += y
-		a.SumSq += y * y
+	v := ft.Encode(te.running.Agg(l, o))
+	switch {
+	case !t.ok:
+	case f.c.Task == colstats.Regression:
+		te.running.AddValue(l, t.val)
+	default:
+		te.running.AddClass(l, o, f.contribution(t, o))
 	}
 	return v
 }

@@ -145,7 +145,7 @@ func (f *woeFit) Outputs() []table.Field { return []table.Field{{Name: "woe", Ki
 func (f *woeFit) Encoder(p Pass) Encoder {
 	we := &woeEncoder{f: f, pass: p}
 	if p == Ordered {
-		we.running = make([]woeTotals, f.c.St.NumLevels())
+		we.running = colstats.NewRunning(f.c.St.NumLevels(), 1, colstats.Binary, 0)
 	}
 	return we
 }
@@ -153,7 +153,15 @@ func (f *woeFit) Encoder(p Pass) Encoder {
 type woeEncoder struct {
 	f       *woeFit
 	pass    Pass
-	running []woeTotals // ordered: each level's rows so far
+	running *colstats.Running // ordered: each level's rows so far (N, positives)
+}
+
+// Start starts the ordered scheme's counts from the rows before the part
+// of the table to be encoded (see Starter).
+func (we *woeEncoder) Start(b Before) {
+	if we.running != nil {
+		b.start(we.running, we.f.c.Pos)
+	}
 }
 
 func (we *woeEncoder) Encode(r *Rows, dst []table.Column) {
@@ -184,14 +192,10 @@ func (we *woeEncoder) Encode(r *Rows, dst []table.Column) {
 			}
 			out[i] = f.weight(pos, neg, t)
 		case Ordered:
-			run := &we.running[l]
-			out[i] = f.weight(run.pos, run.neg, f.full)
+			run := we.running.Agg(l, 0)
+			out[i] = f.weight(run.Sum, run.N-run.Sum, f.full)
 			if k := r.Cls[i]; k >= 0 {
-				if int(k) == c.Pos {
-					run.pos++
-				} else {
-					run.neg++
-				}
+				we.running.AddClass(l, 0, boolFloat(int(k) == c.Pos))
 			}
 		}
 	}

@@ -32,6 +32,9 @@ type EncodeOptions struct {
 	// label) before the part's first row. ShardPlan.EncodeOptions sets
 	// Part, Offset and Strata.
 	Strata map[string]uint64
+	// Before, for the ordered scheme, holds the statistics of the rows
+	// before the part (ShardPlan.Before); a part after the first needs it.
+	Before *Before
 }
 
 // Use says which rows a pass encodes.
@@ -196,6 +199,9 @@ func (m *Model) newEncodePass(schema *table.Schema, opt EncodeOptions) (*encodeP
 	if e.training {
 		pass = sp.Scheme
 	}
+	if pass == method.Ordered && opt.Part && opt.Offset > 0 && opt.Before == nil {
+		return nil, fmt.Errorf("%s: %s ordered in a part of the table after its first row needs the statistics of the rows before it (ShardPlan.Before)", opt.File, ParamScheme)
+	}
 	e.idx = make([]int, len(m.Cols))
 	for i, c := range m.Cols {
 		e.idx[i] = schema.Index(c.Name)
@@ -238,7 +244,11 @@ func (m *Model) newEncodePass(schema *table.Schema, opt EncodeOptions) (*encodeP
 		}
 		e.at[i] = make([]int, len(c.Fits))
 		for ei, f := range c.Fits {
-			e.encoders[i] = append(e.encoders[i], f.Encoder(pass))
+			enc := f.Encoder(pass)
+			if st, ok := enc.(method.Starter); ok && opt.Before != nil && pass == method.Ordered {
+				st.Start(opt.Before.of(i, c))
+			}
+			e.encoders[i] = append(e.encoders[i], enc)
 			if sp.EncodingsOf(i)[ei].Needs().Target {
 				e.first[i] = append(e.first[i], ei)
 			}

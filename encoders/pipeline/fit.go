@@ -746,6 +746,20 @@ type orderCheck struct {
 	seen       bool
 	lastNum    float64
 	last, cur  []byte
+	// The first value passed (when seen) and its row.
+	first    []byte
+	firstNum float64
+	firstRow int64
+}
+
+// orderBefore reports whether value (text v, number vn) must not follow
+// value last (text, number lastNum): it is smaller, by number for a
+// numeric column, by bytes otherwise.
+func orderBefore(v []byte, vn float64, last []byte, lastNum float64, numeric bool) bool {
+	if numeric {
+		return vn < lastNum
+	}
+	return string(v) < string(last)
 }
 
 func (oc *orderCheck) check(b *table.Batch) error {
@@ -755,18 +769,17 @@ func (oc *orderCheck) check(b *table.Batch) error {
 			continue
 		}
 		oc.cur = c.AppendText(oc.cur[:0], i)
-		bad := false
+		var v float64
 		if oc.numeric {
-			v, _, err := c.Float(i)
-			if err != nil {
+			var err error
+			if v, _, err = c.Float(i); err != nil {
 				return &table.DataError{File: oc.file, Row: b.FirstRow + int64(i), Column: oc.name, Err: err}
 			}
-			bad = oc.seen && v < oc.lastNum
-			oc.lastNum = v
-		} else {
-			bad = oc.seen && string(oc.cur) < string(oc.last)
 		}
-		if bad {
+		if !oc.seen {
+			oc.first, oc.firstNum, oc.firstRow = append([]byte(nil), oc.cur...), v, b.FirstRow+int64(i)
+		}
+		if oc.seen && orderBefore(oc.cur, v, oc.last, oc.lastNum, oc.numeric) {
 			e := &table.DataError{File: oc.file, Row: b.FirstRow + int64(i), Column: oc.name,
 				Err: param.Errorf("the file is not sorted by this column (%s): %q comes after %q", ParamOrderBy, oc.cur, oc.last)}
 			if b.Lines != nil {
@@ -775,6 +788,7 @@ func (oc *orderCheck) check(b *table.Batch) error {
 			return e
 		}
 		oc.seen = true
+		oc.lastNum = v
 		oc.last, oc.cur = oc.cur, oc.last
 	}
 	return nil

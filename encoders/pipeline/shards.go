@@ -37,8 +37,16 @@ import (
 //
 // Stratified folds start each class's fold stream in a shard after the
 // rows of that class in the shards before it (ShardPlan.EncodeOptions).
-// Not yet sharded: the ordered scheme and --order-by (a row's value depends
-// on every row before it, in other shards too).
+//
+// The ordered scheme encodes a row from the rows before it, in the shards
+// before its own too. The merge of a partition, given every shard's
+// partial in shard order, also gives each shard the statistics of the
+// shards before it, of that shard's levels only (Preceding); stage 2 of a
+// shard starts from them (ShardPlan.Before, EncodeOptions.Before). A
+// regression target's running sums are exact (colstats.Running), so they
+// do not depend on where the shards cut the rows. --order-by is checked
+// within each shard (stage 0 and 1) and across their boundaries (the plan,
+// from each shard's first and last value).
 
 // ShardFacts is what stage 0 learns of one shard: its rows and what the
 // one-pass fit decides from its target.
@@ -58,6 +66,9 @@ type ShardFacts struct {
 	Labels []string
 	Counts []int64
 	Many   bool
+	// Order holds, with --order-by, the shard's first and last values
+	// (nil for a shard whose column is all null).
+	Order *OrderEnds
 }
 
 // Survey reads a shard (stage 0): its rows and, when the spec reads a
@@ -69,15 +80,32 @@ func Survey(r table.Reader, sp Spec, file string) (ShardFacts, error) {
 	}
 	schema := &table.Schema{Fields: append([]table.Field(nil), r.Schema().Fields...)}
 	tcol := -1
+	var sel []int // the columns read: the target, the order column
 	if sp.Target != "" && (sp.supervised() || sp.FoldBy.Needs().Class) {
 		if tcol = schema.Index(sp.Target); tcol < 0 {
 			return sf, &ColumnError{File: file, Param: ParamTarget, Name: sp.Target, Have: schema.Names()}
 		}
-		if err := r.Select([]int{tcol}); err != nil {
-			return sf, err
+		sel = append(sel, tcol)
+	}
+	var oc *orderCheck
+	if sp.OrderBy != "" {
+		i := schema.Index(sp.OrderBy)
+		if i < 0 {
+			return sf, &ColumnError{File: file, Param: ParamOrderBy, Name: sp.OrderBy, Have: schema.Names()}
 		}
-	} else if len(schema.Fields) > 0 {
-		if err := r.Select([]int{0}); err != nil { // the rows only
+		k := schema.Fields[i].Kind
+		oc = &orderCheck{file: file, name: sp.OrderBy, col: len(sel), numeric: k == table.Int64 || k == table.Float64}
+		if i == tcol {
+			oc.col = 0
+		} else {
+			sel = append(sel, i)
+		}
+	}
+	if len(sel) == 0 && len(schema.Fields) > 0 {
+		sel = []int{0} // the rows only
+	}
+	if len(sel) > 0 {
+		if err := r.Select(sel); err != nil {
 			return sf, err
 		}
 	}
@@ -93,6 +121,11 @@ func Survey(r table.Reader, sp Spec, file string) (ShardFacts, error) {
 	}
 	err := table.ForEach(r, func(b *table.Batch) error {
 		sf.Rows += int64(b.Rows)
+		if oc != nil {
+			if err := oc.check(b); err != nil {
+				return err
+			}
+		}
 		if tcol < 0 {
 			return nil
 		}
@@ -148,7 +181,19 @@ func Survey(r table.Reader, sp Spec, file string) (ShardFacts, error) {
 	if cls != nil {
 		sf.Labels = cls.order
 	}
+	if oc != nil && oc.seen {
+		sf.Order = &OrderEnds{First: oc.first, Last: oc.last, FirstNum: oc.firstNum, LastNum: oc.lastNum, Row: oc.firstRow}
+	}
 	return sf, nil
+}
+
+// OrderEnds are the first and last values of a shard's --order-by column
+// (its nulls passed over), as text and, for a numeric column, as numbers,
+// and the row of the first in the shard.
+type OrderEnds struct {
+	First, Last       []byte
+	FirstNum, LastNum float64
+	Row               int64
 }
 
 // ShardPlan is what every shard's fit and encode take from all the
@@ -186,13 +231,9 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 	if err := sp.Validate(); err != nil {
 		return nil, err
 	}
-	switch {
-	case sp.Scheme == method.Ordered:
-		return nil, usageErr("%s ordered is not yet available in a sharded fit", ParamScheme)
-	case sp.OrderBy != "":
-		return nil, usageErr("%s is not yet available in a sharded fit", ParamOrderBy)
-	}
 	p := &ShardPlan{Spec: sp, First: make([]int64, len(facts))}
+	var last *OrderEnds // the order column's values in the shards so far
+	lastShard := 0
 	var order []string
 	seen, many := map[string]bool{}, false
 	stratified := sp.FoldBy.Name() == (folds.StratifiedRule{}).Name()
@@ -207,6 +248,13 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 			}
 		}
 		p.First[i] = p.Rows + 1
+		if o := f.Order; sp.OrderBy != "" && o != nil {
+			if last != nil && orderBefore(o.First, o.FirstNum, last.Last, last.LastNum, p.numericOrder(schema)) {
+				return nil, &table.DataError{File: file, Row: p.First[i] + o.Row - 1, Column: sp.OrderBy,
+					Err: param.Errorf("the shards are not in the order of this column (%s): shard %d starts with %q, after %q, the last of shard %d", ParamOrderBy, i+1, o.First, last.Last, lastShard+1)}
+			}
+			last, lastShard = o, i
+		}
 		p.Rows += f.Rows
 		p.missing += f.Missing
 		if f.Batched && !p.decided {
@@ -247,6 +295,13 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 		p.classes, _ = sortedClasses(order, p.numericCls)
 	}
 	return p, nil
+}
+
+// numericOrder reports whether the --order-by column is numeric (compared
+// by number, not by bytes).
+func (p *ShardPlan) numericOrder(schema *table.Schema) bool {
+	i := schema.Index(p.Spec.OrderBy)
+	return i >= 0 && (schema.Fields[i].Kind == table.Int64 || schema.Fields[i].Kind == table.Float64)
 }
 
 // offsetReader numbers the rows of a shard from its place in the table:
@@ -418,22 +473,114 @@ func (f *fitter) appendPartials(parts int, extra func(ci int, c *Col) func([]byt
 		byCol[ci] = c.St.Partials(parts, x)
 	}
 	out := make([][]byte, n)
+	cols := make([][]byte, len(byCol))
 	for i := range out {
-		size := len(shardMagic) + binary.MaxVarintLen64
 		for ci := range byCol {
-			size += binary.MaxVarintLen64 + len(byCol[ci][i])
+			cols[ci], byCol[ci][i] = byCol[ci][i], nil
 		}
-		b := make([]byte, 0, size) // one copy of the columns' partials
-		b = append(b, shardMagic...)
-		b = binary.AppendUvarint(b, uint64(len(f.all)))
-		for ci := range byCol {
-			b = binary.AppendUvarint(b, uint64(len(byCol[ci][i])))
-			b = append(b, byCol[ci][i]...)
-			byCol[ci][i] = nil
-		}
-		out[i] = b
+		out[i] = shardPartial(cols)
 	}
 	return out
+}
+
+// shardPartial returns a shard's partial: the columns' partials, each
+// after its length.
+func shardPartial(cols [][]byte) []byte {
+	size := len(shardMagic) + binary.MaxVarintLen64
+	for _, c := range cols {
+		size += binary.MaxVarintLen64 + len(c)
+	}
+	b := make([]byte, 0, size) // one copy of the columns' partials
+	b = append(b, shardMagic...)
+	b = binary.AppendUvarint(b, uint64(len(cols)))
+	for _, c := range cols {
+		b = binary.AppendUvarint(b, uint64(len(c)))
+		b = append(b, c...)
+	}
+	return b
+}
+
+// Preceding gives, for the ordered scheme, what each shard's encode
+// starts from in one partition. partials[i] is shard i's partial of the
+// partition (stage 1's; empty for none), the shards in order; out[i] is a
+// partial of the rows of shards 0 to i-1, of the levels in partials[i]
+// only. ShardPlan.Before reads shard i's out[i] of every partition.
+func Preceding(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions) ([][]byte, error) {
+	acc, _, err := gatherPartials(plan, schema, nil, opt)
+	if err != nil {
+		return nil, err
+	}
+	out := make([][]byte, len(partials))
+	cols := make([][]byte, len(acc.all))
+	for i, b := range partials {
+		var own [][]byte
+		if len(b) > 0 {
+			own = [][]byte{b}
+		}
+		g, _, err := gatherPartials(plan, schema, own, opt)
+		if err != nil {
+			return nil, fmt.Errorf("shard %d: %w", i+1, err)
+		}
+		for ci, c := range acc.all {
+			gs := g.all[ci].St
+			var ls []int32
+			for l := 0; l < gs.NumLevels(); l++ {
+				if gs.RowCount(l) == 0 {
+					continue
+				}
+				al := 0 // the null level
+				if l > 0 {
+					al = c.St.Lookup(gs.Bytes(l))
+				}
+				if al >= 0 && c.St.RowCount(al) > 0 {
+					ls = append(ls, int32(al))
+				}
+			}
+			cols[ci] = c.St.AppendLevels(nil, ls)
+		}
+		out[i] = shardPartial(cols)
+		for ci, c := range acc.all {
+			if err := c.St.Merge(g.all[ci].St); err != nil {
+				return nil, fmt.Errorf("shard %d, column %q: %w", i+1, c.Name, err)
+			}
+		}
+	}
+	return out, nil
+}
+
+// Before is the statistics of the rows before a shard, which the ordered
+// scheme starts from (EncodeOptions.Before).
+type Before struct {
+	cols []*Col // per encoded column, as the model's
+}
+
+// Before reads the statistics of the rows before a shard: its part of
+// every partition's Preceding (in any order). schema and opt are as
+// Assemble's.
+func (p *ShardPlan) Before(schema *table.Schema, partials [][]byte, opt FitOptions) (*Before, error) {
+	f, _, err := gatherPartials(p, schema, partials, opt)
+	if err != nil {
+		return nil, err
+	}
+	return &Before{cols: f.m.Cols}, nil
+}
+
+// of returns the statistics before the shard of the model's column i (c),
+// each level with its slot in c.
+func (b *Before) of(i int, c *Col) method.Before {
+	bc := b.cols[i].St
+	slots := make([]int32, bc.NumLevels())
+	for l := range slots {
+		switch {
+		case bc.RowCount(l) == 0:
+			slots[l] = -1
+		case l == 0:
+			slots[l] = 0
+		default:
+			slots[l] = int32(c.St.Lookup(bc.Bytes(l)))
+		}
+	}
+	return method.Before{St: bc, Slots: slots}
 }
 
 // ErrShardPartial is the error of bytes that are not a partial of this

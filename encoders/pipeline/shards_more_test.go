@@ -176,34 +176,90 @@ func TestShardErrorsNameShardRow(t *testing.T) {
 	})
 }
 
-// TestPlanShardsRefuses: the plan refuses what is not yet sharded (the
-// ordered scheme, an order-by column) and a target of
+// TestShardedOrderBy: with --order-by, the ordered scheme over shards
+// sorted by a column (a numeric day and a text date; ties across a
+// boundary; a shard whose column is all null; an empty shard) gives the
+// one pass's bytes; shards out of order are refused by the plan, which
+// names the first row of the shard that starts too early (counted across
+// the shards) and the column; a shard not sorted within is refused by its
+// survey, which names its own row; a shard after the first encoded
+// without the statistics of those before it is refused.
+func TestShardedOrderBy(t *testing.T) {
+	var text strings.Builder
+	text.WriteString("postcode,sender,day,date,late,cost\n")
+	for i := 0; i < 120; i++ {
+		day := fmt.Sprint(i / 7)
+		if i >= 40 && i < 50 {
+			day = "" // shard 2 (rows 41 to 50) has no day at all
+		}
+		fmt.Fprintf(&text, "PC%d,S%d,%s,2026-12-%02d,%d,%d.%02d\n", i%6, i%4, day, 1+i/5, (i*7)%3%2, 3+i%9, i*37%100)
+	}
+	sizes := []int{25, 15, 10, 0, 70} // day 3 (rows 22 to 28) ends shard 0 and starts shard 1
+	for _, col := range []string{"day", "date"} {
+		t.Run(col, func(t *testing.T) {
+			dir := t.TempDir()
+			whole := filepath.Join(dir, "whole.csv")
+			os.WriteFile(whole, []byte(text.String()), 0o644)
+			sp := shardSpec(t, "cost", "target:m=2+freq", "ordered", "rows")
+			sp.Columns, sp.OrderBy = []string{"postcode", "sender"}, col
+			r := open(t, whole)
+			m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: whole, TotalRows: 120})
+			r.Close()
+			if err != nil {
+				t.Fatal(err)
+			}
+			wantOut := filepath.Join(dir, "want.csv")
+			encodeTo(t, m, whole, wantOut, pipeline.EncodeOptions{})
+			want, _ := os.ReadFile(wantOut)
+			shards := splitText(t, dir, text.String(), sizes)
+			sm, plan, opts := shardedRun(t, sp, shards, 4)
+			var got []byte
+			for i, p := range shards {
+				out := filepath.Join(dir, fmt.Sprintf("out-%d.csv", i))
+				encodeTo(t, sm, p, out, opts(i))
+				b, _ := os.ReadFile(out)
+				if i > 0 {
+					b = b[bytes.IndexByte(b, '\n')+1:]
+				}
+				got = append(got, b...)
+			}
+			if !bytes.Equal(got, want) {
+				t.Errorf("the outputs differ from the one pass's%s", firstDiff(got, want))
+			}
+
+			// Shards 1 and 4 swapped: the first shard with values after
+			// shard 4 (now the second) starts before its end: shard 5,
+			// shard 1 of old, for the day (shard 3 has no day), shard 3
+			// for the date.
+			swapped := []string{shards[0], shards[4], shards[2], shards[3], shards[1]}
+			_, _, err = planShards(t, sp, swapped)
+			row, name := int64(25+70+10+0+1), "shard 5 starts with"
+			if col == "date" {
+				row, name = 25+70+1, "shard 3 starts with"
+			}
+			dataError(t, "PlanShards", err, "the shards", row, 0, col)
+			if err != nil && !strings.Contains(err.Error(), name) {
+				t.Errorf("the error does not name the shard: %v", err)
+			}
+
+			// A shard not sorted within: the survey names its row.
+			bad := filepath.Join(dir, "bad.csv")
+			os.WriteFile(bad, []byte("postcode,sender,day,date,late,cost\nPC1,S1,5,2026-12-05,1,3\nPC1,S1,4,2026-12-04,1,3\n"), 0o644)
+			dataError(t, "Survey", surveyErr(t, sp, bad), bad, 2, 3, col)
+
+			// Stage 2 of a later shard without what came before.
+			if err := encodeErr(t, sm, plan, shards[1], 1); err == nil || !strings.Contains(err.Error(), "before") {
+				t.Errorf("shard 1 encoded without the statistics before it: %v", err)
+			}
+		})
+	}
+}
+
+// TestPlanShardsRefuses: the plan refuses a target of
 // more than MaxClasses classes over the shards' union of labels when each
 // shard has fewer; a binary task whose shards hold three labels between
 // them is refused before a model is made.
 func TestPlanShardsRefuses(t *testing.T) {
-	dir := t.TempDir()
-	shards := splitText(t, dir, shipmentsText(90), []int{30, 30, 30})
-	schema := schemaOf(t, shards[0])
-	for _, c := range []struct {
-		name string
-		edit func(*pipeline.Spec)
-	}{
-		{"ordered", func(sp *pipeline.Spec) { sp.Scheme = method.Ordered }},
-		{"order by", func(sp *pipeline.Spec) { sp.OrderBy = "cost" }},
-	} {
-		sp := shardSpec(t, "late", "target:eb+freq", "kfold", "rows")
-		c.edit(&sp)
-		if err := sp.Validate(); err != nil {
-			t.Fatalf("%s: the spec itself is refused: %v", c.name, err)
-		}
-		plan, err := pipeline.PlanShards(sp, schema, make([]pipeline.ShardFacts, 3), "the shards")
-		var ue *pipeline.UsageError
-		if !errors.As(err, &ue) || plan != nil {
-			t.Errorf("%s: plan %v, error %T %v; want a UsageError", c.name, plan, err, err)
-		}
-	}
-
 	t.Run("classes over the union", func(t *testing.T) {
 		dir := t.TempDir()
 		var text strings.Builder

@@ -143,6 +143,15 @@ func planShards(t *testing.T, sp pipeline.Spec, shards []string) (*pipeline.Shar
 // assembly.
 func shardedModel(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*pipeline.Model, *pipeline.ShardPlan) {
 	t.Helper()
+	m, plan, _ := shardedRun(t, sp, shards, parts)
+	return m, plan
+}
+
+// shardedRun is shardedModel, and also returns what stage 2 of each shard
+// takes (ShardPlan.EncodeOptions and, for the ordered scheme, the
+// statistics of the shards before it from each partition's Preceding).
+func shardedRun(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*pipeline.Model, *pipeline.ShardPlan, func(i int) pipeline.EncodeOptions) {
+	t.Helper()
 	plan, schema, err := planShards(t, sp, shards)
 	if err != nil {
 		t.Fatal(err)
@@ -180,7 +189,28 @@ func shardedModel(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*
 	if err != nil {
 		t.Fatalf("assemble: %v", err)
 	}
-	return m, plan
+	before := make([][][]byte, len(shards)) // per shard, per partition
+	if sp.Scheme == method.Ordered {
+		for part := range byPart {
+			pre, err := pipeline.Preceding(plan, schema, byPart[part], pipeline.FitOptions{})
+			if err != nil {
+				t.Fatalf("preceding of partition %d: %v", part, err)
+			}
+			for i := range shards {
+				before[i] = append(before[i], pre[i])
+			}
+		}
+	}
+	opts := func(i int) pipeline.EncodeOptions {
+		o := withThreads(plan.EncodeOptions(i), "")
+		if sp.Scheme == method.Ordered {
+			if o.Before, err = plan.Before(schema, before[i], pipeline.FitOptions{}); err != nil {
+				t.Fatalf("before shard %d: %v", i, err)
+			}
+		}
+		return o
+	}
+	return m, plan, opts
 }
 
 // TestShardedFitSameAsOnePass: the sharded fit (stage 0, plan, stage 1 in
@@ -188,7 +218,7 @@ func shardedModel(t *testing.T, sp pipeline.Spec, shards []string, parts int) (*
 // shards of uneven sizes, one empty, writes the outputs (concatenated in
 // shard order) and mapping tables of Fit and Encode over the whole table,
 // byte for byte: binary, multi-class and regression targets, the k-fold,
-// leave-one-out and in-sample schemes, row, group, block and stratified
+// leave-one-out, ordered and in-sample schemes, row, group, block and stratified
 // folds, every method and both priors.
 func TestShardedFitSameAsOnePass(t *testing.T) {
 	dir := t.TempDir()
@@ -215,6 +245,11 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 		{"multi-class kfold", "parcel_type", "target:eb" + rest, "kfold", "rows"},
 		{"multi-class loo", "parcel_type", "target:m=3" + rest, "loo", "group=route"},
 		{"no target", "", "freq+topk:4+hash:32", "kfold", "rows"},
+		{"binary ordered", "late", "target:eb+woe" + rest, "ordered", "rows"},
+		{"binary ordered log-odds", "late", "postcode=target:m=2:logodds,sender=woe,route=target:blend=2,1", "ordered", "rows"},
+		{"regression ordered", "cost", "target:eb" + rest, "ordered", "rows"},
+		{"regression ordered blend", "cost", "target:blend=2,1" + rest, "ordered", "group=sender"},
+		{"multi-class ordered", "parcel_type", "target:m=3" + rest, "ordered", "stratified"},
 	}
 	for _, job := range jobs {
 		t.Run(job.name, func(t *testing.T) {
@@ -252,11 +287,11 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 				if k >= 8 {
 					parts = 64 // levels and their parents in another order than met
 				}
-				sm, plan := shardedModel(t, sp, shards, parts)
+				sm, _, opts := shardedRun(t, sp, shards, parts)
 				var got []byte
 				for i, p := range shards {
 					out := filepath.Join(sdir, fmt.Sprintf("out-%02d.csv", i))
-					encodeTo(t, sm, p, out, withThreads(plan.EncodeOptions(i), ""))
+					encodeTo(t, sm, p, out, opts(i))
 					b, _ := os.ReadFile(out)
 					if i > 0 {
 						b = b[bytes.IndexByte(b, '\n')+1:] // the header once

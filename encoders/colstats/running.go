@@ -1,0 +1,134 @@
+package colstats
+
+import "manyfold/encoders/exactsum"
+
+// Running holds what the ordered scheme encodes a row from: per level and
+// output, the statistics of the level's rows read so far (Agg), to which
+// each row is added after it is encoded (the ordered target statistic,
+// Prokhorenkova et al., "CatBoost: unbiased boosting with categorical
+// features", NeurIPS 2018, section 3.2).
+//
+// A regression target's sums are exact (package exactsum) and rounded
+// once per row read, as a sealed cell of Stats is: the running statistics
+// of a level do not depend on how its earlier rows were grouped, so a
+// shard of a table may start from the sums of the shards before it
+// (Start) and give the bits of the one pass. A level's first row is kept
+// as it is (raw) and its exact sums are pooled from the second, as Stats
+// does. Class counts are integers, exact as float64 below 2^53.
+type Running struct {
+	outs       int
+	regression bool
+	origin     float64
+	agg        []Agg // [l*outs+o], what Agg returns
+
+	// Regression only, per level: nothing (no row), the one row's target,
+	// or (from the second row) the index of its exact sums in pool, boxed
+	// in a NaN.
+	raw    []float64
+	pool   [][]cellSums
+	pooled int
+}
+
+// NewRunning returns empty running statistics of n levels and outs
+// outputs, for statistics of task; a regression target's sums are taken
+// about origin (Stats.Origin).
+func NewRunning(n, outs int, task Task, origin float64) *Running {
+	r := &Running{outs: outs, regression: task == Regression, origin: origin, agg: make([]Agg, n*outs)}
+	if r.regression {
+		r.raw = make([]float64, n)
+	}
+	return r
+}
+
+// Agg returns the statistics of the rows of level l added so far, for
+// output o.
+func (r *Running) Agg(l, o int) Agg { return r.agg[l*r.outs+o] }
+
+// AddClass adds a row of level l whose contribution to output o is y (1
+// for a row of the output's class, else 0).
+func (r *Running) AddClass(l, o int, y float64) {
+	a := &r.agg[l*r.outs+o]
+	a.N++
+	a.Sum += y
+	a.SumSq += y * y
+}
+
+// AddValue adds a row of level l with regression target y (finite): the
+// level's sums of y - origin and its square grow exactly and are rounded
+// again.
+func (r *Running) AddValue(l int, y float64) {
+	a := &r.agg[l*r.outs]
+	x := &r.raw[l]
+	if a.N == 0 {
+		*x = y
+		var sum, sq exactsum.Sum
+		exactsum.AddDiff(&sum, &sq, y, r.origin)
+		*a = Agg{N: 1, Sum: sum.Float64(), SumSq: sq.Float64()}
+		return
+	}
+	p := r.cell(l)
+	exactsum.AddDiff(&p.sum, &p.sq, y, r.origin)
+	*a = Agg{N: a.N + 1, Sum: p.sum.Float64(), SumSq: p.sq.Float64()}
+}
+
+// cell returns the exact sums of level l, which has a row or more, moving
+// a level of one row into the pool first.
+func (r *Running) cell(l int) *cellSums {
+	x := &r.raw[l]
+	if isBox(*x) {
+		i := unbox(*x)
+		return &r.pool[i>>poolChunk][i&(1<<poolChunk-1)]
+	}
+	i := r.pooled
+	if i>>poolChunk == len(r.pool) {
+		r.pool = append(r.pool, make([]cellSums, 1<<poolChunk))
+	}
+	r.pooled++
+	p := &r.pool[i>>poolChunk][i&(1<<poolChunk-1)]
+	if r.agg[l*r.outs].N == 1 {
+		exactsum.AddDiff(&p.sum, &p.sq, *x, r.origin)
+	}
+	*x = box(i)
+	return p
+}
+
+// Start adds, to level l, the rows of level bl of before (statistics of
+// the same classes in the same slots, not sealed: the rows before a shard
+// of the table) over all folds. With one output, a classification target
+// is binary and its output counts class slot pos; with more, output o
+// counts class slot o. Rows of unknown target are not counted, as AddClass
+// and AddValue are not called for them.
+func (r *Running) Start(l int, before *Stats, bl, pos int) {
+	if !r.regression {
+		var n uint64
+		for c := range before.Classes {
+			n += before.ClassCount(bl, c)
+		}
+		for o := range r.outs {
+			c := o
+			if r.outs == 1 {
+				c = pos
+			}
+			k := float64(before.ClassCount(bl, c))
+			a := &r.agg[l*r.outs+o]
+			a.N += float64(n)
+			a.Sum += k
+			a.SumSq += k
+		}
+		return
+	}
+	sum, sq := before.ExactTarget(bl)
+	var n uint64
+	for f := 0; f < before.Folds; f++ {
+		n += uint64(before.cnt.row(bl)[f])
+	}
+	if n == 0 {
+		return
+	}
+	exactsum.Recenter(n, &sum, &sq, before.Origin, r.origin)
+	a := &r.agg[l*r.outs]
+	p := r.cell(l)
+	p.sum.AddSum(&sum)
+	p.sq.AddSum(&sq)
+	*a = Agg{N: a.N + float64(n), Sum: p.sum.Float64(), SumSq: p.sq.Float64()}
+}

@@ -12,19 +12,21 @@ import "manyfold/encoders/exactsum"
 // once per row read, as a sealed cell of Stats is: the running statistics
 // of a level do not depend on how its earlier rows were grouped, so a
 // shard of a table may start from the sums of the shards before it
-// (Start) and give the bits of the one pass. A level's first row is kept
-// as it is (raw) and its exact sums are pooled from the second, as Stats
-// does. Class counts are integers, exact as float64 below 2^53.
+// (Start) and give the bits of the one pass. A level whose only row's y -
+// origin is exact as a float64 (the common case) keeps no more than its
+// Agg; its exact sums are pooled from the second row (or a first row
+// whose difference rounds). Class counts are integers, exact as float64
+// below 2^53.
 type Running struct {
 	outs       int
 	regression bool
 	origin     float64
 	agg        []Agg // [l*outs+o], what Agg returns
 
-	// Regression only, per level: nothing (no row), the one row's target,
-	// or (from the second row) the index of its exact sums in pool, boxed
-	// in a NaN.
-	raw    []float64
+	// Regression only, per level: 0, or 1 + the index of its exact sums
+	// in pool. A level of one row and no index has the exact sums
+	// agg.Sum and its square.
+	at     []uint32
 	pool   [][]cellSums
 	pooled int
 }
@@ -35,7 +37,7 @@ type Running struct {
 func NewRunning(n, outs int, task Task, origin float64) *Running {
 	r := &Running{outs: outs, regression: task == Regression, origin: origin, agg: make([]Agg, n*outs)}
 	if r.regression {
-		r.raw = make([]float64, n)
+		r.at = make([]uint32, n)
 	}
 	return r
 }
@@ -58,37 +60,35 @@ func (r *Running) AddClass(l, o int, y float64) {
 // again.
 func (r *Running) AddValue(l int, y float64) {
 	a := &r.agg[l*r.outs]
-	x := &r.raw[l]
 	if a.N == 0 {
-		*x = y
-		var sum, sq exactsum.Sum
-		exactsum.AddDiff(&sum, &sq, y, r.origin)
-		*a = Agg{N: 1, Sum: sum.Float64(), SumSq: sq.Float64()}
-		return
+		// y - origin rounded is the sum; when it is exact (TwoSum's
+		// error 0), its square rounded once is the sum of squares.
+		if d, t := exactsum.TwoSum(y, -r.origin); t == 0 {
+			*a = Agg{N: 1, Sum: d, SumSq: d * d}
+			return
+		}
 	}
 	p := r.cell(l)
 	exactsum.AddDiff(&p.sum, &p.sq, y, r.origin)
 	*a = Agg{N: a.N + 1, Sum: p.sum.Float64(), SumSq: p.sq.Float64()}
 }
 
-// cell returns the exact sums of level l, which has a row or more, moving
-// a level of one row into the pool first.
+// cell returns the exact sums of level l, pooling them first if the
+// level has none (its one row's exact y - origin is then agg.Sum).
 func (r *Running) cell(l int) *cellSums {
-	x := &r.raw[l]
-	if isBox(*x) {
-		i := unbox(*x)
-		return &r.pool[i>>poolChunk][i&(1<<poolChunk-1)]
+	if i := r.at[l]; i > 0 {
+		return &r.pool[(i-1)>>poolChunk][(i-1)&(1<<poolChunk-1)]
 	}
 	i := r.pooled
 	if i>>poolChunk == len(r.pool) {
 		r.pool = append(r.pool, make([]cellSums, 1<<poolChunk))
 	}
 	r.pooled++
+	r.at[l] = uint32(i + 1)
 	p := &r.pool[i>>poolChunk][i&(1<<poolChunk-1)]
-	if r.agg[l*r.outs].N == 1 {
-		exactsum.AddDiff(&p.sum, &p.sq, *x, r.origin)
+	if a := r.agg[l*r.outs]; a.N == 1 {
+		exactsum.AddDiff(&p.sum, &p.sq, a.Sum, 0)
 	}
-	*x = box(i)
 	return p
 }
 

@@ -82,3 +82,27 @@ func boolFloat(b bool) float64 {
 	}
 	return 0
 }
+
+// BenchmarkRunningAddValue: a regression target's running sums, one row
+// of a level read then added, over levels of many rows (postcodes) and of
+// one row each (shipment ids).
+func BenchmarkRunningAddValue(b *testing.B) {
+	for _, c := range []struct {
+		name   string
+		levels int
+	}{{"postcodes", 1000}, {"ids", 1 << 20}} {
+		b.Run(c.name, func(b *testing.B) {
+			r := NewRunning(c.levels, 1, Regression, 7.31)
+			var sink float64
+			for i := 0; i < b.N; i++ {
+				l := (i * 7919) % c.levels
+				if c.levels > 1000 && i%c.levels == 0 {
+					r = NewRunning(c.levels, 1, Regression, 7.31)
+				}
+				sink += r.Agg(l, 0).Sum
+				r.AddValue(l, float64(i%4000)/100)
+			}
+			_ = sink
+		})
+	}
+}

@@ -12,21 +12,23 @@ import "manyfold/encoders/exactsum"
 // once per row read, as a sealed cell of Stats is: the running statistics
 // of a level do not depend on how its earlier rows were grouped, so a
 // shard of a table may start from the sums of the shards before it
-// (Start) and give the bits of the one pass. A level whose only row's y -
-// origin is exact as a float64 (the common case) keeps no more than its
-// Agg; its exact sums are pooled from the second row (or a first row
-// whose difference rounds). Class counts are integers, exact as float64
-// below 2^53.
+// (Start) and give the bits of the one pass. A level of one row keeps
+// that row's y in raw when y - origin rounds, and nothing more when it is
+// exact (its Agg.Sum is then the exact difference, and raw is left
+// untouched: a nearly unique id column's pages of raw are mostly never
+// written); from the second row its exact sums are pooled, as Stats does.
+// Class counts are integers, exact as float64 below 2^53.
 type Running struct {
 	outs       int
 	regression bool
 	origin     float64
 	agg        []Agg // [l*outs+o], what Agg returns
 
-	// Regression only, per level: 0, or 1 + the index of its exact sums
-	// in pool. A level of one row and no index has the exact sums
-	// agg.Sum and its square.
-	at     []uint32
+	// Regression only, per level: 0 (for a level of one row: its exact
+	// difference is agg.Sum), the one row's y, or the index of its exact
+	// sums in pool boxed in a NaN (y is never 0 there: 0 - origin is
+	// exact).
+	raw    []float64
 	pool   [][]cellSums
 	pooled int
 }
@@ -37,7 +39,7 @@ type Running struct {
 func NewRunning(n, outs int, task Task, origin float64) *Running {
 	r := &Running{outs: outs, regression: task == Regression, origin: origin, agg: make([]Agg, n*outs)}
 	if r.regression {
-		r.at = make([]uint32, n)
+		r.raw = make([]float64, n)
 	}
 	return r
 }
@@ -67,6 +69,11 @@ func (r *Running) AddValue(l int, y float64) {
 			*a = Agg{N: 1, Sum: d, SumSq: d * d}
 			return
 		}
+		r.raw[l] = y
+		var sum, sq exactsum.Sum
+		exactsum.AddDiff(&sum, &sq, y, r.origin)
+		*a = Agg{N: 1, Sum: sum.Float64(), SumSq: sq.Float64()}
+		return
 	}
 	p := r.cell(l)
 	exactsum.AddDiff(&p.sum, &p.sq, y, r.origin)
@@ -74,20 +81,26 @@ func (r *Running) AddValue(l int, y float64) {
 }
 
 // cell returns the exact sums of level l, pooling them first if the
-// level has none (its one row's exact y - origin is then agg.Sum).
+// level has none.
 func (r *Running) cell(l int) *cellSums {
-	if i := r.at[l]; i > 0 {
-		return &r.pool[(i-1)>>poolChunk][(i-1)&(1<<poolChunk-1)]
+	x := r.raw[l]
+	if isBox(x) {
+		i := unbox(x)
+		return &r.pool[i>>poolChunk][i&(1<<poolChunk-1)]
 	}
 	i := r.pooled
 	if i>>poolChunk == len(r.pool) {
 		r.pool = append(r.pool, make([]cellSums, 1<<poolChunk))
 	}
 	r.pooled++
-	r.at[l] = uint32(i + 1)
+	r.raw[l] = box(i)
 	p := &r.pool[i>>poolChunk][i&(1<<poolChunk-1)]
-	if a := r.agg[l*r.outs]; a.N == 1 {
+	switch a := r.agg[l*r.outs]; {
+	case a.N == 0:
+	case x == 0: // the exact difference
 		exactsum.AddDiff(&p.sum, &p.sq, a.Sum, 0)
+	default:
+		exactsum.AddDiff(&p.sum, &p.sq, x, r.origin)
 	}
 	return p
 }

@@ -2,6 +2,8 @@ package colstats
 
 import (
 	"math"
+
+	"manyfold/encoders/exactsum"
 	"math/big"
 	"testing"
 )
@@ -29,7 +31,17 @@ func TestRunningExactAndSplit(t *testing.T) {
 		sq, _ = q.Float64()
 		return sum, sq
 	}
-	for _, k := range []int{0, 1, 2, 17, 40} {
+	// From ys[3] on, the first row's y - origin rounds (3000001.113 less
+	// 12.34 needs more than 53 bits); from ys[0], it is exact.
+	all := ys
+	if _, e := exactsum.TwoSum(all[3], -origin); e == 0 {
+		t.Fatalf("%v - %v is exact", all[3], origin)
+	}
+	for _, k := range []int{0, 1, 2, 17, 40, -1} {
+		ys := all
+		if k < 0 {
+			ys, k = all[3:], 0
+		}
 		st := New(Regression, 3, 0, 1)
 		st.Origin = origin
 		l := st.Level([]byte("PC1"))

@@ -26,18 +26,18 @@ import (
 // settings as text (a DoFn's fields travel as JSON), parsed into a
 // pipeline.Spec on each worker by Spec.
 type Job struct {
-	Target, Columns, Methods, Task, FoldBy, Scheme string
-	Folds                                          int
-	Seed                                           uint64
-	Partitions                                     int    // a power of two
-	Format                                         string // of the encoded shards: parquet or csv
-	Run                                            string // this run's id (Build), which keys the workers' models
+	Target, Columns, Methods, Task, FoldBy, Scheme, OrderBy string
+	Folds                                                   int
+	Seed                                                    uint64
+	Partitions                                              int    // a power of two
+	Format                                                  string // of the encoded shards: parquet or csv
+	Run                                                     string // this run's id (Build), which keys the workers' models
 }
 
 // Spec parses the job.
 func (j Job) Spec() (pipeline.Spec, error) {
 	sp := pipeline.DefaultSpec()
-	sp.Target, sp.Task, sp.Folds, sp.Seed = j.Target, j.Task, j.Folds, j.Seed
+	sp.Target, sp.Task, sp.Folds, sp.Seed, sp.OrderBy = j.Target, j.Task, j.Folds, j.Seed, j.OrderBy
 	if j.Columns != "" {
 		sp.Columns = strings.Split(j.Columns, ",")
 	}
@@ -52,7 +52,7 @@ func (j Job) Spec() (pipeline.Spec, error) {
 	}
 	var ok bool
 	if sp.Scheme, ok = method.ParseScheme(j.Scheme); !ok {
-		return sp, fmt.Errorf("-scheme %q: want kfold, loo or none", j.Scheme)
+		return sp, fmt.Errorf("-scheme %q: want kfold, loo, ordered or none", j.Scheme)
 	}
 	return sp, sp.Validate()
 }
@@ -61,7 +61,7 @@ func (j Job) Spec() (pipeline.Spec, error) {
 // conditions) that a shard's reader adds.
 func names(sp *pipeline.Spec) []string {
 	n := append([]string{}, sp.Columns...)
-	n = append(n, sp.Target, sp.GroupColumn())
+	n = append(n, sp.Target, sp.GroupColumn(), sp.OrderBy)
 	return append(n, sp.PriorColumns()...)
 }
 
@@ -162,10 +162,11 @@ type ShardFacts struct {
 var models sync.Map // string -> *modelOnce
 
 type modelOnce struct {
-	once sync.Once
-	m    *pipeline.Model
-	plan *pipeline.ShardPlan
-	err  error
+	once   sync.Once
+	m      *pipeline.Model
+	plan   *pipeline.ShardPlan
+	schema *table.Schema
+	err    error
 }
 
 // writeFile writes the file final with write, which creates it at the

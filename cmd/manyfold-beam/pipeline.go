@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"context"
+	"encoding/binary"
 	"encoding/gob"
 	"fmt"
 	"math/rand/v2"
@@ -18,6 +19,7 @@ import (
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/register"
 	"github.com/cespare/xxhash/v2"
 
+	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
@@ -26,8 +28,8 @@ import (
 func init() {
 	register.DoFn3x1[context.Context, Shard, func([]byte), error](&surveyFn{})
 	register.DoFn4x1[context.Context, Shard, func(*[]byte) bool, func(int, []byte), error](&fitFn{})
-	register.DoFn5x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func([]byte), error](&mergeFn{})
-	register.DoFn5x1[context.Context, Shard, func(*[]byte) bool, func(*[]byte) bool, func(string), error](&encodeFn{})
+	register.DoFn6x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func([]byte), func(int, []byte), error](&mergeFn{})
+	register.DoFn6x1[context.Context, Shard, func(*[]byte) bool, func(*[]byte) bool, func(int) func(*[]byte) bool, func(string), error](&encodeFn{})
 	register.DoFn5x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func(string), error](&tablesFn{})
 	register.DoFn3x1[context.Context, int, func(*string) bool, error](&finishFn{})
 	register.Iter1[string]()
@@ -44,7 +46,8 @@ func init() {
 //
 //	shards -> Reshuffle -> survey -> facts (side input of what follows)
 //	shards -> fit -> (partition, partial) -> GroupByKey -> merge -> merged (side input)
-//	shards -> encode (facts, merged) -> out/part-NNNNN.EXT
+//	                                                           \-> (shard, before) (side input, ordered scheme)
+//	shards -> encode (facts, merged, before) -> out/part-NNNNN.EXT
 //	one    -> tables (facts, merged) -> tables
 func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PCollection {
 	// A run of its own: a worker process kept for another run (or a test
@@ -56,9 +59,9 @@ func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PColl
 	sc := beam.Reshuffle(s, beam.CreateList(s, shards))
 	facts := beam.ParDo(s.Scope("survey"), &surveyFn{Job: job}, sc)
 	partials := beam.ParDo(s.Scope("fit"), &fitFn{Job: job, Schema: shards[0].Path}, sc, beam.SideInput{Input: facts})
-	merged := beam.ParDo(s.Scope("merge"), &mergeFn{Job: job, Schema: shards[0].Path}, beam.GroupByKey(s, partials), beam.SideInput{Input: facts})
+	merged, before := beam.ParDo2(s.Scope("merge"), &mergeFn{Job: job, Schema: shards[0].Path}, beam.GroupByKey(s, partials), beam.SideInput{Input: facts})
 	written := beam.ParDo(s.Scope("encode"), &encodeFn{Job: job, Schema: shards[0].Path, Out: out}, sc,
-		beam.SideInput{Input: facts}, beam.SideInput{Input: merged})
+		beam.SideInput{Input: facts}, beam.SideInput{Input: merged}, beam.SideInput{Input: before})
 	saved := beam.ParDo(s.Scope("tables"), &tablesFn{Job: job, Schema: shards[0].Path, Tables: tables}, beam.Create(s, 0),
 		beam.SideInput{Input: facts}, beam.SideInput{Input: merged})
 	// Once every shard is written: the temporary files of bundles that
@@ -165,41 +168,76 @@ func (fn *fitFn) ProcessElement(ctx context.Context, sh Shard, facts func(*[]byt
 		return err
 	}
 	for part, b := range parts {
+		if pl.sp.Scheme == method.Ordered {
+			// The merge orders the shards' partials: each after its
+			// shard's index.
+			b = append(binary.AppendUvarint(make([]byte, 0, len(b)+binary.MaxVarintLen64), uint64(sh.Index)), b...)
+		}
 		emit(part, b)
 	}
 	return nil
 }
 
-// mergeFn merges one partition's partials from every shard.
+// mergeFn merges one partition's partials from every shard. For the
+// ordered scheme it also gives each shard the statistics of the shards
+// before it in the partition (pipeline.Preceding), keyed by the shard's
+// index.
 type mergeFn struct {
 	Job    Job
 	Schema string
 }
 
-func (fn *mergeFn) ProcessElement(ctx context.Context, part int, partials func(*[]byte) bool, facts func(*[]byte) bool, emit func([]byte)) error {
+func (fn *mergeFn) ProcessElement(ctx context.Context, part int, partials func(*[]byte) bool, facts func(*[]byte) bool, emit func([]byte), emitBefore func(int, []byte)) error {
 	pl, err := planOf(ctx, fn.Job, fn.Schema, facts)
 	if err != nil {
 		return err
 	}
+	ordered := pl.sp.Scheme == method.Ordered
 	var all [][]byte
+	var byShard [][]byte // ordered: the shards' partials by index
 	var b []byte
 	for partials(&b) {
-		all = append(all, slices.Clone(b))
+		if !ordered {
+			all = append(all, slices.Clone(b))
+			continue
+		}
+		i, k := binary.Uvarint(b)
+		if k <= 0 || i >= uint64(len(pl.plan.First)) {
+			return fmt.Errorf("partition %d: a partial without its shard's index", part)
+		}
+		for len(byShard) <= int(i) {
+			byShard = append(byShard, nil)
+		}
+		if byShard[i] != nil {
+			return fmt.Errorf("partition %d: shard %d's partial given twice", part, i)
+		}
+		byShard[i] = slices.Clone(b[k:])
+		all = append(all, byShard[i])
 	}
 	m, err := pipeline.MergePartials(pl.plan, pl.schema, all, pipeline.FitOptions{})
 	if err != nil {
 		return fmt.Errorf("partition %d: %w", part, err)
 	}
 	emit(m)
+	if ordered {
+		byShard = append(byShard, make([][]byte, len(pl.plan.First)-len(byShard))...)
+		before, err := pipeline.Preceding(pl.plan, pl.schema, byShard, pipeline.FitOptions{})
+		if err != nil {
+			return fmt.Errorf("partition %d: %w", part, err)
+		}
+		for i, b := range before {
+			emitBefore(i, b)
+		}
+	}
 	return nil
 }
 
 // model returns the model assembled from the merged partitions, once per
 // worker for the same job and statistics.
-func model(ctx context.Context, job Job, schemaPath string, factsIter, merged func(*[]byte) bool) (*pipeline.Model, *pipeline.ShardPlan, error) {
+func model(ctx context.Context, job Job, schemaPath string, factsIter, merged func(*[]byte) bool) (*modelOnce, error) {
 	facts, err := readFacts(factsIter)
 	if err != nil {
-		return nil, nil, err
+		return nil, err
 	}
 	// The key: the job, its first shard and every shard's facts. Only the
 	// first bundle of a worker reads the merged statistics (a side input
@@ -225,13 +263,13 @@ func model(ctx context.Context, job Job, schemaPath string, factsIter, merged fu
 		if pl, mo.err = planFrom(ctx, job, schemaPath, facts); mo.err != nil {
 			return
 		}
-		mo.plan = pl.plan
+		mo.plan, mo.schema = pl.plan, pl.schema
 		mo.m, mo.err = pipeline.Assemble(pl.plan, pl.schema, parts, pipeline.FitOptions{File: "the shards", Threads: 2, Tables: true})
 	})
 	if mo.err != nil {
 		models.CompareAndDelete(key, mo) // a later bundle tries again
 	}
-	return mo.m, mo.plan, mo.err
+	return mo, mo.err
 }
 
 // encodeFn is stage 2: a shard's rows encoded into out/part-NNNNN.EXT.
@@ -250,10 +288,21 @@ func partName(out string, i int, format string) string {
 	return filepath.Join(out, name)
 }
 
-func (fn *encodeFn) ProcessElement(ctx context.Context, sh Shard, facts, merged func(*[]byte) bool, emit func(string)) error {
-	m, p, err := model(ctx, fn.Job, fn.Schema, facts, merged)
+func (fn *encodeFn) ProcessElement(ctx context.Context, sh Shard, facts, merged func(*[]byte) bool, before func(int) func(*[]byte) bool, emit func(string)) error {
+	mo, err := model(ctx, fn.Job, fn.Schema, facts, merged)
 	if err != nil {
 		return err
+	}
+	m, opt := mo.m, encodeOptions(mo.plan, sh)
+	if m.Spec.Scheme == method.Ordered {
+		var parts [][]byte
+		var b []byte
+		for it := before(sh.Index); it(&b); b = nil {
+			parts = append(parts, b)
+		}
+		if opt.Before, err = mo.plan.Before(mo.schema, parts, pipeline.FitOptions{}); err != nil {
+			return fmt.Errorf("%s: the statistics of the shards before it: %w", sh.Path, err)
+		}
 	}
 	final := partName(fn.Out, sh.Index, fn.Job.Format)
 	removeStale(final)
@@ -272,7 +321,7 @@ func (fn *encodeFn) ProcessElement(ctx context.Context, sh Shard, facts, merged 
 		if err != nil {
 			return err
 		}
-		if _, err := m.Encode(r, w, encodeOptions(p, sh)); err != nil {
+		if _, err := m.Encode(r, w, opt); err != nil {
 			w.Abort()
 			return err
 		}
@@ -362,10 +411,11 @@ type tablesFn struct {
 }
 
 func (fn *tablesFn) ProcessElement(ctx context.Context, _ int, facts, merged func(*[]byte) bool, emit func(string)) error {
-	m, _, err := model(ctx, fn.Job, fn.Schema, facts, merged)
+	mo, err := model(ctx, fn.Job, fn.Schema, facts, merged)
 	if err != nil {
 		return err
 	}
+	m := mo.m
 	if !strings.Contains(fn.Tables, "://") {
 		if err := m.SaveTables(fn.Tables); err != nil {
 			return err

@@ -205,7 +205,7 @@ func runPrism(t testing.TB, job Job, shards []Shard, out, tables string) error {
 // process, over 8 Parquet shards of uneven sizes (one empty) writes the
 // encoded shards (concatenated in order) and the mapping tables of the
 // one-machine job over the same rows, byte for byte: binary and regression
-// targets.
+// targets, the k-fold and ordered schemes.
 func TestPipelineSameAsOneMachine(t *testing.T) {
 	sizes := testSizes()
 	data := t.TempDir()
@@ -217,9 +217,10 @@ func TestPipelineSameAsOneMachine(t *testing.T) {
 	jobs := []Job{
 		{Target: "late", Columns: "dest_postcode,sender_account,route", Methods: "target:eb+freq+topk:20+hash:256", FoldBy: "rows", Scheme: "kfold", Folds: 5, Seed: 3, Partitions: 16, Format: "csv"},
 		{Target: "cost", Methods: "dest_postcode=target:eb:prior=column:route+freq,sender_account=target:m=20,route=target:eb", FoldBy: "group=sender_account", Scheme: "kfold", Folds: 4, Seed: 1, Partitions: 8, Format: "csv"},
+		{Target: "cost", Columns: "dest_postcode,sender_account", Methods: "target:m=20+freq", FoldBy: "rows", Scheme: "ordered", Folds: 5, Seed: 2, Partitions: 8, Format: "csv"},
 	}
 	for i, job := range jobs {
-		t.Run(job.Target, func(t *testing.T) {
+		t.Run(job.Target+" "+job.Scheme, func(t *testing.T) {
 			dir := t.TempDir()
 			want := reference(t, job, data, filepath.Join(dir, "ref.csv"), filepath.Join(dir, "ref-tables"))
 			out, tables := filepath.Join(dir, "out"), filepath.Join(dir, "tables")

@@ -27,7 +27,12 @@ import (
 
 func init() {
 	register.DoFn3x1[context.Context, Shard, func([]byte), error](&surveyFn{})
-	register.DoFn4x1[context.Context, Shard, func(*[]byte) bool, func(int, []byte), error](&fitFn{})
+	register.DoFn3x1[context.Context, Work, func(int, []byte), error](&fitFn{})
+	register.DoFn4x0[int, func(*[]byte) bool, func(*Shard) bool, func(Work)](&joinFn{})
+	register.Function1x2(keyBytes)
+	register.Function1x2(keyShard)
+	register.Emitter1[Work]()
+	register.Iter1[Shard]()
 	register.DoFn6x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func([]byte), func(int, []byte), error](&mergeFn{})
 	register.DoFn6x1[context.Context, Shard, func(*[]byte) bool, func(*[]byte) bool, func(int) func(*[]byte) bool, func(string), error](&encodeFn{})
 	register.DoFn5x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func(string), error](&tablesFn{})
@@ -38,6 +43,7 @@ func init() {
 	register.Emitter2[int, []byte]()
 	register.Iter1[[]byte]()
 	beam.RegisterType(typeOf[Shard]())
+	beam.RegisterType(typeOf[Work]())
 }
 
 // Build adds the sharded encoding job to the pipeline at s: every shard's
@@ -58,7 +64,12 @@ func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PColl
 	// bundle and run the shards one after another.
 	sc := beam.Reshuffle(s, beam.CreateList(s, shards))
 	facts := beam.ParDo(s.Scope("survey"), &surveyFn{Job: job}, sc)
-	partials := beam.ParDo(s.Scope("fit"), &fitFn{Job: job, Schema: shards[0].Path}, sc, beam.SideInput{Input: facts})
+	// Stage 1 takes every shard's facts in its main input, not as a side
+	// input: prism's scheduler loops without pause while a stage that
+	// reads a side input has a bundle in progress.
+	joined := beam.CoGroupByKey(s, beam.ParDo(s, keyBytes, facts), beam.ParDo(s, keyShard, sc))
+	work := beam.Reshuffle(s, beam.ParDo(s.Scope("join"), &joinFn{}, joined))
+	partials := beam.ParDo(s.Scope("fit"), &fitFn{Job: job, Schema: shards[0].Path}, work)
 	merged, before := beam.ParDo2(s.Scope("merge"), &mergeFn{Job: job, Schema: shards[0].Path}, beam.GroupByKey(s, partials), beam.SideInput{Input: facts})
 	written := beam.ParDo(s.Scope("encode"), &encodeFn{Job: job, Schema: shards[0].Path, Out: out}, sc,
 		beam.SideInput{Input: facts}, beam.SideInput{Input: merged}, beam.SideInput{Input: before})
@@ -149,8 +160,46 @@ type fitFn struct {
 	Schema string // the shard whose schema the plan takes
 }
 
-func (fn *fitFn) ProcessElement(ctx context.Context, sh Shard, facts func(*[]byte) bool, emit func(int, []byte)) error {
-	pl, err := planOf(ctx, fn.Job, fn.Schema, facts)
+// Work is a shard and every shard's facts.
+type Work struct {
+	Shard Shard
+	Facts [][]byte
+}
+
+func keyBytes(b []byte) (int, []byte) { return 0, b }
+func keyShard(sh Shard) (int, Shard)  { return 0, sh }
+
+// joinFn gives every shard the facts of all.
+type joinFn struct{}
+
+func (fn *joinFn) ProcessElement(_ int, facts func(*[]byte) bool, shards func(*Shard) bool, emit func(Work)) {
+	var all [][]byte
+	var b []byte
+	for facts(&b) {
+		all = append(all, slices.Clone(b))
+	}
+	var sh Shard
+	for shards(&sh) {
+		emit(Work{Shard: sh, Facts: all})
+	}
+}
+
+// iterOf iterates over bs as a side input would.
+func iterOf(bs [][]byte) func(*[]byte) bool {
+	i := 0
+	return func(b *[]byte) bool {
+		if i == len(bs) {
+			return false
+		}
+		*b = bs[i]
+		i++
+		return true
+	}
+}
+
+func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, []byte)) error {
+	sh := w.Shard
+	pl, err := planOf(ctx, fn.Job, fn.Schema, iterOf(w.Facts))
 	if err != nil {
 		return err
 	}

@@ -32,6 +32,7 @@ type Job struct {
 	Partitions                                              int    // a power of two
 	Format                                                  string // of the encoded shards: parquet or csv
 	Run                                                     string // this run's id (Build), which keys the workers' models
+	Stats                                                   string // the staging folder of the merged statistics (Build)
 }
 
 // Spec parses the job.

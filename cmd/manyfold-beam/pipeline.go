@@ -3,7 +3,6 @@ package main
 import (
 	"bytes"
 	"context"
-	"encoding/binary"
 	"encoding/gob"
 	"fmt"
 	"math/rand/v2"
@@ -27,58 +26,79 @@ import (
 
 func init() {
 	register.DoFn3x1[context.Context, Shard, func([]byte), error](&surveyFn{})
-	register.DoFn3x1[context.Context, Work, func(int, []byte), error](&fitFn{})
+	register.DoFn3x1[context.Context, Work, func(int, Piece), error](&fitFn{})
 	register.DoFn4x0[int, func(*[]byte) bool, func(*Shard) bool, func(Work)](&joinFn{})
+	register.DoFn4x0[int, func(*string) bool, func(*Work) bool, func(Work)](&statsJoinFn{})
 	register.Function1x2(keyBytes)
 	register.Function1x2(keyShard)
+	register.Function1x2(keyString)
+	register.Function1x2(keyWork)
 	register.Emitter1[Work]()
+	register.Emitter2[int, Piece]()
 	register.Iter1[Shard]()
-	register.DoFn6x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func([]byte), func(int, []byte), error](&mergeFn{})
-	register.DoFn6x1[context.Context, Shard, func(*[]byte) bool, func(*[]byte) bool, func(int) func(*[]byte) bool, func(string), error](&encodeFn{})
-	register.DoFn5x1[context.Context, int, func(*[]byte) bool, func(*[]byte) bool, func(string), error](&tablesFn{})
+	register.Iter1[Work]()
+	register.Iter1[Piece]()
+	register.DoFn4x1[context.Context, int, func(*Piece) bool, func(string), error](&mergeFn{})
+	register.DoFn3x1[context.Context, Work, func(string), error](&encodeFn{})
 	register.DoFn3x1[context.Context, int, func(*string) bool, error](&finishFn{})
 	register.Iter1[string]()
 	register.Emitter1[[]byte]()
 	register.Emitter1[string]()
-	register.Emitter2[int, []byte]()
 	register.Iter1[[]byte]()
 	beam.RegisterType(typeOf[Shard]())
 	beam.RegisterType(typeOf[Work]())
+	beam.RegisterType(typeOf[Piece]())
 }
 
 // Build adds the sharded encoding job to the pipeline at s: every shard's
 // encoded rows into out (part-NNNNN.EXT, one file a shard, in the shards'
 // order), the mapping tables into tables. It returns the paths written.
 //
-//	shards -> Reshuffle -> survey -> facts (side input of what follows)
-//	shards -> fit -> (partition, partial) -> GroupByKey -> merge -> merged (side input)
-//	                                                           \-> (shard, before) (side input, ordered scheme)
-//	shards -> encode (facts, merged, before) -> out/part-NNNNN.EXT
-//	one    -> tables (facts, merged) -> tables
+//	shards -> Reshuffle -> survey -> facts
+//	(facts, shards) -> CoGroupByKey -> work: a shard and every shard's facts -> Reshuffle
+//	work -> fit -> (partition, piece) -> GroupByKey -> merge -> out/_stats-RUN/ files
+//	(their paths, work) -> CoGroupByKey -> work with the paths, and one for the tables -> Reshuffle
+//	work -> encode -> out/part-NNNNN.EXT, or the tables
+//	every path written (side input) -> finish
+//
+// No stage that runs long reads a side input: prism's scheduler loops
+// without pause while a stage that reads side inputs has a bundle in
+// progress (at 10M rows it took a core of the two). What a stage needs of
+// the stages before it comes in its main input, through a CoGroupByKey
+// (which also waits for all of them); the merged statistics, hundreds of
+// megabytes, are files in a staging folder that stage 2 reads, removed
+// once every output is written.
 func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PCollection {
 	// A run of its own: a worker process kept for another run (or a test
 	// that runs the pipeline again over rewritten files) never takes this
 	// run's model for that one's.
 	job.Run = fmt.Sprintf("%x-%x", time.Now().UnixNano(), rand.Uint64())
+	job.Stats = joinPath(out, "_stats-"+job.Run)
 	// Without a Reshuffle a runner may fuse the whole graph into one
 	// bundle and run the shards one after another.
 	sc := beam.Reshuffle(s, beam.CreateList(s, shards))
 	facts := beam.ParDo(s.Scope("survey"), &surveyFn{Job: job}, sc)
-	// Stage 1 takes every shard's facts in its main input, not as a side
-	// input: prism's scheduler loops without pause while a stage that
-	// reads a side input has a bundle in progress.
 	joined := beam.CoGroupByKey(s, beam.ParDo(s, keyBytes, facts), beam.ParDo(s, keyShard, sc))
 	work := beam.Reshuffle(s, beam.ParDo(s.Scope("join"), &joinFn{}, joined))
-	partials := beam.ParDo(s.Scope("fit"), &fitFn{Job: job, Schema: shards[0].Path}, work)
-	merged, before := beam.ParDo2(s.Scope("merge"), &mergeFn{Job: job, Schema: shards[0].Path}, beam.GroupByKey(s, partials), beam.SideInput{Input: facts})
-	written := beam.ParDo(s.Scope("encode"), &encodeFn{Job: job, Schema: shards[0].Path, Out: out}, sc,
-		beam.SideInput{Input: facts}, beam.SideInput{Input: merged}, beam.SideInput{Input: before})
-	saved := beam.ParDo(s.Scope("tables"), &tablesFn{Job: job, Schema: shards[0].Path, Tables: tables}, beam.Create(s, 0),
-		beam.SideInput{Input: facts}, beam.SideInput{Input: merged})
-	// Once every shard is written: the temporary files of bundles that
-	// failed, or of attempts a runner abandoned, are removed.
+	pieces := beam.ParDo(s.Scope("fit"), &fitFn{Job: job, Schema: shards[0].Path}, work)
+	stats := beam.ParDo(s.Scope("merge"), &mergeFn{Job: job, Schema: shards[0].Path}, beam.GroupByKey(s, pieces))
+	ready := beam.CoGroupByKey(s, beam.ParDo(s, keyString, stats), beam.ParDo(s, keyWork, work))
+	stage2 := beam.Reshuffle(s, beam.ParDo(s.Scope("join stats"), &statsJoinFn{}, ready))
+	written := beam.ParDo(s.Scope("encode"), &encodeFn{Job: job, Schema: shards[0].Path, Out: out, Tables: tables}, stage2)
+	// Once every output is written: the temporary files of bundles that
+	// failed, or of attempts a runner abandoned, are removed, and the
+	// staging folder.
 	beam.ParDo0(s.Scope("finish"), &finishFn{Out: out}, beam.Create(s, 0), beam.SideInput{Input: written})
-	return beam.Flatten(s, written, saved)
+	return written
+}
+
+// joinPath joins a folder (local, or a URL of Beam's filesystems) and a
+// name.
+func joinPath(dir, name string) string {
+	if strings.Contains(dir, "://") {
+		return strings.TrimSuffix(dir, "/") + "/" + name
+	}
+	return filepath.Join(dir, name)
 }
 
 // surveyFn is stage 0: a shard's facts (pipeline.Survey), as JSON.
@@ -131,7 +151,7 @@ type planned struct {
 }
 
 // planOf rebuilds the job's plan on a worker from every shard's facts
-// (the side input).
+// (as stage 0 gave them).
 func planOf(ctx context.Context, job Job, schemaPath string, facts func(*[]byte) bool) (planned, error) {
 	fs, err := readFacts(facts)
 	if err != nil {
@@ -160,14 +180,50 @@ type fitFn struct {
 	Schema string // the shard whose schema the plan takes
 }
 
-// Work is a shard and every shard's facts.
+// Work is what a worker needs of the stages before it to fit or encode
+// a shard: every shard's facts and, for stage 2, the merged statistics'
+// files (Stats); Tables marks the element that writes the mapping tables.
 type Work struct {
-	Shard Shard
-	Facts [][]byte
+	Shard  Shard
+	Facts  [][]byte
+	Stats  []string
+	Tables bool
 }
 
-func keyBytes(b []byte) (int, []byte) { return 0, b }
-func keyShard(sh Shard) (int, Shard)  { return 0, sh }
+// Piece is a shard's partial of one partition, with every shard's facts
+// (from which the merge rebuilds the plan).
+type Piece struct {
+	Shard int
+	Facts [][]byte
+	Data  []byte
+}
+
+func keyBytes(b []byte) (int, []byte)  { return 0, b }
+func keyShard(sh Shard) (int, Shard)   { return 0, sh }
+func keyString(p string) (int, string) { return 0, p }
+func keyWork(w Work) (int, Work)       { return 0, w }
+
+// statsJoinFn gives every shard's work the merged statistics' files, and
+// adds the work of the mapping tables.
+type statsJoinFn struct{}
+
+func (fn *statsJoinFn) ProcessElement(_ int, paths func(*string) bool, work func(*Work) bool, emit func(Work)) {
+	var all []string
+	var p string
+	for paths(&p) {
+		all = append(all, p)
+	}
+	slices.Sort(all)
+	var w, last Work
+	for work(&w) {
+		w.Stats = all
+		emit(w)
+		last = w
+	}
+	if last.Facts != nil {
+		emit(Work{Facts: last.Facts, Stats: all, Tables: true})
+	}
+}
 
 // joinFn gives every shard the facts of all.
 type joinFn struct{}
@@ -197,7 +253,7 @@ func iterOf(bs [][]byte) func(*[]byte) bool {
 	}
 }
 
-func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, []byte)) error {
+func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, Piece)) error {
 	sh := w.Shard
 	pl, err := planOf(ctx, fn.Job, fn.Schema, iterOf(w.Facts))
 	if err != nil {
@@ -217,96 +273,139 @@ func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, []by
 		return err
 	}
 	for part, b := range parts {
-		if pl.sp.Scheme == method.Ordered {
-			// The merge orders the shards' partials: each after its
-			// shard's index.
-			b = append(binary.AppendUvarint(make([]byte, 0, len(b)+binary.MaxVarintLen64), uint64(sh.Index)), b...)
-		}
-		emit(part, b)
+		emit(part, Piece{Shard: sh.Index, Facts: w.Facts, Data: b})
 	}
 	return nil
 }
 
-// mergeFn merges one partition's partials from every shard. For the
-// ordered scheme it also gives each shard the statistics of the shards
-// before it in the partition (pipeline.Preceding), keyed by the shard's
-// index.
+// mergeFn merges one partition's partials from every shard into the
+// file STATS/merged-PPPPP. For the ordered scheme it also gives each shard
+// the statistics of the shards before it in the partition
+// (pipeline.Preceding), in STATS/before-SSSSS-PPPPP. It emits the merged
+// file's path.
 type mergeFn struct {
 	Job    Job
 	Schema string
 }
 
-func (fn *mergeFn) ProcessElement(ctx context.Context, part int, partials func(*[]byte) bool, facts func(*[]byte) bool, emit func([]byte), emitBefore func(int, []byte)) error {
-	pl, err := planOf(ctx, fn.Job, fn.Schema, facts)
-	if err != nil {
-		return err
-	}
-	ordered := pl.sp.Scheme == method.Ordered
+func (fn *mergeFn) ProcessElement(ctx context.Context, part int, pieces func(*Piece) bool, emit func(string)) error {
 	var all [][]byte
-	var byShard [][]byte // ordered: the shards' partials by index
-	var b []byte
-	for partials(&b) {
-		if !ordered {
-			all = append(all, slices.Clone(b))
-			continue
+	var byShard [][]byte // the shards' partials by index
+	var facts [][]byte
+	var pc Piece
+	for pieces(&pc) {
+		facts = pc.Facts
+		if pc.Shard < 0 || pc.Shard > 1<<30 {
+			return fmt.Errorf("partition %d: a partial of shard %d", part, pc.Shard)
 		}
-		i, k := binary.Uvarint(b)
-		if k <= 0 || i >= uint64(len(pl.plan.First)) {
-			return fmt.Errorf("partition %d: a partial without its shard's index", part)
-		}
-		for len(byShard) <= int(i) {
+		for len(byShard) <= pc.Shard {
 			byShard = append(byShard, nil)
 		}
-		if byShard[i] != nil {
-			return fmt.Errorf("partition %d: shard %d's partial given twice", part, i)
+		if byShard[pc.Shard] != nil {
+			return fmt.Errorf("partition %d: shard %d's partial given twice", part, pc.Shard)
 		}
-		byShard[i] = slices.Clone(b[k:])
-		all = append(all, byShard[i])
+		byShard[pc.Shard] = pc.Data
+		all = append(all, pc.Data)
+		pc = Piece{}
+	}
+	pl, err := planOf(ctx, fn.Job, fn.Schema, iterOf(facts))
+	if err != nil {
+		return err
 	}
 	m, err := pipeline.MergePartials(pl.plan, pl.schema, all, pipeline.FitOptions{})
 	if err != nil {
 		return fmt.Errorf("partition %d: %w", part, err)
 	}
-	emit(m)
-	if ordered {
-		byShard = append(byShard, make([][]byte, len(pl.plan.First)-len(byShard))...)
+	if pl.sp.Scheme == method.Ordered {
+		byShard = append(byShard, make([][]byte, max(0, len(pl.plan.First)-len(byShard)))...)
 		before, err := pipeline.Preceding(pl.plan, pl.schema, byShard, pipeline.FitOptions{})
 		if err != nil {
 			return fmt.Errorf("partition %d: %w", part, err)
 		}
 		for i, b := range before {
-			emitBefore(i, b)
+			if err := writeAll(ctx, beforeName(fn.Job.Stats, i, part), b); err != nil {
+				return err
+			}
 		}
 	}
+	name := joinPath(fn.Job.Stats, fmt.Sprintf("merged-%05d", part))
+	if err := writeAll(ctx, name, m); err != nil {
+		return err
+	}
+	emit(name)
 	return nil
 }
 
-// model returns the model assembled from the merged partitions, once per
-// worker for the same job and statistics.
-func model(ctx context.Context, job Job, schemaPath string, factsIter, merged func(*[]byte) bool) (*modelOnce, error) {
-	facts, err := readFacts(factsIter)
+// beforeName is the file of the statistics before shard i in partition
+// part (the ordered scheme).
+func beforeName(stats string, i, part int) string {
+	return joinPath(stats, fmt.Sprintf("before-%05d-%05d", i, part))
+}
+
+// writeAll writes data as the file name, through a temporary name and a
+// rename (a retried bundle writes the same bytes again).
+func writeAll(ctx context.Context, name string, data []byte) error {
+	return writeFile(name, func(p string) error {
+		f, err := os.CreateTemp(filepath.Dir(p), "."+filepath.Base(p)+".tmp-*")
+		if err != nil {
+			return err
+		}
+		if _, err := f.Write(data); err != nil {
+			f.Close()
+			os.Remove(f.Name())
+			return err
+		}
+		if err := f.Close(); err != nil {
+			os.Remove(f.Name())
+			return err
+		}
+		if err := os.Rename(f.Name(), p); err != nil {
+			os.Remove(f.Name())
+			return err
+		}
+		return nil
+	})
+}
+
+// readAll reads a file, local or of Beam's filesystems.
+func readAll(ctx context.Context, name string) ([]byte, error) {
+	if !strings.Contains(name, "://") {
+		return os.ReadFile(name)
+	}
+	fs, err := filesystem.New(ctx, name)
 	if err != nil {
 		return nil, err
 	}
-	// The key: the job, its first shard and every shard's facts. Only the
-	// first bundle of a worker reads the merged statistics (a side input
-	// is fetched as it is iterated: hundreds of megabytes at 10M rows).
+	defer fs.Close()
+	return filesystem.Read(ctx, fs, name)
+}
+
+// model returns the model assembled from the merged partitions' files,
+// once per worker for the same job and facts.
+func model(ctx context.Context, job Job, schemaPath string, w Work) (*modelOnce, error) {
+	facts, err := readFacts(iterOf(w.Facts))
+	if err != nil {
+		return nil, err
+	}
+	// The key: the job (its run among its fields), its first shard and
+	// every shard's facts.
 	slices.SortFunc(facts, func(a, b ShardFacts) int { return a.Index - b.Index })
 	var kb bytes.Buffer
 	gob.NewEncoder(&kb).Encode(struct {
 		Job    Job
 		Schema string
 		Facts  []ShardFacts
-	}{job, schemaPath, facts})
+		Stats  []string
+	}{job, schemaPath, facts, w.Stats})
 	key := fmt.Sprintf("%x", xxhash.Sum64(kb.Bytes()))
 	v, _ := models.LoadOrStore(key, &modelOnce{})
 	mo := v.(*modelOnce)
 	mo.once.Do(func() {
-		var parts [][]byte
-		var b []byte
-		for merged(&b) {
-			parts = append(parts, b) // each element decoded into a slice of its own
-			b = nil
+		parts := make([][]byte, len(w.Stats))
+		for i, p := range w.Stats {
+			if parts[i], mo.err = readAll(ctx, p); mo.err != nil {
+				return
+			}
 		}
 		var pl planned
 		if pl, mo.err = planFrom(ctx, job, schemaPath, facts); mo.err != nil {
@@ -326,6 +425,7 @@ type encodeFn struct {
 	Job    Job
 	Schema string
 	Out    string
+	Tables string
 }
 
 // partName is the encoded file of shard i.
@@ -337,17 +437,22 @@ func partName(out string, i int, format string) string {
 	return filepath.Join(out, name)
 }
 
-func (fn *encodeFn) ProcessElement(ctx context.Context, sh Shard, facts, merged func(*[]byte) bool, before func(int) func(*[]byte) bool, emit func(string)) error {
-	mo, err := model(ctx, fn.Job, fn.Schema, facts, merged)
+func (fn *encodeFn) ProcessElement(ctx context.Context, w Work, emit func(string)) error {
+	mo, err := model(ctx, fn.Job, fn.Schema, w)
 	if err != nil {
 		return err
 	}
+	if w.Tables {
+		return saveTables(ctx, mo.m, fn.Tables, emit)
+	}
+	sh := w.Shard
 	m, opt := mo.m, encodeOptions(mo.plan, sh)
 	if m.Spec.Scheme == method.Ordered {
-		var parts [][]byte
-		var b []byte
-		for it := before(sh.Index); it(&b); b = nil {
-			parts = append(parts, b)
+		parts := make([][]byte, fn.Job.Partitions)
+		for p := range parts {
+			if parts[p], err = readAll(ctx, beforeName(fn.Job.Stats, sh.Index, p)); err != nil {
+				return err
+			}
 		}
 		if opt.Before, err = mo.plan.Before(mo.schema, parts, pipeline.FitOptions{}); err != nil {
 			return fmt.Errorf("%s: the statistics of the shards before it: %w", sh.Path, err)
@@ -399,9 +504,10 @@ func removeStale(final string) {
 	}
 }
 
-// finishFn runs once every shard is written (its side input is their
+// finishFn runs once every output is written (its side input is their
 // paths): it removes the temporary files of attempts that failed or were
-// abandoned.
+// abandoned, and the staging folders of the merged statistics: this run's
+// and those of runs that failed before their end.
 type finishFn struct{ Out string }
 
 func (fn *finishFn) ProcessElement(ctx context.Context, _ int, written func(*string) bool) error {
@@ -409,6 +515,33 @@ func (fn *finishFn) ProcessElement(ctx context.Context, _ int, written func(*str
 	for written(&p) {
 		if strings.HasPrefix(filepath.Base(p), "part-") {
 			removeStale(p)
+		}
+	}
+	if !strings.Contains(fn.Out, "://") {
+		stale, _ := filepath.Glob(filepath.Join(fn.Out, "_stats-*"))
+		for _, d := range stale {
+			if err := os.RemoveAll(d); err != nil {
+				return err
+			}
+		}
+		return nil
+	}
+	fs, err := filesystem.New(ctx, fn.Out)
+	if err != nil {
+		return err
+	}
+	defer fs.Close()
+	rm, ok := fs.(filesystem.Remover)
+	if !ok {
+		return nil // left for the store's lifecycle rules
+	}
+	names, err := fs.List(ctx, joinPath(fn.Out, "_stats-*/*"))
+	if err != nil {
+		return err
+	}
+	for _, n := range names {
+		if err := rm.Remove(ctx, n); err != nil {
+			return err
 		}
 	}
 	return nil
@@ -452,24 +585,14 @@ func failOnce(final string) bool {
 	return true
 }
 
-// tablesFn writes the mapping tables from the assembled model.
-type tablesFn struct {
-	Job    Job
-	Schema string
-	Tables string
-}
-
-func (fn *tablesFn) ProcessElement(ctx context.Context, _ int, facts, merged func(*[]byte) bool, emit func(string)) error {
-	mo, err := model(ctx, fn.Job, fn.Schema, facts, merged)
-	if err != nil {
-		return err
-	}
-	m := mo.m
-	if !strings.Contains(fn.Tables, "://") {
-		if err := m.SaveTables(fn.Tables); err != nil {
+// saveTables writes the mapping tables of the assembled model into
+// tables, and emits their folder.
+func saveTables(ctx context.Context, m *pipeline.Model, tables string, emit func(string)) error {
+	if !strings.Contains(tables, "://") {
+		if err := m.SaveTables(tables); err != nil {
 			return err
 		}
-		emit(fn.Tables)
+		emit(tables)
 		return nil
 	}
 	// Another filesystem: the tables written locally, then copied, the
@@ -490,7 +613,7 @@ func (fn *tablesFn) ProcessElement(ctx context.Context, _ int, facts, merged fun
 	slices.SortFunc(entries, func(a, b os.DirEntry) int {
 		return boolInt(a.Name() == "manifest.json") - boolInt(b.Name() == "manifest.json")
 	})
-	fs, err := filesystem.New(ctx, fn.Tables)
+	fs, err := filesystem.New(ctx, tables)
 	if err != nil {
 		return err
 	}
@@ -500,11 +623,11 @@ func (fn *tablesFn) ProcessElement(ctx context.Context, _ int, facts, merged fun
 		if err != nil {
 			return err
 		}
-		if err := filesystem.Write(ctx, fs, strings.TrimSuffix(fn.Tables, "/")+"/"+path.Base(e.Name()), data); err != nil {
+		if err := filesystem.Write(ctx, fs, strings.TrimSuffix(tables, "/")+"/"+path.Base(e.Name()), data); err != nil {
 			return err
 		}
 	}
-	emit(fn.Tables)
+	emit(tables)
 	return nil
 }
 

@@ -67,72 +67,103 @@ func (s *Stats) AppendPartial(b []byte, part, parts int, extra func(b []byte, l 
 
 // Partials returns the partial form of every partition of parts (a power
 // of two) at once, each level's partition computed once: out[p] is
-// AppendPartial(nil, p, parts, extra).
+// AppendPartial(nil, p, parts, extra). The levels are read once, in slot
+// order (the statistics' memory in order), each appended to its
+// partition's bytes: reading a partition's levels at a time would jump
+// over the memory of all the others, parts times over.
 func (s *Stats) Partials(parts int, extra func(b []byte, l int) []byte) [][]byte {
-	byPart := make([][]int32, parts)
+	at := make([]int32, s.n) // each level's partition, -1 for none
+	count, keys := make([]int, parts), make([]int, parts)
 	for l := 0; l < s.n; l++ {
+		at[l] = -1
 		if s.RowCount(l) > 0 {
-			p := Partition(s.Bytes(l), l == 0, parts)
-			byPart[p] = append(byPart[p], int32(l))
+			k := s.Bytes(l)
+			p := Partition(k, l == 0, parts)
+			at[l] = int32(p)
+			count[p]++
+			keys[p] += len(k)
 		}
 	}
 	out := make([][]byte, parts)
-	for p, ls := range byPart {
-		out[p] = s.appendLevels(nil, ls, extra)
+	for p := range out {
+		out[p] = s.appendHeader(make([]byte, 0, s.partialSize(count[p], keys[p])), count[p])
+	}
+	var scratch []byte
+	for l, p := range at {
+		if p >= 0 {
+			out[p], scratch = s.appendLevel(out[p], l, extra, scratch)
+		}
 	}
 	return out
+}
+
+// partialSize returns room for the partial form of n levels of keys
+// bytes in all: a growing slice would copy itself again and again. Per
+// level its key, counts and a cell or two (a fold and its class counts,
+// or n and two exact sums): a nearly unique id's levels have one, a
+// postcode's more grow it.
+func (s *Stats) partialSize(n, keys int) int {
+	per := 10 + 1 + s.Classes
+	if s.Task == Regression {
+		per = 10 + 40
+	}
+	return 32 + keys + n*per
 }
 
 // AppendLevels appends the partial form of the levels ls (slots with
 // rows), in that order, without extra bytes: statistics of some levels,
 // as the rows before a shard are sent to it (pipeline.Preceding).
-func (s *Stats) AppendLevels(b []byte, ls []int32) []byte { return s.appendLevels(b, ls, nil) }
-
-// appendLevels appends the partial form of the levels ls.
-func (s *Stats) appendLevels(b []byte, ls []int32, extra func(b []byte, l int) []byte) []byte {
-	// Room for every level at once (a growing slice copies itself again
-	// and again): its key, counts and a cell or two.
-	// one cell: a fold and its class counts, or n and two exact sums (a
-	// nearly unique id's levels have one; a postcode's more grow it).
-	per := 10 + 1 + s.Classes
-	if s.Task == Regression {
-		per = 10 + 40
-	}
+func (s *Stats) AppendLevels(b []byte, ls []int32) []byte {
 	var keys int
 	for _, l := range ls {
 		keys += len(s.Bytes(int(l)))
 	}
-	b = slices.Grow(b, 32+keys+len(ls)*per)
+	b = s.appendHeader(slices.Grow(b, s.partialSize(len(ls), keys)), len(ls))
+	for _, l := range ls {
+		b, _ = s.appendLevel(b, int(l), nil, nil)
+	}
+	return b
+}
+
+// appendHeader appends the partial form's header, for n levels.
+func (s *Stats) appendHeader(b []byte, n int) []byte {
 	b = append(b, partialMagic...)
 	b = append(b, byte(s.Task))
 	b = binary.AppendUvarint(b, uint64(s.Folds))
 	b = binary.AppendUvarint(b, uint64(s.Classes))
 	b = binary.LittleEndian.AppendUint64(b, math.Float64bits(s.Origin))
-	b = binary.AppendUvarint(b, uint64(len(ls)))
-	var scratch []byte
-	for _, l32 := range ls {
-		l := int(l32)
-		if l == 0 {
-			b = append(b, 0)
-		} else {
-			k := s.Bytes(l)
-			b = binary.AppendUvarint(b, uint64(len(k))+1)
-			b = append(b, k...)
-		}
-		b = binary.AppendUvarint(b, s.rows.get(l))
-		b = s.appendCells(b, l)
-		scratch = scratch[:0]
-		if extra != nil {
-			scratch = extra(scratch, l)
-		}
-		b = binary.AppendUvarint(b, uint64(len(scratch)))
-		b = append(b, scratch...)
+	return binary.AppendUvarint(b, uint64(n))
+}
+
+// appendLevel appends level l in the partial form, with its extra bytes
+// (extra may be nil; scratch is their buffer, returned for reuse).
+func (s *Stats) appendLevel(b []byte, l int, extra func(b []byte, l int) []byte, scratch []byte) ([]byte, []byte) {
+	if l == 0 {
+		b = append(b, 0)
+	} else {
+		k := s.Bytes(l)
+		b = binary.AppendUvarint(b, uint64(len(k))+1)
+		b = append(b, k...)
 	}
-	return b
+	b = binary.AppendUvarint(b, s.rows.get(l))
+	b = s.appendCells(b, l)
+	scratch = scratch[:0]
+	if extra != nil {
+		scratch = extra(scratch, l)
+	}
+	b = binary.AppendUvarint(b, uint64(len(scratch)))
+	return append(b, scratch...), scratch
 }
 
 // appendCells appends the non-empty folds of level l.
 func (s *Stats) appendCells(b []byte, l int) []byte {
+	if s.Task != Regression {
+		if nr, wr := s.cls.cells(l); wr != nil {
+			return appendClassCells(b, wr, s.Classes)
+		} else {
+			return appendClassCells(b, nr, s.Classes)
+		}
+	}
 	filled := 0
 	for f := 0; f < s.Folds; f++ {
 		if s.cellRows(l, f) > 0 {
@@ -148,12 +179,6 @@ func (s *Stats) appendCells(b []byte, l int) []byte {
 			continue
 		}
 		b = binary.AppendUvarint(b, uint64(f))
-		if s.Task != Regression {
-			for c := 0; c < s.Classes; c++ {
-				b = binary.AppendUvarint(b, s.cls.get(l, f*s.Classes+c))
-			}
-			continue
-		}
 		b = binary.AppendUvarint(b, n)
 		sum, sq = exactsum.Sum{}, exactsum.Sum{}
 		s.exactCell(l, f, &sum, &sq)
@@ -161,6 +186,35 @@ func (s *Stats) appendCells(b []byte, l int) []byte {
 			buf = v.AppendBinary(buf[:0])
 			b = binary.AppendUvarint(b, uint64(len(buf)))
 			b = append(b, buf...)
+		}
+	}
+	return b
+}
+
+// appendClassCells appends the non-empty folds of a level's class counts
+// row (folds * classes cells, fold by fold).
+func appendClassCells[T uint8 | uint64](b []byte, row []T, classes int) []byte {
+	if classes == 0 {
+		return append(b, 0) // no classes: no cell
+	}
+	filled := 0
+	for f := 0; f+classes <= len(row); f += classes {
+		for _, v := range row[f : f+classes] {
+			if v != 0 {
+				filled++
+				break
+			}
+		}
+	}
+	b = binary.AppendUvarint(b, uint64(filled))
+	for f := 0; f+classes <= len(row); f += classes {
+		cell := row[f : f+classes]
+		if !slices.ContainsFunc(cell, func(v T) bool { return v != 0 }) {
+			continue
+		}
+		b = binary.AppendUvarint(b, uint64(f/classes))
+		for _, v := range cell {
+			b = binary.AppendUvarint(b, uint64(v))
 		}
 	}
 	return b

@@ -303,6 +303,25 @@ func (s *Stats) MergePartial(b []byte, extra func(l int, data []byte) error) err
 	return r.err
 }
 
+// PartialLevels returns the number of levels a partial declares, at most
+// what its bytes can hold (4 bytes a level), or 0 for bytes that are not
+// a partial: room a merge may reserve before it reads them.
+func PartialLevels(b []byte) int {
+	r := &partialReader{b: b}
+	if string(r.bytes(uint64(len(partialMagic)))) != string(partialMagic) {
+		return 0
+	}
+	r.bytes(1)
+	r.uvarint(math.MaxInt32)
+	r.uvarint(math.MaxInt32)
+	r.bytes(8)
+	n := r.uvarint(uint64(len(r.b)) / 4)
+	if r.err != nil {
+		return 0
+	}
+	return int(n)
+}
+
 // mergeLevel reads one level of a partial into s.
 func (s *Stats) mergeLevel(r *partialReader, origin float64, extra func(l int, data []byte) error) error {
 	key := r.uvarint(uint64(len(r.b)))

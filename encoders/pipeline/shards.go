@@ -588,38 +588,69 @@ func (b *Before) of(i int, c *Col) method.Before {
 var ErrShardPartial = errors.New("not partial statistics of this job")
 
 // gather merges partials into the statistics of the fitter's columns,
-// keeping each level's parent key (nest) in keys.
+// keeping each level's parent key (nest) in keys. Each column's level
+// table first makes room for the levels the partials declare (at most
+// what their bytes hold, and the plan's rows), so that it does not grow
+// again and again. Partials of one partition from many shards may repeat
+// levels: the room is then more than the levels, but never more than the
+// rows of the shards' levels in that partition.
 func (f *fitter) gather(partials [][]byte, keys [][][]byte) error {
+	byCol := make([][][]byte, len(f.all))
 	for pi, b := range partials {
-		if len(b) < len(shardMagic) || string(b[:len(shardMagic)]) != string(shardMagic) {
-			return fmt.Errorf("partial %d: %w", pi+1, ErrShardPartial)
+		cols, err := f.splitPartial(b)
+		if err != nil {
+			return fmt.Errorf("partial %d: %w", pi+1, err)
 		}
-		b = b[len(shardMagic):]
-		n, k := binary.Uvarint(b)
-		if k <= 0 || n != uint64(len(f.all)) {
-			return fmt.Errorf("partial %d: %w: %d columns, the job gathers %d", pi+1, ErrShardPartial, n, len(f.all))
+		for ci, col := range cols {
+			byCol[ci] = append(byCol[ci], col)
 		}
-		b = b[k:]
-		for ci, c := range f.all {
-			size, k := binary.Uvarint(b)
-			if k <= 0 || size > uint64(len(b)-k) {
-				return fmt.Errorf("partial %d, column %q: %w", pi+1, c.Name, ErrShardPartial)
-			}
-			col := b[k : k+int(size)]
-			b = b[k+int(size):]
-			var extra func(int, []byte) error
-			if c.nest != nil {
-				extra = func(l int, data []byte) error { return mergeParentKey(&keys[ci], l, data) }
-			}
+	}
+	for ci, c := range f.all {
+		n := c.St.NumLevels()
+		for _, col := range byCol[ci] {
+			n += colstats.PartialLevels(col)
+		}
+		if f.opt.TotalRows > 0 {
+			n = min(n, c.St.NumLevels()+int(f.opt.TotalRows)+1)
+		}
+		c.St.Levels.Reserve(n)
+		var extra func(int, []byte) error
+		if c.nest != nil {
+			extra = func(l int, data []byte) error { return mergeParentKey(&keys[ci], l, data) }
+		}
+		for pi, col := range byCol[ci] {
 			if err := c.St.MergePartial(col, extra); err != nil {
 				return fmt.Errorf("partial %d, column %q: %w: %w", pi+1, c.Name, ErrShardPartial, err)
 			}
 		}
-		if len(b) != 0 {
-			return fmt.Errorf("partial %d: %w: bytes after the last column", pi+1, ErrShardPartial)
-		}
 	}
 	return nil
+}
+
+// splitPartial returns the columns' partials of a shard's partial.
+func (f *fitter) splitPartial(b []byte) ([][]byte, error) {
+	if len(b) < len(shardMagic) || string(b[:len(shardMagic)]) != string(shardMagic) {
+		return nil, ErrShardPartial
+	}
+	b = b[len(shardMagic):]
+	n, k := binary.Uvarint(b)
+	if k <= 0 || n != uint64(len(f.all)) {
+		return nil, fmt.Errorf("%w: %d columns, the job gathers %d", ErrShardPartial, n, len(f.all))
+	}
+	b = b[k:]
+	cols := make([][]byte, len(f.all))
+	for ci, c := range f.all {
+		size, k := binary.Uvarint(b)
+		if k <= 0 || size > uint64(len(b)-k) {
+			return nil, fmt.Errorf("column %q: %w", c.Name, ErrShardPartial)
+		}
+		cols[ci] = b[k : k+int(size)]
+		b = b[k+int(size):]
+	}
+	if len(b) != 0 {
+		return nil, fmt.Errorf("%w: bytes after the last column", ErrShardPartial)
+	}
+	return cols, nil
 }
 
 // mixedKey marks a level whose rows had several parents.

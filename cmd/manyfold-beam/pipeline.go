@@ -190,12 +190,14 @@ type Work struct {
 	Tables bool
 }
 
-// Piece is a shard's partial of one partition, with every shard's facts
-// (from which the merge rebuilds the plan).
+// Piece is a shard's partial of one partition, as the file Path in the
+// staging folder, with every shard's facts (from which the merge rebuilds
+// the plan). The partials themselves do not travel in the elements: at 10M
+// rows, copying them through prism's data plane cost 4 s of CPU.
 type Piece struct {
 	Shard int
 	Facts [][]byte
-	Data  []byte
+	Path  string
 }
 
 func keyBytes(b []byte) (int, []byte)  { return 0, b }
@@ -273,7 +275,11 @@ func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, Piec
 		return err
 	}
 	for part, b := range parts {
-		emit(part, Piece{Shard: sh.Index, Facts: w.Facts, Data: b})
+		name := joinPath(fn.Job.Stats, fmt.Sprintf("partial-%05d-%05d", sh.Index, part))
+		if err := writeAll(ctx, name, b); err != nil {
+			return err
+		}
+		emit(part, Piece{Shard: sh.Index, Facts: w.Facts, Path: name})
 	}
 	return nil
 }
@@ -304,8 +310,12 @@ func (fn *mergeFn) ProcessElement(ctx context.Context, part int, pieces func(*Pi
 		if byShard[pc.Shard] != nil {
 			return fmt.Errorf("partition %d: shard %d's partial given twice", part, pc.Shard)
 		}
-		byShard[pc.Shard] = pc.Data
-		all = append(all, pc.Data)
+		b, err := readAll(ctx, pc.Path)
+		if err != nil {
+			return err
+		}
+		byShard[pc.Shard] = b
+		all = append(all, b)
 		pc = Piece{}
 	}
 	pl, err := planOf(ctx, fn.Job, fn.Schema, iterOf(facts))

@@ -213,16 +213,7 @@ func TestShardedOrderBy(t *testing.T) {
 			want, _ := os.ReadFile(wantOut)
 			shards := splitText(t, dir, text.String(), sizes)
 			sm, plan, opts := shardedRun(t, sp, shards, 4)
-			var got []byte
-			for i, p := range shards {
-				out := filepath.Join(dir, fmt.Sprintf("out-%d.csv", i))
-				encodeTo(t, sm, p, out, opts(i))
-				b, _ := os.ReadFile(out)
-				if i > 0 {
-					b = b[bytes.IndexByte(b, '\n')+1:]
-				}
-				got = append(got, b...)
-			}
+			got := encodeShards(t, sm, shards, opts, dir)
 			if !bytes.Equal(got, want) {
 				t.Errorf("the outputs differ from the one pass's%s", firstDiff(got, want))
 			}

@@ -288,16 +288,7 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 					parts = 64 // levels and their parents in another order than met
 				}
 				sm, _, opts := shardedRun(t, sp, shards, parts)
-				var got []byte
-				for i, p := range shards {
-					out := filepath.Join(sdir, fmt.Sprintf("out-%02d.csv", i))
-					encodeTo(t, sm, p, out, opts(i))
-					b, _ := os.ReadFile(out)
-					if i > 0 {
-						b = b[bytes.IndexByte(b, '\n')+1:] // the header once
-					}
-					got = append(got, b...)
-				}
+				got := encodeShards(t, sm, shards, opts, sdir)
 				if !bytes.Equal(got, want) {
 					t.Errorf("%d shards: the outputs differ from the one pass's (%d and %d bytes)%s", k, len(got), len(want), firstDiff(got, want))
 				}
@@ -309,6 +300,24 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 			}
 		})
 	}
+}
+
+// encodeShards runs stage 2 over every shard, each into a CSV file in
+// dir, and returns the outputs concatenated in shard order, the header
+// once.
+func encodeShards(t *testing.T, m *pipeline.Model, shards []string, opts func(int) pipeline.EncodeOptions, dir string) []byte {
+	t.Helper()
+	var got []byte
+	for i, p := range shards {
+		out := filepath.Join(dir, fmt.Sprintf("out-%02d.csv", i))
+		encodeTo(t, m, p, out, opts(i))
+		b, _ := os.ReadFile(out)
+		if i > 0 {
+			b = b[bytes.IndexByte(b, '\n')+1:]
+		}
+		got = append(got, b...)
+	}
+	return got
 }
 
 // withThreads returns a shard's encode options with 2 threads and the

@@ -28,7 +28,8 @@ func init() {
 	register.DoFn3x1[context.Context, Shard, func([]byte), error](&surveyFn{})
 	register.DoFn3x1[context.Context, Work, func(int, Piece), error](&fitFn{})
 	register.DoFn4x0[int, func(*[]byte) bool, func(*Shard) bool, func(Work)](&joinFn{})
-	register.DoFn4x0[int, func(*string) bool, func(*Work) bool, func(Work)](&statsJoinFn{})
+	register.DoFn5x0[int, func(*string) bool, func(*Work) bool, func(Work), func(Work)](&statsJoinFn{})
+	register.DoFn5x1[context.Context, int, func(*string) bool, func(*Work) bool, func(string), error](&tablesFn{})
 	register.Function1x2(keyBytes)
 	register.Function1x2(keyShard)
 	register.Function1x2(keyString)
@@ -58,7 +59,8 @@ func init() {
 //	(facts, shards) -> CoGroupByKey -> work: a shard and every shard's facts -> Reshuffle
 //	work -> fit -> (partition, piece) -> GroupByKey -> merge -> out/_stats-RUN/ files
 //	(their paths, work) -> CoGroupByKey -> work with the paths, and one for the tables -> Reshuffle
-//	work -> encode -> out/part-NNNNN.EXT, or the tables
+//	work -> encode -> out/part-NNNNN.EXT, and each shard's training scores in a file
+//	(their paths, the tables' work) -> CoGroupByKey -> tables (scores merged)
 //	every path written (side input) -> finish
 //
 // No stage that runs long reads a side input: prism's scheduler loops
@@ -83,13 +85,18 @@ func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PColl
 	pieces := beam.ParDo(s.Scope("fit"), &fitFn{Job: job, Schema: shards[0].Path}, work)
 	stats := beam.ParDo(s.Scope("merge"), &mergeFn{Job: job, Schema: shards[0].Path}, beam.GroupByKey(s, pieces))
 	ready := beam.CoGroupByKey(s, beam.ParDo(s, keyString, stats), beam.ParDo(s, keyWork, work))
-	stage2 := beam.Reshuffle(s, beam.ParDo(s.Scope("join stats"), &statsJoinFn{}, ready))
-	written := beam.ParDo(s.Scope("encode"), &encodeFn{Job: job, Schema: shards[0].Path, Out: out, Tables: tables}, stage2)
+	stage2, tablesWork := beam.ParDo2(s.Scope("join stats"), &statsJoinFn{}, ready)
+	written := beam.ParDo(s.Scope("encode"), &encodeFn{Job: job, Schema: shards[0].Path, Out: out}, beam.Reshuffle(s, stage2))
+	// The tables once every shard is encoded: their manifest records the
+	// training scores merged from the shards'.
+	done := beam.CoGroupByKey(s, beam.ParDo(s, keyString, written), beam.ParDo(s, keyWork, tablesWork))
+	saved := beam.ParDo(s.Scope("tables"), &tablesFn{Job: job, Schema: shards[0].Path, Tables: tables}, done)
+	all := beam.Flatten(s, written, saved)
 	// Once every output is written: the temporary files of bundles that
 	// failed, or of attempts a runner abandoned, are removed, and the
 	// staging folder.
-	beam.ParDo0(s.Scope("finish"), &finishFn{Out: out}, beam.Create(s, 0), beam.SideInput{Input: written})
-	return written
+	beam.ParDo0(s.Scope("finish"), &finishFn{Out: out}, beam.Create(s, 0), beam.SideInput{Input: all})
+	return all
 }
 
 // joinPath joins a folder (local, or a URL of Beam's filesystems) and a
@@ -206,10 +213,10 @@ func keyString(p string) (int, string) { return 0, p }
 func keyWork(w Work) (int, Work)       { return 0, w }
 
 // statsJoinFn gives every shard's work the merged statistics' files, and
-// adds the work of the mapping tables.
+// emits the work of the mapping tables apart.
 type statsJoinFn struct{}
 
-func (fn *statsJoinFn) ProcessElement(_ int, paths func(*string) bool, work func(*Work) bool, emit func(Work)) {
+func (fn *statsJoinFn) ProcessElement(_ int, paths func(*string) bool, work func(*Work) bool, emit, emitTables func(Work)) {
 	var all []string
 	var p string
 	for paths(&p) {
@@ -223,7 +230,7 @@ func (fn *statsJoinFn) ProcessElement(_ int, paths func(*string) bool, work func
 		last = w
 	}
 	if last.Facts != nil {
-		emit(Work{Facts: last.Facts, Stats: all, Tables: true})
+		emitTables(Work{Facts: last.Facts, Stats: all, Tables: true})
 	}
 }
 
@@ -435,7 +442,11 @@ type encodeFn struct {
 	Job    Job
 	Schema string
 	Out    string
-	Tables string
+}
+
+// scoresName is the file of shard i's training scores (ScoreState).
+func scoresName(stats string, i int) string {
+	return joinPath(stats, fmt.Sprintf("scores-%05d", i))
 }
 
 // partName is the encoded file of shard i.
@@ -451,9 +462,6 @@ func (fn *encodeFn) ProcessElement(ctx context.Context, w Work, emit func(string
 	mo, err := model(ctx, fn.Job, fn.Schema, w)
 	if err != nil {
 		return err
-	}
-	if w.Tables {
-		return saveTables(ctx, mo.m, fn.Tables, emit)
 	}
 	sh := w.Shard
 	m, opt := mo.m, encodeOptions(mo.plan, sh)
@@ -485,7 +493,16 @@ func (fn *encodeFn) ProcessElement(ctx context.Context, w Work, emit func(string
 		if err != nil {
 			return err
 		}
-		if _, err := m.Encode(r, w, opt); err != nil {
+		sum, err := m.Encode(r, w, opt)
+		if err != nil {
+			w.Abort()
+			return err
+		}
+		state, err := sum.ScoreState()
+		if err == nil {
+			err = writeAll(ctx, scoresName(fn.Job.Stats, sh.Index), state)
+		}
+		if err != nil {
 			w.Abort()
 			return err
 		}
@@ -595,11 +612,55 @@ func failOnce(final string) bool {
 	return true
 }
 
+// tablesFn writes the mapping tables once every shard is encoded, their
+// manifest with the training scores merged from the shards' files.
+type tablesFn struct {
+	Job    Job
+	Schema string
+	Tables string
+}
+
+func (fn *tablesFn) ProcessElement(ctx context.Context, _ int, _ func(*string) bool, work func(*Work) bool, emit func(string)) error {
+	var w Work
+	if !work(&w) {
+		return nil
+	}
+	mo, err := model(ctx, fn.Job, fn.Schema, w)
+	if err != nil {
+		return err
+	}
+	states := make([][]byte, len(mo.plan.First))
+	for i := range states {
+		if states[i], err = readAll(ctx, scoresName(fn.Job.Stats, i)); err != nil {
+			return err
+		}
+		if len(states[i]) == 0 {
+			states[i] = nil
+		}
+	}
+	scores, err := pipeline.MergeScores(states)
+	if err != nil {
+		return err
+	}
+	return saveTables(ctx, mo.m, scores, fn.Tables, emit)
+}
+
 // saveTables writes the mapping tables of the assembled model into
-// tables, and emits their folder.
-func saveTables(ctx context.Context, m *pipeline.Model, tables string, emit func(string)) error {
+// tables, the training scores in their manifest, and emits their folder.
+func saveTables(ctx context.Context, m *pipeline.Model, scores []*pipeline.Score, tables string, emit func(string)) error {
+	save := func(dir string) error {
+		st, err := m.StageTables(dir)
+		if err != nil {
+			return err
+		}
+		if err := st.RecordScores(scores); err != nil {
+			st.Abort()
+			return err
+		}
+		return st.Commit()
+	}
 	if !strings.Contains(tables, "://") {
-		if err := m.SaveTables(tables); err != nil {
+		if err := save(tables); err != nil {
 			return err
 		}
 		emit(tables)
@@ -613,7 +674,7 @@ func saveTables(ctx context.Context, m *pipeline.Model, tables string, emit func
 	}
 	defer os.RemoveAll(d)
 	local := filepath.Join(d, "t")
-	if err := m.SaveTables(local); err != nil {
+	if err := save(local); err != nil {
 		return err
 	}
 	entries, err := os.ReadDir(local)

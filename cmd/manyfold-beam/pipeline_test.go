@@ -112,9 +112,11 @@ func reference(t testing.TB, job Job, dir, out, tables string) []byte {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := m.SaveTables(tables); err != nil {
+	st, err := m.StageTables(tables) // as encode does: the training scores recorded after the pass
+	if err != nil {
 		t.Fatal(err)
 	}
+	defer st.Abort()
 	r, err = tableio.Open(dir, tableio.ReadOptions{})
 	if err != nil {
 		t.Fatal(err)
@@ -128,11 +130,18 @@ func reference(t testing.TB, job Job, dir, out, tables string) []byte {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, err := m.Encode(r, w, pipeline.EncodeOptions{File: dir, Threads: 2}); err != nil {
+	sum, err := m.Encode(r, w, pipeline.EncodeOptions{File: dir, Threads: 2})
+	if err != nil {
 		w.Abort()
 		t.Fatal(err)
 	}
 	if err := w.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	if err := st.RecordScores(sum.Scores); err != nil {
+		t.Fatal(err)
+	}
+	if err := st.Commit(); err != nil {
 		t.Fatal(err)
 	}
 	b, err := os.ReadFile(out)

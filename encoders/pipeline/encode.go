@@ -57,6 +57,8 @@ type Summary struct {
 	// Scores holds, after a training pass, each column's Score (nil for a
 	// column not scored), which StagedTables.RecordScores records.
 	Scores []*Score
+
+	scoring *trainingScores // the accumulators of Scores (ScoreState)
 }
 
 // outCol is one encoding's output columns and how to fill them: encoding

@@ -1,12 +1,16 @@
 package pipeline
 
 import (
+	"bytes"
+	"encoding/gob"
+	"errors"
 	"fmt"
 	"math"
 	"os"
 	"path/filepath"
 
 	"manyfold/encoders/colstats"
+	"manyfold/encoders/exactsum"
 	"manyfold/encoders/method"
 	"manyfold/internal/evaluate/metrics"
 	"manyfold/internal/strictjson"
@@ -18,7 +22,10 @@ import (
 // encoded value <column>_tmean (the Mann-Whitney form, ties counted one
 // half: Hanley and McNeil, Radiology 143, 1982; metrics.AUCCounts), for a
 // regression target its root mean squared error sqrt((1/N) Σ (tmean_i -
-// y_i)²) (metrics.SquaredErrors). A multi-class target is not scored.
+// y_i)²), the sum of squares exact (package exactsum) and rounded once, so
+// that it does not depend on the order of the rows (parts of a table
+// merge into the whole table's score: MergeScores). A multi-class target
+// is not scored.
 type Score struct {
 	Metric string  // "auc" or "rmse"
 	Value  float64 // NaN when it could not be computed (no row, one class)
@@ -65,9 +72,10 @@ type scoreAcc struct {
 	nneg    []float64
 	last    uint64 // the last value's bits and index: runs of one value skip the map
 	lastAt  int32
-	over    bool // more than maxScoreValues distinct values
-	se      metrics.SquaredErrors
-	classes int // rows of another class than the fitted ones are skipped
+	over    bool         // more than maxScoreValues distinct values
+	sq      exactsum.Sum // RMSE: Σ (v_i - y_i)², exactly
+	inf     bool         // RMSE: a square overflowed
+	classes int          // rows of another class than the fitted ones are skipped
 	rows    int64
 }
 
@@ -104,11 +112,19 @@ func (a *scoreAcc) add(v []float64, cls []int32, vals []float64) {
 	}
 	if a.metric == MetricRMSE {
 		for i, y := range vals {
-			if !math.IsNaN(y) {
-				a.se.Add(y, v[i])
+			if math.IsNaN(y) {
+				continue
 			}
+			a.rows++
+			d := v[i] - y
+			p, e := exactsum.TwoProduct(d, d) // d² = p + e exactly
+			if math.IsInf(p, 0) || math.IsNaN(p) {
+				a.inf = true
+				continue
+			}
+			a.sq.Add(p)
+			a.sq.Add(e)
 		}
-		a.rows = a.se.N
 		return
 	}
 	if a.over {
@@ -149,7 +165,15 @@ func (a *scoreAcc) score() *Score {
 	case a.at < 0 || a.over:
 		return nil
 	case a.metric == MetricRMSE:
-		return &Score{Metric: a.metric, Value: a.se.RMSE(), Rows: a.rows}
+		v := math.NaN()
+		switch {
+		case a.rows == 0:
+		case a.inf:
+			v = math.Inf(1)
+		default:
+			v = math.Sqrt(a.sq.Float64() / float64(a.rows))
+		}
+		return &Score{Metric: a.metric, Value: v, Rows: a.rows}
 	}
 	return &Score{Metric: a.metric, Value: metrics.AUCCounts(a.vals, a.npos, a.nneg), Rows: a.rows}
 }
@@ -202,6 +226,119 @@ func (ts *trainingScores) finish(sum *Summary) {
 	for ci := range ts.cols {
 		sum.Scores[ci] = ts.cols[ci].score()
 	}
+	sum.scoring = ts
+}
+
+// scoreState is the gob form of a pass's score accumulators (ScoreState).
+type scoreState struct{ Cols []colScore }
+
+type colScore struct {
+	At, Classes      int
+	Metric           string
+	Pos              int32
+	Over, Inf        bool
+	Rows             int64
+	Vals, Npos, Nneg []float64
+	Sq               []byte // exactsum's binary form
+}
+
+// ScoreState returns the accumulators of a training pass's scores (nil
+// when no column is scored), to be merged with those of the table's other
+// parts (MergeScores): the scores of a sharded run's shards, encoded each
+// on its own, merge into the scores one pass over the table gives.
+func (s *Summary) ScoreState() ([]byte, error) {
+	if s.scoring == nil {
+		return nil, nil
+	}
+	var st scoreState
+	for _, a := range s.scoring.cols {
+		st.Cols = append(st.Cols, colScore{At: a.at, Classes: a.classes, Metric: a.metric, Pos: a.pos, Over: a.over, Inf: a.inf,
+			Rows: a.rows, Vals: a.vals, Npos: a.npos, Nneg: a.nneg, Sq: a.sq.AppendBinary(nil)})
+	}
+	var buf bytes.Buffer
+	if err := gob.NewEncoder(&buf).Encode(st); err != nil {
+		return nil, err
+	}
+	return buf.Bytes(), nil
+}
+
+// MergeScores merges the score states of the parts of a table (ScoreState,
+// in any order; nil ones are skipped) into each column's Score: an AUC
+// from the union of the parts' rows by value, an RMSE from the sum of
+// their exact sums. nil when no part scored a column.
+func MergeScores(states [][]byte) ([]*Score, error) {
+	var cols []scoreAcc
+	for i, b := range states {
+		if b == nil {
+			continue
+		}
+		var st scoreState
+		if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&st); err != nil {
+			return nil, fmt.Errorf("the scores of part %d: %w", i+1, err)
+		}
+		if cols == nil {
+			cols = make([]scoreAcc, len(st.Cols))
+			for ci, c := range st.Cols {
+				cols[ci] = scoreAcc{at: c.At, metric: c.Metric, pos: c.Pos, classes: c.Classes, lastAt: -1, index: map[uint64]int32{}}
+			}
+		}
+		if len(st.Cols) != len(cols) {
+			return nil, fmt.Errorf("the scores of part %d: %d columns, not %d", i+1, len(st.Cols), len(cols))
+		}
+		for ci, c := range st.Cols {
+			if err := cols[ci].merge(c); err != nil {
+				return nil, fmt.Errorf("the scores of part %d, column %d: %w", i+1, ci+1, err)
+			}
+		}
+	}
+	if cols == nil {
+		return nil, nil
+	}
+	out := make([]*Score, len(cols))
+	for ci := range cols {
+		out[ci] = cols[ci].score()
+	}
+	return out, nil
+}
+
+// merge adds a part's accumulator to a.
+func (a *scoreAcc) merge(c colScore) error {
+	if c.At != a.at || c.Metric != a.metric || len(c.Npos) != len(c.Vals) || len(c.Nneg) != len(c.Vals) {
+		return errors.New("not the scores of the same columns")
+	}
+	if a.at < 0 {
+		return nil
+	}
+	a.rows += c.Rows
+	if a.metric == MetricRMSE {
+		var sq exactsum.Sum
+		if err := sq.Decode(c.Sq); err != nil {
+			return err
+		}
+		a.sq.AddSum(&sq)
+		a.inf = a.inf || c.Inf
+		return nil
+	}
+	if a.over || c.Over {
+		a.over, a.index, a.vals, a.npos, a.nneg = true, nil, nil, nil, nil
+		return nil
+	}
+	for i, v := range c.Vals {
+		k := math.Float64bits(v)
+		j, ok := a.index[k]
+		if !ok {
+			if len(a.vals) == maxScoreValues {
+				a.over, a.index, a.vals, a.npos, a.nneg = true, nil, nil, nil, nil
+				return nil
+			}
+			j = int32(len(a.vals))
+			a.index[k] = j
+			a.vals, a.npos, a.nneg = append(a.vals, v), append(a.npos, 0), append(a.nneg, 0)
+		}
+		a.npos[j] += c.Npos[i]
+		a.nneg[j] += c.Nneg[i]
+	}
+	return nil
 }
 
 // RecordScores records the training pass's scores (Summary.Scores, one per

@@ -6,6 +6,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -88,8 +89,9 @@ func open(t *testing.T, path string) table.Reader {
 	return r
 }
 
-// encodeTo encodes the table at path with m into a CSV file out.
-func encodeTo(t *testing.T, m *pipeline.Model, path, out string, opt pipeline.EncodeOptions) {
+// encodeTo encodes the table at path with m into a CSV file out and
+// returns the pass's summary.
+func encodeTo(t *testing.T, m *pipeline.Model, path, out string, opt pipeline.EncodeOptions) pipeline.Summary {
 	t.Helper()
 	r := open(t, path)
 	defer r.Close()
@@ -102,13 +104,15 @@ func encodeTo(t *testing.T, m *pipeline.Model, path, out string, opt pipeline.En
 		t.Fatal(err)
 	}
 	opt.File = path
-	if _, err := m.Encode(r, w, opt); err != nil {
+	sum, err := m.Encode(r, w, opt)
+	if err != nil {
 		w.Abort()
 		t.Fatalf("encode %s: %v", path, err)
 	}
 	if err := w.Commit(); err != nil {
 		t.Fatal(err)
 	}
+	return sum
 }
 
 // schemaOf returns the schema of the table at path.
@@ -273,7 +277,7 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 				t.Fatal(err)
 			}
 			wantOut := filepath.Join(dir, job.name+".csv")
-			encodeTo(t, m, whole, wantOut, pipeline.EncodeOptions{Threads: 2})
+			wantScores := encodeTo(t, m, whole, wantOut, pipeline.EncodeOptions{Threads: 2}).Scores
 			wantTables := filepath.Join(dir, job.name+".tables")
 			if err := m.SaveTables(wantTables); err != nil {
 				t.Fatal(err)
@@ -288,7 +292,8 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 					parts = 64 // levels and their parents in another order than met
 				}
 				sm, _, opts := shardedRun(t, sp, shards, parts)
-				got := encodeShards(t, sm, shards, opts, sdir)
+				got, scores := encodeShardsScored(t, sm, shards, opts, sdir)
+				sameScores(t, k, scores, wantScores)
 				if !bytes.Equal(got, want) {
 					t.Errorf("%d shards: the outputs differ from the one pass's (%d and %d bytes)%s", k, len(got), len(want), firstDiff(got, want))
 				}
@@ -306,18 +311,51 @@ func TestShardedFitSameAsOnePass(t *testing.T) {
 // dir, and returns the outputs concatenated in shard order, the header
 // once.
 func encodeShards(t *testing.T, m *pipeline.Model, shards []string, opts func(int) pipeline.EncodeOptions, dir string) []byte {
+	got, _ := encodeShardsScored(t, m, shards, opts, dir)
+	return got
+}
+
+// encodeShardsScored is encodeShards, and also returns the training
+// scores merged from the shards' (MergeScores).
+func encodeShardsScored(t *testing.T, m *pipeline.Model, shards []string, opts func(int) pipeline.EncodeOptions, dir string) ([]byte, []*pipeline.Score) {
 	t.Helper()
 	var got []byte
+	var states [][]byte
 	for i, p := range shards {
 		out := filepath.Join(dir, fmt.Sprintf("out-%02d.csv", i))
-		encodeTo(t, m, p, out, opts(i))
+		sum := encodeTo(t, m, p, out, opts(i))
+		st, err := sum.ScoreState()
+		if err != nil {
+			t.Fatal(err)
+		}
+		states = append(states, st)
 		b, _ := os.ReadFile(out)
 		if i > 0 {
 			b = b[bytes.IndexByte(b, '\n')+1:]
 		}
 		got = append(got, b...)
 	}
-	return got
+	slices.Reverse(states) // the order of the parts does not matter
+	scores, err := pipeline.MergeScores(states)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return got, scores
+}
+
+// sameScores checks that the training scores merged from k shards are
+// the one pass's, bit for bit.
+func sameScores(t *testing.T, k int, got, want []*pipeline.Score) {
+	t.Helper()
+	if len(got) != len(want) {
+		t.Fatalf("%d shards: %d scores, the one pass %d", k, len(got), len(want))
+	}
+	for i := range got {
+		g, w := got[i], want[i]
+		if (g == nil) != (w == nil) || g != nil && (g.Metric != w.Metric || g.Rows != w.Rows || math.Float64bits(g.Value) != math.Float64bits(w.Value)) {
+			t.Errorf("%d shards, column %d: score %+v, the one pass %+v", k, i, g, w)
+		}
+	}
 }
 
 // withThreads returns a shard's encode options with 2 threads and the

@@ -23,15 +23,28 @@ func TestFactsKeepLabelBytes(t *testing.T) {
 	if err := fn.ProcessElement(context.Background(), Shard{Index: 0, Path: path}, func(b []byte) { out = append(out, b) }); err != nil {
 		t.Fatal(err)
 	}
+	// Through the facts file the join writes and the workers read.
+	job.Stats = filepath.Join(dir, "_stats")
 	i := 0
-	facts, err := readFacts(func(b *[]byte) bool {
+	var works []Work
+	err := (&joinFn{Job: job}).ProcessElement(context.Background(), 0, func(b *[]byte) bool {
 		if i == len(out) {
 			return false
 		}
 		*b = out[i]
 		i++
 		return true
-	})
+	}, func(sh *Shard) bool {
+		if len(works) > 0 {
+			return false
+		}
+		*sh = Shard{Index: 0, Path: path}
+		return true
+	}, func(w Work) { works = append(works, w) })
+	if err != nil || len(works) != 1 {
+		t.Fatalf("join: %d works, error %v", len(works), err)
+	}
+	facts, err := loadFacts(context.Background(), works[0].Facts)
 	if err != nil || len(facts) != 1 {
 		t.Fatalf("facts %v, error %v", facts, err)
 	}

@@ -11,6 +11,7 @@ import (
 	"path/filepath"
 	"slices"
 	"strings"
+	"sync"
 	"time"
 
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
@@ -27,7 +28,7 @@ import (
 func init() {
 	register.DoFn3x1[context.Context, Shard, func([]byte), error](&surveyFn{})
 	register.DoFn3x1[context.Context, Work, func(int, Piece), error](&fitFn{})
-	register.DoFn4x0[int, func(*[]byte) bool, func(*Shard) bool, func(Work)](&joinFn{})
+	register.DoFn5x1[context.Context, int, func(*[]byte) bool, func(*Shard) bool, func(Work), error](&joinFn{})
 	register.DoFn5x0[int, func(*string) bool, func(*Work) bool, func(Work), func(Work)](&statsJoinFn{})
 	register.DoFn5x1[context.Context, int, func(*string) bool, func(*Work) bool, func(string), error](&tablesFn{})
 	register.Function1x2(keyBytes)
@@ -81,7 +82,7 @@ func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PColl
 	sc := beam.Reshuffle(s, beam.CreateList(s, shards))
 	facts := beam.ParDo(s.Scope("survey"), &surveyFn{Job: job}, sc)
 	joined := beam.CoGroupByKey(s, beam.ParDo(s, keyBytes, facts), beam.ParDo(s, keyShard, sc))
-	work := beam.Reshuffle(s, beam.ParDo(s.Scope("join"), &joinFn{}, joined))
+	work := beam.Reshuffle(s, beam.ParDo(s.Scope("join"), &joinFn{Job: job}, joined))
 	pieces := beam.ParDo(s.Scope("fit"), &fitFn{Job: job, Schema: shards[0].Path}, work)
 	stats := beam.ParDo(s.Scope("merge"), &mergeFn{Job: job, Schema: shards[0].Path}, beam.GroupByKey(s, pieces))
 	ready := beam.CoGroupByKey(s, beam.ParDo(s, keyString, stats), beam.ParDo(s, keyWork, work))
@@ -135,11 +136,10 @@ func (fn *surveyFn) ProcessElement(ctx context.Context, sh Shard, emit func([]by
 	return nil
 }
 
-// readFacts collects the facts of every shard from the side input.
-func readFacts(iter func(*[]byte) bool) ([]ShardFacts, error) {
+// readFacts decodes the facts of every shard, as stage 0 gave them.
+func readFacts(all [][]byte) ([]ShardFacts, error) {
 	var out []ShardFacts
-	var b []byte
-	for iter(&b) {
+	for _, b := range all {
 		var f ShardFacts
 		if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&f); err != nil {
 			return nil, fmt.Errorf("a shard's facts: %w", err)
@@ -157,17 +157,7 @@ type planned struct {
 	plan   *pipeline.ShardPlan
 }
 
-// planOf rebuilds the job's plan on a worker from every shard's facts
-// (as stage 0 gave them).
-func planOf(ctx context.Context, job Job, schemaPath string, facts func(*[]byte) bool) (planned, error) {
-	fs, err := readFacts(facts)
-	if err != nil {
-		return planned{}, err
-	}
-	return planFrom(ctx, job, schemaPath, fs)
-}
-
-// planFrom is planOf with the facts read.
+// planFrom rebuilds the job's plan on a worker from every shard's facts.
 func planFrom(ctx context.Context, job Job, schemaPath string, facts []ShardFacts) (planned, error) {
 	var pl planned
 	var err error
@@ -188,22 +178,25 @@ type fitFn struct {
 }
 
 // Work is what a worker needs of the stages before it to fit or encode
-// a shard: every shard's facts and, for stage 2, the merged statistics'
-// files (Stats); Tables marks the element that writes the mapping tables.
+// a shard: the file of every shard's facts and, for stage 2, the merged
+// statistics' files (Stats); Tables marks the element that writes the
+// mapping tables. The facts travel as a file, not in the elements: every
+// element would carry every shard's, shards times partitions of them.
 type Work struct {
 	Shard  Shard
-	Facts  [][]byte
+	Facts  string
 	Stats  []string
 	Tables bool
 }
 
 // Piece is a shard's partial of one partition, as the file Path in the
-// staging folder, with every shard's facts (from which the merge rebuilds
-// the plan). The partials themselves do not travel in the elements: at 10M
-// rows, copying them through prism's data plane cost 4 s of CPU.
+// staging folder, with the file of every shard's facts (from which the
+// merge rebuilds the plan). The partials themselves do not travel in the
+// elements: at 10M rows, copying them through prism's data plane cost 4 s
+// of CPU.
 type Piece struct {
 	Shard int
-	Facts [][]byte
+	Facts string
 	Path  string
 }
 
@@ -229,42 +222,71 @@ func (fn *statsJoinFn) ProcessElement(_ int, paths func(*string) bool, work func
 		emit(w)
 		last = w
 	}
-	if last.Facts != nil {
+	if last.Facts != "" {
 		emitTables(Work{Facts: last.Facts, Stats: all, Tables: true})
 	}
 }
 
-// joinFn gives every shard the facts of all.
-type joinFn struct{}
+// joinFn writes every shard's facts, in shard order, as the file
+// STATS/facts, and gives every shard its path.
+type joinFn struct{ Job Job }
 
-func (fn *joinFn) ProcessElement(_ int, facts func(*[]byte) bool, shards func(*Shard) bool, emit func(Work)) {
+func (fn *joinFn) ProcessElement(ctx context.Context, _ int, facts func(*[]byte) bool, shards func(*Shard) bool, emit func(Work)) error {
 	var all [][]byte
 	var b []byte
 	for facts(&b) {
 		all = append(all, slices.Clone(b))
 	}
+	fs, err := readFacts(all)
+	if err != nil {
+		return err
+	}
+	// In shard order, so that a retried bundle writes the same bytes.
+	slices.SortFunc(fs, func(a, b ShardFacts) int { return a.Index - b.Index })
+	var buf bytes.Buffer
+	if err := gob.NewEncoder(&buf).Encode(fs); err != nil {
+		return err
+	}
+	name := joinPath(fn.Job.Stats, "facts")
+	if err := writeAll(ctx, name, buf.Bytes()); err != nil {
+		return err
+	}
 	var sh Shard
 	for shards(&sh) {
-		emit(Work{Shard: sh, Facts: all})
+		emit(Work{Shard: sh, Facts: name})
 	}
+	return nil
 }
 
-// iterOf iterates over bs as a side input would.
-func iterOf(bs [][]byte) func(*[]byte) bool {
-	i := 0
-	return func(b *[]byte) bool {
-		if i == len(bs) {
-			return false
-		}
-		*b = bs[i]
-		i++
-		return true
+// factsCache keeps the facts files a worker read, by path (the run's
+// staging folder is in it).
+var factsCache sync.Map // string -> []ShardFacts
+
+// loadFacts reads the file of every shard's facts (joinFn), once per
+// worker.
+func loadFacts(ctx context.Context, name string) ([]ShardFacts, error) {
+	if v, ok := factsCache.Load(name); ok {
+		return slices.Clone(v.([]ShardFacts)), nil
 	}
+	b, err := readAll(ctx, name)
+	if err != nil {
+		return nil, err
+	}
+	var fs []ShardFacts
+	if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&fs); err != nil {
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	factsCache.Store(name, fs)
+	return slices.Clone(fs), nil
 }
 
 func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, Piece)) error {
 	sh := w.Shard
-	pl, err := planOf(ctx, fn.Job, fn.Schema, iterOf(w.Facts))
+	facts, err := loadFacts(ctx, w.Facts)
+	if err != nil {
+		return err
+	}
+	pl, err := planFrom(ctx, fn.Job, fn.Schema, facts)
 	if err != nil {
 		return err
 	}
@@ -304,10 +326,10 @@ type mergeFn struct {
 func (fn *mergeFn) ProcessElement(ctx context.Context, part int, pieces func(*Piece) bool, emit func(string)) error {
 	var all [][]byte
 	var byShard [][]byte // the shards' partials by index
-	var facts [][]byte
+	var factsName string
 	var pc Piece
 	for pieces(&pc) {
-		facts = pc.Facts
+		factsName = pc.Facts
 		if pc.Shard < 0 || pc.Shard > 1<<30 {
 			return fmt.Errorf("partition %d: a partial of shard %d", part, pc.Shard)
 		}
@@ -325,7 +347,11 @@ func (fn *mergeFn) ProcessElement(ctx context.Context, part int, pieces func(*Pi
 		all = append(all, b)
 		pc = Piece{}
 	}
-	pl, err := planOf(ctx, fn.Job, fn.Schema, iterOf(facts))
+	facts, err := loadFacts(ctx, factsName)
+	if err != nil {
+		return err
+	}
+	pl, err := planFrom(ctx, fn.Job, fn.Schema, facts)
 	if err != nil {
 		return err
 	}
@@ -400,7 +426,7 @@ func readAll(ctx context.Context, name string) ([]byte, error) {
 // model returns the model assembled from the merged partitions' files,
 // once per worker for the same job and facts.
 func model(ctx context.Context, job Job, schemaPath string, w Work) (*modelOnce, error) {
-	facts, err := readFacts(iterOf(w.Facts))
+	facts, err := loadFacts(ctx, w.Facts)
 	if err != nil {
 		return nil, err
 	}

@@ -137,8 +137,8 @@ func schemaOf(ctx context.Context, sp *pipeline.Spec, p string) (*table.Schema, 
 	return &table.Schema{Fields: slices.Clone(r.Schema().Fields)}, nil
 }
 
-// plan rebuilds the plan from every shard's facts (the side input of
-// stage 0's output, in any order).
+// plan rebuilds the plan from every shard's facts (stage 0's output, in
+// any order).
 func plan(sp pipeline.Spec, schema *table.Schema, facts []ShardFacts) (*pipeline.ShardPlan, error) {
 	slices.SortFunc(facts, func(a, b ShardFacts) int { return a.Index - b.Index })
 	fs := make([]pipeline.ShardFacts, len(facts))

@@ -245,10 +245,15 @@ func (m *Model) newEncodePass(schema *table.Schema, opt EncodeOptions) (*encodeP
 			}
 		}
 		e.at[i] = make([]int, len(c.Fits))
+		var before *method.Before // the column's rows before the part, once
 		for ei, f := range c.Fits {
 			enc := f.Encoder(pass)
 			if st, ok := enc.(method.Starter); ok && opt.Before != nil && pass == method.Ordered {
-				st.Start(opt.Before.of(i, c))
+				if before == nil {
+					b := opt.Before.of(i, c)
+					before = &b
+				}
+				st.Start(*before)
 			}
 			e.encoders[i] = append(e.encoders[i], enc)
 			if sp.EncodingsOf(i)[ei].Needs().Target {

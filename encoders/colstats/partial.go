@@ -322,6 +322,51 @@ func PartialLevels(b []byte) int {
 	return int(n)
 }
 
+// PartialKeys calls each with the bytes of every level of a partial (nil
+// and null true for the null level), in order, without merging them:
+// what a merge needs to look its levels up first (pipeline.Preceding).
+func PartialKeys(b []byte, each func(key []byte, null bool)) error {
+	r := &partialReader{b: b}
+	if string(r.bytes(uint64(len(partialMagic)))) != string(partialMagic) || r.err != nil {
+		return fmt.Errorf("%w: no magic bytes", ErrPartial)
+	}
+	tb := r.bytes(1)
+	if r.err != nil {
+		return r.err
+	}
+	task := Task(tb[0])
+	folds := r.uvarint(math.MaxInt32)
+	classes := r.uvarint(math.MaxInt32)
+	r.bytes(8)
+	n := r.uvarint(uint64(len(r.b)) / 4)
+	for i := uint64(0); i < n && r.err == nil; i++ {
+		key := r.uvarint(uint64(len(r.b)))
+		var k []byte
+		if key > 0 {
+			k = r.bytes(key - 1)
+		}
+		r.uvarint(math.MaxUint64) // rows
+		cells := r.uvarint(folds)
+		for j := uint64(0); j < cells && r.err == nil; j++ {
+			r.uvarint(folds) // fold
+			if task != Regression {
+				for c := uint64(0); c < classes && r.err == nil; c++ {
+					r.uvarint(math.MaxUint64)
+				}
+				continue
+			}
+			r.uvarint(math.MaxUint32)                  // rows
+			r.bytes(r.uvarint(exactsum.MaxEncodedLen)) // sum
+			r.bytes(r.uvarint(exactsum.MaxEncodedLen)) // sum of squares
+		}
+		r.bytes(r.uvarint(uint64(len(r.b)))) // extra
+		if r.err == nil {
+			each(k, key == 0)
+		}
+	}
+	return r.err
+}
+
 // mergeLevel reads one level of a partial into s.
 func (s *Stats) mergeLevel(r *partialReader, origin float64, extra func(l int, data []byte) error) error {
 	key := r.uvarint(uint64(len(r.b)))

@@ -146,7 +146,9 @@ func TestPartialRefused(t *testing.T) {
 
 // FuzzMergePartial: any bytes merged as a partial give nil or ErrPartial,
 // never a panic, and an accepted partial written again (all levels, one
-// partition) merges to the same statistics.
+// partition) merges to the same statistics. PartialKeys never panics
+// either, and lists every level of an accepted partial (written again:
+// levels listed twice merge into one).
 func FuzzMergePartial(f *testing.F) {
 	for _, task := range []Task{Multiclass, Regression} {
 		f.Add(uint8(task), fill(task, genRows(50, 3), 1e6).AppendPartial(nil, 0, 1, nil))
@@ -155,13 +157,30 @@ func FuzzMergePartial(f *testing.F) {
 	f.Fuzz(func(t *testing.T, task uint8, b []byte) {
 		tk := Task(task % 3)
 		s := fill(tk, nil, 0)
+		keysErr := PartialKeys(b, func([]byte, bool) {})
 		if err := s.MergePartial(b, nil); err != nil {
 			if !errors.Is(err, ErrPartial) {
 				t.Fatalf("error %v does not wrap ErrPartial", err)
 			}
 			return
 		}
+		if keysErr != nil {
+			t.Fatalf("PartialKeys refuses a partial MergePartial takes: %v", keysErr)
+		}
 		again := s.AppendPartial(nil, 0, 1, nil)
+		listed := 0
+		if err := PartialKeys(again, func([]byte, bool) { listed++ }); err != nil {
+			t.Fatal(err)
+		}
+		with := 0
+		for l := 0; l < s.NumLevels(); l++ {
+			if s.RowCount(l) > 0 {
+				with++
+			}
+		}
+		if listed != with {
+			t.Fatalf("PartialKeys lists %d levels, the partial holds %d", listed, with)
+		}
 		s2 := fill(tk, nil, 0)
 		if err := s2.MergePartial(again, nil); err != nil {
 			t.Fatalf("a partial written again is refused: %v", err)

@@ -182,7 +182,7 @@ func Survey(r table.Reader, sp Spec, file string) (ShardFacts, error) {
 		sf.Labels = cls.order
 	}
 	if oc != nil && oc.seen {
-		sf.Order = &OrderEnds{First: oc.first, Last: oc.last, FirstNum: oc.firstNum, LastNum: oc.lastNum, Row: oc.firstRow}
+		sf.Order = &OrderEnds{First: oc.first, Last: oc.last, FirstNum: oc.firstNum, LastNum: oc.lastNum, Numeric: oc.numeric, Row: oc.firstRow}
 	}
 	return sf, nil
 }
@@ -193,6 +193,7 @@ func Survey(r table.Reader, sp Spec, file string) (ShardFacts, error) {
 type OrderEnds struct {
 	First, Last       []byte
 	FirstNum, LastNum float64
+	Numeric           bool // the shard's column is numeric (its own kind, as its reader found it)
 	Row               int64
 }
 
@@ -249,7 +250,9 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 		}
 		p.First[i] = p.Rows + 1
 		if o := f.Order; sp.OrderBy != "" && o != nil {
-			if last != nil && orderBefore(o.First, o.FirstNum, last.Last, last.LastNum, p.numericOrder(schema)) {
+			// By number when both shards read the column as numbers,
+			// else by its text (a CSV shard may infer another kind).
+			if last != nil && orderBefore(o.First, o.FirstNum, last.Last, last.LastNum, o.Numeric && last.Numeric) {
 				return nil, &table.DataError{File: file, Row: p.First[i] + o.Row - 1, Column: sp.OrderBy,
 					Err: param.Errorf("the shards are not in the order of this column (%s): shard %d starts with %q, after %q, the last of shard %d", ParamOrderBy, i+1, o.First, last.Last, lastShard+1)}
 			}
@@ -295,13 +298,6 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 		p.classes, _ = sortedClasses(order, p.numericCls)
 	}
 	return p, nil
-}
-
-// numericOrder reports whether the --order-by column is numeric (compared
-// by number, not by bytes).
-func (p *ShardPlan) numericOrder(schema *table.Schema) bool {
-	i := schema.Index(p.Spec.OrderBy)
-	return i >= 0 && (schema.Fields[i].Kind == table.Int64 || schema.Fields[i].Kind == table.Float64)
 }
 
 // offsetReader numbers the rows of a shard from its place in the table:
@@ -506,42 +502,42 @@ func shardPartial(cols [][]byte) []byte {
 // partial of the rows of shards 0 to i-1, of the levels in partials[i]
 // only. ShardPlan.Before reads shard i's out[i] of every partition.
 func Preceding(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions) ([][]byte, error) {
-	acc, _, err := gatherPartials(plan, schema, nil, opt)
+	acc, _, err := gatherPartials(plan, schema, nil, opt, true)
 	if err != nil {
 		return nil, err
 	}
 	out := make([][]byte, len(partials))
 	cols := make([][]byte, len(acc.all))
+	keys := make([][][]byte, len(acc.all))
 	for i, b := range partials {
-		var own [][]byte
+		var own [][]byte // shard i's partial of each column
 		if len(b) > 0 {
-			own = [][]byte{b}
-		}
-		g, _, err := gatherPartials(plan, schema, own, opt)
-		if err != nil {
-			return nil, fmt.Errorf("shard %d: %w", i+1, err)
+			if own, err = acc.splitPartial(b); err != nil {
+				return nil, fmt.Errorf("shard %d: %w", i+1, err)
+			}
 		}
 		for ci, c := range acc.all {
-			gs := g.all[ci].St
 			var ls []int32
-			for l := 0; l < gs.NumLevels(); l++ {
-				if gs.RowCount(l) == 0 {
-					continue
-				}
-				al := 0 // the null level
-				if l > 0 {
-					al = c.St.Lookup(gs.Bytes(l))
-				}
-				if al >= 0 && c.St.RowCount(al) > 0 {
-					ls = append(ls, int32(al))
+			if own != nil {
+				err := colstats.PartialKeys(own[ci], func(k []byte, null bool) {
+					al := 0 // the null level
+					if !null {
+						al = c.St.Lookup(k)
+					}
+					if al >= 0 && c.St.RowCount(al) > 0 {
+						ls = append(ls, int32(al))
+					}
+				})
+				if err != nil {
+					return nil, fmt.Errorf("shard %d, column %q: %w: %w", i+1, c.Name, ErrShardPartial, err)
 				}
 			}
 			cols[ci] = c.St.AppendLevels(nil, ls)
 		}
 		out[i] = shardPartial(cols)
-		for ci, c := range acc.all {
-			if err := c.St.Merge(g.all[ci].St); err != nil {
-				return nil, fmt.Errorf("shard %d, column %q: %w", i+1, c.Name, err)
+		if len(b) > 0 {
+			if err := acc.gather([][]byte{b}, keys, true); err != nil {
+				return nil, fmt.Errorf("shard %d: %w", i+1, err)
 			}
 		}
 	}
@@ -558,7 +554,7 @@ type Before struct {
 // every partition's Preceding (in any order). schema and opt are as
 // Assemble's.
 func (p *ShardPlan) Before(schema *table.Schema, partials [][]byte, opt FitOptions) (*Before, error) {
-	f, _, err := gatherPartials(p, schema, partials, opt)
+	f, _, err := gatherPartials(p, schema, partials, opt, true)
 	if err != nil {
 		return nil, err
 	}
@@ -591,10 +587,10 @@ var ErrShardPartial = errors.New("not partial statistics of this job")
 // keeping each level's parent key (nest) in keys. Each column's level
 // table first makes room for the levels the partials declare (at most
 // what their bytes hold, and the plan's rows), so that it does not grow
-// again and again. Partials of one partition from many shards may repeat
-// levels: the room is then more than the levels, but never more than the
-// rows of the shards' levels in that partition.
-func (f *fitter) gather(partials [][]byte, keys [][][]byte) error {
+// again and again: their sum when they are disjoint (the partitions of a
+// model), else the largest's (one partition from many shards, which may
+// repeat levels).
+func (f *fitter) gather(partials [][]byte, keys [][][]byte, disjoint bool) error {
 	byCol := make([][][]byte, len(f.all))
 	for pi, b := range partials {
 		cols, err := f.splitPartial(b)
@@ -606,9 +602,13 @@ func (f *fitter) gather(partials [][]byte, keys [][][]byte) error {
 		}
 	}
 	for ci, c := range f.all {
-		n := c.St.NumLevels()
+		n, most := c.St.NumLevels(), 0
 		for _, col := range byCol[ci] {
-			n += colstats.PartialLevels(col)
+			k := colstats.PartialLevels(col)
+			n, most = n+k, max(most, k)
+		}
+		if !disjoint {
+			n = c.St.NumLevels() + most
 		}
 		if f.opt.TotalRows > 0 {
 			n = min(n, c.St.NumLevels()+int(f.opt.TotalRows)+1)
@@ -686,7 +686,7 @@ func mergeParentKey(keys *[][]byte, l int, data []byte) error {
 // model Fit would return over the table: schema is the table's (with its
 // derived columns), opt as Fit's.
 func Assemble(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions) (*Model, error) {
-	f, keys, err := gatherPartials(plan, schema, partials, opt)
+	f, keys, err := gatherPartials(plan, schema, partials, opt, true)
 	if err != nil {
 		return nil, err
 	}
@@ -748,7 +748,10 @@ func (f *fitter) checkRows(rows int64) error {
 
 // gatherPartials returns a fitter of the plan whose columns hold the
 // partials merged, and each level's parent key (keys, per column).
-func gatherPartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions) (*fitter, [][][]byte, error) {
+// disjoint says that the partials hold different levels (different
+// partitions): room is made for the sum of their levels, else for the
+// largest's (see gather).
+func gatherPartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions, disjoint bool) (*fitter, [][][]byte, error) {
 	opt.TotalRows = plan.Rows
 	f, err := newFitter(schema, plan.Spec, opt)
 	if err != nil {
@@ -757,7 +760,7 @@ func gatherPartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, op
 	f.preset(plan)
 	f.ensureStats()
 	keys := make([][][]byte, len(f.all))
-	if err := f.gather(partials, keys); err != nil {
+	if err := f.gather(partials, keys, disjoint); err != nil {
 		return nil, nil, err
 	}
 	return f, keys, nil
@@ -768,7 +771,7 @@ func gatherPartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, op
 // Assemble gives the same model from the merged partial as from those it
 // merged.
 func MergePartials(plan *ShardPlan, schema *table.Schema, partials [][]byte, opt FitOptions) ([]byte, error) {
-	f, keys, err := gatherPartials(plan, schema, partials, opt)
+	f, keys, err := gatherPartials(plan, schema, partials, opt, false)
 	if err != nil {
 		return nil, err
 	}

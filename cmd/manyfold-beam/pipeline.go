@@ -10,6 +10,7 @@ import (
 	"path"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"sync"
 	"time"
@@ -96,7 +97,7 @@ func Build(s beam.Scope, job Job, shards []Shard, out, tables string) beam.PColl
 	// Once every output is written: the temporary files of bundles that
 	// failed, or of attempts a runner abandoned, are removed, and the
 	// staging folder.
-	beam.ParDo0(s.Scope("finish"), &finishFn{Out: out}, beam.Create(s, 0), beam.SideInput{Input: all})
+	beam.ParDo0(s.Scope("finish"), &finishFn{Out: out, Run: job.Run}, beam.Create(s, 0), beam.SideInput{Input: all})
 	return all
 }
 
@@ -169,6 +170,30 @@ func planFrom(ctx context.Context, job Job, schemaPath string, facts []ShardFact
 	}
 	pl.plan, err = plan(pl.sp, pl.schema, slices.Clone(facts))
 	return pl, err
+}
+
+// plans keeps the plan a worker rebuilt, by the facts file and the
+// schema's shard (the run is in the file's path).
+var plans sync.Map // string -> planned
+
+// plannedFor returns the job's plan from the facts file (joinFn), once per
+// worker: every element of a stage would otherwise rebuild it from every
+// shard's facts, and read the first shard's schema again.
+func plannedFor(ctx context.Context, job Job, schemaPath, factsName string) (planned, error) {
+	key := factsName + "\x00" + schemaPath
+	if v, ok := plans.Load(key); ok {
+		return v.(planned), nil
+	}
+	facts, err := loadFacts(ctx, factsName)
+	if err != nil {
+		return planned{}, err
+	}
+	pl, err := planFrom(ctx, job, schemaPath, facts)
+	if err != nil {
+		return pl, err
+	}
+	plans.Store(key, pl)
+	return pl, nil
 }
 
 // fitFn is stage 1: a shard's statistics, one partial per partition.
@@ -282,11 +307,7 @@ func loadFacts(ctx context.Context, name string) ([]ShardFacts, error) {
 
 func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, Piece)) error {
 	sh := w.Shard
-	facts, err := loadFacts(ctx, w.Facts)
-	if err != nil {
-		return err
-	}
-	pl, err := planFrom(ctx, fn.Job, fn.Schema, facts)
+	pl, err := plannedFor(ctx, fn.Job, fn.Schema, w.Facts)
 	if err != nil {
 		return err
 	}
@@ -347,11 +368,7 @@ func (fn *mergeFn) ProcessElement(ctx context.Context, part int, pieces func(*Pi
 		all = append(all, b)
 		pc = Piece{}
 	}
-	facts, err := loadFacts(ctx, factsName)
-	if err != nil {
-		return err
-	}
-	pl, err := planFrom(ctx, fn.Job, fn.Schema, facts)
+	pl, err := plannedFor(ctx, fn.Job, fn.Schema, factsName)
 	if err != nil {
 		return err
 	}
@@ -426,20 +443,15 @@ func readAll(ctx context.Context, name string) ([]byte, error) {
 // model returns the model assembled from the merged partitions' files,
 // once per worker for the same job and facts.
 func model(ctx context.Context, job Job, schemaPath string, w Work) (*modelOnce, error) {
-	facts, err := loadFacts(ctx, w.Facts)
-	if err != nil {
-		return nil, err
-	}
-	// The key: the job (its run among its fields), its first shard and
-	// every shard's facts.
-	slices.SortFunc(facts, func(a, b ShardFacts) int { return a.Index - b.Index })
+	// The key: the job (its run among its fields), its first shard, the
+	// facts file and the merged statistics' files (all in the run's
+	// staging folder).
 	var kb bytes.Buffer
 	gob.NewEncoder(&kb).Encode(struct {
-		Job    Job
-		Schema string
-		Facts  []ShardFacts
-		Stats  []string
-	}{job, schemaPath, facts, w.Stats})
+		Job           Job
+		Schema, Facts string
+		Stats         []string
+	}{job, schemaPath, w.Facts, w.Stats})
 	key := fmt.Sprintf("%x", xxhash.Sum64(kb.Bytes()))
 	v, _ := models.LoadOrStore(key, &modelOnce{})
 	mo := v.(*modelOnce)
@@ -451,7 +463,7 @@ func model(ctx context.Context, job Job, schemaPath string, w Work) (*modelOnce,
 			}
 		}
 		var pl planned
-		if pl, mo.err = planFrom(ctx, job, schemaPath, facts); mo.err != nil {
+		if pl, mo.err = plannedFor(ctx, job, schemaPath, w.Facts); mo.err != nil {
 			return
 		}
 		mo.plan, mo.schema = pl.plan, pl.schema
@@ -560,8 +572,11 @@ func removeStale(final string) {
 // finishFn runs once every output is written (its side input is their
 // paths): it removes the temporary files of attempts that failed or were
 // abandoned, and the staging folders of the merged statistics: this run's
-// and those of runs that failed before their end.
-type finishFn struct{ Out string }
+// and those of runs into the same folder that started before it (a run
+// that failed leaves its own). A run started later, into the same folder,
+// keeps its own: two jobs into one folder at once overwrite each other's
+// parts anyway, but not each other's statistics.
+type finishFn struct{ Out, Run string }
 
 func (fn *finishFn) ProcessElement(ctx context.Context, _ int, written func(*string) bool) error {
 	var p string
@@ -573,6 +588,9 @@ func (fn *finishFn) ProcessElement(ctx context.Context, _ int, written func(*str
 	if !strings.Contains(fn.Out, "://") {
 		stale, _ := filepath.Glob(filepath.Join(fn.Out, "_stats-*"))
 		for _, d := range stale {
+			if !startedBy(filepath.Base(d), fn.Run) {
+				continue
+			}
 			if err := os.RemoveAll(d); err != nil {
 				return err
 			}
@@ -593,11 +611,36 @@ func (fn *finishFn) ProcessElement(ctx context.Context, _ int, written func(*str
 		return err
 	}
 	for _, n := range names {
+		dir := path.Base(path.Dir(n))
+		if !startedBy(dir, fn.Run) {
+			continue
+		}
 		if err := rm.Remove(ctx, n); err != nil {
 			return err
 		}
 	}
 	return nil
+}
+
+// startedBy reports whether the staging folder dir ("_stats-RUN") is of
+// run, or of a run that started before it (a run id begins with its start
+// time in nanoseconds, in hexadecimal).
+func startedBy(dir, run string) bool {
+	other, ok := strings.CutPrefix(dir, "_stats-")
+	if !ok {
+		return false
+	}
+	if other == run {
+		return true
+	}
+	t := func(id string) (uint64, bool) {
+		hex, _, _ := strings.Cut(id, "-")
+		v, err := strconv.ParseUint(hex, 16, 64)
+		return v, err == nil
+	}
+	a, okA := t(other)
+	b, okB := t(run)
+	return okA && okB && a < b
 }
 
 // ctxReader stops reading once the bundle's context is done.
@@ -655,19 +698,20 @@ func (fn *tablesFn) ProcessElement(ctx context.Context, _ int, _ func(*string) b
 	if err != nil {
 		return err
 	}
-	states := make([][]byte, len(mo.plan.First))
-	for i := range states {
-		if states[i], err = readAll(ctx, scoresName(fn.Job.Stats, i)); err != nil {
+	var sm pipeline.ScoreMerger // one shard's state in memory at a time
+	for i := range mo.plan.First {
+		b, err := readAll(ctx, scoresName(fn.Job.Stats, i))
+		if err != nil {
 			return err
 		}
-		if len(states[i]) == 0 {
-			states[i] = nil
+		if len(b) == 0 {
+			b = nil
+		}
+		if err := sm.Add(b); err != nil {
+			return err
 		}
 	}
-	scores, err := pipeline.MergeScores(states)
-	if err != nil {
-		return err
-	}
+	scores := sm.Scores()
 	return saveTables(ctx, mo.m, scores, fn.Tables, emit)
 }
 

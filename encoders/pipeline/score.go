@@ -267,38 +267,60 @@ func (s *Summary) ScoreState() ([]byte, error) {
 // from the union of the parts' rows by value, an RMSE from the sum of
 // their exact sums. nil when no part scored a column.
 func MergeScores(states [][]byte) ([]*Score, error) {
-	var cols []scoreAcc
-	for i, b := range states {
-		if b == nil {
-			continue
+	var sm ScoreMerger
+	for _, b := range states {
+		if err := sm.Add(b); err != nil {
+			return nil, err
 		}
-		var st scoreState
-		if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&st); err != nil {
-			return nil, fmt.Errorf("the scores of part %d: %w", i+1, err)
-		}
-		if cols == nil {
-			cols = make([]scoreAcc, len(st.Cols))
-			for ci, c := range st.Cols {
-				cols[ci] = scoreAcc{at: c.At, metric: c.Metric, pos: c.Pos, classes: c.Classes, lastAt: -1, index: map[uint64]int32{}}
-			}
-		}
-		if len(st.Cols) != len(cols) {
-			return nil, fmt.Errorf("the scores of part %d: %d columns, not %d", i+1, len(st.Cols), len(cols))
-		}
+	}
+	return sm.Scores(), nil
+}
+
+// ScoreMerger merges score states one at a time (MergeScores), so that
+// only the merged accumulators stay in memory. The zero value is ready.
+type ScoreMerger struct {
+	cols  []scoreAcc
+	parts int
+}
+
+// Add merges the state of one more part (nil: a part that scored nothing).
+func (sm *ScoreMerger) Add(b []byte) error {
+	sm.parts++
+	if b == nil {
+		return nil
+	}
+	var st scoreState
+	if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&st); err != nil {
+		return fmt.Errorf("the scores of part %d: %w", sm.parts, err)
+	}
+	if sm.cols == nil {
+		sm.cols = make([]scoreAcc, len(st.Cols))
 		for ci, c := range st.Cols {
-			if err := cols[ci].merge(c); err != nil {
-				return nil, fmt.Errorf("the scores of part %d, column %d: %w", i+1, ci+1, err)
-			}
+			sm.cols[ci] = scoreAcc{at: c.At, metric: c.Metric, pos: c.Pos, classes: c.Classes, lastAt: -1, index: map[uint64]int32{}}
 		}
 	}
-	if cols == nil {
-		return nil, nil
+	if len(st.Cols) != len(sm.cols) {
+		return fmt.Errorf("the scores of part %d: %d columns, not %d", sm.parts, len(st.Cols), len(sm.cols))
 	}
-	out := make([]*Score, len(cols))
-	for ci := range cols {
-		out[ci] = cols[ci].score()
+	for ci, c := range st.Cols {
+		if err := sm.cols[ci].merge(c); err != nil {
+			return fmt.Errorf("the scores of part %d, column %d: %w", sm.parts, ci+1, err)
+		}
 	}
-	return out, nil
+	return nil
+}
+
+// Scores returns each column's merged Score, nil when no part scored a
+// column.
+func (sm *ScoreMerger) Scores() []*Score {
+	if sm.cols == nil {
+		return nil
+	}
+	out := make([]*Score, len(sm.cols))
+	for ci := range sm.cols {
+		out[ci] = sm.cols[ci].score()
+	}
+	return out
 }
 
 // merge adds a part's accumulator to a.

@@ -489,11 +489,7 @@ func scoresName(stats string, i int) string {
 
 // partName is the encoded file of shard i.
 func partName(out string, i int, format string) string {
-	name := fmt.Sprintf("part-%05d.%s", i, format)
-	if strings.Contains(out, "://") {
-		return strings.TrimSuffix(out, "/") + "/" + name
-	}
-	return filepath.Join(out, name)
+	return joinPath(out, fmt.Sprintf("part-%05d.%s", i, format))
 }
 
 func (fn *encodeFn) ProcessElement(ctx context.Context, w Work, emit func(string)) error {
@@ -764,7 +760,7 @@ func saveTables(ctx context.Context, m *pipeline.Model, scores []*pipeline.Score
 		if err != nil {
 			return err
 		}
-		if err := filesystem.Write(ctx, fs, strings.TrimSuffix(tables, "/")+"/"+path.Base(e.Name()), data); err != nil {
+		if err := filesystem.Write(ctx, fs, joinPath(tables, path.Base(e.Name())), data); err != nil {
 			return err
 		}
 	}

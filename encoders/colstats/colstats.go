@@ -83,13 +83,12 @@ type Stats struct {
 	// target about Origin, rounded, and full, the level's two sums over
 	// all folds (see exact.go): 28 bytes per level and fold, 16 per level,
 	// and the exact sums of the cells of two rows or more.
-	cls         classCells[uint8]
-	cnt         perLevel[uint32]
-	raw         perLevel[float64]
-	pool        [][]cellSums // in chunks of 2^poolChunk
-	pooledCells int
-	sum, sumSq  perLevel[float64]
-	full        perLevel[float64]
+	cls        classCells[uint8]
+	cnt        perLevel[uint32]
+	raw        perLevel[float64]
+	pool       sumsPool
+	sum, sumSq perLevel[float64]
+	full       perLevel[float64]
 	// exact: raw and pool hold the cells' exact sums (false for
 	// statistics read back rounded from mapping tables, and for compare's
 	// views); sealed: sum, sumSq and full are set (Seal).

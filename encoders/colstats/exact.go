@@ -44,18 +44,29 @@ func unbox(v float64) int  { return int(math.Float64bits(v) & boxMask) }
 // chunk at a time, so growing never copies the cells before.
 const poolChunk = 12
 
-// cellPool adds an empty cell to the pool and returns its index.
-func (s *Stats) cellPool() int {
-	i := s.pooledCells
-	if i>>poolChunk == len(s.pool) {
-		s.pool = append(s.pool, make([]cellSums, 1<<poolChunk))
+// sumsPool holds exact sums, in chunks of 2^poolChunk: it grows a chunk
+// at a time, so growing never copies the cells before. Stats and Running
+// keep the exact sums of their cells of two rows or more in one.
+type sumsPool struct {
+	chunks [][]cellSums
+	n      int
+}
+
+// add adds an empty cell and returns its index.
+func (p *sumsPool) add() int {
+	i := p.n
+	if i>>poolChunk == len(p.chunks) {
+		p.chunks = append(p.chunks, make([]cellSums, 1<<poolChunk))
 	}
-	s.pooledCells++
+	p.n++
 	return i
 }
 
+// at returns the cell of index i.
+func (p *sumsPool) at(i int) *cellSums { return &p.chunks[i>>poolChunk][i&(1<<poolChunk-1)] }
+
 // poolAt returns the cell of index i of the pool.
-func (s *Stats) poolAt(i int) *cellSums { return &s.pool[i>>poolChunk][i&(1<<poolChunk-1)] }
+func (s *Stats) poolAt(i int) *cellSums { return s.pool.at(i) }
 
 // pooled returns the exact sums of cell (l, f), moving a cell of one row
 // (or none) into the pool first.
@@ -64,7 +75,7 @@ func (s *Stats) pooled(l, f int) *cellSums {
 	if isBox(*r) {
 		return s.poolAt(unbox(*r))
 	}
-	i := s.cellPool()
+	i := s.pool.add()
 	if s.cnt.row(l)[f] > 0 {
 		p := s.poolAt(i)
 		exactsum.AddDiff(&p.sum, &p.sq, *r, s.Origin)

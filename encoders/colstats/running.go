@@ -28,9 +28,8 @@ type Running struct {
 	// difference is agg.Sum), the one row's y, or the index of its exact
 	// sums in pool boxed in a NaN (y is never 0 there: 0 - origin is
 	// exact).
-	raw    []float64
-	pool   [][]cellSums
-	pooled int
+	raw  []float64
+	pool sumsPool
 }
 
 // NewRunning returns empty running statistics of n levels and outs
@@ -85,16 +84,11 @@ func (r *Running) AddValue(l int, y float64) {
 func (r *Running) cell(l int) *cellSums {
 	x := r.raw[l]
 	if isBox(x) {
-		i := unbox(x)
-		return &r.pool[i>>poolChunk][i&(1<<poolChunk-1)]
+		return r.pool.at(unbox(x))
 	}
-	i := r.pooled
-	if i>>poolChunk == len(r.pool) {
-		r.pool = append(r.pool, make([]cellSums, 1<<poolChunk))
-	}
-	r.pooled++
+	i := r.pool.add()
 	r.raw[l] = box(i)
-	p := &r.pool[i>>poolChunk][i&(1<<poolChunk-1)]
+	p := r.pool.at(i)
 	switch a := r.agg[l*r.outs]; {
 	case a.N == 0:
 	case x == 0: // the exact difference

@@ -138,15 +138,8 @@ func (a *scoreAcc) add(v []float64, cls []int32, vals []float64) {
 		k := math.Float64bits(v[i])
 		j := a.lastAt
 		if k != a.last || j < 0 {
-			var ok bool
-			if j, ok = a.index[k]; !ok {
-				if len(a.vals) == maxScoreValues {
-					a.over, a.index, a.vals, a.npos, a.nneg = true, nil, nil, nil, nil
-					return
-				}
-				j = int32(len(a.vals))
-				a.index[k] = j
-				a.vals, a.npos, a.nneg = append(a.vals, v[i]), append(a.npos, 0), append(a.nneg, 0)
+			if j = a.slot(v[i]); j < 0 {
+				return
 			}
 			a.last, a.lastAt = k, j
 		}
@@ -156,6 +149,24 @@ func (a *scoreAcc) add(v []float64, cls []int32, vals []float64) {
 			a.nneg[j]++
 		}
 	}
+}
+
+// slot returns the index of value v (by its bits) among the values
+// counted, adding it; -1, the column being over from then on, when it
+// would be one more than maxScoreValues.
+func (a *scoreAcc) slot(v float64) int32 {
+	k := math.Float64bits(v)
+	if j, ok := a.index[k]; ok {
+		return j
+	}
+	if len(a.vals) == maxScoreValues {
+		a.over, a.index, a.vals, a.npos, a.nneg = true, nil, nil, nil, nil
+		return -1
+	}
+	j := int32(len(a.vals))
+	a.index[k] = j
+	a.vals, a.npos, a.nneg = append(a.vals, v), append(a.npos, 0), append(a.nneg, 0)
+	return j
 }
 
 // score returns the accumulated Score, nil when the column is not scored
@@ -341,21 +352,16 @@ func (a *scoreAcc) merge(c colScore) error {
 		a.inf = a.inf || c.Inf
 		return nil
 	}
-	if a.over || c.Over {
+	if c.Over {
 		a.over, a.index, a.vals, a.npos, a.nneg = true, nil, nil, nil, nil
+	}
+	if a.over {
 		return nil
 	}
 	for i, v := range c.Vals {
-		k := math.Float64bits(v)
-		j, ok := a.index[k]
-		if !ok {
-			if len(a.vals) == maxScoreValues {
-				a.over, a.index, a.vals, a.npos, a.nneg = true, nil, nil, nil, nil
-				return nil
-			}
-			j = int32(len(a.vals))
-			a.index[k] = j
-			a.vals, a.npos, a.nneg = append(a.vals, v), append(a.npos, 0), append(a.nneg, 0)
+		j := a.slot(v)
+		if j < 0 {
+			return nil
 		}
 		a.npos[j] += c.Npos[i]
 		a.nneg[j] += c.Nneg[i]

@@ -1,6 +1,8 @@
 package pipeline
 
 import (
+	"errors"
+
 	"manyfold/encoders/colstats"
 	"manyfold/io/table"
 )
@@ -21,9 +23,9 @@ func (l *LevelSlots) Fill(b *table.Batch, st *colstats.Stats) []int32 {
 }
 
 // Targets reads the target column of each batch as the fit does: the task
-// is decided on the first batch unless given (a numeric target with at most
-// 10 distinct integer values is a classification target), and class labels
-// are numbered in order of appearance.
+// is decided from the first rows unless given (TaskProbe: a numeric target
+// with at most 10 distinct integer values is a classification target), and
+// class labels are numbered in order of appearance.
 type Targets struct {
 	tr      targetReader
 	kind    table.Kind
@@ -39,13 +41,27 @@ func NewTargets(file, name string, col int, kind table.Kind, task string) *Targe
 	return t
 }
 
+// Decide decides the task, when it was not given, from the first rows of
+// r, and returns the reader whose batches to Read: r's, from the first.
+// It reads ahead until the task is decided and keeps copies of the
+// batches before, so it is called before the first batch is read.
+func (t *Targets) Decide(r table.Reader) table.Reader {
+	if t.decided {
+		return r
+	}
+	t.decided = true
+	p, r := probeTask(r, t.tr.col, t.kind)
+	t.tr.regress = p.Regression()
+	return r
+}
+
 // Read returns the class index of every row of b (classification; -1 for an
 // empty target) or its value (regression; NaN for an empty target). Only
-// one of the two slices is set; both are reused by the next call.
+// one of the two slices is set; both are reused by the next call. The
+// batches are those of the reader Decide returned.
 func (t *Targets) Read(b *table.Batch) (cls []int32, vals []float64, err error) {
 	if !t.decided {
-		t.decided = true
-		t.tr.regress = detectRegression(b, t.tr.col, t.kind)
+		return nil, nil, errors.New("pipeline: Targets.Read before Decide")
 	}
 	if err := t.tr.read(b); err != nil {
 		return nil, nil, err

@@ -252,6 +252,14 @@ func (f *fitter) pass(r table.Reader) error {
 		f.total = table.RowCount(r)
 	}
 	f.estimate, _ = table.Find[table.RowEstimator](r)
+	if f.tr != nil && !f.decided {
+		var p *TaskProbe
+		p, r = probeTask(r, f.tcol, f.schema.Fields[f.tcol].Kind)
+		f.decided = true
+		if p.Regression() {
+			f.task = colstats.Regression
+		}
+	}
 	n := len(f.all)
 	f.sized, f.spare = make([]bool, n), make([][]int32, n)
 	f.counts = [2]batchCounts{newBatchCounts(n), newBatchCounts(n)}
@@ -271,12 +279,6 @@ func (f *fitter) batch(b *table.Batch) error {
 	if f.order != nil {
 		if err := f.order.check(b); err != nil {
 			return err
-		}
-	}
-	if !f.decided {
-		f.decided = true
-		if f.tr != nil && detectRegression(b, f.tcol, f.schema.Fields[f.tcol].Kind) {
-			f.task = colstats.Regression
 		}
 	}
 	if m.Cols[0].St == nil {

@@ -1,6 +1,7 @@
 package pipeline
 
 import (
+	"reflect"
 	"slices"
 	"testing"
 
@@ -52,7 +53,18 @@ func textBatch(vals ...string) *table.Batch {
 	return &table.Batch{Rows: len(vals), Cols: []table.Column{c}, FirstRow: 1}
 }
 
-func TestDetectRegression(t *testing.T) {
+// TestTaskProbe: the task rule, one batch at a time, and the same probe
+// whatever batches or shards cut the rows (Add batch by batch, and Append
+// of the shards' probes, equal Add over one batch).
+func TestTaskProbe(t *testing.T) {
+	many := make([]string, TaskRows+20)
+	for i := range many {
+		many[i] = "1"
+	}
+	lateFrac := slices.Clone(many)
+	lateFrac[TaskRows] = "2.5" // row TaskRows+1: not looked at
+	edgeFrac := slices.Clone(many)
+	edgeFrac[TaskRows-1] = "2.5" // row TaskRows: looked at
 	cases := []struct {
 		name string
 		kind table.Kind
@@ -62,12 +74,58 @@ func TestDetectRegression(t *testing.T) {
 		{"binary ints", table.Int64, []string{"0", "1", "", "1"}, false},
 		{"few classes", table.Int64, []string{"1", "2", "3", "2"}, false},
 		{"fractions", table.Float64, []string{"1.5", "2", "3"}, true},
+		{"late fraction", table.Float64, []string{"1", "2", "", "3", "0.25"}, true},
 		{"many integers", table.Int64, []string{"1", "2", "3", "4", "5", "6", "7", "8", "9", "10", "11"}, true},
+		{"ten integers", table.Int64, []string{"1", "2", "3", "4", "5", "6", "7", "8", "9", "10", "1"}, false},
 		{"text labels", table.String, []string{"yes", "no"}, false},
+		{"text after a fraction", table.Float64, []string{"1.5", "n/a"}, true},
+		{"fraction after text", table.Float64, []string{"1", "n/a", "1.5"}, false},
+		{"fraction beyond the rows looked at", table.Float64, lateFrac, false},
+		{"fraction in the last row looked at", table.Float64, edgeFrac, true},
+		{"no rows", table.Float64, nil, false},
 	}
 	for _, c := range cases {
-		if got := detectRegression(textBatch(c.vals...), 0, c.kind); got != c.want {
-			t.Errorf("%s: regression = %v, want %v", c.name, got, c.want)
+		var whole TaskProbe
+		whole.Add(textBatch(c.vals...), 0, c.kind)
+		if whole.Regression() != c.want {
+			t.Errorf("%s: regression = %v, want %v (%+v)", c.name, whole.Regression(), c.want, whole)
+		}
+		if len(c.vals) > 0 && len(c.vals) < TaskRows && !whole.Decided() && c.want {
+			t.Errorf("%s: not decided", c.name)
+		}
+		// Every cut into two, and one into single rows.
+		cuts := [][]int{}
+		for k := 0; k <= len(c.vals) && k < 30; k++ {
+			cuts = append(cuts, []int{k})
+		}
+		if len(c.vals) > 0 && len(c.vals) < 30 {
+			var ones []int
+			for k := 1; k < len(c.vals); k++ {
+				ones = append(ones, k)
+			}
+			cuts = append(cuts, ones)
+		}
+		cuts = append(cuts, []int{len(c.vals) - 3, len(c.vals) - 2})
+		for _, cut := range cuts {
+			var batched, appended TaskProbe
+			at := 0
+			for _, k := range append(slices.Clone(cut), len(c.vals)) {
+				if k < at || k > len(c.vals) {
+					continue
+				}
+				b := textBatch(c.vals[at:k]...)
+				batched.Add(b, 0, c.kind)
+				var shard TaskProbe
+				shard.Add(b, 0, c.kind)
+				appended.Append(shard)
+				at = k
+			}
+			if !reflect.DeepEqual(batched, whole) {
+				t.Errorf("%s, cut at %v: batch by batch %+v, in one batch %+v", c.name, cut, batched, whole)
+			}
+			if !reflect.DeepEqual(appended, whole) {
+				t.Errorf("%s, cut at %v: shards appended %+v, in one batch %+v", c.name, cut, appended, whole)
+			}
 		}
 	}
 }

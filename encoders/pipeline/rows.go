@@ -205,7 +205,7 @@ const MaxTarget = 1e150
 // newTargetReader returns the reader of the target column name at position
 // col of kind kind: the one constructor of fit, encode and compare, so all
 // of them read the same column the same way. task is "" (decided later
-// from the first batch), binary, multiclass or regression. classes, when
+// from the first rows, TaskProbe), binary, multiclass or regression. classes, when
 // known (the encode pass after a fit), are the labels in the fitted order:
 // rows get those class numbers; otherwise classes are numbered in order of
 // appearance.
@@ -360,34 +360,6 @@ func (tr *targetReader) read(b *table.Batch) error {
 		}
 	}
 	return nil
-}
-
-// detectRegression decides the task from the first batch when the user did
-// not give one: a text target is a classification target; a numeric one is
-// regression unless all its values are integers with at most 10 distinct.
-func detectRegression(b *table.Batch, col int, kind table.Kind) bool {
-	if kind == table.String || kind == table.Bool {
-		return false
-	}
-	c := &b.Cols[col]
-	distinct := map[float64]bool{}
-	for i := 0; i < b.Rows; i++ {
-		v, ok, err := c.Float(i)
-		if err != nil {
-			return false // reported by the reader later
-		}
-		if !ok || math.IsNaN(v) || math.IsInf(v, 0) {
-			continue
-		}
-		if v != math.Trunc(v) {
-			return true
-		}
-		distinct[v] = true
-		if len(distinct) > 10 {
-			return true
-		}
-	}
-	return false
 }
 
 // sortedClasses returns the class labels in sorted order (numerically for

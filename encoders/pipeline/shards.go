@@ -28,7 +28,7 @@ import (
 //	stage 2   Model.Encode(shard, Offset: plan.First[i]-1), Model.SaveTables
 //
 // What the one-pass fit decides as it reads (the task, from the first
-// batch of a target; the origin of a regression target's sums, its first
+// rows of a target; the origin of a regression target's sums, its first
 // known value; the class labels and their order) comes from the plan, so
 // every shard counts its rows as the one pass would. Folds are drawn from
 // row numbers counted across the shards. Statistics add exactly (class
@@ -53,9 +53,9 @@ import (
 type ShardFacts struct {
 	Rows    int64
 	Missing int64 // rows whose target is unknown
-	// Detected: the shard has a row (Batched), and its first batch makes
-	// the target a regression target (detectRegression).
-	Batched, Regression bool
+	// Task is what the shard's first rows say of the task (TaskProbe);
+	// the plan appends the shards' in order.
+	Task TaskProbe
 	// First is the shard's first known target value, when HasFirst (a
 	// numeric target).
 	First    float64
@@ -129,10 +129,7 @@ func Survey(r table.Reader, sp Spec, file string) (ShardFacts, error) {
 		if tcol < 0 {
 			return nil
 		}
-		if !sf.Batched {
-			sf.Batched = true
-			sf.Regression = detectRegression(b, 0, schema.Fields[tcol].Kind)
-		}
+		sf.Task.Add(b, 0, schema.Fields[tcol].Kind)
 		if num != nil {
 			if err := num.read(b); err != nil {
 				if cls == nil {
@@ -236,6 +233,7 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 	var last *OrderEnds // the order column's values in the shards so far
 	lastShard := 0
 	var order []string
+	var probe TaskProbe // the first rows of the shards, in order
 	seen, many := map[string]bool{}, false
 	stratified := sp.FoldBy.Name() == (folds.StratifiedRule{}).Name()
 	before := map[string]uint64{} // rows of each class before shard i
@@ -260,12 +258,7 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 		}
 		p.Rows += f.Rows
 		p.missing += f.Missing
-		if f.Batched && !p.decided {
-			p.decided = true
-			if f.Regression {
-				p.task = colstats.Regression
-			}
-		}
+		probe.Append(f.Task)
 		if f.HasFirst && !p.hasOrigin {
 			p.origin, p.hasOrigin = f.First, true
 		}
@@ -276,6 +269,12 @@ func PlanShards(sp Spec, schema *table.Schema, facts []ShardFacts, file string) 
 			}
 		}
 		many = many || f.Many
+	}
+	if probe.Rows > 0 {
+		p.decided = true
+		if probe.Regression() {
+			p.task = colstats.Regression
+		}
 	}
 	switch sp.Task {
 	case colstats.Regression.String():

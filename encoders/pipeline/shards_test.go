@@ -11,10 +11,12 @@ import (
 	"strings"
 	"testing"
 
+	"manyfold/encoders/colstats"
 	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 	"manyfold/folds"
 	pgen "manyfold/internal/parcels"
+	"manyfold/io/csvio"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -447,4 +449,70 @@ func TestShardedFitParcels(t *testing.T) {
 			sameFiles(t, tables, wantTables)
 		})
 	}
+}
+
+// TestShardedTaskFromFirstRows: a numeric target whose first rows are a
+// few whole numbers, fractions after them, is a regression target
+// whatever cuts those rows: batches of two rows, or a first shard of five
+// rows and an empty second one. (The task rule reads the first TaskRows
+// rows, not the first batch or shard.)
+func TestShardedTaskFromFirstRows(t *testing.T) {
+	dir := t.TempDir()
+	lines := strings.SplitAfter(shipmentsText(400), "\n")
+	for i := 1; i <= 5; i++ {
+		f := strings.Split(strings.TrimSuffix(lines[i], "\n"), ",")
+		f[5] = strconv.Itoa(i%3) + ".0" // read as floats in a shard of its own too
+		lines[i] = strings.Join(f, ",") + "\n"
+	}
+	csv := strings.Join(lines, "")
+	whole := filepath.Join(dir, "whole.csv")
+	if err := os.WriteFile(whole, []byte(csv), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	sp := pipeline.DefaultSpec()
+	sp.Target, sp.Folds, sp.Seed, sp.Columns = "cost", 3, 7, []string{"postcode", "sender"}
+	var err error
+	if sp.Encodings, err = method.ParsePlan("target:eb+freq"); err != nil {
+		t.Fatal(err)
+	}
+	fit := func(batchRows int) *pipeline.Model {
+		r, err := tableio.Open(whole, tableio.ReadOptions{CSV: csvio.Options{BatchRows: batchRows}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer r.Close()
+		m, err := pipeline.Fit(r, sp, pipeline.FitOptions{File: whole, Threads: 2, Tables: true, TotalRows: 400})
+		if err != nil {
+			t.Fatalf("fit in batches of %d rows: %v", batchRows, err)
+		}
+		return m
+	}
+	m := fit(0)
+	if m.Task != colstats.Regression {
+		t.Fatalf("task %v, want regression", m.Task)
+	}
+	wantTables := filepath.Join(dir, "whole.tables")
+	if err := m.SaveTables(wantTables); err != nil {
+		t.Fatal(err)
+	}
+	small := filepath.Join(dir, "small.tables")
+	if err := fit(2).SaveTables(small); err != nil {
+		t.Fatal(err)
+	}
+	sameFiles(t, small, wantTables)
+	wantOut := filepath.Join(dir, "whole.out.csv")
+	encodeTo(t, m, whole, wantOut, pipeline.EncodeOptions{Threads: 2})
+	want, _ := os.ReadFile(wantOut)
+	sdir := filepath.Join(dir, "shards")
+	os.MkdirAll(sdir, 0o755)
+	shards := splitText(t, sdir, csv, []int{5, 0, 200, 195})
+	sm, _, opts := shardedRun(t, sp, shards, 4)
+	if got := encodeShards(t, sm, shards, opts, sdir); !bytes.Equal(got, want) {
+		t.Errorf("the shards' outputs differ from the one pass's%s", firstDiff(got, want))
+	}
+	tables := filepath.Join(sdir, "tables")
+	if err := sm.SaveTables(tables); err != nil {
+		t.Fatal(err)
+	}
+	sameFiles(t, tables, wantTables)
 }

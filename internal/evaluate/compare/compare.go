@@ -264,6 +264,7 @@ func run(r table.Reader, opt Options) (*Result, error) {
 	ko, ki := opt.Folds, opt.InnerFolds
 	nc := len(opt.Columns)
 	targets := pipeline.NewTargets(opt.File, opt.Target, at[0], tkind, opt.Task)
+	r = targets.Decide(r)
 	slots := make([]*pipeline.LevelSlots, nc)
 	for i := range slots {
 		slots[i] = pipeline.NewLevelSlots(at[1+i])

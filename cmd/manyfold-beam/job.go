@@ -17,6 +17,7 @@ import (
 	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
 	"manyfold/folds"
+	"manyfold/io/dataset"
 	"manyfold/io/derive"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
@@ -107,8 +108,12 @@ func local(ctx context.Context, p string) (string, func(), error) {
 	return f.Name(), done, nil
 }
 
-// open opens a shard as a table with the job's derived columns.
-func open(ctx context.Context, sp *pipeline.Spec, p string) (table.Reader, func(), error) {
+// open opens a shard as a table with the job's derived columns. fields,
+// when given, are the columns of every shard together (dataset.Columns):
+// the shard is read as a part of them (a column of integers here and of
+// floats in another shard is read as floats), as the plain binary reads
+// it within the dataset.
+func open(ctx context.Context, sp *pipeline.Spec, p string, fields []table.Field) (table.Reader, func(), error) {
 	lp, done, err := local(ctx, p)
 	if err != nil {
 		return nil, nil, err
@@ -117,6 +122,15 @@ func open(ctx context.Context, sp *pipeline.Spec, p string) (table.Reader, func(
 	if err != nil {
 		done()
 		return nil, nil, err
+	}
+	if fields != nil {
+		c, err := dataset.Conform(r, fields)
+		if err != nil {
+			r.Close()
+			done()
+			return nil, nil, fmt.Errorf("%s: %w", p, err)
+		}
+		r = c
 	}
 	w, err := derive.Wrap(r, names(sp))
 	if err != nil {
@@ -127,9 +141,10 @@ func open(ctx context.Context, sp *pipeline.Spec, p string) (table.Reader, func(
 	return w, func() { w.Close(); done() }, nil
 }
 
-// schemaOf returns a shard's schema, with the derived columns.
-func schemaOf(ctx context.Context, sp *pipeline.Spec, p string) (*table.Schema, error) {
-	r, done, err := open(ctx, sp, p)
+// schemaOf returns the schema of the shards' columns, fields, with the
+// derived columns, read from the shard at p.
+func schemaOf(ctx context.Context, sp *pipeline.Spec, p string, fields []table.Field) (*table.Schema, error) {
+	r, done, err := open(ctx, sp, p, fields)
 	if err != nil {
 		return nil, err
 	}
@@ -151,10 +166,23 @@ func plan(sp pipeline.Spec, schema *table.Schema, facts []ShardFacts) (*pipeline
 	return pipeline.PlanShards(sp, schema, fs, "the shards")
 }
 
-// ShardFacts is a shard's stage-0 facts with its index.
+// ShardFacts is a shard's stage-0 facts with its index, its path and its
+// columns as its reader found them (before the derived ones).
 type ShardFacts struct {
-	Index int
-	Facts pipeline.ShardFacts
+	Index  int
+	Path   string
+	Fields []table.Field
+	Facts  pipeline.ShardFacts
+}
+
+// columns returns the columns of every shard together, by the rule of a
+// dataset read on one machine (dataset.Columns).
+func columns(facts []ShardFacts) ([]table.Field, error) {
+	parts := make([]dataset.Part, len(facts))
+	for i, f := range facts {
+		parts[i] = dataset.Part{Path: f.Path, Fields: f.Fields, Empty: f.Facts.Rows == 0}
+	}
+	return dataset.Columns(parts)
 }
 
 // models keeps the model a worker assembled, by the job and the merged
@@ -167,6 +195,7 @@ type modelOnce struct {
 	m      *pipeline.Model
 	plan   *pipeline.ShardPlan
 	schema *table.Schema
+	fields []table.Field // the shards' columns together
 	err    error
 }
 

@@ -22,6 +22,7 @@ import (
 
 	"manyfold/encoders/method"
 	"manyfold/encoders/pipeline"
+	"manyfold/io/derive"
 	"manyfold/io/table"
 	"manyfold/io/tableio"
 )
@@ -118,11 +119,12 @@ func (fn *surveyFn) ProcessElement(ctx context.Context, sh Shard, emit func([]by
 	if err != nil {
 		return err
 	}
-	r, done, err := open(ctx, &sp, sh.Path)
+	r, done, err := open(ctx, &sp, sh.Path, nil)
 	if err != nil {
 		return err
 	}
 	defer done()
+	fields := slices.Clone(derive.Base(r).Schema().Fields)
 	f, err := pipeline.Survey(r, sp, sh.Path)
 	if err != nil {
 		return err
@@ -130,7 +132,7 @@ func (fn *surveyFn) ProcessElement(ctx context.Context, sh Shard, emit func([]by
 	// gob, not JSON: a class label is bytes, which JSON would turn into
 	// UTF-8 (two Latin-1 labels into one).
 	var buf bytes.Buffer
-	if err := gob.NewEncoder(&buf).Encode(ShardFacts{Index: sh.Index, Facts: f}); err != nil {
+	if err := gob.NewEncoder(&buf).Encode(ShardFacts{Index: sh.Index, Path: sh.Path, Fields: fields, Facts: f}); err != nil {
 		return err
 	}
 	emit(buf.Bytes())
@@ -150,10 +152,12 @@ func readFacts(all [][]byte) ([]ShardFacts, error) {
 	return out, nil
 }
 
-// planned is the job as a worker rebuilds it: the spec, the schema (of
-// the first shard, with the derived columns, read once) and the plan.
+// planned is the job as a worker rebuilds it: the spec, the shards'
+// columns together (fields), the schema (those, with the derived columns,
+// read once from the first shard) and the plan.
 type planned struct {
 	sp     pipeline.Spec
+	fields []table.Field
 	schema *table.Schema
 	plan   *pipeline.ShardPlan
 }
@@ -165,7 +169,10 @@ func planFrom(ctx context.Context, job Job, schemaPath string, facts []ShardFact
 	if pl.sp, err = job.Spec(); err != nil {
 		return pl, err
 	}
-	if pl.schema, err = schemaOf(ctx, &pl.sp, schemaPath); err != nil {
+	if pl.fields, err = columns(facts); err != nil {
+		return pl, err
+	}
+	if pl.schema, err = schemaOf(ctx, &pl.sp, schemaPath, pl.fields); err != nil {
 		return pl, err
 	}
 	pl.plan, err = plan(pl.sp, pl.schema, slices.Clone(facts))
@@ -199,7 +206,7 @@ func plannedFor(ctx context.Context, job Job, schemaPath, factsName string) (pla
 // fitFn is stage 1: a shard's statistics, one partial per partition.
 type fitFn struct {
 	Job    Job
-	Schema string // the shard whose schema the plan takes
+	Schema string // the shard the plan's schema is read from (its kinds those of every shard, dataset.Columns)
 }
 
 // Work is what a worker needs of the stages before it to fit or encode
@@ -311,7 +318,7 @@ func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, Piec
 	if err != nil {
 		return err
 	}
-	r, done, err := open(ctx, &pl.sp, sh.Path)
+	r, done, err := open(ctx, &pl.sp, sh.Path, pl.fields)
 	if err != nil {
 		return err
 	}
@@ -466,7 +473,7 @@ func model(ctx context.Context, job Job, schemaPath string, w Work) (*modelOnce,
 		if pl, mo.err = plannedFor(ctx, job, schemaPath, w.Facts); mo.err != nil {
 			return
 		}
-		mo.plan, mo.schema = pl.plan, pl.schema
+		mo.plan, mo.schema, mo.fields = pl.plan, pl.schema, pl.fields
 		mo.m, mo.err = pipeline.Assemble(pl.plan, pl.schema, parts, pipeline.FitOptions{File: "the shards", Threads: 2, Tables: true})
 	})
 	if mo.err != nil {
@@ -513,7 +520,7 @@ func (fn *encodeFn) ProcessElement(ctx context.Context, w Work, emit func(string
 	final := partName(fn.Out, sh.Index, fn.Job.Format)
 	removeStale(final)
 	err = writeFile(final, func(dst string) error {
-		r, done, err := open(ctx, &m.Spec, sh.Path)
+		r, done, err := open(ctx, &m.Spec, sh.Path, mo.fields)
 		if err != nil {
 			return err
 		}

@@ -258,3 +258,46 @@ func TestPipelineSameAsOneMachine(t *testing.T) {
 		})
 	}
 }
+
+// TestPipelineCSVShardsOfOtherKinds: CSV shards infer their kinds each
+// from its own rows. The pipeline reads them as the plain binary reads
+// their directory (dataset.Columns): the first shard empty (every column
+// text), the next one's cost all whole numbers (integers) and the others'
+// with cents (floats) make one float column. Output and tables equal the
+// one-machine run's, byte for byte.
+func TestPipelineCSVShardsOfOtherKinds(t *testing.T) {
+	data := t.TempDir()
+	const header = "postcode,sender,cost\n"
+	bodies := []string{"", "", "", ""}
+	for i := 0; i < 400; i++ {
+		s := 1 + i%3
+		if i < 60 {
+			s = 1
+		}
+		cost := fmt.Sprintf("%d.%02d", 3+i%7, (i*37)%100)
+		if s == 1 {
+			cost = fmt.Sprint(2 + i%5)
+		}
+		bodies[s] += fmt.Sprintf("PC%02d,ACC-%d,%s\n", (i*7)%13, i%9, cost)
+	}
+	for i, b := range bodies {
+		if err := os.WriteFile(filepath.Join(data, fmt.Sprintf("part-%05d.csv", i)), []byte(header+b), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	shards, err := listShards(context.Background(), filepath.Join(data, "part-*.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	job := Job{Target: "cost", Columns: "postcode,sender", Methods: "target:m=2+freq", FoldBy: "rows", Scheme: "kfold", Folds: 3, Seed: 4, Partitions: 4, Format: "csv"}
+	dir := t.TempDir()
+	want := reference(t, job, data, filepath.Join(dir, "ref.csv"), filepath.Join(dir, "ref-tables"))
+	out, tables := filepath.Join(dir, "out"), filepath.Join(dir, "tables")
+	if err := runPrism(t, job, shards, out, tables); err != nil {
+		t.Fatal(err)
+	}
+	if got := concatenated(t, out, len(shards)); !bytes.Equal(got, want) {
+		t.Errorf("the encoded shards differ from the one-machine output (%d and %d bytes):\n%.300s\n%.300s", len(got), len(want), got, want)
+	}
+	sameDirs(t, tables, filepath.Join(dir, "ref-tables"))
+}

@@ -811,6 +811,33 @@ func TestReaderKinds(t *testing.T) {
 			if !slices.Equal(got.cols[1], want) {
 				t.Errorf("column b: %q, want %q", got.cols[1], want)
 			}
+			// Each file read on its own as a part of the dataset
+			// (Conform, as a shard of a distributed run is): the
+			// dataset's kinds, the same cells; all columns and b alone.
+			for _, sel := range [][]int{nil, {1}} {
+				var each []string
+				for _, p := range paths {
+					r, err := openFile(p)
+					if err != nil {
+						t.Fatal(err)
+					}
+					c, err := dataset.Conform(r, d.Schema().Fields)
+					if err != nil {
+						t.Fatal(err)
+					}
+					if sel != nil {
+						if err := c.Select(sel); err != nil {
+							t.Fatal(err)
+						}
+					}
+					res := readAll(t, c)
+					r.Close()
+					each = append(each, res.cols[len(res.cols)-1]...)
+				}
+				if !slices.Equal(each, want) {
+					t.Errorf("column b, files conformed one by one (select %v): %q, want %q", sel, each, want)
+				}
+			}
 		})
 	}
 }

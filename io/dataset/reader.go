@@ -114,45 +114,15 @@ func New(files []File, open func(path string) (table.Reader, error)) (*Reader, e
 	return d, nil
 }
 
-// merge sets the dataset's columns from the files': the first file's
-// names, every file's (with rows) kinds, widened from integers to floats
-// where files differ so, and nullable where any file's is.
+// merge sets the dataset's columns from the files' (Columns).
 func (d *Reader) merge() error {
-	first := d.files[0].Path
-	d.schema.Fields = append([]table.Field(nil), d.seen[0]...)
-	kindFrom := make([]int, len(d.schema.Fields)) // the file whose kind a column has
-	for i, fields := range d.seen {
-		path := d.files[i].Path
-		for j, f := range fields {
-			if j >= len(d.schema.Fields) {
-				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("a column %s does not have (%w)", first, ErrParts)}
-			}
-			w := &d.schema.Fields[j]
-			if f.Name != w.Name {
-				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("column %d is %q in %s (%w)", j+1, w.Name, first, ErrParts)}
-			}
-			w.Nullable = w.Nullable || f.Nullable
-			switch k := f.Kind; {
-			case k == w.Kind || d.rows[i] == 0 || widens(k, w.Kind):
-			case d.rows[kindFrom[j]] == 0 || widens(w.Kind, k):
-				w.Kind, kindFrom[j] = k, i
-			default:
-				return &table.DataError{File: path, Column: f.Name, Err: fmt.Errorf("%s here, %s in %s (%w)", k, w.Kind, d.files[kindFrom[j]].Path, ErrParts)}
-			}
-		}
-		if len(fields) < len(d.schema.Fields) {
-			return &table.DataError{File: path, Column: d.schema.Fields[len(fields)].Name, Err: fmt.Errorf("missing here, present in %s (%w)", first, ErrParts)}
-		}
+	parts := make([]Part, len(d.files))
+	for i, f := range d.files {
+		parts[i] = Part{Path: f.Path, Fields: d.seen[i], Empty: d.rows[i] == 0}
 	}
-	// A kind set by a later file is checked against the earlier ones.
-	for i, fields := range d.seen {
-		for j, f := range fields {
-			if w := d.schema.Fields[j]; f.Kind != w.Kind && d.rows[i] != 0 && !widens(f.Kind, w.Kind) {
-				return &table.DataError{File: d.files[i].Path, Column: f.Name, Err: fmt.Errorf("%s here, %s in %s (%w)", f.Kind, w.Kind, d.files[kindFrom[j]].Path, ErrParts)}
-			}
-		}
-	}
-	return nil
+	fields, err := Columns(parts)
+	d.schema.Fields = fields
+	return err
 }
 
 // ErrParts is wrapped by the errors of files whose columns differ from
@@ -185,10 +155,6 @@ func (d *Reader) dataErrorFirst(err error) error {
 		}
 	}
 }
-
-// widens reports whether a column of kind from in one file and of kind to
-// in another is a column of kind to: integers among floats.
-func widens(from, to table.Kind) bool { return from == table.Int64 && to == table.Float64 }
 
 // isEmpty reports whether r holds no rows (it reads its first batch).
 func isEmpty(r table.Reader) bool {
@@ -385,7 +351,10 @@ func (d *Reader) batch(b *table.Batch, first int64) *table.Batch {
 			col := &out.Cols[len(out.Cols)-1]
 			d.renumber(col)
 			if col.Form == table.FormInt64 && d.schema.Fields[c].Kind == table.Float64 {
-				d.widen(col, c)
+				if d.floats == nil {
+					d.floats = make([][]float64, d.width)
+				}
+				d.floats[c] = widen(col, d.floats[c])
 			}
 			fi++
 			continue
@@ -408,20 +377,6 @@ func (d *Reader) keyColumn(k, rows int) table.Column {
 		c.Nulls = d.trues[:rows]
 	}
 	return c
-}
-
-// widen turns a column of integers into floats (a column that other files
-// hold as floats).
-func (d *Reader) widen(col *table.Column, c int) {
-	if d.floats == nil {
-		d.floats = make([][]float64, d.width)
-	}
-	f := d.floats[c][:0]
-	for _, v := range col.Ints {
-		f = append(f, float64(v))
-	}
-	d.floats[c] = f
-	col.Form, col.Floats, col.Ints = table.FormFloat64, f, nil
 }
 
 // renumber gives a file's dictionary an ID of the dataset's own, the same

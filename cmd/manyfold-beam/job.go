@@ -215,8 +215,9 @@ func writeFile(final string, write func(p string) error) error {
 }
 
 // writeRemote writes a file of another filesystem: locally first, then
-// copied under the final name (an object store makes an object visible
-// only once it is whole).
+// copied under the final name as a stream (an object store makes an
+// object visible only once it is whole), so that a worker's memory does
+// not hold an encoded shard.
 func writeRemote(final string, write func(tmp string) error) error {
 	ctx := context.Background()
 	d, err := os.MkdirTemp("", "manyfold-out-*")
@@ -228,16 +229,34 @@ func writeRemote(final string, write func(tmp string) error) error {
 	if err := write(tmp); err != nil {
 		return err
 	}
-	data, err := os.ReadFile(tmp)
+	return upload(ctx, final, tmp)
+}
+
+// upload copies the local file src as final, of another filesystem, as
+// a stream.
+func upload(ctx context.Context, final, src string) error {
+	f, err := os.Open(src)
 	if err != nil {
 		return err
 	}
+	defer f.Close()
 	fs, err := filesystem.New(ctx, final)
 	if err != nil {
 		return err
 	}
 	defer fs.Close()
-	return filesystem.Write(ctx, fs, final, data)
+	w, err := fs.OpenWrite(ctx, final)
+	if err != nil {
+		return err
+	}
+	if _, err := io.Copy(w, f); err != nil {
+		w.Close()
+		return fmt.Errorf("writing %s: %w", final, err)
+	}
+	if err := w.Close(); err != nil {
+		return fmt.Errorf("writing %s: %w", final, err)
+	}
+	return nil
 }
 
 // typeOf returns the reflect type of T, for registering it.

@@ -757,17 +757,8 @@ func saveTables(ctx context.Context, m *pipeline.Model, scores []*pipeline.Score
 	slices.SortFunc(entries, func(a, b os.DirEntry) int {
 		return boolInt(a.Name() == "manifest.json") - boolInt(b.Name() == "manifest.json")
 	})
-	fs, err := filesystem.New(ctx, tables)
-	if err != nil {
-		return err
-	}
-	defer fs.Close()
 	for _, e := range entries {
-		data, err := os.ReadFile(filepath.Join(local, e.Name()))
-		if err != nil {
-			return err
-		}
-		if err := filesystem.Write(ctx, fs, joinPath(tables, path.Base(e.Name())), data); err != nil {
+		if err := upload(ctx, joinPath(tables, path.Base(e.Name())), filepath.Join(local, e.Name())); err != nil {
 			return err
 		}
 	}

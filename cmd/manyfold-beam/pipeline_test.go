@@ -10,6 +10,8 @@ import (
 	"testing"
 
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
+	"github.com/apache/beam/sdks/v2/go/pkg/beam/io/filesystem"
+	_ "github.com/apache/beam/sdks/v2/go/pkg/beam/io/filesystem/memfs"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/runners/prism"
 
 	"manyfold/encoders/pipeline"
@@ -300,4 +302,47 @@ func TestPipelineCSVShardsOfOtherKinds(t *testing.T) {
 		t.Errorf("the encoded shards differ from the one-machine output (%d and %d bytes):\n%.300s\n%.300s", len(got), len(want), got, want)
 	}
 	sameDirs(t, tables, filepath.Join(dir, "ref-tables"))
+
+	// The same job into another filesystem (Beam's in-memory one, as a
+	// stand-in for gs:// and s3://): the parts, the tables and nothing
+	// of the staging folder left.
+	ctx := context.Background()
+	if err := runPrism(t, job, shards, "memfs://kinds/out", "memfs://kinds/tables"); err != nil {
+		t.Fatal(err)
+	}
+	var got []byte
+	for i := range shards {
+		b, err := readAll(ctx, fmt.Sprintf("memfs://kinds/out/part-%05d.csv", i))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if i > 0 {
+			b = b[bytes.IndexByte(b, '\n')+1:]
+		}
+		got = append(got, b...)
+	}
+	if !bytes.Equal(got, want) {
+		t.Errorf("the encoded shards in memfs differ from the one-machine output (%d and %d bytes)", len(got), len(want))
+	}
+	es, _ := os.ReadDir(filepath.Join(dir, "ref-tables"))
+	for _, e := range es {
+		b, err := readAll(ctx, "memfs://kinds/tables/"+e.Name())
+		ref, _ := os.ReadFile(filepath.Join(dir, "ref-tables", e.Name()))
+		if err != nil || !bytes.Equal(b, ref) {
+			t.Errorf("table %s in memfs differs from the one-machine one (%v)", e.Name(), err)
+		}
+	}
+	fs, err := filesystem.New(ctx, "memfs://kinds/out")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer fs.Close()
+	all, err := fs.List(ctx, "memfs://kinds/out/*")
+	if err != nil || len(all) != len(shards) {
+		t.Errorf("memfs://kinds/out holds %q, want the %d parts (%v)", all, len(shards), err)
+	}
+	left, err := fs.List(ctx, "memfs://kinds/out/_stats-*/*")
+	if err != nil || len(left) > 0 {
+		t.Errorf("the staging folder is left: %q (%v)", left, err)
+	}
 }

@@ -10,7 +10,9 @@
 #
 #   bench/beam.sh [ROWS]        default ROWS: 10000000
 #
-# Environment: REPS (default 3), WORK (default /tmp/manyfold-beam-bench).
+# Environment: REPS (default 3), WORK (default /tmp/manyfold-beam-bench),
+# WAYS (default "one plain beam"; "one plain" compares the one file with
+# the directory alone, and skips the byte checks).
 # Prints each run's wall seconds and peak RSS (GNU time), then the medians.
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
@@ -18,6 +20,7 @@ root=$(cd "$here/.." && pwd)
 ROWS=${1:-10000000}
 REPS=${REPS:-3}
 WORK=${WORK:-/tmp/manyfold-beam-bench}
+WAYS=${WAYS:-one plain beam}
 mkdir -p "$WORK"
 (cd "$root" && go build -o "$WORK/manyfold" ./cmd/manyfold)
 (cd "$root/cmd/manyfold-beam" && go build -o "$WORK/manyfold-beam" .)
@@ -28,20 +31,29 @@ cols=dest_postcode,sender_account,shipment_id
 methods=target:m=20+freq
 : >"$WORK/results.txt"
 for rep in $(seq "$REPS"); do
-	rm -rf "$WORK/one" "$WORK/plain" "$WORK/beam" && mkdir -p "$WORK/one" "$WORK/plain"
-	/usr/bin/time -f '%e %M' -o "$WORK/t.txt" "$WORK/manyfold" encode "$d/shipments.parquet" --target late \
-		--columns "$cols" --methods "$methods" --folds 5 --seed 3 --threads 2 \
-		--out "$WORK/one/o.csv" --tables "$WORK/one/t" >/dev/null 2>&1
-	echo "one $(cat "$WORK/t.txt")" | tee -a "$WORK/results.txt"
-	/usr/bin/time -f '%e %M' -o "$WORK/t.txt" "$WORK/manyfold" encode "$d/shipments.parts" --target late \
-		--columns "$cols" --methods "$methods" --folds 5 --seed 3 --threads 2 \
-		--out "$WORK/plain/o.csv" --tables "$WORK/plain/t" >/dev/null 2>&1
-	echo "plain $(cat "$WORK/t.txt")" | tee -a "$WORK/results.txt"
-	/usr/bin/time -f '%e %M' -o "$WORK/t.txt" "$WORK/manyfold-beam" -input "$d/shipments.parts/part-*.parquet" \
-		-target late -columns "$cols" -methods "$methods" -folds 5 -seed 3 -format csv \
-		-out "$WORK/beam/out" -tables "$WORK/beam/t" >"$WORK/beam.log" 2>&1
-	echo "beam $(cat "$WORK/t.txt")" | tee -a "$WORK/results.txt"
-	if [ "$rep" = 1 ]; then
+	for way in $WAYS; do
+		# Each run starts with the disk idle: the output of the run before
+		# (a gigabyte of CSV) written back first, not during this one.
+		rm -rf "${WORK:?}/$way" && mkdir -p "$WORK/$way"
+		[ "$way" = beam ] && rmdir "$WORK/beam"
+		sync
+		case $way in
+		one | plain)
+			in=$d/shipments.parquet
+			[ "$way" = plain ] && in=$d/shipments.parts
+			/usr/bin/time -f '%e %M' -o "$WORK/t.txt" "$WORK/manyfold" encode "$in" --target late \
+				--columns "$cols" --methods "$methods" --folds 5 --seed 3 --threads 2 \
+				--out "$WORK/$way/o.csv" --tables "$WORK/$way/t" >/dev/null 2>&1
+			;;
+		beam)
+			/usr/bin/time -f '%e %M' -o "$WORK/t.txt" "$WORK/manyfold-beam" -input "$d/shipments.parts/part-*.parquet" \
+				-target late -columns "$cols" -methods "$methods" -folds 5 -seed 3 -format csv \
+				-out "$WORK/beam/out" -tables "$WORK/beam/t" >"$WORK/beam.log" 2>&1
+			;;
+		esac
+		echo "$way $(cat "$WORK/t.txt")" | tee -a "$WORK/results.txt"
+	done
+	if [ "$rep" = 1 ] && [ "$WAYS" = "one plain beam" ]; then
 		parts=("$WORK"/beam/out/part-*.csv)
 		{ head -n 1 "${parts[0]}"; for p in "${parts[@]}"; do tail -n +2 "$p"; done; } | cmp - "$WORK/plain/o.csv"
 		for f in "$WORK"/plain/t/*.parquet; do cmp "$f" "$WORK/beam/t/$(basename "$f")"; done
@@ -53,6 +65,6 @@ for rep in $(seq "$REPS"); do
 done
 median() { sort -n | awk '{ v[NR] = $1 } END { if (NR % 2) print v[(NR + 1) / 2]; else print (v[NR / 2] + v[NR / 2 + 1]) / 2 }'; }
 echo "medians (way, wall s, peak RSS KB):"
-for way in one plain beam; do
+for way in $WAYS; do
 	echo "$way $(awk -v w="$way" '$1 == w { print $2 }' "$WORK/results.txt" | median) $(awk -v w="$way" '$1 == w { print $3 }' "$WORK/results.txt" | median)"
 done

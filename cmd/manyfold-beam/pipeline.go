@@ -336,6 +336,9 @@ func (fn *fitFn) ProcessElement(ctx context.Context, w Work, emit func(int, Piec
 		if err := writeAll(ctx, name, b); err != nil {
 			return err
 		}
+		if failOnce(name) {
+			return fmt.Errorf("%s: a failure injected once (MANYFOLD_BEAM_FAIL_ONCE)", name)
+		}
 		emit(part, Piece{Shard: sh.Index, Facts: w.Facts, Path: name})
 	}
 	return nil
@@ -667,21 +670,28 @@ func encodeOptions(p *pipeline.ShardPlan, sh Shard) pipeline.EncodeOptions {
 }
 
 // failOnce reports, the first time it is asked about a path that ends in
-// the suffix MANYFOLD_BEAM_FAIL_ONCE names, that the write should fail (a
-// test's injected fault: the bundle fails once and is retried); a marker
-// file beside the path remembers that it did.
+// one of the suffixes MANYFOLD_BEAM_FAIL_ONCE lists (comma-separated),
+// that the bundle should fail there (a test's injected fault: the bundle
+// fails once and is retried, or the job is run again). A marker file in
+// the folder MANYFOLD_BEAM_FAIL_MARKS, named by the suffix, remembers that
+// it did, across runs (a run's staging folder has a name of its own).
 func failOnce(final string) bool {
-	suffix := os.Getenv("MANYFOLD_BEAM_FAIL_ONCE")
-	if suffix == "" || !strings.HasSuffix(final, suffix) || strings.Contains(final, "://") {
+	marks := os.Getenv("MANYFOLD_BEAM_FAIL_MARKS")
+	if marks == "" {
 		return false
 	}
-	marker := final + ".failed-once"
-	f, err := os.OpenFile(marker, os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644)
-	if err != nil {
-		return false // failed before
+	for _, suffix := range strings.Split(os.Getenv("MANYFOLD_BEAM_FAIL_ONCE"), ",") {
+		if suffix == "" || !strings.HasSuffix(final, suffix) {
+			continue
+		}
+		f, err := os.OpenFile(filepath.Join(marks, filepath.Base(suffix)), os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644)
+		if err != nil {
+			return false // failed before
+		}
+		f.Close()
+		return true
 	}
-	f.Close()
-	return true
+	return false
 }
 
 // tablesFn writes the mapping tables once every shard is encoded, their

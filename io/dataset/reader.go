@@ -184,16 +184,7 @@ func (d *Reader) Files() []File { return d.files }
 
 // Schema returns the files' columns and the folder keys (or those
 // selected).
-func (d *Reader) Schema() *table.Schema {
-	if d.sel == nil {
-		return &d.schema
-	}
-	s := &table.Schema{}
-	for _, i := range d.sel {
-		s.Fields = append(s.Fields, d.schema.Fields[i])
-	}
-	return s
-}
+func (d *Reader) Schema() *table.Schema { return selected(&d.schema, d.sel) }
 
 // Select restricts the reader to the columns at the given positions.
 func (d *Reader) Select(cols []int) error {

@@ -103,13 +103,17 @@ type conformed struct {
 	floats [][]float64
 }
 
-func (c *conformed) Schema() *table.Schema {
-	if c.sel == nil {
-		return &c.all
+func (c *conformed) Schema() *table.Schema { return selected(&c.all, c.sel) }
+
+// selected returns the columns of all at the positions sel (all for a nil
+// sel).
+func selected(all *table.Schema, sel []int) *table.Schema {
+	if sel == nil {
+		return all
 	}
 	s := &table.Schema{}
-	for _, i := range c.sel {
-		s.Fields = append(s.Fields, c.all.Fields[i])
+	for _, i := range sel {
+		s.Fields = append(s.Fields, all.Fields[i])
 	}
 	return s
 }

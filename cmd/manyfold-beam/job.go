@@ -245,11 +245,16 @@ func upload(ctx context.Context, final, src string) error {
 		return err
 	}
 	defer fs.Close()
+	// A cancelled context abandons the upload: Close then does not make
+	// the object of the bytes copied so far.
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
 	w, err := fs.OpenWrite(ctx, final)
 	if err != nil {
 		return err
 	}
 	if _, err := io.Copy(w, f); err != nil {
+		cancel()
 		w.Close()
 		return fmt.Errorf("writing %s: %w", final, err)
 	}

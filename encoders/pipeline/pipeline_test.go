@@ -1,6 +1,7 @@
 package pipeline
 
 import (
+	"errors"
 	"reflect"
 	"slices"
 	"testing"
@@ -105,7 +106,8 @@ func TestTaskProbe(t *testing.T) {
 			}
 			cuts = append(cuts, ones)
 		}
-		cuts = append(cuts, []int{len(c.vals) - 3, len(c.vals) - 2})
+		cuts = append(cuts, []int{len(c.vals) - 3, len(c.vals) - 2},
+			[]int{TaskRows - 1}, []int{TaskRows}, []int{TaskRows + 1}, []int{5, TaskRows - 1, TaskRows + 1})
 		for _, cut := range cuts {
 			var batched, appended TaskProbe
 			at := 0
@@ -162,5 +164,53 @@ func TestCheckOutputNames(t *testing.T) {
 	}
 	if err := sp.CheckOutputNames("x.csv", s); err != nil {
 		t.Errorf("clash reported for a column whose encodings write no freq: %v", err)
+	}
+}
+
+// errAfter is a reader of the given batches, then err.
+type errAfter struct {
+	batches []*table.Batch
+	err     error
+}
+
+func (r *errAfter) Schema() *table.Schema {
+	return &table.Schema{Fields: []table.Field{{Name: "y", Kind: table.Int64}}}
+}
+func (r *errAfter) Select([]int) error { return nil }
+func (r *errAfter) Close() error       { return nil }
+func (r *errAfter) Next() (*table.Batch, error) {
+	if len(r.batches) == 0 {
+		return nil, r.err
+	}
+	b := r.batches[0]
+	r.batches = r.batches[1:]
+	return b, nil
+}
+
+// TestProbeTaskReplays: the reader probeTask returns gives the batches it
+// read ahead, in order and intact, then the error the reader met ahead,
+// where a plain read meets it.
+func TestProbeTaskReplays(t *testing.T) {
+	bad := errors.New("line 5: broken")
+	r := &errAfter{batches: []*table.Batch{textBatch("1", "0"), textBatch("1", "")}, err: bad}
+	p, replay := probeTask(r, 0, table.Int64)
+	if p.Regression() || p.Rows != 4 {
+		t.Errorf("probe %+v, want classification over 4 rows", p)
+	}
+	var got []string
+	for {
+		b, err := replay.Next()
+		if err != nil {
+			if err != bad {
+				t.Errorf("error %v, want %v", err, bad)
+			}
+			break
+		}
+		for i := 0; i < b.Rows; i++ {
+			got = append(got, string(b.Cols[0].AppendText(nil, i)))
+		}
+	}
+	if !slices.Equal(got, []string{"1", "0", "1", ""}) {
+		t.Errorf("replayed %q", got)
 	}
 }

@@ -138,7 +138,10 @@ type probeReader struct {
 // probeTask decides the task of the target at position col (of kind kind)
 // of r's batches (TaskProbe) and returns a reader that gives r's batches
 // from the first. Only the batches read before the decision are kept, as
-// copies; most tables decide on their first batch and keep none.
+// copies: a table whose first batch holds TaskRows rows, or a fraction or
+// an 11th integer, keeps none; at most TaskRows rows are kept (a numeric
+// classification target read in smaller batches: small row groups, or a
+// dataset of small files).
 func probeTask(r table.Reader, col int, kind table.Kind) (*TaskProbe, table.Reader) {
 	p := &TaskProbe{}
 	pr := &probeReader{Reader: r}

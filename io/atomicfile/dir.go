@@ -65,19 +65,25 @@ func CreateDir(path string, replace func(existing string) error) (*Dir, error) {
 }
 
 // mkdirTemp makes a new directory named prefix plus a random suffix in
-// parent, and tracks it.
+// parent, and tracks it. The directory is made and tracked under the
+// registry's lock, as createTemp makes a file, so that a signal's Cleanup
+// either finds it tracked or runs before it exists (made, then tracked,
+// it could be made just before a Cleanup that the process exits after).
 func mkdirTemp(parent, prefix string, perm os.FileMode) (string, error) {
 	for try := 0; ; try++ {
 		name := filepath.Join(parent, prefix+randomSuffix())
-		err := os.Mkdir(name, perm)
+		err := commitLock(func() error {
+			err := os.Mkdir(name, perm)
+			if err == nil {
+				trackLocked(name)
+			}
+			return err
+		})
 		if errors.Is(err, os.ErrExist) && try < 100 {
 			continue
 		}
 		if err != nil {
 			return "", err
-		}
-		if !Track(name) {
-			return "", errClosed
 		}
 		return name, nil
 	}

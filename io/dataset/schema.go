@@ -132,10 +132,11 @@ func (c *conformed) Next() (*table.Batch, error) {
 		return nil, err
 	}
 	out := &c.out
+	cols := out.Cols[:0] // the conformed reader's own, not b's
 	*out = *b
-	out.Cols = append(out.Cols[:0], b.Cols...)
-	if c.floats == nil {
-		c.floats = make([][]float64, len(out.Cols))
+	out.Cols = append(cols, b.Cols...)
+	for len(c.floats) < len(out.Cols) {
+		c.floats = append(c.floats, nil)
 	}
 	for j := range out.Cols {
 		pos := j

@@ -38,7 +38,7 @@ type Reader struct {
 	ids    map[uint64]uint64 // the current file's Dict IDs, renumbered
 	nextID uint64
 	seen   [][]table.Field // per file, its columns as first opened
-	floats [][]float64     // per column, integers widened to floats
+	wide   widener         // integers read as floats
 	nested []pqio.Nested
 	cols   []int          // the columns read: sel, or every position
 	keyCol []table.Column // per key, the current file's value
@@ -341,12 +341,7 @@ func (d *Reader) batch(b *table.Batch, first int64) *table.Batch {
 			out.Cols = append(out.Cols, b.Cols[fi])
 			col := &out.Cols[len(out.Cols)-1]
 			d.renumber(col)
-			if col.Form == table.FormInt64 && d.schema.Fields[c].Kind == table.Float64 {
-				if d.floats == nil {
-					d.floats = make([][]float64, d.width)
-				}
-				d.floats[c] = widen(col, d.floats[c])
-			}
+			d.wide.conform(col, c, d.schema.Fields[c].Kind)
 			fi++
 			continue
 		}

@@ -66,15 +66,26 @@ func Columns(parts []Part) ([]table.Field, error) {
 // in another is a column of kind to: integers among floats.
 func widens(from, to table.Kind) bool { return from == table.Int64 && to == table.Float64 }
 
-// widen turns a column of integers into floats, in buf's storage, which
-// it returns for the next call.
-func widen(col *table.Column, buf []float64) []float64 {
-	f := buf[:0]
+// widener reads columns of integers as floats where the dataset's kind is
+// float, into buffers of its own, one per column position, reused from
+// batch to batch.
+type widener struct{ floats [][]float64 }
+
+// conform turns col, at position j, into floats when it holds integers
+// and kind is Float64.
+func (w *widener) conform(col *table.Column, j int, kind table.Kind) {
+	if col.Form != table.FormInt64 || kind != table.Float64 {
+		return
+	}
+	for len(w.floats) <= j {
+		w.floats = append(w.floats, nil)
+	}
+	f := w.floats[j][:0]
 	for _, v := range col.Ints {
 		f = append(f, float64(v))
 	}
+	w.floats[j] = f
 	col.Form, col.Floats, col.Ints = table.FormFloat64, f, nil
-	return f
 }
 
 // Conform returns a reader of one part of a dataset, r, whose columns are
@@ -97,10 +108,10 @@ func Conform(r table.Reader, fields []table.Field) (table.Reader, error) {
 
 type conformed struct {
 	table.Reader
-	all    table.Schema
-	sel    []int
-	out    table.Batch
-	floats [][]float64
+	all  table.Schema
+	sel  []int
+	out  table.Batch
+	wide widener
 }
 
 func (c *conformed) Schema() *table.Schema { return selected(&c.all, c.sel) }
@@ -135,17 +146,12 @@ func (c *conformed) Next() (*table.Batch, error) {
 	cols := out.Cols[:0] // the conformed reader's own, not b's
 	*out = *b
 	out.Cols = append(cols, b.Cols...)
-	for len(c.floats) < len(out.Cols) {
-		c.floats = append(c.floats, nil)
-	}
 	for j := range out.Cols {
 		pos := j
 		if c.sel != nil {
 			pos = c.sel[j]
 		}
-		if col := &out.Cols[j]; col.Form == table.FormInt64 && c.all.Fields[pos].Kind == table.Float64 {
-			c.floats[j] = widen(col, c.floats[j])
-		}
+		c.wide.conform(&out.Cols[j], j, c.all.Fields[pos].Kind)
 	}
 	return out, nil
 }
